@@ -1,0 +1,205 @@
+//! Quantum numbers, block decomposition and matrix elements of the linear rotor in |J M⟩.
+//!
+//! A field polarized along Z conserves M, and cos²θ keeps the parity of J, so the problem splits
+//! into independent (|M|, parity) blocks. Inside a block the states are J = j_min, j_min + 2, ….
+
+pub mod legendre;
+
+use crate::molecule::Molecule;
+use crate::units::cm_to_rad_per_ps;
+use nalgebra::DMatrix;
+
+/// One (|M|, parity of J) block with `size` states J = j_min + 2n, n = 0..size.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+pub struct Block {
+    /// |M|, the conserved projection on the field axis.
+    pub m: u32,
+    /// Parity of J (0 even, 1 odd).
+    pub parity: u32,
+    /// Number of basis states kept.
+    pub size: usize,
+}
+
+impl Block {
+    /// Lowest J of the block: the smallest J ≥ |M| with the block's parity.
+    pub fn j_min(&self) -> u32 {
+        if self.m % 2 == self.parity { self.m } else { self.m + 1 }
+    }
+
+    /// J of basis index n.
+    pub fn j(&self, n: usize) -> u32 {
+        self.j_min() + 2 * n as u32
+    }
+
+    /// Highest J kept.
+    pub fn j_max(&self) -> u32 {
+        self.j(self.size - 1)
+    }
+
+    /// Number of states needed for the block to reach at least `j_top`.
+    pub fn size_to_reach(m: u32, parity: u32, j_top: u32) -> usize {
+        let b = Block { m, parity, size: 1 };
+        if j_top < b.j_min() { 1 } else { ((j_top - b.j_min()) / 2 + 1) as usize }
+    }
+
+    /// Degeneracy factor of the block: 1 for M = 0, 2 for |M| > 0 (±M blocks are identical).
+    pub fn m_degeneracy(&self) -> f64 {
+        if self.m == 0 { 1.0 } else { 2.0 }
+    }
+
+    /// Field-free angular frequencies ω_n = E_J / ħ in rad/ps.
+    pub fn frequencies(&self, mol: &Molecule) -> Vec<f64> {
+        (0..self.size).map(|n| cm_to_rad_per_ps(mol.energy_cm(self.j(n)))).collect()
+    }
+
+    /// The cos²θ matrix of the block as (diagonal, first off-diagonal); tridiagonal because ΔJ = 0, ±2.
+    pub fn cos2_tridiagonal(&self) -> (Vec<f64>, Vec<f64>) {
+        let d = (0..self.size).map(|n| cos2_diag(self.j(n), self.m)).collect();
+        let e = (0..self.size.saturating_sub(1)).map(|n| cos2_up2(self.j(n), self.m)).collect();
+        (d, e)
+    }
+
+    /// The cos²θ matrix of the block as a dense symmetric matrix.
+    pub fn cos2_dense(&self) -> DMatrix<f64> {
+        let (d, e) = self.cos2_tridiagonal();
+        let mut a = DMatrix::zeros(self.size, self.size);
+        for n in 0..self.size {
+            a[(n, n)] = d[n];
+            if n + 1 < self.size {
+                a[(n, n + 1)] = e[n];
+                a[(n + 1, n)] = e[n];
+            }
+        }
+        a
+    }
+
+    /// The |cosθ| matrix of the block (dense), by Gauss–Legendre quadrature over x = cosθ ∈ [0, 1]
+    /// that is exact for these polynomial integrands. ⟨|cosθ|⟩ equals ⟨cos²θ_2D⟩ for an ensemble
+    /// symmetric about Z.
+    pub fn abscos_dense(&self) -> DMatrix<f64> {
+        let n = self.size;
+        let j_max = self.j_max();
+        // Integrand x Θ_J Θ_J' has degree ≤ 2 j_max + 1: n_q ≥ j_max + 1 points are exact.
+        let nq = j_max as usize + 2;
+        let (x, w) = legendre::gauss_legendre(nq, 0.0, 1.0);
+        let mut phi = DMatrix::zeros(n, nq);
+        for q in 0..nq {
+            let th = legendre::theta_normalized(self.m, j_max, x[q]);
+            for i in 0..n {
+                phi[(i, q)] = th[(self.j(i) - self.m) as usize];
+            }
+        }
+        let mut scaled = phi.clone();
+        for q in 0..nq {
+            // The integrand is even in x, so ∫_{-1}^{1} |x| … = 2 ∫_0^1 x …
+            let f = 2.0 * w[q] * x[q];
+            for i in 0..n {
+                scaled[(i, q)] *= f;
+            }
+        }
+        &scaled * phi.transpose()
+    }
+}
+
+/// ⟨J M|cos²θ|J M⟩ = 1/3 + (2/3)[J(J+1) − 3M²] / [(2J − 1)(2J + 3)].
+pub fn cos2_diag(j: u32, m: u32) -> f64 {
+    let (j, m) = (j as f64, m as f64);
+    1.0 / 3.0 + 2.0 / 3.0 * (j * (j + 1.0) - 3.0 * m * m) / ((2.0 * j - 1.0) * (2.0 * j + 3.0))
+}
+
+/// ⟨J+2 M|cos²θ|J M⟩ = sqrt{[(J+1)² − M²][(J+2)² − M²]} / [(2J + 3) sqrt{(2J + 1)(2J + 5)}].
+pub fn cos2_up2(j: u32, m: u32) -> f64 {
+    let (j, m) = (j as f64, m as f64);
+    (((j + 1.0).powi(2) - m * m) * ((j + 2.0).powi(2) - m * m)).sqrt()
+        / ((2.0 * j + 3.0) * ((2.0 * j + 1.0) * (2.0 * j + 5.0)).sqrt())
+}
+
+/// ⟨J+1 M|cosθ|J M⟩ = sqrt{[(J+1)² − M²] / [(2J + 1)(2J + 3)]}.
+pub fn cos_up1(j: u32, m: u32) -> f64 {
+    let (j, m) = (j as f64, m as f64);
+    (((j + 1.0).powi(2) - m * m) / ((2.0 * j + 1.0) * (2.0 * j + 3.0))).sqrt()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::legendre::{gauss_legendre, theta_normalized};
+    use super::*;
+
+    /// Matrix element ⟨J M|f(x)|J' M⟩ by direct Gauss–Legendre quadrature of normalized spherical harmonics.
+    fn quad(j: u32, jp: u32, m: u32, f: impl Fn(f64) -> f64, nq: usize) -> f64 {
+        let (x, w) = gauss_legendre(nq, -1.0, 1.0);
+        let top = j.max(jp);
+        x.iter()
+            .zip(&w)
+            .map(|(&xi, &wi)| {
+                let t = theta_normalized(m, top, xi);
+                wi * t[(j - m) as usize] * f(xi) * t[(jp - m) as usize]
+            })
+            .sum()
+    }
+
+    #[test]
+    fn cos2_closed_form_matches_quadrature() {
+        // Closed forms (shared physics notes §5, Zare "Angular Momentum" 1988) against quadrature of Y_J^M.
+        for m in 0..6u32 {
+            for j in m..(m + 25) {
+                let q = quad(j, j, m, |x| x * x, 40);
+                assert!((q - cos2_diag(j, m)).abs() < 1e-13, "diag j={j} m={m}");
+                let q2 = quad(j + 2, j, m, |x| x * x, 40);
+                assert!((q2 - cos2_up2(j, m)).abs() < 1e-13, "off j={j} m={m}");
+                let q1 = quad(j + 1, j, m, |x| x, 40);
+                assert!((q1 - cos_up1(j, m)).abs() < 1e-13, "cos j={j} m={m}");
+                // ΔJ = 4 vanishes for cos²θ.
+                assert!(quad(j + 4, j, m, |x| x * x, 40).abs() < 1e-13);
+            }
+        }
+    }
+
+    #[test]
+    fn abscos_by_hand_and_by_fine_quadrature() {
+        // By hand: ⟨00| |cosθ| |00⟩ = 1/2 and ⟨00| |cosθ| |20⟩ = √5/8 (exact integrals of Legendre polynomials).
+        let b = Block { m: 0, parity: 0, size: 12 };
+        let a = b.abscos_dense();
+        assert!((a[(0, 0)] - 0.5).abs() < 1e-14);
+        assert!((a[(0, 1)] - 5f64.sqrt() / 8.0).abs() < 1e-14);
+        // Against brute-force quadrature with the kink resolved (split at 0, many points).
+        for m in [0u32, 1, 4] {
+            for parity in [0u32, 1] {
+                let b = Block { m, parity, size: 10 };
+                let a = b.abscos_dense();
+                for i in 0..b.size {
+                    for k in 0..b.size {
+                        let (j, jp) = (b.j(i), b.j(k));
+                        let top = j.max(jp);
+                        let mut s = 0.0;
+                        for (lo, hi) in [(-1.0, 0.0), (0.0, 1.0)] {
+                            let (x, w) = gauss_legendre(60, lo, hi);
+                            for q in 0..x.len() {
+                                let t = theta_normalized(m, top, x[q]);
+                                s += w[q] * x[q].abs() * t[(j - m) as usize] * t[(jp - m) as usize];
+                            }
+                        }
+                        assert!((a[(i, k)] - s).abs() < 1e-12, "m={m} p={parity} {j},{jp}");
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn isotropic_sums() {
+        // Σ_M ⟨J M|cos²θ|J M⟩ = (2J+1)/3 (isotropy of a full M multiplet; exact).
+        for j in 0..30u32 {
+            let s: f64 = (0..=j).map(|m| if m == 0 { 1.0 } else { 2.0 } * cos2_diag(j, m)).sum();
+            assert!((s - (2 * j + 1) as f64 / 3.0).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn block_indexing() {
+        let b = Block { m: 3, parity: 0, size: 5 };
+        assert_eq!(b.j_min(), 4);
+        assert_eq!(b.j_max(), 12);
+        assert_eq!(Block::size_to_reach(3, 1, 9), 4);
+    }
+}

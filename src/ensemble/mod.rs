@@ -1,0 +1,148 @@
+//! Thermal ensembles: Boltzmann populations of every |J M⟩ sublevel with nuclear-spin weights,
+//! truncated at a stated tolerance and grouped into (|M|, parity) blocks.
+
+use crate::error::{Error, Result};
+use crate::molecule::Molecule;
+use crate::units::kt_in_cm;
+
+/// Initial populations of one (|M|, parity) block.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BlockPopulation {
+    /// |M|.
+    pub m: u32,
+    /// Parity of J (0 even, 1 odd).
+    pub parity: u32,
+    /// (J, population of one M sublevel) for each initially populated level, J ascending.
+    pub levels: Vec<(u32, f64)>,
+}
+
+impl BlockPopulation {
+    /// Total population carried by the block including both signs of M.
+    pub fn total(&self) -> f64 {
+        let g = if self.m == 0 { 1.0 } else { 2.0 };
+        g * self.levels.iter().map(|l| l.1).sum::<f64>()
+    }
+}
+
+/// A thermal ensemble of a linear rotor.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ThermalEnsemble {
+    /// Temperature, K.
+    pub temperature_k: f64,
+    /// Highest J kept.
+    pub j_max: u32,
+    /// Population left out by the truncation (before renormalizing the kept states to 1).
+    pub discarded_population: f64,
+    /// Populated blocks.
+    pub blocks: Vec<BlockPopulation>,
+}
+
+impl ThermalEnsemble {
+    /// Boltzmann ensemble at `temperature_k`, keeping J levels until the left-out population is below
+    /// `tolerance`; the kept populations are renormalized to sum to 1. T = 0 gives the lowest allowed level.
+    pub fn new(mol: &Molecule, temperature_k: f64, tolerance: f64) -> Result<ThermalEnsemble> {
+        let weight = |j: u32| mol.spin_weights[(j % 2) as usize];
+        let j_limit = mol.max_physical_j();
+        let mut level_pop: Vec<f64> = vec![];
+        if temperature_k <= 0.0 {
+            let j0 = if weight(0) > 0.0 { 0 } else { 1 };
+            level_pop.resize(j0 as usize + 1, 0.0);
+            level_pop[j0 as usize] = 1.0;
+        } else {
+            let kt = kt_in_cm(temperature_k);
+            let e0 = (0..2u32).filter(|&j| weight(j) > 0.0).map(|j| mol.energy_cm(j)).fold(f64::INFINITY, f64::min);
+            // Unnormalized level populations until they are utterly negligible.
+            let mut j = 0u32;
+            loop {
+                let p = weight(j) * (2 * j + 1) as f64 * (-(mol.energy_cm(j) - e0) / kt).exp();
+                level_pop.push(p);
+                let total: f64 = level_pop.iter().sum();
+                if j > 2 && p < 1e-18 * total && mol.energy_cm(j) - e0 > 5.0 * kt {
+                    break;
+                }
+                j += 1;
+                if j > j_limit {
+                    return Err(Error::input(
+                        "temperature_k",
+                        format!("{temperature_k} K populates levels beyond J = {j_limit}, where the centrifugal-distortion energy formula no longer holds; expected a lower temperature"),
+                    ));
+                }
+            }
+        }
+        let z: f64 = level_pop.iter().sum();
+        // Keep the smallest J range whose tail is below the tolerance.
+        let mut tail = 0.0;
+        let mut j_max = level_pop.len() as u32 - 1;
+        for j in (0..level_pop.len()).rev() {
+            if tail + level_pop[j] / z > tolerance {
+                j_max = j as u32;
+                break;
+            }
+            tail += level_pop[j] / z;
+        }
+        let kept = 1.0 - tail;
+        let mut blocks = vec![];
+        for m in 0..=j_max {
+            for parity in 0..2u32 {
+                let levels: Vec<(u32, f64)> = (m..=j_max)
+                    .filter(|j| j % 2 == parity && level_pop[*j as usize] > 0.0)
+                    .map(|j| (j, level_pop[j as usize] / z / (2 * j + 1) as f64 / kept))
+                    .collect();
+                if !levels.is_empty() {
+                    blocks.push(BlockPopulation { m, parity, levels });
+                }
+            }
+        }
+        Ok(ThermalEnsemble { temperature_k, j_max, discarded_population: tail, blocks })
+    }
+
+    /// Number of initially populated |J M⟩ sublevels (counting ±M).
+    pub fn state_count(&self) -> usize {
+        self.blocks.iter().map(|b| b.levels.len() * if b.m == 0 { 1 } else { 2 }).sum()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn n2() -> Molecule {
+        Molecule::from_library("N2", "m").unwrap()
+    }
+
+    #[test]
+    fn populations_sum_to_one_and_follow_boltzmann() {
+        let e = ThermalEnsemble::new(&n2(), 300.0, 1e-7).unwrap();
+        let total: f64 = e.blocks.iter().map(|b| b.total()).sum();
+        assert!((total - 1.0).abs() < 1e-12);
+        assert!(e.discarded_population <= 1e-7 && e.discarded_population > 0.0);
+        // Ratio of sublevel populations J=2 / J=0: exp(−6B/kT) (Boltzmann; same spin weight).
+        let b0 = e.blocks.iter().find(|b| b.m == 0 && b.parity == 0).unwrap();
+        let r = b0.levels[1].1 / b0.levels[0].1;
+        let mol = n2();
+        let want = (-(mol.energy_cm(2)) / crate::units::kt_in_cm(300.0)).exp();
+        assert!((r / want - 1.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn zero_temperature_is_ground_state() {
+        let e = ThermalEnsemble::new(&n2(), 0.0, 1e-7).unwrap();
+        assert_eq!(e.blocks.len(), 1);
+        assert_eq!(e.blocks[0].levels, vec![(0, 1.0)]);
+        // A molecule without even-J states (16O2-like spin weights) starts in J = 1, three sublevels.
+        let mut o = n2();
+        o.spin_weights = [0.0, 1.0];
+        let e = ThermalEnsemble::new(&o, 0.0, 1e-7).unwrap();
+        assert_eq!(e.state_count(), 3);
+        assert!(e.blocks.iter().all(|b| b.parity == 1));
+    }
+
+    #[test]
+    fn nitrogen_even_odd_ratio() {
+        // 14N2 at high T: even-J : odd-J total populations → 2 : 1 (spin statistics; classical limit).
+        let e = ThermalEnsemble::new(&n2(), 1000.0, 1e-9).unwrap();
+        let even: f64 = e.blocks.iter().filter(|b| b.parity == 0).map(|b| b.total()).sum();
+        let odd: f64 = e.blocks.iter().filter(|b| b.parity == 1).map(|b| b.total()).sum();
+        assert!((even / odd - 2.0).abs() < 1e-2, "{}", even / odd);
+    }
+}

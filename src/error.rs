@@ -1,0 +1,63 @@
+//! The crate's error type: every user-facing failure names the field and what was expected.
+
+use std::fmt;
+
+/// An error from kicktrain, with a one-line message fit for a user.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Error {
+    /// A bad value in an input file or argument: the dotted field path and what was expected.
+    Input { field: String, message: String },
+    /// The numerical method could not reach the requested accuracy (e.g. basis limit).
+    Numerical(String),
+    /// Reading or writing a file failed.
+    Io(String),
+    /// The run was interrupted by the user.
+    Interrupted,
+}
+
+impl Error {
+    /// An input error for `field` with an explanation of what was expected.
+    pub fn input(field: impl Into<String>, message: impl Into<String>) -> Self {
+        Error::Input { field: field.into(), message: message.into() }
+    }
+}
+
+impl fmt::Display for Error {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Error::Input { field, message } => write!(f, "{field}: {message}"),
+            Error::Numerical(m) => write!(f, "numerical limit: {m}"),
+            Error::Io(m) => write!(f, "{m}"),
+            Error::Interrupted => write!(f, "interrupted"),
+        }
+    }
+}
+
+impl std::error::Error for Error {}
+
+/// Result alias used throughout the crate.
+pub type Result<T> = std::result::Result<T, Error>;
+
+/// Check that `value` is finite and strictly positive; the error names `field` and its `unit`.
+pub fn require_positive(field: &str, value: f64, unit: &str) -> Result<f64> {
+    if !value.is_finite() || value <= 0.0 {
+        return Err(Error::input(field, format!("expected a finite number > 0 ({unit}), got {value}")));
+    }
+    Ok(value)
+}
+
+/// Check that `value` is finite and ≥ 0; the error names `field` and its `unit`.
+pub fn require_non_negative(field: &str, value: f64, unit: &str) -> Result<f64> {
+    if !value.is_finite() || value < 0.0 {
+        return Err(Error::input(field, format!("expected a finite number ≥ 0 ({unit}), got {value}")));
+    }
+    Ok(value)
+}
+
+/// Check that `value` is finite; the error names `field` and its `unit`.
+pub fn require_finite(field: &str, value: f64, unit: &str) -> Result<f64> {
+    if !value.is_finite() {
+        return Err(Error::input(field, format!("expected a finite number ({unit}), got {value}")));
+    }
+    Ok(value)
+}

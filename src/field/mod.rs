@@ -1,0 +1,294 @@
+//! Pulse shapes and the field model: trains of linearly polarized, non-resonant laser pulses
+//! (polarization along the lab Z axis), described by their cycle-averaged intensity envelopes.
+
+use crate::error::{require_finite, require_positive, Error, Result};
+use crate::units::{coupling_rad_per_ps_per_a3_wcm2, FS_PER_PS};
+use serde::{Deserialize, Serialize};
+
+/// Temporal shape of a pulse's intensity envelope.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PulseShape {
+    /// I(t) = I0 exp(−4 ln2 t²/τ²), τ the intensity FWHM.
+    #[default]
+    Gaussian,
+    /// I(t) = I0 sech²(2 arccosh(√2) t/τ), τ the intensity FWHM.
+    Sech2,
+    /// A plateau with sin² edges of 0–100 % duration `rise_fs`, intensity FWHM τ.
+    FlatTop,
+}
+
+impl PulseShape {
+    /// All accepted names, for error messages.
+    pub const NAMES: &'static str = "\"gaussian\", \"sech2\" or \"flat_top\"";
+
+    /// Parse a shape name.
+    pub fn parse(s: &str) -> Option<PulseShape> {
+        match s {
+            "gaussian" => Some(PulseShape::Gaussian),
+            "sech2" => Some(PulseShape::Sech2),
+            "flat_top" => Some(PulseShape::FlatTop),
+            _ => None,
+        }
+    }
+}
+
+/// 2 arccosh(√2): sech²(x) = 1/2 at x = arccosh(√2), so τ_FWHM = 2 arccosh(√2) T0.
+const SECH2_FWHM_FACTOR: f64 = 1.762_747_174_039_086;
+/// Gaussian support half-width in FWHM units: the intensity area outside is < 2e-10 of the total.
+const GAUSSIAN_HALF_WIDTH: f64 = 2.75;
+/// sech² support half-width in FWHM units: the intensity area outside is < 2e-10 of the total.
+const SECH2_HALF_WIDTH: f64 = 6.75;
+
+/// One linearly polarized laser pulse (polarization along Z).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Pulse {
+    /// Time of the intensity maximum (centre), ps.
+    pub center_ps: f64,
+    /// Full width at half maximum of the intensity envelope, fs.
+    pub fwhm_fs: f64,
+    /// Peak (cycle-averaged) intensity, W/cm².
+    pub peak_intensity_wcm2: f64,
+    /// Envelope shape (default Gaussian).
+    #[serde(default)]
+    pub shape: PulseShape,
+    /// Edge duration (0–100 %) of a flat-top pulse, fs; ignored for other shapes.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rise_fs: Option<f64>,
+}
+
+impl Pulse {
+    /// A Gaussian pulse.
+    pub fn gaussian(center_ps: f64, fwhm_fs: f64, peak_intensity_wcm2: f64) -> Pulse {
+        Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape: PulseShape::Gaussian, rise_fs: None }
+    }
+
+    /// FWHM in ps.
+    pub fn fwhm_ps(&self) -> f64 {
+        self.fwhm_fs / FS_PER_PS
+    }
+
+    /// Edge duration of a flat-top pulse in ps (default: a quarter of the FWHM).
+    pub fn rise_ps(&self) -> f64 {
+        self.rise_fs.unwrap_or(0.25 * self.fwhm_fs) / FS_PER_PS
+    }
+
+    /// Check the pulse; errors name the field under `path`.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        require_finite(&format!("{path}.center_ps"), self.center_ps, "ps")?;
+        require_positive(&format!("{path}.fwhm_fs"), self.fwhm_fs, "fs")?;
+        if self.fwhm_fs > 1e7 {
+            return Err(Error::input(format!("{path}.fwhm_fs"), "expected at most 1e7 fs (10 ns) for a laser pulse"));
+        }
+        let i = self.peak_intensity_wcm2;
+        if !i.is_finite() || i < 0.0 {
+            return Err(Error::input(format!("{path}.peak_intensity_wcm2"), format!("expected a finite intensity ≥ 0 (W/cm²), got {i}")));
+        }
+        if i > 1e17 {
+            return Err(Error::input(format!("{path}.peak_intensity_wcm2"), format!("expected at most 1e17 W/cm² (far beyond any non-resonant alignment regime), got {i:e}")));
+        }
+        if let Some(r) = self.rise_fs {
+            require_positive(&format!("{path}.rise_fs"), r, "fs")?;
+            if self.shape == PulseShape::FlatTop && r > self.fwhm_fs {
+                return Err(Error::input(format!("{path}.rise_fs"), format!("expected an edge no longer than fwhm_fs = {} fs, got {r}", self.fwhm_fs)));
+            }
+        }
+        Ok(())
+    }
+
+    /// Envelope f(t) ∈ [0, 1] at time t (ps): I(t) = I0 f(t).
+    pub fn envelope(&self, t_ps: f64) -> f64 {
+        let x = t_ps - self.center_ps;
+        let tau = self.fwhm_ps();
+        match self.shape {
+            PulseShape::Gaussian => (-4.0 * std::f64::consts::LN_2 * x * x / (tau * tau)).exp(),
+            PulseShape::Sech2 => {
+                let c = (SECH2_FWHM_FACTOR * x / tau).cosh();
+                if c.is_finite() { 1.0 / (c * c) } else { 0.0 }
+            }
+            PulseShape::FlatTop => {
+                let r = self.rise_ps();
+                let a = x.abs();
+                let inner = 0.5 * tau - 0.5 * r;
+                if a <= inner {
+                    1.0
+                } else if a >= inner + r {
+                    0.0
+                } else {
+                    let c = (std::f64::consts::FRAC_PI_2 * (a - inner) / r).cos();
+                    c * c
+                }
+            }
+        }
+    }
+
+    /// ∫ f(t) dt in ps (so ∫ I dt = I0 × this).
+    pub fn envelope_area_ps(&self) -> f64 {
+        let tau = self.fwhm_ps();
+        match self.shape {
+            PulseShape::Gaussian => tau * (std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)).sqrt(),
+            PulseShape::Sech2 => 2.0 * tau / SECH2_FWHM_FACTOR,
+            PulseShape::FlatTop => tau,
+        }
+    }
+
+    /// RMS duration (ps) of the intensity envelope, used to judge how impulsive the pulse is.
+    pub fn rms_duration_ps(&self) -> f64 {
+        let tau = self.fwhm_ps();
+        match self.shape {
+            PulseShape::Gaussian => tau / (2.0 * (2.0 * std::f64::consts::LN_2).sqrt()),
+            // sech²(t/T0): ⟨t²⟩ = π² T0² / 12.
+            PulseShape::Sech2 => std::f64::consts::PI * tau / SECH2_FWHM_FACTOR / 12f64.sqrt(),
+            PulseShape::FlatTop => tau / 12f64.sqrt(),
+        }
+    }
+
+    /// Time interval (ps) outside which the envelope is negligible (area outside < 2e-10) or exactly zero.
+    pub fn support_ps(&self) -> (f64, f64) {
+        let tau = self.fwhm_ps();
+        let half = match self.shape {
+            PulseShape::Gaussian => GAUSSIAN_HALF_WIDTH * tau,
+            PulseShape::Sech2 => SECH2_HALF_WIDTH * tau,
+            PulseShape::FlatTop => 0.5 * tau + 0.5 * self.rise_ps(),
+        };
+        (self.center_ps - half, self.center_ps + half)
+    }
+
+    /// Times (ps) where the envelope is not smooth (flat-top edge junctions); the solver steps onto them.
+    pub fn breakpoints_ps(&self) -> Vec<f64> {
+        match self.shape {
+            PulseShape::FlatTop => {
+                let (tau, r) = (self.fwhm_ps(), self.rise_ps());
+                let inner = 0.5 * tau - 0.5 * r;
+                vec![self.center_ps - inner, self.center_ps + inner]
+            }
+            _ => vec![],
+        }
+    }
+
+    /// Peak coupling rate U0 = 2π Δα' I0 / (c ħ) in rad/ps for a polarizability anisotropy Δα' in Å³.
+    pub fn peak_rate_rad_per_ps(&self, delta_alpha_a3: f64) -> f64 {
+        coupling_rad_per_ps_per_a3_wcm2() * delta_alpha_a3 * self.peak_intensity_wcm2
+    }
+
+    /// Kick strength P = (Δα/4ħ) ∫E0² dt = 2π Δα' ∫I dt / (c ħ), dimensionless.
+    pub fn kick_strength(&self, delta_alpha_a3: f64) -> f64 {
+        self.peak_rate_rad_per_ps(delta_alpha_a3) * self.envelope_area_ps()
+    }
+
+    /// The time at which a kick replaces this pulse (centre of a symmetric envelope), ps.
+    pub fn kick_time_ps(&self) -> f64 {
+        self.center_ps
+    }
+
+    /// Nominal end of the pulse (centre + one FWHM), ps: "after the pulse" in summaries.
+    pub fn end_ps(&self) -> f64 {
+        self.center_ps + self.fwhm_ps()
+    }
+}
+
+/// An ordered collection of field elements acting on the molecule.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct FieldModel {
+    /// Linearly polarized laser pulses (any order, may overlap).
+    pub pulses: Vec<Pulse>,
+}
+
+/// A stretch of time in which the field is on: the union of overlapping pulse supports.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ActiveInterval {
+    /// Start time, ps.
+    pub start_ps: f64,
+    /// End time, ps.
+    pub end_ps: f64,
+    /// Indices (into `FieldModel::pulses`) of the pulses acting in this interval.
+    pub pulses: Vec<usize>,
+}
+
+impl FieldModel {
+    /// Alignment coupling rate u(t) (rad/ps) such that H = H0 − u(t) cos²θ, for anisotropy Δα' (Å³).
+    pub fn alignment_rate(&self, t_ps: f64, delta_alpha_a3: f64) -> f64 {
+        let k = coupling_rad_per_ps_per_a3_wcm2() * delta_alpha_a3;
+        self.pulses.iter().map(|p| k * p.peak_intensity_wcm2 * p.envelope(t_ps)).sum()
+    }
+
+    /// Intervals where the field is on, sorted in time; overlapping supports are merged.
+    /// Pulses of zero intensity are left out.
+    pub fn active_intervals(&self) -> Vec<ActiveInterval> {
+        let mut idx: Vec<usize> = (0..self.pulses.len()).filter(|&i| self.pulses[i].peak_intensity_wcm2 > 0.0).collect();
+        idx.sort_by(|&a, &b| self.pulses[a].support_ps().0.total_cmp(&self.pulses[b].support_ps().0));
+        let mut out: Vec<ActiveInterval> = Vec::new();
+        for i in idx {
+            let (s, e) = self.pulses[i].support_ps();
+            match out.last_mut() {
+                Some(last) if s <= last.end_ps => {
+                    last.end_ps = last.end_ps.max(e);
+                    last.pulses.push(i);
+                }
+                _ => out.push(ActiveInterval { start_ps: s, end_ps: e, pulses: vec![i] }),
+            }
+        }
+        out
+    }
+
+    /// End of the last pulse (centre + FWHM of the latest-ending pulse), ps; None without pulses.
+    pub fn last_pulse_end_ps(&self) -> Option<f64> {
+        self.pulses.iter().filter(|p| p.peak_intensity_wcm2 > 0.0).map(|p| p.end_ps()).reduce(f64::max)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn area_by_quadrature(p: &Pulse) -> f64 {
+        // Composite Simpson over a wide interval (independent of the closed forms).
+        let (a, b) = (p.center_ps - 20.0 * p.fwhm_ps(), p.center_ps + 20.0 * p.fwhm_ps());
+        let n = 200_000;
+        let h = (b - a) / n as f64;
+        let mut s = p.envelope(a) + p.envelope(b);
+        for i in 1..n {
+            s += p.envelope(a + i as f64 * h) * if i % 2 == 1 { 4.0 } else { 2.0 };
+        }
+        s * h / 3.0
+    }
+
+    #[test]
+    fn shapes_have_unit_peak_half_max_at_fwhm_and_right_area() {
+        for shape in [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop] {
+            let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0) };
+            assert!((p.envelope(1.0) - 1.0).abs() < 1e-15);
+            // Half maximum at ±FWHM/2 (definition of FWHM).
+            assert!((p.envelope(1.04) - 0.5).abs() < 1e-12, "{shape:?}");
+            assert!((p.envelope(0.96) - 0.5).abs() < 1e-12, "{shape:?}");
+            let q = area_by_quadrature(&p);
+            assert!((q / p.envelope_area_ps() - 1.0).abs() < 1e-9, "{shape:?} {q}");
+            // Gaussian ∫I dt = 1.0645 I0 τ (shared physics notes §4); sech²: 1.1346 I0 τ (2/1.7627).
+            let ratio = p.envelope_area_ps() / p.fwhm_ps();
+            let want = match shape { PulseShape::Gaussian => 1.0645, PulseShape::Sech2 => 1.1346, PulseShape::FlatTop => 1.0 };
+            assert!((ratio - want).abs() < 1e-4, "{shape:?} {ratio}");
+            // Negligible area outside the support.
+            let (s, e) = p.support_ps();
+            assert!(p.envelope(s) < 1e-9 && p.envelope(e) < 1e-9);
+        }
+    }
+
+    #[test]
+    fn kick_strength_of_nitrogen_pulse() {
+        // P = 2π Δα' ∫I dt/(c ħ): Δα' = 0.93 Å³, 5e13 W/cm², 50 fs Gaussian → P ≈ 4.919
+        // (hand evaluation of the formula in the shared physics notes §4 with CODATA constants).
+        let p = Pulse::gaussian(0.0, 50.0, 5e13);
+        let hand = 2.0 * std::f64::consts::PI * 0.93e-30 * 5e17 * 1.0644670194 * 50e-15 / (299792458.0 * 1.054571817e-34);
+        assert!((p.kick_strength(0.93) / hand - 1.0).abs() < 1e-6);
+        assert!((hand - 4.919).abs() < 1e-3, "{hand}");
+    }
+
+    #[test]
+    fn intervals_merge_overlaps() {
+        let f = FieldModel { pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)] };
+        let iv = f.active_intervals();
+        assert_eq!(iv.len(), 2);
+        assert_eq!(iv[0].pulses, vec![1, 2]);
+        assert_eq!(iv[1].pulses, vec![0]);
+    }
+}

@@ -1,0 +1,157 @@
+//! Molecules: rotational constants, polarizabilities and nuclear-spin weights, plus the built-in
+//! library (every number with its source). No numerical method lives here.
+
+mod library;
+
+pub use library::{library, LibraryEntry, Sourced};
+
+use crate::error::{require_non_negative, require_positive, Error, Result};
+use serde::{Deserialize, Serialize};
+
+/// A linear molecule as the solver sees it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Molecule {
+    /// Display name (library key or user label).
+    #[serde(default = "custom_name")]
+    pub name: String,
+    /// Rotational constant B in cm⁻¹.
+    pub b_cm: f64,
+    /// Quartic centrifugal distortion constant D in cm⁻¹ (E = B J(J+1) − D J²(J+1)²).
+    #[serde(default)]
+    pub d_cm: f64,
+    /// Polarizability volume parallel to the molecular axis, α∥ in Å³.
+    pub alpha_parallel_a3: f64,
+    /// Polarizability volume perpendicular to the molecular axis, α⊥ in Å³.
+    pub alpha_perpendicular_a3: f64,
+    /// Nuclear-spin statistical weights `[even_J, odd_J]` (relative, ≥ 0, not both zero).
+    #[serde(default = "equal_weights")]
+    pub spin_weights: [f64; 2],
+}
+
+fn custom_name() -> String {
+    "custom".to_string()
+}
+
+fn equal_weights() -> [f64; 2] {
+    [1.0, 1.0]
+}
+
+impl Molecule {
+    /// Polarizability anisotropy Δα = α∥ − α⊥ in Å³.
+    pub fn delta_alpha_a3(&self) -> f64 {
+        self.alpha_parallel_a3 - self.alpha_perpendicular_a3
+    }
+
+    /// Rotational energy of level J in cm⁻¹: B J(J+1) − D J²(J+1)².
+    pub fn energy_cm(&self, j: u32) -> f64 {
+        let x = (j as f64) * (j as f64 + 1.0);
+        self.b_cm * x - self.d_cm * x * x
+    }
+
+    /// Largest J for which the energy ladder still rises (distortion turnover), capped for safety.
+    pub fn max_physical_j(&self) -> u32 {
+        if self.d_cm <= 0.0 {
+            return 10_000;
+        }
+        // dE/dx = B − 2 D x = 0 at x = B / 2D with x = J(J+1); keep well below the turnover.
+        let x = self.b_cm / (2.0 * self.d_cm);
+        let j = ((-1.0 + (1.0 + 4.0 * x).sqrt()) / 2.0 * 0.7).floor();
+        (j as u32).min(10_000)
+    }
+
+    /// Check every constant; errors name the field (prefixed by `path`) and the expected unit.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        require_positive(&format!("{path}.b_cm"), self.b_cm, "cm⁻¹")?;
+        require_non_negative(&format!("{path}.d_cm"), self.d_cm, "cm⁻¹")?;
+        if self.d_cm > 1e-2 * self.b_cm {
+            return Err(Error::input(
+                format!("{path}.d_cm"),
+                format!("expected D much smaller than B (got D = {} cm⁻¹, B = {} cm⁻¹)", self.d_cm, self.b_cm),
+            ));
+        }
+        require_non_negative(&format!("{path}.alpha_parallel_a3"), self.alpha_parallel_a3, "Å³")?;
+        require_non_negative(&format!("{path}.alpha_perpendicular_a3"), self.alpha_perpendicular_a3, "Å³")?;
+        let [e, o] = self.spin_weights;
+        for (i, w) in [e, o].iter().enumerate() {
+            if !w.is_finite() || *w < 0.0 {
+                return Err(Error::input(
+                    format!("{path}.spin_weights[{i}]"),
+                    format!("expected a finite weight ≥ 0, got {w}"),
+                ));
+            }
+        }
+        if e + o <= 0.0 {
+            return Err(Error::input(format!("{path}.spin_weights"), "expected [even_J, odd_J] not both zero"));
+        }
+        Ok(())
+    }
+
+    /// Look up a built-in molecule by name (case-insensitive, aliases allowed); the error suggests near names.
+    pub fn from_library(name: &str, field: &str) -> Result<Molecule> {
+        let key = name.trim().to_ascii_lowercase();
+        for entry in library() {
+            if entry.name.to_ascii_lowercase() == key || entry.aliases.iter().any(|a| a.to_ascii_lowercase() == key) {
+                return Ok(entry.molecule());
+            }
+        }
+        let mut near: Vec<(usize, &str)> = library()
+            .iter()
+            .map(|e| (edit_distance(&key, &e.name.to_ascii_lowercase()), e.name))
+            .collect();
+        near.sort();
+        let suggestions: Vec<&str> = near.iter().filter(|(d, _)| *d <= 2).map(|(_, n)| *n).take(3).collect();
+        let hint = if suggestions.is_empty() {
+            "run `kicktrain molecules` for the list".to_string()
+        } else {
+            format!("did you mean {}?", suggestions.join(", "))
+        };
+        Err(Error::input(field, format!("unknown molecule '{name}'; {hint}")))
+    }
+}
+
+/// Levenshtein distance between two strings (for name suggestions).
+fn edit_distance(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.chars().collect();
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for i in 1..=a.len() {
+        let mut cur = vec![i; b.len() + 1];
+        for j in 1..=b.len() {
+            let sub = prev[j - 1] + usize::from(a[i - 1] != b[j - 1]);
+            cur[j] = sub.min(prev[j] + 1).min(cur[j - 1] + 1);
+        }
+        prev = cur;
+    }
+    prev[b.len()]
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn library_entries_are_valid_and_sourced() {
+        assert!(library().len() >= 8);
+        for e in library() {
+            e.molecule().validate(e.name).unwrap();
+            for s in [&e.b_cm, &e.d_cm, &e.alpha_parallel_a3, &e.alpha_perpendicular_a3] {
+                assert!(!s.source.trim().is_empty(), "{} lacks a source", e.name);
+            }
+            assert!(!e.spin_weights_source.trim().is_empty());
+        }
+    }
+
+    #[test]
+    fn unknown_name_suggests() {
+        let err = Molecule::from_library("N3", "molecule").unwrap_err().to_string();
+        assert!(err.contains("N2"), "{err}");
+        assert!(err.starts_with("molecule:"));
+    }
+
+    #[test]
+    fn edit_distance_basics() {
+        assert_eq!(edit_distance("kitten", "sitting"), 3);
+        assert_eq!(edit_distance("", "abc"), 3);
+    }
+}

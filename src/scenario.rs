@@ -1,0 +1,321 @@
+//! The scenario file: molecule, temperature, field model, time window and solver settings.
+//! Parsed field by field so that every error names the field and the expected unit or range.
+
+use crate::error::{require_non_negative, require_positive, Error, Result};
+use crate::field::{FieldModel, Pulse, PulseShape};
+use crate::input::{join, parse_json, type_name, Fields};
+use crate::molecule::Molecule;
+use serde_json::{json, Value};
+
+/// How the solver treats laser pulses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Method {
+    /// Kick where the pulse is short enough for the kick error to be negligible, else time-dependent.
+    #[default]
+    Auto,
+    /// Every pulse as an exact impulsive kick at its centre.
+    Kick,
+    /// Every pulse by the time-dependent solver.
+    Finite,
+}
+
+impl Method {
+    /// Name as written in files.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Method::Auto => "auto",
+            Method::Kick => "kick",
+            Method::Finite => "finite",
+        }
+    }
+}
+
+/// The time window of the output trace.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Window {
+    /// First time, ps.
+    pub start_ps: f64,
+    /// Last time (inclusive when on the grid), ps.
+    pub stop_ps: f64,
+    /// Spacing, fs.
+    pub step_fs: f64,
+}
+
+impl Window {
+    /// The sample times in ps.
+    pub fn times_ps(&self) -> Vec<f64> {
+        let dt = self.step_fs / 1000.0;
+        let n = ((self.stop_ps - self.start_ps) / dt + 1e-9).floor() as usize + 1;
+        (0..n).map(|i| self.start_ps + i as f64 * dt).collect()
+    }
+
+    fn validate(&self, path: &str) -> Result<()> {
+        require_positive(&join(path, "step_fs"), self.step_fs, "fs")?;
+        if self.stop_ps <= self.start_ps {
+            return Err(Error::input(join(path, "stop_ps"), format!("expected a time after start_ps = {} ps, got {} ps", self.start_ps, self.stop_ps)));
+        }
+        let n = (self.stop_ps - self.start_ps) * 1000.0 / self.step_fs;
+        if n > 2e6 {
+            return Err(Error::input(join(path, "step_fs"), format!("window would hold {n:.0} points; expected at most 2e6 (use a larger step_fs)")));
+        }
+        Ok(())
+    }
+}
+
+/// Numerical settings with safe defaults.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SolverSettings {
+    /// Kick, finite or automatic choice per pulse.
+    pub method: Method,
+    /// Time step of the finite-pulse solver, fs (None: chosen from the pulse and the basis).
+    pub step_fs: Option<f64>,
+    /// Largest thermal population left out of the ensemble (total fraction).
+    pub thermal_tolerance: f64,
+    /// Largest population allowed in the top two J levels of any block.
+    pub edge_tolerance: f64,
+}
+
+impl Default for SolverSettings {
+    fn default() -> Self {
+        SolverSettings { method: Method::Auto, step_fs: None, thermal_tolerance: 1e-7, edge_tolerance: 1e-8 }
+    }
+}
+
+/// Where the molecule came from, so a scenario writes back the way it was given.
+#[derive(Debug, Clone, PartialEq)]
+pub enum MoleculeSource {
+    /// A library name.
+    Library(String),
+    /// An inline object.
+    Inline,
+}
+
+/// One complete simulation job.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Scenario {
+    /// Free text describing the scenario.
+    pub description: Option<String>,
+    /// The molecule.
+    pub molecule: Molecule,
+    /// How the molecule was given.
+    pub molecule_source: MoleculeSource,
+    /// Rotational temperature, K.
+    pub temperature_k: f64,
+    /// The fields acting on the molecule.
+    pub field: FieldModel,
+    /// The output time window.
+    pub window: Window,
+    /// Numerical settings.
+    pub solver: SolverSettings,
+}
+
+impl Scenario {
+    /// A scenario for a library molecule with default solver settings.
+    pub fn new(molecule: &str, temperature_k: f64, pulses: Vec<Pulse>, window: Window) -> Result<Scenario> {
+        let s = Scenario {
+            description: None,
+            molecule: Molecule::from_library(molecule, "molecule")?,
+            molecule_source: MoleculeSource::Library(molecule.to_string()),
+            temperature_k,
+            field: FieldModel { pulses },
+            window,
+            solver: SolverSettings::default(),
+        };
+        s.validate()?;
+        Ok(s)
+    }
+
+    /// Read a scenario from JSON text (`file` names the source in syntax errors).
+    pub fn from_json_str(text: &str, file: &str) -> Result<Scenario> {
+        let v = parse_json(text, file)?;
+        Scenario::from_value(&v, "")
+    }
+
+    /// Read a scenario from a parsed JSON value found at `path`.
+    pub fn from_value(v: &Value, path: &str) -> Result<Scenario> {
+        let mut f = Fields::new(v, path)?;
+        let description = f.opt_str("description", "a string")?.map(str::to_string);
+        let mv = f.req_value("molecule", "a library name (see `kicktrain molecules`) or an object with b_cm, alpha_parallel_a3, ...")?;
+        let (molecule, molecule_source) = parse_molecule(mv, &f.path_of("molecule"))?;
+        let temperature_k = f.req_f64("temperature_k", "K")?;
+        let pulses = match f.opt_value("pulses") {
+            None => vec![],
+            Some(Value::Array(items)) => {
+                let mut out = vec![];
+                for (i, item) in items.iter().enumerate() {
+                    out.push(parse_pulse(item, &format!("{}[{i}]", f.path_of("pulses")))?);
+                }
+                out
+            }
+            Some(other) => return Err(Error::input(f.path_of("pulses"), format!("expected an array of pulses, got {}", type_name(other)))),
+        };
+        let wv = f.req_value("window", "an object with start_ps, stop_ps, step_fs")?;
+        let window = parse_window(wv, &f.path_of("window"))?;
+        let solver = match f.opt_value("solver") {
+            None => SolverSettings::default(),
+            Some(sv) => parse_solver(sv, &f.path_of("solver"))?,
+        };
+        f.finish()?;
+        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses }, window, solver };
+        s.validate_at(path)?;
+        Ok(s)
+    }
+
+    /// Check the whole scenario.
+    pub fn validate(&self) -> Result<()> {
+        self.validate_at("")
+    }
+
+    fn validate_at(&self, path: &str) -> Result<()> {
+        self.molecule.validate(&join(path, "molecule"))?;
+        require_non_negative(&join(path, "temperature_k"), self.temperature_k, "K")?;
+        if self.temperature_k > 5000.0 {
+            return Err(Error::input(join(path, "temperature_k"), format!("expected at most 5000 K for a rotational temperature, got {}", self.temperature_k)));
+        }
+        for (i, p) in self.field.pulses.iter().enumerate() {
+            p.validate(&format!("{}[{i}]", join(path, "pulses")))?;
+        }
+        self.window.validate(&join(path, "window"))?;
+        let s = &self.solver;
+        let sp = join(path, "solver");
+        if let Some(dt) = s.step_fs {
+            require_positive(&join(&sp, "step_fs"), dt, "fs")?;
+        }
+        for (name, v, lo, hi) in [("thermal_tolerance", s.thermal_tolerance, 1e-14, 1e-2), ("edge_tolerance", s.edge_tolerance, 1e-14, 1e-3)] {
+            if !(v >= lo && v <= hi) {
+                return Err(Error::input(join(&sp, name), format!("expected a population fraction between {lo:e} and {hi:e}, got {v}")));
+            }
+        }
+        Ok(())
+    }
+
+    /// The scenario as a JSON value that `from_value` reads back to the same scenario.
+    pub fn to_value(&self) -> Value {
+        let molecule = match &self.molecule_source {
+            MoleculeSource::Library(name) => json!(name),
+            MoleculeSource::Inline => serde_json::to_value(&self.molecule).expect("molecule serializes"),
+        };
+        let mut obj = serde_json::Map::new();
+        if let Some(d) = &self.description {
+            obj.insert("description".into(), json!(d));
+        }
+        obj.insert("molecule".into(), molecule);
+        obj.insert("temperature_k".into(), json!(self.temperature_k));
+        obj.insert("pulses".into(), serde_json::to_value(&self.field.pulses).expect("pulses serialize"));
+        obj.insert("window".into(), json!({"start_ps": self.window.start_ps, "stop_ps": self.window.stop_ps, "step_fs": self.window.step_fs}));
+        let mut solver = serde_json::Map::new();
+        solver.insert("method".into(), json!(self.solver.method.name()));
+        if let Some(dt) = self.solver.step_fs {
+            solver.insert("step_fs".into(), json!(dt));
+        }
+        solver.insert("thermal_tolerance".into(), json!(self.solver.thermal_tolerance));
+        solver.insert("edge_tolerance".into(), json!(self.solver.edge_tolerance));
+        obj.insert("solver".into(), Value::Object(solver));
+        Value::Object(obj)
+    }
+}
+
+fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
+    match v {
+        Value::String(name) => Ok((Molecule::from_library(name, path)?, MoleculeSource::Library(name.clone()))),
+        Value::Object(_) => {
+            let mut f = Fields::new(v, path)?;
+            let name = f.opt_str("name", "a string")?.unwrap_or("custom").to_string();
+            let b_cm = f.req_f64("b_cm", "cm⁻¹")?;
+            let d_cm = f.opt_f64("d_cm", "cm⁻¹")?.unwrap_or(0.0);
+            let alpha_parallel_a3 = f.req_f64("alpha_parallel_a3", "Å³")?;
+            let alpha_perpendicular_a3 = f.req_f64("alpha_perpendicular_a3", "Å³")?;
+            let spin_weights = match f.opt_value("spin_weights") {
+                None => [1.0, 1.0],
+                Some(Value::Array(a)) if a.len() == 2 => {
+                    let p = join(path, "spin_weights");
+                    [crate::input::as_f64(&a[0], &format!("{p}[0]"), "even-J weight")?, crate::input::as_f64(&a[1], &format!("{p}[1]"), "odd-J weight")?]
+                }
+                Some(other) => return Err(Error::input(join(path, "spin_weights"), format!("expected [even_J, odd_J] (two numbers), got {other}"))),
+            };
+            f.finish()?;
+            let m = Molecule { name, b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights };
+            m.validate(path)?;
+            Ok((m, MoleculeSource::Inline))
+        }
+        other => Err(Error::input(path, format!("expected a library name or an object, got {}", type_name(other)))),
+    }
+}
+
+fn parse_pulse(v: &Value, path: &str) -> Result<Pulse> {
+    let mut f = Fields::new(v, path)?;
+    let center_ps = f.req_f64("center_ps", "ps")?;
+    let fwhm_fs = f.req_f64("fwhm_fs", "fs")?;
+    let peak_intensity_wcm2 = f.req_f64("peak_intensity_wcm2", "W/cm²")?;
+    let shape = match f.opt_str("shape", PulseShape::NAMES)? {
+        None => PulseShape::Gaussian,
+        Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
+    };
+    let rise_fs = f.opt_f64("rise_fs", "fs")?;
+    f.finish()?;
+    let p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape, rise_fs };
+    p.validate(path)?;
+    Ok(p)
+}
+
+fn parse_window(v: &Value, path: &str) -> Result<Window> {
+    let mut f = Fields::new(v, path)?;
+    let w = Window { start_ps: f.req_f64("start_ps", "ps")?, stop_ps: f.req_f64("stop_ps", "ps")?, step_fs: f.req_f64("step_fs", "fs")? };
+    f.finish()?;
+    w.validate(path)?;
+    Ok(w)
+}
+
+fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
+    let mut f = Fields::new(v, path)?;
+    let d = SolverSettings::default();
+    let method = match f.opt_str("method", "\"auto\", \"kick\" or \"finite\"")? {
+        None | Some("auto") => Method::Auto,
+        Some("kick") => Method::Kick,
+        Some("finite") => Method::Finite,
+        Some(other) => return Err(Error::input(join(path, "method"), format!("expected \"auto\", \"kick\" or \"finite\", got \"{other}\""))),
+    };
+    let s = SolverSettings {
+        method,
+        step_fs: f.opt_f64("step_fs", "fs")?,
+        thermal_tolerance: f.opt_f64("thermal_tolerance", "population fraction")?.unwrap_or(d.thermal_tolerance),
+        edge_tolerance: f.opt_f64("edge_tolerance", "population fraction")?.unwrap_or(d.edge_tolerance),
+    };
+    f.finish()?;
+    Ok(s)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"{"molecule":"N2","temperature_k":300,
+        "pulses":[{"center_ps":0.0,"fwhm_fs":50,"peak_intensity_wcm2":5e13}],
+        "window":{"start_ps":0.2,"stop_ps":12.0,"step_fs":20}}"#;
+
+    #[test]
+    fn reads_the_documented_example_and_round_trips() {
+        let s = Scenario::from_json_str(GOOD, "x").unwrap();
+        assert_eq!(s.field.pulses.len(), 1);
+        assert_eq!(s.window.times_ps().len(), 591);
+        let back = Scenario::from_value(&s.to_value(), "").unwrap();
+        assert_eq!(back, s);
+    }
+
+    fn err(text: &str) -> String {
+        Scenario::from_json_str(text, "x").unwrap_err().to_string()
+    }
+
+    #[test]
+    fn errors_name_the_field() {
+        assert!(err(&GOOD.replace("\"temperature_k\":300", "\"temperature_k\":-1")).starts_with("temperature_k:"));
+        assert!(err(&GOOD.replace("\"fwhm_fs\":50", "\"fwhm_fs\":0")).starts_with("pulses[0].fwhm_fs:"));
+        assert!(err(&GOOD.replace("\"stop_ps\":12.0", "\"stop_ps\":0.1")).starts_with("window.stop_ps:"));
+        assert!(err(&GOOD.replace("\"N2\"", "\"N22\"")).contains("did you mean"));
+        assert!(err(&GOOD.replace("\"temperature_k\"", "\"temperature\"")).starts_with("temperature_k: missing"));
+        assert!(err(&GOOD.replace("\"fwhm_fs\":50", "\"fwhm_fs\":50,\"colour\":1")).starts_with("pulses[0].colour: unknown key"));
+        assert!(err(&GOOD.replace("\"fwhm_fs\":50", "\"fwhm_fs\":\"50\"")).starts_with("pulses[0].fwhm_fs: expected a number"));
+        assert!(err("{").starts_with("x: not valid JSON"));
+        assert!(err("[]").starts_with("(top level): expected an object"));
+    }
+}

@@ -1,0 +1,81 @@
+//! Physical constants and unit conversions: the only place unit factors live.
+//!
+//! Internal units: time in picoseconds (ps), angular frequency in rad/ps, energies given by users
+//! as wavenumbers in cm⁻¹, polarizability volumes in Å³ and intensities in W/cm².
+
+/// Planck constant h in J s (CODATA exact).
+pub const H_PLANCK: f64 = 6.626_070_15e-34;
+/// Reduced Planck constant ħ = h / 2π in J s.
+pub const HBAR: f64 = H_PLANCK / (2.0 * std::f64::consts::PI);
+/// Speed of light c in m/s (exact).
+pub const C_LIGHT: f64 = 299_792_458.0;
+/// Boltzmann constant k_B in J/K (CODATA exact).
+pub const K_BOLTZMANN: f64 = 1.380_649e-23;
+/// Vacuum permittivity ε0 in F/m (CODATA 2018).
+pub const EPSILON_0: f64 = 8.854_187_812_8e-12;
+/// Speed of light in cm/ps.
+pub const C_CM_PER_PS: f64 = C_LIGHT * 100.0 * 1e-12;
+/// Femtoseconds per picosecond.
+pub const FS_PER_PS: f64 = 1000.0;
+
+/// Angular frequency (rad/ps) of an energy given as a wavenumber in cm⁻¹: ω = 2π c ν̃.
+pub fn cm_to_rad_per_ps(wavenumber_cm: f64) -> f64 {
+    2.0 * std::f64::consts::PI * C_CM_PER_PS * wavenumber_cm
+}
+
+/// Energy in J of a wavenumber in cm⁻¹: E = h c ν̃.
+pub fn cm_to_joule(wavenumber_cm: f64) -> f64 {
+    H_PLANCK * C_LIGHT * 100.0 * wavenumber_cm
+}
+
+/// Thermal energy k_B T expressed as a wavenumber in cm⁻¹ (T in K).
+pub fn kt_in_cm(temperature_k: f64) -> f64 {
+    K_BOLTZMANN * temperature_k / (H_PLANCK * C_LIGHT * 100.0)
+}
+
+/// Coupling rate (rad/ps) per unit of polarizability volume (Å³) times intensity (W/cm²):
+/// U = 2π α' I / (c ħ) for the cycle-averaged interaction −¼ E0² Δα cos²θ.
+pub fn coupling_rad_per_ps_per_a3_wcm2() -> f64 {
+    2.0 * std::f64::consts::PI * 1e-30 * 1e4 / (C_LIGHT * HBAR) * 1e-12
+}
+
+/// Rotational revival period (ps) of a linear rotor with rotational constant B in cm⁻¹: T = 1/(2 B c).
+pub fn revival_period_ps(b_cm: f64) -> f64 {
+    1.0 / (2.0 * b_cm * C_CM_PER_PS)
+}
+
+/// Peak electric field (V/m) of a linearly polarized beam of intensity I (W/cm²): E0 = sqrt(2 I / (c ε0)).
+pub fn peak_field_v_per_m(intensity_wcm2: f64) -> f64 {
+    (2.0 * intensity_wcm2 * 1e4 / (C_LIGHT * EPSILON_0)).sqrt()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn wavenumber_to_frequency() {
+        // 1 cm⁻¹ = 29.9792458 GHz (exact, from the definition of c).
+        let f_ghz = cm_to_rad_per_ps(1.0) / (2.0 * std::f64::consts::PI) * 1e3;
+        assert!((f_ghz - 29.979_245_8).abs() < 1e-9);
+    }
+
+    #[test]
+    fn field_of_one_tw_per_cm2() {
+        // 1 TW/cm² gives E0 ≈ 2.74e9 V/m (common practice: E0 = sqrt(2I/(c ε0))).
+        let e0 = peak_field_v_per_m(1e12);
+        assert!((e0 / 2.745e9 - 1.0).abs() < 1e-3, "{e0}");
+    }
+
+    #[test]
+    fn kt_room_temperature() {
+        // k_B T at 300 K is 208.5 cm⁻¹ (CODATA constants: 0.695035 cm⁻¹/K).
+        assert!((kt_in_cm(300.0) - 208.5103).abs() < 1e-3);
+    }
+
+    #[test]
+    fn revival_of_nitrogen() {
+        // T_rev = 1/(2Bc); for B = 1.98958 cm⁻¹ this is 8.383 ps (textbook formula).
+        assert!((revival_period_ps(1.98958) - 8.3827).abs() < 1e-3);
+    }
+}
