@@ -13,6 +13,7 @@
 //! ```
 
 pub mod basis;
+pub mod design;
 pub mod ensemble;
 pub mod error;
 pub mod field;
@@ -20,6 +21,7 @@ pub mod input;
 pub mod molecule;
 pub mod observe;
 pub mod propagate;
+pub mod report;
 pub mod scenario;
 pub mod simulate;
 pub mod units;

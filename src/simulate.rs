@@ -63,6 +63,31 @@ pub struct RunResult {
     pub blocks: Vec<BlockReport>,
     /// The schedule that was run.
     pub events: Vec<Event>,
+    /// Per block: (degeneracy weight, coherence sums after the last pulse), for evaluation at any later time.
+    pub final_sums: Vec<(f64, CoherenceSums)>,
+}
+
+impl RunResult {
+    /// (⟨cos²θ⟩, ⟨cos²θ_2D⟩) at a time t (ps) after the last field interaction.
+    pub fn eval_after(&self, t_ps: f64) -> (f64, f64) {
+        self.final_sums.iter().fold((0.0, 0.0), |acc, (g, s)| {
+            let (a, b) = s.eval(t_ps);
+            (acc.0 + g * a, acc.1 + g * b)
+        })
+    }
+
+    /// Exact time averages of (⟨cos²θ⟩, ⟨cos²θ_2D⟩) over [a, b] (ps), after the last field interaction.
+    pub fn mean_after(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
+        self.final_sums.iter().fold((0.0, 0.0), |acc, (g, s)| {
+            let (a, b) = s.mean_over(a_ps, b_ps);
+            (acc.0 + g * a, acc.1 + g * b)
+        })
+    }
+
+    /// Time (ps) from which `eval_after` is valid: the end of the last field interaction.
+    pub fn field_free_from_ps(&self) -> f64 {
+        self.final_sums.first().map(|s| s.1.t0_ps).unwrap_or(f64::NEG_INFINITY)
+    }
 }
 
 /// Solver for one molecule at one temperature; reusable across many field models (operators are cached).
@@ -81,6 +106,7 @@ struct BlockOutcome {
     values: Vec<(f64, f64)>,
     permanent: (f64, f64),
     report: BlockReport,
+    sums: CoherenceSums,
 }
 
 impl Solver {
@@ -169,6 +195,7 @@ impl Solver {
         let mut c2d = vec![0.0; times_ps.len()];
         let (mut perm, mut perm2d) = (0.0, 0.0);
         let mut blocks = vec![];
+        let mut final_sums = vec![];
         for o in outcomes {
             for (i, (a, b)) in o.values.iter().enumerate() {
                 cos2[i] += a;
@@ -176,10 +203,11 @@ impl Solver {
             }
             perm += o.permanent.0;
             perm2d += o.permanent.1;
+            final_sums.push((if o.report.m > 0 { 2.0 } else { 1.0 }, o.sums));
             blocks.push(o.report);
         }
         let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] } };
-        Ok(RunResult { trace, permanent_cos2: perm, permanent_cos2_2d: perm2d, blocks, events })
+        Ok(RunResult { trace, permanent_cos2: perm, permanent_cos2_2d: perm2d, blocks, events, final_sums })
     }
 
     fn run_block(&self, bp: &BlockPopulation, field: &FieldModel, events: &[Event], times: &[f64], with_2d: bool, extra: usize) -> Result<BlockOutcome> {
@@ -256,7 +284,7 @@ impl Solver {
         let sums = CoherenceSums::new(ops, &re, &im, state.t_ps, with_2d);
         sums.eval_series(&times[ti..], |i, (a, b)| values[ti + i] = (g * a, g * b));
         let report = BlockReport { m: block.m, parity: if block.parity == 0 { "even" } else { "odd" }, j_max: block.j_max(), size: block.size, edge_population: edge };
-        Ok(Some(BlockOutcome { values, permanent: (g * sums.cos2_static, g * sums.abscos_static), report }))
+        Ok(Some(BlockOutcome { values, permanent: (g * sums.cos2_static, g * sums.abscos_static), report, sums }))
     }
 }
 

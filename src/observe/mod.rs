@@ -107,6 +107,46 @@ impl CoherenceSums {
         }
     }
 
+    /// Exact mean of (⟨cos²θ⟩, ⟨|cosθ|⟩) over [a, b] (ps), from ∫ exp(−iΔω t) dt in closed form.
+    pub fn mean_over(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
+        let len = b_ps - a_ps;
+        if len <= 0.0 {
+            return self.eval(a_ps);
+        }
+        let (ta, tb) = (a_ps - self.t0_ps, b_ps - self.t0_ps);
+        // (1/L) ∫_a^b exp(−iΔ t) dt = (exp(−iΔ tb) − exp(−iΔ ta)) / (−iΔ L)
+        let avg = |d: f64| -> (f64, f64) {
+            if (d * len).abs() < 1e-9 {
+                let (s, c) = (-d * 0.5 * (ta + tb)).sin_cos();
+                return (c, s);
+            }
+            let (sb, cb) = (-d * tb).sin_cos();
+            let (sa, ca) = (-d * ta).sin_cos();
+            let (nr, ni) = (cb - ca, sb - sa);
+            // (nr + i ni) / (−i d L) = (−ni + i nr) / (d L)
+            (-ni / (d * len), nr / (d * len))
+        };
+        let m = self.omega.len();
+        let mut cos2 = self.cos2_static;
+        for a in 0..m.saturating_sub(1) {
+            let (pr, pi) = avg(self.omega[a] - self.omega[a + 1]);
+            cos2 += 2.0 * (self.cos2_re[a] * pr - self.cos2_im[a] * pi);
+        }
+        let mut abscos = 0.0;
+        if self.with_2d {
+            abscos = self.abscos_static;
+            let mut idx = 0;
+            for a in 0..m {
+                for b in (a + 1)..m {
+                    let (pr, pi) = avg(self.omega[a] - self.omega[b]);
+                    abscos += 2.0 * (self.abs_re[idx] * pr - self.abs_im[idx] * pi);
+                    idx += 1;
+                }
+            }
+        }
+        (cos2, abscos)
+    }
+
     /// z_n = exp(−i ω_n (t − t0)) for the kept levels.
     fn phases(&self, t_ps: f64, z_re: &mut Vec<f64>, z_im: &mut Vec<f64>) {
         let tau = t_ps - self.t0_ps;

@@ -1,0 +1,64 @@
+//! Performance figures (run with `cargo bench`). Prints medians from one run; machines are noisy,
+//! so compare ratios, not absolute numbers.
+//!
+//! Job 1 (linear solver): the thermal alignment trace that ../shared/bench/peer_linear_scipy.py
+//! computes (N2-like constants, 300 K, one 50 fs Gaussian pulse at 5e13 W/cm², trace 0.2–12 ps every
+//! 20 fs, both ⟨cos²θ⟩ and ⟨cos²θ_2D⟩). With KICKTRAIN_BENCH_PEER=1 the scipy script is run too
+//! (needs python3 with numpy and scipy) and the speed ratio is printed.
+
+use kicktrain::field::{FieldModel, Pulse};
+use kicktrain::molecule::Molecule;
+use kicktrain::scenario::SolverSettings;
+use kicktrain::simulate::Solver;
+use std::time::Instant;
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+fn peer_job() {
+    let mol = Molecule { name: "N2 (peer constants)".into(), b_cm: 1.98958, d_cm: 5.76e-6, alpha_parallel_a3: 1.93, alpha_perpendicular_a3: 1.0, spin_weights: [2.0, 1.0] };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 5e13)] };
+    let times: Vec<f64> = (0..590).map(|i| 0.2 + i as f64 * 0.02).collect();
+    let mut runs = vec![];
+    let mut last = None;
+    for _ in 0..21 {
+        let t0 = Instant::now();
+        // A fresh solver each time: ensemble, operators, propagation and traces are all timed.
+        let solver = Solver::new(&mol, 300.0, SolverSettings::default()).unwrap();
+        let r = solver.run(&field, &times, true).unwrap();
+        runs.push(t0.elapsed().as_secs_f64());
+        last = Some((r, solver.ensemble.state_count()));
+    }
+    let (r, states) = last.unwrap();
+    let ms = median(runs) * 1e3;
+    // Agreement with the stored scipy trace (tests/data/peer_scipy_n2_300k.csv).
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/peer_scipy_n2_300k.csv")).unwrap();
+    let mut worst: f64 = 0.0;
+    for (i, line) in text.lines().skip(1).enumerate() {
+        let v: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
+        worst = worst.max((v[1] - r.trace.cos2[i]).abs()).max((v[2] - r.trace.cos2_2d[i]).abs());
+    }
+    println!("linear solver, N2 300 K, 50 fs at 5e13 W/cm², 590 samples ({states} initial states)");
+    println!("  kicktrain median of 21 runs: {ms:.1} ms; max |difference| from the scipy trace: {worst:.1e}");
+    if std::env::var("KICKTRAIN_BENCH_PEER").is_ok() {
+        let script = concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/bench/peer_linear_scipy.py");
+        let t0 = Instant::now();
+        let ok = std::process::Command::new("python3").arg(script).output().map(|o| o.status.success()).unwrap_or(false);
+        let peer = t0.elapsed().as_secs_f64();
+        if ok {
+            println!("  scipy peer on this machine: {peer:.2} s; ratio peer / kicktrain = {:.0}×", peer * 1e3 / ms);
+        } else {
+            println!("  scipy peer could not run (python3 -m pip install numpy scipy)");
+        }
+    }
+}
+
+fn main() {
+    // `cargo bench` passes --bench; `cargo test --benches` would pass nothing: run only under bench.
+    if !std::env::args().any(|a| a == "--bench") {
+        return;
+    }
+    peer_job();
+}

@@ -1,0 +1,664 @@
+//! Designing pulse trains: the design space (parameters ↔ field model), the goal (a score from a
+//! propagated ensemble), the objective file that holds both, and the two-stage search.
+//!
+//! The physics does not know it is being optimized: the search sees a vector in the unit cube, the
+//! design space turns it into a `FieldModel`, the solver propagates it and the goal scores it.
+
+pub mod search;
+
+use crate::error::{require_non_negative, require_positive, Error, Result};
+use crate::field::{FieldModel, Pulse, PulseShape};
+use crate::input::{as_f64, join, parse_json, type_name, Fields};
+use crate::molecule::Molecule;
+use crate::scenario::{MoleculeSource, Scenario, SolverSettings, Window};
+use crate::simulate::RunResult;
+use serde_json::Value;
+
+/// A closed range [min, max]; min = max fixes the value.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Bounds {
+    /// Lower end.
+    pub min: f64,
+    /// Upper end.
+    pub max: f64,
+}
+
+impl Bounds {
+    /// A fixed value.
+    pub fn fixed(v: f64) -> Bounds {
+        Bounds { min: v, max: v }
+    }
+
+    /// True when the range has no width.
+    pub fn is_fixed(&self) -> bool {
+        self.max <= self.min
+    }
+
+    /// The value at fraction u ∈ [0, 1].
+    pub fn at(&self, u: f64) -> f64 {
+        if self.is_fixed() { self.min } else { self.min + (self.max - self.min) * u.clamp(0.0, 1.0) }
+    }
+
+    /// The fraction of a value (clamped to [0, 1]).
+    pub fn fraction(&self, v: f64) -> f64 {
+        if self.is_fixed() { 0.5 } else { ((v - self.min) / (self.max - self.min)).clamp(0.0, 1.0) }
+    }
+}
+
+/// Bounds of one pulse of the train.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PulseBounds {
+    /// Delay after the previous pulse's centre, ps (ignored for the first pulse, which sits at t = 0).
+    pub delay_ps: Bounds,
+    /// Peak intensity, W/cm².
+    pub peak_intensity_wcm2: Bounds,
+    /// Intensity FWHM, fs.
+    pub fwhm_fs: Bounds,
+}
+
+/// The space of pulse trains searched: bounds per pulse and global constraints.
+#[derive(Debug, Clone, PartialEq)]
+pub struct DesignSpace {
+    /// Envelope shape of every pulse.
+    pub shape: PulseShape,
+    /// Edge duration of flat-top pulses, fs.
+    pub rise_fs: Option<f64>,
+    /// Bounds per pulse (the train has this many pulses).
+    pub pulses: Vec<PulseBounds>,
+    /// Ceiling on every pulse's peak intensity, W/cm².
+    pub max_peak_intensity_wcm2: f64,
+    /// Optional budget on the summed fluence-time integral Σ∫I dt, J/cm².
+    pub max_total_fluence_jcm2: Option<f64>,
+    /// Smallest allowed delay between consecutive pulse centres, ps.
+    pub min_separation_ps: f64,
+}
+
+/// What the parameter at one index of the search vector means.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Slot {
+    Delay(usize),
+    Intensity(usize),
+    Fwhm(usize),
+}
+
+impl DesignSpace {
+    /// Effective delay bounds of pulse k ≥ 1 (minimum separation applied).
+    pub fn delay_bounds(&self, k: usize) -> Bounds {
+        let b = self.pulses[k].delay_ps;
+        Bounds { min: b.min.max(self.min_separation_ps), max: b.max }
+    }
+
+    /// Effective intensity bounds of pulse k (ceiling applied).
+    pub fn intensity_bounds(&self, k: usize) -> Bounds {
+        let b = self.pulses[k].peak_intensity_wcm2;
+        Bounds { min: b.min, max: b.max.min(self.max_peak_intensity_wcm2) }
+    }
+
+    fn slots(&self) -> Vec<Slot> {
+        let mut s = vec![];
+        for k in 0..self.pulses.len() {
+            if k > 0 && !self.delay_bounds(k).is_fixed() {
+                s.push(Slot::Delay(k));
+            }
+            if !self.intensity_bounds(k).is_fixed() {
+                s.push(Slot::Intensity(k));
+            }
+            if !self.pulses[k].fwhm_fs.is_fixed() {
+                s.push(Slot::Fwhm(k));
+            }
+        }
+        s
+    }
+
+    /// Number of free parameters.
+    pub fn dims(&self) -> usize {
+        self.slots().len()
+    }
+
+    /// Names of the free parameters, e.g. "pulse 2 delay (ps)".
+    pub fn parameter_names(&self) -> Vec<String> {
+        self.slots()
+            .iter()
+            .map(|s| match s {
+                Slot::Delay(k) => format!("pulse {} delay (ps)", k + 1),
+                Slot::Intensity(k) => format!("pulse {} peak intensity (W/cm²)", k + 1),
+                Slot::Fwhm(k) => format!("pulse {} FWHM (fs)", k + 1),
+            })
+            .collect()
+    }
+
+    /// The pulse train for a point u of the unit cube. Feasible by construction: pulses in order with at
+    /// least the minimum separation, every intensity within its bounds and the ceiling, and the fluence
+    /// budget met by scaling all intensities down together when needed.
+    pub fn field(&self, u: &[f64]) -> FieldModel {
+        let n = self.pulses.len();
+        let mut delay = vec![0.0; n];
+        let mut inten: Vec<f64> = (0..n).map(|k| self.intensity_bounds(k).min).collect();
+        let mut fwhm: Vec<f64> = self.pulses.iter().map(|p| p.fwhm_fs.min).collect();
+        for k in 1..n {
+            delay[k] = self.delay_bounds(k).min;
+        }
+        for (slot, &x) in self.slots().iter().zip(u) {
+            match *slot {
+                Slot::Delay(k) => delay[k] = self.delay_bounds(k).at(x),
+                Slot::Intensity(k) => inten[k] = self.intensity_bounds(k).at(x),
+                Slot::Fwhm(k) => fwhm[k] = self.pulses[k].fwhm_fs.at(x),
+            }
+        }
+        let mut t = 0.0;
+        let mut pulses: Vec<Pulse> = (0..n)
+            .map(|k| {
+                t += delay[k];
+                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs }
+            })
+            .collect();
+        if let Some(budget) = self.max_total_fluence_jcm2 {
+            let total: f64 = pulses.iter().map(fluence_jcm2).sum();
+            if total > budget {
+                let f = budget / total;
+                pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= f);
+            }
+        }
+        FieldModel { pulses }
+    }
+
+    /// The unit-cube point closest to a given train (used to seed searches); pulses beyond the space are ignored.
+    pub fn encode(&self, field: &FieldModel) -> Vec<f64> {
+        self.slots()
+            .iter()
+            .map(|s| match *s {
+                Slot::Delay(k) => field.pulses.get(k).map(|p| self.delay_bounds(k).fraction(p.center_ps - field.pulses[k - 1].center_ps)).unwrap_or(0.0),
+                Slot::Intensity(k) => field.pulses.get(k).map(|p| self.intensity_bounds(k).fraction(p.peak_intensity_wcm2)).unwrap_or(0.0),
+                Slot::Fwhm(k) => field.pulses.get(k).map(|p| self.pulses[k].fwhm_fs.fraction(p.fwhm_fs)).unwrap_or(0.0),
+            })
+            .collect()
+    }
+
+    /// The same space with only the first `n` pulses.
+    pub fn truncated(&self, n: usize) -> DesignSpace {
+        DesignSpace { pulses: self.pulses[..n].to_vec(), ..self.clone() }
+    }
+
+    /// Check that a train satisfies every constraint (used by tests and before writing a design).
+    pub fn check(&self, field: &FieldModel) -> std::result::Result<(), String> {
+        let tol = 1e-9;
+        for (k, p) in field.pulses.iter().enumerate() {
+            if p.peak_intensity_wcm2 > self.max_peak_intensity_wcm2 * (1.0 + tol) {
+                return Err(format!("pulse {} exceeds the ceiling", k + 1));
+            }
+            if k > 0 && p.center_ps - field.pulses[k - 1].center_ps < self.min_separation_ps - tol {
+                return Err(format!("pulses {} and {} are closer than the minimum separation", k, k + 1));
+            }
+        }
+        if let Some(b) = self.max_total_fluence_jcm2 {
+            let total: f64 = field.pulses.iter().map(fluence_jcm2).sum();
+            if total > b * (1.0 + tol) {
+                return Err(format!("total fluence {total} J/cm² exceeds the budget {b} J/cm²"));
+            }
+        }
+        Ok(())
+    }
+
+    /// Reject spaces with no feasible design before any search; errors name the field.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        require_positive(&join(path, "max_peak_intensity_wcm2"), self.max_peak_intensity_wcm2, "W/cm²")?;
+        require_non_negative(&join(path, "min_separation_ps"), self.min_separation_ps, "ps")?;
+        for k in 0..self.pulses.len() {
+            let p = &self.pulses[k];
+            let pp = format!("{}[{k}]", join(path, "pulses.each"));
+            if p.fwhm_fs.min <= 0.0 || p.fwhm_fs.max < p.fwhm_fs.min {
+                return Err(Error::input(format!("{pp}.fwhm_fs"), format!("expected 0 < min ≤ max (fs), got [{}, {}]", p.fwhm_fs.min, p.fwhm_fs.max)));
+            }
+            let ib = self.intensity_bounds(k);
+            if p.peak_intensity_wcm2.min < 0.0 || ib.max < ib.min {
+                return Err(Error::input(
+                    format!("{pp}.peak_intensity_wcm2"),
+                    format!("no feasible intensity: bounds [{:e}, {:e}] W/cm² under the ceiling {:e} W/cm²", p.peak_intensity_wcm2.min, p.peak_intensity_wcm2.max, self.max_peak_intensity_wcm2),
+                ));
+            }
+            if k > 0 {
+                let db = self.delay_bounds(k);
+                if db.max < db.min {
+                    return Err(Error::input(
+                        format!("{pp}.delay_ps"),
+                        format!("no feasible delay: bounds [{}, {}] ps with min_separation_ps = {} ps", p.delay_ps.min, p.delay_ps.max, self.min_separation_ps),
+                    ));
+                }
+            }
+        }
+        if let Some(b) = self.max_total_fluence_jcm2 {
+            require_positive(&join(path, "max_total_fluence_jcm2"), b, "J/cm²")?;
+            let least: f64 = (0..self.pulses.len())
+                .map(|k| {
+                    let p = Pulse { center_ps: 0.0, fwhm_fs: self.pulses[k].fwhm_fs.min, peak_intensity_wcm2: self.intensity_bounds(k).min, shape: self.shape, rise_fs: self.rise_fs };
+                    fluence_jcm2(&p)
+                })
+                .sum();
+            if least > b {
+                return Err(Error::input(join(path, "max_total_fluence_jcm2"), format!("no feasible design: the smallest allowed pulses already need {least:.3e} J/cm² > {b:.3e} J/cm²")));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Fluence-time integral ∫I dt of a pulse in J/cm² (on axis).
+pub fn fluence_jcm2(p: &Pulse) -> f64 {
+    p.peak_intensity_wcm2 * p.envelope_area_ps() * 1e-12
+}
+
+/// Which alignment observable a goal uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Observable {
+    /// ⟨cos²θ⟩.
+    Cos2,
+    /// ⟨cos²θ_2D⟩, the projection onto a detector plane containing Z.
+    Cos2TwoD,
+}
+
+impl Observable {
+    /// Name as written in files and CSV columns.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Observable::Cos2 => "cos2",
+            Observable::Cos2TwoD => "cos2_2d",
+        }
+    }
+}
+
+/// What the design should achieve, in a window measured from the centre of the last pulse.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum GoalKind {
+    /// Largest value reached in the window.
+    Peak,
+    /// Value at a fixed time after the last pulse centre (ps).
+    ValueAt(f64),
+    /// Mean over the window (long-lasting alignment).
+    Mean,
+    /// Smallest value in the window (anti-alignment, planar delocalization).
+    Minimum,
+}
+
+/// The goal: kind, observable and window.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Goal {
+    /// What to achieve.
+    pub kind: GoalKind,
+    /// Which observable.
+    pub observable: Observable,
+    /// Window [start, stop] in ps after the last pulse centre.
+    pub window_ps: (f64, f64),
+    /// Sampling step in the window, fs.
+    pub step_fs: f64,
+}
+
+/// A scored design: the value of the observable that the goal looks at, and when.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Score {
+    /// The goal's value (the observable's peak, value, mean or minimum).
+    pub value: f64,
+    /// Time of the optimum (ps, absolute), where meaningful.
+    pub t_ps: Option<f64>,
+}
+
+impl Goal {
+    /// Name of the goal kind.
+    pub fn kind_name(&self) -> &'static str {
+        match self.kind {
+            GoalKind::Peak => "peak",
+            GoalKind::ValueAt(_) => "value_at",
+            GoalKind::Mean => "mean",
+            GoalKind::Minimum => "minimum",
+        }
+    }
+
+    /// +1 when larger values are better, −1 for the minimum goal.
+    pub fn sense(&self) -> f64 {
+        if self.kind == GoalKind::Minimum { -1.0 } else { 1.0 }
+    }
+
+    /// Sample times (ps, absolute) for a train whose last pulse is centred at `t_last`.
+    pub fn times(&self, t_last: f64) -> Vec<f64> {
+        match self.kind {
+            GoalKind::ValueAt(t) => vec![t_last + t],
+            _ => {
+                let (a, b) = self.window_ps;
+                let dt = self.step_fs / 1000.0;
+                let n = ((b - a) / dt).ceil().max(1.0) as usize;
+                (0..=n).map(|i| t_last + a + (b - a) * i as f64 / n as f64).collect()
+            }
+        }
+    }
+
+    /// Score a run whose trace was sampled at `self.times(t_last)`. Peaks and minima found on the grid
+    /// are refined by golden-section search on the exact field-free expression where it applies.
+    pub fn score(&self, run: &RunResult, t_last: f64) -> Score {
+        let tr = &run.trace;
+        let series = match self.observable {
+            Observable::Cos2 => &tr.cos2,
+            Observable::Cos2TwoD => &tr.cos2_2d,
+        };
+        let pick = |r: (f64, f64)| if self.observable == Observable::Cos2 { r.0 } else { r.1 };
+        match self.kind {
+            GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(tr.times_ps[0]) },
+            GoalKind::Mean => {
+                let (a, b) = (t_last + self.window_ps.0, t_last + self.window_ps.1);
+                if a >= run.field_free_from_ps() {
+                    Score { value: pick(run.mean_after(a, b)), t_ps: None }
+                } else {
+                    // Trapezoid over the samples (the window starts during a pulse).
+                    let n = series.len();
+                    let mut s = 0.0;
+                    for i in 1..n {
+                        s += 0.5 * (series[i] + series[i - 1]) * (tr.times_ps[i] - tr.times_ps[i - 1]);
+                    }
+                    Score { value: s / (tr.times_ps[n - 1] - tr.times_ps[0]), t_ps: None }
+                }
+            }
+            GoalKind::Peak | GoalKind::Minimum => {
+                let sense = self.sense();
+                let mut best = 0;
+                for i in 0..series.len() {
+                    if sense * series[i] > sense * series[best] {
+                        best = i;
+                    }
+                }
+                let t_best = tr.times_ps[best];
+                let dt = if series.len() > 1 { tr.times_ps[1] - tr.times_ps[0] } else { 0.0 };
+                let lo = (t_best - dt).max(tr.times_ps[0]);
+                let hi = (t_best + dt).min(*tr.times_ps.last().expect("samples"));
+                let mut score = Score { value: series[best], t_ps: Some(t_best) };
+                if dt > 0.0 && lo >= run.field_free_from_ps() {
+                    let f = |t: f64| sense * pick(run.eval_after(t));
+                    let (t_opt, v) = golden_max(f, lo, hi, 1e-5);
+                    if v > sense * score.value {
+                        score = Score { value: sense * v, t_ps: Some(t_opt) };
+                    }
+                }
+                score
+            }
+        }
+    }
+}
+
+/// Maximum of a unimodal-ish f on [a, b] by golden-section search to tolerance `tol` (same unit as t).
+fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (f64, f64) {
+    let g = 0.5 * (5f64.sqrt() - 1.0);
+    let mut c = b - g * (b - a);
+    let mut d = a + g * (b - a);
+    let (mut fc, mut fd) = (f(c), f(d));
+    while (b - a).abs() > tol {
+        if fc > fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - g * (b - a);
+            fc = f(c);
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + g * (b - a);
+            fd = f(d);
+        }
+    }
+    let t = 0.5 * (a + b);
+    (t, f(t))
+}
+
+/// Settings of the search.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SearchSettings {
+    /// Seed of every random choice; the same file and seed give the same design.
+    pub seed: u64,
+    /// Particles in the swarm.
+    pub swarm_size: usize,
+    /// Swarm iterations per start.
+    pub iterations: usize,
+    /// Independent seeded swarm starts.
+    pub starts: usize,
+    /// Best kick-model candidates re-scored with the full solver.
+    pub refine_candidates: usize,
+    /// Nelder–Mead iterations of the local refinement (each stage).
+    pub refine_iterations: usize,
+}
+
+impl Default for SearchSettings {
+    fn default() -> Self {
+        SearchSettings { seed: 1, swarm_size: 24, iterations: 30, starts: 2, refine_candidates: 3, refine_iterations: 40 }
+    }
+}
+
+/// A complete design problem: base scenario, design space, goal and search settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Objective {
+    /// What this objective demonstrates.
+    pub description: Option<String>,
+    /// Molecule, temperature and solver settings (its pulses are replaced by each design).
+    pub base: Scenario,
+    /// The pulse trains searched.
+    pub space: DesignSpace,
+    /// With "max_count", the search also decides how many pulses (1..=max) are worth firing.
+    pub variable_count: bool,
+    /// What to achieve.
+    pub goal: Goal,
+    /// How to search.
+    pub search: SearchSettings,
+}
+
+impl Objective {
+    /// Read an objective from JSON text (`file` names the source in syntax errors).
+    pub fn from_json_str(text: &str, file: &str) -> Result<Objective> {
+        let v = parse_json(text, file)?;
+        Objective::from_value(&v)
+    }
+
+    /// Read an objective from a parsed JSON value.
+    pub fn from_value(v: &Value) -> Result<Objective> {
+        let mut f = Fields::new(v, "")?;
+        let description = f.opt_str("description", "a string")?.map(str::to_string);
+        let mv = f.req_value("molecule", "a library name or an object with b_cm, alpha_parallel_a3, ...")?;
+        let temperature_k = f.req_f64("temperature_k", "K")?;
+        let solver_v = f.opt_value("solver");
+        let pulses_v = f.req_value("pulses", "an object with count or max_count and the bounds of each pulse")?;
+        let ceiling = f.req_f64("max_peak_intensity_wcm2", "W/cm²")?;
+        let budget = f.opt_f64("max_total_fluence_jcm2", "J/cm²")?;
+        let min_sep = f.opt_f64("min_separation_ps", "ps")?.unwrap_or(0.0);
+        let goal_v = f.req_value("goal", "an object with kind, observable and window_ps")?;
+        let search_v = f.opt_value("search");
+        f.finish()?;
+
+        // The base scenario reuses the scenario reader for molecule, temperature and solver settings.
+        let mut base_json = serde_json::json!({"molecule": mv, "temperature_k": temperature_k, "window": {"start_ps": 0.0, "stop_ps": 1.0, "step_fs": 10.0}});
+        if let Some(s) = solver_v {
+            base_json["solver"] = s.clone();
+        }
+        let base = Scenario::from_value(&base_json, "")?;
+        let (space, variable_count) = parse_pulses(pulses_v, "pulses", ceiling, budget, min_sep)?;
+        space.validate("")?;
+        let goal = parse_goal(goal_v, "goal")?;
+        let search = match search_v {
+            None => SearchSettings::default(),
+            Some(s) => parse_search(s, "search")?,
+        };
+        Ok(Objective { description, base, space, variable_count, goal, search })
+    }
+
+    /// The scenario that replays a design: the base with the design's pulses and a window that shows
+    /// the pulses and the goal window.
+    pub fn scenario_for(&self, field: &FieldModel) -> Scenario {
+        let t_last = field.pulses.last().map(|p| p.center_ps).unwrap_or(0.0);
+        let widest = field.pulses.iter().map(|p| p.fwhm_ps()).fold(0.0, f64::max);
+        let start = -(2.0 * widest).max(0.2);
+        let stop = t_last + self.goal.window_ps.1.max(match self.goal.kind { GoalKind::ValueAt(t) => t, _ => 0.0 }) + 0.1 * self.goal.window_ps.1.abs().max(0.5);
+        let mut s = self.base.clone();
+        s.description = self.description.clone().map(|d| format!("Design: {d}"));
+        s.field = field.clone();
+        s.window = Window { start_ps: start, stop_ps: stop, step_fs: self.goal.step_fs.min(50.0) };
+        s
+    }
+
+    /// The molecule.
+    pub fn molecule(&self) -> &Molecule {
+        &self.base.molecule
+    }
+
+    /// Solver settings of the base scenario.
+    pub fn solver_settings(&self) -> SolverSettings {
+        self.base.solver
+    }
+
+    /// How the molecule was named (for writing designs back).
+    pub fn molecule_source(&self) -> &MoleculeSource {
+        &self.base.molecule_source
+    }
+}
+
+fn parse_bounds(v: &Value, path: &str, unit: &str) -> Result<Bounds> {
+    match v {
+        Value::Number(_) => {
+            let x = as_f64(v, path, unit)?;
+            Ok(Bounds::fixed(x))
+        }
+        Value::Object(_) => {
+            let mut f = Fields::new(v, path)?;
+            let b = Bounds { min: f.req_f64("min", unit)?, max: f.req_f64("max", unit)? };
+            f.finish()?;
+            if b.max < b.min {
+                return Err(Error::input(join(path, "max"), format!("expected max ≥ min = {} ({unit}), got {}", b.min, b.max)));
+            }
+            Ok(b)
+        }
+        other => Err(Error::input(path, format!("expected a number or {{\"min\": .., \"max\": ..}} ({unit}), got {}", type_name(other)))),
+    }
+}
+
+fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_sep: f64) -> Result<(DesignSpace, bool)> {
+    let mut f = Fields::new(v, path)?;
+    let count = f.opt_usize("count", "the number of pulses")?;
+    let max_count = f.opt_usize("max_count", "the largest number of pulses")?;
+    let (n, variable) = match (count, max_count) {
+        (Some(c), None) => (c, false),
+        (None, Some(m)) => (m, true),
+        (Some(_), Some(_)) => return Err(Error::input(join(path, "max_count"), "give either count or max_count, not both")),
+        (None, None) => return Err(Error::input(join(path, "count"), "missing; expected count (fixed number of pulses) or max_count (up to N)")),
+    };
+    if n == 0 || n > 12 {
+        return Err(Error::input(join(path, if variable { "max_count" } else { "count" }), format!("expected 1 to 12 pulses, got {n}")));
+    }
+    let shape = match f.opt_str("shape", PulseShape::NAMES)? {
+        None => PulseShape::Gaussian,
+        Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
+    };
+    let rise_fs = f.opt_f64("rise_fs", "fs")?;
+    let fwhm = parse_bounds(f.req_value("fwhm_fs", "a duration in fs or {min, max}")?, &join(path, "fwhm_fs"), "fs")?;
+    let delay = match f.opt_value("delay_ps") {
+        Some(d) => parse_bounds(d, &join(path, "delay_ps"), "ps")?,
+        None if n > 1 => return Err(Error::input(join(path, "delay_ps"), "missing; expected {\"min\": .., \"max\": ..} in ps between consecutive pulses")),
+        None => Bounds::fixed(0.0),
+    };
+    let inten = match f.opt_value("peak_intensity_wcm2") {
+        Some(i) => parse_bounds(i, &join(path, "peak_intensity_wcm2"), "W/cm²")?,
+        None => Bounds { min: 0.0, max: ceiling },
+    };
+    let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm }; n];
+    if let Some(each) = f.opt_value("each") {
+        let items = each.as_array().ok_or_else(|| Error::input(join(path, "each"), format!("expected an array of per-pulse bounds, got {}", type_name(each))))?;
+        if items.len() > n {
+            return Err(Error::input(join(path, "each"), format!("expected at most {n} entries (one per pulse), got {}", items.len())));
+        }
+        for (k, item) in items.iter().enumerate() {
+            let pp = format!("{}[{k}]", join(path, "each"));
+            let mut g = Fields::new(item, &pp)?;
+            if let Some(d) = g.opt_value("delay_ps") {
+                if k == 0 {
+                    return Err(Error::input(join(&pp, "delay_ps"), "the first pulse defines t = 0 and has no delay"));
+                }
+                pulses[k].delay_ps = parse_bounds(d, &join(&pp, "delay_ps"), "ps")?;
+            }
+            if let Some(i) = g.opt_value("peak_intensity_wcm2") {
+                pulses[k].peak_intensity_wcm2 = parse_bounds(i, &join(&pp, "peak_intensity_wcm2"), "W/cm²")?;
+            }
+            if let Some(w) = g.opt_value("fwhm_fs") {
+                pulses[k].fwhm_fs = parse_bounds(w, &join(&pp, "fwhm_fs"), "fs")?;
+            }
+            g.finish()?;
+        }
+    }
+    f.finish()?;
+    let space = DesignSpace { shape, rise_fs, pulses, max_peak_intensity_wcm2: ceiling, max_total_fluence_jcm2: budget, min_separation_ps: min_sep };
+    // Check each pulse shape once through the pulse validator (rise vs FWHM and so on).
+    for (k, p) in space.pulses.iter().enumerate() {
+        for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
+            let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs };
+            pulse.validate(&format!("{path}.each[{k}]"))?;
+        }
+    }
+    Ok((space, variable))
+}
+
+fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
+    let mut f = Fields::new(v, path)?;
+    let kind_s = f.opt_str("kind", "\"peak\", \"value_at\", \"mean\" or \"minimum\"")?.unwrap_or("peak");
+    let observable = match f.opt_str("observable", "\"cos2\" or \"cos2_2d\"")?.unwrap_or("cos2") {
+        "cos2" => Observable::Cos2,
+        "cos2_2d" => Observable::Cos2TwoD,
+        other => return Err(Error::input(join(path, "observable"), format!("expected \"cos2\" or \"cos2_2d\", got \"{other}\""))),
+    };
+    let at = f.opt_f64("at_ps", "ps after the last pulse centre")?;
+    let window = match f.opt_value("window_ps") {
+        None => None,
+        Some(Value::Array(a)) if a.len() == 2 => {
+            let p = join(path, "window_ps");
+            Some((as_f64(&a[0], &format!("{p}[0]"), "ps")?, as_f64(&a[1], &format!("{p}[1]"), "ps")?))
+        }
+        Some(other) => return Err(Error::input(join(path, "window_ps"), format!("expected [start_ps, stop_ps] after the last pulse centre, got {other}"))),
+    };
+    let step_fs = f.opt_f64("step_fs", "fs")?.unwrap_or(10.0);
+    f.finish()?;
+    require_positive(&join(path, "step_fs"), step_fs, "fs")?;
+    let kind = match kind_s {
+        "peak" => GoalKind::Peak,
+        "mean" => GoalKind::Mean,
+        "minimum" => GoalKind::Minimum,
+        "value_at" => GoalKind::ValueAt(at.ok_or_else(|| Error::input(join(path, "at_ps"), "missing; expected the time (ps) after the last pulse centre for kind \"value_at\""))?),
+        other => return Err(Error::input(join(path, "kind"), format!("expected \"peak\", \"value_at\", \"mean\" or \"minimum\", got \"{other}\""))),
+    };
+    let window_ps = match (kind, window) {
+        (GoalKind::ValueAt(t), _) => (t, t),
+        (_, Some(w)) => w,
+        (_, None) => return Err(Error::input(join(path, "window_ps"), "missing; expected [start_ps, stop_ps] after the last pulse centre")),
+    };
+    if !matches!(kind, GoalKind::ValueAt(_)) {
+        if window_ps.1 <= window_ps.0 {
+            return Err(Error::input(join(path, "window_ps"), format!("expected stop > start, got [{}, {}]", window_ps.0, window_ps.1)));
+        }
+        if (window_ps.1 - window_ps.0) * 1000.0 / step_fs > 200_000.0 {
+            return Err(Error::input(join(path, "step_fs"), "the goal window would hold more than 200000 samples; expected a larger step_fs"));
+        }
+    }
+    if window_ps.0 < 0.0 {
+        return Err(Error::input(join(path, if matches!(kind, GoalKind::ValueAt(_)) { "at_ps" } else { "window_ps" }), "expected times ≥ 0 after the last pulse centre"));
+    }
+    Ok(Goal { kind, observable, window_ps, step_fs })
+}
+
+fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {
+    let mut f = Fields::new(v, path)?;
+    let d = SearchSettings::default();
+    let s = SearchSettings {
+        seed: f.opt_usize("seed", "a seed")?.map(|x| x as u64).unwrap_or(d.seed),
+        swarm_size: f.opt_usize("swarm_size", "particles")?.unwrap_or(d.swarm_size),
+        iterations: f.opt_usize("iterations", "swarm iterations")?.unwrap_or(d.iterations),
+        starts: f.opt_usize("starts", "independent starts")?.unwrap_or(d.starts),
+        refine_candidates: f.opt_usize("refine_candidates", "candidates")?.unwrap_or(d.refine_candidates),
+        refine_iterations: f.opt_usize("refine_iterations", "iterations")?.unwrap_or(d.refine_iterations),
+    };
+    f.finish()?;
+    for (name, val, lo, hi) in [("swarm_size", s.swarm_size, 2, 10_000), ("iterations", s.iterations, 1, 100_000), ("starts", s.starts, 1, 100), ("refine_candidates", s.refine_candidates, 1, 100), ("refine_iterations", s.refine_iterations, 0, 100_000)] {
+        if val < lo || val > hi {
+            return Err(Error::input(join(path, name), format!("expected a whole number from {lo} to {hi}, got {val}")));
+        }
+    }
+    Ok(s)
+}

@@ -1,0 +1,162 @@
+//! Reports: the summary (JSON), traces (CSV) and plots (SVG) written to an output folder.
+
+pub mod svg;
+
+use crate::error::{Error, Result};
+use crate::observe::{Extremum, Trace};
+use crate::scenario::Scenario;
+use crate::simulate::{Event, Simulation};
+use crate::units::revival_period_ps;
+use serde_json::{json, Value};
+use std::path::Path;
+
+/// The laser-safety caution printed with every output that states intensities or pulse energies.
+pub const LASER_SAFETY: &str = "Laser safety: intensities of 1e12-1e14 W/cm² come from class 4 lasers. \
+Follow your local laser safety officer and the applicable standards (IEC 60825-1, ANSI Z136.1); \
+these numbers are no substitute for a safety assessment.";
+
+fn extremum(e: Option<Extremum>) -> Value {
+    match e {
+        Some(e) if e.value.is_finite() => json!({"value": e.value, "t_ps": e.t_ps}),
+        _ => Value::Null,
+    }
+}
+
+/// Number or null (never NaN in an output).
+pub fn num(x: f64) -> Value {
+    if x.is_finite() { json!(x) } else { Value::Null }
+}
+
+/// The method used for each pulse ("kick" or "finite"), indexed like the scenario's pulses.
+pub fn pulse_methods(events: &[Event], n_pulses: usize) -> Vec<&'static str> {
+    let mut out = vec!["off"; n_pulses];
+    for e in events {
+        match e {
+            Event::Kick { pulse, .. } => out[*pulse] = "kick",
+            Event::Finite { pulses, .. } => pulses.iter().for_each(|&p| out[p] = "finite"),
+        }
+    }
+    out
+}
+
+/// The summary of a simulation as JSON: peaks, permanent alignment, revival period, kicks, basis, timing.
+pub fn simulation_summary(sim: &Simulation) -> Value {
+    let s = &sim.scenario;
+    let r = &sim.result;
+    let tr = &r.trace;
+    let da = s.molecule.delta_alpha_a3();
+    let methods = pulse_methods(&r.events, s.field.pulses.len());
+    let pulses: Vec<Value> = s
+        .field
+        .pulses
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            json!({
+                "center_ps": p.center_ps, "fwhm_fs": p.fwhm_fs, "peak_intensity_wcm2": p.peak_intensity_wcm2,
+                "shape": p.shape, "kick_strength": p.kick_strength(da), "method": methods[i],
+            })
+        })
+        .collect();
+    let after = s.field.last_pulse_end_ps().unwrap_or(f64::NEG_INFINITY);
+    let steps: Vec<Value> = r
+        .events
+        .iter()
+        .map(|e| match e {
+            Event::Kick { t_ps, strength, pulse } => json!({"kind": "kick", "t_ps": t_ps, "kick_strength": strength, "pulse": pulse}),
+            Event::Finite { start_ps, end_ps, pulses, step_ps } => {
+                json!({"kind": "finite", "start_ps": start_ps, "end_ps": end_ps, "pulses": pulses, "step_fs": step_ps * 1000.0})
+            }
+        })
+        .collect();
+    let max_edge = r.blocks.iter().map(|b| b.edge_population).fold(0.0, f64::max);
+    json!({
+        "kicktrain_version": env!("CARGO_PKG_VERSION"),
+        "description": s.description,
+        "molecule": {"name": s.molecule.name, "b_cm": s.molecule.b_cm, "d_cm": s.molecule.d_cm,
+            "delta_alpha_a3": da, "spin_weights_even_odd": s.molecule.spin_weights},
+        "temperature_k": s.temperature_k,
+        "pulses": pulses,
+        "field_free_from_ps": if after.is_finite() { json!(after) } else { Value::Null },
+        "peak_cos2": extremum(tr.max_after(&tr.cos2, after)),
+        "peak_cos2_2d": extremum(tr.max_after(&tr.cos2_2d, after)),
+        "min_cos2": extremum(tr.min_after(&tr.cos2, after)),
+        "min_cos2_2d": extremum(tr.min_after(&tr.cos2_2d, after)),
+        "permanent_cos2": num(r.permanent_cos2),
+        "permanent_cos2_2d": num(r.permanent_cos2_2d),
+        "revival_period_ps": revival_period_ps(s.molecule.b_cm),
+        "thermal": {"initial_states": sim.initial_states, "discarded_population": sim.discarded_population,
+            "tolerance": s.solver.thermal_tolerance},
+        "basis": {"edge_tolerance": s.solver.edge_tolerance, "max_edge_population": max_edge,
+            "max_j": r.blocks.iter().map(|b| b.j_max).max(), "blocks": r.blocks},
+        "solver": {"method": s.solver.method.name(), "steps": steps},
+        "run_time_s": sim.run_time_s,
+        "laser_safety": LASER_SAFETY,
+    })
+}
+
+/// The trace as CSV text with columns `t_ps,cos2,cos2_2d` (and any extra named columns).
+pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
+    let mut out = String::from("t_ps,cos2");
+    let has_2d = !trace.cos2_2d.is_empty();
+    if has_2d {
+        out.push_str(",cos2_2d");
+    }
+    for (name, _) in extra {
+        out.push(',');
+        out.push_str(name);
+    }
+    out.push('\n');
+    for i in 0..trace.times_ps.len() {
+        out.push_str(&format!("{:.6},{:.10}", trace.times_ps[i], trace.cos2[i]));
+        if has_2d {
+            out.push_str(&format!(",{:.10}", trace.cos2_2d[i]));
+        }
+        for (_, col) in extra {
+            out.push_str(&format!(",{:.10}", col[i]));
+        }
+        out.push('\n');
+    }
+    out
+}
+
+/// A plot of the alignment trace with the pulses marked and the isotropic values drawn.
+pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::LinePlot {
+    let mut plot = svg::LinePlot::new(title, "time (ps)", "alignment");
+    plot.subtitle = Some(format!(
+        "{} at {} K; {} pulse(s); shaded: pulse FWHM",
+        scenario.molecule.name,
+        scenario.temperature_k,
+        scenario.field.pulses.len()
+    ));
+    plot.series.push(svg::Series { label: "⟨cos²θ⟩".into(), x: trace.times_ps.clone(), y: trace.cos2.clone(), color: "#1f5fa8".into(), dashed: false, width: 1.6 });
+    if !trace.cos2_2d.is_empty() {
+        plot.series.push(svg::Series { label: "⟨cos²θ_2D⟩".into(), x: trace.times_ps.clone(), y: trace.cos2_2d.clone(), color: "#d9622b".into(), dashed: false, width: 1.6 });
+    }
+    for (i, p) in scenario.field.pulses.iter().enumerate() {
+        let h = 0.5 * p.fwhm_ps();
+        plot.markers.push(svg::Marker { x0: p.center_ps - h, x1: p.center_ps + h, label: format!("pulse {}", i + 1), color: "#c0392b".into() });
+    }
+    plot.hlines.push(svg::HLine { y: 1.0 / 3.0, label: "isotropic 1/3".into(), color: "#1f5fa8".into() });
+    if !trace.cos2_2d.is_empty() {
+        plot.hlines.push(svg::HLine { y: 0.5, label: "isotropic 2D 1/2".into(), color: "#d9622b".into() });
+    }
+    plot
+}
+
+/// Create `dir` (and parents) and write `name` inside it.
+pub fn write_file(dir: &Path, name: &str, contents: &str) -> Result<()> {
+    std::fs::create_dir_all(dir).map_err(|e| Error::Io(format!("cannot create output folder {}: {e}", dir.display())))?;
+    let path = dir.join(name);
+    std::fs::write(&path, contents).map_err(|e| Error::Io(format!("cannot write {}: {e}", path.display())))
+}
+
+/// Write `summary.json`, `trace.csv` and `alignment.svg` of a simulation into `dir`.
+pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
+    let summary = simulation_summary(sim);
+    write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("summary serializes") + "\n"))?;
+    write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &[]))?;
+    let title = sim.scenario.description.clone().unwrap_or_else(|| "Field-free alignment".to_string());
+    write_file(dir, "alignment.svg", &alignment_plot(&sim.scenario, &sim.result.trace, &title).to_svg())?;
+    Ok(summary)
+}
