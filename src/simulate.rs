@@ -7,7 +7,7 @@ use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::molecule::Molecule;
-use crate::observe::{CoherenceSums, Trace};
+use crate::observe::{BlockSums, LevelSums, Trace};
 use crate::propagate::{propagate_finite, BlockOps, BlockState};
 use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
@@ -63,30 +63,24 @@ pub struct RunResult {
     pub blocks: Vec<BlockReport>,
     /// The schedule that was run.
     pub events: Vec<Event>,
-    /// Per block: (degeneracy weight, coherence sums after the last pulse), for evaluation at any later time.
-    pub final_sums: Vec<(f64, CoherenceSums)>,
+    /// Coherence sums of the ensemble after the last pulse, for evaluation at any later time.
+    pub final_sums: LevelSums,
 }
 
 impl RunResult {
     /// (⟨cos²θ⟩, ⟨cos²θ_2D⟩) at a time t (ps) after the last field interaction.
     pub fn eval_after(&self, t_ps: f64) -> (f64, f64) {
-        self.final_sums.iter().fold((0.0, 0.0), |acc, (g, s)| {
-            let (a, b) = s.eval(t_ps);
-            (acc.0 + g * a, acc.1 + g * b)
-        })
+        self.final_sums.eval(t_ps)
     }
 
     /// Exact time averages of (⟨cos²θ⟩, ⟨cos²θ_2D⟩) over [a, b] (ps), after the last field interaction.
     pub fn mean_after(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
-        self.final_sums.iter().fold((0.0, 0.0), |acc, (g, s)| {
-            let (a, b) = s.mean_over(a_ps, b_ps);
-            (acc.0 + g * a, acc.1 + g * b)
-        })
+        self.final_sums.mean_over(a_ps, b_ps)
     }
 
     /// Time (ps) from which `eval_after` is valid: the end of the last field interaction.
     pub fn field_free_from_ps(&self) -> f64 {
-        self.final_sums.first().map(|s| s.1.t0_ps).unwrap_or(f64::NEG_INFINITY)
+        self.final_sums.t0_ps
     }
 }
 
@@ -103,10 +97,13 @@ pub struct Solver {
 
 /// Per-block result before summing.
 struct BlockOutcome {
+    /// Contributions at sample times inside finite pulses (zero elsewhere).
     values: Vec<(f64, f64)>,
-    permanent: (f64, f64),
+    /// Field-free stretches with samples: (first sample, end sample, time of ρ, coefficients).
+    gaps: Vec<(usize, usize, f64, BlockSums)>,
+    /// Coefficients after the last event.
+    final_sums: BlockSums,
     report: BlockReport,
-    sums: CoherenceSums,
 }
 
 impl Solver {
@@ -193,21 +190,36 @@ impl Solver {
             .collect::<Result<Vec<_>>>()?;
         let mut cos2 = vec![0.0; times_ps.len()];
         let mut c2d = vec![0.0; times_ps.len()];
-        let (mut perm, mut perm2d) = (0.0, 0.0);
-        let mut blocks = vec![];
-        let mut final_sums = vec![];
-        for o in outcomes {
+        for o in &outcomes {
             for (i, (a, b)) in o.values.iter().enumerate() {
                 cos2[i] += a;
                 c2d[i] += b;
             }
-            perm += o.permanent.0;
-            perm2d += o.permanent.1;
-            final_sums.push((if o.report.m > 0 { 2.0 } else { 1.0 }, o.sums));
-            blocks.push(o.report);
         }
+        // Merge the blocks' coherences by J and evaluate each field-free stretch once.
+        let j_count = outcomes.iter().map(|o| o.report.j_max as usize + 1).max().unwrap_or(1);
+        let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.molecule.energy_cm(j))).collect();
+        let merge = |t0: f64, pick: &dyn Fn(&BlockOutcome) -> &BlockSums| {
+            let mut sums = LevelSums::new(omega.clone(), t0, with_2d);
+            for o in &outcomes {
+                sums.add(if o.report.m > 0 { 2.0 } else { 1.0 }, pick(o));
+            }
+            sums
+        };
+        if let Some(first) = outcomes.first() {
+            for (g, &(from, to, t0, _)) in first.gaps.iter().enumerate() {
+                let sums = merge(t0, &|o: &BlockOutcome| &o.gaps[g].3);
+                sums.eval_series(&times_ps[from..to], |i, (a, b)| {
+                    cos2[from + i] += a;
+                    c2d[from + i] += b;
+                });
+            }
+        }
+        let t_end = events.last().map(|e| e.span().1).or(times_ps.first().copied()).unwrap_or(0.0);
+        let final_sums = merge(t_end, &|o: &BlockOutcome| &o.final_sums);
+        let blocks = outcomes.into_iter().map(|o| o.report).collect();
         let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] } };
-        Ok(RunResult { trace, permanent_cos2: perm, permanent_cos2_2d: perm2d, blocks, events, final_sums })
+        Ok(RunResult { trace, permanent_cos2: final_sums.cos2_static, permanent_cos2_2d: final_sums.abscos_static, blocks, events, final_sums })
     }
 
     fn run_block(&self, bp: &BlockPopulation, field: &FieldModel, events: &[Event], times: &[f64], with_2d: bool, extra: usize) -> Result<BlockOutcome> {
@@ -240,6 +252,7 @@ impl Solver {
         let t_first = events.first().map(|e| e.span().0).or(times.first().copied()).unwrap_or(0.0);
         let mut state = BlockState::new(block.size, &start, t_first);
         let mut values = vec![(0.0, 0.0); times.len()];
+        let mut gaps = vec![];
         let mut ti = 0usize;
         let mut edge: f64 = 0.0;
         let da = self.molecule.delta_alpha_a3();
@@ -252,9 +265,7 @@ impl Solver {
             let (s, e) = ev.span();
             let gap_end = ti + times[ti..].partition_point(|t| *t < s);
             if gap_end > ti {
-                let (re, im) = state.density(&pops);
-                let sums = CoherenceSums::new(ops, &re, &im, state.t_ps, with_2d);
-                sums.eval_series(&times[ti..gap_end], |i, (a, b)| values[ti + i] = (g * a, g * b));
+                gaps.push((ti, gap_end, state.t_ps, BlockSums::from_state(ops, &state, &pops, with_2d)));
                 ti = gap_end;
             }
             state.free(ops, s - state.t_ps);
@@ -280,11 +291,12 @@ impl Solver {
                 return Ok(None);
             }
         }
-        let (re, im) = state.density(&pops);
-        let sums = CoherenceSums::new(ops, &re, &im, state.t_ps, with_2d);
-        sums.eval_series(&times[ti..], |i, (a, b)| values[ti + i] = (g * a, g * b));
+        let final_sums = BlockSums::from_state(ops, &state, &pops, with_2d);
+        if ti < times.len() {
+            gaps.push((ti, times.len(), state.t_ps, final_sums.clone()));
+        }
         let report = BlockReport { m: block.m, parity: if block.parity == 0 { "even" } else { "odd" }, j_max: block.j_max(), size: block.size, edge_population: edge };
-        Ok(Some(BlockOutcome { values, permanent: (g * sums.cos2_static, g * sums.abscos_static), report, sums }))
+        Ok(Some(BlockOutcome { values, gaps, final_sums, report }))
     }
 }
 

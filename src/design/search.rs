@@ -387,3 +387,16 @@ pub fn evaluate(obj: &Objective, field: &FieldModel) -> Result<Candidate> {
     let ev = Evaluator::new(obj, &Silent)?;
     Ok(Candidate { kick: ev.score(field, false)?, full: ev.score(field, true)?, field: field.clone() })
 }
+
+/// Kick-model score of one train (one evaluation as the search's first stage does it).
+pub fn evaluate_kick(obj: &Objective, field: &FieldModel) -> Result<Score> {
+    let ev = Evaluator::new(obj, &Silent)?;
+    ev.score(field, false)
+}
+
+/// Kick-model scores of many trains with one shared solver, in parallel (used by benchmarks and scans).
+pub fn evaluate_kick_many(obj: &Objective, fields: &[FieldModel]) -> Result<Vec<Score>> {
+    use rayon::prelude::*;
+    let ev = Evaluator::new(obj, &Silent)?;
+    fields.par_iter().map(|f| ev.score(f, false)).collect()
+}

@@ -1,72 +1,139 @@
 //! Observables and traces. After the last field interaction, expectation values follow exactly from
 //! the density matrix by sums over coherences: ⟨O⟩(t) = Σ_nm ρ_nm O_mn exp(−i(ω_n − ω_m)(t − t0)).
 
-use crate::propagate::BlockOps;
-use nalgebra::DMatrix;
+use crate::propagate::{BlockOps, BlockState};
 
-/// Coefficients for the fast field-free evaluation of ⟨cos²θ⟩ and ⟨|cosθ|⟩ in one block.
+/// One block's share of the coherence sums: ρ_nm O_mn for the block's levels, labelled by J.
 #[derive(Debug, Clone)]
-pub struct CoherenceSums {
-    /// Time at which ρ was taken, ps.
-    pub t0_ps: f64,
-    lo: usize,
-    omega: Vec<f64>,
-    /// Σ_n ρ_nn cos²_nn (also the exact time average of ⟨cos²θ⟩).
+pub struct BlockSums {
+    /// J of the first kept level; level a has J = j_first + 2a.
+    pub j_first: u32,
+    /// Σ_n ρ_nn cos²_nn.
     pub cos2_static: f64,
-    cos2_re: Vec<f64>,
-    cos2_im: Vec<f64>,
-    /// Σ_n ρ_nn |cos|_nn (the exact time average of ⟨cos²θ_2D⟩).
+    /// ρ_{a,a+1} cos²_{a+1,a} (real, imaginary), a = 0..m−1.
+    pub cos2_c: Vec<(f64, f64)>,
+    /// Σ_n ρ_nn |cos|_nn.
     pub abscos_static: f64,
-    /// Upper triangle (row-major, n < m) of ρ_nm |cos|_mn, real and imaginary parts.
-    abs_re: Vec<f64>,
-    abs_im: Vec<f64>,
-    with_2d: bool,
+    /// Upper triangle (row-major, a < b) of ρ_ab |cos|_ba (real, imaginary); empty without 2D.
+    pub abs_c: Vec<(f64, f64)>,
+    /// Number of kept levels.
+    pub levels: usize,
 }
 
 /// Populations below this are treated as empty when trimming the coherence sums.
 const TRIM_POPULATION: f64 = 1e-22;
 
-impl CoherenceSums {
-    /// Prepare the sums from ρ = (re, im) at time t0 (ps); `with_2d` also prepares ⟨|cosθ|⟩.
-    pub fn new(ops: &BlockOps, rho_re: &DMatrix<f64>, rho_im: &DMatrix<f64>, t0_ps: f64, with_2d: bool) -> CoherenceSums {
+impl BlockSums {
+    /// The block's coefficients from its propagated states (populations `pops`); `with_2d` adds |cosθ|.
+    /// Without 2D only the diagonal and first off-diagonal of ρ are formed (O(N K) work).
+    pub fn from_state(ops: &BlockOps, state: &BlockState, pops: &[f64], with_2d: bool) -> BlockSums {
         let n = ops.size();
-        let lo = (0..n).find(|&i| rho_re[(i, i)] > TRIM_POPULATION).unwrap_or(0);
-        let hi = (0..n).rev().find(|&i| rho_re[(i, i)] > TRIM_POPULATION).map(|i| i + 1).unwrap_or(0).max(lo);
-        let omega: Vec<f64> = ops.omega[lo..hi].to_vec();
+        let k = state.k;
+        let psi = &state.psi;
+        let diag: Vec<f64> = (0..n).map(|r| (0..k).map(|c| pops[c] * (psi[(r, c)].powi(2) + psi[(r, c + k)].powi(2))).sum()).collect();
+        let lo = (0..n).find(|&i| diag[i] > TRIM_POPULATION).unwrap_or(0);
+        let hi = (0..n).rev().find(|&i| diag[i] > TRIM_POPULATION).map(|i| i + 1).unwrap_or(0).max(lo);
         let m = hi - lo;
-        let mut cos2_static = 0.0;
-        let mut cos2_re = vec![0.0; m.saturating_sub(1)];
-        let mut cos2_im = vec![0.0; m.saturating_sub(1)];
+        let mut out = BlockSums { j_first: ops.block.j(lo), cos2_static: 0.0, cos2_c: vec![], abscos_static: 0.0, abs_c: vec![], levels: m };
+        // ρ_ab = Σ_c p_c ψ_a conj(ψ_b)
+        let rho = |a: usize, b: usize| -> (f64, f64) {
+            let (mut re, mut im) = (0.0, 0.0);
+            for c in 0..k {
+                let (ar, ai, br, bi) = (psi[(a, c)], psi[(a, c + k)], psi[(b, c)], psi[(b, c + k)]);
+                re += pops[c] * (ar * br + ai * bi);
+                im += pops[c] * (ai * br - ar * bi);
+            }
+            (re, im)
+        };
         for a in 0..m {
             let i = a + lo;
-            cos2_static += rho_re[(i, i)] * ops.cos2_diag[i];
+            out.cos2_static += diag[i] * ops.cos2_diag[i];
             if a + 1 < m {
-                cos2_re[a] = rho_re[(i, i + 1)] * ops.cos2_off[i];
-                cos2_im[a] = rho_im[(i, i + 1)] * ops.cos2_off[i];
+                let (re, im) = rho(i, i + 1);
+                out.cos2_c.push((re * ops.cos2_off[i], im * ops.cos2_off[i]));
             }
         }
-        let (mut abscos_static, mut abs_re, mut abs_im) = (0.0, vec![], vec![]);
         if with_2d {
             let o = ops.abscos.as_ref().expect("|cosθ| matrix built for 2D observables");
+            let (rre, rim) = state.density(pops);
             for a in 0..m {
                 let i = a + lo;
-                abscos_static += rho_re[(i, i)] * o[(i, i)];
+                out.abscos_static += diag[i] * o[(i, i)];
                 for b in (a + 1)..m {
                     let j = b + lo;
-                    abs_re.push(rho_re[(i, j)] * o[(i, j)]);
-                    abs_im.push(rho_im[(i, j)] * o[(i, j)]);
+                    out.abs_c.push((rre[(i, j)] * o[(i, j)], rim[(i, j)] * o[(i, j)]));
                 }
             }
         }
-        CoherenceSums { t0_ps, lo, omega, cos2_static, cos2_re, cos2_im, abscos_static, abs_re, abs_im, with_2d }
+        out
+    }
+}
+
+/// Coherence sums of the whole ensemble, merged over blocks by rotational level J. Field-free
+/// frequencies depend on J only, so every block's coherence between J and J' adds into one
+/// coefficient: a trace then costs O(J_max) per time for ⟨cos²θ⟩ and O(J_max²) for ⟨cos²θ_2D⟩,
+/// independent of the number of M blocks.
+#[derive(Debug, Clone)]
+pub struct LevelSums {
+    /// Time at which the states were taken, ps.
+    pub t0_ps: f64,
+    omega: Vec<f64>,
+    /// Σ ρ_nn cos²_nn over the ensemble: the exact time average of ⟨cos²θ⟩.
+    pub cos2_static: f64,
+    c2: Vec<(f64, f64)>,
+    /// Σ ρ_nn |cos|_nn over the ensemble: the exact time average of ⟨cos²θ_2D⟩.
+    pub abscos_static: f64,
+    /// Dense (J, J') coefficients, J < J', row-major over J_count × J_count.
+    abs: Vec<(f64, f64)>,
+    with_2d: bool,
+}
+
+impl LevelSums {
+    /// Empty sums for levels J = 0..omega_by_j.len() (ω_J in rad/ps) at time t0 (ps).
+    pub fn new(omega_by_j: Vec<f64>, t0_ps: f64, with_2d: bool) -> LevelSums {
+        let n = omega_by_j.len();
+        LevelSums {
+            t0_ps,
+            c2: vec![(0.0, 0.0); n],
+            abs: if with_2d { vec![(0.0, 0.0); n * n] } else { vec![] },
+            omega: omega_by_j,
+            cos2_static: 0.0,
+            abscos_static: 0.0,
+            with_2d,
+        }
     }
 
-    /// Index of the first basis state kept in the sums.
-    pub fn first_index(&self) -> usize {
-        self.lo
+    /// Number of J levels covered.
+    pub fn levels(&self) -> usize {
+        self.omega.len()
     }
 
-    /// (⟨cos²θ⟩, ⟨|cosθ|⟩) of this block at time t (ps); the second is 0 without 2D preparation.
+    /// Add one block's coefficients with weight `g` (2 for |M| > 0: ±M are identical).
+    pub fn add(&mut self, g: f64, b: &BlockSums) {
+        self.cos2_static += g * b.cos2_static;
+        self.abscos_static += g * b.abscos_static;
+        let n = self.omega.len();
+        let j0 = b.j_first as usize;
+        for (a, c) in b.cos2_c.iter().enumerate() {
+            let j = j0 + 2 * a;
+            self.c2[j].0 += g * c.0;
+            self.c2[j].1 += g * c.1;
+        }
+        if self.with_2d {
+            let mut idx = 0;
+            for a in 0..b.levels {
+                for bb in (a + 1)..b.levels {
+                    let (j, jp) = (j0 + 2 * a, j0 + 2 * bb);
+                    let c = b.abs_c[idx];
+                    self.abs[j * n + jp].0 += g * c.0;
+                    self.abs[j * n + jp].1 += g * c.1;
+                    idx += 1;
+                }
+            }
+        }
+    }
+
+    /// (⟨cos²θ⟩, ⟨|cosθ|⟩) at time t (ps); the second is 0 without 2D preparation.
     pub fn eval(&self, t_ps: f64) -> (f64, f64) {
         let (mut zr, mut zi) = (vec![], vec![]);
         self.phases(t_ps, &mut zr, &mut zi);
@@ -114,7 +181,7 @@ impl CoherenceSums {
             return self.eval(a_ps);
         }
         let (ta, tb) = (a_ps - self.t0_ps, b_ps - self.t0_ps);
-        // (1/L) ∫_a^b exp(−iΔ t) dt = (exp(−iΔ tb) − exp(−iΔ ta)) / (−iΔ L)
+        // Mean of exp(−iD τ) over [ta, tb] = (exp(−iD tb) − exp(−iD ta)) / (−iD L).
         let avg = |d: f64| -> (f64, f64) {
             if (d * len).abs() < 1e-9 {
                 let (s, c) = (-d * 0.5 * (ta + tb)).sin_cos();
@@ -126,28 +193,32 @@ impl CoherenceSums {
             // (nr + i ni) / (−i d L) = (−ni + i nr) / (d L)
             (-ni / (d * len), nr / (d * len))
         };
-        let m = self.omega.len();
+        let n = self.omega.len();
         let mut cos2 = self.cos2_static;
-        for a in 0..m.saturating_sub(1) {
-            let (pr, pi) = avg(self.omega[a] - self.omega[a + 1]);
-            cos2 += 2.0 * (self.cos2_re[a] * pr - self.cos2_im[a] * pi);
+        for j in 0..n.saturating_sub(2) {
+            let c = self.c2[j];
+            if c != (0.0, 0.0) {
+                let (pr, pi) = avg(self.omega[j] - self.omega[j + 2]);
+                cos2 += 2.0 * (c.0 * pr - c.1 * pi);
+            }
         }
         let mut abscos = 0.0;
         if self.with_2d {
             abscos = self.abscos_static;
-            let mut idx = 0;
-            for a in 0..m {
-                for b in (a + 1)..m {
-                    let (pr, pi) = avg(self.omega[a] - self.omega[b]);
-                    abscos += 2.0 * (self.abs_re[idx] * pr - self.abs_im[idx] * pi);
-                    idx += 1;
+            for j in 0..n {
+                for jp in ((j + 2)..n).step_by(2) {
+                    let c = self.abs[j * n + jp];
+                    if c != (0.0, 0.0) {
+                        let (pr, pi) = avg(self.omega[j] - self.omega[jp]);
+                        abscos += 2.0 * (c.0 * pr - c.1 * pi);
+                    }
                 }
             }
         }
         (cos2, abscos)
     }
 
-    /// z_n = exp(−i ω_n (t − t0)) for the kept levels.
+    /// z_J = exp(−i ω_J (t − t0)).
     fn phases(&self, t_ps: f64, z_re: &mut Vec<f64>, z_im: &mut Vec<f64>) {
         let tau = t_ps - self.t0_ps;
         z_re.clear();
@@ -159,34 +230,30 @@ impl CoherenceSums {
         }
     }
 
-    /// Values for given phases z_n.
+    /// Values for given phases z_J.
     fn eval_with(&self, z_re: &[f64], z_im: &[f64]) -> (f64, f64) {
-        let m = self.omega.len();
-        // ρ_nm(t) = ρ_nm z_n conj(z_m); ⟨O⟩ = Σ_n ρ_nn O_nn + 2 Re Σ_{n<m} ρ_nm O_mn z_n conj(z_m).
+        let n = self.omega.len();
+        // ρ_JJ'(t) = ρ_JJ' z_J conj(z_J'); ⟨O⟩ = static + 2 Re Σ_{J<J'} C_JJ' z_J conj(z_J').
         let mut cos2 = self.cos2_static;
-        for a in 0..m.saturating_sub(1) {
-            let (pr, pi) = phase_product(z_re[a], z_im[a], z_re[a + 1], z_im[a + 1]);
-            cos2 += 2.0 * (self.cos2_re[a] * pr - self.cos2_im[a] * pi);
+        for j in 0..n.saturating_sub(2) {
+            let (pr, pi) = phase_product(z_re[j], z_im[j], z_re[j + 2], z_im[j + 2]);
+            cos2 += 2.0 * (self.c2[j].0 * pr - self.c2[j].1 * pi);
         }
         let mut abscos = 0.0;
         if self.with_2d {
             abscos = self.abscos_static;
-            let mut idx = 0;
-            for a in 0..m {
-                // Σ_{b>a} C_ab conj(z_b), then times z_a.
-                let len = m - a - 1;
-                let row_r = &self.abs_re[idx..idx + len];
-                let row_i = &self.abs_im[idx..idx + len];
-                let zr = &z_re[a + 1..];
-                let zi = &z_im[a + 1..];
+            for j in 0..n {
+                let row = &self.abs[j * n..(j + 1) * n];
                 let (mut sr, mut si) = (0.0, 0.0);
-                for k in 0..len {
+                let mut jp = j + 2;
+                while jp < n {
+                    let c = row[jp];
                     // C · conj(z) = (cr + i ci)(zr − i zi)
-                    sr += row_r[k] * zr[k] + row_i[k] * zi[k];
-                    si += row_i[k] * zr[k] - row_r[k] * zi[k];
+                    sr += c.0 * z_re[jp] + c.1 * z_im[jp];
+                    si += c.1 * z_re[jp] - c.0 * z_im[jp];
+                    jp += 2;
                 }
-                idx += len;
-                abscos += 2.0 * (sr * z_re[a] - si * z_im[a]);
+                abscos += 2.0 * (sr * z_re[j] - si * z_im[j]);
             }
         }
         (cos2, abscos)
