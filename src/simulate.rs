@@ -8,7 +8,7 @@ use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::molecule::Molecule;
 use crate::observe::{BlockSums, LevelSums, Trace};
-use crate::propagate::{propagate_finite, BlockOps, BlockState};
+use crate::propagate::{propagate_finite, BlockOps, BlockState, FreePhases};
 use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
 use rayon::prelude::*;
@@ -97,7 +97,7 @@ pub struct Solver {
 
 /// Per-block result before summing.
 struct BlockOutcome {
-    /// Contributions at sample times inside finite pulses (zero elsewhere).
+    /// Contributions at sample times inside finite pulses (zero elsewhere; empty if there are none).
     values: Vec<(f64, f64)>,
     /// Field-free stretches with samples: (first sample, end sample, time of ρ, coefficients).
     gaps: Vec<(usize, usize, f64, BlockSums)>,
@@ -182,11 +182,28 @@ impl Solver {
         }
         let events = self.schedule(field);
         let extra = self.extra_levels(field);
+        // Field-free phases before each event are the same for every block: tabulate them once by J.
+        let j_table = (self.ensemble.j_max + 2 * extra as u32 + 16).min(self.molecule.max_physical_j()) as usize;
+        let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
+        let mut t_prev = t_first;
+        let tables: Vec<Vec<(f64, f64)>> = events
+            .iter()
+            .map(|ev| {
+                let dt = ev.span().0 - t_prev;
+                t_prev = ev.span().1;
+                (0..=j_table as u32)
+                    .map(|j| {
+                        let (s, c) = (-cm_to_rad_per_ps(self.molecule.energy_cm(j)) * dt).sin_cos();
+                        (c, s)
+                    })
+                    .collect()
+            })
+            .collect();
         let outcomes: Vec<BlockOutcome> = self
             .ensemble
             .blocks
             .par_iter()
-            .map(|bp| self.run_block(bp, field, &events, times_ps, with_2d, extra))
+            .map(|bp| self.run_block(bp, field, &events, &tables, times_ps, with_2d, extra))
             .collect::<Result<Vec<_>>>()?;
         let mut cos2 = vec![0.0; times_ps.len()];
         let mut c2d = vec![0.0; times_ps.len()];
@@ -222,7 +239,8 @@ impl Solver {
         Ok(RunResult { trace, permanent_cos2: final_sums.cos2_static, permanent_cos2_2d: final_sums.abscos_static, blocks, events, final_sums })
     }
 
-    fn run_block(&self, bp: &BlockPopulation, field: &FieldModel, events: &[Event], times: &[f64], with_2d: bool, extra: usize) -> Result<BlockOutcome> {
+    #[allow(clippy::too_many_arguments)]
+    fn run_block(&self, bp: &BlockPopulation, field: &FieldModel, events: &[Event], tables: &[Vec<(f64, f64)>], times: &[f64], with_2d: bool, extra: usize) -> Result<BlockOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
         let mut size = Block::size_to_reach(bp.m, bp.parity, j_thermal + 2 * extra as u32);
@@ -236,7 +254,7 @@ impl Solver {
                 )));
             }
             let ops = self.ops(bp.m, bp.parity, size, with_2d);
-            match self.try_block(&ops, bp, field, events, times, with_2d)? {
+            match self.try_block(&ops, bp, field, events, tables, times, with_2d)? {
                 Some(o) => return Ok(o),
                 None => size += (size / 4).max(4),
             }
@@ -244,14 +262,15 @@ impl Solver {
     }
 
     /// One attempt at a block with a fixed basis; None if the edge population exceeds the tolerance.
-    fn try_block(&self, ops: &BlockOps, bp: &BlockPopulation, field: &FieldModel, events: &[Event], times: &[f64], with_2d: bool) -> Result<Option<BlockOutcome>> {
+    #[allow(clippy::too_many_arguments)]
+    fn try_block(&self, ops: &BlockOps, bp: &BlockPopulation, field: &FieldModel, events: &[Event], tables: &[Vec<(f64, f64)>], times: &[f64], with_2d: bool) -> Result<Option<BlockOutcome>> {
         let block = ops.block;
         let g = block.m_degeneracy();
         let start: Vec<usize> = bp.levels.iter().map(|l| ((l.0 - block.j_min()) / 2) as usize).collect();
         let pops: Vec<f64> = bp.levels.iter().map(|l| l.1).collect();
         let t_first = events.first().map(|e| e.span().0).or(times.first().copied()).unwrap_or(0.0);
         let mut state = BlockState::new(block.size, &start, t_first);
-        let mut values = vec![(0.0, 0.0); times.len()];
+        let mut values = vec![];
         let mut gaps = vec![];
         let mut ti = 0usize;
         let mut edge: f64 = 0.0;
@@ -261,18 +280,24 @@ impl Solver {
             let b = if with_2d { st.expect_dense(&pops, ops.abscos.as_ref().expect("abscos")) } else { 0.0 };
             (g * a, g * b)
         };
-        for ev in events {
+        for (ev, table) in events.iter().zip(tables) {
             let (s, e) = ev.span();
             let gap_end = ti + times[ti..].partition_point(|t| *t < s);
             if gap_end > ti {
                 gaps.push((ti, gap_end, state.t_ps, BlockSums::from_state(ops, &state, &pops, with_2d)));
                 ti = gap_end;
             }
-            state.free(ops, s - state.t_ps);
+            let dt = s - state.t_ps;
+            if dt != 0.0 {
+                state.free_with(&FreePhases::from_table(ops, dt, table));
+            }
             state.t_ps = s;
             match ev {
                 Event::Kick { strength, .. } => state.kick(ops, *strength),
                 Event::Finite { pulses, step_ps, .. } => {
+                    if values.is_empty() {
+                        values = vec![(0.0, 0.0); times.len()];
+                    }
                     while ti < times.len() && times[ti] == s {
                         values[ti] = eval_now(&state);
                         ti += 1;

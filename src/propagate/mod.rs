@@ -65,6 +65,8 @@ pub struct BlockState {
     pub k: usize,
     /// Current time, ps.
     pub t_ps: f64,
+    /// Start levels while every state is still a single (phased) basis level: lets the first kick skip a product.
+    single_level: Option<Vec<usize>>,
 }
 
 impl BlockState {
@@ -75,7 +77,7 @@ impl BlockState {
         for (c, &n) in start_index.iter().enumerate() {
             psi[(n, c)] = 1.0;
         }
-        BlockState { work: DMatrix::zeros(size, 2 * k), psi, k, t_ps }
+        BlockState { work: DMatrix::zeros(size, 2 * k), psi, k, t_ps, single_level: Some(start_index.to_vec()) }
     }
 
     /// Exact field-free evolution by `dt_ps`: ψ_n ← exp(−i ω_n dt) ψ_n.
@@ -99,9 +101,22 @@ impl BlockState {
             return;
         }
         let n = self.psi.nrows();
-        self.work.gemm(1.0, &ops.cos2_eigenvectors_t, &self.psi, 0.0);
+        let k = self.k;
+        if let Some(start) = self.single_level.take() {
+            // Each state is z_c e_{start_c}: Vᵀψ is row start_c of V times z_c, no product needed.
+            let v = &ops.cos2_eigenvectors;
+            for (c, &r) in start.iter().enumerate() {
+                let (zr, zi) = (self.psi[(r, c)], self.psi[(r, c + k)]);
+                for q in 0..n {
+                    self.work[(q, c)] = v[(r, q)] * zr;
+                    self.work[(q, c + k)] = v[(r, q)] * zi;
+                }
+            }
+        } else {
+            self.work.gemm(1.0, &ops.cos2_eigenvectors_t, &self.psi, 0.0);
+        }
         let (c, s): (Vec<f64>, Vec<f64>) = ops.cos2_eigenvalues.iter().map(|a| { let (s, c) = (theta * a).sin_cos(); (c, s) }).unzip();
-        rotate_rows(&mut self.work, self.k, n, &c, &s);
+        rotate_rows(&mut self.work, k, n, &c, &s);
         self.psi.gemm(1.0, &ops.cos2_eigenvectors, &self.work, 0.0);
     }
 
@@ -182,6 +197,24 @@ impl FreePhases {
     /// Phases of the block's levels for a step of `dt_ps`.
     pub fn new(ops: &BlockOps, dt_ps: f64) -> FreePhases {
         let (c, s) = ops.omega.iter().map(|w| { let (s, c) = (-w * dt_ps).sin_cos(); (c, s) }).unzip();
+        FreePhases { c, s, dt_ps }
+    }
+
+    /// Phases of the block's levels taken from a table of all levels J (cos, sin of −ω_J dt), computing
+    /// any level beyond the table directly.
+    pub fn from_table(ops: &BlockOps, dt_ps: f64, table: &[(f64, f64)]) -> FreePhases {
+        let (c, s) = (0..ops.size())
+            .map(|n| {
+                let j = ops.block.j(n) as usize;
+                match table.get(j) {
+                    Some(&cs) => cs,
+                    None => {
+                        let (s, c) = (-ops.omega[n] * dt_ps).sin_cos();
+                        (c, s)
+                    }
+                }
+            })
+            .unzip();
         FreePhases { c, s, dt_ps }
     }
 }
