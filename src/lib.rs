@@ -17,6 +17,7 @@ pub mod design;
 pub mod ensemble;
 pub mod error;
 pub mod field;
+pub mod goal;
 pub mod input;
 pub mod molecule;
 pub mod observe;

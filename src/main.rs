@@ -6,7 +6,11 @@ use kicktrain::molecule::library;
 use kicktrain::report;
 use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
+use kicktrain::design::search::{design, Monitor};
+use kicktrain::design::Objective;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::sync::Arc;
 use std::process::ExitCode;
 
 #[derive(Parser)]
@@ -24,6 +28,28 @@ enum Command {
     #[command(after_help = "Example:\n  kicktrain molecules\n  kicktrain molecules --json > molecules.json")]
     Molecules {
         /// Print the table as JSON (with every source).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Search pulse timings and intensities for the best field-free alignment under the ceilings.
+    #[command(after_help = "Examples:\n  kicktrain design                      # built-in example (two pulses, N2 at 300 K)\n  \
+kicktrain design objectives/two-pulse-room-temperature.json --out best\n  \
+kicktrain simulate best/design.json --out check   # replays the design\n\n\
+--out DIR writes design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg.\n\
+Ctrl-C stops the search and still reports (and writes) the best design found so far.")]
+    Design {
+        /// Objective file (JSON); the built-in two-pulse example when omitted.
+        objective: Option<PathBuf>,
+        /// Output folder.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Seed for the search (overrides the file's search.seed).
+        #[arg(long)]
+        seed: Option<u64>,
+        /// No progress bar.
+        #[arg(long)]
+        quiet: bool,
+        /// Print the summary as JSON to standard output.
         #[arg(long)]
         json: bool,
     },
@@ -48,6 +74,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Molecules { json } => molecules(json),
         Command::Simulate { scenario, out, json } => run_simulate(&scenario, out.as_deref(), json),
+        Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
@@ -146,4 +173,119 @@ fn print_simulation(s: &serde_json::Value) {
     if !s["pulses"].as_array().map(|a| a.is_empty()).unwrap_or(true) {
         println!("  {}", report::LASER_SAFETY);
     }
+}
+
+/// The objective `kicktrain design` runs when no file is given.
+const DEFAULT_OBJECTIVE: &str = include_str!("../objectives/two-pulse-room-temperature.json");
+
+/// Progress bar and Ctrl-C flag for a design search.
+struct Progress {
+    bar: indicatif::ProgressBar,
+    stop: Arc<AtomicBool>,
+    stage_start: AtomicUsize,
+}
+
+impl Monitor for Progress {
+    fn stage(&self, name: &str, planned: usize) {
+        self.stage_start.store(usize::MAX, Ordering::Relaxed);
+        self.bar.set_length(planned.max(1) as u64);
+        self.bar.set_position(0);
+        self.bar.reset_eta();
+        self.bar.set_prefix(name.to_string());
+    }
+    fn evaluated(&self, evaluations: usize, best: Option<f64>) {
+        let start = self.stage_start.load(Ordering::Relaxed);
+        let start = if start == usize::MAX {
+            self.stage_start.store(evaluations - 1, Ordering::Relaxed);
+            evaluations - 1
+        } else {
+            start
+        };
+        let done = (evaluations - start) as u64;
+        if done > self.bar.length().unwrap_or(0) {
+            self.bar.set_length(done);
+        }
+        self.bar.set_position(done);
+        if let Some(b) = best {
+            self.bar.set_message(format!("best {b:.5} | {evaluations} evaluations"));
+        }
+    }
+    fn interrupted(&self) -> bool {
+        self.stop.load(Ordering::Relaxed)
+    }
+}
+
+fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, quiet: bool, json: bool) -> Result<(), Error> {
+    let (text, name) = match path {
+        Some(p) => (read_text(p)?, p.display().to_string()),
+        None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
+    };
+    let mut obj = Objective::from_json_str(&text, &name)?;
+    if let Some(s) = seed {
+        obj.search.seed = s;
+    }
+    let stop = Arc::new(AtomicBool::new(false));
+    {
+        let stop = stop.clone();
+        // First Ctrl-C: finish the current iteration and report the best so far; second: quit at once.
+        let _ = ctrlc::set_handler(move || {
+            if stop.swap(true, Ordering::SeqCst) {
+                std::process::exit(130);
+            }
+            eprintln!("\nstopping: finishing the current step and keeping the best design so far (Ctrl-C again to quit now)");
+        });
+    }
+    let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(1) };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})")
+            .expect("template")
+            .progress_chars("=> "),
+    );
+    if !quiet {
+        eprintln!("designing: {} ({} pulse(s){}, seed {})", name, obj.space.pulses.len(), if obj.variable_count { " at most" } else { "" }, obj.search.seed);
+    }
+    let monitor = Progress { bar, stop: stop.clone(), stage_start: AtomicUsize::new(usize::MAX) };
+    let result = design(&obj, &monitor)?;
+    monitor.bar.finish_and_clear();
+    let summary = match out {
+        Some(dir) => kicktrain::report::design::write_design(&obj, &result, dir)?,
+        None => kicktrain::report::design::design_summary(&obj, &result),
+    };
+    if json {
+        println!("{}", serde_json::to_string_pretty(&summary).expect("json"));
+    } else {
+        print_design(&summary);
+        if let Some(dir) = out {
+            println!("wrote {}/design.json, summary.json, trace.csv, design.svg, history.csv, convergence.svg", dir.display());
+            println!("replay: kicktrain simulate {}/design.json", dir.display());
+        }
+    }
+    Ok(())
+}
+
+fn print_design(s: &serde_json::Value) {
+    let f = |v: &serde_json::Value| v.as_f64().map(|x| format!("{x:.5}")).unwrap_or_else(|| "—".into());
+    println!("{} at {} K — goal: {} of {} (window {} ps after the last pulse centre)",
+        s["molecule"].as_str().unwrap_or("?"), s["temperature_k"], s["goal"]["kind"].as_str().unwrap_or("?"), s["observable"].as_str().unwrap_or("?"),
+        s["goal"].get("window_ps").map(|w| w.to_string()).unwrap_or_else(|| s["goal"]["at_ps"].to_string()));
+    if s["interrupted"].as_bool() == Some(true) {
+        println!("  (search interrupted: best design found so far)");
+    }
+    println!("  score {} at {} ps (full solver); kick model {} (difference {})", f(&s["score"]), f(&s["score_time_ps"]), f(&s["kick_model_score"]), f(&s["full_minus_kick_model"]));
+    if let Some(ps) = s["pulses"].as_array() {
+        for p in ps {
+            println!("  pulse {}: t = {:.4} ps, {:.4e} W/cm² ({:.0} % of ceiling), FWHM {:.1} fs, kick strength {:.3}",
+                p["pulse"], p["center_ps"].as_f64().unwrap_or(0.0), p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
+                100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0), p["fwhm_fs"].as_f64().unwrap_or(0.0), p["kick_strength"].as_f64().unwrap_or(0.0));
+        }
+    }
+    println!("  best single pulse under the same ceiling: {} → gain {}", f(&s["single_pulse_baseline"]["score"]), f(&s["gain_over_single_pulse"]));
+    if let Some(pc) = s["per_pulse_count"].as_array() {
+        if pc.len() > 1 {
+            let parts: Vec<String> = pc.iter().map(|c| format!("{}: {}", c["pulses"], f(&c["score"]))).collect();
+            println!("  score by pulse count: {}", parts.join(", "));
+        }
+    }
+    println!("  {} kick-model + {} full-solver evaluations in {:.1} s (seed {})", s["evaluations"]["kick_model"], s["evaluations"]["full_solver"], s["run_time_s"].as_f64().unwrap_or(0.0), s["seed"]);
+    println!("  {}", report::LASER_SAFETY);
 }

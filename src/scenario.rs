@@ -3,6 +3,7 @@
 
 use crate::error::{require_non_negative, require_positive, Error, Result};
 use crate::field::{FieldModel, Pulse, PulseShape};
+use crate::goal::{parse_goal, Goal};
 use crate::input::{join, parse_json, type_name, Fields};
 use crate::molecule::Molecule;
 use serde_json::{json, Value};
@@ -107,6 +108,8 @@ pub struct Scenario {
     pub window: Window,
     /// Numerical settings.
     pub solver: SolverSettings,
+    /// Optional goal scored on the result (as the designer scores it), relative to the last pulse centre.
+    pub goal: Option<Goal>,
 }
 
 impl Scenario {
@@ -120,6 +123,7 @@ impl Scenario {
             field: FieldModel { pulses },
             window,
             solver: SolverSettings::default(),
+            goal: None,
         };
         s.validate()?;
         Ok(s)
@@ -155,8 +159,12 @@ impl Scenario {
             None => SolverSettings::default(),
             Some(sv) => parse_solver(sv, &f.path_of("solver"))?,
         };
+        let goal = match f.opt_value("goal") {
+            None => None,
+            Some(g) => Some(parse_goal(g, &f.path_of("goal"))?),
+        };
         f.finish()?;
-        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses }, window, solver };
+        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses }, window, solver, goal };
         s.validate_at(path)?;
         Ok(s)
     }
@@ -189,6 +197,11 @@ impl Scenario {
         Ok(())
     }
 
+    /// Centre of the last pulse (ps), the reference of goal windows; 0 without pulses.
+    pub fn last_pulse_center_ps(&self) -> f64 {
+        self.field.pulses.iter().map(|p| p.center_ps).reduce(f64::max).unwrap_or(0.0)
+    }
+
     /// The scenario as a JSON value that `from_value` reads back to the same scenario.
     pub fn to_value(&self) -> Value {
         let molecule = match &self.molecule_source {
@@ -211,6 +224,9 @@ impl Scenario {
         solver.insert("thermal_tolerance".into(), json!(self.solver.thermal_tolerance));
         solver.insert("edge_tolerance".into(), json!(self.solver.edge_tolerance));
         obj.insert("solver".into(), Value::Object(solver));
+        if let Some(g) = &self.goal {
+            obj.insert("goal".into(), g.to_value());
+        }
         Value::Object(obj)
     }
 }

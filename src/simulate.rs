@@ -7,7 +7,8 @@ use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::molecule::Molecule;
-use crate::observe::{BlockSums, LevelSums, Trace};
+use crate::goal::{Observable, Score};
+use crate::observe::{score_goal, BlockSums, LevelSums, Trace};
 use crate::propagate::{propagate_finite, BlockOps, BlockState, FreePhases};
 use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
@@ -336,6 +337,8 @@ pub struct Simulation {
     pub discarded_population: f64,
     /// Initially populated |J M⟩ sublevels.
     pub initial_states: usize,
+    /// The scenario's goal scored on this run (None without a goal).
+    pub goal_score: Option<Score>,
     /// Wall-clock run time, s.
     pub run_time_s: f64,
 }
@@ -347,7 +350,17 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
     let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?;
     let times = scenario.window.times_ps();
     let result = solver.run(&scenario.field, &times, true)?;
+    let goal_score = match &scenario.goal {
+        None => None,
+        Some(goal) => {
+            // Scored exactly as the designer scores it: the goal's own sample grid and refinement.
+            let t_last = scenario.last_pulse_center_ps();
+            let run = solver.run(&scenario.field, &goal.times(t_last), goal.observable == Observable::Cos2TwoD)?;
+            Some(score_goal(goal, &run.trace, &run.final_sums, t_last))
+        }
+    };
     Ok(Simulation {
+        goal_score,
         scenario: scenario.clone(),
         result,
         discarded_population: solver.ensemble.discarded_population,

@@ -6,12 +6,14 @@
 
 pub mod search;
 
+pub use crate::goal::{Goal, GoalKind, Observable, Score};
+
 use crate::error::{require_non_negative, require_positive, Error, Result};
+use crate::goal::parse_goal;
 use crate::field::{FieldModel, Pulse, PulseShape};
 use crate::input::{as_f64, join, parse_json, type_name, Fields};
 use crate::molecule::Molecule;
 use crate::scenario::{MoleculeSource, Scenario, SolverSettings, Window};
-use crate::simulate::RunResult;
 use serde_json::Value;
 
 /// A closed range [min, max]; min = max fixes the value.
@@ -247,165 +249,6 @@ pub fn fluence_jcm2(p: &Pulse) -> f64 {
     p.peak_intensity_wcm2 * p.envelope_area_ps() * 1e-12
 }
 
-/// Which alignment observable a goal uses.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Observable {
-    /// ⟨cos²θ⟩.
-    Cos2,
-    /// ⟨cos²θ_2D⟩, the projection onto a detector plane containing Z.
-    Cos2TwoD,
-}
-
-impl Observable {
-    /// Name as written in files and CSV columns.
-    pub fn name(&self) -> &'static str {
-        match self {
-            Observable::Cos2 => "cos2",
-            Observable::Cos2TwoD => "cos2_2d",
-        }
-    }
-}
-
-/// What the design should achieve, in a window measured from the centre of the last pulse.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum GoalKind {
-    /// Largest value reached in the window.
-    Peak,
-    /// Value at a fixed time after the last pulse centre (ps).
-    ValueAt(f64),
-    /// Mean over the window (long-lasting alignment).
-    Mean,
-    /// Smallest value in the window (anti-alignment, planar delocalization).
-    Minimum,
-}
-
-/// The goal: kind, observable and window.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Goal {
-    /// What to achieve.
-    pub kind: GoalKind,
-    /// Which observable.
-    pub observable: Observable,
-    /// Window [start, stop] in ps after the last pulse centre.
-    pub window_ps: (f64, f64),
-    /// Sampling step in the window, fs.
-    pub step_fs: f64,
-}
-
-/// A scored design: the value of the observable that the goal looks at, and when.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Score {
-    /// The goal's value (the observable's peak, value, mean or minimum).
-    pub value: f64,
-    /// Time of the optimum (ps, absolute), where meaningful.
-    pub t_ps: Option<f64>,
-}
-
-impl Goal {
-    /// Name of the goal kind.
-    pub fn kind_name(&self) -> &'static str {
-        match self.kind {
-            GoalKind::Peak => "peak",
-            GoalKind::ValueAt(_) => "value_at",
-            GoalKind::Mean => "mean",
-            GoalKind::Minimum => "minimum",
-        }
-    }
-
-    /// +1 when larger values are better, −1 for the minimum goal.
-    pub fn sense(&self) -> f64 {
-        if self.kind == GoalKind::Minimum { -1.0 } else { 1.0 }
-    }
-
-    /// Sample times (ps, absolute) for a train whose last pulse is centred at `t_last`.
-    pub fn times(&self, t_last: f64) -> Vec<f64> {
-        match self.kind {
-            GoalKind::ValueAt(t) => vec![t_last + t],
-            _ => {
-                let (a, b) = self.window_ps;
-                let dt = self.step_fs / 1000.0;
-                let n = ((b - a) / dt).ceil().max(1.0) as usize;
-                (0..=n).map(|i| t_last + a + (b - a) * i as f64 / n as f64).collect()
-            }
-        }
-    }
-
-    /// Score a run whose trace was sampled at `self.times(t_last)`. Peaks and minima found on the grid
-    /// are refined by golden-section search on the exact field-free expression where it applies.
-    pub fn score(&self, run: &RunResult, t_last: f64) -> Score {
-        let tr = &run.trace;
-        let series = match self.observable {
-            Observable::Cos2 => &tr.cos2,
-            Observable::Cos2TwoD => &tr.cos2_2d,
-        };
-        let pick = |r: (f64, f64)| if self.observable == Observable::Cos2 { r.0 } else { r.1 };
-        match self.kind {
-            GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(tr.times_ps[0]) },
-            GoalKind::Mean => {
-                let (a, b) = (t_last + self.window_ps.0, t_last + self.window_ps.1);
-                if a >= run.field_free_from_ps() {
-                    Score { value: pick(run.mean_after(a, b)), t_ps: None }
-                } else {
-                    // Trapezoid over the samples (the window starts during a pulse).
-                    let n = series.len();
-                    let mut s = 0.0;
-                    for i in 1..n {
-                        s += 0.5 * (series[i] + series[i - 1]) * (tr.times_ps[i] - tr.times_ps[i - 1]);
-                    }
-                    Score { value: s / (tr.times_ps[n - 1] - tr.times_ps[0]), t_ps: None }
-                }
-            }
-            GoalKind::Peak | GoalKind::Minimum => {
-                let sense = self.sense();
-                let mut best = 0;
-                for i in 0..series.len() {
-                    if sense * series[i] > sense * series[best] {
-                        best = i;
-                    }
-                }
-                let t_best = tr.times_ps[best];
-                let dt = if series.len() > 1 { tr.times_ps[1] - tr.times_ps[0] } else { 0.0 };
-                let lo = (t_best - dt).max(tr.times_ps[0]);
-                let hi = (t_best + dt).min(*tr.times_ps.last().expect("samples"));
-                let mut score = Score { value: series[best], t_ps: Some(t_best) };
-                if dt > 0.0 && lo >= run.field_free_from_ps() {
-                    let f = |t: f64| sense * pick(run.eval_after(t));
-                    let (t_opt, v) = golden_max(f, lo, hi, 1e-5);
-                    if v > sense * score.value {
-                        score = Score { value: sense * v, t_ps: Some(t_opt) };
-                    }
-                }
-                score
-            }
-        }
-    }
-}
-
-/// Maximum of a unimodal-ish f on [a, b] by golden-section search to tolerance `tol` (same unit as t).
-fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (f64, f64) {
-    let g = 0.5 * (5f64.sqrt() - 1.0);
-    let mut c = b - g * (b - a);
-    let mut d = a + g * (b - a);
-    let (mut fc, mut fd) = (f(c), f(d));
-    while (b - a).abs() > tol {
-        if fc > fd {
-            b = d;
-            d = c;
-            fd = fc;
-            c = b - g * (b - a);
-            fc = f(c);
-        } else {
-            a = c;
-            c = d;
-            fc = fd;
-            d = a + g * (b - a);
-            fd = f(d);
-        }
-    }
-    let t = 0.5 * (a + b);
-    (t, f(t))
-}
-
 /// Settings of the search.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SearchSettings {
@@ -492,6 +335,10 @@ impl Objective {
         let start = -(2.0 * widest).max(0.2);
         let stop = t_last + self.goal.window_ps.1.max(match self.goal.kind { GoalKind::ValueAt(t) => t, _ => 0.0 }) + 0.1 * self.goal.window_ps.1.abs().max(0.5);
         let mut s = self.base.clone();
+        // The design is reported with the full solver, never the kick model.
+        if s.solver.method == crate::scenario::Method::Kick {
+            s.solver.method = crate::scenario::Method::Auto;
+        }
         s.description = self.description.clone().map(|d| format!("Design: {d}"));
         s.field = field.clone();
         s.window = Window { start_ps: start, stop_ps: stop, step_fs: self.goal.step_fs.min(50.0) };
@@ -595,52 +442,6 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         }
     }
     Ok((space, variable))
-}
-
-fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
-    let mut f = Fields::new(v, path)?;
-    let kind_s = f.opt_str("kind", "\"peak\", \"value_at\", \"mean\" or \"minimum\"")?.unwrap_or("peak");
-    let observable = match f.opt_str("observable", "\"cos2\" or \"cos2_2d\"")?.unwrap_or("cos2") {
-        "cos2" => Observable::Cos2,
-        "cos2_2d" => Observable::Cos2TwoD,
-        other => return Err(Error::input(join(path, "observable"), format!("expected \"cos2\" or \"cos2_2d\", got \"{other}\""))),
-    };
-    let at = f.opt_f64("at_ps", "ps after the last pulse centre")?;
-    let window = match f.opt_value("window_ps") {
-        None => None,
-        Some(Value::Array(a)) if a.len() == 2 => {
-            let p = join(path, "window_ps");
-            Some((as_f64(&a[0], &format!("{p}[0]"), "ps")?, as_f64(&a[1], &format!("{p}[1]"), "ps")?))
-        }
-        Some(other) => return Err(Error::input(join(path, "window_ps"), format!("expected [start_ps, stop_ps] after the last pulse centre, got {other}"))),
-    };
-    let step_fs = f.opt_f64("step_fs", "fs")?.unwrap_or(10.0);
-    f.finish()?;
-    require_positive(&join(path, "step_fs"), step_fs, "fs")?;
-    let kind = match kind_s {
-        "peak" => GoalKind::Peak,
-        "mean" => GoalKind::Mean,
-        "minimum" => GoalKind::Minimum,
-        "value_at" => GoalKind::ValueAt(at.ok_or_else(|| Error::input(join(path, "at_ps"), "missing; expected the time (ps) after the last pulse centre for kind \"value_at\""))?),
-        other => return Err(Error::input(join(path, "kind"), format!("expected \"peak\", \"value_at\", \"mean\" or \"minimum\", got \"{other}\""))),
-    };
-    let window_ps = match (kind, window) {
-        (GoalKind::ValueAt(t), _) => (t, t),
-        (_, Some(w)) => w,
-        (_, None) => return Err(Error::input(join(path, "window_ps"), "missing; expected [start_ps, stop_ps] after the last pulse centre")),
-    };
-    if !matches!(kind, GoalKind::ValueAt(_)) {
-        if window_ps.1 <= window_ps.0 {
-            return Err(Error::input(join(path, "window_ps"), format!("expected stop > start, got [{}, {}]", window_ps.0, window_ps.1)));
-        }
-        if (window_ps.1 - window_ps.0) * 1000.0 / step_fs > 200_000.0 {
-            return Err(Error::input(join(path, "step_fs"), "the goal window would hold more than 200000 samples; expected a larger step_fs"));
-        }
-    }
-    if window_ps.0 < 0.0 {
-        return Err(Error::input(join(path, if matches!(kind, GoalKind::ValueAt(_)) { "at_ps" } else { "window_ps" }), "expected times ≥ 0 after the last pulse centre"));
-    }
-    Ok(Goal { kind, observable, window_ps, step_fs })
 }
 
 fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {

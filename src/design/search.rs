@@ -87,6 +87,8 @@ struct Evaluator<'a> {
     kick_count: AtomicUsize,
     full_count: AtomicUsize,
     best: Mutex<Vec<Option<(f64, FieldModel)>>>,
+    /// Best value within the current stage (reset when a stage starts).
+    stage_best: Mutex<Option<f64>>,
     history: Mutex<Vec<HistoryPoint>>,
     stage: Mutex<String>,
     monitor: &'a dyn Monitor,
@@ -115,6 +117,7 @@ impl<'a> Evaluator<'a> {
             kick_count: AtomicUsize::new(0),
             full_count: AtomicUsize::new(0),
             best: Mutex::new(vec![None, None]),
+            stage_best: Mutex::new(None),
             history: Mutex::new(vec![]),
             stage: Mutex::new(String::new()),
             monitor,
@@ -125,36 +128,48 @@ impl<'a> Evaluator<'a> {
         self.kick_count.load(Ordering::Relaxed) + self.full_count.load(Ordering::Relaxed)
     }
 
-    /// Score a train with the kick model (`full` false) or the full solver.
+    /// Score a train with the kick model (`full` false) or the full solver, recording progress.
     fn score(&self, field: &FieldModel, full: bool) -> Result<Score> {
+        self.score_with(field, full, true)
+    }
+
+    /// Score a train; `record` false leaves the best-so-far and the history untouched.
+    fn score_with(&self, field: &FieldModel, full: bool, record: bool) -> Result<Score> {
         let goal = &self.obj.goal;
-        let t_last = field.pulses.last().map(|p| p.center_ps).unwrap_or(0.0);
+        let t_last = field.pulses.iter().map(|p| p.center_ps).reduce(f64::max).unwrap_or(0.0);
         let times = goal.times(t_last);
         let solver = if full { &self.full } else { &self.kick };
         let run = solver.run(field, &times, self.with_2d)?;
-        let s = goal.score(&run, t_last);
+        let s = crate::observe::score_goal(goal, &run.trace, &run.final_sums, t_last);
         let counter = if full { &self.full_count } else { &self.kick_count };
         counter.fetch_add(1, Ordering::Relaxed);
         let n = self.evaluations();
-        {
+        if record {
             let mut best = self.best.lock().expect("lock");
             let slot = &mut best[usize::from(full)];
-            let better = match slot {
-                None => true,
-                Some((v, _)) => goal.sense() * s.value > goal.sense() * *v,
-            };
-            if better {
+            if slot.as_ref().map(|(v, _)| goal.sense() * s.value > goal.sense() * *v).unwrap_or(true) {
                 *slot = Some((s.value, field.clone()));
+            }
+            let mut sb = self.stage_best.lock().expect("lock");
+            if sb.map(|v| goal.sense() * s.value > goal.sense() * v).unwrap_or(true) {
+                *sb = Some(s.value);
                 let stage = self.stage.lock().expect("lock").clone();
                 self.history.lock().expect("lock").push(HistoryPoint { evaluation: n, stage, best: s.value });
             }
-            let shown = slot.as_ref().map(|b| b.0);
-            self.monitor.evaluated(n, shown);
+            self.monitor.evaluated(n, *sb);
         }
         Ok(s)
     }
 
     fn set_stage(&self, name: &str, planned: usize) {
+        // Close the previous stage's curve at its last evaluation, then start a new one.
+        let mut sb = self.stage_best.lock().expect("lock");
+        if let Some(v) = *sb {
+            let stage = self.stage.lock().expect("lock").clone();
+            self.history.lock().expect("lock").push(HistoryPoint { evaluation: self.evaluations(), stage, best: v });
+        }
+        *sb = None;
+        drop(sb);
         *self.stage.lock().expect("lock") = name.to_string();
         self.monitor.stage(name, planned);
     }
@@ -267,7 +282,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
     if space.dims() == 0 {
         candidates.push((vec![], 0.0));
     } else {
-        ev.set_stage(&format!("{label}: kick-model swarm"), starts * swarm_size * (iterations + 1));
+        ev.set_stage(&format!("{label} · kick swarm"), starts * swarm_size * (iterations + 1));
         for s in 0..starts {
             if ev.monitor.interrupted() {
                 break;
@@ -278,7 +293,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
         if candidates.is_empty() {
             return Err(Error::Interrupted);
         }
-        ev.set_stage(&format!("{label}: kick-model simplex"), candidates.len() * st.refine_iterations * 2);
+        ev.set_stage(&format!("{label} · kick simplex"), candidates.len() * st.refine_iterations * 2);
         let mut refined = vec![];
         for (u, c) in &candidates {
             if ev.monitor.interrupted() {
@@ -300,7 +315,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
     }
     // Stage two: the full solver scores the best candidates and refines the best of them.
     let keep = candidates.len().min(st.refine_candidates.max(1));
-    ev.set_stage(&format!("{label}: full-solver refinement"), keep + st.refine_iterations * 2);
+    ev.set_stage(&format!("{label} · full solver"), keep + st.refine_iterations * 2);
     let mut best: Option<(Vec<f64>, Score)> = None;
     for (u, _) in candidates.iter().take(keep) {
         if ev.monitor.interrupted() && best.is_some() {
@@ -323,7 +338,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
         }
     }
     let field = space.field(&u);
-    let kick = ev.score(&field, false)?;
+    let kick = ev.score_with(&field, false, false)?;
     Ok(Candidate { field, kick, full })
 }
 
@@ -337,7 +352,7 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let mut interrupted = false;
     for &c in &counts {
         let space = obj.space.truncated(c);
-        match search_space(&ev, &space, &format!("{c} pulse(s)"), obj.search.seed.wrapping_add(c as u64 * 7919), obj, false) {
+        match search_space(&ev, &space, &if c == 1 { "1 pulse".to_string() } else { format!("{c} pulses") }, obj.search.seed.wrapping_add(c as u64 * 7919), obj, false) {
             Ok(cand) => per_count.push(cand),
             Err(Error::Interrupted) => {
                 interrupted = true;
@@ -372,11 +387,12 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
             let field = base_space.field(&vec![1.0; base_space.dims()]);
             Candidate { kick: ev.score(&field, false)?, full: ev.score(&field, true)?, field }
         } else {
-            search_space(&ev, &base_space, "single-pulse baseline", obj.search.seed.wrapping_add(17), obj, true)?
+            search_space(&ev, &base_space, "baseline", obj.search.seed.wrapping_add(17), obj, true)?
         }
     } else {
         per_count[0].clone()
     };
+    ev.set_stage("done", 0);
     let mut history = ev.history.lock().expect("lock").clone();
     history.sort_by_key(|h| h.evaluation);
     Ok(DesignResult {

@@ -1,6 +1,7 @@
 //! Observables and traces. After the last field interaction, expectation values follow exactly from
 //! the density matrix by sums over coherences: ⟨O⟩(t) = Σ_nm ρ_nm O_mn exp(−i(ω_n − ω_m)(t − t0)).
 
+use crate::goal::{Goal, GoalKind, Observable, Score};
 use crate::propagate::{BlockOps, BlockState};
 
 /// One block's share of the coherence sums: ρ_nm O_mn for the block's levels, labelled by J.
@@ -303,3 +304,81 @@ impl Trace {
         })
     }
 }
+
+/// Score a goal from a trace sampled at `goal.times(t_last)` and the ensemble's coherence sums after
+/// the last pulse. Peaks and minima found on the grid are refined by golden-section search on the
+/// exact field-free expression where it applies; means use the exact time average when the window is
+/// field-free.
+pub fn score_goal(goal: &Goal, trace: &Trace, after: &LevelSums, t_last: f64) -> Score {
+    let series = match goal.observable {
+        Observable::Cos2 => &trace.cos2,
+        Observable::Cos2TwoD => &trace.cos2_2d,
+    };
+    let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
+    let field_free = after.t0_ps;
+    match goal.kind {
+        GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(trace.times_ps[0]) },
+        GoalKind::Mean => {
+            let (a, b) = (t_last + goal.window_ps.0, t_last + goal.window_ps.1);
+            if a >= field_free {
+                Score { value: pick(after.mean_over(a, b)), t_ps: None }
+            } else {
+                // Trapezoid over the samples (the window starts during a pulse).
+                let n = series.len();
+                let mut s = 0.0;
+                for i in 1..n {
+                    s += 0.5 * (series[i] + series[i - 1]) * (trace.times_ps[i] - trace.times_ps[i - 1]);
+                }
+                Score { value: s / (trace.times_ps[n - 1] - trace.times_ps[0]), t_ps: None }
+            }
+        }
+        GoalKind::Peak | GoalKind::Minimum => {
+            let sense = goal.sense();
+            let mut best = 0;
+            for i in 0..series.len() {
+                if sense * series[i] > sense * series[best] {
+                    best = i;
+                }
+            }
+            let t_best = trace.times_ps[best];
+            let dt = if series.len() > 1 { trace.times_ps[1] - trace.times_ps[0] } else { 0.0 };
+            let lo = (t_best - dt).max(trace.times_ps[0]);
+            let hi = (t_best + dt).min(*trace.times_ps.last().expect("samples"));
+            let mut score = Score { value: series[best], t_ps: Some(t_best) };
+            if dt > 0.0 && lo >= field_free {
+                let f = |t: f64| sense * pick(after.eval(t));
+                let (t_opt, v) = golden_max(f, lo, hi, 1e-5);
+                if v > sense * score.value {
+                    score = Score { value: sense * v, t_ps: Some(t_opt) };
+                }
+            }
+            score
+        }
+    }
+}
+
+/// Maximum of a unimodal-ish f on [a, b] by golden-section search to tolerance `tol` (same unit as t).
+fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (f64, f64) {
+    let g = 0.5 * (5f64.sqrt() - 1.0);
+    let mut c = b - g * (b - a);
+    let mut d = a + g * (b - a);
+    let (mut fc, mut fd) = (f(c), f(d));
+    while (b - a).abs() > tol {
+        if fc > fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - g * (b - a);
+            fc = f(c);
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + g * (b - a);
+            fd = f(d);
+        }
+    }
+    let t = 0.5 * (a + b);
+    (t, f(t))
+}
+

@@ -1,5 +1,6 @@
 //! Reports: the summary (JSON), traces (CSV) and plots (SVG) written to an output folder.
 
+pub mod design;
 pub mod svg;
 
 use crate::error::{Error, Result};
@@ -85,6 +86,11 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         "permanent_cos2": num(r.permanent_cos2),
         "permanent_cos2_2d": num(r.permanent_cos2_2d),
         "revival_period_ps": revival_period_ps(s.molecule.b_cm),
+        "goal": match (&s.goal, &sim.goal_score) {
+            (Some(g), Some(sc)) => json!({"kind": g.kind_name(), "observable": g.observable.name(), "value": num(sc.value),
+                "t_ps": sc.t_ps, "relative_to_last_pulse_center_ps": s.last_pulse_center_ps()}),
+            _ => Value::Null,
+        },
         "thermal": {"initial_states": sim.initial_states, "discarded_population": sim.discarded_population,
             "tolerance": s.solver.thermal_tolerance},
         "basis": {"edge_tolerance": s.solver.edge_tolerance, "max_edge_population": max_edge,

@@ -1,0 +1,148 @@
+//! Reports of a design search: the replayable design, its summary, traces, history and plots.
+
+use super::{num, svg, trace_csv, write_file, LASER_SAFETY};
+use crate::design::search::{Candidate, DesignResult, COUNT_GAIN_THRESHOLD};
+use crate::design::{fluence_jcm2, Objective};
+use crate::error::Result;
+use crate::field::FieldModel;
+use crate::simulate::{simulate, Simulation};
+use serde_json::{json, Value};
+use std::path::Path;
+
+fn pulses_json(obj: &Objective, field: &FieldModel) -> Vec<Value> {
+    let da = obj.molecule().delta_alpha_a3();
+    field
+        .pulses
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            json!({
+                "pulse": i + 1,
+                "center_ps": p.center_ps,
+                "delay_after_previous_ps": if i == 0 { Value::Null } else { json!(p.center_ps - field.pulses[i - 1].center_ps) },
+                "peak_intensity_wcm2": p.peak_intensity_wcm2,
+                "fraction_of_ceiling": p.peak_intensity_wcm2 / obj.space.max_peak_intensity_wcm2,
+                "fwhm_fs": p.fwhm_fs,
+                "shape": p.shape,
+                "kick_strength": p.kick_strength(da),
+                "fluence_jcm2": fluence_jcm2(p),
+            })
+        })
+        .collect()
+}
+
+fn candidate_json(obj: &Objective, c: &Candidate) -> Value {
+    json!({
+        "score": num(c.full.value), "time_ps": c.full.t_ps,
+        "kick_model_score": num(c.kick.value), "kick_model_time_ps": c.kick.t_ps,
+        "pulses": pulses_json(obj, &c.field),
+    })
+}
+
+/// The summary of a design search as JSON.
+pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
+    let g = &obj.goal;
+    let best = &r.best;
+    json!({
+        "kicktrain_version": env!("CARGO_PKG_VERSION"),
+        "description": obj.description,
+        "molecule": obj.molecule().name,
+        "temperature_k": obj.base.temperature_k,
+        "goal": g.to_value(),
+        "observable": g.observable.name(),
+        "score": num(best.full.value),
+        "score_time_ps": best.full.t_ps,
+        "kick_model_score": num(best.kick.value),
+        "kick_model_score_time_ps": best.kick.t_ps,
+        "full_minus_kick_model": num(best.full.value - best.kick.value),
+        "pulses": pulses_json(obj, &best.field),
+        "max_peak_intensity_wcm2": obj.space.max_peak_intensity_wcm2,
+        "max_total_fluence_jcm2": obj.space.max_total_fluence_jcm2,
+        "total_fluence_jcm2": best.field.pulses.iter().map(fluence_jcm2).sum::<f64>(),
+        "min_separation_ps": obj.space.min_separation_ps,
+        "single_pulse_baseline": candidate_json(obj, &r.baseline),
+        "gain_over_single_pulse": num(g.sense() * (best.full.value - r.baseline.full.value)),
+        "per_pulse_count": r.per_count.iter().map(|c| json!({"pulses": c.field.pulses.len(), "score": num(c.full.value), "kick_model_score": num(c.kick.value)})).collect::<Vec<_>>(),
+        "pulse_count_rule": if obj.variable_count { json!(format!("fewest pulses within {COUNT_GAIN_THRESHOLD} of the best score")) } else { Value::Null },
+        "evaluations": {"kick_model": r.kick_evaluations, "full_solver": r.full_evaluations},
+        "run_time_s": r.run_time_s,
+        "seed": obj.search.seed,
+        "interrupted": r.interrupted,
+        "laser_safety": LASER_SAFETY,
+    })
+}
+
+/// History as CSV: evaluation, stage, best value so far in that stage's model.
+pub fn history_csv(r: &DesignResult) -> String {
+    let mut out = String::from("evaluation,stage,best\n");
+    for h in &r.history {
+        out.push_str(&format!("{},\"{}\",{:.10}\n", h.evaluation, h.stage.replace('"', "'"), h.best));
+    }
+    out
+}
+
+/// Plot of the best value versus evaluations, one line per stage.
+pub fn convergence_plot(obj: &Objective, r: &DesignResult) -> svg::LinePlot {
+    let mut plot = svg::LinePlot::new("Search convergence", "objective evaluations", &format!("best {} ({})", obj.goal.kind_name(), obj.goal.observable.name()));
+    let mut stages: Vec<String> = vec![];
+    for h in &r.history {
+        if !stages.contains(&h.stage) {
+            stages.push(h.stage.clone());
+        }
+    }
+    for (i, st) in stages.iter().enumerate() {
+        let pts: Vec<_> = r.history.iter().filter(|h| &h.stage == st).collect();
+        let mut x: Vec<f64> = pts.iter().map(|h| h.evaluation as f64).collect();
+        let mut y: Vec<f64> = pts.iter().map(|h| h.best).collect();
+        if x.len() == 1 {
+            x.push(x[0]);
+            y.push(y[0]);
+        }
+        plot.series.push(svg::Series { label: st.clone(), x, y, color: svg::PALETTE[i % svg::PALETTE.len()].to_string(), dashed: st.contains("full"), width: 1.8 });
+    }
+    plot.subtitle = Some(format!("{} kick-model and {} full-solver evaluations, seed {}", r.kick_evaluations, r.full_evaluations, obj.search.seed));
+    plot
+}
+
+/// Replay the design and the baseline through `simulate`, then write design.json, summary.json,
+/// trace.csv, design.svg, history.csv and convergence.svg into `dir`. Returns the summary.
+pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Value> {
+    let mut scenario = obj.scenario_for(&r.best.field);
+    scenario.goal = Some(obj.goal);
+    // Put the time of the optimum on the output grid so the trace shows the reported value.
+    if let Some(t) = r.best.full.t_ps {
+        let step = scenario.window.step_fs / 1000.0;
+        let k = ((t - scenario.window.start_ps) / step).ceil();
+        scenario.window.start_ps = t - k * step;
+    }
+    let sim: Simulation = simulate(&scenario)?;
+    let mut base_scenario = scenario.clone();
+    base_scenario.field = r.baseline.field.clone();
+    base_scenario.goal = None;
+    let base: Simulation = simulate(&base_scenario)?;
+    let mut summary = design_summary(obj, r);
+    summary["replay_score"] = match sim.goal_score { Some(s) => num(s.value), None => Value::Null };
+    write_file(dir, "design.json", &(serde_json::to_string_pretty(&scenario.to_value()).expect("json") + "\n"))?;
+    write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
+    let extra: [(&str, &[f64]); 2] = [("baseline_cos2", &base.result.trace.cos2), ("baseline_cos2_2d", &base.result.trace.cos2_2d)];
+    write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
+    let mut plot = super::alignment_plot(&scenario, &sim.result.trace, "Optimized pulse train");
+    plot.y_label = "alignment".into();
+    let obs = obj.goal.observable;
+    let (base_series, label) = match obs {
+        crate::goal::Observable::Cos2 => (&base.result.trace.cos2, "best single pulse ⟨cos²θ⟩"),
+        crate::goal::Observable::Cos2TwoD => (&base.result.trace.cos2_2d, "best single pulse ⟨cos²θ_2D⟩"),
+    };
+    plot.series.push(svg::Series { label: label.into(), x: base.result.trace.times_ps.clone(), y: base_series.clone(), color: "#7f7f7f".into(), dashed: true, width: 1.2 });
+    if let Some(t) = r.best.full.t_ps {
+        plot.markers.push(svg::Marker { x0: t, x1: t, label: format!("optimum {:.4}", r.best.full.value), color: "#2a7f3f".into() });
+    }
+    plot.subtitle = Some(format!(
+        "{} at {} K; goal: {} {}; score {:.4} vs single pulse {:.4}",
+        obj.molecule().name, obj.base.temperature_k, obj.goal.kind_name(), obs.name(), r.best.full.value, r.baseline.full.value
+    ));
+    write_file(dir, "design.svg", &plot.to_svg())?;
+    write_file(dir, "history.csv", &history_csv(r))?;
+    write_file(dir, "convergence.svg", &convergence_plot(obj, r).to_svg())?;
+    Ok(summary)
+}
