@@ -87,9 +87,7 @@ impl Goal {
             }
         }
     }
-
 }
-
 
 impl Goal {
     /// The goal as JSON, readable by `parse_goal`.

@@ -307,8 +307,9 @@ impl Solver {
                     let stops = &times[ti..ti + inside];
                     let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect() };
                     let rate = |t: f64| sub.alignment_rate(t, da);
+                    let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
                     let base = ti;
-                    propagate_finite(&mut state, ops, &rate, e, *step_ps, stops, |i, st| values[base + i] = eval_now(st));
+                    propagate_finite(&mut state, ops, &rate, e, *step_ps, stops, &breaks, |i, st| values[base + i] = eval_now(st));
                     ti += inside;
                 }
             }

@@ -329,7 +329,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
     let (mut u, mut full) = best.expect("at least one candidate");
     if space.dims() > 0 && !ev.monitor.interrupted() {
         let (u2, c2) = simplex(ev, space, &u, true, if small { st.refine_iterations.min(15) } else { st.refine_iterations })?;
-        if -c2 * sense > full.value * sense + 0.0 && c2.is_finite() {
+        if c2.is_finite() && -c2 > sense * full.value {
             let s2 = ev.score(&space.field(&u2), true)?;
             if sense * s2.value >= sense * full.value {
                 u = u2;
@@ -378,19 +378,16 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let top = per_count.iter().map(|c| sense * c.full.value).fold(f64::NEG_INFINITY, f64::max);
     let best = per_count.iter().find(|c| sense * c.full.value >= top - COUNT_GAIN_THRESHOLD).cloned().expect("a candidate");
     // Baseline: one pulse, intensity up to the ceiling, the first pulse's duration bounds.
-    let baseline = if !obj.variable_count || per_count.len() < 1 || interrupted {
-        let base_space = DesignSpace {
-            pulses: vec![PulseBounds { delay_ps: Bounds::fixed(0.0), peak_intensity_wcm2: Bounds { min: 0.0, max: obj.space.max_peak_intensity_wcm2 }, fwhm_fs: obj.space.pulses[0].fwhm_fs }],
-            ..obj.space.clone()
-        };
-        if interrupted {
-            let field = base_space.field(&vec![1.0; base_space.dims()]);
-            Candidate { kick: ev.score(&field, false)?, full: ev.score(&field, true)?, field }
-        } else {
-            search_space(&ev, &base_space, "baseline", obj.search.seed.wrapping_add(17), obj, true)?
-        }
+    let base_space = DesignSpace {
+        pulses: vec![PulseBounds { delay_ps: Bounds::fixed(0.0), peak_intensity_wcm2: Bounds { min: 0.0, max: obj.space.max_peak_intensity_wcm2 }, fwhm_fs: obj.space.pulses[0].fwhm_fs }],
+        ..obj.space.clone()
+    };
+    let baseline = if interrupted || monitor.interrupted() {
+        // No time for a search: the single pulse at the ceiling (or at the fluence budget).
+        let field = base_space.field(&vec![1.0; base_space.dims()]);
+        Candidate { kick: ev.score_with(&field, false, false)?, full: ev.score_with(&field, true, false)?, field }
     } else {
-        per_count[0].clone()
+        search_space(&ev, &base_space, "baseline", obj.search.seed.wrapping_add(17), obj, true)?
     };
     ev.set_stage("done", 0);
     let mut history = ev.history.lock().expect("lock").clone();

@@ -139,7 +139,21 @@ impl Pulse {
             PulseShape::Gaussian => tau / (2.0 * (2.0 * std::f64::consts::LN_2).sqrt()),
             // sech²(t/T0): ⟨t²⟩ = π² T0² / 12.
             PulseShape::Sech2 => std::f64::consts::PI * tau / SECH2_FWHM_FACTOR / 12f64.sqrt(),
-            PulseShape::FlatTop => tau / 12f64.sqrt(),
+            PulseShape::FlatTop => {
+                // ⟨t²⟩ of the plateau with sin² edges, by Simpson quadrature over the (finite) support.
+                let half = 0.5 * tau + 0.5 * self.rise_ps();
+                let n = 400;
+                let h = 2.0 * half / n as f64;
+                let (mut m0, mut m2) = (0.0, 0.0);
+                for i in 0..=n {
+                    let x = -half + i as f64 * h;
+                    let wgt = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
+                    let f = self.envelope(self.center_ps + x);
+                    m0 += wgt * f;
+                    m2 += wgt * f * x * x;
+                }
+                (m2 / m0).sqrt()
+            }
         }
     }
 
@@ -267,6 +281,19 @@ mod tests {
             let ratio = p.envelope_area_ps() / p.fwhm_ps();
             let want = match shape { PulseShape::Gaussian => 1.0645, PulseShape::Sech2 => 1.1346, PulseShape::FlatTop => 1.0 };
             assert!((ratio - want).abs() < 1e-4, "{shape:?} {ratio}");
+            // RMS duration against brute-force quadrature of t² I(t).
+            let (a, b) = (p.center_ps - 20.0 * p.fwhm_ps(), p.center_ps + 20.0 * p.fwhm_ps());
+            let n = 200_000;
+            let h = (b - a) / n as f64;
+            let (mut m0, mut m2) = (0.0, 0.0);
+            for i in 0..=n {
+                let t = a + i as f64 * h;
+                let f = p.envelope(t);
+                m0 += f;
+                m2 += f * (t - p.center_ps).powi(2);
+            }
+            let rms = (m2 / m0).sqrt();
+            assert!((rms / p.rms_duration_ps() - 1.0).abs() < 1e-5, "{shape:?} rms {rms} vs {}", p.rms_duration_ps());
             // Negligible area outside the support.
             let (s, e) = p.support_ps();
             assert!(p.envelope(s) < 1e-9 && p.envelope(e) < 1e-9);

@@ -143,6 +143,16 @@ mod tests {
     }
 
     #[test]
+    fn library_names_and_aliases_are_unique() {
+        let mut seen = std::collections::HashSet::new();
+        for e in library() {
+            for n in std::iter::once(&e.name).chain(e.aliases.iter()) {
+                assert!(seen.insert(n.to_ascii_lowercase()), "name or alias {n} appears twice");
+            }
+        }
+    }
+
+    #[test]
     fn unknown_name_suggests() {
         let err = Molecule::from_library("N3", "molecule").unwrap_err().to_string();
         assert!(err.contains("N2"), "{err}");

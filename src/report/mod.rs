@@ -78,7 +78,7 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
             "delta_alpha_a3": da, "spin_weights_even_odd": s.molecule.spin_weights},
         "temperature_k": s.temperature_k,
         "pulses": pulses,
-        "field_free_from_ps": if after.is_finite() { json!(after) } else { Value::Null },
+        "after_last_pulse_from_ps": if after.is_finite() { json!(after) } else { Value::Null },
         "peak_cos2": extremum(tr.max_after(&tr.cos2, after)),
         "peak_cos2_2d": extremum(tr.max_after(&tr.cos2_2d, after)),
         "min_cos2": extremum(tr.min_after(&tr.cos2, after)),

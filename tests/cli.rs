@@ -1,0 +1,752 @@
+//! Integration tests that drive the built `kicktrain` binary: bad input must fail cleanly (exit code 2,
+//! a single "error: ..." line naming the offending field, nothing written, no panic), and the basic
+//! commands must work and write well-formed output.
+
+use serde_json::{json, Value};
+use std::path::{Path, PathBuf};
+use std::process::{Command, Stdio};
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::time::{Duration, Instant};
+
+const BIN: &str = env!("CARGO_BIN_EXE_kicktrain");
+
+/// A fresh, uniquely named scratch folder under the system temp dir, removed when dropped.
+struct Sandbox {
+    dir: PathBuf,
+}
+
+impl Sandbox {
+    fn new(tag: &str) -> Sandbox {
+        static COUNTER: AtomicUsize = AtomicUsize::new(0);
+        let n = COUNTER.fetch_add(1, Ordering::SeqCst);
+        let nanos = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_nanos()).unwrap_or(0);
+        let dir = std::env::temp_dir().join(format!("kicktrain-cli-{tag}-{}-{n}-{nanos}", std::process::id()));
+        std::fs::create_dir_all(&dir).expect("create sandbox");
+        Sandbox { dir }
+    }
+
+    /// Write `text` to a file in the sandbox and return its path.
+    fn write(&self, name: &str, text: &str) -> PathBuf {
+        let p = self.dir.join(name);
+        std::fs::write(&p, text).expect("write input");
+        p
+    }
+
+    /// The output folder the program is pointed at (never created by the test itself).
+    fn out(&self) -> PathBuf {
+        self.dir.join("out")
+    }
+}
+
+impl Drop for Sandbox {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.dir);
+    }
+}
+
+/// What one run of the binary produced.
+struct Run {
+    code: Option<i32>,
+    stdout: String,
+    stderr: String,
+    elapsed: Duration,
+}
+
+/// Run the binary with `args`, capturing stdout/stderr through files (no pipe deadlock on large output)
+/// and killing it if it runs longer than `limit`.
+fn run_with_limit(args: &[&str], limit: Duration) -> Run {
+    let scratch = Sandbox::new("io");
+    let so = scratch.dir.join("stdout");
+    let se = scratch.dir.join("stderr");
+    let start = Instant::now();
+    let mut child = Command::new(BIN)
+        .args(args)
+        .stdin(Stdio::null())
+        .stdout(std::fs::File::create(&so).expect("stdout file"))
+        .stderr(std::fs::File::create(&se).expect("stderr file"))
+        .spawn()
+        .expect("spawn kicktrain");
+    let status = loop {
+        if let Some(s) = child.try_wait().expect("wait") {
+            break s;
+        }
+        if start.elapsed() > limit {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("kicktrain {args:?} did not finish within {limit:?}");
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    };
+    let elapsed = start.elapsed();
+    Run {
+        code: status.code(),
+        stdout: std::fs::read_to_string(&so).unwrap_or_default(),
+        stderr: std::fs::read_to_string(&se).unwrap_or_default(),
+        elapsed,
+    }
+}
+
+fn run(args: &[&str]) -> Run {
+    run_with_limit(args, Duration::from_secs(120))
+}
+
+fn s(p: &Path) -> &str {
+    p.to_str().expect("utf-8 temp path")
+}
+
+/// The failure contract for bad input (common practice for CLIs): exit code 2, stderr exactly one line
+/// "error: ..." that contains `needle` (usually the field path), nothing on stdout, no panic, and the
+/// output folder never created.
+fn assert_clean_input_error(r: &Run, out: &Path, needle: &str) {
+    let ctx = format!("exit {:?}\n--- stdout ---\n{}\n--- stderr ---\n{}", r.code, r.stdout, r.stderr);
+    assert!(!r.stderr.contains("panicked"), "panic instead of an error\n{ctx}");
+    assert_eq!(r.code, Some(2), "expected exit code 2\n{ctx}");
+    let lines: Vec<&str> = r.stderr.lines().collect();
+    assert_eq!(lines.len(), 1, "expected exactly one line on stderr\n{ctx}");
+    assert!(lines[0].starts_with("error: "), "stderr must start with \"error: \"\n{ctx}");
+    assert!(lines[0].contains(needle), "error should mention {needle:?}\n{ctx}");
+    assert!(r.stdout.trim().is_empty(), "nothing should be printed on stdout for bad input\n{ctx}");
+    assert!(!out.exists(), "output folder {} must not be created on an error\n{ctx}", out.display());
+}
+
+/// Like `assert_clean_input_error`, and the message must start with "error: FIELD:" (the field path first).
+fn assert_field_error(r: &Run, out: &Path, field: &str) {
+    assert_clean_input_error(r, out, field);
+    let prefix = format!("error: {field}:");
+    assert!(r.stderr.starts_with(&prefix), "error should start with {prefix:?}, got {:?}", r.stderr);
+}
+
+// ---------------------------------------------------------------------------------------------------
+// Scenarios (`kicktrain simulate`)
+// ---------------------------------------------------------------------------------------------------
+
+/// A small, valid scenario used as the base of every bad-scenario case.
+fn good_scenario() -> Value {
+    json!({
+        "molecule": "N2",
+        "temperature_k": 300,
+        "pulses": [{"center_ps": 0.0, "fwhm_fs": 50, "peak_intensity_wcm2": 5e13}],
+        "window": {"start_ps": 0.2, "stop_ps": 12.0, "step_fs": 20}
+    })
+}
+
+/// A cheap scenario for the good paths: cold N2, one weak 100 fs pulse, a short coarse window.
+fn cheap_scenario() -> Value {
+    json!({
+        "molecule": "N2",
+        "temperature_k": 10,
+        "pulses": [{"center_ps": 0.0, "fwhm_fs": 100, "peak_intensity_wcm2": 1e13}],
+        "window": {"start_ps": 0.0, "stop_ps": 2.0, "step_fs": 50}
+    })
+}
+
+/// Run `simulate` on raw file text and check the bad-input contract with `field` leading the message.
+fn simulate_text_fails_on(tag: &str, text: &str, field: &str) {
+    let sb = Sandbox::new(tag);
+    let input = sb.write("scenario.json", text);
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_field_error(&r, &out, field);
+}
+
+/// Run `simulate` on a scenario value and return the run (for custom checks).
+fn simulate_value(tag: &str, v: &Value) -> (Run, Sandbox) {
+    let sb = Sandbox::new(tag);
+    let input = sb.write("scenario.json", &v.to_string());
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    (r, sb)
+}
+
+fn simulate_fails_on(tag: &str, v: &Value, field: &str) {
+    let (r, sb) = simulate_value(tag, v);
+    assert_field_error(&r, &sb.out(), field);
+}
+
+// Sanity check of the base used below: the unmodified scenario is accepted (parse only; we do not
+// run the 300 K case here, that is covered by the library tests).
+#[test]
+fn scenario_base_for_bad_cases_is_itself_valid() {
+    // Checks that failures below come from the one change made, not from a broken base.
+    let v = good_scenario();
+    kicktrain::scenario::Scenario::from_json_str(&v.to_string(), "base").expect("base scenario parses");
+}
+
+#[test]
+fn scenario_unknown_top_level_key() {
+    // Checks: a misspelled or extra top-level key is rejected and named, not silently ignored.
+    let mut v = good_scenario();
+    v["temprature"] = json!(300);
+    simulate_fails_on("unknown-top", &v, "temprature");
+    let (r, _sb) = simulate_value("unknown-top2", &v);
+    assert!(r.stderr.contains("unknown key"), "{}", r.stderr);
+}
+
+#[test]
+fn scenario_unknown_pulse_key() {
+    // Checks: an unknown key inside a pulse is named with its full path.
+    let mut v = good_scenario();
+    v["pulses"][0]["wavelength_nm"] = json!(800);
+    simulate_fails_on("unknown-pulse", &v, "pulses[0].wavelength_nm");
+}
+
+#[test]
+fn scenario_missing_molecule() {
+    // Checks: a required field that is absent is named ("molecule") and reported as missing.
+    let mut v = good_scenario();
+    v.as_object_mut().unwrap().remove("molecule");
+    simulate_fails_on("missing-molecule", &v, "molecule");
+    let (r, _sb) = simulate_value("missing-molecule2", &v);
+    assert!(r.stderr.contains("missing"), "{}", r.stderr);
+}
+
+#[test]
+fn scenario_missing_window() {
+    // Checks: the required window object, when absent, is named.
+    let mut v = good_scenario();
+    v.as_object_mut().unwrap().remove("window");
+    simulate_fails_on("missing-window", &v, "window");
+}
+
+#[test]
+fn scenario_wrong_type_string_for_number() {
+    // Checks: a string where a number is expected is rejected with the field path (no coercion).
+    let mut v = good_scenario();
+    v["pulses"][0]["fwhm_fs"] = json!("50");
+    simulate_fails_on("wrong-type", &v, "pulses[0].fwhm_fs");
+    let mut v = good_scenario();
+    v["temperature_k"] = json!("300");
+    simulate_fails_on("wrong-type-t", &v, "temperature_k");
+}
+
+#[test]
+fn scenario_negative_temperature() {
+    // Checks: a negative absolute temperature is rejected.
+    let mut v = good_scenario();
+    v["temperature_k"] = json!(-1.0);
+    simulate_fails_on("neg-temp", &v, "temperature_k");
+}
+
+#[test]
+fn scenario_number_beyond_f64_range() {
+    // Checks: a literal beyond the f64 range (1e400) never becomes an infinity that reaches the solver:
+    // the run fails cleanly with exit 2. serde_json rejects it while parsing ("number out of range"),
+    // so the message names the file and position rather than the field; either is accepted here.
+    let text = good_scenario().to_string().replace("\"temperature_k\":300", "\"temperature_k\":1e400");
+    assert!(text.contains("1e400"), "substitution failed: {text}");
+    let sb = Sandbox::new("huge");
+    let input = sb.write("scenario.json", &text);
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_clean_input_error(&r, &out, "error: ");
+    assert!(
+        r.stderr.contains("temperature_k") || r.stderr.contains("out of range"),
+        "error should name the field or say the number is out of range: {}",
+        r.stderr
+    );
+
+    // The same literal in a pulse field.
+    let text = r#"{"molecule":"N2","temperature_k":300,
+        "pulses":[{"center_ps":0.0,"fwhm_fs":50,"peak_intensity_wcm2":1e400}],
+        "window":{"start_ps":0.2,"stop_ps":12.0,"step_fs":20}}"#;
+    let sb = Sandbox::new("huge2");
+    let input = sb.write("scenario.json", text);
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_clean_input_error(&r, &out, "error: ");
+    assert!(
+        r.stderr.contains("peak_intensity_wcm2") || r.stderr.contains("out of range"),
+        "error should name the field or say the number is out of range: {}",
+        r.stderr
+    );
+}
+
+#[test]
+fn scenario_huge_but_finite_values_are_bounded() {
+    // Checks: finite but absurd magnitudes are refused by range checks, not fed to the solver.
+    let mut v = good_scenario();
+    v["temperature_k"] = json!(1e300);
+    simulate_fails_on("huge-temp", &v, "temperature_k");
+    let mut v = good_scenario();
+    v["pulses"][0]["peak_intensity_wcm2"] = json!(1e300);
+    simulate_fails_on("huge-int", &v, "pulses[0].peak_intensity_wcm2");
+    let mut v = good_scenario();
+    v["pulses"][0]["fwhm_fs"] = json!(1e300);
+    simulate_fails_on("huge-fwhm", &v, "pulses[0].fwhm_fs");
+    let mut v = good_scenario();
+    v["window"]["step_fs"] = json!(1e-300);
+    simulate_fails_on("tiny-step", &v, "window.step_fs");
+}
+
+#[test]
+fn scenario_zero_fwhm() {
+    // Checks: a pulse of zero duration is rejected.
+    let mut v = good_scenario();
+    v["pulses"][0]["fwhm_fs"] = json!(0);
+    simulate_fails_on("zero-fwhm", &v, "pulses[0].fwhm_fs");
+}
+
+#[test]
+fn scenario_negative_intensity() {
+    // Checks: a negative peak intensity is rejected.
+    let mut v = good_scenario();
+    v["pulses"][0]["peak_intensity_wcm2"] = json!(-5e13);
+    simulate_fails_on("neg-int", &v, "pulses[0].peak_intensity_wcm2");
+}
+
+#[test]
+fn scenario_window_stop_before_start() {
+    // Checks: a window that ends before it starts is rejected and the stop time is named.
+    let mut v = good_scenario();
+    v["window"]["stop_ps"] = json!(0.1);
+    simulate_fails_on("stop-before-start", &v, "window.stop_ps");
+    let mut v = good_scenario();
+    v["window"]["stop_ps"] = json!(0.2);
+    simulate_fails_on("stop-equals-start", &v, "window.stop_ps");
+}
+
+#[test]
+fn scenario_zero_step() {
+    // Checks: a zero sampling step (an endless window) is rejected.
+    let mut v = good_scenario();
+    v["window"]["step_fs"] = json!(0);
+    simulate_fails_on("zero-step", &v, "window.step_fs");
+}
+
+#[test]
+fn scenario_unknown_molecule_suggests_near_name() {
+    // Checks: an unknown library name is named and the message suggests the nearest real name.
+    let mut v = good_scenario();
+    v["molecule"] = json!("N3");
+    simulate_fails_on("n3", &v, "molecule");
+    let (r, _sb) = simulate_value("n3b", &v);
+    assert!(r.stderr.contains("N3"), "the error should quote the bad name: {}", r.stderr);
+    assert!(r.stderr.contains("N2"), "the error should suggest N2: {}", r.stderr);
+}
+
+fn inline_molecule() -> Value {
+    json!({"name": "test", "b_cm": 2.0, "alpha_parallel_a3": 2.4, "alpha_perpendicular_a3": 1.5, "spin_weights": [2, 1]})
+}
+
+#[test]
+fn scenario_inline_molecule_missing_b() {
+    // Checks: an inline molecule without its rotational constant names molecule.b_cm.
+    let mut m = inline_molecule();
+    m.as_object_mut().unwrap().remove("b_cm");
+    let mut v = good_scenario();
+    v["molecule"] = m;
+    simulate_fails_on("inline-no-b", &v, "molecule.b_cm");
+}
+
+#[test]
+fn scenario_inline_molecule_negative_alpha() {
+    // Checks: a negative polarizability volume is rejected with its path.
+    let mut m = inline_molecule();
+    m["alpha_parallel_a3"] = json!(-2.4);
+    let mut v = good_scenario();
+    v["molecule"] = m;
+    simulate_fails_on("inline-neg-alpha", &v, "molecule.alpha_parallel_a3");
+    let mut m = inline_molecule();
+    m["alpha_perpendicular_a3"] = json!(-1.0);
+    let mut v = good_scenario();
+    v["molecule"] = m;
+    simulate_fails_on("inline-neg-alpha-perp", &v, "molecule.alpha_perpendicular_a3");
+}
+
+#[test]
+fn scenario_inline_molecule_zero_spin_weights() {
+    // Checks: spin weights that remove every level ([0, 0]) are rejected.
+    let mut m = inline_molecule();
+    m["spin_weights"] = json!([0, 0]);
+    let mut v = good_scenario();
+    v["molecule"] = m;
+    simulate_fails_on("spin00", &v, "molecule.spin_weights");
+}
+
+#[test]
+fn scenario_unknown_pulse_shape() {
+    // Checks: an unsupported envelope name is rejected, with the accepted names in the message.
+    let mut v = good_scenario();
+    v["pulses"][0]["shape"] = json!("triangle");
+    simulate_fails_on("triangle", &v, "pulses[0].shape");
+    let (r, _sb) = simulate_value("triangle2", &v);
+    assert!(r.stderr.contains("gaussian"), "the error should list the accepted shapes: {}", r.stderr);
+}
+
+#[test]
+fn scenario_flat_top_rise_longer_than_fwhm() {
+    // Checks: a flat-top pulse whose edges are longer than the pulse itself is rejected.
+    let mut v = good_scenario();
+    v["pulses"][0]["shape"] = json!("flat_top");
+    v["pulses"][0]["fwhm_fs"] = json!(100);
+    v["pulses"][0]["rise_fs"] = json!(150);
+    simulate_fails_on("flat-rise", &v, "pulses[0].rise_fs");
+}
+
+#[test]
+fn scenario_not_json() {
+    // Checks: a file that is not JSON is reported against the file name, in one line.
+    let sb = Sandbox::new("not-json");
+    let input = sb.write("scenario.json", "molecule = N2\ntemperature_k = 300\n");
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_clean_input_error(&r, &out, s(&input));
+    assert!(r.stderr.contains("JSON"), "{}", r.stderr);
+}
+
+#[test]
+fn scenario_top_level_not_an_object() {
+    // Checks: valid JSON of the wrong shape (an array) is a clean input error.
+    let sb = Sandbox::new("array");
+    let input = sb.write("scenario.json", "[1, 2, 3]");
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_clean_input_error(&r, &out, "object");
+}
+
+#[test]
+fn scenario_empty_file() {
+    // Checks: an empty file is a clean input error naming the file.
+    let sb = Sandbox::new("empty");
+    let input = sb.write("scenario.json", "");
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_clean_input_error(&r, &out, s(&input));
+}
+
+#[test]
+fn scenario_nonexistent_file() {
+    // Checks: a path that does not exist gives exit 2 and names the path.
+    let sb = Sandbox::new("nofile");
+    let input = sb.dir.join("does-not-exist.json");
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_clean_input_error(&r, &out, s(&input));
+}
+
+#[test]
+fn bad_scenario_leaves_an_existing_out_dir_untouched() {
+    // Checks: when --out already exists, an input error writes nothing into it.
+    let sb = Sandbox::new("existing-out");
+    let out = sb.out();
+    std::fs::create_dir_all(&out).unwrap();
+    let mut v = good_scenario();
+    v["pulses"][0]["fwhm_fs"] = json!(0);
+    let input = sb.write("scenario.json", &v.to_string());
+    let r = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_eq!(r.code, Some(2), "{}", r.stderr);
+    let left: Vec<_> = std::fs::read_dir(&out).unwrap().collect();
+    assert!(left.is_empty(), "files written despite the error: {left:?}");
+}
+
+// ---------------------------------------------------------------------------------------------------
+// Objectives (`kicktrain design FILE --out DIR --quiet`)
+// ---------------------------------------------------------------------------------------------------
+
+/// A small, valid objective (cold N2, two pulses, a tiny search) used as the base of the bad cases.
+fn good_objective() -> Value {
+    json!({
+        "molecule": "N2",
+        "temperature_k": 10,
+        "pulses": {
+            "count": 2,
+            "fwhm_fs": 100,
+            "delay_ps": {"min": 0.2, "max": 2.0},
+            "peak_intensity_wcm2": {"min": 0, "max": 1e13}
+        },
+        "max_peak_intensity_wcm2": 1e13,
+        "min_separation_ps": 0.2,
+        "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.05, 2.0], "step_fs": 50},
+        "search": {"seed": 1, "swarm_size": 2, "iterations": 1, "starts": 1, "refine_candidates": 1, "refine_iterations": 0}
+    })
+}
+
+fn design_value(tag: &str, v: &Value, limit: Duration) -> (Run, Sandbox) {
+    let sb = Sandbox::new(tag);
+    let input = sb.write("objective.json", &v.to_string());
+    let out = sb.out();
+    let r = run_with_limit(&["design", s(&input), "--out", s(&out), "--quiet"], limit);
+    (r, sb)
+}
+
+/// Infeasible or malformed objectives are rejected while reading, so a few seconds is ample.
+fn design_fails_on(tag: &str, v: &Value, field: &str) -> Run {
+    let (r, sb) = design_value(tag, v, Duration::from_secs(60));
+    assert_field_error(&r, &sb.out(), field);
+    r
+}
+
+#[test]
+fn objective_base_for_bad_cases_is_itself_valid() {
+    // Checks that failures below come from the one change made, not from a broken base.
+    kicktrain::design::Objective::from_json_str(&good_objective().to_string(), "base").expect("base objective parses");
+}
+
+#[test]
+fn objective_count_zero() {
+    // Checks: a train of zero pulses is rejected.
+    let mut v = good_objective();
+    v["pulses"]["count"] = json!(0);
+    design_fails_on("count0", &v, "pulses.count");
+}
+
+#[test]
+fn objective_count_and_max_count() {
+    // Checks: the two ways of giving the pulse count are mutually exclusive.
+    let mut v = good_objective();
+    v["pulses"]["max_count"] = json!(3);
+    let r = design_fails_on("both-counts", &v, "pulses.max_count");
+    assert!(r.stderr.contains("count"), "{}", r.stderr);
+}
+
+#[test]
+fn objective_delay_max_below_min() {
+    // Checks: inverted delay bounds are rejected and the max is named.
+    let mut v = good_objective();
+    v["pulses"]["delay_ps"] = json!({"min": 2.0, "max": 1.0});
+    design_fails_on("delay-inverted", &v, "pulses.delay_ps.max");
+}
+
+#[test]
+fn objective_delay_below_min_separation_is_infeasible_before_search() {
+    // Checks: delay bounds that the minimum separation makes empty are reported as infeasible while
+    // reading the file, before any search (so the run returns quickly).
+    let mut v = good_objective();
+    v["pulses"]["delay_ps"] = json!({"min": 0.1, "max": 0.3});
+    v["min_separation_ps"] = json!(0.5);
+    // A search big enough to take far longer than the limit if it were started.
+    v["search"] = json!({"seed": 1, "swarm_size": 500, "iterations": 5000, "starts": 50, "refine_candidates": 50, "refine_iterations": 5000});
+    let (r, sb) = design_value("delay-vs-sep", &v, Duration::from_secs(30));
+    assert_clean_input_error(&r, &sb.out(), "delay_ps");
+    assert!(r.stderr.contains("no feasible"), "expected \"no feasible\" wording: {}", r.stderr);
+    assert!(r.elapsed < Duration::from_secs(3), "infeasibility should be found before any search, took {:?}", r.elapsed);
+}
+
+#[test]
+fn objective_intensity_min_above_ceiling() {
+    // Checks: a lower intensity bound above the global ceiling is infeasible and named.
+    let mut v = good_objective();
+    v["pulses"]["peak_intensity_wcm2"] = json!({"min": 2e13, "max": 3e13});
+    let r = design_fails_on("int-above-ceiling", &v, "pulses.each[0].peak_intensity_wcm2");
+    assert!(r.stderr.contains("no feasible"), "{}", r.stderr);
+}
+
+#[test]
+fn objective_fluence_budget_below_minimum_pulses() {
+    // Checks: a fluence budget smaller than the weakest allowed pulses need is infeasible and named.
+    let mut v = good_objective();
+    v["pulses"]["peak_intensity_wcm2"] = json!({"min": 5e12, "max": 1e13});
+    v["max_total_fluence_jcm2"] = json!(1e-6);
+    let r = design_fails_on("fluence", &v, "max_total_fluence_jcm2");
+    assert!(r.stderr.contains("no feasible"), "{}", r.stderr);
+}
+
+#[test]
+fn objective_unknown_goal_kind() {
+    // Checks: an unsupported goal kind is rejected with the accepted kinds listed.
+    let mut v = good_objective();
+    v["goal"]["kind"] = json!("best");
+    let r = design_fails_on("kind-best", &v, "goal.kind");
+    assert!(r.stderr.contains("peak"), "{}", r.stderr);
+}
+
+#[test]
+fn objective_value_at_without_time() {
+    // Checks: a value_at goal needs its time at_ps.
+    let mut v = good_objective();
+    v["goal"] = json!({"kind": "value_at", "observable": "cos2"});
+    design_fails_on("value-at", &v, "goal.at_ps");
+}
+
+#[test]
+fn objective_goal_window_stop_not_after_start() {
+    // Checks: a goal window with stop ≤ start is rejected.
+    let mut v = good_objective();
+    v["goal"]["window_ps"] = json!([2.0, 1.0]);
+    design_fails_on("goal-window", &v, "goal.window_ps");
+    let mut v = good_objective();
+    v["goal"]["window_ps"] = json!([1.0, 1.0]);
+    design_fails_on("goal-window-eq", &v, "goal.window_ps");
+}
+
+#[test]
+fn objective_swarm_size_zero() {
+    // Checks: a search with no particles is rejected.
+    let mut v = good_objective();
+    v["search"]["swarm_size"] = json!(0);
+    design_fails_on("swarm0", &v, "search.swarm_size");
+}
+
+#[test]
+fn objective_unknown_key() {
+    // Checks: unknown keys in an objective are rejected like in a scenario.
+    let mut v = good_objective();
+    v["pulses"]["cuont"] = json!(2);
+    design_fails_on("obj-unknown", &v, "pulses.cuont");
+}
+
+#[test]
+fn objective_nonexistent_file() {
+    // Checks: a missing objective file gives exit 2 and names the path.
+    let sb = Sandbox::new("obj-nofile");
+    let input = sb.dir.join("missing-objective.json");
+    let out = sb.out();
+    let r = run(&["design", s(&input), "--out", s(&out), "--quiet"]);
+    assert_clean_input_error(&r, &out, s(&input));
+}
+
+// ---------------------------------------------------------------------------------------------------
+// Good paths
+// ---------------------------------------------------------------------------------------------------
+
+#[test]
+fn molecules_lists_the_library() {
+    // Checks: `kicktrain molecules` succeeds and prints a table of at least 8 molecules, N2 among them.
+    let r = run(&["molecules"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let mut lines = r.stdout.lines();
+    let header = lines.next().expect("a header line");
+    assert!(header.starts_with("name"), "unexpected header: {header}");
+    let rows: Vec<&str> = lines.take_while(|l| !l.trim().is_empty()).collect();
+    assert!(rows.len() >= 8, "expected at least 8 molecules, got {}:\n{}", rows.len(), r.stdout);
+    assert!(rows.iter().any(|l| l.split_whitespace().next() == Some("N2")), "N2 missing:\n{}", r.stdout);
+    assert!(!r.stdout.contains("NaN"), "{}", r.stdout);
+}
+
+#[test]
+fn molecules_json_has_a_source_for_every_constant() {
+    // Checks: `molecules --json` is valid JSON, the same names as the table, and every constant carries
+    // a non-empty source.
+    let r = run(&["molecules", "--json"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let v: Value = serde_json::from_str(&r.stdout).expect("molecules --json prints JSON");
+    let list = v.as_array().expect("a JSON array of molecules");
+    assert!(list.len() >= 8, "expected at least 8 molecules, got {}", list.len());
+    let table = run(&["molecules"]).stdout;
+    for m in list {
+        let name = m["name"].as_str().expect("every molecule has a name");
+        assert!(table.lines().any(|l| l.split_whitespace().next() == Some(name)), "{name} missing from the table");
+        for key in ["b_cm", "d_cm", "alpha_parallel_a3", "alpha_perpendicular_a3", "spin_weights"] {
+            let c = &m[key];
+            assert!(!c["value"].is_null(), "{name}.{key} has no value: {m}");
+            let src = c["source"].as_str().unwrap_or("");
+            assert!(!src.trim().is_empty(), "{name}.{key} has no source: {m}");
+        }
+        // Any other constant given as {value, source} must also carry a source.
+        for (k, c) in m.as_object().unwrap() {
+            if c.get("value").is_some() {
+                assert!(c["source"].as_str().is_some_and(|t| !t.trim().is_empty()), "{name}.{k} has no source");
+            }
+        }
+    }
+}
+
+/// Check one CSV trace: the header, finite numbers on every row, values within [0, 1].
+fn check_trace(csv: &str, expected_rows: Option<usize>) {
+    assert!(!csv.to_ascii_lowercase().contains("nan"), "NaN in trace.csv");
+    assert!(!csv.to_ascii_lowercase().contains("inf"), "infinity in trace.csv");
+    let mut lines = csv.lines();
+    assert_eq!(lines.next(), Some("t_ps,cos2,cos2_2d"), "trace.csv header");
+    let mut n = 0;
+    for line in lines.filter(|l| !l.trim().is_empty()) {
+        let cols: Vec<f64> = line.split(',').map(|c| c.trim().parse::<f64>().unwrap_or_else(|_| panic!("bad number in row {line:?}"))).collect();
+        assert_eq!(cols.len(), 3, "row {line:?}");
+        assert!(cols.iter().all(|x| x.is_finite()), "row {line:?}");
+        for &c in &cols[1..] {
+            assert!((-1e-9..=1.0 + 1e-9).contains(&c), "alignment value outside [0, 1] in row {line:?}");
+        }
+        n += 1;
+    }
+    if let Some(e) = expected_rows {
+        assert_eq!(n, e, "rows in trace.csv");
+    }
+}
+
+#[test]
+fn simulate_writes_summary_trace_and_plot() {
+    // Checks: a cheap scenario runs, exits 0, and --out writes summary.json (with the laser-safety
+    // note), trace.csv (exact header, 0–2 ps at 50 fs inclusive = 41 rows, no NaN) and alignment.svg.
+    let (r, sb) = simulate_value("sim-ok", &cheap_scenario());
+    assert_eq!(r.code, Some(0), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    assert!(!r.stderr.contains("panicked"));
+    let out = sb.out();
+    let summary_text = std::fs::read_to_string(out.join("summary.json")).expect("summary.json written");
+    assert!(summary_text.contains("laser_safety"), "summary.json lacks laser_safety");
+    let summary: Value = serde_json::from_str(&summary_text).expect("summary.json is JSON");
+    assert!(summary["laser_safety"].as_str().is_some_and(|t| !t.is_empty()));
+    assert!(!summary_text.contains("NaN"));
+    let csv = std::fs::read_to_string(out.join("trace.csv")).expect("trace.csv written");
+    check_trace(&csv, Some(41));
+    let svg = std::fs::read_to_string(out.join("alignment.svg")).expect("alignment.svg written");
+    assert!(svg.contains("<svg"), "alignment.svg is not SVG");
+    assert!(!svg.contains("NaN"), "NaN in alignment.svg");
+    assert!(!r.stdout.contains("NaN"), "NaN in the printed summary:\n{}", r.stdout);
+}
+
+#[test]
+fn simulate_json_prints_parseable_json() {
+    // Checks: `simulate --json` prints only JSON on stdout (parseable as a whole), with and without --out.
+    let sb = Sandbox::new("sim-json");
+    let input = sb.write("scenario.json", &cheap_scenario().to_string());
+    let r = run(&["simulate", s(&input), "--json"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let v: Value = serde_json::from_str(&r.stdout).expect("simulate --json prints JSON");
+    assert!(v.get("laser_safety").is_some(), "{v}");
+    assert!(!sb.out().exists(), "nothing is written without --out");
+
+    let out = sb.out();
+    let r = run(&["simulate", s(&input), "--json", "--out", s(&out)]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let w: Value = serde_json::from_str(&r.stdout).expect("simulate --json --out prints only JSON");
+    let file: Value = serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(w["molecule"], file["molecule"], "printed and written summaries agree");
+}
+
+#[test]
+fn design_tiny_search_writes_a_replayable_design() {
+    // Checks: a tiny design run succeeds, writes its documented files, and design.json replays
+    // through `simulate` (the design file is a valid scenario).
+    let (r, sb) = design_value("design-ok", &good_objective(), Duration::from_secs(120));
+    assert_eq!(r.code, Some(0), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    let out = sb.out();
+    for f in ["design.json", "summary.json", "trace.csv", "design.svg", "history.csv", "convergence.svg"] {
+        assert!(out.join(f).is_file(), "{f} not written");
+    }
+    let summary = std::fs::read_to_string(out.join("summary.json")).unwrap();
+    assert!(summary.contains("laser_safety"));
+    serde_json::from_str::<Value>(&summary).expect("summary.json is JSON");
+    let csv = std::fs::read_to_string(out.join("trace.csv")).unwrap();
+    assert!(!csv.to_ascii_lowercase().contains("nan"), "NaN in the design trace");
+    let replay_out = sb.dir.join("replay");
+    let r2 = run(&["simulate", s(&out.join("design.json")), "--out", s(&replay_out)]);
+    assert_eq!(r2.code, Some(0), "replay failed: {}", r2.stderr);
+    assert!(replay_out.join("trace.csv").is_file());
+}
+
+#[test]
+fn help_of_every_subcommand_has_an_example() {
+    // Checks (common practice): `--help` of the program and of each subcommand exits 0 and shows an example.
+    for args in [vec!["--help"], vec!["molecules", "--help"], vec!["simulate", "--help"], vec!["design", "--help"]] {
+        let r = run(&args);
+        assert_eq!(r.code, Some(0), "{args:?}: {}", r.stderr);
+        assert!(r.stdout.contains("Example"), "{args:?} help lacks an example:\n{}", r.stdout);
+    }
+}
+
+#[test]
+fn version_flag_works() {
+    // Checks (common practice): `--version` exits 0 and prints the program name.
+    let r = run(&["--version"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(r.stdout.contains("kicktrain"), "{}", r.stdout);
+}
+
+#[test]
+fn usage_errors_exit_2_without_panicking() {
+    // Checks (common practice): a missing argument or an unknown subcommand is a usage error, exit 2.
+    for args in [vec!["simulate"], vec!["frobnicate"], vec!["simulate", "x.json", "--no-such-flag"]] {
+        let r = run(&args);
+        assert_eq!(r.code, Some(2), "{args:?}: {}", r.stderr);
+        assert!(!r.stderr.contains("panicked"), "{args:?}: {}", r.stderr);
+    }
+}
