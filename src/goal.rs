@@ -138,8 +138,8 @@ pub fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
         if window_ps.1 <= window_ps.0 {
             return Err(Error::input(join(path, "window_ps"), format!("expected stop > start, got [{}, {}]", window_ps.0, window_ps.1)));
         }
-        if (window_ps.1 - window_ps.0) * 1000.0 / step_fs > 200_000.0 {
-            return Err(Error::input(join(path, "step_fs"), "the goal window would hold more than 200000 samples; expected a larger step_fs"));
+        if (window_ps.1 - window_ps.0) * 1000.0 / step_fs > 20_000.0 {
+            return Err(Error::input(join(path, "step_fs"), "the goal window would hold more than 20000 samples; expected a larger step_fs"));
         }
     }
     if window_ps.0 < 0.0 {

@@ -2,7 +2,7 @@
 //! Parsed field by field so that every error names the field and the expected unit or range.
 
 use crate::error::{require_non_negative, require_positive, Error, Result};
-use crate::field::{FieldModel, Pulse, PulseShape};
+use crate::field::{FieldModel, Pulse, PulseShape, StaticField};
 use crate::goal::{parse_goal, Goal};
 use crate::input::{join, parse_json, type_name, Fields};
 use crate::molecule::Molecule;
@@ -120,7 +120,7 @@ impl Scenario {
             molecule: Molecule::from_library(molecule, "molecule")?,
             molecule_source: MoleculeSource::Library(molecule.to_string()),
             temperature_k,
-            field: FieldModel { pulses },
+            field: FieldModel { pulses, static_field: None },
             window,
             solver: SolverSettings::default(),
             goal: None,
@@ -153,6 +153,10 @@ impl Scenario {
             }
             Some(other) => return Err(Error::input(f.path_of("pulses"), format!("expected an array of pulses, got {}", type_name(other)))),
         };
+        let static_field = match f.opt_value("static_field") {
+            None => None,
+            Some(v) => Some(parse_static(v, &f.path_of("static_field"))?),
+        };
         let wv = f.req_value("window", "an object with start_ps, stop_ps, step_fs")?;
         let window = parse_window(wv, &f.path_of("window"))?;
         let solver = match f.opt_value("solver") {
@@ -164,7 +168,7 @@ impl Scenario {
             Some(g) => Some(parse_goal(g, &f.path_of("goal"))?),
         };
         f.finish()?;
-        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses }, window, solver, goal };
+        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field }, window, solver, goal };
         s.validate_at(path)?;
         Ok(s)
     }
@@ -183,11 +187,26 @@ impl Scenario {
         for (i, p) in self.field.pulses.iter().enumerate() {
             p.validate(&format!("{}[{i}]", join(path, "pulses")))?;
         }
+        if let Some(sf) = &self.field.static_field {
+            sf.validate(&join(path, "static_field"))?;
+            if sf.strength_kv_cm != 0.0 && !self.molecule.is_polar() {
+                return Err(Error::input(
+                    join(path, "molecule.dipole_debye"),
+                    format!("a static field needs a polar molecule, but {} has no permanent dipole (give dipole_debye)", self.molecule.name),
+                ));
+            }
+        }
+        if self.field.is_polar() && self.goal.is_some() {
+            return Err(Error::input(join(path, "goal"), "goals are not yet supported together with a static field"));
+        }
         self.window.validate(&join(path, "window"))?;
         let s = &self.solver;
         let sp = join(path, "solver");
         if let Some(dt) = s.step_fs {
             require_positive(&join(&sp, "step_fs"), dt, "fs")?;
+            if dt < 0.01 {
+                return Err(Error::input(join(&sp, "step_fs"), format!("expected a solver step of at least 0.01 fs, got {dt}")));
+            }
         }
         for (name, v, lo, hi) in [("thermal_tolerance", s.thermal_tolerance, 1e-14, 1e-2), ("edge_tolerance", s.edge_tolerance, 1e-14, 1e-3)] {
             if !(v >= lo && v <= hi) {
@@ -215,6 +234,9 @@ impl Scenario {
         obj.insert("molecule".into(), molecule);
         obj.insert("temperature_k".into(), json!(self.temperature_k));
         obj.insert("pulses".into(), serde_json::to_value(&self.field.pulses).expect("pulses serialize"));
+        if let Some(sf) = &self.field.static_field {
+            obj.insert("static_field".into(), serde_json::to_value(sf).expect("static field serializes"));
+        }
         obj.insert("window".into(), json!({"start_ps": self.window.start_ps, "stop_ps": self.window.stop_ps, "step_fs": self.window.step_fs}));
         let mut solver = serde_json::Map::new();
         solver.insert("method".into(), json!(self.solver.method.name()));
@@ -249,8 +271,11 @@ fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
                 }
                 Some(other) => return Err(Error::input(join(path, "spin_weights"), format!("expected [even_J, odd_J] (two numbers), got {other}"))),
             };
+            let dipole_debye = f.opt_f64("dipole_debye", "debye")?.unwrap_or(0.0);
+            let beta_parallel_au = f.opt_f64("beta_parallel_au", "atomic units, Taylor convention")?;
+            let beta_perpendicular_au = f.opt_f64("beta_perpendicular_au", "atomic units, Taylor convention")?;
             f.finish()?;
-            let m = Molecule { name, b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights };
+            let m = Molecule { name, b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye, beta_parallel_au, beta_perpendicular_au };
             m.validate(path)?;
             Ok((m, MoleculeSource::Inline))
         }
@@ -272,6 +297,14 @@ fn parse_pulse(v: &Value, path: &str) -> Result<Pulse> {
     let p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape, rise_fs };
     p.validate(path)?;
     Ok(p)
+}
+
+fn parse_static(v: &Value, path: &str) -> Result<StaticField> {
+    let mut f = Fields::new(v, path)?;
+    let sf = StaticField { strength_kv_cm: f.req_f64("strength_kv_cm", "kV/cm")?, on_ps: f.opt_f64("on_ps", "ps")?, off_ps: f.opt_f64("off_ps", "ps")? };
+    f.finish()?;
+    sf.validate(path)?;
+    Ok(sf)
 }
 
 fn parse_window(v: &Value, path: &str) -> Result<Window> {

@@ -134,7 +134,25 @@ impl Solver {
     fn extra_levels(&self, field: &FieldModel) -> usize {
         let da = self.molecule.delta_alpha_a3();
         let total: f64 = field.pulses.iter().map(|p| p.kick_strength(da).abs()).sum();
-        (0.75 * total).ceil() as usize + 6
+        (0.75 * total.min(1e4)).ceil() as usize + 6
+    }
+
+    /// Refuse fields whose total kick strength no basis up to `MAX_BASIS_J` could hold.
+    fn check_strength(&self, field: &FieldModel) -> Result<()> {
+        let da = self.molecule.delta_alpha_a3();
+        let total: f64 = field.pulses.iter().map(|p| p.kick_strength(da).abs()).sum();
+        let room = self.molecule.max_physical_j().saturating_sub(self.ensemble.j_max) as f64;
+        if !total.is_finite() || total > room {
+            return Err(Error::input(
+                "pulses",
+                format!(
+                    "total kick strength P = {total:.3e} would drive the rotor beyond J = {} (the largest basis kicktrain uses for {}); expected weaker pulses (ΣP below about {room:.0})",
+                    self.molecule.max_physical_j(),
+                    self.molecule.name
+                ),
+            ));
+        }
+        Ok(())
     }
 
     /// The schedule of kicks and finite intervals for `field` under the configured method.
@@ -181,6 +199,7 @@ impl Solver {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
         }
+        self.check_strength(field)?;
         let events = self.schedule(field);
         let extra = self.extra_levels(field);
         // Field-free phases before each event are the same for every block: tabulate them once by J.
@@ -305,7 +324,7 @@ impl Solver {
                     }
                     let inside = times[ti..].partition_point(|t| *t < e);
                     let stops = &times[ti..ti + inside];
-                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect() };
+                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), static_field: None };
                     let rate = |t: f64| sub.alignment_rate(t, da);
                     let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
                     let base = ti;

@@ -49,6 +49,14 @@ pub fn peak_field_v_per_m(intensity_wcm2: f64) -> f64 {
     (2.0 * intensity_wcm2 * 1e4 / (C_LIGHT * EPSILON_0)).sqrt()
 }
 
+/// One debye in C m.
+pub const DEBYE: f64 = 3.335_640_952e-30;
+
+/// Dipole coupling rate μE/ħ in rad/ps for a dipole in debye and a field in kV/cm (1 kV/cm = 1e5 V/m).
+pub fn dipole_rate_rad_per_ps(dipole_debye: f64, field_kv_cm: f64) -> f64 {
+    dipole_debye * DEBYE * field_kv_cm * 1e5 / HBAR * 1e-12
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -71,6 +79,15 @@ mod tests {
     fn kt_room_temperature() {
         // k_B T at 300 K is 208.5 cm⁻¹ (CODATA constants: 0.695035 cm⁻¹/K).
         assert!((kt_in_cm(300.0) - 208.5103).abs() < 1e-3);
+    }
+
+    #[test]
+    fn dipole_energy_scale() {
+        // μE for 1 D in 1 kV/cm is 1.680e-2 cm⁻¹ (0.0168 cm⁻¹ per D·kV/cm, common practice); as a rate in rad/ps
+        // that is 2πc × 0.0168 cm⁻¹.
+        let want = cm_to_rad_per_ps(DEBYE * 1e5 / (H_PLANCK * C_LIGHT * 100.0));
+        assert!((dipole_rate_rad_per_ps(1.0, 1.0) / want - 1.0).abs() < 1e-12);
+        assert!((DEBYE * 1e5 / (H_PLANCK * C_LIGHT * 100.0) - 0.016792).abs() < 1e-5);
     }
 
     #[test]

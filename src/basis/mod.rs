@@ -9,26 +9,35 @@ use crate::molecule::Molecule;
 use crate::units::cm_to_rad_per_ps;
 use nalgebra::DMatrix;
 
-/// One (|M|, parity of J) block with `size` states J = j_min + 2n, n = 0..size.
+/// One (|M|, parity of J) block with `size` states J = j_min + 2n, n = 0..size; or, when parity is
+/// `BOTH_PARITIES` (fields that break the parity of J, such as a static field), all J = |M|, |M| + 1, ….
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub struct Block {
     /// |M|, the conserved projection on the field axis.
     pub m: u32,
-    /// Parity of J (0 even, 1 odd).
+    /// Parity of J (0 even, 1 odd), or `BOTH_PARITIES`.
     pub parity: u32,
     /// Number of basis states kept.
     pub size: usize,
 }
 
+/// `Block::parity` value of a block that holds every J (parity not conserved).
+pub const BOTH_PARITIES: u32 = 2;
+
 impl Block {
     /// Lowest J of the block: the smallest J ≥ |M| with the block's parity.
     pub fn j_min(&self) -> u32 {
-        if self.m % 2 == self.parity { self.m } else { self.m + 1 }
+        if self.parity == BOTH_PARITIES || self.m % 2 == self.parity { self.m } else { self.m + 1 }
+    }
+
+    /// Spacing of J between neighbouring basis states (2 within a parity, 1 with both parities).
+    pub fn j_step(&self) -> u32 {
+        if self.parity == BOTH_PARITIES { 1 } else { 2 }
     }
 
     /// J of basis index n.
     pub fn j(&self, n: usize) -> u32 {
-        self.j_min() + 2 * n as u32
+        self.j_min() + self.j_step() * n as u32
     }
 
     /// Highest J kept.
@@ -39,7 +48,7 @@ impl Block {
     /// Number of states needed for the block to reach at least `j_top`.
     pub fn size_to_reach(m: u32, parity: u32, j_top: u32) -> usize {
         let b = Block { m, parity, size: 1 };
-        if j_top < b.j_min() { 1 } else { ((j_top - b.j_min()) / 2 + 1) as usize }
+        if j_top < b.j_min() { 1 } else { ((j_top - b.j_min()) / b.j_step() + 1) as usize }
     }
 
     /// Degeneracy factor of the block: 1 for M = 0, 2 for |M| > 0 (±M blocks are identical).
@@ -52,8 +61,36 @@ impl Block {
         (0..self.size).map(|n| cm_to_rad_per_ps(mol.energy_cm(self.j(n)))).collect()
     }
 
+    /// Matrix of a function f(cosθ) between the block's states, by Gauss–Legendre quadrature on
+    /// [−1, 0] and [0, 1] separately: exact (to rounding) for polynomials and for |cosθ|.
+    pub fn matrix_of(&self, f: impl Fn(f64) -> f64, extra_degree: u32) -> DMatrix<f64> {
+        let n = self.size;
+        let j_max = self.j_max();
+        // Integrand degree ≤ 2 j_max + extra_degree on each half: n_q ≥ j_max + extra/2 + 1 points.
+        let nq = (j_max + extra_degree / 2 + 2) as usize;
+        let mut out = DMatrix::zeros(n, n);
+        for (lo, hi) in [(-1.0, 0.0), (0.0, 1.0)] {
+            let (x, w) = legendre::gauss_legendre(nq, lo, hi);
+            let mut phi = DMatrix::zeros(n, nq);
+            let mut scaled = DMatrix::zeros(n, nq);
+            for q in 0..nq {
+                let th = legendre::theta_normalized(self.m, j_max, x[q]);
+                let fw = w[q] * f(x[q]);
+                for i in 0..n {
+                    let v = th[(self.j(i) - self.m) as usize];
+                    phi[(i, q)] = v;
+                    scaled[(i, q)] = v * fw;
+                }
+            }
+            out += &scaled * phi.transpose();
+        }
+        out
+    }
+
     /// The cos²θ matrix of the block as (diagonal, first off-diagonal); tridiagonal because ΔJ = 0, ±2.
+    /// Only for single-parity blocks.
     pub fn cos2_tridiagonal(&self) -> (Vec<f64>, Vec<f64>) {
+        debug_assert!(self.parity != BOTH_PARITIES);
         let d = (0..self.size).map(|n| cos2_diag(self.j(n), self.m)).collect();
         let e = (0..self.size.saturating_sub(1)).map(|n| cos2_up2(self.j(n), self.m)).collect();
         (d, e)
@@ -192,6 +229,34 @@ mod tests {
         for j in 0..30u32 {
             let s: f64 = (0..=j).map(|m| if m == 0 { 1.0 } else { 2.0 } * cos2_diag(j, m)).sum();
             assert!((s - (2 * j + 1) as f64 / 3.0).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn quadrature_matrices_match_closed_forms_in_both_parity_blocks() {
+        // cosθ couples J ± 1 and cos²θ J, J ± 2 (closed forms above, physics notes §5); cos³θ by
+        // quadrature equals the product of the cosθ matrix with cos²θ where the basis is complete
+        // (away from the top row).
+        let b = Block { m: 2, parity: BOTH_PARITIES, size: 20 };
+        assert_eq!(b.j(0), 2);
+        assert_eq!(b.j(3), 5);
+        let c1 = b.matrix_of(|x| x, 1);
+        let c2 = b.matrix_of(|x| x * x, 2);
+        let c3 = b.matrix_of(|x| x * x * x, 3);
+        for i in 0..b.size {
+            for k in 0..b.size {
+                let (j, jk) = (b.j(i), b.j(k));
+                let want1 = if jk == j + 1 { cos_up1(j, 2) } else if j == jk + 1 { cos_up1(jk, 2) } else { 0.0 };
+                assert!((c1[(i, k)] - want1).abs() < 1e-13, "cos {j} {jk}");
+                let want2 = if j == jk { cos2_diag(j, 2) } else if jk == j + 2 { cos2_up2(j, 2) } else if j == jk + 2 { cos2_up2(jk, 2) } else { 0.0 };
+                assert!((c2[(i, k)] - want2).abs() < 1e-13, "cos2 {j} {jk}");
+            }
+        }
+        let prod = &c1 * &c2;
+        for i in 0..b.size - 3 {
+            for k in 0..b.size - 3 {
+                assert!((prod[(i, k)] - c3[(i, k)]).abs() < 1e-13);
+            }
         }
     }
 

@@ -161,7 +161,7 @@ impl DesignSpace {
                 pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= f);
             }
         }
-        FieldModel { pulses }
+        FieldModel { pulses, static_field: None }
     }
 
     /// The unit-cube point closest to a given train (used to seed searches); pulses beyond the space are ignored.
@@ -204,6 +204,9 @@ impl DesignSpace {
     /// Reject spaces with no feasible design before any search; errors name the field.
     pub fn validate(&self, path: &str) -> Result<()> {
         require_positive(&join(path, "max_peak_intensity_wcm2"), self.max_peak_intensity_wcm2, "W/cm²")?;
+        if self.max_peak_intensity_wcm2 > 1e17 {
+            return Err(Error::input(join(path, "max_peak_intensity_wcm2"), format!("expected at most 1e17 W/cm², got {:e}", self.max_peak_intensity_wcm2)));
+        }
         require_non_negative(&join(path, "min_separation_ps"), self.min_separation_ps, "ps")?;
         for k in 0..self.pulses.len() {
             let p = &self.pulses[k];
@@ -219,6 +222,9 @@ impl DesignSpace {
                 ));
             }
             if k > 0 {
+                if p.delay_ps.max > 1e5 || p.delay_ps.min < 0.0 {
+                    return Err(Error::input(format!("{pp}.delay_ps"), format!("expected delays from 0 to 1e5 ps, got [{}, {}]", p.delay_ps.min, p.delay_ps.max)));
+                }
                 let db = self.delay_bounds(k);
                 if db.max < db.min {
                     return Err(Error::input(
@@ -324,7 +330,28 @@ impl Objective {
             None => SearchSettings::default(),
             Some(s) => parse_search(s, "search")?,
         };
-        Ok(Objective { description, base, space, variable_count, goal, search })
+        if goal.window_ps.1 > 1e5 {
+            let key = if matches!(goal.kind, GoalKind::ValueAt(_)) { "goal.at_ps" } else { "goal.window_ps" };
+            return Err(Error::input(key, format!("expected goal times up to 1e5 ps after the last pulse, got {:e} ps", goal.window_ps.1)));
+        }
+        let obj = Objective { description, base, space, variable_count, goal, search };
+        // The longest design must replay as a valid scenario: check before any search starts.
+        let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
+        // The strongest design must fit the largest basis the solver allows.
+        let da = obj.molecule().delta_alpha_a3();
+        let strongest: f64 = longest.pulses.iter().map(|p| p.kick_strength(da).abs()).sum();
+        let room = obj.molecule().max_physical_j() as f64 * 0.6;
+        if strongest > room {
+            return Err(Error::input(
+                "max_peak_intensity_wcm2",
+                format!("the strongest allowed train has total kick strength {strongest:.3e}, more than the largest basis can hold (about {room:.0}); expected a lower ceiling"),
+            ));
+        }
+        obj.scenario_for(&longest).validate().map_err(|e| match e {
+            Error::Input { field, message } => Error::input("goal", format!("the design would not replay as a scenario ({field}: {message})")),
+            other => other,
+        })?;
+        Ok(obj)
     }
 
     /// The scenario that replays a design: the base with the design's pulses and a window that shows
@@ -341,7 +368,9 @@ impl Objective {
         }
         s.description = self.description.clone().map(|d| format!("Design: {d}"));
         s.field = field.clone();
-        s.window = Window { start_ps: start, stop_ps: stop, step_fs: self.goal.step_fs.min(50.0) };
+        // At most ~1e5 samples in the replayed trace.
+        let step_fs = self.goal.step_fs.min(50.0).max((stop - start) * 1000.0 / 1e5);
+        s.window = Window { start_ps: start, stop_ps: stop, step_fs };
         s
     }
 

@@ -199,7 +199,7 @@ impl CostFunction for Cost<'_, '_> {
             return Ok(f64::INFINITY);
         }
         let field = self.space.field(&self.unit(p));
-        let s = self.ev.score(&field, self.full).map_err(|e| argmin::core::Error::msg(e.to_string()))?;
+        let s = self.ev.score(&field, self.full).map_err(argmin::core::Error::new)?;
         Ok(-self.ev.obj.goal.sense() * s.value)
     }
 }
@@ -228,10 +228,11 @@ impl<'m, O, I: State, S: argmin::core::Solver<O, I>> argmin::core::Solver<O, I> 
     }
 }
 
+/// Recover our own error from argmin's wrapper (the cost function passes it through unchanged).
 fn argmin_error(e: argmin::core::Error) -> Error {
-    match e.downcast_ref::<String>() {
-        Some(s) => Error::Numerical(s.clone()),
-        None => Error::Numerical(e.to_string()),
+    match e.downcast::<Error>() {
+        Ok(ours) => ours,
+        Err(other) => Error::Numerical(other.to_string()),
     }
 }
 

@@ -41,7 +41,9 @@ impl ThermalEnsemble {
     /// Boltzmann ensemble at `temperature_k`, keeping J levels until the left-out population is below
     /// `tolerance`; the kept populations are renormalized to sum to 1. T = 0 gives the lowest allowed level.
     pub fn new(mol: &Molecule, temperature_k: f64, tolerance: f64) -> Result<ThermalEnsemble> {
-        let weight = |j: u32| mol.spin_weights[(j % 2) as usize];
+        // Spin weights are relative: normalize to the larger one so sums cannot overflow.
+        let wmax = mol.spin_weights[0].max(mol.spin_weights[1]);
+        let weight = |j: u32| mol.spin_weights[(j % 2) as usize] / wmax;
         let j_limit = mol.max_physical_j();
         let mut level_pop: Vec<f64> = vec![];
         if temperature_k <= 0.0 {

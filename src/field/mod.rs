@@ -201,11 +201,61 @@ impl Pulse {
     }
 }
 
+/// A static (DC) electric field along the laser polarization axis Z, switched on and off suddenly.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct StaticField {
+    /// Field strength, kV/cm (a negative value points along −Z).
+    pub strength_kv_cm: f64,
+    /// Switch-on time, ps (None: on from the start).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub on_ps: Option<f64>,
+    /// Switch-off time, ps (None: on to the end).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub off_ps: Option<f64>,
+}
+
+impl StaticField {
+    /// Check the element; errors name the field under `path`.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        let e = require_finite(&format!("{path}.strength_kv_cm"), self.strength_kv_cm, "kV/cm")?;
+        if e.abs() > 1e4 {
+            return Err(Error::input(format!("{path}.strength_kv_cm"), format!("expected at most 1e4 kV/cm (1 GV/m) for a static field, got {e}")));
+        }
+        if let Some(t) = self.on_ps {
+            require_finite(&format!("{path}.on_ps"), t, "ps")?;
+        }
+        if let Some(t) = self.off_ps {
+            require_finite(&format!("{path}.off_ps"), t, "ps")?;
+            if let Some(on) = self.on_ps {
+                if t <= on {
+                    return Err(Error::input(format!("{path}.off_ps"), format!("expected a time after on_ps = {on} ps, got {t} ps")));
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// Field strength (kV/cm) at time t (ps).
+    pub fn strength_at(&self, t_ps: f64) -> f64 {
+        let on = self.on_ps.map(|a| t_ps >= a).unwrap_or(true);
+        let off = self.off_ps.map(|b| t_ps >= b).unwrap_or(false);
+        if on && !off { self.strength_kv_cm } else { 0.0 }
+    }
+
+    /// Dipole coupling rate μE/ħ (rad/ps) for a dipole in debye and a field in kV/cm.
+    pub fn rate_rad_per_ps(dipole_debye: f64, strength_kv_cm: f64) -> f64 {
+        crate::units::dipole_rate_rad_per_ps(dipole_debye, strength_kv_cm)
+    }
+}
+
 /// An ordered collection of field elements acting on the molecule.
 #[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 pub struct FieldModel {
     /// Linearly polarized laser pulses (any order, may overlap).
     pub pulses: Vec<Pulse>,
+    /// An optional static field along Z.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub static_field: Option<StaticField>,
 }
 
 /// A stretch of time in which the field is on: the union of overlapping pulse supports.
@@ -220,6 +270,16 @@ pub struct ActiveInterval {
 }
 
 impl FieldModel {
+    /// A train of laser pulses without other fields.
+    pub fn pulses(pulses: Vec<Pulse>) -> FieldModel {
+        FieldModel { pulses, static_field: None }
+    }
+
+    /// True if any element couples to the permanent dipole (breaks the parity of J).
+    pub fn is_polar(&self) -> bool {
+        self.static_field.map(|s| s.strength_kv_cm != 0.0).unwrap_or(false)
+    }
+
     /// Alignment coupling rate u(t) (rad/ps) such that H = H0 − u(t) cos²θ, for anisotropy Δα' (Å³).
     pub fn alignment_rate(&self, t_ps: f64, delta_alpha_a3: f64) -> f64 {
         let k = coupling_rad_per_ps_per_a3_wcm2() * delta_alpha_a3;
@@ -312,7 +372,7 @@ mod tests {
 
     #[test]
     fn intervals_merge_overlaps() {
-        let f = FieldModel { pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)] };
+        let f = FieldModel { pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)], static_field: None };
         let iv = f.active_intervals();
         assert_eq!(iv.len(), 2);
         assert_eq!(iv[0].pulses, vec![1, 2]);

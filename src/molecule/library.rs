@@ -37,6 +37,12 @@ pub struct LibraryEntry {
     pub spin_weights: [f64; 2],
     /// Why those weights (spin statistics of the identical nuclei).
     pub spin_weights_source: &'static str,
+    /// Permanent dipole moment along the axis (debye), None for non-polar molecules.
+    pub dipole_debye: Option<Sourced>,
+    /// First hyperpolarizability β∥ = β_zzz (atomic units, Taylor convention), if known.
+    pub beta_parallel_au: Option<Sourced>,
+    /// First hyperpolarizability β⊥ = β_zxx (atomic units, Taylor convention), if known.
+    pub beta_perpendicular_au: Option<Sourced>,
 }
 
 impl LibraryEntry {
@@ -49,6 +55,9 @@ impl LibraryEntry {
             alpha_parallel_a3: self.alpha_parallel_a3.value,
             alpha_perpendicular_a3: self.alpha_perpendicular_a3.value,
             spin_weights: self.spin_weights,
+            dipole_debye: self.dipole_debye.map(|d| d.value).unwrap_or(0.0),
+            beta_parallel_au: self.beta_parallel_au.map(|b| b.value),
+            beta_perpendicular_au: self.beta_perpendicular_au.map(|b| b.value),
         }
     }
 }
@@ -89,6 +98,9 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [2.0, 1.0],
         spin_weights_source: "14N nuclei (I = 1, bosons), X ¹Σg⁺: even J (ortho) weight (I+1)(2I+1) = 6, odd J (para) weight I(2I+1) = 3, i.e. 2 : 1 (textbook spin statistics)",
+        dipole_debye: None,
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "O2",
@@ -112,6 +124,9 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [0.0, 1.0],
         spin_weights_source: "16O nuclei (I = 0, bosons) with a ³Σg⁻ electronic state: only odd N levels exist, so [even, odd] = [0, 1] (Herzberg; missing even-N lines of 16O2)",
+        dipole_debye: None,
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "CO",
@@ -135,6 +150,13 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 1.0],
         spin_weights_source: "heteronuclear diatomic: no exchange symmetry between the nuclei, all J equally weighted",
+        dipole_debye: Some(s(
+            0.10980,
+            "μ0 = 0.10980 D, ground vibrational state: CRC Handbook of Chemistry and Physics, 84th ed. (Lide 2003), 'Dipole moments' table p. 9-45, as transcribed in the ChemTherm package data (jaortizco/ChemTherm, src/chemtherm/data/db_dipole_moments.json); the NIST CCCBDB experimental dipole list gives 0.11 D (copy in CalebBell/thermo, cccbdb.nist.gov_Dipoles.csv). Polarity C⁻O⁺ (carbon end negative; the dipole vector points from C to O): recalled (rotational Zeeman sign determination), consistent with the ⊖C≡O⊕ formula on retrieved web pages; the tables give the magnitude only",
+        )),
+        // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "CO2",
@@ -158,6 +180,9 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 0.0],
         spin_weights_source: "two equivalent 16O nuclei (I = 0, bosons) in a Σg⁺ ground state: odd J levels are absent, [even, odd] = [1, 0]",
+        dipole_debye: None,
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "N2O",
@@ -181,6 +206,13 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 1.0],
         spin_weights_source: "asymmetric linear molecule (N–N–O, no centre of symmetry): no nuclear exchange symmetry, all J equally weighted",
+        dipole_debye: Some(s(
+            0.16083,
+            "from memory: μ0 = 0.16083 D, 14N14N16O ground state (believed: CRC Handbook 'Dipole moments' table, from the molecular-beam electric-resonance value of Scharpen, Muenter & Laurie 1970, J. Chem. Phys. 53, 2513); the retrieved copy of the NIST CCCBDB experimental list (CalebBell/thermo, cccbdb.nist.gov_Dipoles.csv) gives 0.17 D at two decimals, so the second and third digits are not confirmed by a retrieved source. Polarity recalled: terminal N end negative, O end positive (⁻NNO⁺)",
+        )),
+        // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "OCS",
@@ -204,6 +236,13 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 1.0],
         spin_weights_source: "asymmetric linear molecule (O–C–S): no nuclear exchange symmetry, all J equally weighted",
+        dipole_debye: Some(s(
+            0.71521,
+            "μ0 = 0.71521 ± 0.00020 D, OCS ground state, as quoted in the Wikipedia article 'Rotational spectroscopy' (Stark effect section, retrieved via the liquisearch.com mirror); consistent with the microwave Stark value 0.7124 ± 0.0002 D (Phys. Rev. 105, 1502 (1957), 'Microwave Stark effect measurement of the dipole moment and polarizability of carbonyl sulfide', abstract via scilit.com) and the NIST CCCBDB experimental list value 0.71 D (copy in CalebBell/thermo). Polarity: O end negative, S end positive (⁻OCS⁺), recalled (isotopic rotational-Zeeman sign determination), not stated in the retrieved sources",
+        )),
+        // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "HCl",
@@ -227,6 +266,16 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 1.0],
         spin_weights_source: "heteronuclear diatomic: no exchange symmetry between the nuclei, all J equally weighted",
+        dipole_debye: Some(s(
+            1.1086,
+            "from memory: μ0 = 1.1086 D, H35Cl v = 0 (believed: Kaiser 1970, J. Chem. Phys. 53, 1686, molecular-beam electric resonance; the CRC Handbook 'Dipole moments' value); retrieved sources give 1.08 D (older compilation value, CCCBDB copy in CalebBell/thermo, cccbdb.nist.gov_Dipoles.csv) and the ab initio μe = 0.4238 e a0 = 1.077 D at Re (Maroulis 1998, J. Chem. Phys. 108, 5432, abstract), below μ0 as expected from dμ/dR > 0. Polarity H⁺Cl⁻ (hydrogen end positive)",
+        )),
+        // β: Maroulis 1998 (J. Chem. Phys. 108, 5432, abstract, retrieved) gives only the mean (vector-part)
+        // value β̄ = −6.8 ± 0.3 a.u. (static, electronic, at Re, Buckingham/Taylor convention; believed to be
+        // β̄ = (3/5)(β_zzz + 2β_zxx) with the axis orientation of that paper). The components β_zzz and β_zxx
+        // are not in the retrieved text and cannot be split from β̄, so both stay unset.
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "C2H2",
@@ -250,6 +299,9 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 3.0],
         spin_weights_source: "two equivalent 1H nuclei (I = 1/2, fermions; 12C has I = 0) in a Σg⁺ ground state: even J para weight 1, odd J ortho weight 3",
+        dipole_debye: None,
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "H2",
@@ -273,6 +325,9 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 3.0],
         spin_weights_source: "two 1H nuclei (I = 1/2, fermions) in X ¹Σg⁺: even J para weight 1, odd J ortho weight 3",
+        dipole_debye: None,
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
     LibraryEntry {
         name: "CS2",
@@ -296,5 +351,8 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         spin_weights: [1.0, 0.0],
         spin_weights_source: "two equivalent 32S nuclei (I = 0, bosons) in a Σg⁺ ground state: odd J levels are absent, [even, odd] = [1, 0]",
+        dipole_debye: None,
+        beta_parallel_au: None,
+        beta_perpendicular_au: None,
     },
 ];

@@ -27,7 +27,23 @@ pub struct Molecule {
     /// Nuclear-spin statistical weights `[even_J, odd_J]` (relative, ≥ 0, not both zero).
     #[serde(default = "equal_weights")]
     pub spin_weights: [f64; 2],
+    /// Permanent dipole moment along the molecular axis, debye (0 for non-polar molecules).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub dipole_debye: f64,
+    /// First hyperpolarizability β∥ = β_zzz in atomic units (Taylor convention), if known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub beta_parallel_au: Option<f64>,
+    /// First hyperpolarizability β⊥ = β_zxx in atomic units (Taylor convention), if known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub beta_perpendicular_au: Option<f64>,
 }
+
+fn is_zero(x: &f64) -> bool {
+    *x == 0.0
+}
+
+/// Largest rotational quantum number any basis may reach (beyond it the run is refused, not truncated).
+pub const MAX_BASIS_J: u32 = 600;
 
 fn custom_name() -> String {
     "custom".to_string()
@@ -38,6 +54,16 @@ fn equal_weights() -> [f64; 2] {
 }
 
 impl Molecule {
+    /// A non-polar linear molecule from its rotational constants (cm⁻¹), polarizabilities (Å³) and spin weights.
+    pub fn linear(name: &str, b_cm: f64, d_cm: f64, alpha_parallel_a3: f64, alpha_perpendicular_a3: f64, spin_weights: [f64; 2]) -> Molecule {
+        Molecule { name: name.to_string(), b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye: 0.0, beta_parallel_au: None, beta_perpendicular_au: None }
+    }
+
+    /// True if the molecule has a permanent dipole moment.
+    pub fn is_polar(&self) -> bool {
+        self.dipole_debye != 0.0
+    }
+
     /// Polarizability anisotropy Δα = α∥ − α⊥ in Å³.
     pub fn delta_alpha_a3(&self) -> f64 {
         self.alpha_parallel_a3 - self.alpha_perpendicular_a3
@@ -49,20 +75,24 @@ impl Molecule {
         self.b_cm * x - self.d_cm * x * x
     }
 
-    /// Largest J for which the energy ladder still rises (distortion turnover), capped for safety.
+    /// Largest J the solver may use: below the distortion turnover (where the energy ladder stops
+    /// rising) and never above `MAX_BASIS_J`.
     pub fn max_physical_j(&self) -> u32 {
         if self.d_cm <= 0.0 {
-            return 10_000;
+            return MAX_BASIS_J;
         }
         // dE/dx = B − 2 D x = 0 at x = B / 2D with x = J(J+1); keep well below the turnover.
         let x = self.b_cm / (2.0 * self.d_cm);
         let j = ((-1.0 + (1.0 + 4.0 * x).sqrt()) / 2.0 * 0.7).floor();
-        (j as u32).min(10_000)
+        (j as u32).min(MAX_BASIS_J)
     }
 
     /// Check every constant; errors name the field (prefixed by `path`) and the expected unit.
     pub fn validate(&self, path: &str) -> Result<()> {
         require_positive(&format!("{path}.b_cm"), self.b_cm, "cm⁻¹")?;
+        if !(1e-4..=100.0).contains(&self.b_cm) {
+            return Err(Error::input(format!("{path}.b_cm"), format!("expected a rotational constant between 1e-4 and 100 cm⁻¹, got {}", self.b_cm)));
+        }
         require_non_negative(&format!("{path}.d_cm"), self.d_cm, "cm⁻¹")?;
         if self.d_cm > 1e-2 * self.b_cm {
             return Err(Error::input(
@@ -72,17 +102,31 @@ impl Molecule {
         }
         require_non_negative(&format!("{path}.alpha_parallel_a3"), self.alpha_parallel_a3, "Å³")?;
         require_non_negative(&format!("{path}.alpha_perpendicular_a3"), self.alpha_perpendicular_a3, "Å³")?;
+        for (name, a) in [("alpha_parallel_a3", self.alpha_parallel_a3), ("alpha_perpendicular_a3", self.alpha_perpendicular_a3)] {
+            if a > 1000.0 {
+                return Err(Error::input(format!("{path}.{name}"), format!("expected a molecular polarizability volume below 1000 Å³, got {a}")));
+            }
+        }
         let [e, o] = self.spin_weights;
         for (i, w) in [e, o].iter().enumerate() {
-            if !w.is_finite() || *w < 0.0 {
+            if !w.is_finite() || *w < 0.0 || *w > 1e6 {
                 return Err(Error::input(
                     format!("{path}.spin_weights[{i}]"),
-                    format!("expected a finite weight ≥ 0, got {w}"),
+                    format!("expected a relative weight from 0 to 1e6, got {w}"),
                 ));
             }
         }
         if e + o <= 0.0 {
             return Err(Error::input(format!("{path}.spin_weights"), "expected [even_J, odd_J] not both zero"));
+        }
+        crate::error::require_finite(&format!("{path}.dipole_debye"), self.dipole_debye, "debye")?;
+        if self.dipole_debye.abs() > 50.0 {
+            return Err(Error::input(format!("{path}.dipole_debye"), format!("expected a molecular dipole below 50 D, got {}", self.dipole_debye)));
+        }
+        for (name, b) in [("beta_parallel_au", self.beta_parallel_au), ("beta_perpendicular_au", self.beta_perpendicular_au)] {
+            if let Some(b) = b {
+                crate::error::require_finite(&format!("{path}.{name}"), b, "atomic units")?;
+            }
         }
         Ok(())
     }
