@@ -53,6 +53,28 @@ Ctrl-C stops the search and still reports (and writes) the best design found so 
         #[arg(long)]
         json: bool,
     },
+    /// Field-dressed (pendular) states in a constant laser intensity and static field: the adiabatic limit.
+    #[command(after_help = "Example:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n\n\
+Energies exclude the isotropic shift −¼α⊥E0², common to all states.")]
+    Pendular {
+        /// Library molecule name.
+        molecule: String,
+        /// Cycle-averaged laser intensity, W/cm².
+        #[arg(long, default_value_t = 0.0)]
+        intensity_wcm2: f64,
+        /// Static field along the laser polarization, kV/cm.
+        #[arg(long, default_value_t = 0.0)]
+        static_kv_cm: f64,
+        /// Temperature for the thermal adiabatic averages, K.
+        #[arg(long, default_value_t = 1.0)]
+        temperature_k: f64,
+        /// List states connecting to field-free J up to this value.
+        #[arg(long, default_value_t = 3)]
+        j_max: u32,
+        /// Print JSON instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
     /// Simulate one scenario file: alignment trace, summary and plot.
     #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
 The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
@@ -74,6 +96,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Molecules { json } => molecules(json),
         Command::Simulate { scenario, out, json } => run_simulate(&scenario, out.as_deref(), json),
+        Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json),
         Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
     };
     match result {
@@ -164,6 +187,13 @@ fn print_simulation(s: &serde_json::Value) {
     println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
     println!("  deepest anti-alignment ⟨cos²θ⟩      {}", fmt_ext(&s["min_cos2"]));
     println!("  permanent alignment ⟨cos²θ⟩         {:.4}", s["permanent_cos2"].as_f64().unwrap_or(f64::NAN));
+    if let Some(o) = s.get("peak_orientation").filter(|o| !o.is_null()) {
+        println!(
+            "  peak orientation ⟨cosθ⟩ after the last pulse {:.4} at {:.3} ps (towards {}); permanent {:.4}",
+            o["cos"].as_f64().unwrap_or(0.0), o["t_ps"].as_f64().unwrap_or(0.0), o["sign"].as_str().unwrap_or("?"),
+            s["permanent_cos"].as_f64().unwrap_or(0.0)
+        );
+    }
     println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
     println!(
         "  {} initial states (discarded population {:.1e}); basis up to J = {} (edge population {:.1e}); {:.3} s",
@@ -288,4 +318,32 @@ fn print_design(s: &serde_json::Value) {
     }
     println!("  {} kick-model + {} full-solver evaluations in {:.1} s (seed {})", s["evaluations"]["kick_model"], s["evaluations"]["full_solver"], s["run_time_s"].as_f64().unwrap_or(0.0), s["seed"]);
     println!("  {}", report::LASER_SAFETY);
+}
+
+fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32, json: bool) -> Result<(), Error> {
+    let mol = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
+    if !temperature_k.is_finite() || !(0.0..=5000.0).contains(&temperature_k) {
+        return Err(Error::input("temperature_k", format!("expected 0 to 5000 K, got {temperature_k}")));
+    }
+    if j_max > 40 {
+        return Err(Error::input("j_max", format!("expected at most 40 for a listing, got {j_max}")));
+    }
+    let r = kicktrain::pendular::pendular(&mol, intensity, static_kv_cm, temperature_k, j_max)?;
+    if json {
+        let v = serde_json::json!({"molecule": mol.name, "intensity_wcm2": intensity, "static_kv_cm": static_kv_cm,
+            "temperature_k": temperature_k, "result": r, "laser_safety": report::LASER_SAFETY});
+        println!("{}", serde_json::to_string_pretty(&v).expect("json"));
+        return Ok(());
+    }
+    println!("{} in {:.3e} W/cm² and {} kV/cm: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}", mol.name, intensity, static_kv_cm, r.laser_strength_b, r.static_strength_b);
+    println!("{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩");
+    for s in r.states.iter().filter(|s| s.j <= j_max) {
+        println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, s.energy_cm, s.energy_b, s.cos2, s.cos);
+    }
+    println!("thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, r.thermal_cos);
+    println!("(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)");
+    if intensity > 0.0 {
+        println!("{}", report::LASER_SAFETY);
+    }
+    Ok(())
 }

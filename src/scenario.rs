@@ -74,11 +74,14 @@ pub struct SolverSettings {
     pub thermal_tolerance: f64,
     /// Largest population allowed in the top two J levels of any block.
     pub edge_tolerance: f64,
+    /// Use one block per |M| with both parities of J even when no field requires it (a check of the
+    /// parity split, and the path that reports ⟨cosθ⟩ and ⟨cos³θ⟩).
+    pub both_parities: bool,
 }
 
 impl Default for SolverSettings {
     fn default() -> Self {
-        SolverSettings { method: Method::Auto, step_fs: None, thermal_tolerance: 1e-7, edge_tolerance: 1e-8 }
+        SolverSettings { method: Method::Auto, step_fs: None, thermal_tolerance: 1e-7, edge_tolerance: 1e-8, both_parities: false }
     }
 }
 
@@ -245,6 +248,9 @@ impl Scenario {
         }
         solver.insert("thermal_tolerance".into(), json!(self.solver.thermal_tolerance));
         solver.insert("edge_tolerance".into(), json!(self.solver.edge_tolerance));
+        if self.solver.both_parities {
+            solver.insert("both_parities".into(), json!(true));
+        }
         obj.insert("solver".into(), Value::Object(solver));
         if let Some(g) = &self.goal {
             obj.insert("goal".into(), g.to_value());
@@ -329,6 +335,7 @@ fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
         step_fs: f.opt_f64("step_fs", "fs")?,
         thermal_tolerance: f.opt_f64("thermal_tolerance", "population fraction")?.unwrap_or(d.thermal_tolerance),
         edge_tolerance: f.opt_f64("edge_tolerance", "population fraction")?.unwrap_or(d.edge_tolerance),
+        both_parities: f.opt_bool("both_parities")?.unwrap_or(false),
     };
     f.finish()?;
     Ok(s)

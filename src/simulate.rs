@@ -2,13 +2,15 @@
 //! schedule (kicks or finite-pulse intervals), runs every (|M|, parity) block in parallel, grows each
 //! block's basis until the edge population is below tolerance, and sums the blocks' contributions.
 
-use crate::basis::Block;
+use crate::basis::{Block, BOTH_PARITIES};
+use crate::propagate::polar::{PolarOps, POLAR_OBSERVABLES};
+use nalgebra::DMatrix;
 use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::molecule::Molecule;
 use crate::goal::{Observable, Score};
-use crate::observe::{score_goal, BlockSums, LevelSums, Trace};
+use crate::observe::{score_goal, BlockSums, DenseSums, LevelSums, Trace};
 use crate::propagate::{propagate_finite, BlockOps, BlockState, FreePhases};
 use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
@@ -66,6 +68,8 @@ pub struct RunResult {
     pub events: Vec<Event>,
     /// Coherence sums of the ensemble after the last pulse, for evaluation at any later time.
     pub final_sums: LevelSums,
+    /// Exact time average of ⟨cosθ⟩ after the last field change (None where it vanishes by symmetry).
+    pub permanent_cos: Option<f64>,
 }
 
 impl RunResult {
@@ -130,17 +134,23 @@ impl Solver {
         self.ensemble.j_max + 2 * self.extra_levels(field) as u32
     }
 
-    /// Block levels added above the thermal top: grows with the total kick strength.
-    fn extra_levels(&self, field: &FieldModel) -> usize {
+    /// How far (in J) a pulse can push the rotor: its kick strength P for a short pulse, but for a long
+    /// (adiabatic) pulse no more than the width of the pendular states, about 3 sqrt(U0/B) + 3.
+    fn effective_strength(&self, p: &crate::field::Pulse) -> f64 {
         let da = self.molecule.delta_alpha_a3();
-        let total: f64 = field.pulses.iter().map(|p| p.kick_strength(da).abs()).sum();
+        let adiabatic = 3.0 * (p.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(self.molecule.b_cm)).sqrt() + 3.0;
+        p.kick_strength(da).abs().min(adiabatic)
+    }
+
+    /// Block levels added above the thermal top: grows with the total (effective) kick strength.
+    fn extra_levels(&self, field: &FieldModel) -> usize {
+        let total: f64 = field.pulses.iter().map(|p| self.effective_strength(p)).sum();
         (0.75 * total.min(1e4)).ceil() as usize + 6
     }
 
     /// Refuse fields whose total kick strength no basis up to `MAX_BASIS_J` could hold.
     fn check_strength(&self, field: &FieldModel) -> Result<()> {
-        let da = self.molecule.delta_alpha_a3();
-        let total: f64 = field.pulses.iter().map(|p| p.kick_strength(da).abs()).sum();
+        let total: f64 = field.pulses.iter().map(|p| self.effective_strength(p)).sum();
         let room = self.molecule.max_physical_j().saturating_sub(self.ensemble.j_max) as f64;
         if !total.is_finite() || total > room {
             return Err(Error::input(
@@ -195,9 +205,13 @@ impl Solver {
     }
 
     /// Run the field model and sample ⟨cos²θ⟩ (and ⟨cos²θ_2D⟩ if `with_2d`) at `times_ps` (ascending).
+    /// Fields that break the parity of J (or `both_parities`) also give ⟨cosθ⟩ and ⟨cos³θ⟩.
     pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
+        }
+        if field.is_polar() || self.settings.both_parities {
+            return self.run_polar(field, times_ps);
         }
         self.check_strength(field)?;
         let events = self.schedule(field);
@@ -255,8 +269,8 @@ impl Solver {
         let t_end = events.last().map(|e| e.span().1).or(times_ps.first().copied()).unwrap_or(0.0);
         let final_sums = merge(t_end, &|o: &BlockOutcome| &o.final_sums);
         let blocks = outcomes.into_iter().map(|o| o.report).collect();
-        let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] } };
-        Ok(RunResult { trace, permanent_cos2: final_sums.cos2_static, permanent_cos2_2d: final_sums.abscos_static, blocks, events, final_sums })
+        let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] }, cos: vec![], cos3: vec![] };
+        Ok(RunResult { trace, permanent_cos2: final_sums.cos2_static, permanent_cos2_2d: final_sums.abscos_static, blocks, events, final_sums, permanent_cos: None })
     }
 
     #[allow(clippy::too_many_arguments)]
@@ -328,7 +342,8 @@ impl Solver {
                     let rate = |t: f64| sub.alignment_rate(t, da);
                     let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
                     let base = ti;
-                    propagate_finite(&mut state, ops, &rate, e, *step_ps, stops, &breaks, |i, st| values[base + i] = eval_now(st));
+                    let mut kick = |st: &mut BlockState, t: f64, h: f64| st.kick(ops, h * rate(t));
+                    propagate_finite(&mut state, &ops.omega, &mut kick, e, *step_ps, stops, &breaks, |i, st| values[base + i] = eval_now(st));
                     ti += inside;
                 }
             }
@@ -343,6 +358,193 @@ impl Solver {
         }
         let report = BlockReport { m: block.m, parity: if block.parity == 0 { "even" } else { "odd" }, j_max: block.j_max(), size: block.size, edge_population: edge };
         Ok(Some(BlockOutcome { values, gaps, final_sums, report }))
+    }
+}
+
+/// One step of the schedule with both parities: a laser event or a switch of the static field.
+enum PolarItem<'a> {
+    Laser(&'a Event),
+    Switch(f64),
+}
+
+impl PolarItem<'_> {
+    fn span(&self) -> (f64, f64) {
+        match self {
+            PolarItem::Laser(e) => e.span(),
+            PolarItem::Switch(t) => (*t, *t),
+        }
+    }
+}
+
+impl Solver {
+    /// Static dipole coupling rate μE/ħ (rad/ps) at time t (ps).
+    fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
+        field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
+    }
+
+    /// The solver with one block per |M| holding both parities of J (static fields).
+    fn run_polar(&self, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
+        self.check_strength(field)?;
+        let events = self.schedule(field);
+        let mut items: Vec<PolarItem> = events.iter().map(PolarItem::Laser).collect();
+        if let Some(sf) = field.static_field {
+            items.extend(sf.on_ps.into_iter().chain(sf.off_ps).map(PolarItem::Switch));
+        }
+        items.sort_by(|a, b| a.span().0.total_cmp(&b.span().0));
+        let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
+        let t_first = if t_first.is_finite() { t_first } else { 0.0 };
+        // Room for the kicks plus the static-field mixing (about sqrt(μE/B) levels).
+        let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
+        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        let extra = 2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + 4;
+        let pops = self.ensemble.merged_by_m();
+        let outcomes: Vec<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> =
+            pops.par_iter().map(|bp| self.run_polar_block(bp, field, &items, times, t_first, extra)).collect::<Result<Vec<_>>>()?;
+        let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
+        let mut permanent = [0.0; POLAR_OBSERVABLES];
+        let mut blocks = vec![];
+        for (v, perm, report) in outcomes {
+            for o in 0..POLAR_OBSERVABLES {
+                for i in 0..times.len() {
+                    values[o][i] += v[o][i];
+                }
+                permanent[o] += perm[o];
+            }
+            blocks.push(report);
+        }
+        let [cos2, cos2_2d, cos, cos3]: [Vec<f64>; POLAR_OBSERVABLES] = values.try_into().expect("four observables");
+        let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3 };
+        // Coherence sums by J do not apply in a static field; goals are refused for such scenarios.
+        let mut final_sums = LevelSums::new(vec![], f64::INFINITY, false);
+        final_sums.cos2_static = permanent[0];
+        final_sums.abscos_static = permanent[1];
+        Ok(RunResult { trace, permanent_cos2: permanent[0], permanent_cos2_2d: permanent[1], blocks, events, final_sums, permanent_cos: Some(permanent[2]) })
+    }
+
+    /// One |M| block with both parities: returns per-observable contributions, time averages after the
+    /// last item, and the report. Grows the basis until the edge population is below tolerance.
+    fn run_polar_block(&self, bp: &BlockPopulation, field: &FieldModel, items: &[PolarItem], times: &[f64], t_first: f64, extra: usize) -> Result<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> {
+        let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
+        let j_limit = self.molecule.max_physical_j();
+        let mut size = Block::size_to_reach(bp.m, BOTH_PARITIES, j_thermal + extra as u32);
+        loop {
+            let block = Block { m: bp.m, parity: BOTH_PARITIES, size };
+            if block.j_max() > j_limit {
+                return Err(Error::Numerical(format!("block |M| = {}: the basis would need J > {j_limit}; lower the field strengths or the temperature", bp.m)));
+            }
+            let ops = PolarOps::new(bp.m, size, &self.molecule);
+            if let Some(out) = self.try_polar_block(&ops, bp, field, items, times, t_first)? {
+                return Ok(out);
+            }
+            size += (size / 4).max(4);
+        }
+    }
+
+    #[allow(clippy::type_complexity)]
+    fn try_polar_block(&self, ops: &PolarOps, bp: &BlockPopulation, field: &FieldModel, items: &[PolarItem], times: &[f64], t_first: f64) -> Result<Option<(Vec<Vec<f64>>, Vec<f64>, BlockReport)>> {
+        let block = ops.block;
+        let g = block.m_degeneracy();
+        let pops: Vec<f64> = bp.levels.iter().map(|l| l.1).collect();
+        let index: Vec<usize> = bp.levels.iter().map(|l| (l.0 - block.j_min()) as usize).collect();
+        let da = self.molecule.delta_alpha_a3();
+        // A static field on from the start was met adiabatically: start in the dressed states that
+        // correlate with the thermal field-free levels (same energy order within the block).
+        let s0 = self.static_rate(field, t_first);
+        let starts_dressed = s0 != 0.0 && field.static_field.map(|s| s.on_ps.is_none()).unwrap_or(false);
+        let mut state = if starts_dressed {
+            let e = ops.static_eigen(s0);
+            let mut cols = DMatrix::zeros(ops.size(), index.len());
+            for (c, &n) in index.iter().enumerate() {
+                cols.set_column(c, &e.s.column(n));
+            }
+            BlockState::from_columns(&cols, t_first)
+        } else {
+            BlockState::new(ops.size(), &index, t_first)
+        };
+        let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
+        let mut ti = 0usize;
+        let mut edge: f64 = 0.0;
+        let eval_now = |st: &BlockState| -> Vec<f64> { ops.observables.iter().map(|o| g * st.expect_dense(&pops, o)).collect() };
+        // Field-free or static-field stretch from the state's time: sums in the eigenbasis of H0 − sX.
+        let gap_sums = |st: &BlockState, rate: f64| -> DenseSums {
+            let (re, im) = st.density(&pops);
+            let e = ops.static_eigen(rate);
+            let to_eig = |m: &DMatrix<f64>| &e.st * m * &e.s;
+            let obs: Vec<DMatrix<f64>> = ops.observables.iter().map(to_eig).collect();
+            DenseSums::new(&to_eig(&re), &to_eig(&im), &obs, &e.eps, st.t_ps)
+        };
+        let switch_times: Vec<f64> = field.static_field.map(|s| s.on_ps.into_iter().chain(s.off_ps).collect()).unwrap_or_default();
+        for item in items {
+            let (s, e) = item.span();
+            let rate_gap = self.static_rate(field, state.t_ps);
+            let gap_end = ti + times[ti..].partition_point(|t| *t < s);
+            if gap_end > ti {
+                let sums = gap_sums(&state, rate_gap);
+                for i in ti..gap_end {
+                    for (o, v) in sums.eval(times[i]).into_iter().enumerate() {
+                        values[o][i] = g * v;
+                    }
+                }
+                ti = gap_end;
+            }
+            let dt = s - state.t_ps;
+            ops.evolve_static(&mut state, rate_gap, dt);
+            state.t_ps = s;
+            match item {
+                PolarItem::Switch(_) => {}
+                PolarItem::Laser(Event::Kick { strength, .. }) => ops.kick(&mut state, *strength, 0.0),
+                PolarItem::Laser(Event::Finite { pulses, step_ps, .. }) => {
+                    while ti < times.len() && times[ti] == s {
+                        for (o, v) in eval_now(&state).into_iter().enumerate() {
+                            values[o][ti] = v;
+                        }
+                        ti += 1;
+                    }
+                    let inside = times[ti..].partition_point(|t| *t < e);
+                    let stops = &times[ti..ti + inside];
+                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), static_field: None };
+                    let mut breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
+                    breaks.extend(switch_times.iter().copied());
+                    let mut kick = |st: &mut BlockState, t: f64, h: f64| ops.kick(st, h * sub.alignment_rate(t, da), h * self.static_rate(field, t));
+                    let base = ti;
+                    // The static field's own step limit: a fraction of its inverse coupling rate.
+                    let step = step_ps.min(1.0 / self.static_rate(field, s).abs().max(1e-30));
+                    propagate_finite(&mut state, &ops.omega, &mut kick, e, step, stops, &breaks, |i, st| {
+                        for (o, v) in eval_now(st).into_iter().enumerate() {
+                            values[o][base + i] = v;
+                        }
+                    });
+                    ti += inside;
+                }
+            }
+            edge = edge.max(state.edge_population(2));
+            if edge > self.settings.edge_tolerance {
+                return Ok(None);
+            }
+        }
+        let rate_end = self.static_rate(field, state.t_ps);
+        let sums = gap_sums(&state, rate_end);
+        for i in ti..times.len() {
+            for (o, v) in sums.eval(times[i]).into_iter().enumerate() {
+                values[o][i] = g * v;
+            }
+        }
+        // Edge also after a long static-field stretch (dressed states reach higher J).
+        let e = ops.static_eigen(rate_end);
+        let (re, _) = state.density(&pops);
+        let rho_e = &e.st * &re * &e.s;
+        let n = ops.size();
+        let mut top = 0.0;
+        for i in 0..n {
+            top += rho_e[(i, i)] * (e.s[(n - 1, i)].powi(2) + e.s[(n - 2, i)].powi(2));
+        }
+        edge = edge.max(top / pops.iter().sum::<f64>());
+        if edge > self.settings.edge_tolerance {
+            return Ok(None);
+        }
+        let perm: Vec<f64> = sums.statics.iter().map(|v| g * v).collect();
+        let report = BlockReport { m: block.m, parity: "both", j_max: block.j_max(), size: block.size, edge_population: edge };
+        Ok(Some((values, perm, report)))
     }
 }
 

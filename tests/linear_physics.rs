@@ -146,7 +146,8 @@ fn finite_pulse_matches_runge_kutta_reference_and_conserves_norm() {
         let reference = propagate_rk4_reference(&ops, &start, &rate, t0, t1, 2e-5);
         let run = |step: f64| {
             let mut st = BlockState::new(ops.size(), &start, t0);
-            propagate_finite(&mut st, &ops, &rate, t1, step, &[], &[], |_, _| {});
+            let mut kick = |st: &mut BlockState, t: f64, h: f64| st.kick(&ops, h * rate(t));
+            propagate_finite(&mut st, &ops.omega, &mut kick, t1, step, &[], &[], |_, _| {});
             for n in st.norms() {
                 assert!((n - 1.0).abs() < 1e-12, "norm {n}");
             }

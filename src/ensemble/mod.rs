@@ -98,6 +98,21 @@ impl ThermalEnsemble {
         Ok(ThermalEnsemble { temperature_k, j_max, discarded_population: tail, blocks })
     }
 
+    /// The populations grouped by |M| only (both parities of J together), for fields that mix parities.
+    pub fn merged_by_m(&self) -> Vec<BlockPopulation> {
+        let mut out: Vec<BlockPopulation> = vec![];
+        for b in &self.blocks {
+            match out.iter_mut().find(|o| o.m == b.m) {
+                Some(o) => o.levels.extend(b.levels.iter().copied()),
+                None => out.push(BlockPopulation { m: b.m, parity: crate::basis::BOTH_PARITIES, levels: b.levels.clone() }),
+            }
+        }
+        for o in &mut out {
+            o.levels.sort_by_key(|l| l.0);
+        }
+        out
+    }
+
     /// Number of initially populated |J M⟩ sublevels (counting ±M).
     pub fn state_count(&self) -> usize {
         self.blocks.iter().map(|b| b.levels.len() * if b.m == 0 { 1 } else { 2 }).sum()

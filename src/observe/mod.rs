@@ -261,6 +261,67 @@ impl LevelSums {
     }
 }
 
+/// Coherence sums of one block in the eigenbasis of a constant Hamiltonian (dense: every pair of
+/// states), for several observables at once. Used where levels are not labelled by J alone (static
+/// fields mix J).
+#[derive(Debug, Clone)]
+pub struct DenseSums {
+    /// Time at which the states were taken, ps.
+    pub t0_ps: f64,
+    eps: Vec<f64>,
+    /// Diagonal parts Σ_i ρ_ii O_ii: the exact time averages.
+    pub statics: Vec<f64>,
+    /// Per observable, upper triangle (i < j, row-major over the kept states) of ρ_ij O_ji.
+    coeffs: Vec<Vec<(f64, f64)>>,
+}
+
+impl DenseSums {
+    /// From ρ = (re, im) and observables O, all in the same eigenbasis with eigen-frequencies `eps`
+    /// (rad/ps), at time `t0_ps`.
+    pub fn new(rho_re: &nalgebra::DMatrix<f64>, rho_im: &nalgebra::DMatrix<f64>, observables: &[nalgebra::DMatrix<f64>], eps: &[f64], t0_ps: f64) -> DenseSums {
+        let n = eps.len();
+        let keep: Vec<usize> = (0..n).filter(|&i| rho_re[(i, i)] > TRIM_POPULATION).collect();
+        let mut statics = vec![0.0; observables.len()];
+        let mut coeffs = vec![vec![]; observables.len()];
+        for (o, op) in observables.iter().enumerate() {
+            for (a, &i) in keep.iter().enumerate() {
+                statics[o] += rho_re[(i, i)] * op[(i, i)];
+                for &j in &keep[a + 1..] {
+                    coeffs[o].push((rho_re[(i, j)] * op[(j, i)], rho_im[(i, j)] * op[(j, i)]));
+                }
+            }
+        }
+        DenseSums { t0_ps, eps: keep.iter().map(|&i| eps[i]).collect(), statics, coeffs }
+    }
+
+    /// Values of every observable at time t (ps).
+    pub fn eval(&self, t_ps: f64) -> Vec<f64> {
+        let tau = t_ps - self.t0_ps;
+        let m = self.eps.len();
+        let z: Vec<(f64, f64)> = self.eps.iter().map(|e| { let (s, c) = (-e * tau).sin_cos(); (c, s) }).collect();
+        self.coeffs
+            .iter()
+            .zip(&self.statics)
+            .map(|(cf, st)| {
+                let mut v = *st;
+                let mut idx = 0;
+                for a in 0..m {
+                    let (mut sr, mut si) = (0.0, 0.0);
+                    for b in (a + 1)..m {
+                        let c = cf[idx];
+                        idx += 1;
+                        let (zr, zi) = z[b];
+                        sr += c.0 * zr + c.1 * zi;
+                        si += c.1 * zr - c.0 * zi;
+                    }
+                    v += 2.0 * (sr * z[a].0 - si * z[a].1);
+                }
+                v
+            })
+            .collect()
+    }
+}
+
 /// Real and imaginary parts of z_a conj(z_b).
 #[inline]
 fn phase_product(ar: f64, ai: f64, br: f64, bi: f64) -> (f64, f64) {
@@ -276,6 +337,10 @@ pub struct Trace {
     pub cos2: Vec<f64>,
     /// ⟨cos²θ_2D⟩ (= ⟨|cosθ|⟩ for an ensemble symmetric about Z) at each time; empty if not computed.
     pub cos2_2d: Vec<f64>,
+    /// ⟨cosθ⟩ (orientation) at each time; empty when no field breaks head–tail symmetry.
+    pub cos: Vec<f64>,
+    /// ⟨cos³θ⟩ at each time; empty when no field breaks head–tail symmetry.
+    pub cos3: Vec<f64>,
 }
 
 /// Location of an extremum of a sampled series.

@@ -6,6 +6,8 @@
 //! fourth-order symmetric splitting built from these two exact pieces.
 
 use crate::basis::Block;
+
+pub mod polar;
 use crate::molecule::Molecule;
 use nalgebra::{DMatrix, SymmetricEigen};
 
@@ -80,6 +82,14 @@ impl BlockState {
         BlockState { work: DMatrix::zeros(size, 2 * k), psi, k, t_ps, single_level: Some(start_index.to_vec()) }
     }
 
+    /// States given as real columns (e.g. field-dressed eigenstates) at time `t_ps`.
+    pub fn from_columns(columns: &DMatrix<f64>, t_ps: f64) -> BlockState {
+        let (n, k) = columns.shape();
+        let mut psi = DMatrix::zeros(n, 2 * k);
+        psi.columns_mut(0, k).copy_from(columns);
+        BlockState { work: DMatrix::zeros(n, 2 * k), psi, k, t_ps, single_level: None }
+    }
+
     /// Exact field-free evolution by `dt_ps`: ψ_n ← exp(−i ω_n dt) ψ_n.
     pub fn free(&mut self, ops: &BlockOps, dt_ps: f64) {
         if dt_ps == 0.0 {
@@ -100,11 +110,17 @@ impl BlockState {
         if theta == 0.0 {
             return;
         }
+        let angles: Vec<f64> = ops.cos2_eigenvalues.iter().map(|a| theta * a).collect();
+        self.rotate_in_basis(&ops.cos2_eigenvectors, &ops.cos2_eigenvectors_t, &angles);
+    }
+
+    /// ψ ← V diag(exp(i angle_q)) Vᵀ ψ for an orthogonal V (columns: the basis in which the operator
+    /// is diagonal) and its transpose `vt`.
+    pub fn rotate_in_basis(&mut self, v: &DMatrix<f64>, vt: &DMatrix<f64>, angles: &[f64]) {
         let n = self.psi.nrows();
         let k = self.k;
         if let Some(start) = self.single_level.take() {
             // Each state is z_c e_{start_c}: Vᵀψ is row start_c of V times z_c, no product needed.
-            let v = &ops.cos2_eigenvectors;
             for (c, &r) in start.iter().enumerate() {
                 let (zr, zi) = (self.psi[(r, c)], self.psi[(r, c + k)]);
                 for q in 0..n {
@@ -113,11 +129,11 @@ impl BlockState {
                 }
             }
         } else {
-            self.work.gemm(1.0, &ops.cos2_eigenvectors_t, &self.psi, 0.0);
+            self.work.gemm(1.0, vt, &self.psi, 0.0);
         }
-        let (c, s): (Vec<f64>, Vec<f64>) = ops.cos2_eigenvalues.iter().map(|a| { let (s, c) = (theta * a).sin_cos(); (c, s) }).unzip();
+        let (c, s): (Vec<f64>, Vec<f64>) = angles.iter().map(|a| { let (s, c) = a.sin_cos(); (c, s) }).unzip();
         rotate_rows(&mut self.work, k, n, &c, &s);
-        self.psi.gemm(1.0, &ops.cos2_eigenvectors, &self.work, 0.0);
+        self.psi.gemm(1.0, v, &self.work, 0.0);
     }
 
     /// Largest population (over the K states) in the top `levels` basis states.
@@ -196,7 +212,12 @@ pub struct FreePhases {
 impl FreePhases {
     /// Phases of the block's levels for a step of `dt_ps`.
     pub fn new(ops: &BlockOps, dt_ps: f64) -> FreePhases {
-        let (c, s) = ops.omega.iter().map(|w| { let (s, c) = (-w * dt_ps).sin_cos(); (c, s) }).unzip();
+        FreePhases::from_omega(&ops.omega, dt_ps)
+    }
+
+    /// Phases exp(−i ω_n dt) for angular frequencies ω (rad/ps) and a step of `dt_ps`.
+    pub fn from_omega(omega: &[f64], dt_ps: f64) -> FreePhases {
+        let (c, s) = omega.iter().map(|w| { let (s, c) = (-w * dt_ps).sin_cos(); (c, s) }).unzip();
         FreePhases { c, s, dt_ps }
     }
 
@@ -242,16 +263,17 @@ fn composition_weights() -> [f64; 5] {
     [p, p, 1.0 - 4.0 * p, p, p]
 }
 
-/// Propagate `state` from its current time to `t_end_ps` through the field with coupling rate
-/// `rate(t)` (rad/ps; H = H0 − rate·cos²θ), with steps no longer than `max_step_ps`. The step grid
-/// lands exactly on every time in `stops` (sorted, strictly inside the interval), where
-/// `at_stop(i, state)` is called with the index of the stop in `stops`, and on every time in `breaks`
-/// (where the envelope is not smooth), so that no step straddles a kink.
+/// Propagate `state` from its current time to `t_end_ps` under H = H0 + V(t), with H0 diagonal
+/// (angular frequencies `omega`, rad/ps) and `kick(state, t, h)` applying exp(−i V(t) h) exactly (t the
+/// midpoint of a substep of length h), with steps no longer than `max_step_ps`. The step grid lands
+/// exactly on every time in `stops` (sorted, strictly inside the interval), where `at_stop(i, state)` is
+/// called with the index of the stop in `stops`, and on every time in `breaks` (where the field is not
+/// smooth), so that no step straddles a kink.
 #[allow(clippy::too_many_arguments)]
 pub fn propagate_finite(
     state: &mut BlockState,
-    ops: &BlockOps,
-    rate: &dyn Fn(f64) -> f64,
+    omega: &[f64],
+    kick: &mut dyn FnMut(&mut BlockState, f64, f64),
     t_end_ps: f64,
     max_step_ps: f64,
     stops: &[f64],
@@ -271,14 +293,15 @@ pub fn propagate_finite(
             let h = len / nsteps as f64;
             // Strang substeps (half free step, kick at the midpoint, half free step); the free half
             // steps of neighbouring substeps are merged, so only a few distinct free steps occur.
-            let first = FreePhases::new(ops, 0.5 * w[0] * h);
-            let inner: Vec<FreePhases> = (0..w.len() - 1).map(|i| FreePhases::new(ops, 0.5 * (w[i] + w[i + 1]) * h)).collect();
-            let joint = FreePhases::new(ops, 0.5 * (w[w.len() - 1] + w[0]) * h);
+            let first = FreePhases::from_omega(omega, 0.5 * w[0] * h);
+            let inner: Vec<FreePhases> = (0..w.len() - 1).map(|i| FreePhases::from_omega(omega, 0.5 * (w[i] + w[i + 1]) * h)).collect();
+            let joint = FreePhases::from_omega(omega, 0.5 * (w[w.len() - 1] + w[0]) * h);
             state.free_with(&first);
             for step in 0..nsteps {
                 for (i, wi) in w.iter().enumerate() {
                     let hi = wi * h;
-                    state.kick(ops, hi * rate(state.t_ps));
+                    let t = state.t_ps;
+                    kick(state, t, hi);
                     if i + 1 < w.len() {
                         state.free_with(&inner[i]);
                     } else if step + 1 < nsteps {

@@ -83,6 +83,19 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         "peak_cos2_2d": extremum(tr.max_after(&tr.cos2_2d, after)),
         "min_cos2": extremum(tr.min_after(&tr.cos2, after)),
         "min_cos2_2d": extremum(tr.min_after(&tr.cos2_2d, after)),
+        "static_field": s.field.static_field,
+        "peak_orientation": if tr.cos.is_empty() { Value::Null } else {
+            let hi = tr.max_after(&tr.cos, after);
+            let lo = tr.min_after(&tr.cos, after);
+            match (hi, lo) {
+                (Some(h), Some(l)) => {
+                    let e = if h.value.abs() >= l.value.abs() { h } else { l };
+                    json!({"cos": e.value, "t_ps": e.t_ps, "sign": if e.value >= 0.0 { "+Z" } else { "-Z" }})
+                }
+                _ => Value::Null,
+            }
+        },
+        "permanent_cos": r.permanent_cos.map(num),
         "permanent_cos2": num(r.permanent_cos2),
         "permanent_cos2_2d": num(r.permanent_cos2_2d),
         "revival_period_ps": revival_period_ps(s.molecule.b_cm),
@@ -103,6 +116,13 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
 
 /// The trace as CSV text with columns `t_ps,cos2,cos2_2d` (and any extra named columns).
 pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
+    let mut cols: Vec<(&str, &[f64])> = vec![];
+    if !trace.cos.is_empty() {
+        cols.push(("cos", &trace.cos));
+        cols.push(("cos3", &trace.cos3));
+    }
+    cols.extend_from_slice(extra);
+    let extra = &cols[..];
     let mut out = String::from("t_ps,cos2");
     let has_2d = !trace.cos2_2d.is_empty();
     if has_2d {
@@ -138,6 +158,14 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     plot.series.push(svg::Series { label: "⟨cos²θ⟩".into(), x: trace.times_ps.clone(), y: trace.cos2.clone(), color: "#1f5fa8".into(), dashed: false, width: 1.6 });
     if !trace.cos2_2d.is_empty() {
         plot.series.push(svg::Series { label: "⟨cos²θ_2D⟩".into(), x: trace.times_ps.clone(), y: trace.cos2_2d.clone(), color: "#d9622b".into(), dashed: false, width: 1.6 });
+    }
+    if !trace.cos.is_empty() {
+        plot.series.push(svg::Series { label: "⟨cosθ⟩".into(), x: trace.times_ps.clone(), y: trace.cos.clone(), color: "#2a7f3f".into(), dashed: false, width: 1.6 });
+        plot.hlines.push(svg::HLine { y: 0.0, label: "no orientation".into(), color: "#2a7f3f".into() });
+        plot.y_label = "alignment and orientation".into();
+    }
+    if let Some(sf) = &scenario.field.static_field {
+        plot.subtitle = Some(format!("{}; static field {} kV/cm", plot.subtitle.clone().unwrap_or_default(), sf.strength_kv_cm));
     }
     for (i, p) in scenario.field.pulses.iter().enumerate() {
         let h = 0.5 * p.fwhm_ps();

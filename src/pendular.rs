@@ -1,0 +1,155 @@
+//! The adiabatic (pendular) limit: field-dressed eigenstates of H0 − U0 cos²θ − μE cosθ for a
+//! constant laser intensity and static field, each labelled by the field-free level it connects to
+//! adiabatically, and thermal averages over them.
+
+use crate::basis::{Block, BOTH_PARITIES};
+use crate::ensemble::ThermalEnsemble;
+use crate::error::{Error, Result};
+use crate::molecule::Molecule;
+use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2, dipole_rate_rad_per_ps};
+use nalgebra::SymmetricEigen;
+use serde::Serialize;
+
+/// One field-dressed (pendular) state.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct DressedState {
+    /// Field-free J this state connects to adiabatically.
+    pub j: u32,
+    /// |M| (conserved).
+    pub m: u32,
+    /// Energy relative to the field-free J = 0 level, cm⁻¹ (without the isotropic −¼α⊥E0² shift).
+    pub energy_cm: f64,
+    /// Energy in units of the rotational constant B.
+    pub energy_b: f64,
+    /// ⟨cos²θ⟩ of the state.
+    pub cos2: f64,
+    /// ⟨cosθ⟩ of the state.
+    pub cos: f64,
+}
+
+/// Dressed states and thermal averages at one field strength.
+#[derive(Debug, Clone, Serialize)]
+pub struct PendularResult {
+    /// Dressed states, by |M| then energy.
+    pub states: Vec<DressedState>,
+    /// Thermal average of ⟨cos²θ⟩ (field-free Boltzmann populations carried adiabatically).
+    pub thermal_cos2: f64,
+    /// Thermal average of ⟨cosθ⟩.
+    pub thermal_cos: f64,
+    /// Dimensionless laser interaction strength Δω = U0 / B (the spheroidal c²).
+    pub laser_strength_b: f64,
+    /// Dimensionless dipole interaction strength ω = μE / B.
+    pub static_strength_b: f64,
+}
+
+/// Dressed states of one |M| block (both parities of J) with `size` basis states, in rad/ps and
+/// sorted by energy; returns (eigen-frequencies, eigenvectors, block).
+fn dressed_block(mol: &Molecule, m: u32, size: usize, u0: f64, s: f64) -> (Vec<f64>, nalgebra::DMatrix<f64>, Block) {
+    let block = Block { m, parity: BOTH_PARITIES, size };
+    let omega = block.frequencies(mol);
+    let c2 = block.matrix_of(|x| x * x, 2);
+    let c1 = block.matrix_of(|x| x, 1);
+    let mut h = -u0 * c2 - s * c1;
+    for n in 0..size {
+        h[(n, n)] += omega[n];
+    }
+    let eig = SymmetricEigen::new(h);
+    let mut order: Vec<usize> = (0..size).collect();
+    order.sort_by(|&a, &b| eig.eigenvalues[a].total_cmp(&eig.eigenvalues[b]));
+    let vals = order.iter().map(|&i| eig.eigenvalues[i]).collect();
+    let vecs = nalgebra::DMatrix::from_fn(size, size, |r, c| eig.eigenvectors[(r, order[c])]);
+    (vals, vecs, block)
+}
+
+/// Dressed states for |M| = 0..=m_max and field-free J up to `j_max` at a laser intensity (W/cm²,
+/// cycle-averaged) and a static field (kV/cm) along the same axis; thermal averages at `temperature_k`.
+/// Without a static field the parity of J is conserved and states are labelled within each parity;
+/// the basis is enlarged until the reported energies change by less than 1e-10 B.
+pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32) -> Result<PendularResult> {
+    if !intensity_wcm2.is_finite() || !(0.0..=1e15).contains(&intensity_wcm2) {
+        return Err(Error::input("intensity_wcm2", format!("expected 0 to 1e15 W/cm², got {intensity_wcm2}")));
+    }
+    if !static_kv_cm.is_finite() || static_kv_cm.abs() > 1e4 {
+        return Err(Error::input("static_kv_cm", format!("expected at most 1e4 kV/cm in magnitude, got {static_kv_cm}")));
+    }
+    if static_kv_cm != 0.0 && !mol.is_polar() {
+        return Err(Error::input("molecule.dipole_debye", format!("a static field needs a polar molecule; {} has no permanent dipole", mol.name)));
+    }
+    let ensemble = ThermalEnsemble::new(mol, temperature_k, 1e-8)?;
+    let j_top = j_max.max(ensemble.j_max);
+    let b = cm_to_rad_per_ps(mol.b_cm);
+    let u0 = coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * intensity_wcm2;
+    let s = dipole_rate_rad_per_ps(mol.dipole_debye, static_kv_cm);
+    let mut states = vec![];
+    let (mut t_cos2, mut t_cos) = (0.0, 0.0);
+    for m in 0..=j_top {
+        // Grow the basis until the wanted eigenvalues converge.
+        let wanted = (j_top - m + 1) as usize;
+        let mut size = wanted + 20 + (3.0 * ((u0 + s.abs()) / b).sqrt()).ceil() as usize;
+        let (vals, vecs, block) = loop {
+            let a = dressed_block(mol, m, size, u0, s);
+            let c = dressed_block(mol, m, size + 10, u0, s);
+            let worst = (0..wanted).map(|i| (a.0[i] - c.0[i]).abs()).fold(0.0, f64::max);
+            if worst < 1e-10 * b {
+                break c;
+            }
+            size += 20;
+            if block_too_big(m, size, mol) {
+                return Err(Error::Numerical(format!("dressed states of |M| = {m} did not converge below J = {}", mol.max_physical_j())));
+            }
+        };
+        let c2 = block.matrix_of(|x| x * x, 2);
+        let c1 = block.matrix_of(|x| x, 1);
+        // Without a static field, label within each parity (the two ladders may cross).
+        let labels: Vec<u32> = if s == 0.0 {
+            let mut lab = vec![];
+            let (mut next_even, mut next_odd) = (first_with_parity(m, 0), first_with_parity(m, 1));
+            for i in 0..vals.len() {
+                let v = vecs.column(i);
+                let even_weight: f64 = (0..block.size).filter(|&n| block.j(n) % 2 == 0).map(|n| v[n] * v[n]).sum();
+                if even_weight > 0.5 {
+                    lab.push(next_even);
+                    next_even += 2;
+                } else {
+                    lab.push(next_odd);
+                    next_odd += 2;
+                }
+            }
+            lab
+        } else {
+            (0..vals.len() as u32).map(|i| m + i).collect()
+        };
+        for i in 0..vals.len() {
+            if labels[i] > j_top {
+                continue;
+            }
+            let v = vecs.column(i).clone_owned();
+            let cos2 = (v.transpose() * &c2 * &v)[(0, 0)];
+            let cos = (v.transpose() * &c1 * &v)[(0, 0)];
+            let e = vals[i] / cm_to_rad_per_ps(1.0);
+            states.push(DressedState { j: labels[i], m, energy_cm: e, energy_b: e / mol.b_cm, cos2, cos });
+            // Thermal weight of the field-free level (J, M), both signs of M.
+            let g = if m == 0 { 1.0 } else { 2.0 };
+            let p = ensemble
+                .blocks
+                .iter()
+                .filter(|bp| bp.m == m)
+                .flat_map(|bp| bp.levels.iter())
+                .find(|l| l.0 == labels[i])
+                .map(|l| l.1)
+                .unwrap_or(0.0);
+            t_cos2 += g * p * cos2;
+            t_cos += g * p * cos;
+        }
+    }
+    states.sort_by(|a, b| (a.m, a.energy_cm).partial_cmp(&(b.m, b.energy_cm)).expect("finite energies"));
+    Ok(PendularResult { states, thermal_cos2: t_cos2, thermal_cos: t_cos, laser_strength_b: u0 / b, static_strength_b: s / b })
+}
+
+fn first_with_parity(m: u32, parity: u32) -> u32 {
+    if m % 2 == parity { m } else { m + 1 }
+}
+
+fn block_too_big(m: u32, size: usize, mol: &Molecule) -> bool {
+    m as usize + size > mol.max_physical_j() as usize
+}

@@ -1,0 +1,139 @@
+//! Orientation and the adiabatic limit: static fields with laser pulses (one block per |M| holding
+//! both parities of J), checked against exact symmetries, perturbation theory, the classical
+//! Langevin–Debye limit and tabulated oblate spheroidal characteristic values.
+
+use kicktrain::field::{FieldModel, Pulse, StaticField};
+use kicktrain::molecule::Molecule;
+use kicktrain::pendular::pendular;
+use kicktrain::propagate::polar::PolarOps;
+use kicktrain::scenario::{Method, SolverSettings};
+use kicktrain::simulate::Solver;
+use kicktrain::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
+
+fn lib(name: &str) -> Molecule {
+    Molecule::from_library(name, "molecule").unwrap()
+}
+
+fn grid(start: f64, stop: f64, step: f64) -> Vec<f64> {
+    let n = ((stop - start) / step).round() as usize;
+    (0..=n).map(|i| start + i as f64 * step).collect()
+}
+
+fn max_diff(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
+}
+
+#[test]
+fn laser_alone_gives_no_orientation_and_both_parity_blocks_reproduce_the_split_solver() {
+    // A linearly polarized laser keeps the head–tail symmetry: ⟨cosθ⟩ = ⟨cos³θ⟩ = 0 exactly (parity).
+    // The block with both parities must reproduce the parity-split solver's alignment.
+    let mol = lib("OCS");
+    let times = grid(-0.5, 60.0, 0.25);
+    let field = FieldModel::pulses(vec![Pulse::gaussian(0.0, 300.0, 4e12)]);
+    let split = Solver::new(&mol, 2.0, SolverSettings::default()).unwrap().run(&field, &times, true).unwrap().trace;
+    let both = Solver::new(&mol, 2.0, SolverSettings { both_parities: true, ..Default::default() }).unwrap().run(&field, &times, true).unwrap().trace;
+    assert!(max_diff(&split.cos2, &both.cos2) < 1e-8, "{}", max_diff(&split.cos2, &both.cos2));
+    assert!(max_diff(&split.cos2_2d, &both.cos2_2d) < 1e-8);
+    assert!(both.cos.iter().chain(&both.cos3).all(|v| v.abs() < 1e-12));
+    assert!(split.cos2.iter().cloned().fold(0.0, f64::max) > 0.5, "the pulse must align strongly for this test to mean something");
+}
+
+#[test]
+fn reversing_the_static_field_reverses_orientation_exactly() {
+    // Symmetry: E → −E maps θ → π − θ, so ⟨cosθ⟩ and ⟨cos³θ⟩ change sign and ⟨cos²θ⟩ is unchanged.
+    let mol = lib("OCS");
+    let times = grid(-1.0, 40.0, 0.5);
+    let run = |kv: f64| {
+        let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 500.0, 3e12)], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }) };
+        Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&field, &times, false).unwrap().trace
+    };
+    let (up, down) = (run(50.0), run(-50.0));
+    let peak = up.cos.iter().cloned().fold(0.0f64, |a, b| a.max(b.abs()));
+    assert!(peak > 0.01, "orientation must be visible: {peak}");
+    for i in 0..times.len() {
+        assert!((up.cos[i] + down.cos[i]).abs() < 1e-10);
+        assert!((up.cos3[i] + down.cos3[i]).abs() < 1e-10);
+        assert!((up.cos2[i] - down.cos2[i]).abs() < 1e-10);
+    }
+}
+
+#[test]
+fn weak_static_field_second_order_stark_shift_and_brute_force_orientation() {
+    // Rigid rotor J = 0 in a weak field: ΔE = −μ²E²/(6B) and ⟨cosθ⟩ = μE/(3B) (second- and first-order
+    // perturbation theory, textbook Stark effect).
+    let mol = lib("OCS");
+    let ops = PolarOps::new(0, 30, &mol);
+    let b = cm_to_rad_per_ps(mol.b_cm);
+    let s = dipole_rate_rad_per_ps(mol.dipole_debye, 0.2);
+    assert!(s / b < 0.02);
+    let e = ops.static_eigen(s);
+    let shift = e.eps[0] - ops.omega[0];
+    let want = -s * s / (6.0 * b);
+    assert!((shift / want - 1.0).abs() < 1e-3, "shift {shift} vs {want}");
+    let v = e.s.column(0);
+    let cos = (v.transpose() * &ops.observables[2] * v)[(0, 0)];
+    assert!((cos / (s / (3.0 * b)) - 1.0).abs() < 1e-3, "⟨cos⟩ {cos}");
+}
+
+#[test]
+fn thermal_orientation_in_a_static_field_follows_langevin_debye() {
+    // High-temperature limit: ⟨cosθ⟩ = L(μE/kT) ≈ μE/(3kT) (Langevin–Debye), with quantum corrections
+    // of order B/kT (0.6 % here). The ensemble enters the field adiabatically (field on from the start).
+    let mol = lib("OCS");
+    let t = 50.0;
+    let kv = 100.0;
+    let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }) };
+    let r = Solver::new(&mol, t, SolverSettings::default()).unwrap().run(&field, &[0.0, 5.0], false).unwrap();
+    let mu_e = mol.dipole_debye * 0.016_792_5 * kv; // cm⁻¹ (1 D·kV/cm = 0.0167925 cm⁻¹)
+    let x = mu_e / kicktrain::units::kt_in_cm(t);
+    let langevin = 1.0 / x.tanh() - 1.0 / x;
+    assert!((r.trace.cos[0] / langevin - 1.0).abs() < 0.02, "⟨cos⟩ {} vs Langevin {langevin}", r.trace.cos[0]);
+    // A stationary ensemble: the same at a later time.
+    assert!((r.trace.cos[1] - r.trace.cos[0]).abs() < 1e-10);
+}
+
+#[test]
+fn dressed_energies_equal_oblate_spheroidal_characteristic_values() {
+    // Pure laser field, D = 0: E/B = λ_mn(c) with c² = Δω = U0/B, the oblate angular spheroidal
+    // characteristic values (Abramowitz & Stegun ch. 21). Reference numbers: scipy.special.obl_cv
+    // (scipy 1.17.1), computed once and pasted here.
+    let table: [(u32, f64, [f64; 4]); 6] = [
+        (0, 1.0, [-0.34860239947026983, 1.3932063104484202, 5.486800053818676, 11.492120902297968]),
+        (0, 10.0, [-4.976895949621676, -4.607952313971346, 1.938419863832853, 7.141427596351875]),
+        (0, 50.0, [-36.90010094406737, -36.89911573587568, -13.565479512163211, -13.216748749752416]),
+        (1, 10.0, [-0.5935774790530288, 1.317369380878136, 7.602649136573447, 15.320743540170614]),
+        (1, 50.0, [-23.91226624205671, -23.890964126152543, -4.479411953697962, -2.4322690542410466]),
+        (2, 10.0, [4.334721792787596, 8.430250526121684, 15.990084610139247, 25.67658772618987]),
+    ];
+    let mut mol = Molecule::linear("rigid", 0.2, 0.0, 6.0, 3.0, [1.0, 1.0]);
+    mol.d_cm = 0.0;
+    let per_wcm2 = kicktrain::units::coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() / cm_to_rad_per_ps(mol.b_cm);
+    for (m, c2, want) in table {
+        let r = pendular(&mol, c2 / per_wcm2, 0.0, 0.0, m + 3).unwrap();
+        assert!((r.laser_strength_b - c2).abs() < 1e-9 * c2);
+        let mine: Vec<f64> = r.states.iter().filter(|s| s.m == m).map(|s| s.energy_b).take(4).collect();
+        for n in 0..4 {
+            assert!((mine[n] - want[n]).abs() < 1e-8 * want[n].abs().max(1.0), "m={m} c²={c2} n={n}: {} vs {}", mine[n], want[n]);
+        }
+    }
+}
+
+#[test]
+fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state() {
+    // A pulse much longer than the rotational period carries J = 0 into the pendular ground state and
+    // back (adiabatic theorem): ⟨cos²θ⟩ at the peak equals the dressed value; afterwards the field-free
+    // ensemble is restored (⟨cos²θ⟩ = 1/3 for J = 0).
+    let mol = Molecule::linear("light rotor", 2.0, 0.0, 3.0, 1.0, [1.0, 1.0]);
+    let intensity = 2e13;
+    let dressed = pendular(&mol, intensity, 0.0, 0.0, 2).unwrap();
+    let ground = dressed.states.iter().find(|s| s.m == 0 && s.j == 0).unwrap();
+    // T_rev = 8.3 ps; a 60 ps sech² pulse is slow.
+    let field = FieldModel::pulses(vec![Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Gaussian, rise_fs: None }]);
+    let settings = SolverSettings { method: Method::Finite, ..Default::default() };
+    let r = Solver::new(&mol, 0.0, settings).unwrap().run(&field, &[0.0, 200.0, 201.0], false).unwrap();
+    assert!((r.trace.cos2[0] - ground.cos2).abs() < 2e-3, "peak {} vs adiabatic {}", r.trace.cos2[0], ground.cos2);
+    assert!(ground.cos2 > 0.5);
+    for v in &r.trace.cos2[1..] {
+        assert!((v - 1.0 / 3.0).abs() < 2e-3, "after the pulse {v}");
+    }
+}
