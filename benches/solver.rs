@@ -19,7 +19,7 @@ fn median(mut v: Vec<f64>) -> f64 {
 
 fn peer_job() {
     let mol = Molecule::linear("N2 (peer constants)", 1.98958, 5.76e-6, 1.93, 1.0, [2.0, 1.0]);
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 5e13)], static_field: None };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 5e13)], static_field: None, ..Default::default() };
     let times: Vec<f64> = (0..590).map(|i| 0.2 + i as f64 * 0.02).collect();
     let mut runs = vec![];
     let mut last = None;

@@ -2,7 +2,7 @@
 //! Parsed field by field so that every error names the field and the expected unit or range.
 
 use crate::error::{require_non_negative, require_positive, Error, Result};
-use crate::field::{FieldModel, Pulse, PulseShape, StaticField};
+use crate::field::{FieldModel, Pulse, PulseShape, StaticField, TerahertzPulse, TerahertzWaveform, TwoColourPulse};
 use crate::goal::{parse_goal, Goal};
 use crate::input::{join, parse_json, type_name, Fields};
 use crate::molecule::Molecule;
@@ -123,7 +123,7 @@ impl Scenario {
             molecule: Molecule::from_library(molecule, "molecule")?,
             molecule_source: MoleculeSource::Library(molecule.to_string()),
             temperature_k,
-            field: FieldModel { pulses, static_field: None },
+            field: FieldModel { pulses, static_field: None, ..Default::default() },
             window,
             solver: SolverSettings::default(),
             goal: None,
@@ -160,6 +160,8 @@ impl Scenario {
             None => None,
             Some(v) => Some(parse_static(v, &f.path_of("static_field"))?),
         };
+        let two_colour = parse_list(f.opt_value("two_colour"), &f.path_of("two_colour"), parse_two_colour)?;
+        let terahertz = parse_list(f.opt_value("terahertz"), &f.path_of("terahertz"), parse_terahertz)?;
         let wv = f.req_value("window", "an object with start_ps, stop_ps, step_fs")?;
         let window = parse_window(wv, &f.path_of("window"))?;
         let solver = match f.opt_value("solver") {
@@ -171,7 +173,7 @@ impl Scenario {
             Some(g) => Some(parse_goal(g, &f.path_of("goal"))?),
         };
         f.finish()?;
-        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field }, window, solver, goal };
+        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field, two_colour, terahertz }, window, solver, goal };
         s.validate_at(path)?;
         Ok(s)
     }
@@ -197,6 +199,24 @@ impl Scenario {
                     join(path, "molecule.dipole_debye"),
                     format!("a static field needs a polar molecule, but {} has no permanent dipole (give dipole_debye)", self.molecule.name),
                 ));
+            }
+        }
+        for (i, tc) in self.field.two_colour.iter().enumerate() {
+            let p = format!("{}[{i}]", join(path, "two_colour"));
+            tc.validate(&p)?;
+            for (name, v) in [("beta_parallel_au", self.molecule.beta_parallel_au), ("beta_perpendicular_au", self.molecule.beta_perpendicular_au)] {
+                if v.is_none() {
+                    return Err(Error::input(
+                        join(path, &format!("molecule.{name}")),
+                        format!("a two-colour pulse needs the hyperpolarizability of {} (β∥ and β⊥ in atomic units, Taylor convention); give it in an inline molecule", self.molecule.name),
+                    ));
+                }
+            }
+        }
+        for (i, th) in self.field.terahertz.iter().enumerate() {
+            th.validate(&format!("{}[{i}]", join(path, "terahertz")))?;
+            if !self.molecule.is_polar() {
+                return Err(Error::input(join(path, "molecule.dipole_debye"), format!("a terahertz pulse needs a polar molecule, but {} has no permanent dipole", self.molecule.name)));
             }
         }
         if self.field.is_polar() && self.goal.is_some() {
@@ -239,6 +259,12 @@ impl Scenario {
         obj.insert("pulses".into(), serde_json::to_value(&self.field.pulses).expect("pulses serialize"));
         if let Some(sf) = &self.field.static_field {
             obj.insert("static_field".into(), serde_json::to_value(sf).expect("static field serializes"));
+        }
+        if !self.field.two_colour.is_empty() {
+            obj.insert("two_colour".into(), serde_json::to_value(&self.field.two_colour).expect("serializes"));
+        }
+        if !self.field.terahertz.is_empty() {
+            obj.insert("terahertz".into(), serde_json::to_value(&self.field.terahertz).expect("serializes"));
         }
         obj.insert("window".into(), json!({"start_ps": self.window.start_ps, "stop_ps": self.window.stop_ps, "step_fs": self.window.step_fs}));
         let mut solver = serde_json::Map::new();
@@ -303,6 +329,59 @@ fn parse_pulse(v: &Value, path: &str) -> Result<Pulse> {
     let p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape, rise_fs };
     p.validate(path)?;
     Ok(p)
+}
+
+fn parse_list<T>(v: Option<&Value>, path: &str, item: fn(&Value, &str) -> Result<T>) -> Result<Vec<T>> {
+    match v {
+        None => Ok(vec![]),
+        Some(Value::Array(items)) => items.iter().enumerate().map(|(i, x)| item(x, &format!("{path}[{i}]"))).collect(),
+        Some(other) => Err(Error::input(path, format!("expected an array, got {}", type_name(other)))),
+    }
+}
+
+fn parse_two_colour(v: &Value, path: &str) -> Result<TwoColourPulse> {
+    let mut f = Fields::new(v, path)?;
+    let center_ps = f.req_f64("center_ps", "ps")?;
+    let fwhm_fs = f.req_f64("fwhm_fs", "fs")?;
+    let fundamental_intensity_wcm2 = f.req_f64("fundamental_intensity_wcm2", "W/cm²")?;
+    let sh = f.opt_f64("second_harmonic_intensity_wcm2", "W/cm²")?;
+    let ratio = f.opt_f64("second_harmonic_ratio", "second-harmonic to fundamental intensity ratio")?;
+    let second_harmonic_intensity_wcm2 = match (sh, ratio) {
+        (Some(i), None) => i,
+        (None, Some(r)) => {
+            if !(0.0..=10.0).contains(&r) {
+                return Err(Error::input(join(path, "second_harmonic_ratio"), format!("expected a ratio from 0 to 10, got {r}")));
+            }
+            r * fundamental_intensity_wcm2
+        }
+        (Some(_), Some(_)) => return Err(Error::input(join(path, "second_harmonic_ratio"), "give second_harmonic_intensity_wcm2 or second_harmonic_ratio, not both")),
+        (None, None) => return Err(Error::input(join(path, "second_harmonic_intensity_wcm2"), "missing; expected the second-harmonic peak intensity (W/cm²) or second_harmonic_ratio")),
+    };
+    let phase_rad = f.opt_f64("phase_rad", "rad")?.unwrap_or(0.0);
+    let shape = match f.opt_str("shape", PulseShape::NAMES)? {
+        None => PulseShape::Gaussian,
+        Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
+    };
+    f.finish()?;
+    let t = TwoColourPulse { center_ps, fwhm_fs, fundamental_intensity_wcm2, second_harmonic_intensity_wcm2, phase_rad, shape };
+    t.validate(path)?;
+    Ok(t)
+}
+
+fn parse_terahertz(v: &Value, path: &str) -> Result<TerahertzPulse> {
+    let mut f = Fields::new(v, path)?;
+    let center_ps = f.req_f64("center_ps", "ps")?;
+    let duration_fs = f.req_f64("duration_fs", "fs")?;
+    let peak_field_kv_cm = f.req_f64("peak_field_kv_cm", "kV/cm")?;
+    let waveform = match f.opt_str("waveform", "\"single_cycle\" or \"half_cycle\"")? {
+        None | Some("single_cycle") => TerahertzWaveform::SingleCycle,
+        Some("half_cycle") => TerahertzWaveform::HalfCycle,
+        Some(other) => return Err(Error::input(join(path, "waveform"), format!("expected \"single_cycle\" or \"half_cycle\", got \"{other}\""))),
+    };
+    f.finish()?;
+    let t = TerahertzPulse { center_ps, duration_fs, peak_field_kv_cm, waveform };
+    t.validate(path)?;
+    Ok(t)
 }
 
 fn parse_static(v: &Value, path: &str) -> Result<StaticField> {

@@ -13,7 +13,7 @@ use crate::goal::{Observable, Score};
 use crate::observe::{score_goal, BlockSums, DenseSums, LevelSums, Trace};
 use crate::propagate::{propagate_finite, BlockOps, BlockState, FreePhases};
 use crate::scenario::{Method, Scenario, SolverSettings};
-use crate::units::cm_to_rad_per_ps;
+use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
 use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -338,7 +338,7 @@ impl Solver {
                     }
                     let inside = times[ti..].partition_point(|t| *t < e);
                     let stops = &times[ti..ti + inside];
-                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), static_field: None };
+                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), static_field: None, ..Default::default() };
                     let rate = |t: f64| sub.alignment_rate(t, da);
                     let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
                     let base = ti;
@@ -361,16 +361,21 @@ impl Solver {
     }
 }
 
-/// One step of the schedule with both parities: a laser event or a switch of the static field.
-enum PolarItem<'a> {
-    Laser(&'a Event),
+/// One step of the schedule with both parities.
+enum PolarItem {
+    /// exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) at time t.
+    Kick { t_ps: f64, theta: [f64; 3] },
+    /// Time-dependent propagation through all fields from start to end with steps ≤ step.
+    Finite { start_ps: f64, end_ps: f64, step_ps: f64 },
+    /// The static field switches on or off.
     Switch(f64),
 }
 
-impl PolarItem<'_> {
+impl PolarItem {
     fn span(&self) -> (f64, f64) {
         match self {
-            PolarItem::Laser(e) => e.span(),
+            PolarItem::Kick { t_ps, .. } => (*t_ps, *t_ps),
+            PolarItem::Finite { start_ps, end_ps, .. } => (*start_ps, *end_ps),
             PolarItem::Switch(t) => (*t, *t),
         }
     }
@@ -382,21 +387,76 @@ impl Solver {
         field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
     }
 
-    /// The solver with one block per |M| holding both parities of J (static fields).
-    fn run_polar(&self, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
-        self.check_strength(field)?;
-        let events = self.schedule(field);
-        let mut items: Vec<PolarItem> = events.iter().map(PolarItem::Laser).collect();
+    /// The schedule with both parities: kicks or finite intervals for every time-dependent element
+    /// (laser, two-colour, terahertz), plus static-field switches; and the laser events for reports.
+    fn polar_schedule(&self, field: &FieldModel) -> (Vec<PolarItem>, Vec<Event>) {
+        use crate::units::{dipole_rate_rad_per_ps, peak_field_v_per_m, BETA_AU, EPSILON_0, HBAR};
+        let mol = &self.molecule;
+        let da = mol.delta_alpha_a3();
+        let j_ref = self.reference_j(field).min(mol.max_physical_j()).max(2);
+        let d_omega = cm_to_rad_per_ps(mol.energy_cm(j_ref) - mol.energy_cm(j_ref - 1)).abs();
+        let overlaps = |(a, b): (f64, f64), lo: f64, hi: f64| a <= hi && b >= lo;
+        let mut items = vec![];
+        let mut laser_events = vec![];
+        for (lo, hi, shortest) in field.all_intervals() {
+            let lasers: Vec<usize> = (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
+            if self.settings.method == Method::Kick {
+                for &i in &lasers {
+                    let p = &field.pulses[i];
+                    items.push(PolarItem::Kick { t_ps: p.center_ps, theta: [0.0, p.kick_strength(da), 0.0] });
+                    laser_events.push(Event::Kick { t_ps: p.center_ps, strength: p.kick_strength(da), pulse: i });
+                }
+                for tc in field.two_colour.iter().filter(|t| overlaps(t.envelope_pulse().support_ps(), lo, hi)) {
+                    let env = tc.envelope_pulse();
+                    let theta2 = coupling_rad_per_ps_per_a3_wcm2() * da * (tc.fundamental_intensity_wcm2 + tc.second_harmonic_intensity_wcm2) * env.envelope_area_ps();
+                    let e1 = peak_field_v_per_m(tc.fundamental_intensity_wcm2);
+                    let e2 = peak_field_v_per_m(tc.second_harmonic_intensity_wcm2);
+                    let g = 0.125 * e1 * e1 * e2 * tc.phase_rad.cos() * BETA_AU / HBAR * 1e-12 * tc.three_halves_area_ps();
+                    let (bp, bt) = (mol.beta_parallel_au.unwrap_or(0.0), mol.beta_perpendicular_au.unwrap_or(0.0));
+                    items.push(PolarItem::Kick { t_ps: tc.center_ps, theta: [g * 3.0 * bt, theta2, g * (bp - 3.0 * bt)] });
+                }
+                for th in field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)) {
+                    let (a1, a2) = th.field_areas();
+                    let theta1 = dipole_rate_rad_per_ps(mol.dipole_debye, a1);
+                    let theta2 = 0.5 * 4.0 * std::f64::consts::PI * EPSILON_0 * da * 1e-30 * a2 * 1e10 / HBAR * 1e-12;
+                    items.push(PolarItem::Kick { t_ps: th.center_ps, theta: [theta1, theta2, 0.0] });
+                }
+            } else {
+                // Step: a fraction of the shortest envelope, of the fastest transition near the basis
+                // top and of the inverse largest coupling rate in the interval.
+                let mut peak: f64 = 0.0;
+                for k in 0..=400 {
+                    let r = field.rates(lo + (hi - lo) * k as f64 / 400.0, mol);
+                    peak = peak.max(r.u1.abs()).max(r.u2.abs()).max(r.u3.abs());
+                }
+                let step_ps = match self.settings.step_fs {
+                    Some(fs) => fs / 1000.0,
+                    None => (shortest / 1.5).min(1.5 / d_omega).min(2.0 / peak.max(1e-30)),
+                };
+                items.push(PolarItem::Finite { start_ps: lo, end_ps: hi, step_ps });
+                if !lasers.is_empty() {
+                    laser_events.push(Event::Finite { start_ps: lo, end_ps: hi, pulses: lasers, step_ps });
+                }
+            }
+        }
         if let Some(sf) = field.static_field {
             items.extend(sf.on_ps.into_iter().chain(sf.off_ps).map(PolarItem::Switch));
         }
         items.sort_by(|a, b| a.span().0.total_cmp(&b.span().0));
+        (items, laser_events)
+    }
+
+    /// The solver with one block per |M| holding both parities of J (static, two-colour, terahertz fields).
+    fn run_polar(&self, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
+        self.check_strength(field)?;
+        let (items, events) = self.polar_schedule(field);
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
         // Room for the kicks plus the static-field mixing (about sqrt(μE/B) levels).
         let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
         let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
-        let extra = 2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + 4;
+        let dipole_kicks: f64 = items.iter().map(|i| if let PolarItem::Kick { theta, .. } = i { theta[0].abs() + theta[2].abs() } else { 0.0 }).sum();
+        let extra = 2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + (1.5 * dipole_kicks).ceil() as usize + 4;
         let pops = self.ensemble.merged_by_m();
         let outcomes: Vec<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> =
             pops.par_iter().map(|bp| self.run_polar_block(bp, field, &items, times, t_first, extra)).collect::<Result<Vec<_>>>()?;
@@ -446,7 +506,6 @@ impl Solver {
         let g = block.m_degeneracy();
         let pops: Vec<f64> = bp.levels.iter().map(|l| l.1).collect();
         let index: Vec<usize> = bp.levels.iter().map(|l| (l.0 - block.j_min()) as usize).collect();
-        let da = self.molecule.delta_alpha_a3();
         // A static field on from the start was met adiabatically: start in the dressed states that
         // correlate with the thermal field-free levels (same energy order within the block).
         let s0 = self.static_rate(field, t_first);
@@ -492,8 +551,8 @@ impl Solver {
             state.t_ps = s;
             match item {
                 PolarItem::Switch(_) => {}
-                PolarItem::Laser(Event::Kick { strength, .. }) => ops.kick(&mut state, *strength, 0.0),
-                PolarItem::Laser(Event::Finite { pulses, step_ps, .. }) => {
+                PolarItem::Kick { theta, .. } => ops.kick(&mut state, theta[0], theta[1], theta[2]),
+                PolarItem::Finite { step_ps, .. } => {
                     while ti < times.len() && times[ti] == s {
                         for (o, v) in eval_now(&state).into_iter().enumerate() {
                             values[o][ti] = v;
@@ -502,13 +561,15 @@ impl Solver {
                     }
                     let inside = times[ti..].partition_point(|t| *t < e);
                     let stops = &times[ti..ti + inside];
-                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), static_field: None };
-                    let mut breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
+                    let mut breaks: Vec<f64> = field.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
                     breaks.extend(switch_times.iter().copied());
-                    let mut kick = |st: &mut BlockState, t: f64, h: f64| ops.kick(st, h * sub.alignment_rate(t, da), h * self.static_rate(field, t));
+                    let mol = &self.molecule;
+                    let mut kick = |st: &mut BlockState, t: f64, h: f64| {
+                        let r = field.rates(t, mol);
+                        ops.kick(st, h * r.u1, h * r.u2, h * r.u3)
+                    };
                     let base = ti;
-                    // The static field's own step limit: a fraction of its inverse coupling rate.
-                    let step = step_ps.min(1.0 / self.static_rate(field, s).abs().max(1e-30));
+                    let step = *step_ps;
                     propagate_finite(&mut state, &ops.omega, &mut kick, e, step, stops, &breaks, |i, st| {
                         for (o, v) in eval_now(st).into_iter().enumerate() {
                             values[o][base + i] = v;

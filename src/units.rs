@@ -49,6 +49,9 @@ pub fn peak_field_v_per_m(intensity_wcm2: f64) -> f64 {
     (2.0 * intensity_wcm2 * 1e4 / (C_LIGHT * EPSILON_0)).sqrt()
 }
 
+/// One atomic unit of first hyperpolarizability in C³ m³ J⁻².
+pub const BETA_AU: f64 = 3.206_361_3e-53;
+
 /// One debye in C m.
 pub const DEBYE: f64 = 3.335_640_952e-30;
 

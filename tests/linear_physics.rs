@@ -34,7 +34,7 @@ fn zero_intensity_gives_isotropic_values_at_any_temperature() {
     let times = grid(-2.0, 10.0, 0.37);
     for (name, t) in [("N2", 0.0), ("N2", 4.0), ("CO2", 50.0), ("OCS", 300.0), ("O2", 1000.0)] {
         let solver = Solver::new(&lib(name), t, settings(Method::Auto)).unwrap();
-        let field = FieldModel { pulses: vec![Pulse::gaussian(1.0, 100.0, 0.0)], static_field: None };
+        let field = FieldModel { pulses: vec![Pulse::gaussian(1.0, 100.0, 0.0)], static_field: None, ..Default::default() };
         let r = solver.run(&field, &times, true).unwrap();
         for i in 0..times.len() {
             assert!((r.trace.cos2[i] - 1.0 / 3.0).abs() < 1e-12, "{name} {t} K cos2 {}", r.trace.cos2[i]);
@@ -84,7 +84,7 @@ fn zero_temperature_kick_matches_independent_quadrature() {
     let want = ground_state_kick_by_quadrature(&mol, p, &times);
     // A Gaussian pulse replaced by its kick: the solver's kick strength for this pulse is P.
     let i0 = p / Pulse::gaussian(0.0, 10.0, 1.0).kick_strength(mol.delta_alpha_a3());
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 10.0, i0)], static_field: None };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 10.0, i0)], static_field: None, ..Default::default() };
     for t in [0.0, 1e-4] {
         let solver = Solver::new(&mol, t, settings(Method::Kick)).unwrap();
         let r = solver.run(&field, &times, false).unwrap();
@@ -122,7 +122,7 @@ fn revival_period_recovered_from_trace() {
         let t_rev = revival_period_ps(mol.b_cm);
         let times = grid(0.5 * t_rev, 2.5 * t_rev, t_rev / 4000.0);
         let solver = Solver::new(&mol, 20.0, settings(Method::Kick)).unwrap();
-        let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 30.0, 3e13)], static_field: None };
+        let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 30.0, 3e13)], static_field: None, ..Default::default() };
         let r = solver.run(&field, &times, false).unwrap();
         let t1 = steepest_fall_near(&times, &r.trace.cos2, t_rev, 0.05 * t_rev);
         let t2 = steepest_fall_near(&times, &r.trace.cos2, 2.0 * t_rev, 0.05 * t_rev);
@@ -139,7 +139,7 @@ fn finite_pulse_matches_runge_kutta_reference_and_conserves_norm() {
         let ops = BlockOps::new(Block { m, parity, size: 24 }, &mol, false);
         let start: Vec<usize> = (0..6).collect();
         let pulse = Pulse::gaussian(0.0, 60.0, 6e13);
-        let field = FieldModel { pulses: vec![pulse.clone()], static_field: None };
+        let field = FieldModel { pulses: vec![pulse.clone()], static_field: None, ..Default::default() };
         let da = mol.delta_alpha_a3();
         let rate = |t: f64| field.alignment_rate(t, da);
         let (t0, t1) = pulse.support_ps();
@@ -164,7 +164,7 @@ fn finite_pulse_matches_runge_kutta_reference_and_conserves_norm() {
 fn step_and_basis_convergence() {
     let mol = lib("N2");
     let times = grid(0.2, 9.0, 0.02);
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 80.0, 4e13), Pulse::gaussian(2.1, 120.0, 3e13)], static_field: None };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 80.0, 4e13), Pulse::gaussian(2.1, 120.0, 3e13)], static_field: None, ..Default::default() };
     let run = |s: SolverSettings| Solver::new(&mol, 100.0, s).unwrap().run(&field, &times, true).unwrap().trace;
     let default = run(settings(Method::Finite));
     let fine = run(SolverSettings { method: Method::Finite, step_fs: Some(1.0), ..Default::default() });
@@ -182,13 +182,13 @@ fn short_pulse_agrees_with_kick() {
     // A 5 fs pulse is nearly impulsive for N2 at 30 K: the kick of the same strength agrees to 1e-3.
     let mol = lib("N2");
     let times = grid(0.05, 10.0, 0.01);
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 5.0, 4e14)], static_field: None };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 5.0, 4e14)], static_field: None, ..Default::default() };
     let finite = Solver::new(&mol, 30.0, settings(Method::Finite)).unwrap().run(&field, &times, true).unwrap().trace;
     let kick = Solver::new(&mol, 30.0, settings(Method::Kick)).unwrap().run(&field, &times, true).unwrap().trace;
     let d = max_diff(&finite.cos2, &kick.cos2);
     assert!(d < 1e-3, "5 fs pulse vs kick: {d}");
     // ... and a 200 fs pulse of the same strength clearly does not (the test can tell them apart).
-    let long = FieldModel { pulses: vec![Pulse { fwhm_fs: 200.0, peak_intensity_wcm2: 1e13, ..field.pulses[0].clone() }], static_field: None };
+    let long = FieldModel { pulses: vec![Pulse { fwhm_fs: 200.0, peak_intensity_wcm2: 1e13, ..field.pulses[0].clone() }], static_field: None, ..Default::default() };
     let f2 = Solver::new(&mol, 30.0, settings(Method::Finite)).unwrap().run(&long, &times, true).unwrap().trace;
     let k2 = Solver::new(&mol, 30.0, settings(Method::Kick)).unwrap().run(&long, &times, true).unwrap().trace;
     assert!(max_diff(&f2.cos2, &k2.cos2) > 1e-2);
@@ -202,7 +202,7 @@ fn odd_weight_zero_never_populates_odd_j_and_quarter_revivals_follow_spin_statis
     assert_eq!(co2.spin_weights, [1.0, 0.0]);
     let t_rev = revival_period_ps(co2.b_cm);
     let times = grid(0.2 * t_rev, 0.3 * t_rev, t_rev / 2000.0);
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 2e13)], static_field: None };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 2e13)], static_field: None, ..Default::default() };
     let solver = Solver::new(&co2, 30.0, settings(Method::Auto)).unwrap();
     let r = solver.run(&field, &times, false).unwrap();
     assert!(r.blocks.iter().all(|b| b.parity == "even"), "odd-J blocks appeared");
@@ -226,7 +226,7 @@ fn thermal_trace_matches_independent_scipy_script() {
     let rows: Vec<Vec<f64>> = text.lines().skip(1).map(|l| l.split(',').map(|x| x.parse().unwrap()).collect()).collect();
     let times: Vec<f64> = rows.iter().map(|r| r[0]).collect();
     let mol = Molecule::linear("N2 (peer constants)", 1.98958, 5.76e-6, 1.93, 1.0, [2.0, 1.0]);
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 5e13)], static_field: None };
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 5e13)], static_field: None, ..Default::default() };
     let r = Solver::new(&mol, 300.0, settings(Method::Auto)).unwrap().run(&field, &times, true).unwrap();
     let c2: Vec<f64> = rows.iter().map(|r| r[1]).collect();
     let c2d: Vec<f64> = rows.iter().map(|r| r[2]).collect();
@@ -244,7 +244,7 @@ fn pulse_shapes_of_equal_area_give_nearly_equal_kicks() {
         .map(|&shape| {
             let mut p = Pulse { center_ps: 0.0, fwhm_fs: 8.0, peak_intensity_wcm2: 1e14, shape, rise_fs: Some(2.0) };
             p.peak_intensity_wcm2 *= Pulse::gaussian(0.0, 8.0, 1.0).envelope_area_ps() / p.envelope_area_ps();
-            Solver::new(&mol, 10.0, settings(Method::Finite)).unwrap().run(&FieldModel { pulses: vec![p], static_field: None }, &times, false).unwrap().trace.cos2
+            Solver::new(&mol, 10.0, settings(Method::Finite)).unwrap().run(&FieldModel { pulses: vec![p], static_field: None, ..Default::default() }, &times, false).unwrap().trace.cos2
         })
         .collect();
     assert!(max_diff(&traces[0], &traces[1]) < 2e-3);

@@ -44,7 +44,7 @@ fn reversing_the_static_field_reverses_orientation_exactly() {
     let mol = lib("OCS");
     let times = grid(-1.0, 40.0, 0.5);
     let run = |kv: f64| {
-        let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 500.0, 3e12)], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }) };
+        let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 500.0, 3e12)], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }), ..Default::default() };
         Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&field, &times, false).unwrap().trace
     };
     let (up, down) = (run(50.0), run(-50.0));
@@ -82,7 +82,7 @@ fn thermal_orientation_in_a_static_field_follows_langevin_debye() {
     let mol = lib("OCS");
     let t = 50.0;
     let kv = 100.0;
-    let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }) };
+    let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }), ..Default::default() };
     let r = Solver::new(&mol, t, SolverSettings::default()).unwrap().run(&field, &[0.0, 5.0], false).unwrap();
     let mu_e = mol.dipole_debye * 0.016_792_5 * kv; // cm⁻¹ (1 D·kV/cm = 0.0167925 cm⁻¹)
     let x = mu_e / kicktrain::units::kt_in_cm(t);
@@ -136,4 +136,95 @@ fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state()
     for v in &r.trace.cos2[1..] {
         assert!((v - 1.0 / 3.0).abs() < 2e-3, "after the pulse {v}");
     }
+}
+
+/// ⟨g(cosθ)⟩(t) of a J = 0 rotor after the kick exp(i f(cosθ)) at t = 0, built by quadrature of
+/// Legendre functions (independent of the solver's representation).
+fn ground_state_kick(mol: &Molecule, f: impl Fn(f64) -> f64, g: impl Fn(f64) -> f64, times: &[f64]) -> Vec<f64> {
+    use kicktrain::basis::legendre::{gauss_legendre, theta_normalized};
+    let j_top = 120u32;
+    let (x, w) = gauss_legendre(250, -1.0, 1.0);
+    let th: Vec<Vec<f64>> = x.iter().map(|&xi| theta_normalized(0, j_top, xi)).collect();
+    let mut c = vec![(0.0, 0.0); j_top as usize + 1];
+    for (q, &xq) in x.iter().enumerate() {
+        let (s, co) = f(xq).sin_cos();
+        for j in 0..=j_top as usize {
+            c[j].0 += w[q] * th[q][j] * co * th[q][0];
+            c[j].1 += w[q] * th[q][j] * s * th[q][0];
+        }
+    }
+    times
+        .iter()
+        .map(|&t| {
+            let mut val = 0.0;
+            for (q, &xq) in x.iter().enumerate() {
+                let (mut re, mut im) = (0.0, 0.0);
+                for j in 0..=j_top as usize {
+                    let (s, co) = (-cm_to_rad_per_ps(mol.energy_cm(j as u32)) * t).sin_cos();
+                    re += th[q][j] * (c[j].0 * co - c[j].1 * s);
+                    im += th[q][j] * (c[j].0 * s + c[j].1 * co);
+                }
+                val += w[q] * g(xq) * (re * re + im * im);
+            }
+            val
+        })
+        .collect()
+}
+
+#[test]
+fn short_half_cycle_terahertz_pulse_acts_as_the_kick_exp_iq_cos() {
+    // A half-cycle pulse much shorter than the rotational period acts as exp(iQ cosθ), Q = μ∫E dt/ħ
+    // (impulsive limit). Reference: the J = 0 wavefunction kicked by quadrature.
+    use kicktrain::field::{TerahertzPulse, TerahertzWaveform};
+    let mol = lib("OCS");
+    let thz = TerahertzPulse { center_ps: 0.0, duration_fs: 300.0, peak_field_kv_cm: 1500.0, waveform: TerahertzWaveform::HalfCycle };
+    let (a1, a2) = thz.field_areas();
+    let q = dipole_rate_rad_per_ps(mol.dipole_debye, a1);
+    // The accompanying −½Δα E² cos²θ term (E in V/m: (kV/cm)² × 1e10), a small correction here.
+    let q2 = 0.5 * 4.0 * std::f64::consts::PI * kicktrain::units::EPSILON_0 * mol.delta_alpha_a3() * 1e-30 * a2 * 1e10 / kicktrain::units::HBAR * 1e-12;
+    assert!(q2 < 0.05 * q);
+    assert!(q > 0.3, "Q = {q} should give visible orientation");
+    let times = grid(1.0, 80.0, 1.0);
+    let field = FieldModel { terahertz: vec![thz], ..Default::default() };
+    let finite = Solver::new(&mol, 0.0, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap().run(&field, &times, false).unwrap().trace;
+    let kick = Solver::new(&mol, 0.0, SolverSettings { method: Method::Kick, ..Default::default() }).unwrap().run(&field, &times, false).unwrap().trace;
+    let reference = ground_state_kick(&mol, |x| q * x + q2 * x * x, |x| x, &times);
+    assert!(max_diff(&kick.cos, &reference) < 1e-8, "kick vs quadrature {}", max_diff(&kick.cos, &reference));
+    // Without the small E² term the kick is exp(iQ cosθ) to within a few 1e-3.
+    let pure = ground_state_kick(&mol, |x| q * x, |x| x, &times);
+    assert!(max_diff(&pure, &reference) < 1e-2);
+    assert!(max_diff(&finite.cos, &kick.cos) < 1e-3, "finite vs kick {}", max_diff(&finite.cos, &kick.cos));
+    assert!(reference.iter().cloned().fold(0.0f64, |a, b| a.max(b.abs())) > 0.05);
+}
+
+#[test]
+fn two_colour_phase_shift_by_pi_reverses_orientation_and_short_pulse_matches_quadrature() {
+    // Cycle-averaged two-colour coupling −⅛E1²E2 cosφ [(β∥ − 3β⊥)cos³θ + 3β⊥ cosθ] (shared physics notes §4):
+    // φ → φ + π flips the sign of the odd terms, so ⟨cosθ⟩ reverses exactly. β values here are
+    // hypothetical numbers for a symmetry test, not data for a real molecule.
+    use kicktrain::field::{PulseShape, TwoColourPulse};
+    let mut mol = lib("OCS");
+    mol.beta_parallel_au = Some(20000.0);
+    mol.beta_perpendicular_au = Some(4000.0);
+    let run = |phase: f64, method: Method, times: &[f64]| {
+        let tc = TwoColourPulse { center_ps: 0.0, fwhm_fs: 60.0, fundamental_intensity_wcm2: 2e13, second_harmonic_intensity_wcm2: 8e12, phase_rad: phase, shape: PulseShape::Gaussian };
+        let field = FieldModel { two_colour: vec![tc], ..Default::default() };
+        Solver::new(&mol, 0.0, SolverSettings { method, ..Default::default() }).unwrap().run(&field, times, false).unwrap().trace
+    };
+    let times = grid(0.5, 60.0, 0.5);
+    let (a, b) = (run(0.3, Method::Finite, &times), run(0.3 + std::f64::consts::PI, Method::Finite, &times));
+    assert!(a.cos.iter().cloned().fold(0.0f64, |m, v| m.max(v.abs())) > 1e-3, "orientation must be visible");
+    for i in 0..times.len() {
+        assert!((a.cos[i] + b.cos[i]).abs() < 1e-10);
+        assert!((a.cos2[i] - b.cos2[i]).abs() < 1e-10);
+    }
+    // The kick of the same pulse against the quadrature-built J = 0 kick with the same three angles.
+    let kick = run(0.3, Method::Kick, &times);
+    let tc = TwoColourPulse { center_ps: 0.0, fwhm_fs: 60.0, fundamental_intensity_wcm2: 2e13, second_harmonic_intensity_wcm2: 8e12, phase_rad: 0.3, shape: PulseShape::Gaussian };
+    use kicktrain::units::{peak_field_v_per_m, BETA_AU, HBAR};
+    let p2 = kicktrain::units::coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * 2.8e13 * tc.envelope_pulse().envelope_area_ps();
+    let g = 0.125 * peak_field_v_per_m(2e13).powi(2) * peak_field_v_per_m(8e12) * 0.3f64.cos() * BETA_AU / HBAR * 1e-12 * tc.three_halves_area_ps();
+    let (t1, t3) = (g * 3.0 * 4000.0, g * (20000.0 - 12000.0));
+    let reference = ground_state_kick(&mol, |x| t1 * x + p2 * x * x + t3 * x * x * x, |x| x, &times);
+    assert!(max_diff(&kick.cos, &reference) < 1e-8, "{}", max_diff(&kick.cos, &reference));
 }

@@ -161,7 +161,7 @@ impl DesignSpace {
                 pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= f);
             }
         }
-        FieldModel { pulses, static_field: None }
+        FieldModel { pulses, static_field: None, ..Default::default() }
     }
 
     /// The unit-cube point closest to a given train (used to seed searches); pulses beyond the space are ignored.

@@ -248,6 +248,165 @@ impl StaticField {
     }
 }
 
+/// A two-colour pulse: a fundamental at ω and its second harmonic at 2ω with relative phase φ,
+/// E(t) = E1(t) cos ωt + E2(t) cos(2ωt + φ), both polarized along Z with the same intensity envelope.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TwoColourPulse {
+    /// Time of the intensity maximum, ps.
+    pub center_ps: f64,
+    /// Intensity FWHM of both colours, fs.
+    pub fwhm_fs: f64,
+    /// Peak intensity of the fundamental, W/cm².
+    pub fundamental_intensity_wcm2: f64,
+    /// Peak intensity of the second harmonic, W/cm².
+    pub second_harmonic_intensity_wcm2: f64,
+    /// Relative phase φ of the second harmonic, rad.
+    pub phase_rad: f64,
+    /// Envelope shape (default Gaussian).
+    #[serde(default)]
+    pub shape: PulseShape,
+}
+
+impl TwoColourPulse {
+    /// The envelope as a pulse of unit peak intensity (for shape, support and areas).
+    pub fn envelope_pulse(&self) -> Pulse {
+        Pulse { center_ps: self.center_ps, fwhm_fs: self.fwhm_fs, peak_intensity_wcm2: 1.0, shape: self.shape, rise_fs: None }
+    }
+
+    /// Check the element; errors name the field under `path`.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        let env = Pulse { peak_intensity_wcm2: self.fundamental_intensity_wcm2, ..self.envelope_pulse() };
+        env.validate(path).map_err(|e| match e {
+            Error::Input { field, message } => Error::input(field.replace("peak_intensity_wcm2", "fundamental_intensity_wcm2"), message),
+            other => other,
+        })?;
+        let i2 = self.second_harmonic_intensity_wcm2;
+        if !i2.is_finite() || !(0.0..=1e17).contains(&i2) {
+            return Err(Error::input(format!("{path}.second_harmonic_intensity_wcm2"), format!("expected 0 to 1e17 W/cm², got {i2}")));
+        }
+        require_finite(&format!("{path}.phase_rad"), self.phase_rad, "rad")?;
+        Ok(())
+    }
+
+    /// ∫ f(t)^{3/2} dt (ps) of the intensity envelope f, the time integral of E1² E2 / (E1,0² E2,0).
+    pub fn three_halves_area_ps(&self) -> f64 {
+        let p = self.envelope_pulse();
+        let (a, b) = p.support_ps();
+        let n = 2000;
+        let h = (b - a) / n as f64;
+        (0..=n).map(|i| {
+            let w = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
+            w * p.envelope(a + i as f64 * h).powf(1.5)
+        }).sum::<f64>() * h / 3.0
+    }
+}
+
+/// Waveform of a terahertz pulse.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TerahertzWaveform {
+    /// One full cycle, E(t) ∝ −(t/σ) exp(½ − t²/2σ²): no net field area.
+    #[default]
+    SingleCycle,
+    /// A unipolar half cycle, E(t) = E0 exp(−4 ln2 t²/τ²).
+    HalfCycle,
+}
+
+/// A single- or half-cycle terahertz pulse polarized along Z (not cycle-averaged: it acts on the dipole).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TerahertzPulse {
+    /// Centre, ps.
+    pub center_ps: f64,
+    /// Duration: the field FWHM of a half cycle, or of the Gaussian whose derivative makes a single cycle, fs.
+    pub duration_fs: f64,
+    /// Peak field (largest |E|), kV/cm.
+    pub peak_field_kv_cm: f64,
+    /// Waveform (default single cycle).
+    #[serde(default)]
+    pub waveform: TerahertzWaveform,
+}
+
+impl TerahertzPulse {
+    /// Check the element; errors name the field under `path`.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        require_finite(&format!("{path}.center_ps"), self.center_ps, "ps")?;
+        require_positive(&format!("{path}.duration_fs"), self.duration_fs, "fs")?;
+        if self.duration_fs > 1e6 {
+            return Err(Error::input(format!("{path}.duration_fs"), "expected at most 1e6 fs for a terahertz pulse"));
+        }
+        let e = require_finite(&format!("{path}.peak_field_kv_cm"), self.peak_field_kv_cm, "kV/cm")?;
+        if e.abs() > 1e5 {
+            return Err(Error::input(format!("{path}.peak_field_kv_cm"), format!("expected at most 1e5 kV/cm (10 GV/m), got {e}")));
+        }
+        Ok(())
+    }
+
+    fn tau_ps(&self) -> f64 {
+        self.duration_fs / FS_PER_PS
+    }
+
+    /// Field E(t) in kV/cm.
+    pub fn field_kv_cm(&self, t_ps: f64) -> f64 {
+        let x = t_ps - self.center_ps;
+        let tau = self.tau_ps();
+        match self.waveform {
+            TerahertzWaveform::HalfCycle => self.peak_field_kv_cm * (-4.0 * std::f64::consts::LN_2 * x * x / (tau * tau)).exp(),
+            TerahertzWaveform::SingleCycle => {
+                let sigma = tau / (2.0 * (2.0 * std::f64::consts::LN_2).sqrt());
+                let u = x / sigma;
+                -self.peak_field_kv_cm * u * (0.5 - 0.5 * u * u).exp()
+            }
+        }
+    }
+
+    /// Interval (ps) outside which the field is negligible (below 1e-9 of its peak).
+    pub fn support_ps(&self) -> (f64, f64) {
+        let half = 3.5 * self.tau_ps();
+        (self.center_ps - half, self.center_ps + half)
+    }
+
+    /// RMS duration (ps) of E(t)², used to judge how impulsive the pulse is.
+    pub fn rms_duration_ps(&self) -> f64 {
+        let (a, b) = self.support_ps();
+        let n = 2000;
+        let h = (b - a) / n as f64;
+        let (mut m0, mut m2) = (0.0, 0.0);
+        for i in 0..=n {
+            let t = a + i as f64 * h;
+            let e2 = self.field_kv_cm(t).powi(2);
+            m0 += e2;
+            m2 += e2 * (t - self.center_ps).powi(2);
+        }
+        (m2 / m0).sqrt()
+    }
+
+    /// (∫E dt in kV/cm·ps, ∫E² dt in (kV/cm)²·ps) by Simpson quadrature over the support.
+    pub fn field_areas(&self) -> (f64, f64) {
+        let (a, b) = self.support_ps();
+        let n = 4000;
+        let h = (b - a) / n as f64;
+        let (mut s1, mut s2) = (0.0, 0.0);
+        for i in 0..=n {
+            let w = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
+            let e = self.field_kv_cm(a + i as f64 * h);
+            s1 += w * e;
+            s2 += w * e * e;
+        }
+        (s1 * h / 3.0, s2 * h / 3.0)
+    }
+}
+
+/// Coupling rates (rad/ps) of all fields at one time: H = H0 − u1 cosθ − u2 cos²θ − u3 cos³θ.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Rates {
+    /// Coefficient of cosθ (dipole and hyperpolarizability terms).
+    pub u1: f64,
+    /// Coefficient of cos²θ (polarizability terms).
+    pub u2: f64,
+    /// Coefficient of cos³θ (hyperpolarizability term).
+    pub u3: f64,
+}
+
 /// An ordered collection of field elements acting on the molecule.
 #[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 pub struct FieldModel {
@@ -256,6 +415,12 @@ pub struct FieldModel {
     /// An optional static field along Z.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub static_field: Option<StaticField>,
+    /// Two-colour (ω + 2ω) pulses.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub two_colour: Vec<TwoColourPulse>,
+    /// Terahertz pulses.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub terahertz: Vec<TerahertzPulse>,
 }
 
 /// A stretch of time in which the field is on: the union of overlapping pulse supports.
@@ -272,12 +437,78 @@ pub struct ActiveInterval {
 impl FieldModel {
     /// A train of laser pulses without other fields.
     pub fn pulses(pulses: Vec<Pulse>) -> FieldModel {
-        FieldModel { pulses, static_field: None }
+        FieldModel { pulses, ..Default::default() }
     }
 
-    /// True if any element couples to the permanent dipole (breaks the parity of J).
+    /// True if any element breaks the head–tail symmetry (and with it the parity of J).
     pub fn is_polar(&self) -> bool {
-        self.static_field.map(|s| s.strength_kv_cm != 0.0).unwrap_or(false)
+        self.static_field.map(|s| s.strength_kv_cm != 0.0).unwrap_or(false) || !self.two_colour.is_empty() || !self.terahertz.is_empty()
+    }
+
+    /// All coupling rates at time t (ps) for a molecule: static and terahertz fields on the dipole,
+    /// cycle-averaged laser and two-colour terms on the polarizability and hyperpolarizability, and the
+    /// non-averaged −½Δα E² term of terahertz fields.
+    pub fn rates(&self, t_ps: f64, mol: &crate::molecule::Molecule) -> Rates {
+        use crate::units::{dipole_rate_rad_per_ps, peak_field_v_per_m, BETA_AU, EPSILON_0, HBAR};
+        let da = mol.delta_alpha_a3();
+        let mut r = Rates { u2: self.alignment_rate(t_ps, da), ..Default::default() };
+        if let Some(sf) = &self.static_field {
+            r.u1 += dipole_rate_rad_per_ps(mol.dipole_debye, sf.strength_at(t_ps));
+        }
+        let kappa = coupling_rad_per_ps_per_a3_wcm2() * da;
+        for tc in &self.two_colour {
+            let f = tc.envelope_pulse().envelope(t_ps);
+            if f == 0.0 {
+                continue;
+            }
+            r.u2 += kappa * (tc.fundamental_intensity_wcm2 + tc.second_harmonic_intensity_wcm2) * f;
+            // −⅛ E1² E2 cosφ [(β∥ − 3β⊥) cos³θ + 3β⊥ cosθ], fields from the peak intensities.
+            let e1 = peak_field_v_per_m(tc.fundamental_intensity_wcm2);
+            let e2 = peak_field_v_per_m(tc.second_harmonic_intensity_wcm2);
+            let g = 0.125 * e1 * e1 * e2 * f.powf(1.5) * tc.phase_rad.cos() * BETA_AU / HBAR * 1e-12;
+            let (bp, bt) = (mol.beta_parallel_au.unwrap_or(0.0), mol.beta_perpendicular_au.unwrap_or(0.0));
+            r.u3 += g * (bp - 3.0 * bt);
+            r.u1 += g * 3.0 * bt;
+        }
+        for th in &self.terahertz {
+            let e_kv = th.field_kv_cm(t_ps);
+            r.u1 += dipole_rate_rad_per_ps(mol.dipole_debye, e_kv);
+            // −½ Δα E² cos²θ with Δα = 4π ε0 Δα' (SI), E in V/m.
+            let e = e_kv * 1e5;
+            r.u2 += 0.5 * 4.0 * std::f64::consts::PI * EPSILON_0 * da * 1e-30 * e * e / HBAR * 1e-12;
+        }
+        r
+    }
+
+    /// Time intervals in which any time-dependent element (laser, two-colour or terahertz pulse) is on,
+    /// merged where they overlap, with the shortest RMS duration of the elements in each.
+    pub fn all_intervals(&self) -> Vec<(f64, f64, f64)> {
+        let mut spans: Vec<(f64, f64, f64)> = vec![];
+        for p in self.pulses.iter().filter(|p| p.peak_intensity_wcm2 > 0.0) {
+            let (a, b) = p.support_ps();
+            spans.push((a, b, p.rms_duration_ps()));
+        }
+        for tc in &self.two_colour {
+            let p = tc.envelope_pulse();
+            let (a, b) = p.support_ps();
+            spans.push((a, b, p.rms_duration_ps()));
+        }
+        for th in self.terahertz.iter().filter(|t| t.peak_field_kv_cm != 0.0) {
+            let (a, b) = th.support_ps();
+            spans.push((a, b, th.rms_duration_ps()));
+        }
+        spans.sort_by(|x, y| x.0.total_cmp(&y.0));
+        let mut out: Vec<(f64, f64, f64)> = vec![];
+        for (a, b, r) in spans {
+            match out.last_mut() {
+                Some(last) if a <= last.1 => {
+                    last.1 = last.1.max(b);
+                    last.2 = last.2.min(r);
+                }
+                _ => out.push((a, b, r)),
+            }
+        }
+        out
     }
 
     /// Alignment coupling rate u(t) (rad/ps) such that H = H0 − u(t) cos²θ, for anisotropy Δα' (Å³).
@@ -372,7 +603,7 @@ mod tests {
 
     #[test]
     fn intervals_merge_overlaps() {
-        let f = FieldModel { pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)], static_field: None };
+        let f = FieldModel { pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)], static_field: None, ..Default::default() };
         let iv = f.active_intervals();
         assert_eq!(iv.len(), 2);
         assert_eq!(iv[0].pulses, vec![1, 2]);

@@ -97,13 +97,13 @@ impl PolarOps {
         e
     }
 
-    /// Kick exp(i[θ2 cos²θ + θ1 cosθ]) applied to all states (cos²θ taken as the square of the cosθ
-    /// matrix, exact except at the basis edge, which the edge check keeps empty).
-    pub fn kick(&self, state: &mut BlockState, theta2: f64, theta1: f64) {
-        if theta2 == 0.0 && theta1 == 0.0 {
+    /// Kick exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) applied to all states (powers of cosθ taken as powers
+    /// of the cosθ matrix, exact except at the basis edge, which the edge check keeps empty).
+    pub fn kick(&self, state: &mut BlockState, theta1: f64, theta2: f64, theta3: f64) {
+        if theta2 == 0.0 && theta1 == 0.0 && theta3 == 0.0 {
             return;
         }
-        let angles: Vec<f64> = self.nodes.iter().map(|x| theta2 * x * x + theta1 * x).collect();
+        let angles: Vec<f64> = self.nodes.iter().map(|x| x * (theta1 + x * (theta2 + x * theta3))).collect();
         state.rotate_in_basis(&self.w, &self.wt, &angles);
     }
 

@@ -84,6 +84,8 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         "min_cos2": extremum(tr.min_after(&tr.cos2, after)),
         "min_cos2_2d": extremum(tr.min_after(&tr.cos2_2d, after)),
         "static_field": s.field.static_field,
+        "two_colour": s.field.two_colour,
+        "terahertz": s.field.terahertz,
         "peak_orientation": if tr.cos.is_empty() { Value::Null } else {
             let hi = tr.max_after(&tr.cos, after);
             let lo = tr.min_after(&tr.cos, after);
@@ -166,6 +168,14 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     }
     if let Some(sf) = &scenario.field.static_field {
         plot.subtitle = Some(format!("{}; static field {} kV/cm", plot.subtitle.clone().unwrap_or_default(), sf.strength_kv_cm));
+    }
+    for (i, tc) in scenario.field.two_colour.iter().enumerate() {
+        let h = 0.5 * tc.fwhm_fs / 1000.0;
+        plot.markers.push(svg::Marker { x0: tc.center_ps - h, x1: tc.center_ps + h, label: format!("ω+2ω {}", i + 1), color: "#8e44ad".into() });
+    }
+    for (i, th) in scenario.field.terahertz.iter().enumerate() {
+        let h = 0.5 * th.duration_fs / 1000.0;
+        plot.markers.push(svg::Marker { x0: th.center_ps - h, x1: th.center_ps + h, label: format!("THz {}", i + 1), color: "#16a085".into() });
     }
     for (i, p) in scenario.field.pulses.iter().enumerate() {
         let h = 0.5 * p.fwhm_ps();
