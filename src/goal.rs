@@ -12,6 +12,8 @@ pub enum Observable {
     Cos2,
     /// ⟨cos²θ_2D⟩, the projection onto a detector plane containing Z.
     Cos2TwoD,
+    /// ⟨cosθ⟩, the orientation (needs a field that breaks head–tail symmetry).
+    Cos,
 }
 
 impl Observable {
@@ -20,6 +22,7 @@ impl Observable {
         match self {
             Observable::Cos2 => "cos2",
             Observable::Cos2TwoD => "cos2_2d",
+            Observable::Cos => "cos",
         }
     }
 }
@@ -105,10 +108,11 @@ impl Goal {
 pub fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
     let mut f = Fields::new(v, path)?;
     let kind_s = f.opt_str("kind", "\"peak\", \"value_at\", \"mean\" or \"minimum\"")?.unwrap_or("peak");
-    let observable = match f.opt_str("observable", "\"cos2\" or \"cos2_2d\"")?.unwrap_or("cos2") {
+    let observable = match f.opt_str("observable", "\"cos2\", \"cos2_2d\" or \"cos\"")?.unwrap_or("cos2") {
         "cos2" => Observable::Cos2,
         "cos2_2d" => Observable::Cos2TwoD,
-        other => return Err(Error::input(join(path, "observable"), format!("expected \"cos2\" or \"cos2_2d\", got \"{other}\""))),
+        "cos" => Observable::Cos,
+        other => return Err(Error::input(join(path, "observable"), format!("expected \"cos2\", \"cos2_2d\" or \"cos\", got \"{other}\""))),
     };
     let at = f.opt_f64("at_ps", "ps after the last pulse centre")?;
     let window = match f.opt_value("window_ps") {

@@ -309,6 +309,17 @@ fn print_design(s: &serde_json::Value) {
                 100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0), p["fwhm_fs"].as_f64().unwrap_or(0.0), p["kick_strength"].as_f64().unwrap_or(0.0));
         }
     }
+    if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
+        println!("  static field {e:.3} kV/cm (on throughout)");
+    }
+    if let Some(ps) = s["pulses"].as_array() {
+        if let Some(p) = ps.first().filter(|p| p["kind"] == "two_colour") {
+            println!("  two-colour: second-harmonic share {:.3}, phase {:.4} rad", p["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0) / p["peak_intensity_wcm2"].as_f64().unwrap_or(1.0), p["phase_rad"].as_f64().unwrap_or(0.0));
+        }
+    }
+    if let Some(t) = s["terahertz"].as_array().and_then(|a| a.first()) {
+        println!("  terahertz pulse at {:.4} ps, peak field {:.1} kV/cm", t["center_ps"].as_f64().unwrap_or(0.0), t["peak_field_kv_cm"].as_f64().unwrap_or(0.0));
+    }
     println!("  best single pulse under the same ceiling: {} → gain {}", f(&s["single_pulse_baseline"]["score"]), f(&s["gain_over_single_pulse"]));
     if let Some(pc) = s["per_pulse_count"].as_array() {
         if pc.len() > 1 {

@@ -77,11 +77,13 @@ pub struct SolverSettings {
     /// Use one block per |M| with both parities of J even when no field requires it (a check of the
     /// parity split, and the path that reports ⟨cosθ⟩ and ⟨cos³θ⟩).
     pub both_parities: bool,
+    /// In the kick model, propagate terahertz pulses in time anyway (the designer's screening stage).
+    pub kick_terahertz_as_finite: bool,
 }
 
 impl Default for SolverSettings {
     fn default() -> Self {
-        SolverSettings { method: Method::Auto, step_fs: None, thermal_tolerance: 1e-7, edge_tolerance: 1e-8, both_parities: false }
+        SolverSettings { method: Method::Auto, step_fs: None, thermal_tolerance: 1e-7, edge_tolerance: 1e-8, both_parities: false, kick_terahertz_as_finite: false }
     }
 }
 
@@ -219,8 +221,10 @@ impl Scenario {
                 return Err(Error::input(join(path, "molecule.dipole_debye"), format!("a terahertz pulse needs a polar molecule, but {} has no permanent dipole", self.molecule.name)));
             }
         }
-        if self.field.is_polar() && self.goal.is_some() {
-            return Err(Error::input(join(path, "goal"), "goals are not yet supported together with a static field"));
+        if let Some(g) = &self.goal {
+            if g.observable == crate::goal::Observable::Cos && !self.field.is_polar() {
+                return Err(Error::input(join(path, "goal.observable"), "⟨cosθ⟩ needs a field that orients (static_field, two_colour or terahertz); a laser alone gives zero"));
+            }
         }
         self.window.validate(&join(path, "window"))?;
         let s = &self.solver;
@@ -241,7 +245,7 @@ impl Scenario {
 
     /// Centre of the last pulse (ps), the reference of goal windows; 0 without pulses.
     pub fn last_pulse_center_ps(&self) -> f64 {
-        self.field.pulses.iter().map(|p| p.center_ps).reduce(f64::max).unwrap_or(0.0)
+        self.field.last_center_ps()
     }
 
     /// The scenario as a JSON value that `from_value` reads back to the same scenario.
@@ -415,6 +419,7 @@ fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
         thermal_tolerance: f.opt_f64("thermal_tolerance", "population fraction")?.unwrap_or(d.thermal_tolerance),
         edge_tolerance: f.opt_f64("edge_tolerance", "population fraction")?.unwrap_or(d.edge_tolerance),
         both_parities: f.opt_bool("both_parities")?.unwrap_or(false),
+        kick_terahertz_as_finite: false,
     };
     f.finish()?;
     Ok(s)

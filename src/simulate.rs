@@ -400,7 +400,11 @@ impl Solver {
         let mut laser_events = vec![];
         for (lo, hi, shortest) in field.all_intervals() {
             let lasers: Vec<usize> = (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
-            if self.settings.method == Method::Kick {
+            // A terahertz pulse acts through its field shape (a single cycle has no net area), so it is
+            // never replaced by a kick unless the user forces kicks for everything.
+            let has_thz = field.terahertz.iter().any(|t| overlaps(t.support_ps(), lo, hi));
+            let kick_mode = self.settings.method == Method::Kick && !(has_thz && self.settings.kick_terahertz_as_finite);
+            if kick_mode {
                 for &i in &lasers {
                     let p = &field.pulses[i];
                     items.push(PolarItem::Kick { t_ps: p.center_ps, theta: [0.0, p.kick_strength(da), 0.0] });
@@ -638,7 +642,7 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
         Some(goal) => {
             // Scored exactly as the designer scores it: the goal's own sample grid and refinement.
             let t_last = scenario.last_pulse_center_ps();
-            let run = solver.run(&scenario.field, &goal.times(t_last), goal.observable == Observable::Cos2TwoD)?;
+            let run = solver.run(&scenario.field, &goal.times(t_last), goal.observable != Observable::Cos2)?;
             Some(score_goal(goal, &run.trace, &run.final_sums, t_last))
         }
     };

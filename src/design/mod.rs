@@ -73,6 +73,34 @@ pub struct DesignSpace {
     pub max_total_fluence_jcm2: Option<f64>,
     /// Smallest allowed delay between consecutive pulse centres, ps.
     pub min_separation_ps: f64,
+    /// Static field along Z for the whole run (kV/cm), fixed or searched; None for no static field.
+    pub static_field_kv_cm: Option<Bounds>,
+    /// When set, every pulse is a two-colour (ω + 2ω) pulse: its intensity is the sum of both colours.
+    pub two_colour: Option<TwoColourBounds>,
+    /// An optional terahertz pulse after the last laser pulse.
+    pub terahertz: Option<TerahertzBounds>,
+}
+
+/// Bounds of the two-colour parameters shared by all pulses of a train.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TwoColourBounds {
+    /// Second-harmonic to fundamental intensity ratio.
+    pub ratio: Bounds,
+    /// Relative phase φ, rad.
+    pub phase_rad: Bounds,
+}
+
+/// Bounds of a terahertz pulse placed after the last laser pulse.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TerahertzBounds {
+    /// Delay of its centre after the last laser pulse centre, ps (may be negative: before it).
+    pub delay_ps: Bounds,
+    /// Peak field, kV/cm.
+    pub peak_field_kv_cm: Bounds,
+    /// Duration, fs.
+    pub duration_fs: f64,
+    /// Waveform.
+    pub waveform: crate::field::TerahertzWaveform,
 }
 
 /// What the parameter at one index of the search vector means.
@@ -81,6 +109,11 @@ enum Slot {
     Delay(usize),
     Intensity(usize),
     Fwhm(usize),
+    Static,
+    Ratio,
+    Phase,
+    ThzDelay,
+    ThzField,
 }
 
 impl DesignSpace {
@@ -109,6 +142,25 @@ impl DesignSpace {
                 s.push(Slot::Fwhm(k));
             }
         }
+        if self.static_field_kv_cm.map(|b| !b.is_fixed()).unwrap_or(false) {
+            s.push(Slot::Static);
+        }
+        if let Some(tc) = &self.two_colour {
+            if !tc.ratio.is_fixed() {
+                s.push(Slot::Ratio);
+            }
+            if !tc.phase_rad.is_fixed() {
+                s.push(Slot::Phase);
+            }
+        }
+        if let Some(th) = &self.terahertz {
+            if !th.delay_ps.is_fixed() {
+                s.push(Slot::ThzDelay);
+            }
+            if !th.peak_field_kv_cm.is_fixed() {
+                s.push(Slot::ThzField);
+            }
+        }
         s
     }
 
@@ -125,6 +177,11 @@ impl DesignSpace {
                 Slot::Delay(k) => format!("pulse {} delay (ps)", k + 1),
                 Slot::Intensity(k) => format!("pulse {} peak intensity (W/cm²)", k + 1),
                 Slot::Fwhm(k) => format!("pulse {} FWHM (fs)", k + 1),
+                Slot::Static => "static field (kV/cm)".to_string(),
+                Slot::Ratio => "second-harmonic ratio".to_string(),
+                Slot::Phase => "two-colour phase (rad)".to_string(),
+                Slot::ThzDelay => "terahertz delay (ps)".to_string(),
+                Slot::ThzField => "terahertz peak field (kV/cm)".to_string(),
             })
             .collect()
     }
@@ -140,11 +197,21 @@ impl DesignSpace {
         for k in 1..n {
             delay[k] = self.delay_bounds(k).min;
         }
+        let mut static_kv = self.static_field_kv_cm.map(|b| b.min);
+        let mut ratio = self.two_colour.map(|t| t.ratio.min).unwrap_or(0.0);
+        let mut phase = self.two_colour.map(|t| t.phase_rad.min).unwrap_or(0.0);
+        let mut thz_delay = self.terahertz.map(|t| t.delay_ps.min).unwrap_or(0.0);
+        let mut thz_field = self.terahertz.map(|t| t.peak_field_kv_cm.min).unwrap_or(0.0);
         for (slot, &x) in self.slots().iter().zip(u) {
             match *slot {
                 Slot::Delay(k) => delay[k] = self.delay_bounds(k).at(x),
                 Slot::Intensity(k) => inten[k] = self.intensity_bounds(k).at(x),
                 Slot::Fwhm(k) => fwhm[k] = self.pulses[k].fwhm_fs.at(x),
+                Slot::Static => static_kv = self.static_field_kv_cm.map(|b| b.at(x)),
+                Slot::Ratio => ratio = self.two_colour.expect("two-colour bounds").ratio.at(x),
+                Slot::Phase => phase = self.two_colour.expect("two-colour bounds").phase_rad.at(x),
+                Slot::ThzDelay => thz_delay = self.terahertz.expect("terahertz bounds").delay_ps.at(x),
+                Slot::ThzField => thz_field = self.terahertz.expect("terahertz bounds").peak_field_kv_cm.at(x),
             }
         }
         let mut t = 0.0;
@@ -161,19 +228,27 @@ impl DesignSpace {
                 pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= f);
             }
         }
-        FieldModel { pulses, static_field: None, ..Default::default() }
-    }
-
-    /// The unit-cube point closest to a given train (used to seed searches); pulses beyond the space are ignored.
-    pub fn encode(&self, field: &FieldModel) -> Vec<f64> {
-        self.slots()
-            .iter()
-            .map(|s| match *s {
-                Slot::Delay(k) => field.pulses.get(k).map(|p| self.delay_bounds(k).fraction(p.center_ps - field.pulses[k - 1].center_ps)).unwrap_or(0.0),
-                Slot::Intensity(k) => field.pulses.get(k).map(|p| self.intensity_bounds(k).fraction(p.peak_intensity_wcm2)).unwrap_or(0.0),
-                Slot::Fwhm(k) => field.pulses.get(k).map(|p| self.pulses[k].fwhm_fs.fraction(p.fwhm_fs)).unwrap_or(0.0),
-            })
-            .collect()
+        let t_last = pulses.last().map(|p| p.center_ps).unwrap_or(0.0);
+        let mut field = FieldModel { pulses, ..Default::default() };
+        field.static_field = static_kv.map(|e| crate::field::StaticField { strength_kv_cm: e, on_ps: None, off_ps: None });
+        if self.two_colour.is_some() {
+            // The designed intensity is shared by the two colours: I1 = I/(1+r), I2 = r I/(1+r).
+            field.two_colour = std::mem::take(&mut field.pulses)
+                .into_iter()
+                .map(|p| crate::field::TwoColourPulse {
+                    center_ps: p.center_ps,
+                    fwhm_fs: p.fwhm_fs,
+                    fundamental_intensity_wcm2: p.peak_intensity_wcm2 / (1.0 + ratio),
+                    second_harmonic_intensity_wcm2: p.peak_intensity_wcm2 * ratio / (1.0 + ratio),
+                    phase_rad: phase,
+                    shape: p.shape,
+                })
+                .collect();
+        }
+        if let Some(th) = &self.terahertz {
+            field.terahertz = vec![crate::field::TerahertzPulse { center_ps: t_last + thz_delay, duration_fs: th.duration_fs, peak_field_kv_cm: thz_field, waveform: th.waveform }];
+        }
+        field
     }
 
     /// The same space with only the first `n` pulses.
@@ -184,6 +259,11 @@ impl DesignSpace {
     /// Check that a train satisfies every constraint (used by tests and before writing a design).
     pub fn check(&self, field: &FieldModel) -> std::result::Result<(), String> {
         let tol = 1e-9;
+        for (k, tc) in field.two_colour.iter().enumerate() {
+            if tc.fundamental_intensity_wcm2 + tc.second_harmonic_intensity_wcm2 > self.max_peak_intensity_wcm2 * (1.0 + tol) {
+                return Err(format!("two-colour pulse {} exceeds the ceiling", k + 1));
+            }
+        }
         for (k, p) in field.pulses.iter().enumerate() {
             if p.peak_intensity_wcm2 > self.max_peak_intensity_wcm2 * (1.0 + tol) {
                 return Err(format!("pulse {} exceeds the ceiling", k + 1));
@@ -313,6 +393,8 @@ impl Objective {
         let ceiling = f.req_f64("max_peak_intensity_wcm2", "W/cm²")?;
         let budget = f.opt_f64("max_total_fluence_jcm2", "J/cm²")?;
         let min_sep = f.opt_f64("min_separation_ps", "ps")?.unwrap_or(0.0);
+        let static_v = f.opt_value("static_field_kv_cm");
+        let thz_v = f.opt_value("terahertz");
         let goal_v = f.req_value("goal", "an object with kind, observable and window_ps")?;
         let search_v = f.opt_value("search");
         f.finish()?;
@@ -323,7 +405,30 @@ impl Objective {
             base_json["solver"] = s.clone();
         }
         let base = Scenario::from_value(&base_json, "")?;
-        let (space, variable_count) = parse_pulses(pulses_v, "pulses", ceiling, budget, min_sep)?;
+        let (mut space, variable_count) = parse_pulses(pulses_v, "pulses", ceiling, budget, min_sep)?;
+        if let Some(v) = static_v {
+            let b = parse_bounds(v, "static_field_kv_cm", "kV/cm")?;
+            if b.min.abs().max(b.max.abs()) > 1e4 {
+                return Err(Error::input("static_field_kv_cm", "expected at most 1e4 kV/cm in magnitude"));
+            }
+            space.static_field_kv_cm = Some(b);
+        }
+        if let Some(v) = thz_v {
+            let mut g = Fields::new(v, "terahertz")?;
+            let delay_ps = parse_bounds(g.req_value("delay_ps", "ps after the last laser pulse centre, a number or {min, max}")?, "terahertz.delay_ps", "ps")?;
+            let peak_field_kv_cm = parse_bounds(g.req_value("peak_field_kv_cm", "kV/cm, a number or {min, max}")?, "terahertz.peak_field_kv_cm", "kV/cm")?;
+            let duration_fs = g.req_f64("duration_fs", "fs")?;
+            let waveform = match g.opt_str("waveform", "\"single_cycle\" or \"half_cycle\"")? {
+                None | Some("single_cycle") => crate::field::TerahertzWaveform::SingleCycle,
+                Some("half_cycle") => crate::field::TerahertzWaveform::HalfCycle,
+                Some(other) => return Err(Error::input("terahertz.waveform", format!("expected \"single_cycle\" or \"half_cycle\", got \"{other}\""))),
+            };
+            g.finish()?;
+            if delay_ps.min.abs().max(delay_ps.max.abs()) > 1e5 {
+                return Err(Error::input("terahertz.delay_ps", "expected delays within ±1e5 ps"));
+            }
+            space.terahertz = Some(TerahertzBounds { delay_ps, peak_field_kv_cm, duration_fs, waveform });
+        }
         space.validate("")?;
         let goal = parse_goal(goal_v, "goal")?;
         let search = match search_v {
@@ -335,6 +440,9 @@ impl Objective {
             return Err(Error::input(key, format!("expected goal times up to 1e5 ps after the last pulse, got {:e} ps", goal.window_ps.1)));
         }
         let obj = Objective { description, base, space, variable_count, goal, search };
+        if goal.observable == Observable::Cos && obj.space.static_field_kv_cm.is_none() && obj.space.two_colour.is_none() && obj.space.terahertz.is_none() {
+            return Err(Error::input("goal.observable", "⟨cosθ⟩ needs an orienting field: give static_field_kv_cm, pulses.two_colour or terahertz"));
+        }
         // The longest design must replay as a valid scenario: check before any search starts.
         let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
         // The strongest design must fit the largest basis the solver allows.
@@ -357,8 +465,8 @@ impl Objective {
     /// The scenario that replays a design: the base with the design's pulses and a window that shows
     /// the pulses and the goal window.
     pub fn scenario_for(&self, field: &FieldModel) -> Scenario {
-        let t_last = field.pulses.last().map(|p| p.center_ps).unwrap_or(0.0);
-        let widest = field.pulses.iter().map(|p| p.fwhm_ps()).fold(0.0, f64::max);
+        let t_last = field.last_center_ps();
+        let widest = field.pulses.iter().map(|p| p.fwhm_ps()).chain(field.two_colour.iter().map(|t| t.fwhm_fs / 1000.0)).fold(0.0, f64::max);
         let start = -(2.0 * widest).max(0.2);
         let stop = t_last + self.goal.window_ps.1.max(match self.goal.kind { GoalKind::ValueAt(t) => t, _ => 0.0 }) + 0.1 * self.goal.window_ps.1.abs().max(0.5);
         let mut s = self.base.clone();
@@ -438,6 +546,23 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         None => Bounds { min: 0.0, max: ceiling },
     };
     let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm }; n];
+    let two_colour = match f.opt_value("two_colour") {
+        None => None,
+        Some(v) => {
+            let p = join(path, "two_colour");
+            let mut g = Fields::new(v, &p)?;
+            let ratio = parse_bounds(g.req_value("second_harmonic_ratio", "a ratio or {min, max}")?, &join(&p, "second_harmonic_ratio"), "intensity ratio")?;
+            let phase_rad = match g.opt_value("phase_rad") {
+                Some(x) => parse_bounds(x, &join(&p, "phase_rad"), "rad")?,
+                None => Bounds { min: 0.0, max: 2.0 * std::f64::consts::PI },
+            };
+            g.finish()?;
+            if ratio.min < 0.0 || ratio.max > 10.0 {
+                return Err(Error::input(join(&p, "second_harmonic_ratio"), format!("expected ratios from 0 to 10, got [{}, {}]", ratio.min, ratio.max)));
+            }
+            Some(TwoColourBounds { ratio, phase_rad })
+        }
+    };
     if let Some(each) = f.opt_value("each") {
         let items = each.as_array().ok_or_else(|| Error::input(join(path, "each"), format!("expected an array of per-pulse bounds, got {}", type_name(each))))?;
         if items.len() > n {
@@ -462,7 +587,7 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         }
     }
     f.finish()?;
-    let space = DesignSpace { shape, rise_fs, pulses, max_peak_intensity_wcm2: ceiling, max_total_fluence_jcm2: budget, min_separation_ps: min_sep };
+    let space = DesignSpace { shape, rise_fs, pulses, max_peak_intensity_wcm2: ceiling, max_total_fluence_jcm2: budget, min_separation_ps: min_sep, static_field_kv_cm: None, two_colour, terahertz: None };
     // Check each pulse shape once through the pulse validator (rise vs FWHM and so on).
     for (k, p) in space.pulses.iter().enumerate() {
         for w in [p.fwhm_fs.min, p.fwhm_fs.max] {

@@ -104,6 +104,7 @@ impl<'a> Evaluator<'a> {
             method: Method::Kick,
             thermal_tolerance: base.thermal_tolerance.max(1e-5),
             edge_tolerance: base.edge_tolerance.max(1e-6),
+            kick_terahertz_as_finite: true,
             ..base
         };
         let kick = Solver::new(obj.molecule(), obj.base.temperature_k, screening)?;
@@ -136,7 +137,7 @@ impl<'a> Evaluator<'a> {
     /// Score a train; `record` false leaves the best-so-far and the history untouched.
     fn score_with(&self, field: &FieldModel, full: bool, record: bool) -> Result<Score> {
         let goal = &self.obj.goal;
-        let t_last = field.pulses.iter().map(|p| p.center_ps).reduce(f64::max).unwrap_or(0.0);
+        let t_last = field.last_center_ps();
         let times = goal.times(t_last);
         let solver = if full { &self.full } else { &self.kick };
         let run = solver.run(field, &times, self.with_2d)?;

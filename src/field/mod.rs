@@ -536,9 +536,26 @@ impl FieldModel {
         out
     }
 
+    /// Centre (ps) of the latest laser, two-colour or terahertz pulse: the reference of goal windows.
+    pub fn last_center_ps(&self) -> f64 {
+        self.pulses
+            .iter()
+            .map(|p| p.center_ps)
+            .chain(self.two_colour.iter().map(|t| t.center_ps))
+            .chain(self.terahertz.iter().map(|t| t.center_ps))
+            .reduce(f64::max)
+            .unwrap_or(0.0)
+    }
+
     /// End of the last pulse (centre + FWHM of the latest-ending pulse), ps; None without pulses.
     pub fn last_pulse_end_ps(&self) -> Option<f64> {
-        self.pulses.iter().filter(|p| p.peak_intensity_wcm2 > 0.0).map(|p| p.end_ps()).reduce(f64::max)
+        self.pulses
+            .iter()
+            .filter(|p| p.peak_intensity_wcm2 > 0.0)
+            .map(|p| p.end_ps())
+            .chain(self.two_colour.iter().map(|t| t.center_ps + t.fwhm_fs / 1000.0))
+            .chain(self.terahertz.iter().map(|t| t.center_ps + t.duration_fs / 1000.0))
+            .reduce(f64::max)
     }
 }
 

@@ -378,9 +378,15 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &LevelSums, t_last: f64) ->
     let series = match goal.observable {
         Observable::Cos2 => &trace.cos2,
         Observable::Cos2TwoD => &trace.cos2_2d,
+        Observable::Cos => &trace.cos,
     };
+    if series.is_empty() {
+        // ⟨cosθ⟩ without any orienting field: zero by symmetry.
+        return Score { value: 0.0, t_ps: trace.times_ps.first().copied() };
+    }
     let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
-    let field_free = after.t0_ps;
+    // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
+    let field_free = if goal.observable == Observable::Cos { f64::INFINITY } else { after.t0_ps };
     match goal.kind {
         GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(trace.times_ps[0]) },
         GoalKind::Mean => {

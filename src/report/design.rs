@@ -11,6 +11,24 @@ use std::path::Path;
 
 fn pulses_json(obj: &Objective, field: &FieldModel) -> Vec<Value> {
     let da = obj.molecule().delta_alpha_a3();
+    if !field.two_colour.is_empty() {
+        return field
+            .two_colour
+            .iter()
+            .enumerate()
+            .map(|(i, t)| {
+                let total = t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2;
+                json!({
+                    "pulse": i + 1, "kind": "two_colour", "center_ps": t.center_ps,
+                    "delay_after_previous_ps": if i == 0 { Value::Null } else { json!(t.center_ps - field.two_colour[i - 1].center_ps) },
+                    "fundamental_intensity_wcm2": t.fundamental_intensity_wcm2, "second_harmonic_intensity_wcm2": t.second_harmonic_intensity_wcm2,
+                    "peak_intensity_wcm2": total, "fraction_of_ceiling": total / obj.space.max_peak_intensity_wcm2,
+                    "phase_rad": t.phase_rad, "fwhm_fs": t.fwhm_fs, "shape": t.shape,
+                    "kick_strength": t.envelope_pulse().kick_strength(da) * total,
+                })
+            })
+            .collect();
+    }
     field
         .pulses
         .iter()
@@ -56,6 +74,8 @@ pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
         "kick_model_score_time_ps": best.kick.t_ps,
         "full_minus_kick_model": num(best.full.value - best.kick.value),
         "pulses": pulses_json(obj, &best.field),
+        "static_field": best.field.static_field,
+        "terahertz": best.field.terahertz,
         "max_peak_intensity_wcm2": obj.space.max_peak_intensity_wcm2,
         "max_total_fluence_jcm2": obj.space.max_total_fluence_jcm2,
         "total_fluence_jcm2": best.field.pulses.iter().map(fluence_jcm2).sum::<f64>(),
@@ -132,6 +152,7 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
     let (base_series, label) = match obs {
         crate::goal::Observable::Cos2 => (&base.result.trace.cos2, "best single pulse ⟨cos²θ⟩"),
         crate::goal::Observable::Cos2TwoD => (&base.result.trace.cos2_2d, "best single pulse ⟨cos²θ_2D⟩"),
+        crate::goal::Observable::Cos => (&base.result.trace.cos, "best single pulse ⟨cosθ⟩"),
     };
     plot.series.push(svg::Series { label: label.into(), x: base.result.trace.times_ps.clone(), y: base_series.clone(), color: "#7f7f7f".into(), dashed: true, width: 1.2 });
     if let Some(t) = r.best.full.t_ps {
