@@ -15,7 +15,7 @@ use std::process::ExitCode;
 
 #[derive(Parser)]
 #[command(name = "kicktrain", version, about = "Design and simulate laser pulse trains that align gas-phase molecules.",
-    after_help = "Examples:\n  kicktrain molecules\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
+    after_help = "Examples:\n  kicktrain molecules\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n  kicktrain design --out best\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20\n\n\
 Lasers that align molecules are class 4: follow your laser safety officer and IEC 60825-1 / ANSI Z136.1.")]
 struct Cli {
     #[command(subcommand)]
