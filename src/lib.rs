@@ -21,6 +21,7 @@ pub mod goal;
 pub mod input;
 pub mod molecule;
 pub mod observe;
+pub mod optics;
 pub mod pendular;
 pub mod propagate;
 pub mod report;

@@ -75,6 +75,36 @@ Energies exclude the isotropic shift −¼α⊥E0², common to all states.")]
         #[arg(long)]
         json: bool,
     },
+    /// Convert pulse energy, duration and focusing to peak power, waist, Rayleigh range and intensity.
+    #[command(after_help = "Examples:\n  kicktrain focus --energy-mj 2 --fwhm-fs 40 --waist-um 30\n  \
+kicktrain focus --energy-mj 2 --fwhm-fs 40 --beam-radius-mm 5 --wavelength-nm 800 --focal-length-mm 300 --m2 1.2\n\n\
+Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envelope area (0.9394 E/τ for Gaussian pulses).")]
+    Focus {
+        /// Pulse energy, mJ.
+        #[arg(long)]
+        energy_mj: f64,
+        /// Intensity FWHM, fs.
+        #[arg(long)]
+        fwhm_fs: f64,
+        /// Temporal shape: gaussian, sech2 or flat_top.
+        #[arg(long, default_value = "gaussian")]
+        shape: String,
+        /// 1/e² intensity radius at the focus, µm.
+        #[arg(long)]
+        waist_um: Option<f64>,
+        /// 1/e² intensity radius of the collimated beam on the lens, mm.
+        #[arg(long)]
+        beam_radius_mm: Option<f64>,
+        /// Wavelength, nm.
+        #[arg(long)]
+        wavelength_nm: Option<f64>,
+        /// Focal length, mm.
+        #[arg(long)]
+        focal_length_mm: Option<f64>,
+        /// Beam quality factor M².
+        #[arg(long, default_value_t = 1.0)]
+        m2: f64,
+    },
     /// Simulate one scenario file: alignment trace, summary and plot.
     #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
 The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
@@ -97,6 +127,9 @@ fn main() -> ExitCode {
         Command::Molecules { json } => molecules(json),
         Command::Simulate { scenario, out, json } => run_simulate(&scenario, out.as_deref(), json),
         Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json),
+        Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 } => {
+            run_focus(kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 }, fwhm_fs, &shape)
+        }
         Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
     };
     match result {
@@ -176,8 +209,12 @@ fn print_simulation(s: &serde_json::Value) {
     println!("{} at {} K", s["molecule"]["name"].as_str().unwrap_or("?"), s["temperature_k"]);
     if let Some(ps) = s["pulses"].as_array() {
         for (i, p) in ps.iter().enumerate() {
+            let energy = match (p["energy_mj"].as_f64(), p["waist_um"].as_f64()) {
+                (Some(e), Some(w)) => format!(" ({e} mJ focused to w0 = {w:.1} µm)"),
+                _ => String::new(),
+            };
             println!(
-                "  pulse {}: centre {} ps, FWHM {} fs, {:.3e} W/cm², kick strength {:.3} ({})",
+                "  pulse {}: centre {} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({})",
                 i + 1, p["center_ps"], p["fwhm_fs"], p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
                 p["kick_strength"].as_f64().unwrap_or(0.0), p["method"].as_str().unwrap_or("")
             );
@@ -356,5 +393,28 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
     if intensity > 0.0 {
         println!("{}", report::LASER_SAFETY);
     }
+    Ok(())
+}
+
+fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str) -> Result<(), Error> {
+    use kicktrain::field::{Pulse, PulseShape};
+    use kicktrain::optics::{peak_intensity_wcm2, peak_power_w};
+    focus.validate("focus")?;
+    let shape = PulseShape::parse(shape).ok_or_else(|| Error::input("shape", format!("expected {}, got \"{shape}\"", PulseShape::NAMES)))?;
+    let p = Pulse { center_ps: 0.0, fwhm_fs, peak_intensity_wcm2: 1.0, shape, rise_fs: None };
+    p.validate("pulse")?;
+    let power = peak_power_w(focus.energy_mj, p.envelope_area_ps());
+    let w0 = focus.waist_m();
+    let i0 = peak_intensity_wcm2(power, w0);
+    println!("pulse energy        {} mJ in {fwhm_fs} fs ({shape:?})", focus.energy_mj);
+    println!("peak power          {power:.4e} W");
+    println!("focal waist w0      {:.3} µm (1/e² intensity radius)", w0 * 1e6);
+    if let Some(z) = focus.rayleigh_range_mm() {
+        println!("Rayleigh range      {z:.4} mm");
+    }
+    println!("peak intensity      {i0:.4e} W/cm² (on axis, at the focus)");
+    println!("peak field          {:.4e} V/m", kicktrain::units::peak_field_v_per_m(i0));
+    println!("peak fluence        {:.4e} J/cm²", 2.0 * focus.energy_mj * 1e-3 / (std::f64::consts::PI * (w0 * 100.0).powi(2)));
+    println!("{}", report::LASER_SAFETY);
     Ok(())
 }

@@ -4,6 +4,7 @@
 use crate::error::{require_non_negative, require_positive, Error, Result};
 use crate::field::{FieldModel, Pulse, PulseShape, StaticField, TerahertzPulse, TerahertzWaveform, TwoColourPulse};
 use crate::goal::{parse_goal, Goal};
+use crate::optics::{peak_intensity_wcm2, peak_power_w, Focus};
 use crate::input::{join, parse_json, type_name, Fields};
 use crate::molecule::Molecule;
 use serde_json::{json, Value};
@@ -115,6 +116,8 @@ pub struct Scenario {
     pub solver: SolverSettings,
     /// Optional goal scored on the result (as the designer scores it), relative to the last pulse centre.
     pub goal: Option<Goal>,
+    /// For each laser pulse, the energy and focus it was given by (None: given by its peak intensity).
+    pub pulse_optics: Vec<Option<Focus>>,
 }
 
 impl Scenario {
@@ -129,6 +132,7 @@ impl Scenario {
             window,
             solver: SolverSettings::default(),
             goal: None,
+            pulse_optics: vec![],
         };
         s.validate()?;
         Ok(s)
@@ -147,12 +151,15 @@ impl Scenario {
         let mv = f.req_value("molecule", "a library name (see `kicktrain molecules`) or an object with b_cm, alpha_parallel_a3, ...")?;
         let (molecule, molecule_source) = parse_molecule(mv, &f.path_of("molecule"))?;
         let temperature_k = f.req_f64("temperature_k", "K")?;
+        let mut pulse_optics = vec![];
         let pulses = match f.opt_value("pulses") {
             None => vec![],
             Some(Value::Array(items)) => {
                 let mut out = vec![];
                 for (i, item) in items.iter().enumerate() {
-                    out.push(parse_pulse(item, &format!("{}[{i}]", f.path_of("pulses")))?);
+                    let (p, optics) = parse_pulse(item, &format!("{}[{i}]", f.path_of("pulses")))?;
+                    out.push(p);
+                    pulse_optics.push(optics);
                 }
                 out
             }
@@ -175,7 +182,7 @@ impl Scenario {
             Some(g) => Some(parse_goal(g, &f.path_of("goal"))?),
         };
         f.finish()?;
-        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field, two_colour, terahertz }, window, solver, goal };
+        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field, two_colour, terahertz }, window, solver, goal, pulse_optics };
         s.validate_at(path)?;
         Ok(s)
     }
@@ -260,7 +267,19 @@ impl Scenario {
         }
         obj.insert("molecule".into(), molecule);
         obj.insert("temperature_k".into(), json!(self.temperature_k));
-        obj.insert("pulses".into(), serde_json::to_value(&self.field.pulses).expect("pulses serialize"));
+        let mut pulses = serde_json::to_value(&self.field.pulses).expect("pulses serialize");
+        if let Value::Array(items) = &mut pulses {
+            for (item, optics) in items.iter_mut().zip(&self.pulse_optics) {
+                if let (Some(o), Value::Object(map)) = (optics, item) {
+                    // Written back the way it was given: energy and focus instead of the derived intensity.
+                    map.remove("peak_intensity_wcm2");
+                    if let Value::Object(fm) = serde_json::to_value(o).expect("focus serializes") {
+                        map.extend(fm);
+                    }
+                }
+            }
+        }
+        obj.insert("pulses".into(), pulses);
         if let Some(sf) = &self.field.static_field {
             obj.insert("static_field".into(), serde_json::to_value(sf).expect("static field serializes"));
         }
@@ -319,20 +338,44 @@ fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
     }
 }
 
-fn parse_pulse(v: &Value, path: &str) -> Result<Pulse> {
+fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {
     let mut f = Fields::new(v, path)?;
     let center_ps = f.req_f64("center_ps", "ps")?;
     let fwhm_fs = f.req_f64("fwhm_fs", "fs")?;
-    let peak_intensity_wcm2 = f.req_f64("peak_intensity_wcm2", "W/cm²")?;
+    let intensity = f.opt_f64("peak_intensity_wcm2", "W/cm²")?;
+    let energy = f.opt_f64("energy_mj", "mJ")?;
+    let waist_um = f.opt_f64("waist_um", "µm")?;
+    let beam_radius_mm = f.opt_f64("beam_radius_mm", "mm")?;
+    let wavelength_nm = f.opt_f64("wavelength_nm", "nm")?;
+    let focal_length_mm = f.opt_f64("focal_length_mm", "mm")?;
+    let m2 = f.opt_f64("m2", "beam quality factor")?.unwrap_or(1.0);
     let shape = match f.opt_str("shape", PulseShape::NAMES)? {
         None => PulseShape::Gaussian,
         Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
     };
     let rise_fs = f.opt_f64("rise_fs", "fs")?;
     f.finish()?;
-    let p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape, rise_fs };
+    let mut p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2: 0.0, shape, rise_fs };
+    let optics = match (intensity, energy) {
+        (Some(i), None) => {
+            if waist_um.or(beam_radius_mm).or(wavelength_nm).or(focal_length_mm).is_some() {
+                return Err(Error::input(join(path, "energy_mj"), "focusing keys need the pulse energy (energy_mj) instead of peak_intensity_wcm2"));
+            }
+            p.peak_intensity_wcm2 = i;
+            None
+        }
+        (None, Some(e)) => {
+            let focus = Focus { energy_mj: e, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 };
+            focus.validate(path)?;
+            require_positive(&join(path, "fwhm_fs"), fwhm_fs, "fs")?;
+            p.peak_intensity_wcm2 = peak_intensity_wcm2(peak_power_w(e, p.envelope_area_ps()), focus.waist_m());
+            Some(focus)
+        }
+        (Some(_), Some(_)) => return Err(Error::input(join(path, "energy_mj"), "give either peak_intensity_wcm2 or energy_mj with the focus, not both")),
+        (None, None) => return Err(Error::input(join(path, "peak_intensity_wcm2"), "missing; expected the peak intensity (W/cm²), or energy_mj with waist_um (or beam_radius_mm, wavelength_nm, focal_length_mm)")),
+    };
     p.validate(path)?;
-    Ok(p)
+    Ok((p, optics))
 }
 
 fn parse_list<T>(v: Option<&Value>, path: &str, item: fn(&Value, &str) -> Result<T>) -> Result<Vec<T>> {
@@ -444,6 +487,20 @@ mod tests {
 
     fn err(text: &str) -> String {
         Scenario::from_json_str(text, "x").unwrap_err().to_string()
+    }
+
+    #[test]
+    fn pulses_given_by_energy_and_focus() {
+        // 1 mJ, 100 fs Gaussian focused to w0 = 50 µm: I0 = 2.392e14 W/cm² (worked in optics::tests, Siegman 1986).
+        let text = GOOD.replace("\"peak_intensity_wcm2\":5e13", "\"energy_mj\":1.0,\"waist_um\":50").replace("\"fwhm_fs\":50", "\"fwhm_fs\":100");
+        let s = Scenario::from_json_str(&text, "x").unwrap();
+        assert!((s.field.pulses[0].peak_intensity_wcm2 / 2.392e14 - 1.0).abs() < 5e-4);
+        let back = Scenario::from_value(&s.to_value(), "").unwrap();
+        assert_eq!(back, s);
+        let both = text.replace("\"energy_mj\":1.0", "\"energy_mj\":1.0,\"peak_intensity_wcm2\":1e13");
+        assert!(err(&both).starts_with("pulses[0].energy_mj:"));
+        let bad_m2 = text.replace("\"waist_um\":50", "\"waist_um\":50,\"m2\":0.5");
+        assert!(err(&bad_m2).starts_with("pulses[0].m2:"));
     }
 
     #[test]

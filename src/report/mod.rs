@@ -53,10 +53,17 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         .iter()
         .enumerate()
         .map(|(i, p)| {
-            json!({
+            let mut v = json!({
                 "center_ps": p.center_ps, "fwhm_fs": p.fwhm_fs, "peak_intensity_wcm2": p.peak_intensity_wcm2,
                 "shape": p.shape, "kick_strength": p.kick_strength(da), "method": methods[i],
-            })
+            });
+            if let Some(Some(o)) = s.pulse_optics.get(i) {
+                v["energy_mj"] = json!(o.energy_mj);
+                v["waist_um"] = json!(o.waist_m() * 1e6);
+                v["peak_power_w"] = json!(crate::optics::peak_power_w(o.energy_mj, p.envelope_area_ps()));
+                v["rayleigh_range_mm"] = json!(o.rayleigh_range_mm());
+            }
+            v
         })
         .collect();
     let after = s.field.last_pulse_end_ps().unwrap_or(f64::NEG_INFINITY);
