@@ -358,8 +358,9 @@ fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {
     let mut p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2: 0.0, shape, rise_fs };
     let optics = match (intensity, energy) {
         (Some(i), None) => {
-            if waist_um.or(beam_radius_mm).or(wavelength_nm).or(focal_length_mm).is_some() {
-                return Err(Error::input(join(path, "energy_mj"), "focusing keys need the pulse energy (energy_mj) instead of peak_intensity_wcm2"));
+            let given = [("waist_um", waist_um), ("beam_radius_mm", beam_radius_mm), ("wavelength_nm", wavelength_nm), ("focal_length_mm", focal_length_mm)];
+            if let Some((key, _)) = given.iter().find(|(_, v)| v.is_some()) {
+                return Err(Error::input(join(path, key), "focusing keys go with the pulse energy (energy_mj), not with peak_intensity_wcm2"));
             }
             p.peak_intensity_wcm2 = i;
             None

@@ -177,8 +177,16 @@ fn scenario_unknown_top_level_key() {
 fn scenario_unknown_pulse_key() {
     // Checks: an unknown key inside a pulse is named with its full path.
     let mut v = good_scenario();
+    v["pulses"][0]["polarization_deg"] = json!(30);
+    simulate_fails_on("unknown-pulse", &v, "pulses[0].polarization_deg");
+}
+
+#[test]
+fn scenario_focus_key_without_energy() {
+    // Checks: a focusing key next to a peak intensity is refused, naming that key.
+    let mut v = good_scenario();
     v["pulses"][0]["wavelength_nm"] = json!(800);
-    simulate_fails_on("unknown-pulse", &v, "pulses[0].wavelength_nm");
+    simulate_fails_on("focus-without-energy", &v, "pulses[0].wavelength_nm");
 }
 
 #[test]
