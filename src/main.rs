@@ -108,7 +108,7 @@ Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envel
     /// Simulate one scenario file: alignment trace, summary and plot.
     #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
 The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
---out DIR writes summary.json, trace.csv (t_ps,cos2,cos2_2d) and alignment.svg.")]
+--out DIR writes summary.json, trace.csv (t_ps,cos2,cos2_2d, plus cos,cos3 with orienting fields) and alignment.svg.")]
     Simulate {
         /// Scenario file (JSON).
         scenario: PathBuf,

@@ -12,7 +12,8 @@ use serde_json::{json, Value};
 /// How the solver treats laser pulses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Method {
-    /// Kick where the pulse is short enough for the kick error to be negligible, else time-dependent.
+    /// Kick where the pulse is short enough for the kick error to be negligible, else time-dependent
+    /// (with static, two-colour or terahertz fields every pulse is propagated in time).
     #[default]
     Auto,
     /// Every pulse as an exact impulsive kick at its centre.

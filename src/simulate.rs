@@ -142,15 +142,26 @@ impl Solver {
         p.kick_strength(da).abs().min(adiabatic)
     }
 
+    /// Sum of the effective strengths of the laser and two-colour pulses.
+    fn total_strength(&self, field: &FieldModel) -> f64 {
+        let lasers: f64 = field.pulses.iter().map(|p| self.effective_strength(p)).sum();
+        let two_colour: f64 = field
+            .two_colour
+            .iter()
+            .map(|t| self.effective_strength(&crate::field::Pulse { peak_intensity_wcm2: t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2, ..t.envelope_pulse() }))
+            .sum();
+        lasers + two_colour
+    }
+
     /// Block levels added above the thermal top: grows with the total (effective) kick strength.
     fn extra_levels(&self, field: &FieldModel) -> usize {
-        let total: f64 = field.pulses.iter().map(|p| self.effective_strength(p)).sum();
+        let total = self.total_strength(field);
         (0.75 * total.min(1e4)).ceil() as usize + 6
     }
 
     /// Refuse fields whose total kick strength no basis up to `MAX_BASIS_J` could hold.
     fn check_strength(&self, field: &FieldModel) -> Result<()> {
-        let total: f64 = field.pulses.iter().map(|p| self.effective_strength(p)).sum();
+        let total = self.total_strength(field);
         let room = self.molecule.max_physical_j().saturating_sub(self.ensemble.j_max) as f64;
         if !total.is_finite() || total > room {
             return Err(Error::input(
@@ -478,7 +489,7 @@ impl Solver {
         }
         let [cos2, cos2_2d, cos, cos3]: [Vec<f64>; POLAR_OBSERVABLES] = values.try_into().expect("four observables");
         let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3 };
-        // Coherence sums by J do not apply in a static field; goals are refused for such scenarios.
+        // Coherence sums by J do not apply in a static field: goals are scored on the samples alone.
         let mut final_sums = LevelSums::new(vec![], f64::INFINITY, false);
         final_sums.cos2_static = permanent[0];
         final_sums.abscos_static = permanent[1];
@@ -512,8 +523,10 @@ impl Solver {
         let index: Vec<usize> = bp.levels.iter().map(|l| (l.0 - block.j_min()) as usize).collect();
         // A static field on from the start was met adiabatically: start in the dressed states that
         // correlate with the thermal field-free levels (same energy order within the block).
-        let s0 = self.static_rate(field, t_first);
-        let starts_dressed = s0 != 0.0 && field.static_field.map(|s| s.on_ps.is_none()).unwrap_or(false);
+        // The field the molecules arrived in: on from the start (no on_ps) and not yet switched off.
+        let arrived_in = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.map(|o| o >= t_first).unwrap_or(true));
+        let s0 = arrived_in.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
+        let starts_dressed = s0 != 0.0;
         let mut state = if starts_dressed {
             let e = ops.static_eigen(s0);
             let mut cols = DMatrix::zeros(ops.size(), index.len());
@@ -539,7 +552,12 @@ impl Solver {
         let switch_times: Vec<f64> = field.static_field.map(|s| s.on_ps.into_iter().chain(s.off_ps).collect()).unwrap_or_default();
         for item in items {
             let (s, e) = item.span();
-            let rate_gap = self.static_rate(field, state.t_ps);
+            if matches!(item, PolarItem::Switch(_)) && s < state.t_ps {
+                // A switch inside a finite interval was already stepped onto there.
+                continue;
+            }
+            // Just after the state's time, so that a switch at exactly that time counts.
+            let rate_gap = self.static_rate(field, state.t_ps + 1e-9 * (1.0 + state.t_ps.abs()));
             let gap_end = ti + times[ti..].partition_point(|t| *t < s);
             if gap_end > ti {
                 let sums = gap_sums(&state, rate_gap);
@@ -566,6 +584,7 @@ impl Solver {
                     let inside = times[ti..].partition_point(|t| *t < e);
                     let stops = &times[ti..ti + inside];
                     let mut breaks: Vec<f64> = field.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
+                    breaks.extend(field.two_colour.iter().flat_map(|t| t.envelope_pulse().breakpoints_ps()));
                     breaks.extend(switch_times.iter().copied());
                     let mol = &self.molecule;
                     let mut kick = |st: &mut BlockState, t: f64, h: f64| {

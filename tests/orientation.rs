@@ -127,7 +127,7 @@ fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state()
     let intensity = 2e13;
     let dressed = pendular(&mol, intensity, 0.0, 0.0, 2).unwrap();
     let ground = dressed.states.iter().find(|s| s.m == 0 && s.j == 0).unwrap();
-    // T_rev = 8.3 ps; a 60 ps sech² pulse is slow.
+    // T_rev = 8.3 ps; a 60 ps Gaussian pulse is slow.
     let field = FieldModel::pulses(vec![Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Gaussian, rise_fs: None }]);
     let settings = SolverSettings { method: Method::Finite, ..Default::default() };
     let r = Solver::new(&mol, 0.0, settings).unwrap().run(&field, &[0.0, 200.0, 201.0], false).unwrap();
@@ -227,4 +227,29 @@ fn two_colour_phase_shift_by_pi_reverses_orientation_and_short_pulse_matches_qua
     let (t1, t3) = (g * 3.0 * 4000.0, g * (20000.0 - 12000.0));
     let reference = ground_state_kick(&mol, |x| t1 * x + p2 * x * x + t3 * x * x * x, |x| x, &times);
     assert!(max_diff(&kick.cos, &reference) < 1e-8, "{}", max_diff(&kick.cos, &reference));
+}
+
+#[test]
+fn static_field_switches_inside_a_pulse_and_at_the_first_event() {
+    // Regression checks of the schedule: (a) a field switched off exactly at the first event still
+    // dresses the initial ensemble (the molecules arrived in it), so the orientation before the switch
+    // equals that of an always-on field; (b) two sudden switches inside one pulse interval give the
+    // same result whether the samples fall inside or outside the pulse (no step runs backwards).
+    let mol = lib("OCS");
+    let on = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, on_ps: None, off_ps: None }), ..Default::default() };
+    let off_at_first = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, on_ps: None, off_ps: Some(0.0) }), ..Default::default() };
+    let a = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&on, &[0.0], false).unwrap().trace.cos[0];
+    let b = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&off_at_first, &[-1.0], false).unwrap().trace.cos[0];
+    assert!(a > 0.05 && (a - b).abs() < 1e-10, "always on {a}, off at first event {b}");
+    let inside = FieldModel {
+        pulses: vec![Pulse::gaussian(0.0, 2000.0, 1e11)],
+        static_field: Some(StaticField { strength_kv_cm: 30.0, on_ps: Some(-1.0), off_ps: Some(1.0) }),
+        ..Default::default()
+    };
+    let solver = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap();
+    let coarse = solver.run(&inside, &[20.0, 40.0], false).unwrap().trace.cos;
+    let fine = solver.run(&inside, &grid(-5.0, 40.0, 0.5), false).unwrap().trace.cos;
+    let last = fine.len() - 1;
+    assert!((coarse[1] - fine[last]).abs() < 1e-7, "{} vs {}", coarse[1], fine[last]);
+    assert!(coarse[1].abs() > 1e-4, "the switched field must leave some orientation: {}", coarse[1]);
 }

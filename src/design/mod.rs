@@ -263,6 +263,15 @@ impl DesignSpace {
             if tc.fundamental_intensity_wcm2 + tc.second_harmonic_intensity_wcm2 > self.max_peak_intensity_wcm2 * (1.0 + tol) {
                 return Err(format!("two-colour pulse {} exceeds the ceiling", k + 1));
             }
+            if k > 0 && tc.center_ps - field.two_colour[k - 1].center_ps < self.min_separation_ps - tol {
+                return Err(format!("two-colour pulses {} and {} are closer than the minimum separation", k, k + 1));
+            }
+        }
+        if let Some(b) = self.max_total_fluence_jcm2 {
+            let total: f64 = field.two_colour.iter().map(|t| (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2) * t.envelope_pulse().envelope_area_ps() * 1e-12).sum();
+            if total > b * (1.0 + tol) {
+                return Err(format!("total two-colour fluence {total} J/cm² exceeds the budget {b} J/cm²"));
+            }
         }
         for (k, p) in field.pulses.iter().enumerate() {
             if p.peak_intensity_wcm2 > self.max_peak_intensity_wcm2 * (1.0 + tol) {
@@ -447,7 +456,8 @@ impl Objective {
         let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
         // The strongest design must fit the largest basis the solver allows.
         let da = obj.molecule().delta_alpha_a3();
-        let strongest: f64 = longest.pulses.iter().map(|p| p.kick_strength(da).abs()).sum();
+        let strongest: f64 = longest.pulses.iter().map(|p| p.kick_strength(da).abs()).sum::<f64>()
+            + longest.two_colour.iter().map(|t| t.envelope_pulse().kick_strength(da) * (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2)).sum::<f64>();
         let room = obj.molecule().max_physical_j() as f64 * 0.6;
         if strongest > room {
             return Err(Error::input(

@@ -1,8 +1,8 @@
-//! Blocks for fields that break the parity of J (a static field, later two-colour and terahertz
-//! fields): one block per |M| holding every J. Couplings that are functions of cosθ are diagonal in
-//! the eigenbasis of the block's cosθ matrix (a discrete-variable representation), so a kick
-//! exp(i[θ2 cos²θ + θ1 cosθ]) is exact there; evolution in a constant static field is exact through
-//! the eigendecomposition of H0 − μE cosθ.
+//! Blocks for fields that break the parity of J (static, two-colour and terahertz fields): one block
+//! per |M| holding every J. Couplings that are functions of cosθ are diagonal in the eigenbasis of the
+//! block's cosθ matrix (a discrete-variable representation), so a kick
+//! exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) is exact there; evolution in a constant static field is exact
+//! through the eigendecomposition of H0 − μE cosθ.
 
 use crate::basis::{Block, BOTH_PARITIES};
 use crate::molecule::Molecule;
