@@ -231,6 +231,9 @@ fn print_simulation(s: &serde_json::Value) {
             s["permanent_cos"].as_f64().unwrap_or(0.0)
         );
     }
+    if let Some(fa) = s.get("focal_average").filter(|v| !v.is_null()) {
+        println!("  focal-volume average: peak ⟨cos²θ⟩ {}, peak ⟨cos²θ_2D⟩ {}", fmt_ext(&fa["peak_cos2"]), fmt_ext(&fa["peak_cos2_2d"]));
+    }
     println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
     println!(
         "  {} initial states (discarded population {:.1e}); basis up to J = {} (edge population {:.1e}); {:.3} s",

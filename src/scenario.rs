@@ -3,6 +3,7 @@
 
 use crate::error::{require_non_negative, require_positive, Error, Result};
 use crate::field::{FieldModel, Pulse, PulseShape, StaticField, TerahertzPulse, TerahertzWaveform, TwoColourPulse};
+use crate::optics::focal::FocalAverage;
 use crate::goal::{parse_goal, Goal};
 use crate::optics::{peak_intensity_wcm2, peak_power_w, Focus};
 use crate::input::{join, parse_json, type_name, Fields};
@@ -119,6 +120,8 @@ pub struct Scenario {
     pub goal: Option<Goal>,
     /// For each laser pulse, the energy and focus it was given by (None: given by its peak intensity).
     pub pulse_optics: Vec<Option<Focus>>,
+    /// Average over the pump and probe foci (None: on-axis only).
+    pub focal_average: Option<FocalAverage>,
 }
 
 impl Scenario {
@@ -134,6 +137,7 @@ impl Scenario {
             solver: SolverSettings::default(),
             goal: None,
             pulse_optics: vec![],
+            focal_average: None,
         };
         s.validate()?;
         Ok(s)
@@ -178,12 +182,16 @@ impl Scenario {
             None => SolverSettings::default(),
             Some(sv) => parse_solver(sv, &f.path_of("solver"))?,
         };
+        let focal_average = match f.opt_value("focal_average") {
+            None => None,
+            Some(v) => Some(parse_focal(v, &f.path_of("focal_average"))?),
+        };
         let goal = match f.opt_value("goal") {
             None => None,
             Some(g) => Some(parse_goal(g, &f.path_of("goal"))?),
         };
         f.finish()?;
-        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field, two_colour, terahertz }, window, solver, goal, pulse_optics };
+        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field, two_colour, terahertz }, window, solver, goal, pulse_optics, focal_average };
         s.validate_at(path)?;
         Ok(s)
     }
@@ -304,6 +312,9 @@ impl Scenario {
         obj.insert("solver".into(), Value::Object(solver));
         if let Some(g) = &self.goal {
             obj.insert("goal".into(), g.to_value());
+        }
+        if let Some(a) = &self.focal_average {
+            obj.insert("focal_average".into(), serde_json::to_value(a).expect("serializes"));
         }
         Value::Object(obj)
     }
@@ -431,6 +442,21 @@ fn parse_terahertz(v: &Value, path: &str) -> Result<TerahertzPulse> {
     let t = TerahertzPulse { center_ps, duration_fs, peak_field_kv_cm, waveform };
     t.validate(path)?;
     Ok(t)
+}
+
+/// Read a focal-averaging block found at `path`.
+pub fn parse_focal(v: &Value, path: &str) -> Result<FocalAverage> {
+    let mut f = Fields::new(v, path)?;
+    let d = 20usize;
+    let a = FocalAverage {
+        pump_waist_um: f.req_f64("pump_waist_um", "µm")?,
+        probe_waist_um: f.req_f64("probe_waist_um", "µm")?,
+        probe_order: f.opt_f64("probe_order", "probe nonlinearity order")?.unwrap_or(1.0),
+        points: f.opt_usize("points", "quadrature points")?.unwrap_or(d),
+    };
+    f.finish()?;
+    a.validate(path)?;
+    Ok(a)
 }
 
 fn parse_static(v: &Value, path: &str) -> Result<StaticField> {

@@ -5,6 +5,7 @@
 use crate::basis::{Block, BOTH_PARITIES};
 use crate::propagate::polar::{PolarOps, POLAR_OBSERVABLES};
 use nalgebra::DMatrix;
+use crate::optics::focal::FocalAverage;
 use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
@@ -372,6 +373,58 @@ impl Solver {
     }
 }
 
+impl Solver {
+    /// Run averaged over the focal volume: every laser and two-colour intensity is scaled by the
+    /// quadrature fractions of `avg` and the results are summed with its weights. Static and terahertz
+    /// fields are taken as uniform across the focus.
+    pub fn run_focal(&self, field: &FieldModel, times: &[f64], with_2d: bool, avg: &FocalAverage) -> Result<RunResult> {
+        let mut out: Option<RunResult> = None;
+        let (mut perm, mut perm2d, mut perm_cos) = (0.0, 0.0, 0.0);
+        for (u, w) in avg.nodes() {
+            let mut f = field.clone();
+            f.pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= u);
+            f.two_colour.iter_mut().for_each(|t| {
+                t.fundamental_intensity_wcm2 *= u;
+                t.second_harmonic_intensity_wcm2 *= u;
+            });
+            let r = self.run(&f, times, with_2d)?;
+            perm += w * r.permanent_cos2;
+            perm2d += w * r.permanent_cos2_2d;
+            perm_cos += w * r.permanent_cos.unwrap_or(0.0);
+            match &mut out {
+                None => {
+                    let mut first = r;
+                    for series in [&mut first.trace.cos2, &mut first.trace.cos2_2d, &mut first.trace.cos, &mut first.trace.cos3] {
+                        series.iter_mut().for_each(|v| *v *= w);
+                    }
+                    out = Some(first);
+                }
+                Some(acc) => {
+                    let pairs = [(&mut acc.trace.cos2, &r.trace.cos2), (&mut acc.trace.cos2_2d, &r.trace.cos2_2d), (&mut acc.trace.cos, &r.trace.cos), (&mut acc.trace.cos3, &r.trace.cos3)];
+                    for (a, b) in pairs {
+                        a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
+                    }
+                    for (a, b) in acc.blocks.iter_mut().zip(&r.blocks) {
+                        if b.j_max > a.j_max {
+                            *a = b.clone();
+                        }
+                    }
+                }
+            }
+        }
+        let mut r = out.expect("at least two quadrature points");
+        r.permanent_cos2 = perm;
+        r.permanent_cos2_2d = perm2d;
+        r.permanent_cos = r.permanent_cos.map(|_| perm_cos);
+        // An average of runs has no single set of coherence sums: goals use the samples alone.
+        let mut sums = LevelSums::new(vec![], f64::INFINITY, false);
+        sums.cos2_static = perm;
+        sums.abscos_static = perm2d;
+        r.final_sums = sums;
+        Ok(r)
+    }
+}
+
 /// One step of the schedule with both parities.
 enum PolarItem {
     /// exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) at time t.
@@ -643,8 +696,10 @@ pub struct Simulation {
     pub discarded_population: f64,
     /// Initially populated |J M⟩ sublevels.
     pub initial_states: usize,
-    /// The scenario's goal scored on this run (None without a goal).
+    /// The scenario's goal scored on this run (None without a goal); on the focal average when one is set.
     pub goal_score: Option<Score>,
+    /// The run averaged over the focal volume (None without `focal_average`).
+    pub averaged: Option<RunResult>,
     /// Wall-clock run time, s.
     pub run_time_s: f64,
 }
@@ -656,16 +711,26 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
     let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?;
     let times = scenario.window.times_ps();
     let result = solver.run(&scenario.field, &times, true)?;
+    let averaged = match &scenario.focal_average {
+        None => None,
+        Some(avg) => Some(solver.run_focal(&scenario.field, &times, true, avg)?),
+    };
     let goal_score = match &scenario.goal {
         None => None,
         Some(goal) => {
             // Scored exactly as the designer scores it: the goal's own sample grid and refinement.
             let t_last = scenario.last_pulse_center_ps();
-            let run = solver.run(&scenario.field, &goal.times(t_last), goal.observable != Observable::Cos2)?;
+            let goal_times = goal.times(t_last);
+            let with_2d = goal.observable != Observable::Cos2;
+            let run = match &scenario.focal_average {
+                None => solver.run(&scenario.field, &goal_times, with_2d)?,
+                Some(avg) => solver.run_focal(&scenario.field, &goal_times, with_2d, avg)?,
+            };
             Some(score_goal(goal, &run.trace, &run.final_sums, t_last))
         }
     };
     Ok(Simulation {
+        averaged,
         goal_score,
         scenario: scenario.clone(),
         result,

@@ -403,6 +403,7 @@ impl Objective {
         let budget = f.opt_f64("max_total_fluence_jcm2", "J/cm²")?;
         let min_sep = f.opt_f64("min_separation_ps", "ps")?.unwrap_or(0.0);
         let static_v = f.opt_value("static_field_kv_cm");
+        let focal_v = f.opt_value("focal_average");
         let thz_v = f.opt_value("terahertz");
         let goal_v = f.req_value("goal", "an object with kind, observable and window_ps")?;
         let search_v = f.opt_value("search");
@@ -412,6 +413,9 @@ impl Objective {
         let mut base_json = serde_json::json!({"molecule": mv, "temperature_k": temperature_k, "window": {"start_ps": 0.0, "stop_ps": 1.0, "step_fs": 10.0}});
         if let Some(s) = solver_v {
             base_json["solver"] = s.clone();
+        }
+        if let Some(a) = focal_v {
+            base_json["focal_average"] = a.clone();
         }
         let base = Scenario::from_value(&base_json, "")?;
         let (mut space, variable_count) = parse_pulses(pulses_v, "pulses", ceiling, budget, min_sep)?;

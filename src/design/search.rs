@@ -140,7 +140,10 @@ impl<'a> Evaluator<'a> {
         let t_last = field.last_center_ps();
         let times = goal.times(t_last);
         let solver = if full { &self.full } else { &self.kick };
-        let run = solver.run(field, &times, self.with_2d)?;
+        let run = match &self.obj.base.focal_average {
+            None => solver.run(field, &times, self.with_2d)?,
+            Some(avg) => solver.run_focal(field, &times, self.with_2d, avg)?,
+        };
         let s = crate::observe::score_goal(goal, &run.trace, &run.final_sums, t_last);
         let counter = if full { &self.full_count } else { &self.kick_count };
         counter.fetch_add(1, Ordering::Relaxed);

@@ -2,6 +2,7 @@
 //! truncated at a stated tolerance and grouped into (|M|, parity) blocks.
 
 use crate::error::{Error, Result};
+
 use crate::molecule::Molecule;
 use crate::units::kt_in_cm;
 

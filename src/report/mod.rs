@@ -105,6 +105,14 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
             }
         },
         "permanent_cos": r.permanent_cos.map(num),
+        "focal_average": match (&s.focal_average, &sim.averaged) {
+            (Some(a), Some(av)) => {
+                let t = &av.trace;
+                json!({"settings": a, "peak_cos2": extremum(t.max_after(&t.cos2, after)), "peak_cos2_2d": extremum(t.max_after(&t.cos2_2d, after)),
+                    "min_cos2": extremum(t.min_after(&t.cos2, after)), "permanent_cos2": num(av.permanent_cos2)})
+            }
+            _ => Value::Null,
+        },
         "permanent_cos2": num(r.permanent_cos2),
         "permanent_cos2_2d": num(r.permanent_cos2_2d),
         "revival_period_ps": revival_period_ps(s.molecule.b_cm),
@@ -206,8 +214,21 @@ pub fn write_file(dir: &Path, name: &str, contents: &str) -> Result<()> {
 pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
     let summary = simulation_summary(sim);
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("summary serializes") + "\n"))?;
-    write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &[]))?;
+    let mut extra: Vec<(&str, &[f64])> = vec![];
+    if let Some(av) = &sim.averaged {
+        extra.push(("cos2_avg", &av.trace.cos2));
+        extra.push(("cos2_2d_avg", &av.trace.cos2_2d));
+        if !av.trace.cos.is_empty() {
+            extra.push(("cos_avg", &av.trace.cos));
+        }
+    }
+    write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
     let title = sim.scenario.description.clone().unwrap_or_else(|| "Field-free alignment".to_string());
-    write_file(dir, "alignment.svg", &alignment_plot(&sim.scenario, &sim.result.trace, &title).to_svg())?;
+    let mut plot = alignment_plot(&sim.scenario, &sim.result.trace, &title);
+    if let Some(av) = &sim.averaged {
+        plot.series.push(svg::Series { label: "⟨cos²θ⟩ focal average".into(), x: av.trace.times_ps.clone(), y: av.trace.cos2.clone(), color: "#1f5fa8".into(), dashed: true, width: 1.4 });
+        plot.series.push(svg::Series { label: "⟨cos²θ_2D⟩ focal average".into(), x: av.trace.times_ps.clone(), y: av.trace.cos2_2d.clone(), color: "#d9622b".into(), dashed: true, width: 1.4 });
+    }
+    write_file(dir, "alignment.svg", &plot.to_svg())?;
     Ok(summary)
 }

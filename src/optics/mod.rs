@@ -1,6 +1,8 @@
 //! From the optical table to the molecules: pulse energy, duration and focusing give the peak
 //! intensity (Gaussian beams; temporal shape factors from the envelope area).
 
+pub mod focal;
+
 use crate::error::{require_positive, Error, Result};
 use serde::{Deserialize, Serialize};
 
