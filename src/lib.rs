@@ -25,6 +25,7 @@ pub mod optics;
 pub mod pendular;
 pub mod propagate;
 pub mod report;
+pub mod scan;
 pub mod scenario;
 pub mod simulate;
 pub mod units;

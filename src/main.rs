@@ -105,6 +105,44 @@ Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envel
         #[arg(long, default_value_t = 1.0)]
         m2: f64,
     },
+    /// Scan one or two numeric fields of a scenario (for example delay × intensity), in parallel.
+    #[command(after_help = "Examples:\n  kicktrain scan examples/scenarios/nitrogen-one-pulse.json --x pulses[0].peak_intensity_wcm2 --from 1e13 --to 8e13 --steps 15 --out scan1\n  \
+kicktrain scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 --y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --out scan2\n\n\
+Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the last pulse. Writes scan.csv and scan.svg (a line or a heatmap).")]
+    Scan {
+        /// Scenario file (JSON).
+        scenario: PathBuf,
+        /// Path of the first scanned field, e.g. pulses[1].center_ps.
+        #[arg(long)]
+        x: String,
+        /// First value of x.
+        #[arg(long)]
+        from: f64,
+        /// Last value of x.
+        #[arg(long)]
+        to: f64,
+        /// Number of x values.
+        #[arg(long, default_value_t = 21)]
+        steps: usize,
+        /// Path of the second scanned field (2D scan).
+        #[arg(long)]
+        y: Option<String>,
+        /// First value of y.
+        #[arg(long)]
+        y_from: Option<f64>,
+        /// Last value of y.
+        #[arg(long)]
+        y_to: Option<f64>,
+        /// Number of y values.
+        #[arg(long, default_value_t = 21)]
+        y_steps: usize,
+        /// Output folder for scan.csv and scan.svg.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// No progress bar.
+        #[arg(long)]
+        quiet: bool,
+    },
     /// Simulate one scenario file: alignment trace, summary and plot.
     #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
 The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
@@ -129,6 +167,9 @@ fn main() -> ExitCode {
         Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json),
         Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 } => {
             run_focus(kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 }, fwhm_fs, &shape)
+        }
+        Command::Scan { scenario, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } => {
+            run_scan(&scenario, &x, from, to, steps, y.as_deref(), y_from, y_to, y_steps, out.as_deref(), quiet)
         }
         Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
     };
@@ -418,6 +459,66 @@ fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str) -> Resu
     println!("peak intensity      {i0:.4e} W/cm² (on axis, at the focus)");
     println!("peak field          {:.4e} V/m", kicktrain::units::peak_field_v_per_m(i0));
     println!("peak fluence        {:.4e} J/cm²", 2.0 * focus.energy_mj * 1e-3 / (std::f64::consts::PI * (w0 * 100.0).powi(2)));
+    println!("{}", report::LASER_SAFETY);
+    Ok(())
+}
+
+#[allow(clippy::too_many_arguments)]
+fn run_scan(path: &Path, x: &str, from: f64, to: f64, steps: usize, y: Option<&str>, y_from: Option<f64>, y_to: Option<f64>, y_steps: usize, out: Option<&Path>, quiet: bool) -> Result<(), Error> {
+    use kicktrain::report::svg;
+    use kicktrain::scan::{scan, Axis, Metric};
+    let text = read_text(path)?;
+    let base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
+    let xa = Axis::linear(x, from, to, steps)?;
+    let ya = match y {
+        None => None,
+        Some(p) => {
+            let (a, b) = (y_from.ok_or_else(|| Error::input("y-from", "missing; a 2D scan needs --y-from and --y-to"))?, y_to.ok_or_else(|| Error::input("y-to", "missing; a 2D scan needs --y-from and --y-to"))?);
+            Some(Axis::linear(p, a, b, y_steps)?)
+        }
+    };
+    let total = steps * ya.as_ref().map(|a| a.values.len()).unwrap_or(1);
+    let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(total as u64) };
+    bar.set_style(indicatif::ProgressStyle::with_template("scan [{bar:30}] {pos}/{len} (ETA {eta})").expect("template").progress_chars("=> "));
+    let t0 = std::time::Instant::now();
+    let r = scan(&base, &xa, ya.as_ref(), &|| bar.inc(1))?;
+    bar.finish_and_clear();
+    let label = match r.metric {
+        Metric::Goal => "goal score",
+        Metric::PeakCos2 => "peak ⟨cos²θ⟩ after the last pulse",
+    };
+    let mut best = (f64::NEG_INFINITY, 0, 0);
+    for (iy, row) in r.values.iter().enumerate() {
+        for (ix, v) in row.iter().enumerate() {
+            if *v > best.0 {
+                best = (*v, ix, iy);
+            }
+        }
+    }
+    println!("{} points in {:.2} s; {label}: best {:.5} at {} = {}{}", total, t0.elapsed().as_secs_f64(), best.0, xa.path, xa.values[best.1],
+        ya.as_ref().map(|a| format!(", {} = {}", a.path, a.values[best.2])).unwrap_or_default());
+    if let Some(dir) = out {
+        let mut csv = format!("{}{},value\n", xa.path, ya.as_ref().map(|a| format!(",{}", a.path)).unwrap_or_default());
+        for (iy, row) in r.values.iter().enumerate() {
+            for (ix, v) in row.iter().enumerate() {
+                match &ya {
+                    Some(a) => csv.push_str(&format!("{},{},{:.10}\n", xa.values[ix], a.values[iy], v)),
+                    None => csv.push_str(&format!("{},{:.10}\n", xa.values[ix], v)),
+                }
+            }
+        }
+        report::write_file(dir, "scan.csv", &csv)?;
+        let svg_text = match &ya {
+            Some(a) => svg::Heatmap::new(&format!("Scan of {label}"), &xa.path, &a.path, label, xa.values.clone(), a.values.clone(), r.values.clone()).to_svg(),
+            None => {
+                let mut p = svg::LinePlot::new(&format!("Scan of {label}"), &xa.path, label);
+                p.series.push(svg::Series { label: String::new(), x: xa.values.clone(), y: r.values[0].clone(), color: "#1f5fa8".into(), dashed: false, width: 1.8 });
+                p.to_svg()
+            }
+        };
+        report::write_file(dir, "scan.svg", &svg_text)?;
+        println!("wrote {}/scan.csv, scan.svg", dir.display());
+    }
     println!("{}", report::LASER_SAFETY);
     Ok(())
 }

@@ -1,0 +1,140 @@
+//! Parameter scans: the same scenario evaluated over a 1D or 2D grid of any numeric field of the
+//! scenario file (for example `pulses[1].center_ps` × `pulses[1].peak_intensity_wcm2`), in parallel.
+
+use crate::error::{Error, Result};
+use crate::observe::score_goal;
+use crate::scenario::Scenario;
+use crate::simulate::Solver;
+use rayon::prelude::*;
+use serde_json::Value;
+
+/// One scanned axis: a dotted path into the scenario JSON and the values it takes.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Axis {
+    /// Path such as `pulses[1].center_ps` or `temperature_k`.
+    pub path: String,
+    /// The values, in order.
+    pub values: Vec<f64>,
+}
+
+impl Axis {
+    /// `steps` evenly spaced values from `from` to `to` inclusive.
+    pub fn linear(path: &str, from: f64, to: f64, steps: usize) -> Result<Axis> {
+        if !from.is_finite() || !to.is_finite() {
+            return Err(Error::input(path, "expected finite scan limits"));
+        }
+        if !(1..=1000).contains(&steps) {
+            return Err(Error::input(format!("{path} steps"), format!("expected 1 to 1000 steps, got {steps}")));
+        }
+        let values = if steps == 1 { vec![from] } else { (0..steps).map(|i| from + (to - from) * i as f64 / (steps - 1) as f64).collect() };
+        Ok(Axis { path: path.to_string(), values })
+    }
+}
+
+/// What a scan reports at each point.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Metric {
+    /// The scenario's goal (as the designer scores it).
+    Goal,
+    /// Largest ⟨cos²θ⟩ in the window after the last pulse.
+    PeakCos2,
+}
+
+/// The result of a scan: values[iy][ix] (iy = 0 for 1D scans).
+#[derive(Debug, Clone)]
+pub struct ScanResult {
+    /// The first axis.
+    pub x: Axis,
+    /// The second axis, if any.
+    pub y: Option<Axis>,
+    /// What was computed.
+    pub metric: Metric,
+    /// Values, rows over y, columns over x.
+    pub values: Vec<Vec<f64>>,
+}
+
+/// Set a number at a dotted path like `pulses[1].center_ps` inside a JSON value.
+pub fn set_path(root: &mut Value, path: &str, x: f64) -> Result<()> {
+    let mut cur = root;
+    for part in path.split('.') {
+        let (key, index) = match part.find('[') {
+            Some(i) => {
+                let idx: usize = part[i + 1..].trim_end_matches(']').parse().map_err(|_| Error::input(path, format!("cannot read the index in \"{part}\"")))?;
+                (&part[..i], Some(idx))
+            }
+            None => (part, None),
+        };
+        cur = cur.get_mut(key).ok_or_else(|| Error::input(path, format!("the scenario has no field \"{key}\" here")))?;
+        if let Some(i) = index {
+            cur = cur.get_mut(i).ok_or_else(|| Error::input(path, format!("\"{key}\" has no element {i}")))?;
+        }
+    }
+    if !cur.is_number() {
+        return Err(Error::input(path, "expected the path of a number in the scenario"));
+    }
+    *cur = serde_json::json!(x);
+    Ok(())
+}
+
+/// Evaluate the metric of one scenario with a solver built for the same molecule, temperature and settings.
+fn evaluate(s: &Scenario, solver: &Solver, metric: Metric) -> Result<f64> {
+    match (metric, &s.goal) {
+        (Metric::Goal, Some(goal)) => {
+            let t_last = s.last_pulse_center_ps();
+            let times = goal.times(t_last);
+            let with_2d = goal.observable != crate::goal::Observable::Cos2;
+            let run = match &s.focal_average {
+                None => solver.run(&s.field, &times, with_2d)?,
+                Some(a) => solver.run_focal(&s.field, &times, with_2d, a)?,
+            };
+            Ok(score_goal(goal, &run.trace, &run.final_sums, t_last).value)
+        }
+        _ => {
+            let times = s.window.times_ps();
+            let run = match &s.focal_average {
+                None => solver.run(&s.field, &times, false)?,
+                Some(a) => solver.run_focal(&s.field, &times, false, a)?,
+            };
+            let after = s.field.last_pulse_end_ps().unwrap_or(f64::NEG_INFINITY);
+            Ok(run.trace.max_after(&run.trace.cos2, after).map(|e| e.value).unwrap_or(f64::NAN))
+        }
+    }
+}
+
+/// Scan `base` (the scenario as JSON) over one or two axes; `progress` is called after each point.
+pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Sync)) -> Result<ScanResult> {
+    let base_scenario = Scenario::from_value(base, "")?;
+    let metric = if base_scenario.goal.is_some() { Metric::Goal } else { Metric::PeakCos2 };
+    let ys: Vec<Option<f64>> = match y {
+        Some(a) => a.values.iter().map(|v| Some(*v)).collect(),
+        None => vec![None],
+    };
+    let points: Vec<(usize, usize)> = (0..ys.len()).flat_map(|iy| (0..x.values.len()).map(move |ix| (iy, ix))).collect();
+    // Build every scenario first: errors name the scanned field.
+    let scenarios: Vec<Scenario> = points
+        .iter()
+        .map(|&(iy, ix)| {
+            let mut v = base.clone();
+            set_path(&mut v, &x.path, x.values[ix])?;
+            if let (Some(a), Some(yv)) = (y, ys[iy]) {
+                set_path(&mut v, &a.path, yv)?;
+            }
+            Scenario::from_value(&v, "").map_err(|e| match e {
+                Error::Input { field, message } => Error::input(field, format!("{message} (at scan point {} = {}{})", x.path, x.values[ix], y.map(|a| format!(", {} = {}", a.path, ys[iy].unwrap_or(0.0))).unwrap_or_default())),
+                other => other,
+            })
+        })
+        .collect::<Result<_>>()?;
+    let shared = Solver::new(&base_scenario.molecule, base_scenario.temperature_k, base_scenario.solver)?;
+    let same = |s: &Scenario| s.molecule == base_scenario.molecule && s.temperature_k == base_scenario.temperature_k && s.solver == base_scenario.solver;
+    let flat: Vec<f64> = scenarios
+        .par_iter()
+        .map(|s| {
+            let v = if same(s) { evaluate(s, &shared, metric) } else { evaluate(s, &Solver::new(&s.molecule, s.temperature_k, s.solver)?, metric) };
+            progress();
+            v
+        })
+        .collect::<Result<_>>()?;
+    let values = flat.chunks(x.values.len()).map(|c| c.to_vec()).collect();
+    Ok(ScanResult { x: x.clone(), y: y.cloned(), metric, values })
+}
