@@ -28,6 +28,7 @@ pub mod report;
 pub mod scan;
 pub mod scenario;
 pub mod simulate;
+pub mod tolerance;
 pub mod units;
 
 pub use error::{Error, Result};

@@ -143,6 +143,31 @@ Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the
         #[arg(long)]
         quiet: bool,
     },
+    /// Monte Carlo tolerance of a design (a scenario with a goal) to timing jitter and energy or phase noise.
+    #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
+Jitter moves every pulse after the first; the probe stays at the nominal times. Writes tolerance.csv and tolerance.svg.")]
+    Tolerance {
+        /// Scenario with a goal (e.g. a design.json).
+        scenario: PathBuf,
+        /// RMS timing jitter of each pulse after the first, fs.
+        #[arg(long, default_value_t = 0.0)]
+        jitter_fs: f64,
+        /// RMS pulse-energy noise, percent.
+        #[arg(long, default_value_t = 0.0)]
+        energy_noise_percent: f64,
+        /// RMS two-colour phase noise, rad.
+        #[arg(long, default_value_t = 0.0)]
+        phase_noise_rad: f64,
+        /// Number of Monte Carlo samples.
+        #[arg(long, default_value_t = 200)]
+        samples: usize,
+        /// Seed of the random draws.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Output folder for tolerance.csv and tolerance.svg.
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
     /// Simulate one scenario file: alignment trace, summary and plot.
     #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
 The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
@@ -170,6 +195,9 @@ fn main() -> ExitCode {
         }
         Command::Scan { scenario, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } => {
             run_scan(&scenario, &x, from, to, steps, y.as_deref(), y_from, y_to, y_steps, out.as_deref(), quiet)
+        }
+        Command::Tolerance { scenario, jitter_fs, energy_noise_percent, phase_noise_rad, samples, seed, out } => {
+            run_tolerance(&scenario, kicktrain::tolerance::Noise { jitter_fs, energy_percent: energy_noise_percent, phase_rad: phase_noise_rad }, samples, seed, out.as_deref())
         }
         Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
     };
@@ -518,6 +546,32 @@ fn run_scan(path: &Path, x: &str, from: f64, to: f64, steps: usize, y: Option<&s
         };
         report::write_file(dir, "scan.svg", &svg_text)?;
         println!("wrote {}/scan.csv, scan.svg", dir.display());
+    }
+    println!("{}", report::LASER_SAFETY);
+    Ok(())
+}
+
+fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<(), Error> {
+    use kicktrain::report::svg;
+    let text = read_text(path)?;
+    let scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    let t0 = std::time::Instant::now();
+    let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed)?;
+    let goal = scenario.goal.expect("checked by tolerance()");
+    println!("{} of {}: nominal {:.5}; with jitter {} fs, energy noise {} %, phase noise {} rad ({} samples, seed {seed}):",
+        goal.kind_name(), goal.observable.name(), r.nominal, noise.jitter_fs, noise.energy_percent, noise.phase_rad, samples);
+    println!("  mean {:.5}, spread (rms) {:.5}, worst decile {:.5}; {:.2} s", r.mean, r.spread, r.worst_decile, t0.elapsed().as_secs_f64());
+    if let Some(dir) = out {
+        let mut csv = String::from("sample,score\n");
+        for (i, v) in r.samples.iter().enumerate() {
+            csv.push_str(&format!("{i},{v:.10}\n"));
+        }
+        report::write_file(dir, "tolerance.csv", &csv)?;
+        let mut h = svg::Histogram::new(format!("Score under jitter {} fs, energy noise {} %", noise.jitter_fs, noise.energy_percent), format!("{} {}", goal.kind_name(), goal.observable.name()), r.samples.clone(), 0);
+        h.markers.push(svg::Marker { x0: r.nominal, x1: r.nominal, label: "nominal".into(), color: "#c0392b".into() });
+        h.markers.push(svg::Marker { x0: r.worst_decile, x1: r.worst_decile, label: "worst decile".into(), color: "#7f7f7f".into() });
+        report::write_file(dir, "tolerance.svg", &h.to_svg())?;
+        println!("wrote {}/tolerance.csv, tolerance.svg", dir.display());
     }
     println!("{}", report::LASER_SAFETY);
     Ok(())

@@ -1,0 +1,103 @@
+//! Tolerances: Monte Carlo over timing jitter, pulse-energy noise and two-colour phase noise, scored
+//! with the scenario's goal at the nominal probe times.
+
+use crate::error::{Error, Result};
+use crate::goal::Observable;
+use crate::observe::score_goal;
+use crate::scenario::Scenario;
+use crate::simulate::Solver;
+use rand::{Rng, SeedableRng};
+use rayon::prelude::*;
+
+/// The errors to sample.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Noise {
+    /// RMS timing jitter of each pulse after the first, relative to the first, fs.
+    pub jitter_fs: f64,
+    /// RMS pulse-energy (intensity) noise, percent.
+    pub energy_percent: f64,
+    /// RMS two-colour phase noise, rad.
+    pub phase_rad: f64,
+}
+
+/// Monte Carlo statistics of a design's score.
+#[derive(Debug, Clone)]
+pub struct ToleranceResult {
+    /// Score without errors.
+    pub nominal: f64,
+    /// Scores of the samples, in sampling order.
+    pub samples: Vec<f64>,
+    /// Mean of the samples.
+    pub mean: f64,
+    /// Standard deviation of the samples.
+    pub spread: f64,
+    /// The worst-decile score: 10th percentile (90th for a minimum goal).
+    pub worst_decile: f64,
+}
+
+/// Standard normal deviate (Box–Muller).
+fn normal(rng: &mut rand::rngs::StdRng) -> f64 {
+    let u1: f64 = rng.random_range(f64::EPSILON..1.0);
+    let u2: f64 = rng.random::<f64>();
+    (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+}
+
+/// Evaluate `scenario`'s goal under `samples` random draws of `noise` (reproducible with `seed`).
+pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64) -> Result<ToleranceResult> {
+    let goal = scenario.goal.ok_or_else(|| Error::input("goal", "a tolerance analysis needs a goal in the scenario (design.json files carry one)"))?;
+    for (name, v) in [("jitter_fs", noise.jitter_fs), ("energy_percent", noise.energy_percent), ("phase_rad", noise.phase_rad)] {
+        if !v.is_finite() || v < 0.0 {
+            return Err(Error::input(name, format!("expected a finite RMS value ≥ 0, got {v}")));
+        }
+    }
+    if noise.energy_percent > 50.0 {
+        return Err(Error::input("energy_percent", "expected at most 50 % RMS energy noise"));
+    }
+    if !(1..=100_000).contains(&samples) {
+        return Err(Error::input("samples", format!("expected 1 to 100000 samples, got {samples}")));
+    }
+    let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?;
+    // The probe times stay where the nominal design puts them.
+    let t_last = scenario.last_pulse_center_ps();
+    let times = goal.times(t_last);
+    let with_2d = goal.observable != Observable::Cos2;
+    let score = |field: &crate::field::FieldModel| -> Result<f64> {
+        let run = match &scenario.focal_average {
+            None => solver.run(field, &times, with_2d)?,
+            Some(a) => solver.run_focal(field, &times, with_2d, a)?,
+        };
+        Ok(score_goal(&goal, &run.trace, &run.final_sums, t_last).value)
+    };
+    let nominal = score(&scenario.field)?;
+    let fields: Vec<crate::field::FieldModel> = (0..samples)
+        .map(|i| {
+            let mut rng = rand::rngs::StdRng::seed_from_u64(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15).wrapping_add(i as u64));
+            let mut f = scenario.field.clone();
+            for (k, p) in f.pulses.iter_mut().enumerate() {
+                if k > 0 {
+                    p.center_ps += noise.jitter_fs / 1000.0 * normal(&mut rng);
+                }
+                p.peak_intensity_wcm2 = (p.peak_intensity_wcm2 * (1.0 + noise.energy_percent / 100.0 * normal(&mut rng))).max(0.0);
+            }
+            for (k, t) in f.two_colour.iter_mut().enumerate() {
+                if k > 0 {
+                    t.center_ps += noise.jitter_fs / 1000.0 * normal(&mut rng);
+                }
+                let g = (1.0 + noise.energy_percent / 100.0 * normal(&mut rng)).max(0.0);
+                t.fundamental_intensity_wcm2 *= g;
+                t.second_harmonic_intensity_wcm2 *= g;
+                t.phase_rad += noise.phase_rad * normal(&mut rng);
+            }
+            f
+        })
+        .collect();
+    let values: Vec<f64> = fields.par_iter().map(&score).collect::<Result<_>>()?;
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    let spread = (values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
+    let mut sorted = values.clone();
+    sorted.sort_by(f64::total_cmp);
+    let k = ((0.1 * n).floor() as usize).min(sorted.len() - 1);
+    let worst_decile = if goal.sense() > 0.0 { sorted[k] } else { sorted[sorted.len() - 1 - k] };
+    Ok(ToleranceResult { nominal, samples: values, mean, spread, worst_decile })
+}
