@@ -230,6 +230,8 @@ fn molecules(json: bool) -> Result<(), Error> {
                     "alpha_parallel_a3": {"value": e.alpha_parallel_a3.value, "source": e.alpha_parallel_a3.source},
                     "alpha_perpendicular_a3": {"value": e.alpha_perpendicular_a3.value, "source": e.alpha_perpendicular_a3.source},
                     "spin_weights": {"value": e.spin_weights, "source": e.spin_weights_source},
+                    "dipole_debye": e.dipole_debye.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
+                    "ionization_energy_ev": e.ionization_energy_ev.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
                 })
             })
             .collect();
@@ -282,8 +284,9 @@ fn print_simulation(s: &serde_json::Value) {
                 (Some(e), Some(w)) => format!(" ({e} mJ focused to w0 = {w:.1} µm)"),
                 _ => String::new(),
             };
+            let ion = p["ionized_fraction_adk"].as_f64().map(|x| format!(", ionized ≈ {x:.1e} (ADK estimate)")).unwrap_or_default();
             println!(
-                "  pulse {}: centre {} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({})",
+                "  pulse {}: centre {} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({}){ion}",
                 i + 1, p["center_ps"], p["fwhm_fs"], p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
                 p["kick_strength"].as_f64().unwrap_or(0.0), p["method"].as_str().unwrap_or("")
             );

@@ -341,8 +341,9 @@ fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
             let dipole_debye = f.opt_f64("dipole_debye", "debye")?.unwrap_or(0.0);
             let beta_parallel_au = f.opt_f64("beta_parallel_au", "atomic units, Taylor convention")?;
             let beta_perpendicular_au = f.opt_f64("beta_perpendicular_au", "atomic units, Taylor convention")?;
+            let ionization_energy_ev = f.opt_f64("ionization_energy_ev", "eV")?;
             f.finish()?;
-            let m = Molecule { name, b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye, beta_parallel_au, beta_perpendicular_au };
+            let m = Molecule { name, b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye, beta_parallel_au, beta_perpendicular_au, ionization_energy_ev };
             m.validate(path)?;
             Ok((m, MoleculeSource::Inline))
         }

@@ -43,6 +43,8 @@ pub struct LibraryEntry {
     pub beta_parallel_au: Option<Sourced>,
     /// First hyperpolarizability β⊥ = β_zxx (atomic units, Taylor convention), if known.
     pub beta_perpendicular_au: Option<Sourced>,
+    /// First (adiabatic) ionization energy, eV.
+    pub ionization_energy_ev: Option<Sourced>,
 }
 
 impl LibraryEntry {
@@ -58,6 +60,7 @@ impl LibraryEntry {
             dipole_debye: self.dipole_debye.map(|d| d.value).unwrap_or(0.0),
             beta_parallel_au: self.beta_parallel_au.map(|b| b.value),
             beta_perpendicular_au: self.beta_perpendicular_au.map(|b| b.value),
+            ionization_energy_ev: self.ionization_energy_ev.map(|b| b.value),
         }
     }
 }
@@ -101,6 +104,7 @@ static LIBRARY: &[LibraryEntry] = &[
         dipole_debye: None,
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(15.581, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of N2")),
     },
     LibraryEntry {
         name: "O2",
@@ -127,6 +131,7 @@ static LIBRARY: &[LibraryEntry] = &[
         dipole_debye: None,
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(12.0697, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of O2")),
     },
     LibraryEntry {
         name: "CO",
@@ -157,6 +162,7 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(14.014, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of CO")),
     },
     LibraryEntry {
         name: "CO2",
@@ -183,6 +189,7 @@ static LIBRARY: &[LibraryEntry] = &[
         dipole_debye: None,
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(13.777, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of CO2")),
     },
     LibraryEntry {
         name: "N2O",
@@ -213,6 +220,7 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(12.889, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of N2O")),
     },
     LibraryEntry {
         name: "OCS",
@@ -243,6 +251,7 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(11.18, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of OCS")),
     },
     LibraryEntry {
         name: "HCl",
@@ -276,6 +285,7 @@ static LIBRARY: &[LibraryEntry] = &[
         // are not in the retrieved text and cannot be split from β̄, so both stay unset.
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(12.74, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of HCl")),
     },
     LibraryEntry {
         name: "C2H2",
@@ -302,6 +312,7 @@ static LIBRARY: &[LibraryEntry] = &[
         dipole_debye: None,
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(11.4, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of C2H2")),
     },
     LibraryEntry {
         name: "H2",
@@ -328,6 +339,7 @@ static LIBRARY: &[LibraryEntry] = &[
         dipole_debye: None,
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(15.42593, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of H2")),
     },
     LibraryEntry {
         name: "CS2",
@@ -354,5 +366,6 @@ static LIBRARY: &[LibraryEntry] = &[
         dipole_debye: None,
         beta_parallel_au: None,
         beta_perpendicular_au: None,
+        ionization_energy_ev: Some(s(10.0685, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of CS2")),
     },
 ];

@@ -36,6 +36,9 @@ pub struct Molecule {
     /// First hyperpolarizability β⊥ = β_zxx in atomic units (Taylor convention), if known.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub beta_perpendicular_au: Option<f64>,
+    /// First ionization energy, eV (for the tunnel-ionization estimate), if known.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ionization_energy_ev: Option<f64>,
 }
 
 fn is_zero(x: &f64) -> bool {
@@ -56,7 +59,7 @@ fn equal_weights() -> [f64; 2] {
 impl Molecule {
     /// A non-polar linear molecule from its rotational constants (cm⁻¹), polarizabilities (Å³) and spin weights.
     pub fn linear(name: &str, b_cm: f64, d_cm: f64, alpha_parallel_a3: f64, alpha_perpendicular_a3: f64, spin_weights: [f64; 2]) -> Molecule {
-        Molecule { name: name.to_string(), b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye: 0.0, beta_parallel_au: None, beta_perpendicular_au: None }
+        Molecule { name: name.to_string(), b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye: 0.0, beta_parallel_au: None, beta_perpendicular_au: None, ionization_energy_ev: None }
     }
 
     /// True if the molecule has a permanent dipole moment.
@@ -122,6 +125,11 @@ impl Molecule {
         crate::error::require_finite(&format!("{path}.dipole_debye"), self.dipole_debye, "debye")?;
         if self.dipole_debye.abs() > 50.0 {
             return Err(Error::input(format!("{path}.dipole_debye"), format!("expected a molecular dipole below 50 D, got {}", self.dipole_debye)));
+        }
+        if let Some(ip) = self.ionization_energy_ev {
+            if !ip.is_finite() || !(3.0..=30.0).contains(&ip) {
+                return Err(Error::input(format!("{path}.ionization_energy_ev"), format!("expected an ionization energy from 3 to 30 eV, got {ip}")));
+            }
         }
         for (name, b) in [("beta_parallel_au", self.beta_parallel_au), ("beta_perpendicular_au", self.beta_perpendicular_au)] {
             if let Some(b) = b {

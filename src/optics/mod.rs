@@ -2,6 +2,7 @@
 //! intensity (Gaussian beams; temporal shape factors from the envelope area).
 
 pub mod focal;
+pub mod ionization;
 
 use crate::error::{require_positive, Error, Result};
 use serde::{Deserialize, Serialize};

@@ -57,6 +57,9 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
                 "center_ps": p.center_ps, "fwhm_fs": p.fwhm_fs, "peak_intensity_wcm2": p.peak_intensity_wcm2,
                 "shape": p.shape, "kick_strength": p.kick_strength(da), "method": methods[i],
             });
+            if let Some(ip) = s.molecule.ionization_energy_ev {
+                v["ionized_fraction_adk"] = num(crate::optics::ionization::ionized_fraction(p, ip));
+            }
             if let Some(Some(o)) = s.pulse_optics.get(i) {
                 v["energy_mj"] = json!(o.energy_mj);
                 v["waist_um"] = json!(o.waist_m() * 1e6);
