@@ -2,14 +2,16 @@
 //! the revival period 1/(2Bc), quadrature of an explicitly built wavefunction, a slow Runge–Kutta
 //! reference, convergence in step and basis size, and a stored trace from an independent scipy script.
 
-use kicktrain::basis::legendre::{gauss_legendre, theta_normalized};
+mod common;
+
+use common::ground_state_kick;
 use kicktrain::basis::Block;
 use kicktrain::field::{FieldModel, Pulse, PulseShape};
 use kicktrain::molecule::Molecule;
 use kicktrain::propagate::{propagate_finite, propagate_rk4_reference, BlockOps, BlockState};
 use kicktrain::scenario::{Method, SolverSettings};
 use kicktrain::simulate::Solver;
-use kicktrain::units::{cm_to_rad_per_ps, revival_period_ps};
+use kicktrain::units::revival_period_ps;
 
 fn lib(name: &str) -> Molecule {
     Molecule::from_library(name, "molecule").unwrap()
@@ -43,45 +45,14 @@ fn zero_intensity_gives_isotropic_values_at_any_temperature() {
     }
 }
 
-/// ⟨cos²θ⟩(t) of a J = 0, M = 0 rotor after the kick exp(iP cos²θ) at t = 0, built independently of the
-/// solver: expansion coefficients c_J = ⟨J 0|exp(iP x²)|0 0⟩ by Gauss–Legendre quadrature of Legendre
-/// functions, field-free phases exp(−iE_J t/ħ), and ⟨cos²θ⟩ by quadrature of |ψ(x, t)|² x².
-fn ground_state_kick_by_quadrature(mol: &Molecule, p: f64, times: &[f64]) -> Vec<f64> {
-    let j_top = 80u32;
-    let (x, w) = gauss_legendre(160, -1.0, 1.0);
-    let th: Vec<Vec<f64>> = x.iter().map(|&xi| theta_normalized(0, j_top, xi)).collect();
-    let mut c = vec![(0.0, 0.0); j_top as usize + 1];
-    for (q, &xq) in x.iter().enumerate() {
-        let (s, co) = (p * xq * xq).sin_cos();
-        for j in 0..=j_top as usize {
-            c[j].0 += w[q] * th[q][j] * co * th[q][0];
-            c[j].1 += w[q] * th[q][j] * s * th[q][0];
-        }
-    }
-    times
-        .iter()
-        .map(|&t| {
-            let mut val = 0.0;
-            for (q, &xq) in x.iter().enumerate() {
-                let (mut re, mut im) = (0.0, 0.0);
-                for j in 0..=j_top as usize {
-                    let (s, co) = (-cm_to_rad_per_ps(mol.energy_cm(j as u32)) * t).sin_cos();
-                    re += th[q][j] * (c[j].0 * co - c[j].1 * s);
-                    im += th[q][j] * (c[j].0 * s + c[j].1 * co);
-                }
-                val += w[q] * xq * xq * (re * re + im * im);
-            }
-            val
-        })
-        .collect()
-}
-
 #[test]
 fn zero_temperature_kick_matches_independent_quadrature() {
     let mol = lib("N2");
     let times = grid(0.01, 9.0, 0.05);
     let p = 6.0;
-    let want = ground_state_kick_by_quadrature(&mol, p, &times);
+    // Reference: the J = 0 wavefunction kicked by exp(iP cos²θ) and evolved, built by quadrature of
+    // Legendre functions independently of the solver (tests/common).
+    let want = ground_state_kick(&mol, |x| p * x * x, |x| x * x, &times);
     // A Gaussian pulse replaced by its kick: the solver's kick strength for this pulse is P.
     let i0 = p / Pulse::gaussian(0.0, 10.0, 1.0).kick_strength(mol.delta_alpha_a3());
     let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 10.0, i0)], static_field: None, ..Default::default() };

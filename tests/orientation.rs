@@ -2,6 +2,9 @@
 //! both parities of J), checked against exact symmetries, perturbation theory, the classical
 //! Langevin–Debye limit and tabulated oblate spheroidal characteristic values.
 
+mod common;
+
+use common::ground_state_kick;
 use kicktrain::field::{FieldModel, Pulse, StaticField};
 use kicktrain::molecule::Molecule;
 use kicktrain::pendular::pendular;
@@ -136,39 +139,6 @@ fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state()
     for v in &r.trace.cos2[1..] {
         assert!((v - 1.0 / 3.0).abs() < 2e-3, "after the pulse {v}");
     }
-}
-
-/// ⟨g(cosθ)⟩(t) of a J = 0 rotor after the kick exp(i f(cosθ)) at t = 0, built by quadrature of
-/// Legendre functions (independent of the solver's representation).
-fn ground_state_kick(mol: &Molecule, f: impl Fn(f64) -> f64, g: impl Fn(f64) -> f64, times: &[f64]) -> Vec<f64> {
-    use kicktrain::basis::legendre::{gauss_legendre, theta_normalized};
-    let j_top = 120u32;
-    let (x, w) = gauss_legendre(250, -1.0, 1.0);
-    let th: Vec<Vec<f64>> = x.iter().map(|&xi| theta_normalized(0, j_top, xi)).collect();
-    let mut c = vec![(0.0, 0.0); j_top as usize + 1];
-    for (q, &xq) in x.iter().enumerate() {
-        let (s, co) = f(xq).sin_cos();
-        for j in 0..=j_top as usize {
-            c[j].0 += w[q] * th[q][j] * co * th[q][0];
-            c[j].1 += w[q] * th[q][j] * s * th[q][0];
-        }
-    }
-    times
-        .iter()
-        .map(|&t| {
-            let mut val = 0.0;
-            for (q, &xq) in x.iter().enumerate() {
-                let (mut re, mut im) = (0.0, 0.0);
-                for j in 0..=j_top as usize {
-                    let (s, co) = (-cm_to_rad_per_ps(mol.energy_cm(j as u32)) * t).sin_cos();
-                    re += th[q][j] * (c[j].0 * co - c[j].1 * s);
-                    im += th[q][j] * (c[j].0 * s + c[j].1 * co);
-                }
-                val += w[q] * g(xq) * (re * re + im * im);
-            }
-            val
-        })
-        .collect()
 }
 
 #[test]

@@ -42,6 +42,17 @@ pub fn gauss_legendre(n: usize, a: f64, b: f64) -> (Vec<f64>, Vec<f64>) {
     (x, w)
 }
 
+/// Composite Simpson rule for ∫_a^b f(t) dt with `n` (made even) intervals.
+pub fn simpson(a: f64, b: f64, n: usize, f: impl Fn(f64) -> f64) -> f64 {
+    let n = n.max(2) + n % 2;
+    let h = (b - a) / n as f64;
+    let mut s = f(a) + f(b);
+    for i in 1..n {
+        s += f(a + i as f64 * h) * if i % 2 == 1 { 4.0 } else { 2.0 };
+    }
+    s * h / 3.0
+}
+
 /// Normalized associated Legendre functions Θ_J^m(x) for J = m..=j_max at one x, with
 /// ∫_{-1}^{1} Θ_J^m Θ_J'^m dx = δ_JJ' (so Y_J^m = Θ_J^m e^{imφ} / √(2π), Condon–Shortley phase omitted).
 /// Returns a vector indexed by J − m.
@@ -86,6 +97,13 @@ mod tests {
             let q: f64 = x.iter().zip(&w).map(|(xi, wi)| wi * xi.powi(k)).sum();
             assert!((q - 1.0 / (k as f64 + 1.0)).abs() < 1e-14, "k={k}");
         }
+    }
+
+    #[test]
+    fn simpson_is_exact_for_cubics() {
+        // Simpson's rule integrates cubics exactly (textbook numerical analysis).
+        let v = simpson(0.0, 2.0, 4, |t| t * t * t - t);
+        assert!((v - 2.0).abs() < 1e-14);
     }
 
     #[test]

@@ -1,6 +1,7 @@
 //! Pulse shapes and the field model: trains of linearly polarized, non-resonant laser pulses
 //! (polarization along the lab Z axis), described by their cycle-averaged intensity envelopes.
 
+use crate::basis::legendre::simpson;
 use crate::error::{require_finite, require_positive, Error, Result};
 use crate::units::{coupling_rad_per_ps_per_a3_wcm2, FS_PER_PS};
 use serde::{Deserialize, Serialize};
@@ -142,16 +143,8 @@ impl Pulse {
             PulseShape::FlatTop => {
                 // ⟨t²⟩ of the plateau with sin² edges, by Simpson quadrature over the (finite) support.
                 let half = 0.5 * tau + 0.5 * self.rise_ps();
-                let n = 400;
-                let h = 2.0 * half / n as f64;
-                let (mut m0, mut m2) = (0.0, 0.0);
-                for i in 0..=n {
-                    let x = -half + i as f64 * h;
-                    let wgt = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
-                    let f = self.envelope(self.center_ps + x);
-                    m0 += wgt * f;
-                    m2 += wgt * f * x * x;
-                }
+                let m0 = simpson(-half, half, 400, |x| self.envelope(self.center_ps + x));
+                let m2 = simpson(-half, half, 400, |x| x * x * self.envelope(self.center_ps + x));
                 (m2 / m0).sqrt()
             }
         }
@@ -292,12 +285,7 @@ impl TwoColourPulse {
     pub fn three_halves_area_ps(&self) -> f64 {
         let p = self.envelope_pulse();
         let (a, b) = p.support_ps();
-        let n = 2000;
-        let h = (b - a) / n as f64;
-        (0..=n).map(|i| {
-            let w = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
-            w * p.envelope(a + i as f64 * h).powf(1.5)
-        }).sum::<f64>() * h / 3.0
+        simpson(a, b, 2000, |t| p.envelope(t).powf(1.5))
     }
 }
 
@@ -368,31 +356,15 @@ impl TerahertzPulse {
     /// RMS duration (ps) of E(t)², used to judge how impulsive the pulse is.
     pub fn rms_duration_ps(&self) -> f64 {
         let (a, b) = self.support_ps();
-        let n = 2000;
-        let h = (b - a) / n as f64;
-        let (mut m0, mut m2) = (0.0, 0.0);
-        for i in 0..=n {
-            let t = a + i as f64 * h;
-            let e2 = self.field_kv_cm(t).powi(2);
-            m0 += e2;
-            m2 += e2 * (t - self.center_ps).powi(2);
-        }
+        let m0 = simpson(a, b, 2000, |t| self.field_kv_cm(t).powi(2));
+        let m2 = simpson(a, b, 2000, |t| self.field_kv_cm(t).powi(2) * (t - self.center_ps).powi(2));
         (m2 / m0).sqrt()
     }
 
     /// (∫E dt in kV/cm·ps, ∫E² dt in (kV/cm)²·ps) by Simpson quadrature over the support.
     pub fn field_areas(&self) -> (f64, f64) {
         let (a, b) = self.support_ps();
-        let n = 4000;
-        let h = (b - a) / n as f64;
-        let (mut s1, mut s2) = (0.0, 0.0);
-        for i in 0..=n {
-            let w = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
-            let e = self.field_kv_cm(a + i as f64 * h);
-            s1 += w * e;
-            s2 += w * e * e;
-        }
-        (s1 * h / 3.0, s2 * h / 3.0)
+        (simpson(a, b, 4000, |t| self.field_kv_cm(t)), simpson(a, b, 4000, |t| self.field_kv_cm(t).powi(2)))
     }
 }
 

@@ -4,6 +4,7 @@
 //! (MO-ADK, Tong, Zhao & Lin, Phys. Rev. A 66, 033402 (2002)) is not included, so treat the numbers as
 //! an order-of-magnitude ceiling, not a prediction.
 
+use crate::basis::legendre::simpson;
 use crate::field::Pulse;
 use crate::units::peak_field_v_per_m;
 
@@ -65,16 +66,8 @@ pub fn adk_cycle_averaged_rate(ip_ev: f64, field_v_per_m: f64) -> f64 {
 /// Fraction of molecules ionized by one pulse on its peak (ADK estimate): 1 − exp(−∫ w(t) dt).
 pub fn ionized_fraction(pulse: &Pulse, ip_ev: f64) -> f64 {
     let (a, b) = pulse.support_ps();
-    let n = 2000;
-    let h = (b - a) / n as f64;
-    let mut integral = 0.0;
-    for i in 0..=n {
-        let wgt = if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 };
-        let t = a + i as f64 * h;
-        let e = peak_field_v_per_m(pulse.peak_intensity_wcm2 * pulse.envelope(t));
-        integral += wgt * adk_cycle_averaged_rate(ip_ev, e);
-    }
-    1.0 - (-(integral * h / 3.0 * 1e-12)).exp()
+    let integral = simpson(a, b, 2000, |t| adk_cycle_averaged_rate(ip_ev, peak_field_v_per_m(pulse.peak_intensity_wcm2 * pulse.envelope(t))));
+    1.0 - (-(integral * 1e-12)).exp()
 }
 
 #[cfg(test)]
