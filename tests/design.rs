@@ -186,3 +186,26 @@ fn orientation_designs_search_the_static_field_and_replay_exactly() {
     let bad = text.replace(r#""static_field_kv_cm": {"min": 0, "max": 20},"#, "");
     assert!(Objective::from_json_str(&bad, "x").unwrap_err().to_string().starts_with("goal.observable:"));
 }
+
+#[test]
+fn an_ionization_limit_lowers_the_ceiling_and_every_design_respects_it() {
+    // The ADK estimate (optics::ionization) turned into a ceiling: with at most 1e-5 of the molecules
+    // ionized per pulse, no designed pulse may exceed that fraction.
+    let text = r#"{"molecule": "N2", "temperature_k": 100,
+      "pulses": {"count": 2, "fwhm_fs": {"min": 40, "max": 120}, "delay_ps": {"min": 0.5, "max": 8.0}, "peak_intensity_wcm2": {"min": 0, "max": 2e14}},
+      "max_peak_intensity_wcm2": 2e14, "max_ionized_fraction": 1e-5,
+      "goal": {"kind": "peak", "window_ps": [0.1, 9.0], "step_fs": 50},
+      "search": {"seed": 2, "swarm_size": 6, "iterations": 4, "starts": 1, "refine_candidates": 1, "refine_iterations": 4}}"#;
+    let obj = objective(text);
+    assert!(obj.space.max_peak_intensity_wcm2 < 2e14, "the ceiling must drop: {}", obj.space.max_peak_intensity_wcm2);
+    let r = design(&obj, &Silent).unwrap();
+    let ip = obj.molecule().ionization_energy_ev.unwrap();
+    for c in [&r.best, &r.baseline] {
+        for p in &c.field.pulses {
+            let x = kicktrain::optics::ionization::ionized_fraction(p, ip);
+            assert!(x <= 1e-5 * (1.0 + 1e-6), "pulse ionizes {x}");
+        }
+    }
+    let no_ip = text.replace(r#""molecule": "N2""#, r#""molecule": {"b_cm": 2.0, "alpha_parallel_a3": 2.2, "alpha_perpendicular_a3": 1.5}"#);
+    assert!(Objective::from_json_str(&no_ip, "x").unwrap_err().to_string().starts_with("molecule.ionization_energy_ev:"));
+}

@@ -402,6 +402,7 @@ impl Objective {
         let ceiling = f.req_f64("max_peak_intensity_wcm2", "W/cm²")?;
         let budget = f.opt_f64("max_total_fluence_jcm2", "J/cm²")?;
         let min_sep = f.opt_f64("min_separation_ps", "ps")?.unwrap_or(0.0);
+        let ion_limit = f.opt_f64("max_ionized_fraction", "fraction of molecules ionized per pulse")?;
         let static_v = f.opt_value("static_field_kv_cm");
         let focal_v = f.opt_value("focal_average");
         let thz_v = f.opt_value("terahertz");
@@ -419,6 +420,9 @@ impl Objective {
         }
         let base = Scenario::from_value(&base_json, "")?;
         let (mut space, variable_count) = parse_pulses(pulses_v, "pulses", ceiling, budget, min_sep)?;
+        if let Some(limit) = ion_limit {
+            apply_ionization_limit(&mut space, &base.molecule, limit)?;
+        }
         if let Some(v) = static_v {
             let b = parse_bounds(v, "static_field_kv_cm", "kV/cm")?;
             if b.min.abs().max(b.max.abs()) > 1e4 {
@@ -510,6 +514,42 @@ impl Objective {
     pub fn molecule_source(&self) -> &MoleculeSource {
         &self.base.molecule_source
     }
+}
+
+/// Lower every pulse's intensity bound so that the ADK estimate of the fraction ionized per pulse stays
+/// below `limit` (judged at the longest allowed duration, the worst case).
+fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -> Result<()> {
+    if !(limit > 0.0 && limit < 1.0) {
+        return Err(Error::input("max_ionized_fraction", format!("expected a fraction between 0 and 1, got {limit}")));
+    }
+    let ip = mol.ionization_energy_ev.ok_or_else(|| {
+        Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name))
+    })?;
+    let mut largest_cap: f64 = 0.0;
+    for (k, pb) in space.pulses.iter_mut().enumerate() {
+        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs };
+        let (mut lo, mut hi) = (1e8f64.ln(), 1e17f64.ln());
+        for _ in 0..60 {
+            let mid = 0.5 * (lo + hi);
+            if crate::optics::ionization::ionized_fraction(&pulse(mid.exp()), ip) > limit {
+                hi = mid;
+            } else {
+                lo = mid;
+            }
+        }
+        let cap = lo.exp();
+        if cap < pb.peak_intensity_wcm2.min {
+            return Err(Error::input(
+                format!("pulses.each[{k}].peak_intensity_wcm2"),
+                format!("no feasible intensity: the minimum {:e} W/cm² already ionizes more than {limit} (limit ≈ {cap:.3e} W/cm²)", pb.peak_intensity_wcm2.min),
+            ));
+        }
+        pb.peak_intensity_wcm2.max = pb.peak_intensity_wcm2.max.min(cap);
+        largest_cap = largest_cap.max(cap);
+    }
+    // The ceiling itself (used by the single-pulse baseline too) follows the ionization limit.
+    space.max_peak_intensity_wcm2 = space.max_peak_intensity_wcm2.min(largest_cap);
+    Ok(())
 }
 
 fn parse_bounds(v: &Value, path: &str, unit: &str) -> Result<Bounds> {
