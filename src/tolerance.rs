@@ -42,6 +42,29 @@ fn normal(rng: &mut rand::rngs::StdRng) -> f64 {
     (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
 }
 
+/// Sample `i` of the random errors applied to a train (reproducible from `seed` and `i`): jitter of
+/// every pulse after the first, energy noise on every pulse, phase noise on two-colour pulses.
+pub fn perturb(field: &crate::field::FieldModel, noise: Noise, seed: u64, i: usize) -> crate::field::FieldModel {
+    let mut rng = rand::rngs::StdRng::seed_from_u64(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15).wrapping_add(i as u64));
+    let mut f = field.clone();
+    for (k, p) in f.pulses.iter_mut().enumerate() {
+        if k > 0 {
+            p.center_ps += noise.jitter_fs / 1000.0 * normal(&mut rng);
+        }
+        p.peak_intensity_wcm2 = (p.peak_intensity_wcm2 * (1.0 + noise.energy_percent / 100.0 * normal(&mut rng))).max(0.0);
+    }
+    for (k, t) in f.two_colour.iter_mut().enumerate() {
+        if k > 0 {
+            t.center_ps += noise.jitter_fs / 1000.0 * normal(&mut rng);
+        }
+        let g = (1.0 + noise.energy_percent / 100.0 * normal(&mut rng)).max(0.0);
+        t.fundamental_intensity_wcm2 *= g;
+        t.second_harmonic_intensity_wcm2 *= g;
+        t.phase_rad += noise.phase_rad * normal(&mut rng);
+    }
+    f
+}
+
 /// Evaluate `scenario`'s goal under `samples` random draws of `noise` (reproducible with `seed`).
 pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64) -> Result<ToleranceResult> {
     let goal = scenario.goal.ok_or_else(|| Error::input("goal", "a tolerance analysis needs a goal in the scenario (design.json files carry one)"))?;
@@ -69,28 +92,7 @@ pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64) -
         Ok(score_goal(&goal, &run.trace, &run.final_sums, t_last).value)
     };
     let nominal = score(&scenario.field)?;
-    let fields: Vec<crate::field::FieldModel> = (0..samples)
-        .map(|i| {
-            let mut rng = rand::rngs::StdRng::seed_from_u64(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15).wrapping_add(i as u64));
-            let mut f = scenario.field.clone();
-            for (k, p) in f.pulses.iter_mut().enumerate() {
-                if k > 0 {
-                    p.center_ps += noise.jitter_fs / 1000.0 * normal(&mut rng);
-                }
-                p.peak_intensity_wcm2 = (p.peak_intensity_wcm2 * (1.0 + noise.energy_percent / 100.0 * normal(&mut rng))).max(0.0);
-            }
-            for (k, t) in f.two_colour.iter_mut().enumerate() {
-                if k > 0 {
-                    t.center_ps += noise.jitter_fs / 1000.0 * normal(&mut rng);
-                }
-                let g = (1.0 + noise.energy_percent / 100.0 * normal(&mut rng)).max(0.0);
-                t.fundamental_intensity_wcm2 *= g;
-                t.second_harmonic_intensity_wcm2 *= g;
-                t.phase_rad += noise.phase_rad * normal(&mut rng);
-            }
-            f
-        })
-        .collect();
+    let fields: Vec<crate::field::FieldModel> = (0..samples).map(|i| perturb(&scenario.field, noise, seed, i)).collect();
     let values: Vec<f64> = fields.par_iter().map(&score).collect::<Result<_>>()?;
     let n = values.len() as f64;
     let mean = values.iter().sum::<f64>() / n;

@@ -209,3 +209,23 @@ fn an_ionization_limit_lowers_the_ceiling_and_every_design_respects_it() {
     let no_ip = text.replace(r#""molecule": "N2""#, r#""molecule": {"b_cm": 2.0, "alpha_parallel_a3": 2.2, "alpha_perpendicular_a3": 1.5}"#);
     assert!(Objective::from_json_str(&no_ip, "x").unwrap_err().to_string().starts_with("molecule.ionization_energy_ev:"));
 }
+
+#[test]
+fn robust_design_scores_the_mean_under_errors_as_the_tolerance_analysis_does() {
+    // Robust design maximizes the mean score over fixed error samples; the tolerance analysis of the
+    // same design with the same seed and samples must report the same mean (same sampling of errors).
+    let text = r#"{"molecule": "CO2", "temperature_k": 10,
+      "pulses": {"count": 2, "fwhm_fs": 30, "delay_ps": {"min": 0.5, "max": 40.0}, "peak_intensity_wcm2": {"min": 0, "max": 2e13}},
+      "max_peak_intensity_wcm2": 2e13,
+      "robust": {"jitter_fs": 300, "energy_noise_percent": 5, "samples": 6},
+      "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.1, 44.0], "step_fs": 40},
+      "search": {"seed": 4, "swarm_size": 6, "iterations": 4, "starts": 1, "refine_candidates": 1, "refine_iterations": 4}}"#;
+    let obj = objective(text);
+    let r = design(&obj, &Silent).unwrap();
+    let mut scenario = obj.scenario_for(&r.best.field);
+    scenario.goal = Some(obj.goal);
+    let (noise, n) = obj.robust.unwrap();
+    let tol = kicktrain::tolerance::tolerance(&scenario, noise, n, obj.search.seed).unwrap();
+    assert!((tol.mean - r.best.full.value).abs() < 1e-12, "tolerance mean {} vs robust score {}", tol.mean, r.best.full.value);
+    assert!(tol.nominal >= tol.mean - 1e-9 || tol.spread > 0.0);
+}

@@ -382,6 +382,9 @@ pub struct Objective {
     pub goal: Goal,
     /// How to search.
     pub search: SearchSettings,
+    /// Robust design: the full-solver stage maximizes the mean score over this many samples of these
+    /// errors (the same samples for every candidate), instead of the nominal score.
+    pub robust: Option<(crate::tolerance::Noise, usize)>,
 }
 
 impl Objective {
@@ -408,6 +411,7 @@ impl Objective {
         let thz_v = f.opt_value("terahertz");
         let goal_v = f.req_value("goal", "an object with kind, observable and window_ps")?;
         let search_v = f.opt_value("search");
+        let robust_v = f.opt_value("robust");
         f.finish()?;
 
         // The base scenario reuses the scenario reader for molecule, temperature and solver settings.
@@ -456,7 +460,32 @@ impl Objective {
             let key = if matches!(goal.kind, GoalKind::ValueAt(_)) { "goal.at_ps" } else { "goal.window_ps" };
             return Err(Error::input(key, format!("expected goal times up to 1e5 ps after the last pulse, got {:e} ps", goal.window_ps.1)));
         }
-        let obj = Objective { description, base, space, variable_count, goal, search };
+        let robust = match robust_v {
+            None => None,
+            Some(v) => {
+                let mut g = Fields::new(v, "robust")?;
+                let noise = crate::tolerance::Noise {
+                    jitter_fs: g.opt_f64("jitter_fs", "fs rms")?.unwrap_or(0.0),
+                    energy_percent: g.opt_f64("energy_noise_percent", "% rms")?.unwrap_or(0.0),
+                    phase_rad: g.opt_f64("phase_noise_rad", "rad rms")?.unwrap_or(0.0),
+                };
+                let samples = g.opt_usize("samples", "Monte Carlo samples")?.unwrap_or(16);
+                g.finish()?;
+                for (name, x) in [("robust.jitter_fs", noise.jitter_fs), ("robust.energy_noise_percent", noise.energy_percent), ("robust.phase_noise_rad", noise.phase_rad)] {
+                    if x < 0.0 {
+                        return Err(Error::input(name, format!("expected an rms value ≥ 0, got {x}")));
+                    }
+                }
+                if noise.energy_percent > 50.0 {
+                    return Err(Error::input("robust.energy_noise_percent", "expected at most 50 %"));
+                }
+                if !(2..=1000).contains(&samples) {
+                    return Err(Error::input("robust.samples", format!("expected 2 to 1000 samples, got {samples}")));
+                }
+                Some((noise, samples))
+            }
+        };
+        let obj = Objective { description, base, space, variable_count, goal, search, robust };
         if goal.observable == Observable::Cos && obj.space.static_field_kv_cm.is_none() && obj.space.two_colour.is_none() && obj.space.terahertz.is_none() {
             return Err(Error::input("goal.observable", "⟨cosθ⟩ needs an orienting field: give static_field_kv_cm, pulses.two_colour or terahertz"));
         }

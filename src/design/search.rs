@@ -140,11 +140,21 @@ impl<'a> Evaluator<'a> {
         let t_last = field.last_center_ps();
         let times = goal.times(t_last);
         let solver = if full { &self.full } else { &self.kick };
-        let run = match &self.obj.base.focal_average {
-            None => solver.run(field, &times, self.with_2d)?,
-            Some(avg) => solver.run_focal(field, &times, self.with_2d, avg)?,
+        let one = |f: &FieldModel| -> Result<Score> {
+            let run = match &self.obj.base.focal_average {
+                None => solver.run(f, &times, self.with_2d)?,
+                Some(avg) => solver.run_focal(f, &times, self.with_2d, avg)?,
+            };
+            Ok(crate::observe::score_goal(goal, &run.trace, &run.final_sums, t_last))
         };
-        let s = crate::observe::score_goal(goal, &run.trace, &run.final_sums, t_last);
+        let s = match (&self.obj.robust, full) {
+            // Robust design: the mean over fixed error samples (common random numbers), probe at nominal times.
+            (Some((noise, n)), true) => {
+                let values: Vec<f64> = (0..*n).map(|i| one(&crate::tolerance::perturb(field, *noise, self.obj.search.seed, i)).map(|s| s.value)).collect::<Result<_>>()?;
+                Score { value: values.iter().sum::<f64>() / *n as f64, t_ps: one(field)?.t_ps }
+            }
+            _ => one(field)?,
+        };
         let counter = if full { &self.full_count } else { &self.kick_count };
         counter.fetch_add(1, Ordering::Relaxed);
         let n = self.evaluations();

@@ -41,7 +41,8 @@ fn gamma(x: f64) -> f64 {
 }
 
 /// Static-field ADK rate (1/s) for ionization energy `ip_ev` and field `field_v_per_m`, l = m = 0,
-/// ionic charge Z = 1: w = C² Ip (2F0/F)^(2n*−1) exp(−2F0/3F), C² = 2^(2n*) / (n* Γ(n*+1) Γ(n*)).
+/// ionic charge Z = 1: w = C² Ip (2F0/F)^(2n*−1) exp(−2F0/3F) with the usual effective l* = n* − 1,
+/// C² = 2^(2n*) / (n* Γ(2n*)) (the form of Ilkov, Decker & Chin, J. Phys. B 25, 4005 (1992)).
 pub fn adk_static_rate(ip_ev: f64, field_v_per_m: f64) -> f64 {
     let f = field_v_per_m.abs() / FIELD_AU;
     if f <= 0.0 {
@@ -51,7 +52,7 @@ pub fn adk_static_rate(ip_ev: f64, field_v_per_m: f64) -> f64 {
     let kappa = (2.0 * ip).sqrt();
     let n = 1.0 / kappa;
     let f0 = kappa.powi(3);
-    let c2 = 2f64.powf(2.0 * n) / (n * gamma(n + 1.0) * gamma(n));
+    let c2 = 2f64.powf(2.0 * n) / (n * gamma(2.0 * n));
     c2 * ip * (2.0 * f0 / f).powf(2.0 * n - 1.0) * (-2.0 * f0 / (3.0 * f)).exp() / TIME_AU
 }
 

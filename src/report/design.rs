@@ -88,6 +88,8 @@ pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
         "evaluations": {"kick_model": r.kick_evaluations, "full_solver": r.full_evaluations},
         "run_time_s": r.run_time_s,
         "seed": obj.search.seed,
+        "robust": obj.robust.map(|(n, k)| json!({"jitter_fs": n.jitter_fs, "energy_noise_percent": n.energy_percent, "phase_noise_rad": n.phase_rad, "samples": k,
+            "note": "score is the mean over these error samples (full solver); replay_score is the nominal score that design.json reproduces; the kick-model score is nominal"})),
         "interrupted": r.interrupted,
         "laser_safety": LASER_SAFETY,
     })
