@@ -424,21 +424,19 @@ fn print_design(s: &serde_json::Value) {
     if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
         println!("  static field {e:.3} kV/cm (on throughout)");
     }
-    if let Some(ps) = s["pulses"].as_array() {
-        if let Some(p) = ps.first().filter(|p| p["kind"] == "two_colour") {
+    if let Some(ps) = s["pulses"].as_array()
+        && let Some(p) = ps.first().filter(|p| p["kind"] == "two_colour") {
             println!("  two-colour: second-harmonic share {:.3}, phase {:.4} rad", p["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0) / p["peak_intensity_wcm2"].as_f64().unwrap_or(1.0), p["phase_rad"].as_f64().unwrap_or(0.0));
         }
-    }
     if let Some(t) = s["terahertz"].as_array().and_then(|a| a.first()) {
         println!("  terahertz pulse at {:.4} ps, peak field {:.1} kV/cm", t["center_ps"].as_f64().unwrap_or(0.0), t["peak_field_kv_cm"].as_f64().unwrap_or(0.0));
     }
     println!("  best single pulse under the same ceiling: {} → gain {}", f(&s["single_pulse_baseline"]["score"]), f(&s["gain_over_single_pulse"]));
-    if let Some(pc) = s["per_pulse_count"].as_array() {
-        if pc.len() > 1 {
+    if let Some(pc) = s["per_pulse_count"].as_array()
+        && pc.len() > 1 {
             let parts: Vec<String> = pc.iter().map(|c| format!("{}: {}", c["pulses"], f(&c["score"]))).collect();
             println!("  score by pulse count: {}", parts.join(", "));
         }
-    }
     println!("  {} kick-model + {} full-solver evaluations in {:.1} s (seed {})", s["evaluations"]["kick_model"], s["evaluations"]["full_solver"], s["run_time_s"].as_f64().unwrap_or(0.0), s["seed"]);
     println!("  {}", report::LASER_SAFETY);
 }
@@ -540,9 +538,9 @@ fn run_scan(path: &Path, x: &str, from: f64, to: f64, steps: usize, y: Option<&s
         }
         report::write_file(dir, "scan.csv", &csv)?;
         let svg_text = match &ya {
-            Some(a) => svg::Heatmap::new(&format!("Scan of {label}"), &xa.path, &a.path, label, xa.values.clone(), a.values.clone(), r.values.clone()).to_svg(),
+            Some(a) => svg::Heatmap::new(format!("Scan of {label}"), &xa.path, &a.path, label, xa.values.clone(), a.values.clone(), r.values.clone()).to_svg(),
             None => {
-                let mut p = svg::LinePlot::new(&format!("Scan of {label}"), &xa.path, label);
+                let mut p = svg::LinePlot::new(format!("Scan of {label}"), &xa.path, label);
                 p.series.push(svg::Series { label: String::new(), x: xa.values.clone(), y: r.values[0].clone(), color: "#1f5fa8".into(), dashed: false, width: 1.8 });
                 p.to_svg()
             }

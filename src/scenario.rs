@@ -237,11 +237,10 @@ impl Scenario {
                 return Err(Error::input(join(path, "molecule.dipole_debye"), format!("a terahertz pulse needs a polar molecule, but {} has no permanent dipole", self.molecule.name)));
             }
         }
-        if let Some(g) = &self.goal {
-            if g.observable == crate::goal::Observable::Cos && !self.field.is_polar() {
+        if let Some(g) = &self.goal
+            && g.observable == crate::goal::Observable::Cos && !self.field.is_polar() {
                 return Err(Error::input(join(path, "goal.observable"), "⟨cosθ⟩ needs a field that orients (static_field, two_colour or terahertz); a laser alone gives zero"));
             }
-        }
         self.window.validate(&join(path, "window"))?;
         let s = &self.solver;
         let sp = join(path, "solver");

@@ -219,11 +219,10 @@ impl StaticField {
         }
         if let Some(t) = self.off_ps {
             require_finite(&format!("{path}.off_ps"), t, "ps")?;
-            if let Some(on) = self.on_ps {
-                if t <= on {
+            if let Some(on) = self.on_ps
+                && t <= on {
                     return Err(Error::input(format!("{path}.off_ps"), format!("expected a time after on_ps = {on} ps, got {t} ps")));
                 }
-            }
         }
         Ok(())
     }

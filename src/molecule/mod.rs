@@ -126,11 +126,10 @@ impl Molecule {
         if self.dipole_debye.abs() > 50.0 {
             return Err(Error::input(format!("{path}.dipole_debye"), format!("expected a molecular dipole below 50 D, got {}", self.dipole_debye)));
         }
-        if let Some(ip) = self.ionization_energy_ev {
-            if !ip.is_finite() || !(3.0..=30.0).contains(&ip) {
+        if let Some(ip) = self.ionization_energy_ev
+            && (!ip.is_finite() || !(3.0..=30.0).contains(&ip)) {
                 return Err(Error::input(format!("{path}.ionization_energy_ev"), format!("expected an ionization energy from 3 to 30 eV, got {ip}")));
             }
-        }
         for (name, b) in [("beta_parallel_au", self.beta_parallel_au), ("beta_perpendicular_au", self.beta_perpendicular_au)] {
             if let Some(b) = b {
                 crate::error::require_finite(&format!("{path}.{name}"), b, "atomic units")?;

@@ -106,7 +106,7 @@ pub fn history_csv(r: &DesignResult) -> String {
 
 /// Plot of the best value versus evaluations, one line per stage.
 pub fn convergence_plot(obj: &Objective, r: &DesignResult) -> svg::LinePlot {
-    let mut plot = svg::LinePlot::new("Search convergence", "objective evaluations", &format!("best {} ({})", obj.goal.kind_name(), obj.goal.observable.name()));
+    let mut plot = svg::LinePlot::new("Search convergence", "objective evaluations", format!("best {} ({})", obj.goal.kind_name(), obj.goal.observable.name()));
     let mut stages: Vec<String> = vec![];
     for h in &r.history {
         if !stages.contains(&h.stage) {
