@@ -58,8 +58,8 @@ fn peer_job() {
 /// Job 2 (designer inner loop): kick-model objective evaluations of a four-pulse train for nitrogen at
 /// 300 K (goal: peak ⟨cos²θ⟩ in 0.05–9 ps after the last pulse, 20 fs grid), on both cores.
 fn kick_evaluations() {
-    use kicktrain::design::search::evaluate_kick_many;
     use kicktrain::design::Objective;
+    use kicktrain::design::search::evaluate_kick_many;
     use rayon::prelude::*;
     let text = r#"{"molecule": "N2", "temperature_k": 300,
         "pulses": {"count": 4, "fwhm_fs": 50, "delay_ps": {"min": 0.2, "max": 9.0}, "peak_intensity_wcm2": {"min": 0, "max": 4e13}},

@@ -1,9 +1,9 @@
 //! Goals: what a design should achieve (peak, value at a time, mean, minimum of an alignment
 //! observable in a window after the last pulse). Data and parsing only; scoring lives in `observe`.
 
-use crate::error::{require_positive, Error, Result};
-use crate::input::{as_f64, join, Fields};
-use serde_json::{json, Value};
+use crate::error::{Error, Result, require_positive};
+use crate::input::{Fields, as_f64, join};
+use serde_json::{Value, json};
 
 /// Which alignment observable a goal uses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -130,7 +130,9 @@ pub fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
         "peak" => GoalKind::Peak,
         "mean" => GoalKind::Mean,
         "minimum" => GoalKind::Minimum,
-        "value_at" => GoalKind::ValueAt(at.ok_or_else(|| Error::input(join(path, "at_ps"), "missing; expected the time (ps) after the last pulse centre for kind \"value_at\""))?),
+        "value_at" => GoalKind::ValueAt(
+            at.ok_or_else(|| Error::input(join(path, "at_ps"), "missing; expected the time (ps) after the last pulse centre for kind \"value_at\""))?,
+        ),
         other => return Err(Error::input(join(path, "kind"), format!("expected \"peak\", \"value_at\", \"mean\" or \"minimum\", got \"{other}\""))),
     };
     let window_ps = match (kind, window) {
@@ -147,8 +149,10 @@ pub fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
         }
     }
     if window_ps.0 < 0.0 {
-        return Err(Error::input(join(path, if matches!(kind, GoalKind::ValueAt(_)) { "at_ps" } else { "window_ps" }), "expected times ≥ 0 after the last pulse centre"));
+        return Err(Error::input(
+            join(path, if matches!(kind, GoalKind::ValueAt(_)) { "at_ps" } else { "window_ps" }),
+            "expected times ≥ 0 after the last pulse centre",
+        ));
     }
     Ok(Goal { kind, observable, window_ps, step_fs })
 }
-

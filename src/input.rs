@@ -32,10 +32,7 @@ impl<'a> Fields<'a> {
     pub fn new(value: &'a Value, path: &str) -> Result<Fields<'a>> {
         match value {
             Value::Object(map) => Ok(Fields { path: path.to_string(), map, used: vec![] }),
-            other => Err(Error::input(
-                if path.is_empty() { "(top level)" } else { path },
-                format!("expected an object {{ ... }}, got {}", type_name(other)),
-            )),
+            other => Err(Error::input(if path.is_empty() { "(top level)" } else { path }, format!("expected an object {{ ... }}, got {}", type_name(other)))),
         }
     }
 

@@ -1,22 +1,26 @@
 //! kicktrain command line: a thin front end over the library (parse, load, call, report).
 
 use clap::{Parser, Subcommand};
+use kicktrain::design::Objective;
+use kicktrain::design::search::{Monitor, design};
 use kicktrain::error::Error;
 use kicktrain::molecule::library;
 use kicktrain::report;
 use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
-use kicktrain::design::search::{design, Monitor};
-use kicktrain::design::Objective;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
-use std::sync::Arc;
 use std::process::ExitCode;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 #[derive(Parser)]
-#[command(name = "kicktrain", version, about = "Design and simulate laser pulse trains that align gas-phase molecules.",
+#[command(
+    name = "kicktrain",
+    version,
+    about = "Design and simulate laser pulse trains that align gas-phase molecules.",
     after_help = "Examples:\n  kicktrain molecules\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n  kicktrain design --out best\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20\n\n\
-Lasers that align molecules are class 4: follow your laser safety officer and IEC 60825-1 / ANSI Z136.1.")]
+Lasers that align molecules are class 4: follow your laser safety officer and IEC 60825-1 / ANSI Z136.1."
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -106,9 +110,11 @@ Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envel
         m2: f64,
     },
     /// Scan one or two numeric fields of a scenario (for example delay × intensity), in parallel.
-    #[command(after_help = "Examples:\n  kicktrain scan examples/scenarios/nitrogen-one-pulse.json --x pulses[0].peak_intensity_wcm2 --from 1e13 --to 8e13 --steps 15 --out scan1\n  \
+    #[command(
+        after_help = "Examples:\n  kicktrain scan examples/scenarios/nitrogen-one-pulse.json --x pulses[0].peak_intensity_wcm2 --from 1e13 --to 8e13 --steps 15 --out scan1\n  \
 kicktrain scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 --y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --out scan2\n\n\
-Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the last pulse. Writes scan.csv and scan.svg (a line or a heatmap).")]
+Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the last pulse. Writes scan.csv and scan.svg (a line or a heatmap)."
+    )]
     Scan {
         /// Scenario file (JSON).
         scenario: PathBuf,
@@ -189,16 +195,22 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Molecules { json } => molecules(json),
         Command::Simulate { scenario, out, json } => run_simulate(&scenario, out.as_deref(), json),
-        Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json),
+        Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => {
+            run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json)
+        }
         Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 } => {
             run_focus(kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 }, fwhm_fs, &shape)
         }
         Command::Scan { scenario, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } => {
             run_scan(&scenario, &x, from, to, steps, y.as_deref(), y_from, y_to, y_steps, out.as_deref(), quiet)
         }
-        Command::Tolerance { scenario, jitter_fs, energy_noise_percent, phase_noise_rad, samples, seed, out } => {
-            run_tolerance(&scenario, kicktrain::tolerance::Noise { jitter_fs, energy_percent: energy_noise_percent, phase_rad: phase_noise_rad }, samples, seed, out.as_deref())
-        }
+        Command::Tolerance { scenario, jitter_fs, energy_noise_percent, phase_noise_rad, samples, seed, out } => run_tolerance(
+            &scenario,
+            kicktrain::tolerance::Noise { jitter_fs, energy_percent: energy_noise_percent, phase_rad: phase_noise_rad },
+            samples,
+            seed,
+            out.as_deref(),
+        ),
         Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
     };
     match result {
@@ -242,8 +254,15 @@ fn molecules(json: bool) -> Result<(), Error> {
     for e in library() {
         println!(
             "{:<6} {:>11.6} {:>10.3e} {:>8.3} {:>8.3} {:>7.3} {:>4}:{:<4}  {}",
-            e.name, e.b_cm.value, e.d_cm.value, e.alpha_parallel_a3.value, e.alpha_perpendicular_a3.value,
-            e.alpha_parallel_a3.value - e.alpha_perpendicular_a3.value, e.spin_weights[0], e.spin_weights[1], e.description
+            e.name,
+            e.b_cm.value,
+            e.d_cm.value,
+            e.alpha_parallel_a3.value,
+            e.alpha_perpendicular_a3.value,
+            e.alpha_parallel_a3.value - e.alpha_perpendicular_a3.value,
+            e.spin_weights[0],
+            e.spin_weights[1],
+            e.description
         );
     }
     println!("\nSources of every constant: kicktrain molecules --json");
@@ -287,8 +306,12 @@ fn print_simulation(s: &serde_json::Value) {
             let ion = p["ionized_fraction_adk"].as_f64().map(|x| format!(", ionized ≈ {x:.1e} (ADK estimate)")).unwrap_or_default();
             println!(
                 "  pulse {}: centre {} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({}){ion}",
-                i + 1, p["center_ps"], p["fwhm_fs"], p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
-                p["kick_strength"].as_f64().unwrap_or(0.0), p["method"].as_str().unwrap_or("")
+                i + 1,
+                p["center_ps"],
+                p["fwhm_fs"],
+                p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
+                p["kick_strength"].as_f64().unwrap_or(0.0),
+                p["method"].as_str().unwrap_or("")
             );
         }
     }
@@ -299,7 +322,9 @@ fn print_simulation(s: &serde_json::Value) {
     if let Some(o) = s.get("peak_orientation").filter(|o| !o.is_null()) {
         println!(
             "  peak orientation ⟨cosθ⟩ after the last pulse {:.4} at {:.3} ps (towards {}); permanent {:.4}",
-            o["cos"].as_f64().unwrap_or(0.0), o["t_ps"].as_f64().unwrap_or(0.0), o["sign"].as_str().unwrap_or("?"),
+            o["cos"].as_f64().unwrap_or(0.0),
+            o["t_ps"].as_f64().unwrap_or(0.0),
+            o["sign"].as_str().unwrap_or("?"),
             s["permanent_cos"].as_f64().unwrap_or(0.0)
         );
     }
@@ -309,8 +334,11 @@ fn print_simulation(s: &serde_json::Value) {
     println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
     println!(
         "  {} initial states (discarded population {:.1e}); basis up to J = {} (edge population {:.1e}); {:.3} s",
-        s["thermal"]["initial_states"], s["thermal"]["discarded_population"].as_f64().unwrap_or(0.0),
-        s["basis"]["max_j"], s["basis"]["max_edge_population"].as_f64().unwrap_or(0.0), s["run_time_s"].as_f64().unwrap_or(0.0)
+        s["thermal"]["initial_states"],
+        s["thermal"]["discarded_population"].as_f64().unwrap_or(0.0),
+        s["basis"]["max_j"],
+        s["basis"]["max_edge_population"].as_f64().unwrap_or(0.0),
+        s["run_time_s"].as_f64().unwrap_or(0.0)
     );
     if !s["pulses"].as_array().map(|a| a.is_empty()).unwrap_or(true) {
         println!("  {}", report::LASER_SAFETY);
@@ -378,11 +406,7 @@ fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, quiet:
         });
     }
     let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(1) };
-    bar.set_style(
-        indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})")
-            .expect("template")
-            .progress_chars("=> "),
-    );
+    bar.set_style(indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})").expect("template").progress_chars("=> "));
     if !quiet {
         eprintln!("designing: {} ({} pulse(s){}, seed {})", name, obj.space.pulses.len(), if obj.variable_count { " at most" } else { "" }, obj.search.seed);
     }
@@ -407,37 +431,70 @@ fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, quiet:
 
 fn print_design(s: &serde_json::Value) {
     let f = |v: &serde_json::Value| v.as_f64().map(|x| format!("{x:.5}")).unwrap_or_else(|| "—".into());
-    println!("{} at {} K — goal: {} of {} (window {} ps after the last pulse centre)",
-        s["molecule"].as_str().unwrap_or("?"), s["temperature_k"], s["goal"]["kind"].as_str().unwrap_or("?"), s["observable"].as_str().unwrap_or("?"),
-        s["goal"].get("window_ps").map(|w| w.to_string()).unwrap_or_else(|| s["goal"]["at_ps"].to_string()));
+    println!(
+        "{} at {} K — goal: {} of {} (window {} ps after the last pulse centre)",
+        s["molecule"].as_str().unwrap_or("?"),
+        s["temperature_k"],
+        s["goal"]["kind"].as_str().unwrap_or("?"),
+        s["observable"].as_str().unwrap_or("?"),
+        s["goal"].get("window_ps").map(|w| w.to_string()).unwrap_or_else(|| s["goal"]["at_ps"].to_string())
+    );
     if s["interrupted"].as_bool() == Some(true) {
         println!("  (search interrupted: best design found so far)");
     }
-    println!("  score {} at {} ps (full solver); kick model {} (difference {})", f(&s["score"]), f(&s["score_time_ps"]), f(&s["kick_model_score"]), f(&s["full_minus_kick_model"]));
+    println!(
+        "  score {} at {} ps (full solver); kick model {} (difference {})",
+        f(&s["score"]),
+        f(&s["score_time_ps"]),
+        f(&s["kick_model_score"]),
+        f(&s["full_minus_kick_model"])
+    );
     if let Some(ps) = s["pulses"].as_array() {
         for p in ps {
-            println!("  pulse {}: t = {:.4} ps, {:.4e} W/cm² ({:.0} % of ceiling), FWHM {:.1} fs, kick strength {:.3}",
-                p["pulse"], p["center_ps"].as_f64().unwrap_or(0.0), p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
-                100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0), p["fwhm_fs"].as_f64().unwrap_or(0.0), p["kick_strength"].as_f64().unwrap_or(0.0));
+            println!(
+                "  pulse {}: t = {:.4} ps, {:.4e} W/cm² ({:.0} % of ceiling), FWHM {:.1} fs, kick strength {:.3}",
+                p["pulse"],
+                p["center_ps"].as_f64().unwrap_or(0.0),
+                p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
+                100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0),
+                p["fwhm_fs"].as_f64().unwrap_or(0.0),
+                p["kick_strength"].as_f64().unwrap_or(0.0)
+            );
         }
     }
     if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
         println!("  static field {e:.3} kV/cm (on throughout)");
     }
     if let Some(ps) = s["pulses"].as_array()
-        && let Some(p) = ps.first().filter(|p| p["kind"] == "two_colour") {
-            println!("  two-colour: second-harmonic share {:.3}, phase {:.4} rad", p["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0) / p["peak_intensity_wcm2"].as_f64().unwrap_or(1.0), p["phase_rad"].as_f64().unwrap_or(0.0));
-        }
+        && let Some(p) = ps.first().filter(|p| p["kind"] == "two_colour")
+    {
+        println!(
+            "  two-colour: second-harmonic share {:.3}, phase {:.4} rad",
+            p["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0) / p["peak_intensity_wcm2"].as_f64().unwrap_or(1.0),
+            p["phase_rad"].as_f64().unwrap_or(0.0)
+        );
+    }
     if let Some(t) = s["terahertz"].as_array().and_then(|a| a.first()) {
-        println!("  terahertz pulse at {:.4} ps, peak field {:.1} kV/cm", t["center_ps"].as_f64().unwrap_or(0.0), t["peak_field_kv_cm"].as_f64().unwrap_or(0.0));
+        println!(
+            "  terahertz pulse at {:.4} ps, peak field {:.1} kV/cm",
+            t["center_ps"].as_f64().unwrap_or(0.0),
+            t["peak_field_kv_cm"].as_f64().unwrap_or(0.0)
+        );
     }
     println!("  best single pulse under the same ceiling: {} → gain {}", f(&s["single_pulse_baseline"]["score"]), f(&s["gain_over_single_pulse"]));
     if let Some(pc) = s["per_pulse_count"].as_array()
-        && pc.len() > 1 {
-            let parts: Vec<String> = pc.iter().map(|c| format!("{}: {}", c["pulses"], f(&c["score"]))).collect();
-            println!("  score by pulse count: {}", parts.join(", "));
-        }
-    println!("  {} kick-model + {} full-solver evaluations in {:.1} s (seed {})", s["evaluations"]["kick_model"], s["evaluations"]["full_solver"], s["run_time_s"].as_f64().unwrap_or(0.0), s["seed"]);
+        && pc.len() > 1
+    {
+        let parts: Vec<String> = pc.iter().map(|c| format!("{}: {}", c["pulses"], f(&c["score"]))).collect();
+        println!("  score by pulse count: {}", parts.join(", "));
+    }
+    println!(
+        "  {} kick-model + {} full-solver evaluations in {:.1} s (seed {})",
+        s["evaluations"]["kick_model"],
+        s["evaluations"]["full_solver"],
+        s["run_time_s"].as_f64().unwrap_or(0.0),
+        s["seed"]
+    );
     println!("  {}", report::LASER_SAFETY);
 }
 
@@ -456,7 +513,10 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
         println!("{}", serde_json::to_string_pretty(&v).expect("json"));
         return Ok(());
     }
-    println!("{} in {:.3e} W/cm² and {} kV/cm: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}", mol.name, intensity, static_kv_cm, r.laser_strength_b, r.static_strength_b);
+    println!(
+        "{} in {:.3e} W/cm² and {} kV/cm: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}",
+        mol.name, intensity, static_kv_cm, r.laser_strength_b, r.static_strength_b
+    );
     println!("{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩");
     for s in r.states.iter().filter(|s| s.j <= j_max) {
         println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, s.energy_cm, s.energy_b, s.cos2, s.cos);
@@ -493,16 +553,31 @@ fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str) -> Resu
 }
 
 #[allow(clippy::too_many_arguments)]
-fn run_scan(path: &Path, x: &str, from: f64, to: f64, steps: usize, y: Option<&str>, y_from: Option<f64>, y_to: Option<f64>, y_steps: usize, out: Option<&Path>, quiet: bool) -> Result<(), Error> {
+fn run_scan(
+    path: &Path,
+    x: &str,
+    from: f64,
+    to: f64,
+    steps: usize,
+    y: Option<&str>,
+    y_from: Option<f64>,
+    y_to: Option<f64>,
+    y_steps: usize,
+    out: Option<&Path>,
+    quiet: bool,
+) -> Result<(), Error> {
     use kicktrain::report::svg;
-    use kicktrain::scan::{scan, Axis, Metric};
+    use kicktrain::scan::{Axis, Metric, scan};
     let text = read_text(path)?;
     let base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
     let xa = Axis::linear(x, from, to, steps)?;
     let ya = match y {
         None => None,
         Some(p) => {
-            let (a, b) = (y_from.ok_or_else(|| Error::input("y-from", "missing; a 2D scan needs --y-from and --y-to"))?, y_to.ok_or_else(|| Error::input("y-to", "missing; a 2D scan needs --y-from and --y-to"))?);
+            let (a, b) = (
+                y_from.ok_or_else(|| Error::input("y-from", "missing; a 2D scan needs --y-from and --y-to"))?,
+                y_to.ok_or_else(|| Error::input("y-to", "missing; a 2D scan needs --y-from and --y-to"))?,
+            );
             Some(Axis::linear(p, a, b, y_steps)?)
         }
     };
@@ -524,8 +599,15 @@ fn run_scan(path: &Path, x: &str, from: f64, to: f64, steps: usize, y: Option<&s
             }
         }
     }
-    println!("{} points in {:.2} s; {label}: best {:.5} at {} = {}{}", total, t0.elapsed().as_secs_f64(), best.0, xa.path, xa.values[best.1],
-        ya.as_ref().map(|a| format!(", {} = {}", a.path, a.values[best.2])).unwrap_or_default());
+    println!(
+        "{} points in {:.2} s; {label}: best {:.5} at {} = {}{}",
+        total,
+        t0.elapsed().as_secs_f64(),
+        best.0,
+        xa.path,
+        xa.values[best.1],
+        ya.as_ref().map(|a| format!(", {} = {}", a.path, a.values[best.2])).unwrap_or_default()
+    );
     if let Some(dir) = out {
         let mut csv = format!("{}{},value\n", xa.path, ya.as_ref().map(|a| format!(",{}", a.path)).unwrap_or_default());
         for (iy, row) in r.values.iter().enumerate() {
@@ -541,7 +623,14 @@ fn run_scan(path: &Path, x: &str, from: f64, to: f64, steps: usize, y: Option<&s
             Some(a) => svg::Heatmap::new(format!("Scan of {label}"), &xa.path, &a.path, label, xa.values.clone(), a.values.clone(), r.values.clone()).to_svg(),
             None => {
                 let mut p = svg::LinePlot::new(format!("Scan of {label}"), &xa.path, label);
-                p.series.push(svg::Series { label: String::new(), x: xa.values.clone(), y: r.values[0].clone(), color: "#1f5fa8".into(), dashed: false, width: 1.8 });
+                p.series.push(svg::Series {
+                    label: String::new(),
+                    x: xa.values.clone(),
+                    y: r.values[0].clone(),
+                    color: "#1f5fa8".into(),
+                    dashed: false,
+                    width: 1.8,
+                });
                 p.to_svg()
             }
         };
@@ -559,8 +648,16 @@ fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize
     let t0 = std::time::Instant::now();
     let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed)?;
     let goal = scenario.goal.expect("checked by tolerance()");
-    println!("{} of {}: nominal {:.5}; with jitter {} fs, energy noise {} %, phase noise {} rad ({} samples, seed {seed}):",
-        goal.kind_name(), goal.observable.name(), r.nominal, noise.jitter_fs, noise.energy_percent, noise.phase_rad, samples);
+    println!(
+        "{} of {}: nominal {:.5}; with jitter {} fs, energy noise {} %, phase noise {} rad ({} samples, seed {seed}):",
+        goal.kind_name(),
+        goal.observable.name(),
+        r.nominal,
+        noise.jitter_fs,
+        noise.energy_percent,
+        noise.phase_rad,
+        samples
+    );
     println!("  mean {:.5}, spread (rms) {:.5}, worst decile {:.5}; {:.2} s", r.mean, r.spread, r.worst_decile, t0.elapsed().as_secs_f64());
     if let Some(dir) = out {
         let mut csv = String::from("sample,score\n");
@@ -568,7 +665,12 @@ fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize
             csv.push_str(&format!("{i},{v:.10}\n"));
         }
         report::write_file(dir, "tolerance.csv", &csv)?;
-        let mut h = svg::Histogram::new(format!("Score under jitter {} fs, energy noise {} %", noise.jitter_fs, noise.energy_percent), format!("{} {}", goal.kind_name(), goal.observable.name()), r.samples.clone(), 0);
+        let mut h = svg::Histogram::new(
+            format!("Score under jitter {} fs, energy noise {} %", noise.jitter_fs, noise.energy_percent),
+            format!("{} {}", goal.kind_name(), goal.observable.name()),
+            r.samples.clone(),
+            0,
+        );
         h.markers.push(svg::Marker { x0: r.nominal, x1: r.nominal, label: "nominal".into(), color: "#c0392b".into() });
         h.markers.push(svg::Marker { x0: r.worst_decile, x1: r.worst_decile, label: "worst decile".into(), color: "#7f7f7f".into() });
         report::write_file(dir, "tolerance.svg", &h.to_svg())?;

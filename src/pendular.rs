@@ -2,7 +2,7 @@
 //! constant laser intensity and static field, each labelled by the field-free level it connects to
 //! adiabatically, and thermal averages over them.
 
-use crate::basis::{Block, BOTH_PARITIES};
+use crate::basis::{BOTH_PARITIES, Block};
 use crate::ensemble::ThermalEnsemble;
 use crate::error::{Error, Result};
 use crate::molecule::Molecule;
@@ -130,14 +130,7 @@ pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
             states.push(DressedState { j: labels[i], m, energy_cm: e, energy_b: e / mol.b_cm, cos2, cos });
             // Thermal weight of the field-free level (J, M), both signs of M.
             let g = if m == 0 { 1.0 } else { 2.0 };
-            let p = ensemble
-                .blocks
-                .iter()
-                .filter(|bp| bp.m == m)
-                .flat_map(|bp| bp.levels.iter())
-                .find(|l| l.0 == labels[i])
-                .map(|l| l.1)
-                .unwrap_or(0.0);
+            let p = ensemble.blocks.iter().filter(|bp| bp.m == m).flat_map(|bp| bp.levels.iter()).find(|l| l.0 == labels[i]).map(|l| l.1).unwrap_or(0.0);
             t_cos2 += g * p * cos2;
             t_cos += g * p * cos;
         }

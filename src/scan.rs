@@ -120,7 +120,15 @@ pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Syn
                 set_path(&mut v, &a.path, yv)?;
             }
             Scenario::from_value(&v, "").map_err(|e| match e {
-                Error::Input { field, message } => Error::input(field, format!("{message} (at scan point {} = {}{})", x.path, x.values[ix], y.map(|a| format!(", {} = {}", a.path, ys[iy].unwrap_or(0.0))).unwrap_or_default())),
+                Error::Input { field, message } => Error::input(
+                    field,
+                    format!(
+                        "{message} (at scan point {} = {}{})",
+                        x.path,
+                        x.values[ix],
+                        y.map(|a| format!(", {} = {}", a.path, ys[iy].unwrap_or(0.0))).unwrap_or_default()
+                    ),
+                ),
                 other => other,
             })
         })

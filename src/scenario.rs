@@ -1,14 +1,14 @@
 //! The scenario file: molecule, temperature, field model, time window and solver settings.
 //! Parsed field by field so that every error names the field and the expected unit or range.
 
-use crate::error::{require_non_negative, require_positive, Error, Result};
+use crate::error::{Error, Result, require_non_negative, require_positive};
 use crate::field::{FieldModel, Pulse, PulseShape, StaticField, TerahertzPulse, TerahertzWaveform, TwoColourPulse};
-use crate::optics::focal::FocalAverage;
-use crate::goal::{parse_goal, Goal};
-use crate::optics::{peak_intensity_wcm2, peak_power_w, Focus};
-use crate::input::{join, parse_json, type_name, Fields};
+use crate::goal::{Goal, parse_goal};
+use crate::input::{Fields, join, parse_json, type_name};
 use crate::molecule::Molecule;
-use serde_json::{json, Value};
+use crate::optics::focal::FocalAverage;
+use crate::optics::{Focus, peak_intensity_wcm2, peak_power_w};
+use serde_json::{Value, json};
 
 /// How the solver treats laser pulses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -86,7 +86,14 @@ pub struct SolverSettings {
 
 impl Default for SolverSettings {
     fn default() -> Self {
-        SolverSettings { method: Method::Auto, step_fs: None, thermal_tolerance: 1e-7, edge_tolerance: 1e-8, both_parities: false, kick_terahertz_as_finite: false }
+        SolverSettings {
+            method: Method::Auto,
+            step_fs: None,
+            thermal_tolerance: 1e-7,
+            edge_tolerance: 1e-8,
+            both_parities: false,
+            kick_terahertz_as_finite: false,
+        }
     }
 }
 
@@ -191,7 +198,18 @@ impl Scenario {
             Some(g) => Some(parse_goal(g, &f.path_of("goal"))?),
         };
         f.finish()?;
-        let s = Scenario { description, molecule, molecule_source, temperature_k, field: FieldModel { pulses, static_field, two_colour, terahertz }, window, solver, goal, pulse_optics, focal_average };
+        let s = Scenario {
+            description,
+            molecule,
+            molecule_source,
+            temperature_k,
+            field: FieldModel { pulses, static_field, two_colour, terahertz },
+            window,
+            solver,
+            goal,
+            pulse_optics,
+            focal_average,
+        };
         s.validate_at(path)?;
         Ok(s)
     }
@@ -226,7 +244,10 @@ impl Scenario {
                 if v.is_none() {
                     return Err(Error::input(
                         join(path, &format!("molecule.{name}")),
-                        format!("a two-colour pulse needs the hyperpolarizability of {} (β∥ and β⊥ in atomic units, Taylor convention); give it in an inline molecule", self.molecule.name),
+                        format!(
+                            "a two-colour pulse needs the hyperpolarizability of {} (β∥ and β⊥ in atomic units, Taylor convention); give it in an inline molecule",
+                            self.molecule.name
+                        ),
                     ));
                 }
             }
@@ -234,13 +255,21 @@ impl Scenario {
         for (i, th) in self.field.terahertz.iter().enumerate() {
             th.validate(&format!("{}[{i}]", join(path, "terahertz")))?;
             if !self.molecule.is_polar() {
-                return Err(Error::input(join(path, "molecule.dipole_debye"), format!("a terahertz pulse needs a polar molecule, but {} has no permanent dipole", self.molecule.name)));
+                return Err(Error::input(
+                    join(path, "molecule.dipole_debye"),
+                    format!("a terahertz pulse needs a polar molecule, but {} has no permanent dipole", self.molecule.name),
+                ));
             }
         }
         if let Some(g) = &self.goal
-            && g.observable == crate::goal::Observable::Cos && !self.field.is_polar() {
-                return Err(Error::input(join(path, "goal.observable"), "⟨cosθ⟩ needs a field that orients (static_field, two_colour or terahertz); a laser alone gives zero"));
-            }
+            && g.observable == crate::goal::Observable::Cos
+            && !self.field.is_polar()
+        {
+            return Err(Error::input(
+                join(path, "goal.observable"),
+                "⟨cosθ⟩ needs a field that orients (static_field, two_colour or terahertz); a laser alone gives zero",
+            ));
+        }
         self.window.validate(&join(path, "window"))?;
         let s = &self.solver;
         let sp = join(path, "solver");
@@ -342,7 +371,18 @@ fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
             let beta_perpendicular_au = f.opt_f64("beta_perpendicular_au", "atomic units, Taylor convention")?;
             let ionization_energy_ev = f.opt_f64("ionization_energy_ev", "eV")?;
             f.finish()?;
-            let m = Molecule { name, b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye, beta_parallel_au, beta_perpendicular_au, ionization_energy_ev };
+            let m = Molecule {
+                name,
+                b_cm,
+                d_cm,
+                alpha_parallel_a3,
+                alpha_perpendicular_a3,
+                spin_weights,
+                dipole_debye,
+                beta_parallel_au,
+                beta_perpendicular_au,
+                ionization_energy_ev,
+            };
             m.validate(path)?;
             Ok((m, MoleculeSource::Inline))
         }
@@ -385,7 +425,12 @@ fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {
             Some(focus)
         }
         (Some(_), Some(_)) => return Err(Error::input(join(path, "energy_mj"), "give either peak_intensity_wcm2 or energy_mj with the focus, not both")),
-        (None, None) => return Err(Error::input(join(path, "peak_intensity_wcm2"), "missing; expected the peak intensity (W/cm²), or energy_mj with waist_um (or beam_radius_mm, wavelength_nm, focal_length_mm)")),
+        (None, None) => {
+            return Err(Error::input(
+                join(path, "peak_intensity_wcm2"),
+                "missing; expected the peak intensity (W/cm²), or energy_mj with waist_um (or beam_radius_mm, wavelength_nm, focal_length_mm)",
+            ));
+        }
     };
     p.validate(path)?;
     Ok((p, optics))
@@ -414,8 +459,15 @@ fn parse_two_colour(v: &Value, path: &str) -> Result<TwoColourPulse> {
             }
             r * fundamental_intensity_wcm2
         }
-        (Some(_), Some(_)) => return Err(Error::input(join(path, "second_harmonic_ratio"), "give second_harmonic_intensity_wcm2 or second_harmonic_ratio, not both")),
-        (None, None) => return Err(Error::input(join(path, "second_harmonic_intensity_wcm2"), "missing; expected the second-harmonic peak intensity (W/cm²) or second_harmonic_ratio")),
+        (Some(_), Some(_)) => {
+            return Err(Error::input(join(path, "second_harmonic_ratio"), "give second_harmonic_intensity_wcm2 or second_harmonic_ratio, not both"));
+        }
+        (None, None) => {
+            return Err(Error::input(
+                join(path, "second_harmonic_intensity_wcm2"),
+                "missing; expected the second-harmonic peak intensity (W/cm²) or second_harmonic_ratio",
+            ));
+        }
     };
     let phase_rad = f.opt_f64("phase_rad", "rad")?.unwrap_or(0.0);
     let shape = match f.opt_str("shape", PulseShape::NAMES)? {

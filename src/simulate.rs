@@ -2,19 +2,19 @@
 //! schedule (kicks or finite-pulse intervals), runs every (|M|, parity) block in parallel, grows each
 //! block's basis until the edge population is below tolerance, and sums the blocks' contributions.
 
-use crate::basis::{Block, BOTH_PARITIES};
-use crate::propagate::polar::{PolarOps, POLAR_OBSERVABLES};
-use nalgebra::DMatrix;
-use crate::optics::focal::FocalAverage;
+use crate::basis::{BOTH_PARITIES, Block};
 use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
-use crate::molecule::Molecule;
 use crate::goal::{Observable, Score};
-use crate::observe::{score_goal, BlockSums, DenseSums, LevelSums, Trace};
-use crate::propagate::{propagate_finite, BlockOps, BlockState, FreePhases};
+use crate::molecule::Molecule;
+use crate::observe::{BlockSums, DenseSums, LevelSums, Trace, score_goal};
+use crate::optics::focal::FocalAverage;
+use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
+use crate::propagate::{BlockOps, BlockState, FreePhases, propagate_finite};
 use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
+use nalgebra::DMatrix;
 use rayon::prelude::*;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -149,7 +149,12 @@ impl Solver {
         let two_colour: f64 = field
             .two_colour
             .iter()
-            .map(|t| self.effective_strength(&crate::field::Pulse { peak_intensity_wcm2: t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2, ..t.envelope_pulse() }))
+            .map(|t| {
+                self.effective_strength(&crate::field::Pulse {
+                    peak_intensity_wcm2: t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2,
+                    ..t.envelope_pulse()
+                })
+            })
             .sum();
         lasers + two_colour
     }
@@ -245,12 +250,8 @@ impl Solver {
                     .collect()
             })
             .collect();
-        let outcomes: Vec<BlockOutcome> = self
-            .ensemble
-            .blocks
-            .par_iter()
-            .map(|bp| self.run_block(bp, field, &events, &tables, times_ps, with_2d, extra))
-            .collect::<Result<Vec<_>>>()?;
+        let outcomes: Vec<BlockOutcome> =
+            self.ensemble.blocks.par_iter().map(|bp| self.run_block(bp, field, &events, &tables, times_ps, with_2d, extra)).collect::<Result<Vec<_>>>()?;
         let mut cos2 = vec![0.0; times_ps.len()];
         let mut c2d = vec![0.0; times_ps.len()];
         for o in &outcomes {
@@ -282,11 +283,28 @@ impl Solver {
         let final_sums = merge(t_end, &|o: &BlockOutcome| &o.final_sums);
         let blocks = outcomes.into_iter().map(|o| o.report).collect();
         let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] }, cos: vec![], cos3: vec![] };
-        Ok(RunResult { trace, permanent_cos2: final_sums.cos2_static, permanent_cos2_2d: final_sums.abscos_static, blocks, events, final_sums, permanent_cos: None })
+        Ok(RunResult {
+            trace,
+            permanent_cos2: final_sums.cos2_static,
+            permanent_cos2_2d: final_sums.abscos_static,
+            blocks,
+            events,
+            final_sums,
+            permanent_cos: None,
+        })
     }
 
     #[allow(clippy::too_many_arguments)]
-    fn run_block(&self, bp: &BlockPopulation, field: &FieldModel, events: &[Event], tables: &[Vec<(f64, f64)>], times: &[f64], with_2d: bool, extra: usize) -> Result<BlockOutcome> {
+    fn run_block(
+        &self,
+        bp: &BlockPopulation,
+        field: &FieldModel,
+        events: &[Event],
+        tables: &[Vec<(f64, f64)>],
+        times: &[f64],
+        with_2d: bool,
+        extra: usize,
+    ) -> Result<BlockOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
         let mut size = Block::size_to_reach(bp.m, bp.parity, j_thermal + 2 * extra as u32);
@@ -309,7 +327,16 @@ impl Solver {
 
     /// One attempt at a block with a fixed basis; None if the edge population exceeds the tolerance.
     #[allow(clippy::too_many_arguments)]
-    fn try_block(&self, ops: &BlockOps, bp: &BlockPopulation, field: &FieldModel, events: &[Event], tables: &[Vec<(f64, f64)>], times: &[f64], with_2d: bool) -> Result<Option<BlockOutcome>> {
+    fn try_block(
+        &self,
+        ops: &BlockOps,
+        bp: &BlockPopulation,
+        field: &FieldModel,
+        events: &[Event],
+        tables: &[Vec<(f64, f64)>],
+        times: &[f64],
+        with_2d: bool,
+    ) -> Result<Option<BlockOutcome>> {
         let block = ops.block;
         let g = block.m_degeneracy();
         let start: Vec<usize> = bp.levels.iter().map(|l| ((l.0 - block.j_min()) / 2) as usize).collect();
@@ -368,7 +395,8 @@ impl Solver {
         if ti < times.len() {
             gaps.push((ti, times.len(), state.t_ps, final_sums.clone()));
         }
-        let report = BlockReport { m: block.m, parity: if block.parity == 0 { "even" } else { "odd" }, j_max: block.j_max(), size: block.size, edge_population: edge };
+        let report =
+            BlockReport { m: block.m, parity: if block.parity == 0 { "even" } else { "odd" }, j_max: block.j_max(), size: block.size, edge_population: edge };
         Ok(Some(BlockOutcome { values, gaps, final_sums, report }))
     }
 }
@@ -400,7 +428,12 @@ impl Solver {
                     out = Some(first);
                 }
                 Some(acc) => {
-                    let pairs = [(&mut acc.trace.cos2, &r.trace.cos2), (&mut acc.trace.cos2_2d, &r.trace.cos2_2d), (&mut acc.trace.cos, &r.trace.cos), (&mut acc.trace.cos3, &r.trace.cos3)];
+                    let pairs = [
+                        (&mut acc.trace.cos2, &r.trace.cos2),
+                        (&mut acc.trace.cos2_2d, &r.trace.cos2_2d),
+                        (&mut acc.trace.cos, &r.trace.cos),
+                        (&mut acc.trace.cos3, &r.trace.cos3),
+                    ];
                     for (a, b) in pairs {
                         a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
                     }
@@ -454,7 +487,7 @@ impl Solver {
     /// The schedule with both parities: kicks or finite intervals for every time-dependent element
     /// (laser, two-colour, terahertz), plus static-field switches; and the laser events for reports.
     fn polar_schedule(&self, field: &FieldModel) -> (Vec<PolarItem>, Vec<Event>) {
-        use crate::units::{dipole_rate_rad_per_ps, peak_field_v_per_m, BETA_AU, EPSILON_0, HBAR};
+        use crate::units::{BETA_AU, EPSILON_0, HBAR, dipole_rate_rad_per_ps, peak_field_v_per_m};
         let mol = &self.molecule;
         let da = mol.delta_alpha_a3();
         let j_ref = self.reference_j(field).min(mol.max_physical_j()).max(2);
@@ -463,7 +496,8 @@ impl Solver {
         let mut items = vec![];
         let mut laser_events = vec![];
         for (lo, hi, shortest) in field.all_intervals() {
-            let lasers: Vec<usize> = (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
+            let lasers: Vec<usize> =
+                (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
             // A terahertz pulse acts through its field shape (a single cycle has no net area), so it is
             // never replaced by a kick unless the user forces kicks for everything.
             let has_thz = field.terahertz.iter().any(|t| overlaps(t.support_ps(), lo, hi));
@@ -476,7 +510,8 @@ impl Solver {
                 }
                 for tc in field.two_colour.iter().filter(|t| overlaps(t.envelope_pulse().support_ps(), lo, hi)) {
                     let env = tc.envelope_pulse();
-                    let theta2 = coupling_rad_per_ps_per_a3_wcm2() * da * (tc.fundamental_intensity_wcm2 + tc.second_harmonic_intensity_wcm2) * env.envelope_area_ps();
+                    let theta2 =
+                        coupling_rad_per_ps_per_a3_wcm2() * da * (tc.fundamental_intensity_wcm2 + tc.second_harmonic_intensity_wcm2) * env.envelope_area_ps();
                     let e1 = peak_field_v_per_m(tc.fundamental_intensity_wcm2);
                     let e2 = peak_field_v_per_m(tc.second_harmonic_intensity_wcm2);
                     let g = 0.125 * e1 * e1 * e2 * tc.phase_rad.cos() * BETA_AU / HBAR * 1e-12 * tc.three_halves_area_ps();
@@ -551,14 +586,25 @@ impl Solver {
 
     /// One |M| block with both parities: returns per-observable contributions, time averages after the
     /// last item, and the report. Grows the basis until the edge population is below tolerance.
-    fn run_polar_block(&self, bp: &BlockPopulation, field: &FieldModel, items: &[PolarItem], times: &[f64], t_first: f64, extra: usize) -> Result<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> {
+    fn run_polar_block(
+        &self,
+        bp: &BlockPopulation,
+        field: &FieldModel,
+        items: &[PolarItem],
+        times: &[f64],
+        t_first: f64,
+        extra: usize,
+    ) -> Result<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
         let mut size = Block::size_to_reach(bp.m, BOTH_PARITIES, j_thermal + extra as u32);
         loop {
             let block = Block { m: bp.m, parity: BOTH_PARITIES, size };
             if block.j_max() > j_limit {
-                return Err(Error::Numerical(format!("block |M| = {}: the basis would need J > {j_limit}; lower the field strengths or the temperature", bp.m)));
+                return Err(Error::Numerical(format!(
+                    "block |M| = {}: the basis would need J > {j_limit}; lower the field strengths or the temperature",
+                    bp.m
+                )));
             }
             let ops = PolarOps::new(bp.m, size, &self.molecule);
             if let Some(out) = self.try_polar_block(&ops, bp, field, items, times, t_first)? {
@@ -569,7 +615,15 @@ impl Solver {
     }
 
     #[allow(clippy::type_complexity)]
-    fn try_polar_block(&self, ops: &PolarOps, bp: &BlockPopulation, field: &FieldModel, items: &[PolarItem], times: &[f64], t_first: f64) -> Result<Option<(Vec<Vec<f64>>, Vec<f64>, BlockReport)>> {
+    fn try_polar_block(
+        &self,
+        ops: &PolarOps,
+        bp: &BlockPopulation,
+        field: &FieldModel,
+        items: &[PolarItem],
+        times: &[f64],
+        t_first: f64,
+    ) -> Result<Option<(Vec<Vec<f64>>, Vec<f64>, BlockReport)>> {
         let block = ops.block;
         let g = block.m_degeneracy();
         let pops: Vec<f64> = bp.levels.iter().map(|l| l.1).collect();

@@ -2,7 +2,7 @@
 //! a single "error: ..." line naming the offending field, nothing written, no panic), and the basic
 //! commands must work and write well-formed output.
 
-use serde_json::{json, Value};
+use serde_json::{Value, json};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -78,12 +78,7 @@ fn run_with_limit(args: &[&str], limit: Duration) -> Run {
         std::thread::sleep(Duration::from_millis(10));
     };
     let elapsed = start.elapsed();
-    Run {
-        code: status.code(),
-        stdout: std::fs::read_to_string(&so).unwrap_or_default(),
-        stderr: std::fs::read_to_string(&se).unwrap_or_default(),
-        elapsed,
-    }
+    Run { code: status.code(), stdout: std::fs::read_to_string(&so).unwrap_or_default(), stderr: std::fs::read_to_string(&se).unwrap_or_default(), elapsed }
 }
 
 fn run(args: &[&str]) -> Run {

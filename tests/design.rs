@@ -1,7 +1,7 @@
 //! Checks of the designer: constraints hold for every design, the search is reproducible, it beats
 //! the single pulse and a brute-force grid, and its designs replay exactly through `simulate`.
 
-use kicktrain::design::search::{design, evaluate, evaluate_kick_many, Silent};
+use kicktrain::design::search::{Silent, design, evaluate, evaluate_kick_many};
 use kicktrain::design::{Bounds, DesignSpace, Objective, PulseBounds};
 use kicktrain::field::PulseShape;
 use kicktrain::simulate::simulate;
@@ -41,7 +41,17 @@ fn constraints_hold_for_every_point_of_random_spaces() {
             })
             .collect();
         let budget = if rng.random_bool(0.5) { Some(rng.random_range(0.1..50.0)) } else { None };
-        let space = DesignSpace { shape: PulseShape::Gaussian, rise_fs: None, pulses, max_peak_intensity_wcm2: ceiling, max_total_fluence_jcm2: budget, min_separation_ps: min_sep, static_field_kv_cm: None, two_colour: None, terahertz: None };
+        let space = DesignSpace {
+            shape: PulseShape::Gaussian,
+            rise_fs: None,
+            pulses,
+            max_peak_intensity_wcm2: ceiling,
+            max_total_fluence_jcm2: budget,
+            min_separation_ps: min_sep,
+            static_field_kv_cm: None,
+            two_colour: None,
+            terahertz: None,
+        };
         space.validate("").unwrap();
         for _ in 0..20 {
             let u: Vec<f64> = (0..space.dims()).map(|_| rng.random_range(0.0..=1.0)).collect();
@@ -136,7 +146,9 @@ fn same_seed_same_design_and_seeds_agree_within_spread() {
 
 #[test]
 fn infeasible_bounds_are_reported_before_any_search() {
-    let bad = TWO_PULSE.replace(r#""delay_ps": {"min": 0.5, "max": 40.0}"#, r#""delay_ps": {"min": 0.5, "max": 1.0}"#).replace(r#""max_peak_intensity_wcm2": 2e13,"#, r#""max_peak_intensity_wcm2": 2e13, "min_separation_ps": 2.0,"#);
+    let bad = TWO_PULSE
+        .replace(r#""delay_ps": {"min": 0.5, "max": 40.0}"#, r#""delay_ps": {"min": 0.5, "max": 1.0}"#)
+        .replace(r#""max_peak_intensity_wcm2": 2e13,"#, r#""max_peak_intensity_wcm2": 2e13, "min_separation_ps": 2.0,"#);
     let err = Objective::from_json_str(&bad, "x").unwrap_err().to_string();
     assert!(err.contains("no feasible delay"), "{err}");
 }

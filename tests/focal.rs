@@ -4,7 +4,7 @@ use kicktrain::field::{FieldModel, Pulse};
 use kicktrain::molecule::Molecule;
 use kicktrain::optics::focal::FocalAverage;
 use kicktrain::scenario::{Scenario, SolverSettings};
-use kicktrain::simulate::{simulate, Solver};
+use kicktrain::simulate::{Solver, simulate};
 
 fn grid(start: f64, stop: f64, step: f64) -> Vec<f64> {
     let n = ((stop - start) / step).round() as usize;

@@ -8,7 +8,7 @@ use common::ground_state_kick;
 use kicktrain::basis::Block;
 use kicktrain::field::{FieldModel, Pulse, PulseShape};
 use kicktrain::molecule::Molecule;
-use kicktrain::propagate::{propagate_finite, propagate_rk4_reference, BlockOps, BlockState};
+use kicktrain::propagate::{BlockOps, BlockState, propagate_finite, propagate_rk4_reference};
 use kicktrain::scenario::{Method, SolverSettings};
 use kicktrain::simulate::Solver;
 use kicktrain::units::revival_period_ps;
@@ -159,7 +159,8 @@ fn short_pulse_agrees_with_kick() {
     let d = max_diff(&finite.cos2, &kick.cos2);
     assert!(d < 1e-3, "5 fs pulse vs kick: {d}");
     // ... and a 200 fs pulse of the same strength clearly does not (the test can tell them apart).
-    let long = FieldModel { pulses: vec![Pulse { fwhm_fs: 200.0, peak_intensity_wcm2: 1e13, ..field.pulses[0].clone() }], static_field: None, ..Default::default() };
+    let long =
+        FieldModel { pulses: vec![Pulse { fwhm_fs: 200.0, peak_intensity_wcm2: 1e13, ..field.pulses[0].clone() }], static_field: None, ..Default::default() };
     let f2 = Solver::new(&mol, 30.0, settings(Method::Finite)).unwrap().run(&long, &times, true).unwrap().trace;
     let k2 = Solver::new(&mol, 30.0, settings(Method::Kick)).unwrap().run(&long, &times, true).unwrap().trace;
     assert!(max_diff(&f2.cos2, &k2.cos2) > 1e-2);
@@ -215,7 +216,12 @@ fn pulse_shapes_of_equal_area_give_nearly_equal_kicks() {
         .map(|&shape| {
             let mut p = Pulse { center_ps: 0.0, fwhm_fs: 8.0, peak_intensity_wcm2: 1e14, shape, rise_fs: Some(2.0) };
             p.peak_intensity_wcm2 *= Pulse::gaussian(0.0, 8.0, 1.0).envelope_area_ps() / p.envelope_area_ps();
-            Solver::new(&mol, 10.0, settings(Method::Finite)).unwrap().run(&FieldModel { pulses: vec![p], static_field: None, ..Default::default() }, &times, false).unwrap().trace.cos2
+            Solver::new(&mol, 10.0, settings(Method::Finite))
+                .unwrap()
+                .run(&FieldModel { pulses: vec![p], static_field: None, ..Default::default() }, &times, false)
+                .unwrap()
+                .trace
+                .cos2
         })
         .collect();
     assert!(max_diff(&traces[0], &traces[1]) < 2e-3);

@@ -47,7 +47,11 @@ fn reversing_the_static_field_reverses_orientation_exactly() {
     let mol = lib("OCS");
     let times = grid(-1.0, 40.0, 0.5);
     let run = |kv: f64| {
-        let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 500.0, 3e12)], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }), ..Default::default() };
+        let field = FieldModel {
+            pulses: vec![Pulse::gaussian(0.0, 500.0, 3e12)],
+            static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }),
+            ..Default::default()
+        };
         Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&field, &times, false).unwrap().trace
     };
     let (up, down) = (run(50.0), run(-50.0));
@@ -131,7 +135,13 @@ fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state()
     let dressed = pendular(&mol, intensity, 0.0, 0.0, 2).unwrap();
     let ground = dressed.states.iter().find(|s| s.m == 0 && s.j == 0).unwrap();
     // T_rev = 8.3 ps; a 60 ps Gaussian pulse is slow.
-    let field = FieldModel::pulses(vec![Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Gaussian, rise_fs: None }]);
+    let field = FieldModel::pulses(vec![Pulse {
+        center_ps: 0.0,
+        fwhm_fs: 60_000.0,
+        peak_intensity_wcm2: intensity,
+        shape: kicktrain::field::PulseShape::Gaussian,
+        rise_fs: None,
+    }]);
     let settings = SolverSettings { method: Method::Finite, ..Default::default() };
     let r = Solver::new(&mol, 0.0, settings).unwrap().run(&field, &[0.0, 200.0, 201.0], false).unwrap();
     assert!((r.trace.cos2[0] - ground.cos2).abs() < 2e-3, "peak {} vs adiabatic {}", r.trace.cos2[0], ground.cos2);
@@ -177,7 +187,14 @@ fn two_colour_phase_shift_by_pi_reverses_orientation_and_short_pulse_matches_qua
     mol.beta_parallel_au = Some(20000.0);
     mol.beta_perpendicular_au = Some(4000.0);
     let run = |phase: f64, method: Method, times: &[f64]| {
-        let tc = TwoColourPulse { center_ps: 0.0, fwhm_fs: 60.0, fundamental_intensity_wcm2: 2e13, second_harmonic_intensity_wcm2: 8e12, phase_rad: phase, shape: PulseShape::Gaussian };
+        let tc = TwoColourPulse {
+            center_ps: 0.0,
+            fwhm_fs: 60.0,
+            fundamental_intensity_wcm2: 2e13,
+            second_harmonic_intensity_wcm2: 8e12,
+            phase_rad: phase,
+            shape: PulseShape::Gaussian,
+        };
         let field = FieldModel { two_colour: vec![tc], ..Default::default() };
         Solver::new(&mol, 0.0, SolverSettings { method, ..Default::default() }).unwrap().run(&field, times, false).unwrap().trace
     };
@@ -190,8 +207,15 @@ fn two_colour_phase_shift_by_pi_reverses_orientation_and_short_pulse_matches_qua
     }
     // The kick of the same pulse against the quadrature-built J = 0 kick with the same three angles.
     let kick = run(0.3, Method::Kick, &times);
-    let tc = TwoColourPulse { center_ps: 0.0, fwhm_fs: 60.0, fundamental_intensity_wcm2: 2e13, second_harmonic_intensity_wcm2: 8e12, phase_rad: 0.3, shape: PulseShape::Gaussian };
-    use kicktrain::units::{peak_field_v_per_m, BETA_AU, HBAR};
+    let tc = TwoColourPulse {
+        center_ps: 0.0,
+        fwhm_fs: 60.0,
+        fundamental_intensity_wcm2: 2e13,
+        second_harmonic_intensity_wcm2: 8e12,
+        phase_rad: 0.3,
+        shape: PulseShape::Gaussian,
+    };
+    use kicktrain::units::{BETA_AU, HBAR, peak_field_v_per_m};
     let p2 = kicktrain::units::coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * 2.8e13 * tc.envelope_pulse().envelope_area_ps();
     let g = 0.125 * peak_field_v_per_m(2e13).powi(2) * peak_field_v_per_m(8e12) * 0.3f64.cos() * BETA_AU / HBAR * 1e-12 * tc.three_halves_area_ps();
     let (t1, t3) = (g * 3.0 * 4000.0, g * (20000.0 - 12000.0));

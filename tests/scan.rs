@@ -1,6 +1,6 @@
 //! Scans agree with single simulations and refuse paths that do not exist.
 
-use kicktrain::scan::{scan, set_path, Axis};
+use kicktrain::scan::{Axis, scan, set_path};
 use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
 
@@ -12,7 +12,9 @@ const TWO: &str = r#"{"molecule": "N2", "temperature_k": 300,
 fn a_scan_over_one_value_equals_simulate_at_that_value() {
     let base: serde_json::Value = serde_json::from_str(TWO).unwrap();
     for (x, y) in [(4.1, 2e13), (8.3, 3.5e13)] {
-        let r = scan(&base, &Axis::linear("pulses[1].center_ps", x, x, 1).unwrap(), Some(&Axis::linear("pulses[1].peak_intensity_wcm2", y, y, 1).unwrap()), &|| {}).unwrap();
+        let r =
+            scan(&base, &Axis::linear("pulses[1].center_ps", x, x, 1).unwrap(), Some(&Axis::linear("pulses[1].peak_intensity_wcm2", y, y, 1).unwrap()), &|| {})
+                .unwrap();
         let mut v = base.clone();
         set_path(&mut v, "pulses[1].center_ps", x).unwrap();
         set_path(&mut v, "pulses[1].peak_intensity_wcm2", y).unwrap();

@@ -1,7 +1,7 @@
 //! Tolerance analysis: zero noise gives the nominal score exactly; noise is reproducible by seed.
 
 use kicktrain::scenario::Scenario;
-use kicktrain::tolerance::{tolerance, Noise};
+use kicktrain::tolerance::{Noise, tolerance};
 
 const DESIGN: &str = r#"{"molecule": "N2", "temperature_k": 300,
  "pulses": [{"center_ps": 0, "fwhm_fs": 50, "peak_intensity_wcm2": 4e13}, {"center_ps": 4.05, "fwhm_fs": 50, "peak_intensity_wcm2": 4e13}],
@@ -26,8 +26,15 @@ fn zero_noise_gives_the_nominal_score_exactly_and_noise_is_reproducible() {
 
 #[test]
 fn a_scenario_without_goal_is_refused() {
-    let s = Scenario::from_json_str(&DESIGN.replace(r#",
- "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.05, 9.0], "step_fs": 20}"#, ""), "x").unwrap();
+    let s = Scenario::from_json_str(
+        &DESIGN.replace(
+            r#",
+ "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.05, 9.0], "step_fs": 20}"#,
+            "",
+        ),
+        "x",
+    )
+    .unwrap();
     let err = tolerance(&s, Noise { jitter_fs: 1.0, energy_percent: 0.0, phase_rad: 0.0 }, 4, 1).unwrap_err().to_string();
     assert!(err.starts_with("goal:"), "{err}");
 }

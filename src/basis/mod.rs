@@ -147,8 +147,7 @@ pub fn cos2_diag(j: u32, m: u32) -> f64 {
 /// ⟨J+2 M|cos²θ|J M⟩ = sqrt{[(J+1)² − M²][(J+2)² − M²]} / [(2J + 3) sqrt{(2J + 1)(2J + 5)}].
 pub fn cos2_up2(j: u32, m: u32) -> f64 {
     let (j, m) = (j as f64, m as f64);
-    (((j + 1.0).powi(2) - m * m) * ((j + 2.0).powi(2) - m * m)).sqrt()
-        / ((2.0 * j + 3.0) * ((2.0 * j + 1.0) * (2.0 * j + 5.0)).sqrt())
+    (((j + 1.0).powi(2) - m * m) * ((j + 2.0).powi(2) - m * m)).sqrt() / ((2.0 * j + 3.0) * ((2.0 * j + 1.0) * (2.0 * j + 5.0)).sqrt())
 }
 
 /// ⟨J+1 M|cosθ|J M⟩ = sqrt{[(J+1)² − M²] / [(2J + 1)(2J + 3)]}.
@@ -246,9 +245,23 @@ mod tests {
         for i in 0..b.size {
             for k in 0..b.size {
                 let (j, jk) = (b.j(i), b.j(k));
-                let want1 = if jk == j + 1 { cos_up1(j, 2) } else if j == jk + 1 { cos_up1(jk, 2) } else { 0.0 };
+                let want1 = if jk == j + 1 {
+                    cos_up1(j, 2)
+                } else if j == jk + 1 {
+                    cos_up1(jk, 2)
+                } else {
+                    0.0
+                };
                 assert!((c1[(i, k)] - want1).abs() < 1e-13, "cos {j} {jk}");
-                let want2 = if j == jk { cos2_diag(j, 2) } else if jk == j + 2 { cos2_up2(j, 2) } else if j == jk + 2 { cos2_up2(jk, 2) } else { 0.0 };
+                let want2 = if j == jk {
+                    cos2_diag(j, 2)
+                } else if jk == j + 2 {
+                    cos2_up2(j, 2)
+                } else if j == jk + 2 {
+                    cos2_up2(jk, 2)
+                } else {
+                    0.0
+                };
                 assert!((c2[(i, k)] - want2).abs() < 1e-13, "cos2 {j} {jk}");
             }
         }

@@ -8,10 +8,10 @@ pub mod search;
 
 pub use crate::goal::{Goal, GoalKind, Observable, Score};
 
-use crate::error::{require_non_negative, require_positive, Error, Result};
-use crate::goal::parse_goal;
+use crate::error::{Error, Result, require_non_negative, require_positive};
 use crate::field::{FieldModel, Pulse, PulseShape};
-use crate::input::{as_f64, join, parse_json, type_name, Fields};
+use crate::goal::parse_goal;
+use crate::input::{Fields, as_f64, join, parse_json, type_name};
 use crate::molecule::Molecule;
 use crate::scenario::{MoleculeSource, Scenario, SolverSettings, Window};
 use serde_json::Value;
@@ -246,7 +246,12 @@ impl DesignSpace {
                 .collect();
         }
         if let Some(th) = &self.terahertz {
-            field.terahertz = vec![crate::field::TerahertzPulse { center_ps: t_last + thz_delay, duration_fs: th.duration_fs, peak_field_kv_cm: thz_field, waveform: th.waveform }];
+            field.terahertz = vec![crate::field::TerahertzPulse {
+                center_ps: t_last + thz_delay,
+                duration_fs: th.duration_fs,
+                peak_field_kv_cm: thz_field,
+                waveform: th.waveform,
+            }];
         }
         field
     }
@@ -268,7 +273,11 @@ impl DesignSpace {
             }
         }
         if let Some(b) = self.max_total_fluence_jcm2 {
-            let total: f64 = field.two_colour.iter().map(|t| (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2) * t.envelope_pulse().envelope_area_ps() * 1e-12).sum();
+            let total: f64 = field
+                .two_colour
+                .iter()
+                .map(|t| (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2) * t.envelope_pulse().envelope_area_ps() * 1e-12)
+                .sum();
             if total > b * (1.0 + tol) {
                 return Err(format!("total two-colour fluence {total} J/cm² exceeds the budget {b} J/cm²"));
             }
@@ -307,12 +316,18 @@ impl DesignSpace {
             if p.peak_intensity_wcm2.min < 0.0 || ib.max < ib.min {
                 return Err(Error::input(
                     format!("{pp}.peak_intensity_wcm2"),
-                    format!("no feasible intensity: bounds [{:e}, {:e}] W/cm² under the ceiling {:e} W/cm²", p.peak_intensity_wcm2.min, p.peak_intensity_wcm2.max, self.max_peak_intensity_wcm2),
+                    format!(
+                        "no feasible intensity: bounds [{:e}, {:e}] W/cm² under the ceiling {:e} W/cm²",
+                        p.peak_intensity_wcm2.min, p.peak_intensity_wcm2.max, self.max_peak_intensity_wcm2
+                    ),
                 ));
             }
             if k > 0 {
                 if p.delay_ps.max > 1e5 || p.delay_ps.min < 0.0 {
-                    return Err(Error::input(format!("{pp}.delay_ps"), format!("expected delays from 0 to 1e5 ps, got [{}, {}]", p.delay_ps.min, p.delay_ps.max)));
+                    return Err(Error::input(
+                        format!("{pp}.delay_ps"),
+                        format!("expected delays from 0 to 1e5 ps, got [{}, {}]", p.delay_ps.min, p.delay_ps.max),
+                    ));
                 }
                 let db = self.delay_bounds(k);
                 if db.max < db.min {
@@ -327,12 +342,21 @@ impl DesignSpace {
             require_positive(&join(path, "max_total_fluence_jcm2"), b, "J/cm²")?;
             let least: f64 = (0..self.pulses.len())
                 .map(|k| {
-                    let p = Pulse { center_ps: 0.0, fwhm_fs: self.pulses[k].fwhm_fs.min, peak_intensity_wcm2: self.intensity_bounds(k).min, shape: self.shape, rise_fs: self.rise_fs };
+                    let p = Pulse {
+                        center_ps: 0.0,
+                        fwhm_fs: self.pulses[k].fwhm_fs.min,
+                        peak_intensity_wcm2: self.intensity_bounds(k).min,
+                        shape: self.shape,
+                        rise_fs: self.rise_fs,
+                    };
                     fluence_jcm2(&p)
                 })
                 .sum();
             if least > b {
-                return Err(Error::input(join(path, "max_total_fluence_jcm2"), format!("no feasible design: the smallest allowed pulses already need {least:.3e} J/cm² > {b:.3e} J/cm²")));
+                return Err(Error::input(
+                    join(path, "max_total_fluence_jcm2"),
+                    format!("no feasible design: the smallest allowed pulses already need {least:.3e} J/cm² > {b:.3e} J/cm²"),
+                ));
             }
         }
         Ok(())
@@ -471,7 +495,9 @@ impl Objective {
                 };
                 let samples = g.opt_usize("samples", "Monte Carlo samples")?.unwrap_or(16);
                 g.finish()?;
-                for (name, x) in [("robust.jitter_fs", noise.jitter_fs), ("robust.energy_noise_percent", noise.energy_percent), ("robust.phase_noise_rad", noise.phase_rad)] {
+                for (name, x) in
+                    [("robust.jitter_fs", noise.jitter_fs), ("robust.energy_noise_percent", noise.energy_percent), ("robust.phase_noise_rad", noise.phase_rad)]
+                {
                     if x < 0.0 {
                         return Err(Error::input(name, format!("expected an rms value ≥ 0, got {x}")));
                     }
@@ -494,12 +520,18 @@ impl Objective {
         // The strongest design must fit the largest basis the solver allows.
         let da = obj.molecule().delta_alpha_a3();
         let strongest: f64 = longest.pulses.iter().map(|p| p.kick_strength(da).abs()).sum::<f64>()
-            + longest.two_colour.iter().map(|t| t.envelope_pulse().kick_strength(da) * (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2)).sum::<f64>();
+            + longest
+                .two_colour
+                .iter()
+                .map(|t| t.envelope_pulse().kick_strength(da) * (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2))
+                .sum::<f64>();
         let room = obj.molecule().max_physical_j() as f64 * 0.6;
         if strongest > room {
             return Err(Error::input(
                 "max_peak_intensity_wcm2",
-                format!("the strongest allowed train has total kick strength {strongest:.3e}, more than the largest basis can hold (about {room:.0}); expected a lower ceiling"),
+                format!(
+                    "the strongest allowed train has total kick strength {strongest:.3e}, more than the largest basis can hold (about {room:.0}); expected a lower ceiling"
+                ),
             ));
         }
         obj.scenario_for(&longest).validate().map_err(|e| match e {
@@ -515,7 +547,12 @@ impl Objective {
         let t_last = field.last_center_ps();
         let widest = field.pulses.iter().map(|p| p.fwhm_ps()).chain(field.two_colour.iter().map(|t| t.fwhm_fs / 1000.0)).fold(0.0, f64::max);
         let start = -(2.0 * widest).max(0.2);
-        let stop = t_last + self.goal.window_ps.1.max(match self.goal.kind { GoalKind::ValueAt(t) => t, _ => 0.0 }) + 0.1 * self.goal.window_ps.1.abs().max(0.5);
+        let stop = t_last
+            + self.goal.window_ps.1.max(match self.goal.kind {
+                GoalKind::ValueAt(t) => t,
+                _ => 0.0,
+            })
+            + 0.1 * self.goal.window_ps.1.abs().max(0.5);
         let mut s = self.base.clone();
         // The design is reported with the full solver, never the kick model.
         if s.solver.method == crate::scenario::Method::Kick {
@@ -551,9 +588,9 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
     if !(limit > 0.0 && limit < 1.0) {
         return Err(Error::input("max_ionized_fraction", format!("expected a fraction between 0 and 1, got {limit}")));
     }
-    let ip = mol.ionization_energy_ev.ok_or_else(|| {
-        Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name))
-    })?;
+    let ip = mol
+        .ionization_energy_ev
+        .ok_or_else(|| Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name)))?;
     let mut largest_cap: f64 = 0.0;
     for (k, pb) in space.pulses.iter_mut().enumerate() {
         let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs };
@@ -570,7 +607,10 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
         if cap < pb.peak_intensity_wcm2.min {
             return Err(Error::input(
                 format!("pulses.each[{k}].peak_intensity_wcm2"),
-                format!("no feasible intensity: the minimum {:e} W/cm² already ionizes more than {limit} (limit ≈ {cap:.3e} W/cm²)", pb.peak_intensity_wcm2.min),
+                format!(
+                    "no feasible intensity: the minimum {:e} W/cm² already ionizes more than {limit} (limit ≈ {cap:.3e} W/cm²)",
+                    pb.peak_intensity_wcm2.min
+                ),
             ));
         }
         pb.peak_intensity_wcm2.max = pb.peak_intensity_wcm2.max.min(cap);
@@ -647,7 +687,8 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         }
     };
     if let Some(each) = f.opt_value("each") {
-        let items = each.as_array().ok_or_else(|| Error::input(join(path, "each"), format!("expected an array of per-pulse bounds, got {}", type_name(each))))?;
+        let items =
+            each.as_array().ok_or_else(|| Error::input(join(path, "each"), format!("expected an array of per-pulse bounds, got {}", type_name(each))))?;
         if items.len() > n {
             return Err(Error::input(join(path, "each"), format!("expected at most {n} entries (one per pulse), got {}", items.len())));
         }
@@ -670,7 +711,17 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         }
     }
     f.finish()?;
-    let space = DesignSpace { shape, rise_fs, pulses, max_peak_intensity_wcm2: ceiling, max_total_fluence_jcm2: budget, min_separation_ps: min_sep, static_field_kv_cm: None, two_colour, terahertz: None };
+    let space = DesignSpace {
+        shape,
+        rise_fs,
+        pulses,
+        max_peak_intensity_wcm2: ceiling,
+        max_total_fluence_jcm2: budget,
+        min_separation_ps: min_sep,
+        static_field_kv_cm: None,
+        two_colour,
+        terahertz: None,
+    };
     // Check each pulse shape once through the pulse validator (rise vs FWHM and so on).
     for (k, p) in space.pulses.iter().enumerate() {
         for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
@@ -693,7 +744,13 @@ fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {
         refine_iterations: f.opt_usize("refine_iterations", "iterations")?.unwrap_or(d.refine_iterations),
     };
     f.finish()?;
-    for (name, val, lo, hi) in [("swarm_size", s.swarm_size, 2, 10_000), ("iterations", s.iterations, 1, 100_000), ("starts", s.starts, 1, 100), ("refine_candidates", s.refine_candidates, 1, 100), ("refine_iterations", s.refine_iterations, 0, 100_000)] {
+    for (name, val, lo, hi) in [
+        ("swarm_size", s.swarm_size, 2, 10_000),
+        ("iterations", s.iterations, 1, 100_000),
+        ("starts", s.starts, 1, 100),
+        ("refine_candidates", s.refine_candidates, 1, 100),
+        ("refine_iterations", s.refine_iterations, 0, 100_000),
+    ] {
         if val < lo || val > hi {
             return Err(Error::input(join(path, name), format!("expected a whole number from {lo} to {hi}, got {val}")));
         }

@@ -2,17 +2,17 @@
 //! the full time-dependent solver from the best kick-model candidates. Every random choice comes from
 //! the objective's seed; swarm evaluations run in parallel.
 
-use super::{DesignSpace, Objective, PulseBounds, Bounds, Score};
+use super::{Bounds, DesignSpace, Objective, PulseBounds, Score};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::scenario::{Method, SolverSettings};
 use crate::simulate::Solver;
-use argmin::core::{CostFunction, Executor, Problem, State, TerminationReason, TerminationStatus, KV};
+use argmin::core::{CostFunction, Executor, KV, Problem, State, TerminationReason, TerminationStatus};
 use argmin::solver::neldermead::NelderMead;
 use argmin::solver::particleswarm::ParticleSwarm;
 use rand::SeedableRng;
-use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Mutex;
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::time::Instant;
 
 /// Receives progress from a running search and can ask it to stop.
@@ -150,7 +150,8 @@ impl<'a> Evaluator<'a> {
         let s = match (&self.obj.robust, full) {
             // Robust design: the mean over fixed error samples (common random numbers), probe at nominal times.
             (Some((noise, n)), true) => {
-                let values: Vec<f64> = (0..*n).map(|i| one(&crate::tolerance::perturb(field, *noise, self.obj.search.seed, i)).map(|s| s.value)).collect::<Result<_>>()?;
+                let values: Vec<f64> =
+                    (0..*n).map(|i| one(&crate::tolerance::perturb(field, *noise, self.obj.search.seed, i)).map(|s| s.value)).collect::<Result<_>>()?;
                 Score { value: values.iter().sum::<f64>() / *n as f64, t_ps: one(field)?.t_ps }
             }
             _ => one(field)?,
@@ -255,10 +256,8 @@ fn swarm(ev: &Evaluator, space: &DesignSpace, seed: u64, size: usize, iterations
     let d = space.dims();
     let pso = ParticleSwarm::new((vec![0.0; d], vec![1.0; d]), size).with_rng_generator(rand::rngs::StdRng::seed_from_u64(seed));
     let cost = Cost { ev, space, full: false, periodic: false };
-    let res = Executor::new(cost, Interruptible { inner: pso, monitor: ev.monitor })
-        .configure(|s| s.max_iters(iterations as u64))
-        .run()
-        .map_err(argmin_error)?;
+    let res =
+        Executor::new(cost, Interruptible { inner: pso, monitor: ev.monitor }).configure(|s| s.max_iters(iterations as u64)).run().map_err(argmin_error)?;
     let st = res.state();
     let best = st.get_best_param().map(|p| p.position.clone()).unwrap_or_else(|| vec![0.5; d]);
     Ok((best.iter().map(|x| x.clamp(0.0, 1.0)).collect(), st.get_best_cost()))
@@ -279,10 +278,8 @@ fn simplex(ev: &Evaluator, space: &DesignSpace, start: &[f64], full: bool, itera
         points.push(y);
     }
     let nm = NelderMead::new(points).with_sd_tolerance(1e-9).map_err(argmin_error)?;
-    let res = Executor::new(cost, Interruptible { inner: nm, monitor: ev.monitor })
-        .configure(|s| s.max_iters(iterations as u64))
-        .run()
-        .map_err(argmin_error)?;
+    let res =
+        Executor::new(cost, Interruptible { inner: nm, monitor: ev.monitor }).configure(|s| s.max_iters(iterations as u64)).run().map_err(argmin_error)?;
     let st = res.state();
     let y = st.get_best_param().cloned().unwrap_or(y0);
     Ok((y.iter().map(|v| 0.5 * (1.0 + v.sin())).collect(), st.get_best_cost()))
@@ -367,7 +364,14 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let mut interrupted = false;
     for &c in &counts {
         let space = obj.space.truncated(c);
-        match search_space(&ev, &space, &if c == 1 { "1 pulse".to_string() } else { format!("{c} pulses") }, obj.search.seed.wrapping_add(c as u64 * 7919), obj, false) {
+        match search_space(
+            &ev,
+            &space,
+            &if c == 1 { "1 pulse".to_string() } else { format!("{c} pulses") },
+            obj.search.seed.wrapping_add(c as u64 * 7919),
+            obj,
+            false,
+        ) {
             Ok(cand) => per_count.push(cand),
             Err(Error::Interrupted) => {
                 interrupted = true;
@@ -394,7 +398,11 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let best = per_count.iter().find(|c| sense * c.full.value >= top - COUNT_GAIN_THRESHOLD).cloned().expect("a candidate");
     // Baseline: one pulse, intensity up to the ceiling, the first pulse's duration bounds.
     let base_space = DesignSpace {
-        pulses: vec![PulseBounds { delay_ps: Bounds::fixed(0.0), peak_intensity_wcm2: Bounds { min: 0.0, max: obj.space.max_peak_intensity_wcm2 }, fwhm_fs: obj.space.pulses[0].fwhm_fs }],
+        pulses: vec![PulseBounds {
+            delay_ps: Bounds::fixed(0.0),
+            peak_intensity_wcm2: Bounds { min: 0.0, max: obj.space.max_peak_intensity_wcm2 },
+            fwhm_fs: obj.space.pulses[0].fwhm_fs,
+        }],
         ..obj.space.clone()
     };
     let baseline = if interrupted || monitor.interrupted() {

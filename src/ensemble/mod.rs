@@ -67,7 +67,9 @@ impl ThermalEnsemble {
                 if j > j_limit {
                     return Err(Error::input(
                         "temperature_k",
-                        format!("{temperature_k} K populates levels beyond J = {j_limit}, where the centrifugal-distortion energy formula no longer holds; expected a lower temperature"),
+                        format!(
+                            "{temperature_k} K populates levels beyond J = {j_limit}, where the centrifugal-distortion energy formula no longer holds; expected a lower temperature"
+                        ),
                     ));
                 }
             }

@@ -2,8 +2,8 @@
 //! (polarization along the lab Z axis), described by their cycle-averaged intensity envelopes.
 
 use crate::basis::legendre::simpson;
-use crate::error::{require_finite, require_positive, Error, Result};
-use crate::units::{coupling_rad_per_ps_per_a3_wcm2, FS_PER_PS};
+use crate::error::{Error, Result, require_finite, require_positive};
+use crate::units::{FS_PER_PS, coupling_rad_per_ps_per_a3_wcm2};
 use serde::{Deserialize, Serialize};
 
 /// Temporal shape of a pulse's intensity envelope.
@@ -86,7 +86,10 @@ impl Pulse {
             return Err(Error::input(format!("{path}.peak_intensity_wcm2"), format!("expected a finite intensity ≥ 0 (W/cm²), got {i}")));
         }
         if i > 1e17 {
-            return Err(Error::input(format!("{path}.peak_intensity_wcm2"), format!("expected at most 1e17 W/cm² (far beyond any non-resonant alignment regime), got {i:e}")));
+            return Err(Error::input(
+                format!("{path}.peak_intensity_wcm2"),
+                format!("expected at most 1e17 W/cm² (far beyond any non-resonant alignment regime), got {i:e}"),
+            ));
         }
         if let Some(r) = self.rise_fs {
             require_positive(&format!("{path}.rise_fs"), r, "fs")?;
@@ -220,9 +223,10 @@ impl StaticField {
         if let Some(t) = self.off_ps {
             require_finite(&format!("{path}.off_ps"), t, "ps")?;
             if let Some(on) = self.on_ps
-                && t <= on {
-                    return Err(Error::input(format!("{path}.off_ps"), format!("expected a time after on_ps = {on} ps, got {t} ps")));
-                }
+                && t <= on
+            {
+                return Err(Error::input(format!("{path}.off_ps"), format!("expected a time after on_ps = {on} ps, got {t} ps")));
+            }
         }
         Ok(())
     }
@@ -420,7 +424,7 @@ impl FieldModel {
     /// cycle-averaged laser and two-colour terms on the polarizability and hyperpolarizability, and the
     /// non-averaged −½Δα E² term of terahertz fields.
     pub fn rates(&self, t_ps: f64, mol: &crate::molecule::Molecule) -> Rates {
-        use crate::units::{dipole_rate_rad_per_ps, peak_field_v_per_m, BETA_AU, EPSILON_0, HBAR};
+        use crate::units::{BETA_AU, EPSILON_0, HBAR, dipole_rate_rad_per_ps, peak_field_v_per_m};
         let da = mol.delta_alpha_a3();
         let mut r = Rates { u2: self.alignment_rate(t_ps, da), ..Default::default() };
         if let Some(sf) = &self.static_field {
@@ -558,7 +562,11 @@ mod tests {
             assert!((q / p.envelope_area_ps() - 1.0).abs() < 1e-9, "{shape:?} {q}");
             // Gaussian ∫I dt = 1.0645 I0 τ (shared physics notes §4); sech²: 1.1346 I0 τ (2/1.7627).
             let ratio = p.envelope_area_ps() / p.fwhm_ps();
-            let want = match shape { PulseShape::Gaussian => 1.0645, PulseShape::Sech2 => 1.1346, PulseShape::FlatTop => 1.0 };
+            let want = match shape {
+                PulseShape::Gaussian => 1.0645,
+                PulseShape::Sech2 => 1.1346,
+                PulseShape::FlatTop => 1.0,
+            };
             assert!((ratio - want).abs() < 1e-4, "{shape:?} {ratio}");
             // RMS duration against brute-force quadrature of t² I(t).
             let (a, b) = (p.center_ps - 20.0 * p.fwhm_ps(), p.center_ps + 20.0 * p.fwhm_ps());
@@ -591,7 +599,11 @@ mod tests {
 
     #[test]
     fn intervals_merge_overlaps() {
-        let f = FieldModel { pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)], static_field: None, ..Default::default() };
+        let f = FieldModel {
+            pulses: vec![Pulse::gaussian(5.0, 100.0, 1e13), Pulse::gaussian(0.0, 100.0, 1e13), Pulse::gaussian(0.2, 100.0, 1e13)],
+            static_field: None,
+            ..Default::default()
+        };
         let iv = f.active_intervals();
         assert_eq!(iv.len(), 2);
         assert_eq!(iv[0].pulses, vec![1, 2]);

@@ -87,10 +87,7 @@ static LIBRARY: &[LibraryEntry] = &[
             1.98958,
             "from memory: B0 = Be − αe/2 with Be = 1.99824, αe = 0.017318 cm⁻¹ (Huber & Herzberg 1979, Constants of Diatomic Molecules, 14N2 X state)",
         ),
-        d_cm: s(
-            5.76e-6,
-            "from memory: De of 14N2 X state (Huber & Herzberg 1979); D0 differs by < 1 %",
-        ),
+        d_cm: s(5.76e-6, "from memory: De of 14N2 X state (Huber & Herzberg 1979); D0 differs by < 1 %"),
         alpha_parallel_a3: s(
             2.2070,
             "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.7403 Å³ (CRC Handbook 100th ed., Polarizabilities of atoms and molecules, as tabulated on launchloop.com/Polarizability) and Δα = 0.70 Å³ (Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334, 632.8 nm); the older α∥ = 2.38 / α⊥ = 1.45 (Hirschfelder, Curtiss & Bird 1954) give Δα = 0.93",
@@ -141,10 +138,7 @@ static LIBRARY: &[LibraryEntry] = &[
             1.92253,
             "from memory: (αe recalled, Be retrieved) B0 = Be − αe/2 with Be = 1.93128 cm⁻¹ (Huber & Herzberg 1979, as listed by NIST CCCBDB, Experimental data for CO) and αe = 0.017504 cm⁻¹ (Huber & Herzberg 1979); agrees with microwave B0 = 57 635.97 MHz",
         ),
-        d_cm: s(
-            6.1215e-6,
-            "from memory: De of 12C16O X state (Huber & Herzberg 1979)",
-        ),
+        d_cm: s(6.1215e-6, "from memory: De of 12C16O X state (Huber & Herzberg 1979)"),
         alpha_parallel_a3: s(
             2.3033,
             "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.95 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 0.53 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
@@ -168,14 +162,8 @@ static LIBRARY: &[LibraryEntry] = &[
         name: "CO2",
         aliases: &["carbon dioxide", "12C16O2"],
         description: "12C16O2, X ¹Σg⁺, (000) ground vibrational state",
-        b_cm: s(
-            0.39021,
-            "B0 of 12C16O2 (Herzberg 1966, Electronic Spectra of Polyatomic Molecules; as listed by NIST CCCBDB, Experimental data for CO2)",
-        ),
-        d_cm: s(
-            1.333e-7,
-            "from memory: D0 of 12C16O2 ground state (high-resolution IR fits, e.g. the HITRAN ground-state constants)",
-        ),
+        b_cm: s(0.39021, "B0 of 12C16O2 (Herzberg 1966, Electronic Spectra of Polyatomic Molecules; as listed by NIST CCCBDB, Experimental data for CO2)"),
+        d_cm: s(1.333e-7, "from memory: D0 of 12C16O2 ground state (high-resolution IR fits, e.g. the HITRAN ground-state constants)"),
         alpha_parallel_a3: s(
             4.0376,
             "ᾱ + 2Δα/3 from the experimental ᾱ = 17.762 a.u. and κ = Δα/(3ᾱ) = 0.267 quoted in J. Phys. Chem. A 104, 11355 (2000) (polarizabilities of CO2 and carbodiimide): α∥ = 27.247 a.u., converted with 1 a.u. = 0.1481847 Å³; Δα = 14.23 a.u. agrees with Maroulis & Thakkar 1990 (J. Chem. Phys. 93, 4164) and Rayleigh depolarization",
@@ -199,10 +187,7 @@ static LIBRARY: &[LibraryEntry] = &[
             0.419011,
             "B0 = 12 561.6348 MHz of 14N14N16O (NIST Triatomic Spectral Database, Lovas 1978, J. Phys. Chem. Ref. Data 7, 1445, N2O table), converted with 1 cm⁻¹ = 29 979.2458 MHz",
         ),
-        d_cm: s(
-            1.7615e-7,
-            "D0 = 5.2808 kHz of 14N14N16O (NIST Triatomic Spectral Database, Lovas 1978, N2O table), converted to cm⁻¹",
-        ),
+        d_cm: s(1.7615e-7, "D0 = 5.2808 kHz of 14N14N16O (NIST Triatomic Spectral Database, Lovas 1978, N2O table), converted to cm⁻¹"),
         alpha_parallel_a3: s(
             4.8967,
             "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 3.03 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 2.8 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
@@ -226,10 +211,7 @@ static LIBRARY: &[LibraryEntry] = &[
         name: "OCS",
         aliases: &["carbonyl sulfide", "carbonyl sulphide", "cos", "16O12C32S"],
         description: "16O12C32S, X ¹Σ⁺, (000) ground vibrational state",
-        b_cm: s(
-            0.20286,
-            "B0 of 16O12C32S (Herzberg 1966, Electronic Spectra of Polyatomic Molecules; as listed by NIST CCCBDB, Experimental data for OCS)",
-        ),
+        b_cm: s(0.20286, "B0 of 16O12C32S (Herzberg 1966, Electronic Spectra of Polyatomic Molecules; as listed by NIST CCCBDB, Experimental data for OCS)"),
         d_cm: s(
             4.342e-8,
             "from memory: D0 = 1.3017 kHz of 16O12C32S (microwave value, believed as in the NIST Triatomic Spectral Database, Lovas 1978), converted to cm⁻¹",
@@ -261,10 +243,7 @@ static LIBRARY: &[LibraryEntry] = &[
             10.4398,
             "B0 = Be − αe/2 with Be = 10.5933 cm⁻¹ and αe = 0.3069985 cm⁻¹ (NIST CCCBDB 'Detailed diatomic data' for HCl, ref. Irikura 2007, J. Phys. Chem. Ref. Data 36, 389); γe neglected (≈ 0.005 % effect); Huber & Herzberg 1979 Be = 10.59342",
         ),
-        d_cm: s(
-            5.3194e-4,
-            "from memory: De of H35Cl X state (Huber & Herzberg 1979); D0 ≈ 5.28e-4 cm⁻¹",
-        ),
+        d_cm: s(5.3194e-4, "from memory: De of H35Cl X state (Huber & Herzberg 1979); D0 ≈ 5.28e-4 cm⁻¹"),
         alpha_parallel_a3: s(
             2.83,
             "from memory: ᾱ + 2Δα/3 with ᾱ ≈ 2.63 Å³ (believed: CRC Handbook table of molecular polarizabilities) and Δα ≈ 0.30 Å³ (believed: Bridge & Buckingham 1966 / Bogaard et al. 1978 depolarization measurements)",
@@ -291,22 +270,13 @@ static LIBRARY: &[LibraryEntry] = &[
         name: "C2H2",
         aliases: &["acetylene", "ethyne", "HCCH", "12C2H2"],
         description: "12C2H2 (H–C≡C–H), X ¹Σg⁺, ground vibrational state",
-        b_cm: s(
-            1.17660,
-            "B0 of 12C2H2 (Herzberg 1966, Electronic Spectra of Polyatomic Molecules; as listed by NIST CCCBDB, Experimental data for acetylene)",
-        ),
-        d_cm: s(
-            1.627e-6,
-            "from memory: D0 of 12C2H2 ground state (high-resolution IR analyses)",
-        ),
+        b_cm: s(1.17660, "B0 of 12C2H2 (Herzberg 1966, Electronic Spectra of Polyatomic Molecules; as listed by NIST CCCBDB, Experimental data for acetylene)"),
+        d_cm: s(1.627e-6, "from memory: D0 of 12C2H2 ground state (high-resolution IR analyses)"),
         alpha_parallel_a3: s(
             4.57,
             "from memory: ᾱ + 2Δα/3 with ᾱ ≈ 3.33 Å³ (believed: CRC Handbook table of molecular polarizabilities) and Δα ≈ 1.86 Å³ (believed: Bogaard, Buckingham, Pierens & White 1978, Rayleigh depolarization)",
         ),
-        alpha_perpendicular_a3: s(
-            2.71,
-            "from memory: ᾱ − Δα/3 with ᾱ ≈ 3.33 Å³ (believed: CRC Handbook) and Δα ≈ 1.86 Å³ (believed: Bogaard et al. 1978)",
-        ),
+        alpha_perpendicular_a3: s(2.71, "from memory: ᾱ − Δα/3 with ᾱ ≈ 3.33 Å³ (believed: CRC Handbook) and Δα ≈ 1.86 Å³ (believed: Bogaard et al. 1978)"),
         spin_weights: [1.0, 3.0],
         spin_weights_source: "two equivalent 1H nuclei (I = 1/2, fermions; 12C has I = 0) in a Σg⁺ ground state: even J para weight 1, odd J ortho weight 3",
         dipole_debye: None,
@@ -322,10 +292,7 @@ static LIBRARY: &[LibraryEntry] = &[
             59.3219,
             "B0 = Be − αe/2 with Be = 60.853 cm⁻¹ and αe = 3.0622 cm⁻¹ (NIST CCCBDB 'Detailed diatomic data' for H2, ref. Irikura 2007, J. Phys. Chem. Ref. Data 36, 389); γe neglected, so B0 may be low by ≈ 0.01 cm⁻¹",
         ),
-        d_cm: s(
-            0.0471,
-            "from memory: De of H2 X state (Huber & Herzberg 1979); D0 ≈ 0.046 cm⁻¹",
-        ),
+        d_cm: s(0.0471, "from memory: De of H2 X state (Huber & Herzberg 1979); D0 ≈ 0.046 cm⁻¹"),
         alpha_parallel_a3: s(
             1.0022,
             "from memory: ᾱ + 2Δα/3 with vibrationally averaged (v = 0, J = 0) static ᾱ = 5.414 a.u. and Δα = 2.024 a.u. (believed: ab initio polarizability function of Kolos & Wolniewicz 1967 averaged over v = 0, as tabulated by Bishop and co-workers); 6.763 a.u. converted with 1 a.u. = 0.1481847 Å³",
@@ -345,22 +312,13 @@ static LIBRARY: &[LibraryEntry] = &[
         name: "CS2",
         aliases: &["carbon disulfide", "carbon disulphide", "12C32S2"],
         description: "12C32S2, X ¹Σg⁺, (000) ground vibrational state",
-        b_cm: s(
-            0.10912,
-            "from memory: B0 of 12C32S2 (believed: Herzberg 1966, Electronic Spectra of Polyatomic Molecules, and later high-resolution IR work)",
-        ),
-        d_cm: s(
-            1.2e-8,
-            "from memory: approximate D0 of 12C32S2 (order of magnitude consistent with 4B³/ν1²); treat as ±20 %",
-        ),
+        b_cm: s(0.10912, "from memory: B0 of 12C32S2 (believed: Herzberg 1966, Electronic Spectra of Polyatomic Molecules, and later high-resolution IR work)"),
+        d_cm: s(1.2e-8, "from memory: approximate D0 of 12C32S2 (order of magnitude consistent with 4B³/ν1²); treat as ±20 %"),
         alpha_parallel_a3: s(
             15.14,
             "from memory: ᾱ + 2Δα/3 with ᾱ ≈ 8.74 Å³ (believed: CRC Handbook table of molecular polarizabilities) and Δα ≈ 9.6 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
         ),
-        alpha_perpendicular_a3: s(
-            5.54,
-            "from memory: ᾱ − Δα/3 with ᾱ ≈ 8.74 Å³ (believed: CRC Handbook) and Δα ≈ 9.6 Å³ (believed: Bridge & Buckingham 1966)",
-        ),
+        alpha_perpendicular_a3: s(5.54, "from memory: ᾱ − Δα/3 with ᾱ ≈ 8.74 Å³ (believed: CRC Handbook) and Δα ≈ 9.6 Å³ (believed: Bridge & Buckingham 1966)"),
         spin_weights: [1.0, 0.0],
         spin_weights_source: "two equivalent 32S nuclei (I = 0, bosons) in a Σg⁺ ground state: odd J levels are absent, [even, odd] = [1, 0]",
         dipole_debye: None,

@@ -3,9 +3,9 @@
 
 mod library;
 
-pub use library::{library, LibraryEntry, Sourced};
+pub use library::{LibraryEntry, Sourced, library};
 
-use crate::error::{require_non_negative, require_positive, Error, Result};
+use crate::error::{Error, Result, require_non_negative, require_positive};
 use serde::{Deserialize, Serialize};
 
 /// A linear molecule as the solver sees it.
@@ -59,7 +59,18 @@ fn equal_weights() -> [f64; 2] {
 impl Molecule {
     /// A non-polar linear molecule from its rotational constants (cm⁻¹), polarizabilities (Å³) and spin weights.
     pub fn linear(name: &str, b_cm: f64, d_cm: f64, alpha_parallel_a3: f64, alpha_perpendicular_a3: f64, spin_weights: [f64; 2]) -> Molecule {
-        Molecule { name: name.to_string(), b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights, dipole_debye: 0.0, beta_parallel_au: None, beta_perpendicular_au: None, ionization_energy_ev: None }
+        Molecule {
+            name: name.to_string(),
+            b_cm,
+            d_cm,
+            alpha_parallel_a3,
+            alpha_perpendicular_a3,
+            spin_weights,
+            dipole_debye: 0.0,
+            beta_parallel_au: None,
+            beta_perpendicular_au: None,
+            ionization_energy_ev: None,
+        }
     }
 
     /// True if the molecule has a permanent dipole moment.
@@ -98,10 +109,7 @@ impl Molecule {
         }
         require_non_negative(&format!("{path}.d_cm"), self.d_cm, "cm⁻¹")?;
         if self.d_cm > 1e-2 * self.b_cm {
-            return Err(Error::input(
-                format!("{path}.d_cm"),
-                format!("expected D much smaller than B (got D = {} cm⁻¹, B = {} cm⁻¹)", self.d_cm, self.b_cm),
-            ));
+            return Err(Error::input(format!("{path}.d_cm"), format!("expected D much smaller than B (got D = {} cm⁻¹, B = {} cm⁻¹)", self.d_cm, self.b_cm)));
         }
         require_non_negative(&format!("{path}.alpha_parallel_a3"), self.alpha_parallel_a3, "Å³")?;
         require_non_negative(&format!("{path}.alpha_perpendicular_a3"), self.alpha_perpendicular_a3, "Å³")?;
@@ -113,10 +121,7 @@ impl Molecule {
         let [e, o] = self.spin_weights;
         for (i, w) in [e, o].iter().enumerate() {
             if !w.is_finite() || *w < 0.0 || *w > 1e6 {
-                return Err(Error::input(
-                    format!("{path}.spin_weights[{i}]"),
-                    format!("expected a relative weight from 0 to 1e6, got {w}"),
-                ));
+                return Err(Error::input(format!("{path}.spin_weights[{i}]"), format!("expected a relative weight from 0 to 1e6, got {w}")));
             }
         }
         if e + o <= 0.0 {
@@ -127,9 +132,10 @@ impl Molecule {
             return Err(Error::input(format!("{path}.dipole_debye"), format!("expected a molecular dipole below 50 D, got {}", self.dipole_debye)));
         }
         if let Some(ip) = self.ionization_energy_ev
-            && (!ip.is_finite() || !(3.0..=30.0).contains(&ip)) {
-                return Err(Error::input(format!("{path}.ionization_energy_ev"), format!("expected an ionization energy from 3 to 30 eV, got {ip}")));
-            }
+            && (!ip.is_finite() || !(3.0..=30.0).contains(&ip))
+        {
+            return Err(Error::input(format!("{path}.ionization_energy_ev"), format!("expected an ionization energy from 3 to 30 eV, got {ip}")));
+        }
         for (name, b) in [("beta_parallel_au", self.beta_parallel_au), ("beta_perpendicular_au", self.beta_perpendicular_au)] {
             if let Some(b) = b {
                 crate::error::require_finite(&format!("{path}.{name}"), b, "atomic units")?;
@@ -146,17 +152,11 @@ impl Molecule {
                 return Ok(entry.molecule());
             }
         }
-        let mut near: Vec<(usize, &str)> = library()
-            .iter()
-            .map(|e| (edit_distance(&key, &e.name.to_ascii_lowercase()), e.name))
-            .collect();
+        let mut near: Vec<(usize, &str)> = library().iter().map(|e| (edit_distance(&key, &e.name.to_ascii_lowercase()), e.name)).collect();
         near.sort();
         let suggestions: Vec<&str> = near.iter().filter(|(d, _)| *d <= 2).map(|(_, n)| *n).take(3).collect();
-        let hint = if suggestions.is_empty() {
-            "run `kicktrain molecules` for the list".to_string()
-        } else {
-            format!("did you mean {}?", suggestions.join(", "))
-        };
+        let hint =
+            if suggestions.is_empty() { "run `kicktrain molecules` for the list".to_string() } else { format!("did you mean {}?", suggestions.join(", ")) };
         Err(Error::input(field, format!("unknown molecule '{name}'; {hint}")))
     }
 }

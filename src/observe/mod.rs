@@ -298,7 +298,14 @@ impl DenseSums {
     pub fn eval(&self, t_ps: f64) -> Vec<f64> {
         let tau = t_ps - self.t0_ps;
         let m = self.eps.len();
-        let z: Vec<(f64, f64)> = self.eps.iter().map(|e| { let (s, c) = (-e * tau).sin_cos(); (c, s) }).collect();
+        let z: Vec<(f64, f64)> = self
+            .eps
+            .iter()
+            .map(|e| {
+                let (s, c) = (-e * tau).sin_cos();
+                (c, s)
+            })
+            .collect();
         self.coeffs
             .iter()
             .zip(&self.statics)
@@ -452,4 +459,3 @@ fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (f64,
     let t = 0.5 * (a + b);
     (t, f(t))
 }
-

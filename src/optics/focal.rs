@@ -4,8 +4,8 @@
 //! ⟨O⟩ = a ∫₀¹ O(I0 u) u^(a−1) du, a = n w²/w_p²; with s = −a ln u this is ∫₀^∞ O(I0 e^(−s/a)) e^(−s) ds,
 //! evaluated by Gauss–Laguerre quadrature (smooth integrand for any a).
 
+use crate::error::{Error, Result, require_positive};
 use nalgebra::{DMatrix, SymmetricEigen};
-use crate::error::{require_positive, Error, Result};
 use serde::{Deserialize, Serialize};
 
 /// Transverse focal averaging of pump and probe Gaussian beams (the molecular sample is taken as thin
@@ -43,7 +43,10 @@ impl FocalAverage {
         if self.exponent() < 0.5 {
             return Err(Error::input(
                 format!("{path}.probe_waist_um"),
-                format!("a probe this much wider than the pump mostly sees molecules the pump missed; expected probe_waist_um ≤ pump_waist_um × sqrt(2 × probe_order) = {:.1} µm", self.pump_waist_um * (2.0 * self.probe_order).sqrt()),
+                format!(
+                    "a probe this much wider than the pump mostly sees molecules the pump missed; expected probe_waist_um ≤ pump_waist_um × sqrt(2 × probe_order) = {:.1} µm",
+                    self.pump_waist_um * (2.0 * self.probe_order).sqrt()
+                ),
             ));
         }
         if !(2..=64).contains(&self.points) {

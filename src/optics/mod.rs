@@ -4,7 +4,7 @@
 pub mod focal;
 pub mod ionization;
 
-use crate::error::{require_positive, Error, Result};
+use crate::error::{Error, Result, require_positive};
 use serde::{Deserialize, Serialize};
 
 /// How a pulse's peak intensity follows from its energy and focus.
@@ -56,14 +56,17 @@ impl Focus {
                 require_positive(&format!("{path}.wavelength_nm"), l, "nm")?;
                 require_positive(&format!("{path}.focal_length_mm"), f, "mm")?;
                 if self.waist_m() * 1e3 >= r {
-                    return Err(Error::input(format!("{path}.focal_length_mm"), "the focus would be larger than the beam on the lens; expected a shorter focal length or a wider beam"));
+                    return Err(Error::input(
+                        format!("{path}.focal_length_mm"),
+                        "the focus would be larger than the beam on the lens; expected a shorter focal length or a wider beam",
+                    ));
                 }
             }
             _ => {
                 return Err(Error::input(
                     format!("{path}.waist_um"),
                     "expected either waist_um, or beam_radius_mm with wavelength_nm and focal_length_mm (and optionally m2)",
-                ))
+                ));
             }
         }
         Ok(())
@@ -74,7 +77,11 @@ impl Focus {
         match self.waist_um {
             Some(w) => w * 1e-6,
             None => {
-                let (r, l, f) = (self.beam_radius_mm.unwrap_or(f64::NAN) * 1e-3, self.wavelength_nm.unwrap_or(f64::NAN) * 1e-9, self.focal_length_mm.unwrap_or(f64::NAN) * 1e-3);
+                let (r, l, f) = (
+                    self.beam_radius_mm.unwrap_or(f64::NAN) * 1e-3,
+                    self.wavelength_nm.unwrap_or(f64::NAN) * 1e-9,
+                    self.focal_length_mm.unwrap_or(f64::NAN) * 1e-3,
+                );
                 self.m2 * l * f / (std::f64::consts::PI * r)
             }
         }

@@ -131,7 +131,13 @@ impl BlockState {
         } else {
             self.work.gemm(1.0, vt, &self.psi, 0.0);
         }
-        let (c, s): (Vec<f64>, Vec<f64>) = angles.iter().map(|a| { let (s, c) = a.sin_cos(); (c, s) }).unzip();
+        let (c, s): (Vec<f64>, Vec<f64>) = angles
+            .iter()
+            .map(|a| {
+                let (s, c) = a.sin_cos();
+                (c, s)
+            })
+            .unzip();
         rotate_rows(&mut self.work, k, n, &c, &s);
         self.psi.gemm(1.0, v, &self.work, 0.0);
     }
@@ -217,7 +223,13 @@ impl FreePhases {
 
     /// Phases exp(−i ω_n dt) for angular frequencies ω (rad/ps) and a step of `dt_ps`.
     pub fn from_omega(omega: &[f64], dt_ps: f64) -> FreePhases {
-        let (c, s) = omega.iter().map(|w| { let (s, c) = (-w * dt_ps).sin_cos(); (c, s) }).unzip();
+        let (c, s) = omega
+            .iter()
+            .map(|w| {
+                let (s, c) = (-w * dt_ps).sin_cos();
+                (c, s)
+            })
+            .unzip();
         FreePhases { c, s, dt_ps }
     }
 
@@ -321,14 +333,7 @@ pub fn propagate_finite(
 /// Slow, independent cross-check: classical fourth-order Runge–Kutta in the interaction picture
 /// with fixed step `step_ps`, for one block, from `t0_ps` to `t1_ps`. Returns the final states
 /// (Schrödinger picture) as [Re | Im].
-pub fn propagate_rk4_reference(
-    ops: &BlockOps,
-    start_index: &[usize],
-    rate: &dyn Fn(f64) -> f64,
-    t0_ps: f64,
-    t1_ps: f64,
-    step_ps: f64,
-) -> DMatrix<f64> {
+pub fn propagate_rk4_reference(ops: &BlockOps, start_index: &[usize], rate: &dyn Fn(f64) -> f64, t0_ps: f64, t1_ps: f64, step_ps: f64) -> DMatrix<f64> {
     use num_complex::Complex64 as C;
     let n = ops.size();
     let nsteps = ((t1_ps - t0_ps) / step_ps).ceil() as usize;

@@ -4,7 +4,7 @@
 //! exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) is exact there; evolution in a constant static field is exact
 //! through the eigendecomposition of H0 − μE cosθ.
 
-use crate::basis::{Block, BOTH_PARITIES};
+use crate::basis::{BOTH_PARITIES, Block};
 use crate::molecule::Molecule;
 use crate::propagate::BlockState;
 use nalgebra::{DMatrix, SymmetricEigen};

@@ -1,12 +1,12 @@
 //! Reports of a design search: the replayable design, its summary, traces, history and plots.
 
-use super::{num, svg, trace_csv, write_file, LASER_SAFETY};
-use crate::design::search::{Candidate, DesignResult, COUNT_GAIN_THRESHOLD};
-use crate::design::{fluence_jcm2, Objective};
+use super::{LASER_SAFETY, num, svg, trace_csv, write_file};
+use crate::design::search::{COUNT_GAIN_THRESHOLD, Candidate, DesignResult};
+use crate::design::{Objective, fluence_jcm2};
 use crate::error::Result;
 use crate::field::FieldModel;
-use crate::simulate::{simulate, Simulation};
-use serde_json::{json, Value};
+use crate::simulate::{Simulation, simulate};
+use serde_json::{Value, json};
 use std::path::Path;
 
 fn pulses_json(obj: &Objective, field: &FieldModel) -> Vec<Value> {
@@ -121,7 +121,14 @@ pub fn convergence_plot(obj: &Objective, r: &DesignResult) -> svg::LinePlot {
             x.push(x[0]);
             y.push(y[0]);
         }
-        plot.series.push(svg::Series { label: st.clone(), x, y, color: svg::PALETTE[i % svg::PALETTE.len()].to_string(), dashed: st.contains("full"), width: 1.8 });
+        plot.series.push(svg::Series {
+            label: st.clone(),
+            x,
+            y,
+            color: svg::PALETTE[i % svg::PALETTE.len()].to_string(),
+            dashed: st.contains("full"),
+            width: 1.8,
+        });
     }
     plot.subtitle = Some(format!("{} kick-model and {} full-solver evaluations, seed {}", r.kick_evaluations, r.full_evaluations, obj.search.seed));
     plot
@@ -144,7 +151,10 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
     base_scenario.goal = None;
     let base: Simulation = simulate(&base_scenario)?;
     let mut summary = design_summary(obj, r);
-    summary["replay_score"] = match sim.goal_score { Some(s) => num(s.value), None => Value::Null };
+    summary["replay_score"] = match sim.goal_score {
+        Some(s) => num(s.value),
+        None => Value::Null,
+    };
     write_file(dir, "design.json", &(serde_json::to_string_pretty(&scenario.to_value()).expect("json") + "\n"))?;
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
     let extra: [(&str, &[f64]); 2] = [("baseline_cos2", &base.result.trace.cos2), ("baseline_cos2_2d", &base.result.trace.cos2_2d)];
@@ -157,13 +167,25 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
         crate::goal::Observable::Cos2TwoD => (&base.result.trace.cos2_2d, "best single pulse ⟨cos²θ_2D⟩"),
         crate::goal::Observable::Cos => (&base.result.trace.cos, "best single pulse ⟨cosθ⟩"),
     };
-    plot.series.push(svg::Series { label: label.into(), x: base.result.trace.times_ps.clone(), y: base_series.clone(), color: "#7f7f7f".into(), dashed: true, width: 1.2 });
+    plot.series.push(svg::Series {
+        label: label.into(),
+        x: base.result.trace.times_ps.clone(),
+        y: base_series.clone(),
+        color: "#7f7f7f".into(),
+        dashed: true,
+        width: 1.2,
+    });
     if let Some(t) = r.best.full.t_ps {
         plot.markers.push(svg::Marker { x0: t, x1: t, label: format!("optimum {:.4}", r.best.full.value), color: "#2a7f3f".into() });
     }
     plot.subtitle = Some(format!(
         "{} at {} K; goal: {} {}; score {:.4} vs single pulse {:.4}",
-        obj.molecule().name, obj.base.temperature_k, obj.goal.kind_name(), obs.name(), r.best.full.value, r.baseline.full.value
+        obj.molecule().name,
+        obj.base.temperature_k,
+        obj.goal.kind_name(),
+        obs.name(),
+        r.best.full.value,
+        r.baseline.full.value
     ));
     write_file(dir, "design.svg", &plot.to_svg())?;
     write_file(dir, "history.csv", &history_csv(r))?;

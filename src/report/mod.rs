@@ -8,7 +8,7 @@ use crate::observe::{Extremum, Trace};
 use crate::scenario::Scenario;
 use crate::simulate::{Event, Simulation};
 use crate::units::revival_period_ps;
-use serde_json::{json, Value};
+use serde_json::{Value, json};
 use std::path::Path;
 
 /// The laser-safety caution printed with every output that states intensities or pulse energies.
@@ -169,18 +169,34 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
 /// A plot of the alignment trace with the pulses marked and the isotropic values drawn.
 pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::LinePlot {
     let mut plot = svg::LinePlot::new(title, "time (ps)", "alignment");
-    plot.subtitle = Some(format!(
-        "{} at {} K; {} pulse(s); shaded: pulse FWHM",
-        scenario.molecule.name,
-        scenario.temperature_k,
-        scenario.field.pulses.len()
-    ));
-    plot.series.push(svg::Series { label: "⟨cos²θ⟩".into(), x: trace.times_ps.clone(), y: trace.cos2.clone(), color: "#1f5fa8".into(), dashed: false, width: 1.6 });
+    plot.subtitle = Some(format!("{} at {} K; {} pulse(s); shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, scenario.field.pulses.len()));
+    plot.series.push(svg::Series {
+        label: "⟨cos²θ⟩".into(),
+        x: trace.times_ps.clone(),
+        y: trace.cos2.clone(),
+        color: "#1f5fa8".into(),
+        dashed: false,
+        width: 1.6,
+    });
     if !trace.cos2_2d.is_empty() {
-        plot.series.push(svg::Series { label: "⟨cos²θ_2D⟩".into(), x: trace.times_ps.clone(), y: trace.cos2_2d.clone(), color: "#d9622b".into(), dashed: false, width: 1.6 });
+        plot.series.push(svg::Series {
+            label: "⟨cos²θ_2D⟩".into(),
+            x: trace.times_ps.clone(),
+            y: trace.cos2_2d.clone(),
+            color: "#d9622b".into(),
+            dashed: false,
+            width: 1.6,
+        });
     }
     if !trace.cos.is_empty() {
-        plot.series.push(svg::Series { label: "⟨cosθ⟩".into(), x: trace.times_ps.clone(), y: trace.cos.clone(), color: "#2a7f3f".into(), dashed: false, width: 1.6 });
+        plot.series.push(svg::Series {
+            label: "⟨cosθ⟩".into(),
+            x: trace.times_ps.clone(),
+            y: trace.cos.clone(),
+            color: "#2a7f3f".into(),
+            dashed: false,
+            width: 1.6,
+        });
         plot.hlines.push(svg::HLine { y: 0.0, label: "no orientation".into(), color: "#2a7f3f".into() });
         plot.y_label = "alignment and orientation".into();
     }
@@ -229,8 +245,22 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
     let title = sim.scenario.description.clone().unwrap_or_else(|| "Field-free alignment".to_string());
     let mut plot = alignment_plot(&sim.scenario, &sim.result.trace, &title);
     if let Some(av) = &sim.averaged {
-        plot.series.push(svg::Series { label: "⟨cos²θ⟩ focal average".into(), x: av.trace.times_ps.clone(), y: av.trace.cos2.clone(), color: "#1f5fa8".into(), dashed: true, width: 1.4 });
-        plot.series.push(svg::Series { label: "⟨cos²θ_2D⟩ focal average".into(), x: av.trace.times_ps.clone(), y: av.trace.cos2_2d.clone(), color: "#d9622b".into(), dashed: true, width: 1.4 });
+        plot.series.push(svg::Series {
+            label: "⟨cos²θ⟩ focal average".into(),
+            x: av.trace.times_ps.clone(),
+            y: av.trace.cos2.clone(),
+            color: "#1f5fa8".into(),
+            dashed: true,
+            width: 1.4,
+        });
+        plot.series.push(svg::Series {
+            label: "⟨cos²θ_2D⟩ focal average".into(),
+            x: av.trace.times_ps.clone(),
+            y: av.trace.cos2_2d.clone(),
+            color: "#d9622b".into(),
+            dashed: true,
+            width: 1.4,
+        });
     }
     write_file(dir, "alignment.svg", &plot.to_svg())?;
     Ok(summary)

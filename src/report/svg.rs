@@ -11,8 +11,7 @@ use std::path::Path;
 pub const DOWNSAMPLE_THRESHOLD: usize = 20_000;
 
 /// Qualitative colour palette (CSS hex strings) used for series whose `color` is empty.
-pub const PALETTE: [&str; 10] =
-    ["#1f77b4", "#ff7f0e", "#2ca02c", "#d62728", "#9467bd", "#8c564b", "#e377c2", "#7f7f7f", "#bcbd22", "#17becf"];
+pub const PALETTE: [&str; 10] = ["#1f77b4", "#ff7f0e", "#2ca02c", "#d62728", "#9467bd", "#8c564b", "#e377c2", "#7f7f7f", "#bcbd22", "#17becf"];
 
 /// Fill colour (CSS hex) of heatmap cells whose value is not finite.
 pub const MISSING_COLOR: &str = "#d9d9d9";
@@ -699,13 +698,7 @@ fn layout(s: &LayoutSpec) -> Layout {
     let left = (38.0 + widest).max(56.0);
     let plot_w = (s.width - left - s.right).max(40.0);
     let (xt, xl) = x_ticks(s.xr.0, s.xr.1, plot_w);
-    Layout {
-        frame: Frame { left, top, w: plot_w, h: plot_h, x0: s.xr.0, x1: s.xr.1, y0: s.yr.0, y1: s.yr.1 },
-        xt,
-        xl,
-        yt,
-        yl,
-    }
+    Layout { frame: Frame { left, top, w: plot_w, h: plot_h, x0: s.xr.0, x1: s.xr.1, y0: s.yr.0, y1: s.yr.1 }, xt, xl, yt, yl }
 }
 
 fn draw_titles(svg: &mut Svg, f: &Frame, width: f64, title: &str, subtitle: Option<&str>) {
@@ -930,15 +923,11 @@ impl LinePlot {
         let height = sane_dim(self.height, 500.0, 180.0);
         let xr = resolve_range(self.x_range, self.series.iter().flat_map(|s| s.x.iter().copied()), 0.03);
         let in_x = |x: f64| self.x_range.is_none() || (x >= xr.0 && x <= xr.1);
-        let ys = self.series.iter().flat_map(|s| {
-            s.x.iter().zip(&s.y).filter(|(x, _)| x.is_finite() && in_x(**x)).map(|(_, y)| *y)
-        });
+        let ys = self.series.iter().flat_map(|s| s.x.iter().zip(&s.y).filter(|(x, _)| x.is_finite() && in_x(**x)).map(|(_, y)| *y));
         let yr = resolve_range(self.y_range, ys.chain(self.hlines.iter().map(|h| h.y)), 0.03);
 
-        let colors: Vec<&str> =
-            self.series.iter().enumerate().map(|(i, s)| or_default(&s.color, PALETTE[i % PALETTE.len()])).collect();
-        let widths: Vec<f64> =
-            self.series.iter().map(|s| if s.width.is_finite() && s.width > 0.0 { s.width.min(20.0) } else { 1.5 }).collect();
+        let colors: Vec<&str> = self.series.iter().enumerate().map(|(i, s)| or_default(&s.color, PALETTE[i % PALETTE.len()])).collect();
+        let widths: Vec<f64> = self.series.iter().map(|s| if s.width.is_finite() && s.width > 0.0 { s.width.min(20.0) } else { 1.5 }).collect();
 
         // Legend entries and the right margin they need.
         let show_legend = self.series.len() > 1 || self.series.iter().any(|s| !s.label.trim().is_empty());
@@ -996,12 +985,7 @@ impl LinePlot {
             let (d, dots) = series_geometry(s, &f);
             if !d.is_empty() {
                 let dash = if s.dashed { format!(" stroke-dasharray=\"{}\"", dash_for(widths[i])) } else { String::new() };
-                let _ = writeln!(
-                    svg.buf,
-                    "<path d=\"{d}\" stroke=\"{}\" stroke-width=\"{}\"{dash}/>",
-                    escape_xml(colors[i]),
-                    N(widths[i])
-                );
+                let _ = writeln!(svg.buf, "<path d=\"{d}\" stroke=\"{}\" stroke-width=\"{}\"{dash}/>", escape_xml(colors[i]), N(widths[i]));
             }
             for (x, y) in dots {
                 let _ = writeln!(
@@ -1078,17 +1062,7 @@ impl Heatmap {
         y: Vec<f64>,
         z: Vec<Vec<f64>>,
     ) -> Self {
-        Heatmap {
-            title: title.into(),
-            x_label: x_label.into(),
-            y_label: y_label.into(),
-            z_label: z_label.into(),
-            x,
-            y,
-            z,
-            width: 800.0,
-            height: 560.0,
-        }
+        Heatmap { title: title.into(), x_label: x_label.into(), y_label: y_label.into(), z_label: z_label.into(), x, y, z, width: 800.0, height: 560.0 }
     }
 
     /// Write the SVG document to `path`.
@@ -1203,25 +1177,13 @@ impl Heatmap {
 impl Histogram {
     /// A histogram of `values` with `bins` bins (0 = automatic), 800×450 px.
     pub fn new(title: impl Into<String>, x_label: impl Into<String>, values: Vec<f64>, bins: usize) -> Self {
-        Histogram {
-            title: title.into(),
-            x_label: x_label.into(),
-            values,
-            bins,
-            markers: Vec::new(),
-            width: 800.0,
-            height: 450.0,
-        }
+        Histogram { title: title.into(), x_label: x_label.into(), values, bins, markers: Vec::new(), width: 800.0, height: 450.0 }
     }
 
     /// Bin edges (x units, length bins+1) and counts of the finite values.
     pub fn counts(&self) -> (Vec<f64>, Vec<usize>) {
         let vals: Vec<f64> = self.values.iter().copied().filter(|v| v.is_finite()).collect();
-        let bins = if self.bins > 0 {
-            self.bins.min(10_000)
-        } else {
-            ((vals.len() as f64).sqrt().ceil() as usize).clamp(1, 100)
-        };
+        let bins = if self.bins > 0 { self.bins.min(10_000) } else { ((vals.len() as f64).sqrt().ceil() as usize).clamp(1, 100) };
         let (lo, hi) = if vals.is_empty() {
             (0.0, 1.0)
         } else {
@@ -1280,14 +1242,7 @@ impl Histogram {
             }
             let (a, b) = (f.px(edges[k]), f.px(edges[k + 1]));
             let top = f.py(c as f64);
-            let _ = writeln!(
-                svg.buf,
-                "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\"/>",
-                N(a),
-                N(top),
-                N((b - a).max(0.5)),
-                N(f.bottom() - top)
-            );
+            let _ = writeln!(svg.buf, "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\"/>", N(a), N(top), N((b - a).max(0.5)), N(f.bottom() - top));
         }
         svg.raw("</g>\n");
         if n_finite == 0 {
@@ -1319,8 +1274,7 @@ mod tests {
                 let after = &rest[p..];
                 let end = after.find(';').ok_or_else(|| format!("bare & in {t:?}"))?;
                 let ent = &after[..=end];
-                let ok = matches!(ent, "&amp;" | "&lt;" | "&gt;" | "&quot;" | "&apos;")
-                    || (ent.starts_with("&#") && ent.len() > 3);
+                let ok = matches!(ent, "&amp;" | "&lt;" | "&gt;" | "&quot;" | "&apos;") || (ent.starts_with("&#") && ent.len() > 3);
                 if !ok {
                     return Err(format!("bad entity {ent}"));
                 }

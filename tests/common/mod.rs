@@ -35,4 +35,3 @@ pub fn ground_state_kick(mol: &Molecule, f: impl Fn(f64) -> f64, g: impl Fn(f64)
         })
         .collect()
 }
-
