@@ -136,10 +136,10 @@ impl Solver {
     }
 
     /// How far (in J) a pulse can push the rotor: its kick strength P for a short pulse, but for a long
-    /// (adiabatic) pulse no more than the width of the pendular states, about 3 sqrt(U0/B) + 3.
+    /// (adiabatic) pulse no more than the width of the pendular states, about 1.5 sqrt(U0/B) + 3 block levels (the basis grows if that is too few).
     fn effective_strength(&self, p: &crate::field::Pulse) -> f64 {
         let da = self.molecule.delta_alpha_a3();
-        let adiabatic = 3.0 * (p.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(self.molecule.b_cm)).sqrt() + 3.0;
+        let adiabatic = 1.5 * (p.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(self.molecule.b_cm)).sqrt() + 3.0;
         p.kick_strength(da).abs().min(adiabatic)
     }
 
