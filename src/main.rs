@@ -58,6 +58,7 @@ Ctrl-C stops the search and still reports (and writes) the best design found so 
         json: bool,
     },
     /// Field-dressed (pendular) states in a constant laser intensity and static field: the adiabatic limit.
+    #[command(allow_negative_numbers = true)]
     #[command(after_help = "Example:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n\n\
 Energies exclude the isotropic shift −¼α⊥E0², common to all states.")]
     Pendular {
@@ -80,6 +81,7 @@ Energies exclude the isotropic shift −¼α⊥E0², common to all states.")]
         json: bool,
     },
     /// Convert pulse energy, duration and focusing to peak power, waist, Rayleigh range and intensity.
+    #[command(allow_negative_numbers = true)]
     #[command(after_help = "Examples:\n  kicktrain focus --energy-mj 2 --fwhm-fs 40 --waist-um 30\n  \
 kicktrain focus --energy-mj 2 --fwhm-fs 40 --beam-radius-mm 5 --wavelength-nm 800 --focal-length-mm 300 --m2 1.2\n\n\
 Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envelope area (0.9394 E/τ for Gaussian pulses).")]
@@ -110,6 +112,7 @@ Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envel
         m2: f64,
     },
     /// Scan one or two numeric fields of a scenario (for example delay × intensity), in parallel.
+    #[command(allow_negative_numbers = true)]
     #[command(
         after_help = "Examples:\n  kicktrain scan examples/scenarios/nitrogen-one-pulse.json --x pulses[0].peak_intensity_wcm2 --from 1e13 --to 8e13 --steps 15 --out scan1\n  \
 kicktrain scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 --y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --out scan2\n\n\
@@ -150,6 +153,7 @@ Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the
         quiet: bool,
     },
     /// Monte Carlo tolerance of a design (a scenario with a goal) to timing jitter and energy or phase noise.
+    #[command(allow_negative_numbers = true)]
     #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
 Jitter moves every pulse after the first; the probe stays at the nominal times. Writes tolerance.csv and tolerance.svg.")]
     Tolerance {
