@@ -205,7 +205,7 @@ impl Solver {
                     events.push(Event::Kick { t_ps: p.kick_time_ps(), strength: p.kick_strength(da), pulse: i });
                 }
             } else {
-                let shortest = iv.pulses.iter().map(|&i| field.pulses[i].rms_duration_ps()).fold(f64::INFINITY, f64::min);
+                let shortest = iv.pulses.iter().map(|&i| field.pulses[i].time_scale_ps()).fold(f64::INFINITY, f64::min);
                 let peak_rate: f64 = iv.pulses.iter().map(|&i| field.pulses[i].peak_rate_rad_per_ps(da).abs()).sum();
                 // Default step: a fraction of the shortest envelope, of the fastest transition period
                 // near the basis top and of the inverse peak coupling. Measured on nitrogen at 300 K

@@ -266,3 +266,19 @@ fn nanosecond_pulse_in_a_static_field_reaches_the_adiabatic_thermal_values() {
     assert!((r.cos[0] - adiabatic.thermal_cos).abs() < 1e-3, "⟨cosθ⟩ {} vs adiabatic {}", r.cos[0], adiabatic.thermal_cos);
     assert!(adiabatic.thermal_cos > 0.3, "the scheme must orient strongly: {}", adiabatic.thermal_cos);
 }
+
+#[test]
+fn slow_rise_and_fast_switch_off_freeze_the_pendular_state() {
+    // A pulse that rises slowly (adiabatic theorem: the ground state follows the pendular state) and is
+    // switched off much faster than a rotational period (sudden limit: the wavefunction cannot change)
+    // leaves, right after the cut, the adiabatic value of ⟨cos²θ⟩; the molecules then stay aligned on
+    // average (permanent alignment above 1/3), unlike after a pulse that also falls slowly.
+    let mol = Molecule::linear("light rotor", 2.0, 0.0, 3.0, 1.0, [1.0, 1.0]);
+    let intensity = 2e13;
+    let ground = pendular(&mol, intensity, 0.0, 0.0, 2).unwrap().states.into_iter().find(|s| s.m == 0 && s.j == 0).unwrap();
+    let cut = Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Truncated, rise_fs: Some(10.0) };
+    let settings = SolverSettings { method: Method::Finite, ..Default::default() };
+    let r = Solver::new(&mol, 0.0, settings).unwrap().run(&FieldModel::pulses(vec![cut]), &[0.011], false).unwrap();
+    assert!((r.trace.cos2[0] - ground.cos2).abs() < 3e-3, "after the cut {} vs pendular {}", r.trace.cos2[0], ground.cos2);
+    assert!(r.permanent_cos2 > 0.4, "a sudden cut leaves permanent alignment: {}", r.permanent_cos2);
+}

@@ -17,11 +17,14 @@ pub enum PulseShape {
     Sech2,
     /// A plateau with sin² edges of 0–100 % duration `rise_fs`, intensity FWHM τ.
     FlatTop,
+    /// A Gaussian rise of FWHM τ switched off at its peak (the centre) within `rise_fs` (sin² fall):
+    /// a slowly rising pulse cut fast, as by a plasma shutter.
+    Truncated,
 }
 
 impl PulseShape {
     /// All accepted names, for error messages.
-    pub const NAMES: &'static str = "\"gaussian\", \"sech2\" or \"flat_top\"";
+    pub const NAMES: &'static str = "\"gaussian\", \"sech2\", \"flat_top\" or \"truncated\"";
 
     /// Parse a shape name.
     pub fn parse(s: &str) -> Option<PulseShape> {
@@ -29,6 +32,7 @@ impl PulseShape {
             "gaussian" => Some(PulseShape::Gaussian),
             "sech2" => Some(PulseShape::Sech2),
             "flat_top" => Some(PulseShape::FlatTop),
+            "truncated" => Some(PulseShape::Truncated),
             _ => None,
         }
     }
@@ -123,6 +127,17 @@ impl Pulse {
                     c * c
                 }
             }
+            PulseShape::Truncated => {
+                let r = self.rise_ps();
+                if x <= 0.0 {
+                    (-4.0 * std::f64::consts::LN_2 * x * x / (tau * tau)).exp()
+                } else if x < r {
+                    let c = (std::f64::consts::FRAC_PI_2 * x / r).cos();
+                    c * c
+                } else {
+                    0.0
+                }
+            }
         }
     }
 
@@ -133,6 +148,7 @@ impl Pulse {
             PulseShape::Gaussian => tau * (std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)).sqrt(),
             PulseShape::Sech2 => 2.0 * tau / SECH2_FWHM_FACTOR,
             PulseShape::FlatTop => tau,
+            PulseShape::Truncated => 0.5 * tau * (std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)).sqrt() + 0.5 * self.rise_ps(),
         }
     }
 
@@ -143,6 +159,12 @@ impl Pulse {
             PulseShape::Gaussian => tau / (2.0 * (2.0 * std::f64::consts::LN_2).sqrt()),
             // sech²(t/T0): ⟨t²⟩ = π² T0² / 12.
             PulseShape::Sech2 => std::f64::consts::PI * tau / SECH2_FWHM_FACTOR / 12f64.sqrt(),
+            PulseShape::Truncated => {
+                let (a, b) = self.support_ps();
+                let m0 = simpson(a, b, 4000, |t| self.envelope(t));
+                let m2 = simpson(a, b, 4000, |t| (t - self.center_ps).powi(2) * self.envelope(t));
+                (m2 / m0).sqrt()
+            }
             PulseShape::FlatTop => {
                 // ⟨t²⟩ of the plateau with sin² edges, by Simpson quadrature over the (finite) support.
                 let half = 0.5 * tau + 0.5 * self.rise_ps();
@@ -160,6 +182,7 @@ impl Pulse {
             PulseShape::Gaussian => GAUSSIAN_HALF_WIDTH * tau,
             PulseShape::Sech2 => SECH2_HALF_WIDTH * tau,
             PulseShape::FlatTop => 0.5 * tau + 0.5 * self.rise_ps(),
+            PulseShape::Truncated => return (self.center_ps - GAUSSIAN_HALF_WIDTH * tau, self.center_ps + self.rise_ps()),
         };
         (self.center_ps - half, self.center_ps + half)
     }
@@ -172,7 +195,16 @@ impl Pulse {
                 let inner = 0.5 * tau - 0.5 * r;
                 vec![self.center_ps - inner, self.center_ps + inner]
             }
+            PulseShape::Truncated => vec![self.center_ps, self.center_ps + self.rise_ps()],
             _ => vec![],
+        }
+    }
+
+    /// Shortest time scale of the envelope (ps): its RMS duration, or the switch-off of a truncated pulse.
+    pub fn time_scale_ps(&self) -> f64 {
+        match self.shape {
+            PulseShape::Truncated => self.rms_duration_ps().min(0.5 * self.rise_ps()),
+            _ => self.rms_duration_ps(),
         }
     }
 
@@ -186,9 +218,16 @@ impl Pulse {
         self.peak_rate_rad_per_ps(delta_alpha_a3) * self.envelope_area_ps()
     }
 
-    /// The time at which a kick replaces this pulse (centre of a symmetric envelope), ps.
+    /// The time at which a kick replaces this pulse: the intensity-weighted mean time, ps (the centre
+    /// for symmetric envelopes).
     pub fn kick_time_ps(&self) -> f64 {
-        self.center_ps
+        match self.shape {
+            PulseShape::Truncated => {
+                let (a, b) = self.support_ps();
+                simpson(a, b, 4000, |t| t * self.envelope(t)) / simpson(a, b, 4000, |t| self.envelope(t))
+            }
+            _ => self.center_ps,
+        }
     }
 
     /// Nominal end of the pulse (centre + one FWHM), ps: "after the pulse" in summaries.
@@ -461,7 +500,7 @@ impl FieldModel {
         let mut spans: Vec<(f64, f64, f64)> = vec![];
         for p in self.pulses.iter().filter(|p| p.peak_intensity_wcm2 > 0.0) {
             let (a, b) = p.support_ps();
-            spans.push((a, b, p.rms_duration_ps()));
+            spans.push((a, b, p.time_scale_ps()));
         }
         for tc in &self.two_colour {
             let p = tc.envelope_pulse();
@@ -552,20 +591,26 @@ mod tests {
 
     #[test]
     fn shapes_have_unit_peak_half_max_at_fwhm_and_right_area() {
-        for shape in [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop] {
+        for shape in [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop, PulseShape::Truncated] {
             let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0) };
             assert!((p.envelope(1.0) - 1.0).abs() < 1e-15);
-            // Half maximum at ±FWHM/2 (definition of FWHM).
-            assert!((p.envelope(1.04) - 0.5).abs() < 1e-12, "{shape:?}");
+            // Half maximum at ±FWHM/2 (definition of FWHM); a truncated pulse only on its rising side.
+            if shape != PulseShape::Truncated {
+                assert!((p.envelope(1.04) - 0.5).abs() < 1e-12, "{shape:?}");
+            } else {
+                assert!(p.envelope(1.021) == 0.0 && (p.envelope(1.01) - 0.5).abs() < 1e-12);
+            }
             assert!((p.envelope(0.96) - 0.5).abs() < 1e-12, "{shape:?}");
             let q = area_by_quadrature(&p);
             assert!((q / p.envelope_area_ps() - 1.0).abs() < 1e-9, "{shape:?} {q}");
             // Gaussian ∫I dt = 1.0645 I0 τ (shared physics notes §4); sech²: 1.1346 I0 τ (2/1.7627).
             let ratio = p.envelope_area_ps() / p.fwhm_ps();
+            // Truncated: half the Gaussian area plus half the 20 fs fall, over 80 fs: 0.5 × 1.0645 + 0.125.
             let want = match shape {
                 PulseShape::Gaussian => 1.0645,
                 PulseShape::Sech2 => 1.1346,
                 PulseShape::FlatTop => 1.0,
+                PulseShape::Truncated => 0.65725,
             };
             assert!((ratio - want).abs() < 1e-4, "{shape:?} {ratio}");
             // RMS duration against brute-force quadrature of t² I(t).
