@@ -780,6 +780,17 @@ fn place_marker_labels(markers: &[Marker], f: &Frame, max_rows: usize) -> Vec<(u
     out
 }
 
+/// Layout of a plot, redone with room for marker labels when the markers need extra rows.
+fn layout_with_markers(spec: &mut LayoutSpec, markers: &[Marker]) -> Layout {
+    let lay = layout(spec);
+    let rows = marker_rows_needed(markers, &lay.frame);
+    if rows > 0 {
+        spec.marker_rows = rows;
+        return layout(spec);
+    }
+    lay
+}
+
 fn marker_rows_needed(markers: &[Marker], f: &Frame) -> usize {
     place_marker_labels(markers, f, MAX_MARKER_ROWS).iter().map(|p| p.1 + 1).max().unwrap_or(0)
 }
@@ -945,12 +956,7 @@ impl LinePlot {
 
         let top0 = content_top(&self.title, self.subtitle.as_deref());
         let mut spec = LayoutSpec { width, height, content_top: top0, marker_rows: 0, right, xr, yr, y_integer: false };
-        let mut lay = layout(&spec);
-        let rows = marker_rows_needed(&self.markers, &lay.frame);
-        if rows > 0 {
-            spec.marker_rows = rows;
-            lay = layout(&spec);
-        }
+        let lay = layout_with_markers(&mut spec, &self.markers);
         let f = lay.frame;
 
         let mut svg = Svg::new(width, height);
@@ -1223,12 +1229,7 @@ impl Histogram {
         }
         let top0 = content_top(&self.title, Some(&subtitle));
         let mut spec = LayoutSpec { width, height, content_top: top0, marker_rows: 0, right: 26.0, xr, yr, y_integer: true };
-        let mut lay = layout(&spec);
-        let rows = marker_rows_needed(&self.markers, &lay.frame);
-        if rows > 0 {
-            spec.marker_rows = rows;
-            lay = layout(&spec);
-        }
+        let lay = layout_with_markers(&mut spec, &self.markers);
         let f = lay.frame;
 
         let mut svg = Svg::new(width, height);
