@@ -4,6 +4,8 @@
 //! into independent (|M|, parity) blocks. Inside a block the states are J = j_min, j_min + 2, ….
 
 pub mod legendre;
+pub mod top;
+pub mod wigner;
 
 use crate::molecule::Molecule;
 use crate::units::cm_to_rad_per_ps;

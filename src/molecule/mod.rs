@@ -2,6 +2,7 @@
 //! library (every number with its source). No numerical method lives here.
 
 mod library;
+pub mod top;
 
 pub use library::{LibraryEntry, Sourced, library};
 
