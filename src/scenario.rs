@@ -296,7 +296,10 @@ impl Scenario {
     pub fn to_value(&self) -> Value {
         let molecule = match &self.molecule_source {
             MoleculeSource::Library(name) => json!(name),
-            MoleculeSource::Inline => serde_json::to_value(&self.molecule).expect("molecule serializes"),
+            MoleculeSource::Inline => match &self.molecule.top {
+                Some(t) => top_to_value(&self.molecule, t),
+                None => serde_json::to_value(&self.molecule).expect("molecule serializes"),
+            },
         };
         let mut obj = serde_json::Map::new();
         if let Some(d) = &self.description {
@@ -351,6 +354,11 @@ impl Scenario {
 fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
     match v {
         Value::String(name) => Ok((Molecule::from_library(name, path)?, MoleculeSource::Library(name.clone()))),
+        Value::Object(map) if map.contains_key("a_cm") || map.contains_key("c_cm") || map.contains_key("polarizability_a3") => {
+            let m = parse_top(v, path)?;
+            m.validate(path)?;
+            Ok((m, MoleculeSource::Inline))
+        }
         Value::Object(_) => {
             let mut f = Fields::new(v, path)?;
             let name = f.opt_str("name", "a string")?.unwrap_or("custom").to_string();
@@ -382,12 +390,116 @@ fn parse_molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
                 beta_parallel_au,
                 beta_perpendicular_au,
                 ionization_energy_ev,
+                top: None,
             };
             m.validate(path)?;
             Ok((m, MoleculeSource::Inline))
         }
         other => Err(Error::input(path, format!("expected a library name or an object, got {}", type_name(other)))),
     }
+}
+
+/// Read an inline symmetric or asymmetric top (keys a_cm, b_cm, c_cm, polarizability_a3 {a, b, c}, ...).
+fn parse_top(v: &Value, path: &str) -> Result<Molecule> {
+    use crate::molecule::top::{BodyAxis, Top, TopSpinWeights};
+    let mut f = Fields::new(v, path)?;
+    let name = f.opt_str("name", "a string")?.unwrap_or("custom top").to_string();
+    let a_cm = f.req_f64("a_cm", "cm⁻¹")?;
+    let b_cm = f.req_f64("b_cm", "cm⁻¹")?;
+    let c_cm = f.req_f64("c_cm", "cm⁻¹")?;
+    let d_j_cm = f.opt_f64("d_j_cm", "cm⁻¹")?.unwrap_or(0.0);
+    let d_jk_cm = f.opt_f64("d_jk_cm", "cm⁻¹")?.unwrap_or(0.0);
+    let d_k_cm = f.opt_f64("d_k_cm", "cm⁻¹")?.unwrap_or(0.0);
+    let pv = f.req_value("polarizability_a3", "an object {\"a\": …, \"b\": …, \"c\": …} of principal polarizability volumes in Å³")?;
+    let mut pf = Fields::new(pv, &f.path_of("polarizability_a3"))?;
+    let polarizability_a3 = [pf.req_f64("a", "Å³")?, pf.req_f64("b", "Å³")?, pf.req_f64("c", "Å³")?];
+    pf.finish()?;
+    let dipole_debye = f.opt_f64("dipole_debye", "debye")?.unwrap_or(0.0);
+    let axis = |f: &mut Fields, key: &str| -> Result<Option<BodyAxis>> {
+        let p = f.path_of(key);
+        f.opt_str(key, "\"a\", \"b\" or \"c\"")?.map(|s| BodyAxis::parse(s, &p)).transpose()
+    };
+    let kind_probe = Top {
+        a_cm,
+        b_cm,
+        c_cm,
+        d_j_cm,
+        d_jk_cm,
+        d_k_cm,
+        polarizability_a3,
+        dipole_axis: BodyAxis::A,
+        alignment_axis: BodyAxis::A,
+        spin_weights: TopSpinWeights::Equal,
+    };
+    let figure = if kind_probe.kind() == crate::molecule::top::TopKind::Oblate { BodyAxis::C } else { BodyAxis::A };
+    let dipole_axis = axis(&mut f, "dipole_axis")?.unwrap_or(figure);
+    let alignment_axis = axis(&mut f, "alignment_axis")?.unwrap_or_else(|| Top::most_polarizable(&polarizability_a3));
+    let numbers = |v: &Value, p: &str| -> Result<Vec<f64>> {
+        match v {
+            Value::Array(a) => a.iter().enumerate().map(|(i, x)| crate::input::as_f64(x, &format!("{p}[{i}]"), "relative weight")).collect(),
+            other => Err(Error::input(p, format!("expected an array of relative weights, got {}", type_name(other)))),
+        }
+    };
+    let by_k = f.opt_value("spin_weights_by_k").map(|v| numbers(v, &join(path, "spin_weights_by_k"))).transpose()?;
+    let by_class = f.opt_value("spin_weights_by_ka_kc").map(|v| numbers(v, &join(path, "spin_weights_by_ka_kc"))).transpose()?;
+    let spin_weights = match (by_k, by_class) {
+        (Some(_), Some(_)) => {
+            return Err(Error::input(
+                join(path, "spin_weights_by_k"),
+                "give spin_weights_by_k (symmetric tops) or spin_weights_by_ka_kc (asymmetric tops), not both",
+            ));
+        }
+        (Some(w), None) => TopSpinWeights::ByK(w),
+        (None, Some(w)) => {
+            let arr: [f64; 4] = w.try_into().map_err(|w: Vec<f64>| {
+                Error::input(
+                    join(path, "spin_weights_by_ka_kc"),
+                    format!("expected four weights for the (Ka, Kc) parity classes [even-even, even-odd, odd-even, odd-odd], got {}", w.len()),
+                )
+            })?;
+            TopSpinWeights::ByKaKc(arr)
+        }
+        (None, None) => TopSpinWeights::Equal,
+    };
+    let ionization_energy_ev = f.opt_f64("ionization_energy_ev", "eV")?;
+    f.finish()?;
+    let top = Top { dipole_axis, alignment_axis, spin_weights, ..kind_probe };
+    Ok(Molecule::from_top(&name, top, dipole_debye, ionization_energy_ev))
+}
+
+/// An inline top written back in the form `parse_top` reads.
+fn top_to_value(m: &Molecule, t: &crate::molecule::top::Top) -> Value {
+    use crate::molecule::top::TopSpinWeights;
+    let mut obj = serde_json::Map::new();
+    obj.insert("name".into(), json!(m.name));
+    obj.insert("a_cm".into(), json!(t.a_cm));
+    obj.insert("b_cm".into(), json!(t.b_cm));
+    obj.insert("c_cm".into(), json!(t.c_cm));
+    for (k, v) in [("d_j_cm", t.d_j_cm), ("d_jk_cm", t.d_jk_cm), ("d_k_cm", t.d_k_cm)] {
+        if v != 0.0 {
+            obj.insert(k.into(), json!(v));
+        }
+    }
+    let p = t.polarizability_a3;
+    obj.insert("polarizability_a3".into(), json!({"a": p[0], "b": p[1], "c": p[2]}));
+    if m.dipole_debye != 0.0 {
+        obj.insert("dipole_debye".into(), json!(m.dipole_debye));
+    }
+    obj.insert("dipole_axis".into(), json!(t.dipole_axis.letter()));
+    obj.insert("alignment_axis".into(), json!(t.alignment_axis.letter()));
+    match &t.spin_weights {
+        TopSpinWeights::Equal => {}
+        TopSpinWeights::ByK(w) => {
+            obj.insert("spin_weights_by_k".into(), json!(w));
+        }
+        TopSpinWeights::ByKaKc(w) => {
+            obj.insert("spin_weights_by_ka_kc".into(), json!(w));
+        }
+    }
+    if let Some(ip) = m.ionization_energy_ev {
+        obj.insert("ionization_energy_ev".into(), json!(ip));
+    }
+    Value::Object(obj)
 }
 
 fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {

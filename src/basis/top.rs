@@ -296,12 +296,11 @@ impl TopBlockBasis {
         self.functions[n].j
     }
 
-    /// Matrix of `op` between the block's basis functions (before the change to eigenstates).
-    pub fn function_matrix(&self, op: &AngularOperator) -> DMatrix<f64> {
-        let n = self.size();
+    /// Non-zero elements (row, column, value) of `op` between the block's basis functions.
+    pub fn function_triplets(&self, op: &AngularOperator) -> Vec<(usize, usize, f64)> {
         let m = self.block.m;
         let r = op.rank();
-        let mut out = DMatrix::zeros(n, n);
+        let mut out = vec![];
         let qs: Vec<i64> = op.terms.iter().map(|t| t.1).chain(std::iter::once(0)).collect();
         let mut cand: Vec<usize> = vec![];
         for (b, g) in self.functions.iter().enumerate() {
@@ -323,9 +322,57 @@ impl TopBlockBasis {
             cand.dedup();
             for &a in &cand {
                 let f = &self.functions[a];
-                out[(a, b)] = pair_element(f, g, |kp, k| op.element(f.j, kp, g.j, k, m));
+                let v = pair_element(f, g, |kp, k| op.element(f.j, kp, g.j, k, m));
+                if v != 0.0 {
+                    out.push((a, b, v));
+                }
             }
         }
+        out
+    }
+
+    /// Matrix of `op` between the block's basis functions (before the change to eigenstates).
+    pub fn function_matrix(&self, op: &AngularOperator) -> DMatrix<f64> {
+        let n = self.size();
+        let mut out = DMatrix::zeros(n, n);
+        for (a, b, v) in self.function_triplets(op) {
+            out[(a, b)] = v;
+        }
+        out
+    }
+
+    /// Matrix of `op` between eigenstates, kept as the blocks between J values at most its rank apart.
+    pub fn operator_banded(&self, op: &AngularOperator) -> Banded {
+        let f = self.function_matrix_sparse_blocks(op);
+        let mut blocks = vec![];
+        for ((a, b), sub) in f {
+            let (_, sa, _) = self.j_ranges[a];
+            let (_, sb, _) = self.j_ranges[b];
+            let t = self.vectors[a].transpose() * sub * &self.vectors[b];
+            blocks.push((sa, sb, t));
+        }
+        blocks.sort_by_key(|b| (b.0, b.1));
+        Banded { size: self.size(), blocks }
+    }
+
+    /// The function-basis matrix of `op` cut into (J range, J range) sub-blocks.
+    fn function_matrix_sparse_blocks(&self, op: &AngularOperator) -> Vec<((usize, usize), DMatrix<f64>)> {
+        let range_of: Vec<usize> = {
+            let mut v = vec![0; self.size()];
+            for (r, &(_, s, n)) in self.j_ranges.iter().enumerate() {
+                v[s..s + n].iter_mut().for_each(|x| *x = r);
+            }
+            v
+        };
+        let mut map: HashMap<(usize, usize), DMatrix<f64>> = HashMap::new();
+        for (a, b, v) in self.function_triplets(op) {
+            let (ra, rb) = (range_of[a], range_of[b]);
+            let (_, sa, na) = self.j_ranges[ra];
+            let (_, sb, nb) = self.j_ranges[rb];
+            map.entry((ra, rb)).or_insert_with(|| DMatrix::zeros(na, nb))[(a - sa, b - sb)] = v;
+        }
+        let mut out: Vec<_> = map.into_iter().collect();
+        out.sort_by_key(|x| x.0);
         out
     }
 
@@ -409,6 +456,42 @@ impl TopBlockBasis {
             }
         }
         self.to_eigenbasis(&f, i64::MAX)
+    }
+}
+
+/// A symmetric matrix between eigenstates stored as dense sub-blocks (row start, column start, block);
+/// both (a, b) and (b, a) blocks are present.
+#[derive(Debug, Clone)]
+pub struct Banded {
+    /// Dimension of the full matrix.
+    pub size: usize,
+    /// (first row, first column, values) of each stored block.
+    pub blocks: Vec<(usize, usize, DMatrix<f64>)>,
+}
+
+impl Banded {
+    /// A dense matrix as one block.
+    pub fn dense(m: DMatrix<f64>) -> Banded {
+        Banded { size: m.nrows(), blocks: vec![(0, 0, m)] }
+    }
+
+    /// The full dense matrix.
+    pub fn to_dense(&self) -> DMatrix<f64> {
+        let mut out = DMatrix::zeros(self.size, self.size);
+        for (r, c, b) in &self.blocks {
+            out.view_mut((*r, *c), b.shape()).copy_from(b);
+        }
+        out
+    }
+
+    /// Element (r, c) (zero outside the stored blocks).
+    pub fn get(&self, r: usize, c: usize) -> f64 {
+        for (r0, c0, b) in &self.blocks {
+            if r >= *r0 && r < r0 + b.nrows() && c >= *c0 && c < c0 + b.ncols() {
+                return b[(r - r0, c - c0)];
+            }
+        }
+        0.0
     }
 }
 

@@ -1,6 +1,8 @@
 //! Thermal ensembles: Boltzmann populations of every |J M⟩ sublevel with nuclear-spin weights,
 //! truncated at a stated tolerance and grouped into (|M|, parity) blocks.
 
+pub mod top;
+
 use crate::error::{Error, Result};
 
 use crate::molecule::Molecule;

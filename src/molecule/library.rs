@@ -58,6 +58,7 @@ impl LibraryEntry {
             alpha_perpendicular_a3: self.alpha_perpendicular_a3.value,
             spin_weights: self.spin_weights,
             dipole_debye: self.dipole_debye.map(|d| d.value).unwrap_or(0.0),
+            top: None,
             beta_parallel_au: self.beta_parallel_au.map(|b| b.value),
             beta_perpendicular_au: self.beta_perpendicular_au.map(|b| b.value),
             ionization_energy_ev: self.ionization_energy_ev.map(|b| b.value),

@@ -40,6 +40,11 @@ pub struct Molecule {
     /// First ionization energy, eV (for the tunnel-ionization estimate), if known.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub ionization_energy_ev: Option<f64>,
+    /// Symmetric or asymmetric top constants; None for a linear molecule. For a top, `b_cm` holds the
+    /// constant that sets the revival time scale, `alpha_parallel_a3`/`alpha_perpendicular_a3` the largest
+    /// and smallest principal polarizabilities, and `dipole_debye` the dipole along `top.dipole_axis`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub top: Option<top::Top>,
 }
 
 fn is_zero(x: &f64) -> bool {
@@ -71,7 +76,36 @@ impl Molecule {
             beta_parallel_au: None,
             beta_perpendicular_au: None,
             ionization_energy_ev: None,
+            top: None,
         }
+    }
+
+    /// A symmetric or asymmetric top: its constants, dipole (debye, along `top.dipole_axis`) and
+    /// ionization energy (eV). The linear-molecule fields are filled with the top's summary values.
+    pub fn from_top(name: &str, top: top::Top, dipole_debye: f64, ionization_energy_ev: Option<f64>) -> Molecule {
+        let p = top.polarizability_a3;
+        let b_cm = match top.kind() {
+            top::TopKind::Asymmetric => 0.5 * (top.b_cm + top.c_cm),
+            _ => top.b_cm,
+        };
+        Molecule {
+            name: name.to_string(),
+            b_cm,
+            d_cm: 0.0,
+            alpha_parallel_a3: p.iter().cloned().fold(f64::MIN, f64::max),
+            alpha_perpendicular_a3: p.iter().cloned().fold(f64::MAX, f64::min),
+            spin_weights: [1.0, 1.0],
+            dipole_debye,
+            beta_parallel_au: None,
+            beta_perpendicular_au: None,
+            ionization_energy_ev,
+            top: Some(top),
+        }
+    }
+
+    /// True for symmetric and asymmetric tops.
+    pub fn is_top(&self) -> bool {
+        self.top.is_some()
     }
 
     /// True if the molecule has a permanent dipole moment.
@@ -104,6 +138,9 @@ impl Molecule {
 
     /// Check every constant; errors name the field (prefixed by `path`) and the expected unit.
     pub fn validate(&self, path: &str) -> Result<()> {
+        if let Some(t) = &self.top {
+            t.validate(path)?;
+        }
         require_positive(&format!("{path}.b_cm"), self.b_cm, "cm⁻¹")?;
         if !(1e-4..=100.0).contains(&self.b_cm) {
             return Err(Error::input(format!("{path}.b_cm"), format!("expected a rotational constant between 1e-4 and 100 cm⁻¹, got {}", self.b_cm)));

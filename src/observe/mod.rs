@@ -1,8 +1,60 @@
 //! Observables and traces. After the last field interaction, expectation values follow exactly from
 //! the density matrix by sums over coherences: ⟨O⟩(t) = Σ_nm ρ_nm O_mn exp(−i(ω_n − ω_m)(t − t0)).
 
+pub mod pairs;
+
 use crate::goal::{Goal, GoalKind, Observable, Score};
 use crate::propagate::{BlockOps, BlockState};
+use pairs::PairSums;
+
+/// The ensemble's coherence sums after the last field interaction, for evaluation at any later time.
+#[derive(Debug, Clone)]
+pub enum FreeSums {
+    /// Linear molecules: merged by J (t0 = ∞ marks runs scored on their samples alone).
+    Levels(LevelSums),
+    /// Tops: merged by pairs of field-free levels; `cos2` and `abs` index the alignment axis's
+    /// ⟨cos²θ⟩ and ⟨cos²θ_2D⟩ among the observables.
+    Pairs {
+        /// The sums.
+        sums: PairSums,
+        /// Index of the alignment axis's ⟨cos²θ⟩.
+        cos2: usize,
+        /// Index of its ⟨cos²θ_2D⟩, when built.
+        abs: Option<usize>,
+    },
+}
+
+impl FreeSums {
+    /// Time from which the sums are valid, ps.
+    pub fn t0_ps(&self) -> f64 {
+        match self {
+            FreeSums::Levels(l) => l.t0_ps,
+            FreeSums::Pairs { sums, .. } => sums.t0_ps,
+        }
+    }
+
+    /// (⟨cos²θ⟩, ⟨cos²θ_2D⟩) at time t (ps); the second is 0 when not prepared.
+    pub fn eval(&self, t_ps: f64) -> (f64, f64) {
+        match self {
+            FreeSums::Levels(l) => l.eval(t_ps),
+            FreeSums::Pairs { sums, cos2, abs } => {
+                let v = sums.eval(t_ps);
+                (v[*cos2], abs.map(|i| v[i]).unwrap_or(0.0))
+            }
+        }
+    }
+
+    /// Exact means of (⟨cos²θ⟩, ⟨cos²θ_2D⟩) over [a, b] (ps).
+    pub fn mean_over(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
+        match self {
+            FreeSums::Levels(l) => l.mean_over(a_ps, b_ps),
+            FreeSums::Pairs { sums, cos2, abs } => {
+                let v = sums.mean_over(a_ps, b_ps);
+                (v[*cos2], abs.map(|i| v[i]).unwrap_or(0.0))
+            }
+        }
+    }
+}
 
 /// One block's share of the coherence sums: ρ_nm O_mn for the block's levels, labelled by J.
 #[derive(Debug, Clone)]
@@ -336,7 +388,7 @@ fn phase_product(ar: f64, ai: f64, br: f64, bi: f64) -> (f64, f64) {
 }
 
 /// A sampled trace of alignment observables.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct Trace {
     /// Sample times, ps.
     pub times_ps: Vec<f64>,
@@ -348,6 +400,12 @@ pub struct Trace {
     pub cos: Vec<f64>,
     /// ⟨cos³θ⟩ at each time; empty when no field breaks head–tail symmetry.
     pub cos3: Vec<f64>,
+    /// Tops: ⟨cos²θ⟩ of the body a axis with Z at each time; empty for linear molecules.
+    pub cos2_a: Vec<f64>,
+    /// Tops: ⟨cos²θ⟩ of the body b axis with Z; empty for linear molecules.
+    pub cos2_b: Vec<f64>,
+    /// Tops: ⟨cos²θ⟩ of the body c axis with Z; empty for linear molecules.
+    pub cos2_c: Vec<f64>,
 }
 
 /// Location of an extremum of a sampled series.
@@ -381,7 +439,7 @@ impl Trace {
 /// the last pulse. Peaks and minima found on the grid are refined by golden-section search on the
 /// exact field-free expression where it applies; means use the exact time average when the window is
 /// field-free.
-pub fn score_goal(goal: &Goal, trace: &Trace, after: &LevelSums, t_last: f64) -> Score {
+pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> Score {
     let series = match goal.observable {
         Observable::Cos2 => &trace.cos2,
         Observable::Cos2TwoD => &trace.cos2_2d,
@@ -393,7 +451,7 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &LevelSums, t_last: f64) ->
     }
     let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
     // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
-    let field_free = if goal.observable == Observable::Cos { f64::INFINITY } else { after.t0_ps };
+    let field_free = if goal.observable == Observable::Cos { f64::INFINITY } else { after.t0_ps() };
     match goal.kind {
         GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(trace.times_ps[0]) },
         GoalKind::Mean => {

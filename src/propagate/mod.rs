@@ -8,6 +8,7 @@
 use crate::basis::Block;
 
 pub mod polar;
+pub mod sparse;
 use crate::molecule::Molecule;
 use nalgebra::{DMatrix, SymmetricEigen};
 

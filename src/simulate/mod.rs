@@ -8,7 +8,7 @@ use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::goal::{Observable, Score};
 use crate::molecule::Molecule;
-use crate::observe::{BlockSums, DenseSums, LevelSums, Trace, score_goal};
+use crate::observe::{BlockSums, DenseSums, FreeSums, LevelSums, Trace, score_goal};
 use crate::optics::focal::FocalAverage;
 use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
 use crate::propagate::{BlockOps, BlockState, FreePhases, propagate_finite};
@@ -16,6 +16,8 @@ use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
 use nalgebra::DMatrix;
 use rayon::prelude::*;
+
+pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex};
@@ -44,8 +46,9 @@ impl Event {
 pub struct BlockReport {
     /// |M|.
     pub m: u32,
-    /// Parity of J: "even" or "odd".
-    pub parity: &'static str,
+    /// Symmetry of the block: parity of J ("even", "odd", "both") for linear molecules; K or the
+    /// (Ka, Kc) parities for tops.
+    pub parity: String,
     /// Highest J in the basis.
     pub j_max: u32,
     /// Number of basis states.
@@ -68,7 +71,7 @@ pub struct RunResult {
     /// The schedule that was run.
     pub events: Vec<Event>,
     /// Coherence sums of the ensemble after the last pulse, for evaluation at any later time.
-    pub final_sums: LevelSums,
+    pub final_sums: FreeSums,
     /// Exact time average of ⟨cosθ⟩ after the last field change (None where it vanishes by symmetry).
     pub permanent_cos: Option<f64>,
 }
@@ -86,7 +89,7 @@ impl RunResult {
 
     /// Time (ps) from which `eval_after` is valid: the end of the last field interaction.
     pub fn field_free_from_ps(&self) -> f64 {
-        self.final_sums.t0_ps
+        self.final_sums.t0_ps()
     }
 }
 
@@ -99,6 +102,8 @@ pub struct Solver {
     /// Numerical settings.
     pub settings: SolverSettings,
     cache: Mutex<HashMap<(u32, u32, usize, bool), Arc<BlockOps>>>,
+    /// The solver for symmetric and asymmetric tops (None for linear molecules, whose ensemble is `ensemble`).
+    pub top: Option<top::TopSolver>,
 }
 
 /// Per-block result before summing.
@@ -115,8 +120,23 @@ struct BlockOutcome {
 impl Solver {
     /// A solver for `molecule` at `temperature_k` with `settings`.
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
+        if let Some(t) = &molecule.top {
+            let top = top::TopSolver::new(t, temperature_k, settings)?;
+            let ensemble = ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, blocks: vec![] };
+            return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: Some(top) });
+        }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
-        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()) })
+        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: None })
+    }
+
+    /// Population left out of the thermal ensemble by its truncation.
+    pub fn discarded_population(&self) -> f64 {
+        self.top.as_ref().map(|t| t.ensemble.discarded_population).unwrap_or(self.ensemble.discarded_population)
+    }
+
+    /// Number of initially populated sublevels.
+    pub fn initial_states(&self) -> usize {
+        self.top.as_ref().map(|t| t.ensemble.state_count()).unwrap_or_else(|| self.ensemble.state_count())
     }
 
     /// Operators of a block, built once and cached.
@@ -227,6 +247,9 @@ impl Solver {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
         }
+        if let Some(t) = &self.top {
+            return t.run(field, times_ps, with_2d);
+        }
         if field.is_polar() || self.settings.both_parities {
             return self.run_polar(field, times_ps);
         }
@@ -282,14 +305,14 @@ impl Solver {
         let t_end = events.last().map(|e| e.span().1).or(times_ps.first().copied()).unwrap_or(0.0);
         let final_sums = merge(t_end, &|o: &BlockOutcome| &o.final_sums);
         let blocks = outcomes.into_iter().map(|o| o.report).collect();
-        let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] }, cos: vec![], cos3: vec![] };
+        let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] }, ..Default::default() };
         Ok(RunResult {
             trace,
             permanent_cos2: final_sums.cos2_static,
             permanent_cos2_2d: final_sums.abscos_static,
             blocks,
             events,
-            final_sums,
+            final_sums: FreeSums::Levels(final_sums),
             permanent_cos: None,
         })
     }
@@ -395,8 +418,13 @@ impl Solver {
         if ti < times.len() {
             gaps.push((ti, times.len(), state.t_ps, final_sums.clone()));
         }
-        let report =
-            BlockReport { m: block.m, parity: if block.parity == 0 { "even" } else { "odd" }, j_max: block.j_max(), size: block.size, edge_population: edge };
+        let report = BlockReport {
+            m: block.m,
+            parity: if block.parity == 0 { "even" } else { "odd" }.to_string(),
+            j_max: block.j_max(),
+            size: block.size,
+            edge_population: edge,
+        };
         Ok(Some(BlockOutcome { values, gaps, final_sums, report }))
     }
 }
@@ -453,7 +481,7 @@ impl Solver {
         let mut sums = LevelSums::new(vec![], f64::INFINITY, false);
         sums.cos2_static = perm;
         sums.abscos_static = perm2d;
-        r.final_sums = sums;
+        r.final_sums = FreeSums::Levels(sums);
         Ok(r)
     }
 }
@@ -576,12 +604,20 @@ impl Solver {
             blocks.push(report);
         }
         let [cos2, cos2_2d, cos, cos3]: [Vec<f64>; POLAR_OBSERVABLES] = values.try_into().expect("four observables");
-        let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3 };
+        let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3, ..Default::default() };
         // Coherence sums by J do not apply in a static field: goals are scored on the samples alone.
         let mut final_sums = LevelSums::new(vec![], f64::INFINITY, false);
         final_sums.cos2_static = permanent[0];
         final_sums.abscos_static = permanent[1];
-        Ok(RunResult { trace, permanent_cos2: permanent[0], permanent_cos2_2d: permanent[1], blocks, events, final_sums, permanent_cos: Some(permanent[2]) })
+        Ok(RunResult {
+            trace,
+            permanent_cos2: permanent[0],
+            permanent_cos2_2d: permanent[1],
+            blocks,
+            events,
+            final_sums: FreeSums::Levels(final_sums),
+            permanent_cos: Some(permanent[2]),
+        })
     }
 
     /// One |M| block with both parities: returns per-observable contributions, time averages after the
@@ -734,7 +770,7 @@ impl Solver {
             return Ok(None);
         }
         let perm: Vec<f64> = sums.statics.iter().map(|v| g * v).collect();
-        let report = BlockReport { m: block.m, parity: "both", j_max: block.j_max(), size: block.size, edge_population: edge };
+        let report = BlockReport { m: block.m, parity: "both".to_string(), j_max: block.j_max(), size: block.size, edge_population: edge };
         Ok(Some((values, perm, report)))
     }
 }
@@ -788,8 +824,8 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
         goal_score,
         scenario: scenario.clone(),
         result,
-        discarded_population: solver.ensemble.discarded_population,
-        initial_states: solver.ensemble.state_count(),
+        discarded_population: solver.discarded_population(),
+        initial_states: solver.initial_states(),
         run_time_s: t0.elapsed().as_secs_f64(),
     })
 }

@@ -1,0 +1,472 @@
+//! The solver path for symmetric and asymmetric tops in linearly polarized laser pulses (M conserved).
+//!
+//! Each (M, symmetry) block works in its field-free eigenbasis: field-free evolution is exact phases,
+//! and the laser coupling −¼E²Σ α_ii Φ_Zi² is one real symmetric matrix A whose eigendecomposition
+//! makes a kick exp(iθA) exact. Finite pulses use the same fourth-order splitting as linear molecules.
+//! After the last pulse the blocks' coherences are merged by pairs of field-free levels.
+
+use super::{BlockReport, Event, RunResult};
+use crate::basis::top::{AngularOperator, Banded, TopBlock, TopBlockBasis, TopFrame, TopSym};
+use crate::ensemble::top::{TopBlockPopulation, TopEnsemble};
+use crate::error::{Error, Result};
+use crate::field::FieldModel;
+use crate::molecule::top::{BodyAxis, Top};
+use crate::observe::pairs::PairSums;
+use crate::observe::{FreeSums, Trace};
+use crate::propagate::sparse::{Csr, chebyshev_kick};
+use crate::propagate::{BlockState, propagate_finite};
+use crate::scenario::{Method, SolverSettings};
+use crate::units::cm_to_rad_per_ps;
+use nalgebra::DMatrix;
+use rayon::prelude::*;
+use std::collections::HashMap;
+use std::sync::{Arc, Mutex};
+
+/// Largest J a top's basis may reach; beyond it the run is refused, not truncated.
+pub const MAX_TOP_BASIS_J: i64 = 160;
+
+/// Number of body-axis alignment observables (⟨cos²θ⟩ of the a, b and c axes).
+const AXES: usize = 3;
+
+/// Operators of one top block. States are kept in the field-free eigenbasis (free evolution is exact
+/// phases); the coupling is applied in the function basis, where it is sparse.
+#[derive(Debug)]
+pub struct TopOps {
+    /// Basis, eigenstates and level labels.
+    pub basis: TopBlockBasis,
+    /// Field-free angular frequencies of the eigenstates, rad/ps.
+    pub omega: Vec<f64>,
+    /// Coupling A = Σ_i (α_i − α_min) Φ_Zi² / Δα in the function basis (spectrum in [0, 1]).
+    coupling: Csr,
+    /// Observables between eigenstates: Φ_Za², Φ_Zb², Φ_Zc², then |Φ_Z,align| when built for 2D.
+    pub observables: Vec<Banded>,
+    /// Largest angular frequency of a transition the coupling drives, rad/ps.
+    pub fastest: f64,
+}
+
+impl TopOps {
+    /// Build the operators of `block` for `top` in `frame`; `with_2d` adds the detector-plane observable.
+    pub fn new(top: &Top, frame: &TopFrame, block: TopBlock, with_2d: bool) -> TopOps {
+        let basis = TopBlockBasis::new(frame, block);
+        let omega: Vec<f64> = basis.energies_cm.iter().map(|e| cm_to_rad_per_ps(*e)).collect();
+        let ops: Vec<AngularOperator> = (0..AXES).map(|i| AngularOperator::cos2_position(frame.position(BodyAxis::from_index(i)))).collect();
+        let mut observables: Vec<Banded> = ops.iter().map(|o| basis.operator_banded(o)).collect();
+        let da = top.delta_alpha_a3();
+        let a_min = top.polarizability_a3.iter().cloned().fold(f64::MAX, f64::min);
+        let weights: Vec<f64> = (0..AXES).map(|i| (top.polarizability_a3[i] - a_min) / da).collect();
+        let mut a_op = AngularOperator { identity: 0.0, terms: vec![] };
+        for (o, w) in ops.iter().zip(&weights) {
+            a_op.identity += w * o.identity;
+            a_op.terms.extend(o.terms.iter().map(|&(r, q, c)| (r, q, w * c)));
+        }
+        let coupling = Csr::from_triplets(basis.size(), basis.function_triplets(&a_op));
+        let mut fastest: f64 = 0.0;
+        for (r0, c0, blk) in &basis.operator_banded(&a_op).blocks {
+            for c in 0..blk.ncols() {
+                for r in 0..blk.nrows() {
+                    if blk[(r, c)].abs() > 1e-3 {
+                        fastest = fastest.max((omega[r0 + r] - omega[c0 + c]).abs());
+                    }
+                }
+            }
+        }
+        if with_2d {
+            observables.push(Banded::dense(basis.abs_direction_cosine(frame.position(top.alignment_axis))));
+        }
+        TopOps { basis, omega, coupling, observables, fastest }
+    }
+
+    /// Exact kick exp(iθA) on all states (eigenbasis in and out).
+    pub fn kick(&self, state: &mut BlockState, theta: f64) {
+        if theta == 0.0 {
+            return;
+        }
+        let mut f = self.change_basis(&state.psi, false);
+        chebyshev_kick(&self.coupling, theta, &mut f);
+        state.psi = self.change_basis(&f, true);
+    }
+
+    /// Eigenbasis → function basis (U ψ per J), or back (Uᵀ ψ) when `back`.
+    fn change_basis(&self, psi: &DMatrix<f64>, back: bool) -> DMatrix<f64> {
+        let mut out = DMatrix::zeros(psi.nrows(), psi.ncols());
+        for (r, &(_, s, n)) in self.basis.j_ranges.iter().enumerate() {
+            let u = &self.basis.vectors[r];
+            let part = psi.rows(s, n);
+            let t = if back { u.transpose() * part } else { u * part };
+            out.rows_mut(s, n).copy_from(&t);
+        }
+        out
+    }
+
+    /// Number of eigenstates in the top two J values of the basis (the edge watched for truncation).
+    pub fn edge_states(&self) -> usize {
+        let r = &self.basis.j_ranges;
+        r.iter().rev().take(2).map(|x| x.2).sum()
+    }
+}
+
+/// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis).
+fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
+    let k = state.k;
+    let mut total = 0.0;
+    for (r0, c0, b) in &o.blocks {
+        let (nr, nc) = b.shape();
+        for (c, p) in pops.iter().enumerate() {
+            for col in [c, c + k] {
+                let x = state.psi.column(col);
+                let y = b * x.rows(*c0, nc);
+                total += p * x.rows(*r0, nr).dot(&y);
+            }
+        }
+    }
+    total
+}
+
+/// A block's coherence coefficients ρ_ab O_ba (a < b) and diagonal sums, for every observable.
+struct BlockPairs {
+    diag: Vec<f64>,
+    pairs: Vec<(usize, usize, Vec<(f64, f64)>)>,
+}
+
+/// Coefficients of `state` for the observables (which share the block pattern of the first one,
+/// except a dense last one).
+fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> BlockPairs {
+    let n = state.psi.nrows();
+    let k = state.k;
+    let mut w = state.psi.clone();
+    for (c, p) in pops.iter().enumerate() {
+        let s = p.sqrt();
+        w.column_mut(c).scale_mut(s);
+        w.column_mut(c + k).scale_mut(s);
+    }
+    let (wr, wi) = (w.columns(0, k).into_owned(), w.columns(k, k).into_owned());
+    let nobs = observables.len();
+    let mut diag = vec![0.0; nobs];
+    let mut pairs: HashMap<(usize, usize), Vec<(f64, f64)>> = HashMap::new();
+    let trim = 1e-22;
+    let pop: Vec<f64> = (0..n).map(|r| wr.row(r).norm_squared() + wi.row(r).norm_squared()).collect();
+    for (o, op) in observables.iter().enumerate() {
+        for (r0, c0, b) in &op.blocks {
+            let (nr, nc) = b.shape();
+            if c0 < r0 && nc + c0 <= *r0 {
+                continue; // lower blocks mirror upper ones
+            }
+            let (ar, ai) = (wr.rows(*r0, nr), wi.rows(*r0, nr));
+            let (br, bi) = (wr.rows(*c0, nc), wi.rows(*c0, nc));
+            // ρ_ab = Σ_c w_ac conj(w_bc)
+            let re = &ar * br.transpose() + &ai * bi.transpose();
+            let im = &ai * br.transpose() - &ar * bi.transpose();
+            for x in 0..nr {
+                let a = r0 + x;
+                if pop[a] <= trim {
+                    continue;
+                }
+                for y in 0..nc {
+                    let bb = c0 + y;
+                    if bb < a || pop[bb] <= trim {
+                        continue;
+                    }
+                    let v = b[(x, y)];
+                    if v == 0.0 {
+                        continue;
+                    }
+                    if bb == a {
+                        diag[o] += re[(x, y)] * v;
+                    } else {
+                        let e = pairs.entry((a, bb)).or_insert_with(|| vec![(0.0, 0.0); nobs]);
+                        e[o].0 += re[(x, y)] * v;
+                        e[o].1 += im[(x, y)] * v;
+                    }
+                }
+            }
+        }
+    }
+    let mut list: Vec<(usize, usize, Vec<(f64, f64)>)> = pairs.into_iter().map(|((a, b), v)| (a, b, v)).collect();
+    list.sort_by_key(|x| (x.0, x.1));
+    BlockPairs { diag, pairs: list }
+}
+
+/// Solver for one top at one temperature; operators are cached across runs.
+pub struct TopSolver {
+    /// The top's constants.
+    pub top: Top,
+    /// Its quantization frame.
+    pub frame: TopFrame,
+    /// The initial thermal ensemble.
+    pub ensemble: TopEnsemble,
+    settings: SolverSettings,
+    cache: Mutex<HashMap<(TopBlock, bool), Arc<TopOps>>>,
+}
+
+/// What one block returns before the blocks are merged.
+struct TopOutcome {
+    values: Vec<Vec<f64>>,
+    /// (first sample, end sample, time, coherences) of each field-free stretch with samples.
+    gaps: Vec<(usize, usize, f64, BlockPairs)>,
+    /// Time and coherences after the last event.
+    final_pairs: (f64, BlockPairs),
+    ops: Arc<TopOps>,
+    report: BlockReport,
+    /// How many identical blocks this one stands for.
+    weight: f64,
+}
+
+impl TopSolver {
+    /// A solver for `top` at `temperature_k`.
+    pub fn new(top: &Top, temperature_k: f64, settings: SolverSettings) -> Result<TopSolver> {
+        let frame = TopFrame::new(top, false);
+        let ensemble = TopEnsemble::new(top, &frame, temperature_k, settings.thermal_tolerance)?;
+        Ok(TopSolver { top: top.clone(), frame, ensemble, settings, cache: Mutex::new(HashMap::new()) })
+    }
+
+    fn ops(&self, block: TopBlock, with_2d: bool) -> Arc<TopOps> {
+        let key = (block, with_2d);
+        if let Some(o) = self.cache.lock().expect("cache lock").get(&key) {
+            return o.clone();
+        }
+        let o = Arc::new(TopOps::new(&self.top, &self.frame, block, with_2d));
+        self.cache.lock().expect("cache lock").insert(key, o.clone());
+        o
+    }
+
+    /// Kick strength P (rad) of each pulse for the top's anisotropy Δα = α_max − α_min.
+    fn strengths(&self, field: &FieldModel) -> f64 {
+        let da = self.top.delta_alpha_a3();
+        let b = cm_to_rad_per_ps(self.top.c_cm);
+        field
+            .pulses
+            .iter()
+            .map(|p| {
+                let adiabatic = 1.5 * (p.peak_rate_rad_per_ps(da).abs() / b).sqrt() + 3.0;
+                p.kick_strength(da).abs().min(adiabatic)
+            })
+            .sum()
+    }
+
+    /// Run `field` and sample the observables at `times_ps` (ascending).
+    pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
+        if field.static_field.is_some() || !field.two_colour.is_empty() || !field.terahertz.is_empty() {
+            let which = if field.static_field.is_some() {
+                "static_field"
+            } else if !field.two_colour.is_empty() {
+                "two_colour"
+            } else {
+                "terahertz"
+            };
+            return Err(Error::input(
+                which,
+                "orienting fields are supported for linear molecules only so far; symmetric and asymmetric tops take laser pulses",
+            ));
+        }
+        let total = self.strengths(field);
+        let reach = (1.1 * total).ceil() as i64 + 10;
+        if !total.is_finite() || self.ensemble.j_max + reach > MAX_TOP_BASIS_J {
+            return Err(Error::input(
+                "pulses",
+                format!(
+                    "total kick strength P = {total:.3e} would drive the top beyond J = {MAX_TOP_BASIS_J}, the largest basis kicktrain uses for tops; expected weaker pulses or a lower temperature"
+                ),
+            ));
+        }
+        let da = self.top.delta_alpha_a3();
+        let mut events: Vec<Event> = vec![];
+        if self.settings.method == Method::Kick {
+            for (i, p) in field.pulses.iter().enumerate().filter(|(_, p)| p.peak_intensity_wcm2 > 0.0) {
+                events.push(Event::Kick { t_ps: p.kick_time_ps(), strength: p.kick_strength(da), pulse: i });
+            }
+        } else {
+            for iv in field.active_intervals() {
+                let shortest = iv.pulses.iter().map(|&i| field.pulses[i].time_scale_ps()).fold(f64::INFINITY, f64::min);
+                let peak: f64 = iv.pulses.iter().map(|&i| field.pulses[i].peak_rate_rad_per_ps(da).abs()).sum();
+                let step_ps = match self.settings.step_fs {
+                    Some(fs) => fs / 1000.0,
+                    None => (shortest / 1.5).min(2.0 / peak.max(1e-30)),
+                };
+                events.push(Event::Finite { start_ps: iv.start_ps, end_ps: iv.end_ps, pulses: iv.pulses.clone(), step_ps });
+            }
+        }
+        events.sort_by(|a, b| a.span().0.total_cmp(&b.span().0));
+        let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
+        let outcomes: Vec<TopOutcome> =
+            self.ensemble.blocks.par_iter().map(|bp| self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach)).collect::<Result<Vec<_>>>()?;
+        let nobs = AXES + usize::from(with_2d);
+        let mut values = vec![vec![0.0; times_ps.len()]; nobs];
+        for o in &outcomes {
+            for (acc, v) in values.iter_mut().zip(&o.values) {
+                for (a, b) in acc.iter_mut().zip(v) {
+                    *a += b;
+                }
+            }
+        }
+        // Level labels shared by all blocks: (symmetry, J, index within J) → id, assigned in block order.
+        let mut ids: HashMap<(TopSym, i64, usize), u32> = HashMap::new();
+        let level_ids: Vec<Vec<u32>> = outcomes
+            .iter()
+            .map(|o| {
+                let b = &o.ops.basis;
+                let mut out = vec![0u32; b.size()];
+                for &(j, start, n) in &b.j_ranges {
+                    for i in 0..n {
+                        let next = ids.len() as u32;
+                        out[start + i] = *ids.entry((b.block.sym, j, i)).or_insert(next);
+                    }
+                }
+                out
+            })
+            .collect();
+        let merge = |t0: f64, pick: &dyn Fn(&TopOutcome) -> &BlockPairs| -> PairSums {
+            let mut sums = PairSums::new(nobs, t0);
+            for (o, lid) in outcomes.iter().zip(&level_ids) {
+                let p = pick(o);
+                sums.add_pairs(o.weight, &p.diag, p.pairs.iter().map(|(a, b, c)| (*a, *b, c.as_slice())), lid, &o.ops.omega);
+            }
+            sums
+        };
+        if let Some(first) = outcomes.first() {
+            for (g, &(from, to, t0, _)) in first.gaps.iter().enumerate() {
+                let sums = merge(t0, &|o: &TopOutcome| &o.gaps[g].3);
+                sums.eval_series(&times_ps[from..to], |i, v| {
+                    for (acc, x) in values.iter_mut().zip(v) {
+                        acc[from + i] += x;
+                    }
+                });
+            }
+        }
+        let t_end = outcomes.first().map(|o| o.final_pairs.0).unwrap_or(t_first);
+        let final_sums = merge(t_end, &|o: &TopOutcome| &o.final_pairs.1);
+        let statics = final_sums.statics();
+        let align = self.top.alignment_axis.index();
+        let trace = Trace {
+            times_ps: times_ps.to_vec(),
+            cos2: values[align].clone(),
+            cos2_2d: if with_2d { values[AXES].clone() } else { vec![] },
+            cos2_a: values[0].clone(),
+            cos2_b: values[1].clone(),
+            cos2_c: values[2].clone(),
+            ..Default::default()
+        };
+        Ok(RunResult {
+            trace,
+            permanent_cos2: statics[align],
+            permanent_cos2_2d: if with_2d { statics[AXES] } else { 0.0 },
+            blocks: outcomes.into_iter().map(|o| o.report).collect(),
+            events,
+            final_sums: FreeSums::Pairs { sums: final_sums, cos2: align, abs: with_2d.then_some(AXES) },
+            permanent_cos: None,
+        })
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn run_block(
+        &self,
+        bp: &TopBlockPopulation,
+        field: &FieldModel,
+        events: &[Event],
+        times: &[f64],
+        t_first: f64,
+        with_2d: bool,
+        reach: i64,
+    ) -> Result<TopOutcome> {
+        let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(0);
+        let mut j_max = (j_thermal + reach).min(MAX_TOP_BASIS_J);
+        loop {
+            let ops = self.ops(TopBlock { m: bp.m, sym: bp.sym, j_max }, with_2d);
+            if let Some(o) = self.try_block(ops, bp, field, events, times, t_first)? {
+                return Ok(o);
+            }
+            if j_max >= MAX_TOP_BASIS_J {
+                return Err(Error::Numerical(format!(
+                    "block M = {}, {:?}: the basis would need J > {MAX_TOP_BASIS_J}; lower the intensities or the temperature",
+                    bp.m, bp.sym
+                )));
+            }
+            j_max = (j_max + (j_max / 4).max(4)).min(MAX_TOP_BASIS_J);
+        }
+    }
+
+    fn try_block(
+        &self,
+        ops: Arc<TopOps>,
+        bp: &TopBlockPopulation,
+        field: &FieldModel,
+        events: &[Event],
+        times: &[f64],
+        t_first: f64,
+    ) -> Result<Option<TopOutcome>> {
+        let b = &ops.basis;
+        let start: Vec<usize> = bp
+            .levels
+            .iter()
+            .map(|&(j, idx, _)| {
+                let r = b.j_ranges.iter().find(|r| r.0 == j).expect("thermal level inside the basis");
+                r.1 + idx
+            })
+            .collect();
+        let pops: Vec<f64> = bp.levels.iter().map(|l| l.2).collect();
+        let g = bp.weight;
+        let da = self.top.delta_alpha_a3();
+        let mut state = BlockState::new(b.size(), &start, t_first);
+        let nobs = ops.observables.len();
+        let mut values = vec![vec![0.0; times.len()]; nobs];
+        let mut gaps = vec![];
+        let mut ti = 0usize;
+        let mut edge: f64 = 0.0;
+        let edge_states = ops.edge_states();
+        for ev in events {
+            let (s, e) = ev.span();
+            let gap_end = ti + times[ti..].partition_point(|t| *t < s);
+            if gap_end > ti {
+                gaps.push((ti, gap_end, state.t_ps, block_pairs(&state, &pops, &ops.observables)));
+                ti = gap_end;
+            }
+            let dt = s - state.t_ps;
+            if dt != 0.0 {
+                state.free_with(&crate::propagate::FreePhases::from_omega(&ops.omega, dt));
+            }
+            state.t_ps = s;
+            match ev {
+                Event::Kick { strength, .. } => ops.kick(&mut state, *strength),
+                Event::Finite { pulses, step_ps, .. } => {
+                    let eval_now = |st: &BlockState| -> Vec<f64> { ops.observables.iter().map(|o| g * expect_banded(st, &pops, o)).collect() };
+                    while ti < times.len() && times[ti] == s {
+                        for (o, v) in eval_now(&state).into_iter().enumerate() {
+                            values[o][ti] = v;
+                        }
+                        ti += 1;
+                    }
+                    let inside = times[ti..].partition_point(|t| *t < e);
+                    let stops = &times[ti..ti + inside];
+                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), ..Default::default() };
+                    let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
+                    let step = if self.settings.step_fs.is_some() { *step_ps } else { step_ps.min(1.5 / ops.fastest.max(1e-30)) };
+                    let base = ti;
+                    let mut kick = |st: &mut BlockState, t: f64, h: f64| ops.kick(st, h * sub.alignment_rate(t, da));
+                    propagate_finite(&mut state, &ops.omega, &mut kick, e, step, stops, &breaks, |i, st| {
+                        for (o, v) in eval_now(st).into_iter().enumerate() {
+                            values[o][base + i] = v;
+                        }
+                    });
+                    ti += inside;
+                }
+            }
+            edge = edge.max(state.edge_population(edge_states));
+            if edge > self.settings.edge_tolerance {
+                return Ok(None);
+            }
+        }
+        let final_pairs = (state.t_ps, block_pairs(&state, &pops, &ops.observables));
+        if ti < times.len() {
+            gaps.push((ti, times.len(), final_pairs.0, block_pairs(&state, &pops, &ops.observables)));
+        }
+        let label = match bp.sym {
+            TopSym::K(k) => format!("K={k}"),
+            TopSym::Wang { .. } => {
+                let (a, c) = bp.sym.ka_kc_parity(&self.frame).expect("Wang block");
+                format!("Ka {}, Kc {}", ["even", "odd"][a as usize], ["even", "odd"][c as usize])
+            }
+            TopSym::KParity(p) => format!("K {}", ["even", "odd"][p as usize]),
+        };
+        let report = BlockReport { m: bp.m as u32, parity: label, j_max: ops.basis.block.j_max as u32, size: ops.basis.size(), edge_population: edge };
+        Ok(Some(TopOutcome { values, gaps, final_pairs, ops, report, weight: g }))
+    }
+}

@@ -1,0 +1,130 @@
+//! Symmetric and asymmetric tops through the full solver, checked against exact properties and the
+//! independent linear-molecule solver.
+
+use kicktrain::scenario::Scenario;
+use kicktrain::simulate::simulate;
+
+fn scenario(molecule: &str, temperature_k: f64, pulses: &str, window: &str, extra: &str) -> Scenario {
+    let text = format!(r#"{{"molecule": {molecule}, "temperature_k": {temperature_k}, "pulses": [{pulses}], "window": {window}{extra}}}"#);
+    Scenario::from_json_str(&text, "test").unwrap()
+}
+
+const PROLATE: &str = r#"{"name": "prolate demo", "a_cm": 2.5, "b_cm": 0.3, "c_cm": 0.3, "polarizability_a3": {"a": 6.0, "b": 3.5, "c": 3.5}}"#;
+const ASYMMETRIC: &str = r#"{"name": "asymmetric demo", "a_cm": 0.6, "b_cm": 0.2, "c_cm": 0.15, "polarizability_a3": {"a": 9.0, "b": 6.0, "c": 4.5}}"#;
+
+#[test]
+fn axes_sum_to_one_and_are_isotropic_without_a_field() {
+    // Σ_i Φ_Zi² = 1 for the rows of a rotation matrix (exact identity), so the three ⟨cos²θ_iZ⟩ sum to 1
+    // at all times; a thermal ensemble with no field is isotropic: each is 1/3 and ⟨cos²θ_2D⟩ = 1/2
+    // (isotropic averages, shared physics notes §6).
+    for mol in [PROLATE, ASYMMETRIC] {
+        let s = scenario(
+            mol,
+            3.0,
+            r#"{"center_ps": 0.0, "fwhm_fs": 200, "peak_intensity_wcm2": 2e12}"#,
+            r#"{"start_ps": -1.0, "stop_ps": 40.0, "step_fs": 500}"#,
+            "",
+        );
+        let r = simulate(&s).unwrap().result;
+        let t = &r.trace;
+        for i in 0..t.times_ps.len() {
+            let sum = t.cos2_a[i] + t.cos2_b[i] + t.cos2_c[i];
+            assert!((sum - 1.0).abs() < 1e-9, "t = {}: sum {sum}", t.times_ps[i]);
+        }
+        assert!(t.cos2.iter().cloned().fold(0.0, f64::max) > 0.45, "the pulse aligns the a axis");
+        let mut none = s.clone();
+        none.field.pulses[0].peak_intensity_wcm2 = 0.0;
+        let r0 = simulate(&none).unwrap().result;
+        for i in 0..r0.trace.times_ps.len() {
+            for v in [r0.trace.cos2_a[i], r0.trace.cos2_b[i], r0.trace.cos2_c[i]] {
+                assert!((v - 1.0 / 3.0).abs() < 1e-9, "{v}");
+            }
+            assert!((r0.trace.cos2_2d[i] - 0.5).abs() < 1e-6, "{}", r0.trace.cos2_2d[i]);
+        }
+    }
+}
+
+#[test]
+fn symmetric_top_revives_with_the_linear_rotor_period() {
+    // A rigid symmetric top has E = B J(J+1) + (A − B)K² and the laser keeps K, so every coherence
+    // oscillates at a multiple of 2B: the field-free trace repeats exactly after T_rev = 1/(2Bc), the
+    // linear-rotor revival period (textbook; shared physics notes §2).
+    let t_rev = kicktrain::units::revival_period_ps(0.3);
+    let s = scenario(
+        PROLATE,
+        5.0,
+        r#"{"center_ps": 0.0, "fwhm_fs": 100, "peak_intensity_wcm2": 1e13}"#,
+        r#"{"start_ps": 1.0, "stop_ps": 200.0, "step_fs": 250}"#,
+        "",
+    );
+    let r = simulate(&s).unwrap().result;
+    let v = |t: f64| r.eval_after(t).0;
+    for t in [2.0, 7.3, 15.0, 31.9] {
+        assert!((v(t) - v(t + t_rev)).abs() < 1e-10, "t = {t}: {} vs {}", v(t), v(t + t_rev));
+        assert!((v(t) - v(t + 0.37 * t_rev)).abs() > 1e-4, "not trivially constant");
+    }
+}
+
+#[test]
+fn symmetric_top_from_its_ground_state_equals_the_linear_rotor() {
+    // At T = 0 a prolate top sits in J = K = M = 0; the laser keeps K = 0, whose block is exactly the
+    // linear rotor with the same B and Δα = α_a − α_b (shared physics notes §4–5). Compared with the
+    // independent linear-molecule solver.
+    let pulse = r#"{"center_ps": 0.0, "fwhm_fs": 300, "peak_intensity_wcm2": 1e13}"#;
+    let window = r#"{"start_ps": -1.0, "stop_ps": 60.0, "step_fs": 100}"#;
+    let top = simulate(&scenario(PROLATE, 0.0, pulse, window, "")).unwrap().result;
+    let lin_mol = r#"{"name": "linear twin", "b_cm": 0.3, "alpha_parallel_a3": 6.0, "alpha_perpendicular_a3": 3.5}"#;
+    let lin = simulate(&scenario(lin_mol, 0.0, pulse, window, "")).unwrap().result;
+    let mut worst: f64 = 0.0;
+    for i in 0..top.trace.times_ps.len() {
+        worst = worst.max((top.trace.cos2[i] - lin.trace.cos2[i]).abs());
+        worst = worst.max((top.trace.cos2_2d[i] - lin.trace.cos2_2d[i]).abs());
+    }
+    assert!(worst < 2e-6, "largest difference {worst}");
+    assert!(top.trace.cos2.iter().cloned().fold(0.0, f64::max) > 0.6);
+}
+
+#[test]
+fn short_pulse_approaches_the_kick_for_an_asymmetric_top() {
+    // A pulse much shorter than every rotational period acts as the kick exp(iPA) (sudden limit, shared
+    // physics notes §4): the finite-pulse trace converges to the kick trace as the pulse shortens.
+    let window = r#"{"start_ps": 1.0, "stop_ps": 30.0, "step_fs": 500}"#;
+    let kick = scenario(ASYMMETRIC, 2.0, r#"{"center_ps": 0.0, "fwhm_fs": 20, "peak_intensity_wcm2": 2e13}"#, window, r#", "solver": {"method": "kick"}"#);
+    let rk = simulate(&kick).unwrap().result;
+    let mut errs = vec![];
+    for fwhm in [80.0, 20.0] {
+        let mut s = kick.clone();
+        s.solver.method = kicktrain::scenario::Method::Finite;
+        s.field.pulses[0].fwhm_fs = fwhm;
+        s.field.pulses[0].peak_intensity_wcm2 = 2e13 * 20.0 / fwhm;
+        let r = simulate(&s).unwrap().result;
+        let e = r.trace.cos2.iter().zip(&rk.trace.cos2).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+        errs.push(e);
+    }
+    assert!(errs[1] < errs[0] / 4.0, "second-order convergence to the kick: {errs:?}");
+    assert!(errs[1] < 2e-3, "{errs:?}");
+}
+
+#[test]
+fn top_input_errors_name_the_field() {
+    let bad = [
+        (r#"{"a_cm": 0.1, "b_cm": 0.2, "c_cm": 0.05, "polarizability_a3": {"a": 9, "b": 6, "c": 4}}"#, "molecule.a_cm"),
+        (r#"{"a_cm": 0.3, "b_cm": 0.2, "c_cm": 0.25, "polarizability_a3": {"a": 9, "b": 6, "c": 4}}"#, "molecule.b_cm"),
+        (r#"{"a_cm": 0.3, "b_cm": 0.2, "c_cm": 0.1, "polarizability_a3": {"a": 9, "b": -6, "c": 4}}"#, "molecule.polarizability_a3.b"),
+        (
+            r#"{"a_cm": 0.3, "b_cm": 0.2, "c_cm": 0.1, "polarizability_a3": {"a": 9, "b": 6, "c": 4}, "spin_weights_by_ka_kc": [1, 3, 3]}"#,
+            "molecule.spin_weights_by_ka_kc",
+        ),
+        (
+            r#"{"a_cm": 0.3, "b_cm": 0.2, "c_cm": 0.1, "polarizability_a3": {"a": 9, "b": 6, "c": 4}, "spin_weights_by_k": [2, 1, 1]}"#,
+            "molecule.spin_weights_by_k",
+        ),
+        (r#"{"a_cm": 2.0, "b_cm": 0.2, "c_cm": 0.2, "polarizability_a3": {"a": 9, "b": 6, "c": 4}}"#, "molecule.polarizability_a3"),
+    ];
+    for (mol, field) in bad {
+        let text = format!(r#"{{"molecule": {mol}, "temperature_k": 1, "pulses": [], "window": {{"start_ps": 0, "stop_ps": 1, "step_fs": 100}}}}"#);
+        let err = Scenario::from_json_str(&text, "test").unwrap_err().to_string();
+        assert!(err.starts_with(field), "{mol}: {err}");
+        assert!(!err.contains('\n'));
+    }
+}
