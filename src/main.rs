@@ -333,7 +333,11 @@ fn print_simulation(s: &serde_json::Value) {
         );
     }
     if let Some(fa) = s.get("focal_average").filter(|v| !v.is_null()) {
-        println!("  focal-volume average: peak ⟨cos²θ⟩ {}, peak ⟨cos²θ_2D⟩ {}", fmt_ext(&fa["peak_cos2"]), fmt_ext(&fa["peak_cos2_2d"]));
+        let along = match fa["settings"]["sample_length_um"].as_f64() {
+            Some(l) => format!(" (also along the beam over {l} µm)"),
+            None => String::new(),
+        };
+        println!("  focal-volume average{along}: peak ⟨cos²θ⟩ {}, peak ⟨cos²θ_2D⟩ {}", fmt_ext(&fa["peak_cos2"]), fmt_ext(&fa["peak_cos2_2d"]));
     }
     println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
     println!(

@@ -6,7 +6,7 @@ use crate::field::{FieldModel, Pulse, PulseShape, StaticField, TerahertzPulse, T
 use crate::goal::{Goal, parse_goal};
 use crate::input::{Fields, join, parse_json, type_name};
 use crate::molecule::Molecule;
-use crate::optics::focal::FocalAverage;
+use crate::optics::focal::{FocalAverage, rayleigh_range_um};
 use crate::optics::{Focus, peak_intensity_wcm2, peak_power_w};
 use serde_json::{Value, json};
 
@@ -608,19 +608,53 @@ fn parse_terahertz(v: &Value, path: &str) -> Result<TerahertzPulse> {
     Ok(t)
 }
 
-/// Read a focal-averaging block found at `path`.
+/// Read a focal-averaging block found at `path`. Along the beam, each Rayleigh range is given in µm
+/// (`pump_rayleigh_um`) or follows from the wavelength in nm and M² (`pump_wavelength_nm`, `pump_m2`).
 pub fn parse_focal(v: &Value, path: &str) -> Result<FocalAverage> {
     let mut f = Fields::new(v, path)?;
     let d = 20usize;
-    let a = FocalAverage {
-        pump_waist_um: f.req_f64("pump_waist_um", "µm")?,
-        probe_waist_um: f.req_f64("probe_waist_um", "µm")?,
-        probe_order: f.opt_f64("probe_order", "probe nonlinearity order")?.unwrap_or(1.0),
-        points: f.opt_usize("points", "quadrature points")?.unwrap_or(d),
-    };
+    let mut a = FocalAverage::thin(
+        f.req_f64("pump_waist_um", "µm")?,
+        f.req_f64("probe_waist_um", "µm")?,
+        f.opt_f64("probe_order", "probe nonlinearity order")?.unwrap_or(1.0),
+        f.opt_usize("points", "quadrature points")?.unwrap_or(d),
+    );
+    a.sample_length_um = f.opt_f64("sample_length_um", "µm")?;
+    let (pw, prw) = (a.pump_waist_um, a.probe_waist_um);
+    a.pump_rayleigh_um = rayleigh_key(&mut f, path, "pump", pw)?;
+    a.probe_rayleigh_um = rayleigh_key(&mut f, path, "probe", prw)?;
     f.finish()?;
     a.validate(path)?;
     Ok(a)
+}
+
+/// The Rayleigh range (µm) of the `beam` ("pump" or "probe"): `{beam}_rayleigh_um`, or from
+/// `{beam}_wavelength_nm` and `{beam}_m2` with the waist `waist_um`.
+fn rayleigh_key(f: &mut Fields, path: &str, beam: &str, waist_um: f64) -> Result<Option<f64>> {
+    let zr = f.opt_f64(&format!("{beam}_rayleigh_um"), "µm")?;
+    let wl = f.opt_f64(&format!("{beam}_wavelength_nm"), "nm")?;
+    let m2 = f.opt_f64(&format!("{beam}_m2"), "beam quality factor M²")?;
+    match (zr, wl, m2) {
+        (Some(_), Some(_), _) | (Some(_), None, Some(_)) => Err(Error::input(
+            join(path, &format!("{beam}_rayleigh_um")),
+            format!("expected either {beam}_rayleigh_um (µm) or {beam}_wavelength_nm (nm, with optional {beam}_m2), not both"),
+        )),
+        (None, None, Some(_)) => {
+            Err(Error::input(join(path, &format!("{beam}_m2")), format!("only used with {beam}_wavelength_nm; expected the wavelength in nm as well")))
+        }
+        (z, None, None) => Ok(z),
+        (None, Some(l), m) => {
+            require_positive(&join(path, &format!("{beam}_wavelength_nm")), l, "nm")?;
+            let m = m.unwrap_or(1.0);
+            if !m.is_finite() || m < 1.0 {
+                return Err(Error::input(join(path, &format!("{beam}_m2")), format!("expected a beam quality factor M² ≥ 1, got {m}")));
+            }
+            if !waist_um.is_finite() || waist_um <= 0.0 {
+                return Err(Error::input(join(path, &format!("{beam}_waist_um")), format!("expected a finite number > 0 (µm), got {waist_um}")));
+            }
+            Ok(Some(rayleigh_range_um(waist_um, l, m)))
+        }
+    }
 }
 
 fn parse_static(v: &Value, path: &str) -> Result<StaticField> {
