@@ -251,7 +251,22 @@ fn molecules(json: bool) -> Result<(), Error> {
                 })
             })
             .collect();
-        println!("{}", serde_json::to_string_pretty(&list).expect("json"));
+        let tops: Vec<_> = kicktrain::molecule::top_library()
+            .iter()
+            .map(|e| {
+                let sv = |x: &kicktrain::molecule::Sourced| serde_json::json!({"value": x.value, "source": x.source});
+                serde_json::json!({
+                    "name": e.name, "aliases": e.aliases, "description": e.description,
+                    "a_cm": sv(&e.constants_cm[0]), "b_cm": sv(&e.constants_cm[1]), "c_cm": sv(&e.constants_cm[2]),
+                    "d_j_cm": sv(&e.distortion_cm[0]), "d_jk_cm": sv(&e.distortion_cm[1]),
+                    "polarizability_a3": {"a": sv(&e.polarizability_a3[0]), "b": sv(&e.polarizability_a3[1]), "c": sv(&e.polarizability_a3[2])},
+                    "dipole": e.dipole.map(|d| serde_json::json!({"value_debye": d.0.value, "axis": d.1.letter(), "source": d.0.source})),
+                    "spin_weights": {"value": e.spin_weights, "source": e.spin_weights_source},
+                    "ionization_energy_ev": e.ionization_energy_ev.map(|d| sv(&d)),
+                })
+            })
+            .collect();
+        println!("{}", serde_json::to_string_pretty(&serde_json::json!({"linear": list, "tops": tops})).expect("json"));
         return Ok(());
     }
     println!("{:<6} {:>11} {:>10} {:>8} {:>8} {:>7} {:>9}  description", "name", "B (cm⁻¹)", "D (cm⁻¹)", "α∥ (Å³)", "α⊥ (Å³)", "Δα", "even:odd");
@@ -266,6 +281,24 @@ fn molecules(json: bool) -> Result<(), Error> {
             e.alpha_parallel_a3.value - e.alpha_perpendicular_a3.value,
             e.spin_weights[0],
             e.spin_weights[1],
+            e.description
+        );
+    }
+    println!("\n{:<6} {:>9} {:>9} {:>9} {:>6} {:>21}  description", "top", "A (cm⁻¹)", "B (cm⁻¹)", "C (cm⁻¹)", "κ", "α_a, α_b, α_c (Å³)");
+    for e in kicktrain::molecule::top_library() {
+        let m = e.molecule();
+        let t = m.top.as_ref().expect("top");
+        let p = t.polarizability_a3;
+        println!(
+            "{:<6} {:>9.5} {:>9.5} {:>9.5} {:>6.2} {:>6.2}, {:>5.2}, {:>5.2}  {}",
+            e.name,
+            t.a_cm,
+            t.b_cm,
+            t.c_cm,
+            t.kappa(),
+            p[0],
+            p[1],
+            p[2],
             e.description
         );
     }
@@ -339,7 +372,11 @@ fn print_simulation(s: &serde_json::Value) {
         };
         println!("  focal-volume average{along}: peak ⟨cos²θ⟩ {}, peak ⟨cos²θ_2D⟩ {}", fmt_ext(&fa["peak_cos2"]), fmt_ext(&fa["peak_cos2_2d"]));
     }
-    println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
+    if s["molecule"]["rotor"] == "asymmetric top" {
+        println!("  revival period (estimate, (B+C)/2)   {:.4} ps (an asymmetric top has no exact revivals)", s["revival_period_ps"].as_f64().unwrap_or(0.0));
+    } else {
+        println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
+    }
     println!(
         "  {} initial states (discarded population {:.1e}); basis up to J = {} (edge population {:.1e}); {:.3} s",
         s["thermal"]["initial_states"],

@@ -3,8 +3,10 @@
 
 mod library;
 pub mod top;
+mod top_library;
 
 pub use library::{LibraryEntry, Sourced, library};
+pub use top_library::{TopEntry, top_library};
 
 use crate::error::{Error, Result, require_non_negative, require_positive};
 use serde::{Deserialize, Serialize};
@@ -190,7 +192,14 @@ impl Molecule {
                 return Ok(entry.molecule());
             }
         }
-        let mut near: Vec<(usize, &str)> = library().iter().map(|e| (edit_distance(&key, &e.name.to_ascii_lowercase()), e.name)).collect();
+        let tops = top_library();
+        for entry in &tops {
+            if entry.name.to_ascii_lowercase() == key || entry.aliases.iter().any(|a| a.to_ascii_lowercase() == key) {
+                return Ok(entry.molecule());
+            }
+        }
+        let mut near: Vec<(usize, &str)> =
+            library().iter().map(|e| e.name).chain(tops.iter().map(|e| e.name)).map(|n| (edit_distance(&key, &n.to_ascii_lowercase()), n)).collect();
         near.sort();
         let suggestions: Vec<&str> = near.iter().filter(|(d, _)| *d <= 2).map(|(_, n)| *n).take(3).collect();
         let hint =
@@ -234,8 +243,13 @@ mod tests {
     #[test]
     fn library_names_and_aliases_are_unique() {
         let mut seen = std::collections::HashSet::new();
-        for e in library() {
-            for n in std::iter::once(&e.name).chain(e.aliases.iter()) {
+        let tops = top_library();
+        let names = library()
+            .iter()
+            .flat_map(|e| std::iter::once(&e.name).chain(e.aliases.iter()))
+            .chain(tops.iter().flat_map(|e| std::iter::once(&e.name).chain(e.aliases.iter())));
+        {
+            for n in names {
                 assert!(seen.insert(n.to_ascii_lowercase()), "name or alias {n} appears twice");
             }
         }

@@ -84,8 +84,21 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
     json!({
         "kicktrain_version": env!("CARGO_PKG_VERSION"),
         "description": s.description,
-        "molecule": {"name": s.molecule.name, "b_cm": s.molecule.b_cm, "d_cm": s.molecule.d_cm,
-            "delta_alpha_a3": da, "spin_weights_even_odd": s.molecule.spin_weights},
+        "molecule": match &s.molecule.top {
+            None => json!({"name": s.molecule.name, "b_cm": s.molecule.b_cm, "d_cm": s.molecule.d_cm,
+                "delta_alpha_a3": da, "spin_weights_even_odd": s.molecule.spin_weights}),
+            Some(t) => json!({"name": s.molecule.name, "rotor": match t.kind() {
+                    crate::molecule::top::TopKind::Prolate => "prolate symmetric top",
+                    crate::molecule::top::TopKind::Oblate => "oblate symmetric top",
+                    crate::molecule::top::TopKind::Asymmetric => "asymmetric top",
+                }, "a_cm": t.a_cm, "b_cm": t.b_cm, "c_cm": t.c_cm, "kappa": t.kappa(),
+                "polarizability_a3": {"a": t.polarizability_a3[0], "b": t.polarizability_a3[1], "c": t.polarizability_a3[2]},
+                "delta_alpha_a3": da, "alignment_axis": t.alignment_axis.letter(), "spin_weights": t.spin_weights}),
+        },
+        "body_axes": if tr.cos2_a.is_empty() { Value::Null } else {
+            json!({"peak_cos2_a": extremum(tr.max_after(&tr.cos2_a, after)), "peak_cos2_b": extremum(tr.max_after(&tr.cos2_b, after)),
+                "peak_cos2_c": extremum(tr.max_after(&tr.cos2_c, after))})
+        },
         "temperature_k": s.temperature_k,
         "pulses": pulses,
         "after_last_pulse_from_ps": if after.is_finite() { json!(after) } else { Value::Null },
@@ -137,6 +150,11 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
 /// The trace as CSV text with columns `t_ps,cos2,cos2_2d` (and any extra named columns).
 pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     let mut cols: Vec<(&str, &[f64])> = vec![];
+    if !trace.cos2_a.is_empty() {
+        cols.push(("cos2_a", &trace.cos2_a));
+        cols.push(("cos2_b", &trace.cos2_b));
+        cols.push(("cos2_c", &trace.cos2_c));
+    }
     if !trace.cos.is_empty() {
         cols.push(("cos", &trace.cos));
         cols.push(("cos3", &trace.cos3));
