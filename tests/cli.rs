@@ -628,7 +628,7 @@ fn molecules_json_has_a_source_for_every_constant() {
     let r = run(&["molecules", "--json"]);
     assert_eq!(r.code, Some(0), "{}", r.stderr);
     let v: Value = serde_json::from_str(&r.stdout).expect("molecules --json prints JSON");
-    let list = v.as_array().expect("a JSON array of molecules");
+    let list = v["linear"].as_array().expect("a JSON array of linear molecules");
     assert!(list.len() >= 8, "expected at least 8 molecules, got {}", list.len());
     let table = run(&["molecules"]).stdout;
     for m in list {
@@ -645,6 +645,16 @@ fn molecules_json_has_a_source_for_every_constant() {
             if c.get("value").is_some() {
                 assert!(c["source"].as_str().is_some_and(|t| !t.trim().is_empty()), "{name}.{k} has no source");
             }
+        }
+    }
+    // Tops: rotational constants and each polarizability component carry a source.
+    let tops = v["tops"].as_array().expect("a JSON array of tops");
+    assert!(tops.len() >= 7, "expected at least 7 tops, got {}", tops.len());
+    for t in tops {
+        let name = t["name"].as_str().expect("name");
+        assert!(table.lines().any(|l| l.split_whitespace().next() == Some(name)), "{name} missing from the table");
+        for c in [&t["a_cm"], &t["b_cm"], &t["c_cm"], &t["polarizability_a3"]["a"], &t["polarizability_a3"]["b"], &t["polarizability_a3"]["c"]] {
+            assert!(c["value"].is_number() && c["source"].as_str().is_some_and(|s| !s.trim().is_empty()), "{name}: {c}");
         }
     }
 }

@@ -415,11 +415,27 @@ impl TopBlockBasis {
                 nodes.push((th, w[q] * g * th.sin()));
             }
         }
-        // d^J_{MK}(θ_q) for every K of the block, J = 0..=j_max.
+        // d^J_{MK}(θ_q) for every K of the block (rows J = 0..=j_max, columns q), and the weighted copy.
         let mut ks: Vec<i64> = self.functions.iter().flat_map(|f| if f.s == 0 { vec![f.k] } else { vec![f.k, -f.k] }).collect();
         ks.sort_unstable();
         ks.dedup();
-        let d: HashMap<i64, Vec<Vec<f64>>> = ks.iter().map(|&k| (k, nodes.iter().map(|&(th, _)| small_d_series(m, k, th, j_max)).collect())).collect();
+        let nk = (2 * j_max + 1) as usize;
+        let slot = |k: i64| (k + j_max) as usize;
+        let mut d: Vec<Option<(DMatrix<f64>, DMatrix<f64>)>> = vec![None; nk];
+        for &k in &ks {
+            let mut dm = DMatrix::zeros((j_max + 1) as usize, nodes.len());
+            for (q, &(th, _)) in nodes.iter().enumerate() {
+                let col = small_d_series(m, k, th, j_max);
+                for (j, v) in col.into_iter().enumerate() {
+                    dm[(j, q)] = v;
+                }
+            }
+            let mut dw = dm.clone();
+            for (q, &(_, w)) in nodes.iter().enumerate() {
+                dw.column_mut(q).scale_mut(w);
+            }
+            d[slot(k)] = Some((dm, dw));
+        }
         let chi_factor = |dk: i64| -> f64 {
             if position == 0 {
                 return if dk == 0 { 1.0 } else { 0.0 };
@@ -433,23 +449,33 @@ impl TopBlockBasis {
             let c = 2.0 * if half == 0 { -1.0 } else { 1.0 } / (std::f64::consts::PI * (n * n - 1.0));
             if position == 2 && half == 1 { -c } else { c }
         };
+        // θ integrals per (K', K): T[J', J] = Σ_q w_q d^{J'}_{MK'}(θ_q) d^J_{MK}(θ_q), times the χ factor.
+        let mut t: Vec<Option<DMatrix<f64>>> = vec![None; nk * nk];
+        for &kp in &ks {
+            for &k in &ks {
+                let cf = chi_factor(k - kp);
+                if cf == 0.0 {
+                    continue;
+                }
+                let (dp, _) = d[slot(kp)].as_ref().expect("built");
+                let (_, dw) = d[slot(k)].as_ref().expect("built");
+                t[slot(kp) * nk + slot(k)] = Some(dp * dw.transpose() * cf);
+            }
+        }
         let prim = |jp: i64, kp: i64, j: i64, k: i64| -> f64 {
-            let cf = chi_factor(k - kp);
-            if cf == 0.0 {
-                return 0.0;
+            match &t[slot(kp) * nk + slot(k)] {
+                Some(tm) => 0.5 * (((2 * j + 1) * (2 * jp + 1)) as f64).sqrt() * tm[(jp as usize, j as usize)],
+                None => 0.0,
             }
-            let (dp, dd) = (&d[&kp], &d[&k]);
-            let mut s = 0.0;
-            for (q, &(_, w)) in nodes.iter().enumerate() {
-                s += w * dp[q][jp as usize] * dd[q][j as usize];
-            }
-            0.5 * (((2 * j + 1) * (2 * jp + 1)) as f64).sqrt() * cf * s
         };
         let n = self.size();
         let mut f = DMatrix::zeros(n, n);
         for b in 0..n {
             for a in 0..=b {
                 let (fa, fb) = (&self.functions[a], &self.functions[b]);
+                if position == 0 && fa.k.abs() != fb.k.abs() {
+                    continue;
+                }
                 let v = pair_element(fa, fb, |kp, k| prim(fa.j, kp, fb.j, k));
                 f[(a, b)] = v;
                 f[(b, a)] = v;

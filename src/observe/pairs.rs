@@ -9,37 +9,58 @@ use std::collections::HashMap;
 const TRIM: f64 = 1e-22;
 
 /// Ensemble coherence sums over level pairs for several observables:
-/// ⟨O⟩(t) = S_O + 2 Re Σ_{i<j} C_{O,ij} exp(−i(ω_i − ω_j)(t − t0)).
+/// ⟨O⟩(t) = S_O + 2 Re Σ_{i<j} C_{O,ij} exp(−i(ω_i − ω_j)(t − t0)); each observable keeps its own pairs.
 #[derive(Debug, Clone)]
 pub struct PairSums {
     /// Time at which the states were taken, ps.
     pub t0_ps: f64,
-    /// Angular frequency of each level, rad/ps.
+    /// Angular frequency of each level, rad/ps (NaN for levels never seen).
     omega: Vec<f64>,
     /// Σ_i ρ_ii O_ii per observable.
     diag: Vec<f64>,
-    /// Level pairs (i < j).
+    obs: Vec<ObservablePairs>,
+}
+
+/// The coherence coefficients of one observable.
+#[derive(Debug, Clone, Default)]
+struct ObservablePairs {
     pairs: Vec<(u32, u32)>,
-    /// Per pair, per observable: C (real, imaginary).
-    coeffs: Vec<Vec<(f64, f64)>>,
+    coeffs: Vec<(f64, f64)>,
     index: HashMap<(u32, u32), usize>,
-    observables: usize,
+}
+
+impl ObservablePairs {
+    /// Add C to the ordered pair (la, lb), conjugating when the order flips.
+    fn add(&mut self, la: u32, lb: u32, c: (f64, f64)) {
+        let (key, c) = if la < lb { ((la, lb), c) } else { ((lb, la), (c.0, -c.1)) };
+        let slot = match self.index.get(&key) {
+            Some(&s) => s,
+            None => {
+                self.pairs.push(key);
+                self.coeffs.push((0.0, 0.0));
+                self.index.insert(key, self.pairs.len() - 1);
+                self.pairs.len() - 1
+            }
+        };
+        self.coeffs[slot].0 += c.0;
+        self.coeffs[slot].1 += c.1;
+    }
 }
 
 impl PairSums {
     /// Empty sums for `observables` observables at time `t0_ps`.
     pub fn new(observables: usize, t0_ps: f64) -> PairSums {
-        PairSums { t0_ps, omega: vec![], diag: vec![0.0; observables], pairs: vec![], coeffs: vec![], index: HashMap::new(), observables }
+        PairSums { t0_ps, omega: vec![], diag: vec![0.0; observables], obs: vec![ObservablePairs::default(); observables] }
     }
 
     /// Number of observables.
     pub fn observables(&self) -> usize {
-        self.observables
+        self.obs.len()
     }
 
-    /// Number of level pairs carried.
+    /// Number of level pairs carried, over all observables.
     pub fn pair_count(&self) -> usize {
-        self.pairs.len()
+        self.obs.iter().map(|o| o.pairs.len()).sum()
     }
 
     /// Make sure level `id` exists with frequency `omega` (rad/ps).
@@ -50,7 +71,7 @@ impl PairSums {
         self.omega[id as usize] = omega;
     }
 
-    /// Add one block with weight `g`: density matrix ρ = (re, im) and observables in the block's
+    /// Add one block with weight `g`: density matrix ρ = (re, im) and dense observables in the block's
     /// eigenbasis, whose states are levels `level_of` with frequencies `omega` (rad/ps).
     pub fn add_block(&mut self, g: f64, rho: (&DMatrix<f64>, &DMatrix<f64>), observables: &[&DMatrix<f64>], level_of: &[u32], omega: &[f64]) {
         let (re, im) = rho;
@@ -60,63 +81,31 @@ impl PairSums {
             self.level(level_of[i], omega[i]);
         }
         for (o, op) in observables.iter().enumerate() {
-            for &i in &keep {
+            for (a, &i) in keep.iter().enumerate() {
                 self.diag[o] += g * re[(i, i)] * op[(i, i)];
-            }
-        }
-        for (a, &i) in keep.iter().enumerate() {
-            for &j in &keep[a + 1..] {
-                if observables.iter().all(|op| op[(j, i)] == 0.0) {
-                    continue;
-                }
-                let (li, lj) = (level_of[i], level_of[j]);
-                // ρ_ij O_ji for i → j; stored for the ordered pair, conjugated when the order flips.
-                let (key, conj) = if li < lj { ((li, lj), false) } else { ((lj, li), true) };
-                let slot = match self.index.get(&key) {
-                    Some(&s) => s,
-                    None => {
-                        self.pairs.push(key);
-                        self.coeffs.push(vec![(0.0, 0.0); self.observables]);
-                        self.index.insert(key, self.pairs.len() - 1);
-                        self.pairs.len() - 1
-                    }
-                };
-                for (o, op) in observables.iter().enumerate() {
+                for &j in &keep[a + 1..] {
                     let v = op[(j, i)];
-                    let (cr, ci) = (g * re[(i, j)] * v, g * im[(i, j)] * v);
-                    let c = &mut self.coeffs[slot][o];
-                    c.0 += cr;
-                    c.1 += if conj { -ci } else { ci };
+                    if v != 0.0 {
+                        // ρ_ij O_ji for the pair (i, j).
+                        self.obs[o].add(level_of[i], level_of[j], (g * re[(i, j)] * v, g * im[(i, j)] * v));
+                    }
                 }
             }
         }
     }
 
-    /// Add one block's coefficients with weight `g`: diagonal sums per observable and, per pair of the
-    /// block's states (a < b), the coefficients ρ_ab O_ba of every observable; states are levels `level_of`
-    /// with frequencies `omega` (rad/ps).
-    pub fn add_pairs<'a>(&mut self, g: f64, diag: &[f64], pairs: impl Iterator<Item = (usize, usize, &'a [(f64, f64)])>, level_of: &[u32], omega: &[f64]) {
+    /// Add one block's coefficients with weight `g`: diagonal sums per observable and, per observable, the
+    /// coefficients ρ_ab O_ba of pairs of the block's states (a < b); states are levels `level_of` with
+    /// frequencies `omega` (rad/ps).
+    pub fn add_pairs(&mut self, g: f64, diag: &[f64], pairs: &[Vec<(usize, usize, (f64, f64))>], level_of: &[u32], omega: &[f64]) {
         for (o, d) in diag.iter().enumerate() {
             self.diag[o] += g * d;
         }
-        for (a, b, c) in pairs {
-            let (la, lb) = (level_of[a], level_of[b]);
-            self.level(la, omega[a]);
-            self.level(lb, omega[b]);
-            let (key, conj) = if la < lb { ((la, lb), false) } else { ((lb, la), true) };
-            let slot = match self.index.get(&key) {
-                Some(&s) => s,
-                None => {
-                    self.pairs.push(key);
-                    self.coeffs.push(vec![(0.0, 0.0); self.observables]);
-                    self.index.insert(key, self.pairs.len() - 1);
-                    self.pairs.len() - 1
-                }
-            };
-            for (o, v) in c.iter().enumerate() {
-                let e = &mut self.coeffs[slot][o];
-                e.0 += g * v.0;
-                e.1 += if conj { -g * v.1 } else { g * v.1 };
+        for (o, list) in pairs.iter().enumerate() {
+            for &(a, b, c) in list {
+                self.level(level_of[a], omega[a]);
+                self.level(level_of[b], omega[b]);
+                self.obs[o].add(level_of[a], level_of[b], (g * c.0, g * c.1));
             }
         }
     }
@@ -164,18 +153,18 @@ impl PairSums {
         }
         let (ta, tb) = (a_ps - self.t0_ps, b_ps - self.t0_ps);
         let mut out = self.diag.clone();
-        for (p, &(i, j)) in self.pairs.iter().enumerate() {
-            let d = self.omega[i as usize] - self.omega[j as usize];
-            // Mean of exp(−iD τ) over [ta, tb].
-            let (pr, pi) = if (d * len).abs() < 1e-9 {
-                let (s, c) = (-d * 0.5 * (ta + tb)).sin_cos();
-                (c, s)
-            } else {
-                let (sb, cb) = (-d * tb).sin_cos();
-                let (sa, ca) = (-d * ta).sin_cos();
-                (-(sb - sa) / (d * len), (cb - ca) / (d * len))
-            };
-            for (o, c) in self.coeffs[p].iter().enumerate() {
+        for (o, op) in self.obs.iter().enumerate() {
+            for (&(i, j), c) in op.pairs.iter().zip(&op.coeffs) {
+                let d = self.omega[i as usize] - self.omega[j as usize];
+                // Mean of exp(−iD τ) over [ta, tb].
+                let (pr, pi) = if (d * len).abs() < 1e-9 {
+                    let (s, c) = (-d * 0.5 * (ta + tb)).sin_cos();
+                    (c, s)
+                } else {
+                    let (sb, cb) = (-d * tb).sin_cos();
+                    let (sa, ca) = (-d * ta).sin_cos();
+                    (-(sb - sa) / (d * len), (cb - ca) / (d * len))
+                };
                 out[o] += 2.0 * (c.0 * pr - c.1 * pi);
             }
         }
@@ -185,9 +174,9 @@ impl PairSums {
     /// Exact infinite-time averages: the diagonal plus coherences between degenerate levels.
     pub fn statics(&self) -> Vec<f64> {
         let mut out = self.diag.clone();
-        for (p, &(i, j)) in self.pairs.iter().enumerate() {
-            if (self.omega[i as usize] - self.omega[j as usize]).abs() < 1e-12 {
-                for (o, c) in self.coeffs[p].iter().enumerate() {
+        for (o, op) in self.obs.iter().enumerate() {
+            for (&(i, j), c) in op.pairs.iter().zip(&op.coeffs) {
+                if (self.omega[i as usize] - self.omega[j as usize]).abs() < 1e-12 {
                     out[o] += 2.0 * c.0;
                 }
             }
@@ -211,13 +200,15 @@ impl PairSums {
 
     fn eval_with(&self, z: &[(f64, f64)]) -> Vec<f64> {
         let mut out = self.diag.clone();
-        for (p, &(i, j)) in self.pairs.iter().enumerate() {
-            let (a, b) = (z[i as usize], z[j as usize]);
-            // z_i conj(z_j)
-            let (pr, pi) = (a.0 * b.0 + a.1 * b.1, a.1 * b.0 - a.0 * b.1);
-            for (o, c) in self.coeffs[p].iter().enumerate() {
-                out[o] += 2.0 * (c.0 * pr - c.1 * pi);
+        for (o, op) in self.obs.iter().enumerate() {
+            let mut acc = 0.0;
+            for (&(i, j), c) in op.pairs.iter().zip(&op.coeffs) {
+                let (a, b) = (z[i as usize], z[j as usize]);
+                // z_i conj(z_j)
+                let (pr, pi) = (a.0 * b.0 + a.1 * b.1, a.1 * b.0 - a.0 * b.1);
+                acc += c.0 * pr - c.1 * pi;
             }
+            out[o] += 2.0 * acc;
         }
         out
     }

@@ -44,18 +44,25 @@ impl Csr {
         self.val.len()
     }
 
-    /// y = a·(M x) + b·x column by column (x, y of shape n × k).
-    fn affine(&self, a: f64, b: f64, x: &DMatrix<f64>, y: &mut DMatrix<f64>) {
-        let n = self.n;
-        for c in 0..x.ncols() {
-            let xc = &x.as_slice()[c * n..(c + 1) * n];
-            let yc = &mut y.as_mut_slice()[c * n..(c + 1) * n];
-            for r in 0..n {
-                let mut s = 0.0;
-                for p in self.row_ptr[r]..self.row_ptr[r + 1] {
-                    s += self.val[p] * xc[self.col[p]];
+    /// y = a·(M x) + b·x for states stored transposed (x, y of shape k × n: column r holds row r of
+    /// the states), so that each stored element updates k contiguous numbers.
+    fn affine_t(&self, a: f64, b: f64, x: &DMatrix<f64>, y: &mut DMatrix<f64>) {
+        let k = x.nrows();
+        let xs = x.as_slice();
+        let ys = y.as_mut_slice();
+        for r in 0..self.n {
+            let yr = &mut ys[r * k..(r + 1) * k];
+            let xr = &xs[r * k..(r + 1) * k];
+            for (yv, xv) in yr.iter_mut().zip(xr) {
+                *yv = b * xv;
+            }
+            for p in self.row_ptr[r]..self.row_ptr[r + 1] {
+                let v = a * self.val[p];
+                let c = self.col[p];
+                let xc = &xs[c * k..(c + 1) * k];
+                for (yv, xv) in yr.iter_mut().zip(xc) {
+                    *yv += v * xv;
                 }
-                yc[r] = a * s + b * xc[r];
             }
         }
     }
@@ -105,50 +112,52 @@ pub fn chebyshev_kick(a: &Csr, theta: f64, psi: &mut DMatrix<f64>) {
     let last = (0..=kmax + 8).rev().find(|&m| bj[m].abs() > 1e-17).unwrap_or(0);
     let (n, cols) = psi.shape();
     let k = cols / 2;
-    let mut prev = psi.clone();
-    let mut cur = DMatrix::zeros(n, cols);
-    a.affine(2.0, -1.0, &prev, &mut cur);
-    let mut next = DMatrix::zeros(n, cols);
+    // Work on the transpose (2k × n): rows 0..k real parts, k..2k imaginary parts.
+    let mut prev = psi.transpose();
+    let mut cur = DMatrix::zeros(cols, n);
+    a.affine_t(2.0, -1.0, &prev, &mut cur);
+    let mut next = DMatrix::zeros(cols, n);
     // acc = Σ c_m v_m, c_m = (2 − δ_m0) i^m J_m.
-    let mut acc_re = prev.columns(0, k) * bj[0];
-    let mut acc_im = prev.columns(k, k) * bj[0];
-    let add = |m: usize, v: &DMatrix<f64>, acc_re: &mut DMatrix<f64>, acc_im: &mut DMatrix<f64>| {
+    let mut acc = &prev * bj[0];
+    let add = |m: usize, v: &DMatrix<f64>, acc: &mut DMatrix<f64>| {
         let c = 2.0 * bj[m];
-        // i^m: 1, i, −1, −i.
-        let (vr, vi) = (v.columns(0, k), v.columns(k, k));
-        match m % 4 {
-            0 => {
-                *acc_re += vr * c;
-                *acc_im += vi * c;
-            }
-            1 => {
-                *acc_re -= vi * c;
-                *acc_im += vr * c;
-            }
-            2 => {
-                *acc_re -= vr * c;
-                *acc_im -= vi * c;
-            }
-            _ => {
-                *acc_re += vi * c;
-                *acc_im -= vr * c;
-            }
+        // i^m: 1, i, −1, −i; (x + iy)·i = −y + ix.
+        let (sr, si, swap) = match m % 4 {
+            0 => (c, c, false),
+            1 => (-c, c, true),
+            2 => (-c, -c, false),
+            _ => (c, -c, true),
+        };
+        let (vr, vi) = (v.rows(0, k), v.rows(k, k));
+        if swap {
+            let mut top = acc.rows_mut(0, k);
+            top += vi * sr;
+            let mut bottom = acc.rows_mut(k, k);
+            bottom += vr * si;
+        } else {
+            let mut top = acc.rows_mut(0, k);
+            top += vr * sr;
+            let mut bottom = acc.rows_mut(k, k);
+            bottom += vi * si;
         }
     };
     if last >= 1 {
-        add(1, &cur, &mut acc_re, &mut acc_im);
+        add(1, &cur, &mut acc);
     }
     for m in 2..=last {
         // v_m = 2 X v_{m−1} − v_{m−2} = 4 A v_{m−1} − 2 v_{m−1} − v_{m−2}.
-        a.affine(4.0, -2.0, &cur, &mut next);
+        a.affine_t(4.0, -2.0, &cur, &mut next);
         next -= &prev;
-        add(m, &next, &mut acc_re, &mut acc_im);
+        add(m, &next, &mut acc);
         std::mem::swap(&mut prev, &mut cur);
         std::mem::swap(&mut cur, &mut next);
     }
     let (s, c) = z.sin_cos();
-    psi.columns_mut(0, k).copy_from(&(&acc_re * c - &acc_im * s));
-    psi.columns_mut(k, k).copy_from(&(&acc_re * s + &acc_im * c));
+    let (ar, ai) = (acc.rows(0, k), acc.rows(k, k));
+    let re = ar * c - ai * s;
+    let im = ar * s + ai * c;
+    psi.columns_mut(0, k).copy_from(&re.transpose());
+    psi.columns_mut(k, k).copy_from(&im.transpose());
 }
 
 #[cfg(test)]
