@@ -595,8 +595,9 @@ mod tests {
                 let dd = small_d_explicit(jp, m, kp, th) * small_d_explicit(j, m, k, th);
                 for c in 0..nchi {
                     let chi = 2.0 * PI * c as f64 / nchi as f64;
-                    // conj(ψ') ψ: phases e^{−iMφ − iK'χ} e^{iMφ + iKχ}.
-                    let ph = (m - m) as f64 * phi + (k - kp) as f64 * chi;
+                    // conj(ψ') ψ: phases e^{−iMφ − iK'χ} e^{iMφ + iKχ}; the φ phases cancel (same M),
+                    // but φ is still integrated over its grid.
+                    let ph = 0.0 * phi + (k - kp) as f64 * chi;
                     let v = norm * wq * dd * f(th, chi) * (2.0 * PI / nphi as f64) * (2.0 * PI / nchi as f64);
                     re += v * ph.cos();
                     im += v * ph.sin();

@@ -153,8 +153,8 @@ fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> Bloc
             let (ar, ai) = (wr.rows(*r0, nr), wi.rows(*r0, nr));
             let (br, bi) = (wr.rows(*c0, nc), wi.rows(*c0, nc));
             // ρ_ab = Σ_c w_ac conj(w_bc)
-            let re = &ar * br.transpose() + &ai * bi.transpose();
-            let im = &ai * br.transpose() - &ar * bi.transpose();
+            let re = ar * br.transpose() + ai * bi.transpose();
+            let im = ai * br.transpose() - ar * bi.transpose();
             for y in 0..nc {
                 let bb = c0 + y;
                 if pop[bb] <= 1e-22 {
