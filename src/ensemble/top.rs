@@ -158,3 +158,55 @@ impl TopEnsemble {
         self.blocks.iter().map(|b| b.weight * b.levels.iter().map(|l| l.2).sum::<f64>()).sum()
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::basis::top::TopFrame;
+    use crate::molecule::Molecule;
+
+    fn ensemble(name: &str, t: f64) -> (TopEnsemble, TopFrame) {
+        let m = Molecule::from_library(name, "molecule").unwrap();
+        let top = m.top.unwrap();
+        let frame = TopFrame::new(&top, false);
+        (TopEnsemble::new(&top, &frame, t, 1e-7).unwrap(), frame)
+    }
+
+    #[test]
+    fn water_ortho_para_ratio_reaches_three_to_one() {
+        // Ortho (Ka + Kc odd) : para = 3 : 1 in nuclear-spin weight (Townes & Schawlow); at high temperature
+        // the rotational partition functions of the two classes become equal, so the ortho fraction → 3/4.
+        // At 300 K water is within a few 1e-3 of that limit (its lowest para level lies 23.8 cm⁻¹ below the
+        // lowest ortho one, kT = 208 cm⁻¹: common practice).
+        let (e, frame) = ensemble("H2O", 300.0);
+        let ortho: f64 = e
+            .blocks
+            .iter()
+            .filter(|b| b.sym.ka_kc_parity(&frame).map(|(a, c)| (a + c) % 2 == 1).unwrap_or(false))
+            .map(|b| b.weight * b.levels.iter().map(|l| l.2).sum::<f64>())
+            .sum();
+        assert!((e.total() - 1.0).abs() < 1e-9);
+        assert!((ortho - 0.75).abs() < 5e-3, "ortho fraction {ortho}");
+        // At T = 0 only the lowest level (0_00, para) is populated.
+        let (e0, frame0) = ensemble("H2O", 0.0);
+        assert_eq!(e0.blocks.len(), 1);
+        assert_eq!(e0.blocks[0].sym.ka_kc_parity(&frame0), Some((0, 0)));
+    }
+
+    #[test]
+    fn zero_spin_weights_remove_symmetry_classes() {
+        // SO2: ¹⁶O nuclei are spinless bosons, so only Ka + Kc even levels exist (derived by character
+        // projection; Herzberg, Molecular Spectra II).
+        let (e, frame) = ensemble("SO2", 5.0);
+        assert!(!e.blocks.is_empty());
+        for b in &e.blocks {
+            let (a, c) = b.sym.ka_kc_parity(&frame).unwrap();
+            assert_eq!((a + c) % 2, 0, "{:?}", b.sym);
+        }
+        // A symmetric top counts ±K once per level with weight 2 and keeps every K class.
+        let (e, _) = ensemble("CH3F", 20.0);
+        assert!((e.total() - 1.0).abs() < 1e-9);
+        assert!(e.blocks.iter().any(|b| matches!(b.sym, TopSym::K(k) if k % 3 == 0 && k > 0)));
+        assert!(e.blocks.iter().any(|b| matches!(b.sym, TopSym::K(k) if k % 3 != 0)));
+    }
+}
