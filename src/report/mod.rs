@@ -188,14 +188,30 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
 pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::LinePlot {
     let mut plot = svg::LinePlot::new(title, "time (ps)", "alignment");
     plot.subtitle = Some(format!("{} at {} K; {} pulse(s); shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, scenario.field.pulses.len()));
+    let axis = scenario.molecule.top.as_ref().map(|t| format!(" ({} axis)", t.alignment_axis.letter())).unwrap_or_default();
     plot.series.push(svg::Series {
-        label: "⟨cos²θ⟩".into(),
+        label: format!("⟨cos²θ⟩{axis}"),
         x: trace.times_ps.clone(),
         y: trace.cos2.clone(),
         color: "#1f5fa8".into(),
         dashed: false,
         width: 1.6,
     });
+    if let Some(t) = &scenario.molecule.top {
+        // The other two body axes, dashed (their sum with the alignment axis is 1).
+        for (i, (series, color)) in [(&trace.cos2_a, "#5b8fd1"), (&trace.cos2_b, "#7a7a7a"), (&trace.cos2_c, "#a0a0a0")].into_iter().enumerate() {
+            if i != t.alignment_axis.index() && !series.is_empty() {
+                plot.series.push(svg::Series {
+                    label: format!("⟨cos²θ⟩ ({} axis)", ["a", "b", "c"][i]),
+                    x: trace.times_ps.clone(),
+                    y: series.clone(),
+                    color: color.into(),
+                    dashed: true,
+                    width: 1.2,
+                });
+            }
+        }
+    }
     if !trace.cos2_2d.is_empty() {
         plot.series.push(svg::Series {
             label: "⟨cos²θ_2D⟩".into(),
