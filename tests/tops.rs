@@ -128,3 +128,25 @@ fn top_input_errors_name_the_field() {
         assert!(!err.contains('\n'));
     }
 }
+
+#[test]
+fn focal_average_of_a_top_keeps_the_axis_sum_and_the_wide_pump_limit() {
+    // Averaging is a weighted mean of runs, so Σ_i ⟨cos²θ_iZ⟩ = 1 survives it (exact identity), and a pump
+    // much wider than the probe leaves the trace unchanged (uniform-intensity limit, as for linear molecules).
+    let pulse = r#"{"center_ps": 0.0, "fwhm_fs": 200, "peak_intensity_wcm2": 2e12}"#;
+    let window = r#"{"start_ps": 1.0, "stop_ps": 30.0, "step_fs": 500}"#;
+    let avg = r#", "focal_average": {"pump_waist_um": 40, "probe_waist_um": 20, "probe_order": 1, "points": 4}"#;
+    let sim = simulate(&scenario(ASYMMETRIC, 2.0, pulse, window, avg)).unwrap();
+    let a = sim.averaged.as_ref().unwrap();
+    let on_axis_peak = sim.result.trace.cos2.iter().cloned().fold(0.0, f64::max);
+    let avg_peak = a.trace.cos2.iter().cloned().fold(0.0, f64::max);
+    assert!(avg_peak < on_axis_peak, "averaging lowers the peak: {avg_peak} vs {on_axis_peak}");
+    for i in 0..a.trace.times_ps.len() {
+        let s = a.trace.cos2_a[i] + a.trace.cos2_b[i] + a.trace.cos2_c[i];
+        assert!((s - 1.0).abs() < 1e-9, "{s}");
+    }
+    let wide = r#", "focal_average": {"pump_waist_um": 5000, "probe_waist_um": 1, "probe_order": 1, "points": 3}"#;
+    let w = simulate(&scenario(ASYMMETRIC, 2.0, pulse, window, wide)).unwrap();
+    let d = w.averaged.as_ref().unwrap().trace.cos2.iter().zip(&w.result.trace.cos2).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max);
+    assert!(d < 1e-6, "{d}");
+}

@@ -450,7 +450,8 @@ impl Solver {
             match &mut out {
                 None => {
                     let mut first = r;
-                    for series in [&mut first.trace.cos2, &mut first.trace.cos2_2d, &mut first.trace.cos, &mut first.trace.cos3] {
+                    let t = &mut first.trace;
+                    for series in [&mut t.cos2, &mut t.cos2_2d, &mut t.cos, &mut t.cos3, &mut t.cos2_a, &mut t.cos2_b, &mut t.cos2_c] {
                         series.iter_mut().for_each(|v| *v *= w);
                     }
                     out = Some(first);
@@ -461,6 +462,9 @@ impl Solver {
                         (&mut acc.trace.cos2_2d, &r.trace.cos2_2d),
                         (&mut acc.trace.cos, &r.trace.cos),
                         (&mut acc.trace.cos3, &r.trace.cos3),
+                        (&mut acc.trace.cos2_a, &r.trace.cos2_a),
+                        (&mut acc.trace.cos2_b, &r.trace.cos2_b),
+                        (&mut acc.trace.cos2_c, &r.trace.cos2_c),
                     ];
                     for (a, b) in pairs {
                         a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
