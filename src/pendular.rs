@@ -67,7 +67,10 @@ fn dressed_block(mol: &Molecule, m: u32, size: usize, u0: f64, s: f64) -> (Vec<f
 /// the basis is enlarged until the reported energies change by less than 1e-10 B.
 pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32) -> Result<PendularResult> {
     if mol.is_top() {
-        return Err(Error::input("molecule", format!("pendular states are computed for linear molecules only so far; {} is a symmetric or asymmetric top", mol.name)));
+        return Err(Error::input(
+            "molecule",
+            format!("pendular states are computed for linear molecules only so far; {} is a symmetric or asymmetric top", mol.name),
+        ));
     }
     if !intensity_wcm2.is_finite() || !(0.0..=1e15).contains(&intensity_wcm2) {
         return Err(Error::input("intensity_wcm2", format!("expected 0 to 1e15 W/cm², got {intensity_wcm2}")));

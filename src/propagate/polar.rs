@@ -29,6 +29,12 @@ pub struct PolarOps {
     pub wt: DMatrix<f64>,
     /// Matrices of cos²θ, |cosθ|, cosθ and cos³θ in the J basis (exact, by quadrature).
     pub observables: [DMatrix<f64>; POLAR_OBSERVABLES],
+    /// J of the first basis state (consecutive J values follow).
+    pub j_first: u32,
+    /// How many identical blocks this one stands for (±M, ±K).
+    pub degeneracy: f64,
+    /// Label for reports ("both" for linear molecules; K and M for symmetric tops).
+    pub label: String,
     statics: Mutex<HashMap<u64, Arc<StaticEigen>>>,
 }
 
@@ -50,16 +56,31 @@ impl PolarOps {
     pub fn new(m: u32, size: usize, mol: &Molecule) -> PolarOps {
         let block = Block { m, parity: BOTH_PARITIES, size };
         let cos = block.matrix_of(|x| x, 1);
-        let eig = SymmetricEigen::new(cos.clone());
+        let observables = [block.matrix_of(|x| x * x, 2), block.matrix_of(f64::abs, 1), cos, block.matrix_of(|x| x * x * x, 3)];
+        PolarOps::from_parts(block, block.j_min(), block.m_degeneracy(), "both".into(), block.frequencies(mol), observables)
+    }
+
+    /// A block from its parts: first J, degeneracy, report label, field-free frequencies (rad/ps) and the
+    /// matrices of cos²θ, |cosθ|, cosθ and cos³θ (the third one defines the grid of the representation).
+    pub fn from_parts(block: Block, j_first: u32, degeneracy: f64, label: String, omega: Vec<f64>, observables: [DMatrix<f64>; POLAR_OBSERVABLES]) -> PolarOps {
+        let eig = SymmetricEigen::new(observables[2].clone());
         PolarOps {
             block,
-            omega: block.frequencies(mol),
+            omega,
             nodes: eig.eigenvalues.iter().copied().collect(),
             wt: eig.eigenvectors.transpose(),
             w: eig.eigenvectors,
-            observables: [block.matrix_of(|x| x * x, 2), block.matrix_of(f64::abs, 1), cos, block.matrix_of(|x| x * x * x, 3)],
+            observables,
+            j_first,
+            degeneracy,
+            label,
             statics: Mutex::new(HashMap::new()),
         }
+    }
+
+    /// J of the last basis state.
+    pub fn j_last(&self) -> u32 {
+        self.j_first + self.size() as u32 - 1
     }
 
     /// Number of basis states.

@@ -129,6 +129,18 @@ impl Solver {
         Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: None })
     }
 
+    /// A linear-molecule view of a symmetric top along its figure axis (B, α∥ − α⊥ with sign, dipole), used
+    /// to build schedules and coupling rates for the polar path.
+    fn figure_axis_view(&self, t: &top::TopSolver) -> Solver {
+        let fig = t.frame.axes[0];
+        let across = t.frame.axes[1];
+        let mut m = Molecule::linear(&self.molecule.name, t.top.b_cm, 0.0, t.top.alpha(fig), t.top.alpha(across), [1.0, 1.0]);
+        m.dipole_debye = self.molecule.dipole_debye;
+        m.ionization_energy_ev = self.molecule.ionization_energy_ev;
+        let ensemble = ThermalEnsemble { temperature_k: self.ensemble.temperature_k, j_max: self.ensemble.j_max, discarded_population: 0.0, blocks: vec![] };
+        Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), top: None }
+    }
+
     /// Population left out of the thermal ensemble by its truncation.
     pub fn discarded_population(&self) -> f64 {
         self.top.as_ref().map(|t| t.ensemble.discarded_population).unwrap_or(self.ensemble.discarded_population)
@@ -248,6 +260,9 @@ impl Solver {
             return Err(Error::input("window", "sample times must be ascending"));
         }
         if let Some(t) = &self.top {
+            if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric {
+                return self.figure_axis_view(t).run_polar_top(t, field, times_ps);
+            }
             return t.run(field, times_ps, with_2d);
         }
         if field.is_polar() || self.settings.both_parities {
@@ -647,7 +662,7 @@ impl Solver {
                 )));
             }
             let ops = PolarOps::new(bp.m, size, &self.molecule);
-            if let Some(out) = self.try_polar_block(&ops, bp, field, items, times, t_first)? {
+            if let Some(out) = self.try_polar_block(&ops, &bp.levels, field, items, times, t_first)? {
                 return Ok(out);
             }
             size += (size / 4).max(4);
@@ -658,16 +673,15 @@ impl Solver {
     fn try_polar_block(
         &self,
         ops: &PolarOps,
-        bp: &BlockPopulation,
+        levels: &[(u32, f64)],
         field: &FieldModel,
         items: &[PolarItem],
         times: &[f64],
         t_first: f64,
     ) -> Result<Option<(Vec<Vec<f64>>, Vec<f64>, BlockReport)>> {
-        let block = ops.block;
-        let g = block.m_degeneracy();
-        let pops: Vec<f64> = bp.levels.iter().map(|l| l.1).collect();
-        let index: Vec<usize> = bp.levels.iter().map(|l| (l.0 - block.j_min()) as usize).collect();
+        let g = ops.degeneracy;
+        let pops: Vec<f64> = levels.iter().map(|l| l.1).collect();
+        let index: Vec<usize> = levels.iter().map(|l| (l.0 - ops.j_first) as usize).collect();
         // A static field on from the start was met adiabatically: start in the dressed states that
         // correlate with the thermal field-free levels (same energy order within the block).
         // The field the molecules arrived in: on from the start (no on_ps) and not yet switched off.
@@ -774,7 +788,7 @@ impl Solver {
             return Ok(None);
         }
         let perm: Vec<f64> = sums.statics.iter().map(|v| g * v).collect();
-        let report = BlockReport { m: block.m, parity: "both".to_string(), j_max: block.j_max(), size: block.size, edge_population: edge };
+        let report = BlockReport { m: ops.block.m, parity: ops.label.clone(), j_max: ops.j_last(), size: ops.size(), edge_population: edge };
         Ok(Some((values, perm, report)))
     }
 }

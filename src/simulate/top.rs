@@ -13,6 +13,7 @@ use crate::field::FieldModel;
 use crate::molecule::top::{BodyAxis, Top};
 use crate::observe::pairs::PairSums;
 use crate::observe::{FreeSums, Trace};
+use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
 use crate::propagate::sparse::{Csr, chebyshev_kick};
 use crate::propagate::{BlockState, propagate_finite};
 use crate::scenario::{Method, SolverSettings};
@@ -240,7 +241,7 @@ impl TopSolver {
 
     /// Run `field` and sample the observables at `times_ps` (ascending).
     pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
-        if field.static_field.is_some() || !field.two_colour.is_empty() || !field.terahertz.is_empty() {
+        if field.is_polar() {
             let which = if field.static_field.is_some() {
                 "static_field"
             } else if !field.two_colour.is_empty() {
@@ -465,5 +466,117 @@ impl TopSolver {
         };
         let report = BlockReport { m: bp.m as u32, parity: label, j_max: ops.basis.block.j_max as u32, size: ops.basis.size(), edge_population: edge };
         Ok(Some(TopOutcome { values, gaps, final_pairs, ops, report, weight: g }))
+    }
+}
+
+/// Operators of one (K, M) block of a symmetric top for fields that break head–tail symmetry: the
+/// J ladder J = max(|K|, |M|) … `j_max` with cos²θ, |Φ_Z,align|, cosθ and cos³θ of the figure axis
+/// (cos³θ as the cube of cosθ built three J values further, exact inside the block).
+fn symmetric_top_polar_ops(top: &Top, frame: &TopFrame, k: i64, m: i64, j_max: i64, degeneracy: f64) -> PolarOps {
+    let basis = TopBlockBasis::new(frame, TopBlock { m, sym: TopSym::K(k), j_max });
+    let n = basis.size();
+    let wider = TopBlockBasis::new(frame, TopBlock { m, sym: TopSym::K(k), j_max: j_max + 3 });
+    let cos_wide = wider.function_matrix(&AngularOperator::cos_z());
+    let cube = &cos_wide * &cos_wide * &cos_wide;
+    let cos3 = cube.view((0, 0), (n, n)).into_owned();
+    let observables = [
+        basis.function_matrix(&AngularOperator::cos2_z()),
+        basis.abs_direction_cosine(frame.position(top.alignment_axis)),
+        basis.function_matrix(&AngularOperator::cos_z()),
+        cos3,
+    ];
+    let omega = basis.energies_cm.iter().map(|e| cm_to_rad_per_ps(*e)).collect();
+    let j_first = basis.j(0) as u32;
+    let block = crate::basis::Block { m: m.unsigned_abs() as u32, parity: crate::basis::BOTH_PARITIES, size: n };
+    PolarOps::from_parts(block, j_first, degeneracy, format!("K={k}, M={m}"), omega, observables)
+}
+
+impl super::Solver {
+    /// Symmetric tops in static, terahertz (and laser) fields: one block per (K, M) holding every J, run
+    /// through the polar schedule of linear molecules. `self` is the figure-axis view of the top (α∥ and
+    /// α⊥ along and across the figure axis, the dipole along it).
+    pub(super) fn run_polar_top(&self, solver: &TopSolver, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
+        let top = &solver.top;
+        if top.kind() == crate::molecule::top::TopKind::Asymmetric {
+            let which = if field.static_field.is_some() {
+                "static_field"
+            } else if !field.terahertz.is_empty() {
+                "terahertz"
+            } else {
+                "two_colour"
+            };
+            return Err(Error::input(which, "orienting fields on asymmetric tops are not supported yet; symmetric tops and linear molecules take them"));
+        }
+        let frame = TopFrame::new(top, true);
+        let (items, events) = self.polar_schedule(field);
+        let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
+        let t_first = if t_first.is_finite() { t_first } else { 0.0 };
+        let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
+        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        let dipole_kicks: f64 = items.iter().map(|i| if let super::PolarItem::Kick { theta, .. } = i { theta[0].abs() + theta[2].abs() } else { 0.0 }).sum();
+        let extra = 2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + (1.5 * dipole_kicks).ceil() as usize + 4;
+        // (K, M) blocks: ±M differ once K ≠ 0 (the Stark shift −μE K M / J(J+1)); (K, M) and (−K, −M) agree.
+        let mut blocks: Vec<(i64, i64, f64, Vec<(u32, f64)>)> = vec![];
+        for bp in &solver.ensemble.blocks {
+            let TopSym::K(k) = bp.sym else { continue };
+            let levels: Vec<(u32, f64)> = bp.levels.iter().map(|l| (l.0 as u32, l.2)).collect();
+            if k == 0 || bp.m == 0 {
+                blocks.push((k, bp.m, bp.weight, levels));
+            } else {
+                blocks.push((k, bp.m, bp.weight / 2.0, levels.clone()));
+                blocks.push((k, -bp.m, bp.weight / 2.0, levels));
+            }
+        }
+        let outcomes: Vec<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> = blocks
+            .par_iter()
+            .map(|(k, m, w, levels)| {
+                let j_thermal = levels.last().map(|l| l.0 as i64).unwrap_or(0);
+                let mut j_max = (j_thermal + extra as i64).min(MAX_TOP_BASIS_J);
+                loop {
+                    let ops = symmetric_top_polar_ops(top, &frame, *k, *m, j_max, *w);
+                    if let Some(out) = self.try_polar_block(&ops, levels, field, &items, times, t_first)? {
+                        return Ok(out);
+                    }
+                    if j_max >= MAX_TOP_BASIS_J {
+                        return Err(Error::Numerical(format!(
+                            "block K = {k}, M = {m}: the basis would need J > {MAX_TOP_BASIS_J}; lower the field strengths or the temperature"
+                        )));
+                    }
+                    j_max = (j_max + (j_max / 4).max(4)).min(MAX_TOP_BASIS_J);
+                }
+            })
+            .collect::<Result<Vec<_>>>()?;
+        let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
+        let mut permanent = [0.0; POLAR_OBSERVABLES];
+        let mut reports = vec![];
+        for (v, perm, report) in outcomes {
+            for o in 0..POLAR_OBSERVABLES {
+                for i in 0..times.len() {
+                    values[o][i] += v[o][i];
+                }
+                permanent[o] += perm[o];
+            }
+            reports.push(report);
+        }
+        let [fig2, abs_align, cos, cos3]: [Vec<f64>; POLAR_OBSERVABLES] = values.try_into().expect("four observables");
+        // Fixed-K states have ⟨Φ_Zx²⟩ = ⟨Φ_Zy²⟩ = (1 − ⟨cos²θ⟩)/2 (sin²θ cos2χ changes K by 2).
+        let across: Vec<f64> = fig2.iter().map(|c| 0.5 * (1.0 - c)).collect();
+        let fig = frame.axes[0].index();
+        let axis = |i: usize| if i == fig { fig2.clone() } else { across.clone() };
+        let align = top.alignment_axis.index();
+        let perm_align = if align == fig { permanent[0] } else { 0.5 * (1.0 - permanent[0]) };
+        let trace = Trace { times_ps: times.to_vec(), cos2: axis(align), cos2_2d: abs_align, cos, cos3, cos2_a: axis(0), cos2_b: axis(1), cos2_c: axis(2) };
+        let mut sums = crate::observe::LevelSums::new(vec![], f64::INFINITY, false);
+        sums.cos2_static = perm_align;
+        sums.abscos_static = permanent[1];
+        Ok(RunResult {
+            trace,
+            permanent_cos2: perm_align,
+            permanent_cos2_2d: permanent[1],
+            blocks: reports,
+            events,
+            final_sums: FreeSums::Levels(sums),
+            permanent_cos: Some(permanent[2]),
+        })
     }
 }
