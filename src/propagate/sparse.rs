@@ -44,28 +44,39 @@ impl Csr {
         self.val.len()
     }
 
-    /// y = a·(M x) + b·x for states stored transposed (x, y of shape k × n: column r holds row r of
-    /// the states), so that each stored element updates k contiguous numbers.
-    fn affine_t(&self, a: f64, b: f64, x: &DMatrix<f64>, y: &mut DMatrix<f64>) {
-        let k = x.nrows();
-        let xs = x.as_slice();
-        let ys = y.as_mut_slice();
+    /// y = a·(M x) + b·x − z for states stored transposed (x, y, z as slices of k × n column-major
+    /// matrices: column r holds row r of the states), so that each stored element updates k contiguous
+    /// numbers. `z` may be omitted.
+    fn affine_t(&self, k: usize, a: f64, b: f64, x: &[f64], z: Option<&[f64]>, y: &mut [f64]) {
         for r in 0..self.n {
-            let yr = &mut ys[r * k..(r + 1) * k];
-            let xr = &xs[r * k..(r + 1) * k];
-            for (yv, xv) in yr.iter_mut().zip(xr) {
-                *yv = b * xv;
+            let yr = &mut y[r * k..(r + 1) * k];
+            let xr = &x[r * k..(r + 1) * k];
+            match z {
+                Some(z) => {
+                    for ((yv, xv), zv) in yr.iter_mut().zip(xr).zip(&z[r * k..(r + 1) * k]) {
+                        *yv = b * xv - zv;
+                    }
+                }
+                None => {
+                    for (yv, xv) in yr.iter_mut().zip(xr) {
+                        *yv = b * xv;
+                    }
+                }
             }
             for p in self.row_ptr[r]..self.row_ptr[r + 1] {
                 let v = a * self.val[p];
                 let c = self.col[p];
-                let xc = &xs[c * k..(c + 1) * k];
-                for (yv, xv) in yr.iter_mut().zip(xc) {
+                for (yv, xv) in yr.iter_mut().zip(&x[c * k..(c + 1) * k]) {
                     *yv += v * xv;
                 }
             }
         }
     }
+}
+
+thread_local! {
+    /// Reused buffers of `chebyshev_kick` (large blocks would otherwise fault fresh pages on every kick).
+    static WORK: std::cell::RefCell<[Vec<f64>; 4]> = const { std::cell::RefCell::new([Vec::new(), Vec::new(), Vec::new(), Vec::new()]) };
 }
 
 /// Bessel functions J_0(z) … J_kmax(z) by Miller's backward recurrence, normalized with
@@ -112,52 +123,72 @@ pub fn chebyshev_kick(a: &Csr, theta: f64, psi: &mut DMatrix<f64>) {
     let last = (0..=kmax + 8).rev().find(|&m| bj[m].abs() > 1e-15).unwrap_or(0);
     let (n, cols) = psi.shape();
     let k = cols / 2;
-    // Work on the transpose (2k × n): rows 0..k real parts, k..2k imaginary parts.
-    let mut prev = psi.transpose();
-    let mut cur = DMatrix::zeros(cols, n);
-    a.affine_t(2.0, -1.0, &prev, &mut cur);
-    let mut next = DMatrix::zeros(cols, n);
-    // acc = Σ c_m v_m, c_m = (2 − δ_m0) i^m J_m.
-    let mut acc = &prev * bj[0];
-    let add = |m: usize, v: &DMatrix<f64>, acc: &mut DMatrix<f64>| {
-        let c = 2.0 * bj[m];
-        // i^m: 1, i, −1, −i; (x + iy)·i = −y + ix.
-        let (sr, si, swap) = match m % 4 {
-            0 => (c, c, false),
-            1 => (-c, c, true),
-            2 => (-c, -c, false),
-            _ => (c, -c, true),
-        };
-        let (vr, vi) = (v.rows(0, k), v.rows(k, k));
-        if swap {
-            let mut top = acc.rows_mut(0, k);
-            top += vi * sr;
-            let mut bottom = acc.rows_mut(k, k);
-            bottom += vr * si;
-        } else {
-            let mut top = acc.rows_mut(0, k);
-            top += vr * sr;
-            let mut bottom = acc.rows_mut(k, k);
-            bottom += vi * si;
+    WORK.with(|w| {
+        let mut w = w.borrow_mut();
+        for buf in w.iter_mut() {
+            buf.clear();
+            buf.resize(cols * n, 0.0);
         }
-    };
-    if last >= 1 {
-        add(1, &cur, &mut acc);
-    }
-    for m in 2..=last {
-        // v_m = 2 X v_{m−1} − v_{m−2} = 4 A v_{m−1} − 2 v_{m−1} − v_{m−2}.
-        a.affine_t(4.0, -2.0, &cur, &mut next);
-        next -= &prev;
-        add(m, &next, &mut acc);
-        std::mem::swap(&mut prev, &mut cur);
-        std::mem::swap(&mut cur, &mut next);
-    }
-    let (s, c) = z.sin_cos();
-    let (ar, ai) = (acc.rows(0, k), acc.rows(k, k));
-    let re = ar * c - ai * s;
-    let im = ar * s + ai * c;
-    psi.columns_mut(0, k).copy_from(&re.transpose());
-    psi.columns_mut(k, k).copy_from(&im.transpose());
+        let [prev, cur, next, acc] = &mut *w;
+        // Work on the transpose (2k × n, column-major): entries 0..k of a column are real parts, k..2k imaginary.
+        let data = psi.as_slice();
+        for c in 0..cols {
+            for r in 0..n {
+                prev[r * cols + c] = data[c * n + r];
+            }
+        }
+        a.affine_t(cols, 2.0, -1.0, prev, None, cur);
+        // acc = Σ c_m v_m, c_m = (2 − δ_m0) i^m J_m.
+        for (x, p) in acc.iter_mut().zip(prev.iter()) {
+            *x = bj[0] * p;
+        }
+        let add = |m: usize, v: &[f64], acc: &mut [f64]| {
+            let c = 2.0 * bj[m];
+            // i^m: 1, i, −1, −i; (x + iy)·i = −y + ix.
+            for (ac, vc) in acc.chunks_exact_mut(cols).zip(v.chunks_exact(cols)) {
+                let (ar, ai) = ac.split_at_mut(k);
+                let (vr, vi) = vc.split_at(k);
+                match m % 4 {
+                    0 => ar.iter_mut().zip(vr).zip(ai.iter_mut().zip(vi)).for_each(|((x, y), (u, w))| {
+                        *x += c * y;
+                        *u += c * w;
+                    }),
+                    1 => ar.iter_mut().zip(vi).zip(ai.iter_mut().zip(vr)).for_each(|((x, y), (u, w))| {
+                        *x -= c * y;
+                        *u += c * w;
+                    }),
+                    2 => ar.iter_mut().zip(vr).zip(ai.iter_mut().zip(vi)).for_each(|((x, y), (u, w))| {
+                        *x -= c * y;
+                        *u -= c * w;
+                    }),
+                    _ => ar.iter_mut().zip(vi).zip(ai.iter_mut().zip(vr)).for_each(|((x, y), (u, w))| {
+                        *x += c * y;
+                        *u -= c * w;
+                    }),
+                }
+            }
+        };
+        if last >= 1 {
+            add(1, cur, acc);
+        }
+        for m in 2..=last {
+            // v_m = 2 X v_{m−1} − v_{m−2} = 4 A v_{m−1} − 2 v_{m−1} − v_{m−2}.
+            a.affine_t(cols, 4.0, -2.0, cur, Some(prev), next);
+            add(m, next, acc);
+            std::mem::swap(prev, cur);
+            std::mem::swap(cur, next);
+        }
+        let (s, c) = z.sin_cos();
+        let data = psi.as_mut_slice();
+        for col in 0..n {
+            let a = &acc[col * cols..(col + 1) * cols];
+            for r in 0..k {
+                let (x, y) = (a[r], a[r + k]);
+                data[r * n + col] = x * c - y * s;
+                data[(r + k) * n + col] = x * s + y * c;
+            }
+        }
+    });
 }
 
 #[cfg(test)]

@@ -77,26 +77,26 @@ impl TopOps {
         TopOps { basis, omega, coupling, observables, fastest }
     }
 
-    /// Exact kick exp(iθA) on all states (eigenbasis in and out).
+    /// Exact kick exp(iθA) on all states (eigenbasis in and out), through the function basis.
     pub fn kick(&self, state: &mut BlockState, theta: f64) {
         if theta == 0.0 {
             return;
         }
-        let mut f = self.change_basis(&state.psi, false);
-        chebyshev_kick(&self.coupling, theta, &mut f);
-        state.psi = self.change_basis(&f, true);
-    }
-
-    /// Eigenbasis → function basis (U ψ per J), or back (Uᵀ ψ) when `back`.
-    fn change_basis(&self, psi: &DMatrix<f64>, back: bool) -> DMatrix<f64> {
-        let mut out = DMatrix::zeros(psi.nrows(), psi.ncols());
-        for (r, &(_, s, n)) in self.basis.j_ranges.iter().enumerate() {
-            let u = &self.basis.vectors[r];
-            let part = psi.rows(s, n);
-            let t = if back { u.transpose() * part } else { u * part };
-            out.rows_mut(s, n).copy_from(&t);
-        }
-        out
+        KICK_BUFFER.with(|b| {
+            let mut b = b.borrow_mut();
+            let shape = state.psi.shape();
+            if b.as_ref().map(|m| m.shape()) != Some(shape) {
+                *b = Some(DMatrix::zeros(shape.0, shape.1));
+            }
+            let f = b.as_mut().expect("buffer");
+            for (r, &(_, s, n)) in self.basis.j_ranges.iter().enumerate() {
+                f.rows_mut(s, n).gemm(1.0, &self.basis.vectors[r], &state.psi.rows(s, n), 0.0);
+            }
+            chebyshev_kick(&self.coupling, theta, f);
+            for (r, &(_, s, n)) in self.basis.j_ranges.iter().enumerate() {
+                state.psi.rows_mut(s, n).gemm_tr(1.0, &self.basis.vectors[r], &f.rows(s, n), 0.0);
+            }
+        });
     }
 
     /// Number of eigenstates in the top two J values of the basis (the edge watched for truncation).
@@ -104,6 +104,11 @@ impl TopOps {
         let r = &self.basis.j_ranges;
         r.iter().rev().take(2).map(|x| x.2).sum()
     }
+}
+
+thread_local! {
+    /// The function-basis copy of the states during a kick, reused across kicks of the same shape.
+    static KICK_BUFFER: std::cell::RefCell<Option<DMatrix<f64>>> = const { std::cell::RefCell::new(None) };
 }
 
 /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis), one matrix product per stored block.
