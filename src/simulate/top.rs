@@ -114,9 +114,17 @@ thread_local! {
 /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis), one matrix product per stored block.
 fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
     let k = state.k;
+    // States are ordered by J: rows above the last one holding any amplitude (|ψ|² > 1e-26, so that the
+    // neglected terms stay below 1e-13) need not enter the products.
+    let n = state.psi.nrows();
+    let live = (0..n).rev().find(|&r| (0..2 * k).any(|c| state.psi[(r, c)].powi(2) > 1e-26)).map(|r| r + 1).unwrap_or(0);
     let mut total = 0.0;
     for (r0, c0, b) in &o.blocks {
-        let (nr, nc) = b.shape();
+        if *r0 >= live || *c0 >= live {
+            continue;
+        }
+        let (nr, nc) = ((live - r0).min(b.nrows()), (live - c0).min(b.ncols()));
+        let b = b.view((0, 0), (nr, nc));
         let y = b * state.psi.rows(*c0, nc);
         let x = state.psi.rows(*r0, nr);
         for (c, p) in pops.iter().enumerate() {
