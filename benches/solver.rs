@@ -119,19 +119,7 @@ fn main() {
 /// one 1 ps pulse at 2e12 W/cm², trace 0–400 ps every 200 fs with ⟨cos²θ_2D⟩, at the temperatures in
 /// KICKTRAIN_BENCH_TOP_K (comma-separated, default "1"; each run takes minutes). One run per temperature.
 fn asymmetric_top() {
-    use kicktrain::molecule::top::{BodyAxis, Top, TopSpinWeights};
-    let top = Top {
-        a_cm: 0.19,
-        b_cm: 0.025,
-        c_cm: 0.022,
-        d_j_cm: 0.0,
-        d_jk_cm: 0.0,
-        d_k_cm: 0.0,
-        polarizability_a3: [20.0, 12.0, 9.0],
-        dipole_axis: BodyAxis::A,
-        alignment_axis: BodyAxis::A,
-        spin_weights: TopSpinWeights::Equal,
-    };
+    let top = kicktrain::molecule::top::Top::rigid(0.19, 0.025, 0.022, [20.0, 12.0, 9.0]);
     let mol = Molecule::from_top("benchmark top", top, 0.0, None);
     let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 1000.0, 2e12)], ..Default::default() };
     let times: Vec<f64> = (0..=2000).map(|i| i as f64 * 0.2).collect();

@@ -419,18 +419,7 @@ fn parse_top(v: &Value, path: &str) -> Result<Molecule> {
         let p = f.path_of(key);
         f.opt_str(key, "\"a\", \"b\" or \"c\"")?.map(|s| BodyAxis::parse(s, &p)).transpose()
     };
-    let kind_probe = Top {
-        a_cm,
-        b_cm,
-        c_cm,
-        d_j_cm,
-        d_jk_cm,
-        d_k_cm,
-        polarizability_a3,
-        dipole_axis: BodyAxis::A,
-        alignment_axis: BodyAxis::A,
-        spin_weights: TopSpinWeights::Equal,
-    };
+    let kind_probe = Top { d_j_cm, d_jk_cm, d_k_cm, ..Top::rigid(a_cm, b_cm, c_cm, polarizability_a3) };
     let figure = if kind_probe.kind() == crate::molecule::top::TopKind::Oblate { BodyAxis::C } else { BodyAxis::A };
     let dipole_axis = axis(&mut f, "dipole_axis")?.unwrap_or(figure);
     let alignment_axis = axis(&mut f, "alignment_axis")?.unwrap_or_else(|| Top::most_polarizable(&polarizability_a3));

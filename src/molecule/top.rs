@@ -105,6 +105,27 @@ pub struct Top {
 const SYMMETRIC_TOLERANCE: f64 = 1e-9;
 
 impl Top {
+    /// A rigid top with constants A, B, C (cm⁻¹) and principal polarizabilities along a, b, c (Å³); no
+    /// dipole (axis a, or c for an oblate top), alignment axis the most polarizable, equal spin weights.
+    pub fn rigid(a_cm: f64, b_cm: f64, c_cm: f64, polarizability_a3: [f64; 3]) -> Top {
+        let mut t = Top {
+            a_cm,
+            b_cm,
+            c_cm,
+            d_j_cm: 0.0,
+            d_jk_cm: 0.0,
+            d_k_cm: 0.0,
+            polarizability_a3,
+            dipole_axis: BodyAxis::A,
+            alignment_axis: Top::most_polarizable(&polarizability_a3),
+            spin_weights: TopSpinWeights::Equal,
+        };
+        if t.kind() == TopKind::Oblate {
+            t.dipole_axis = BodyAxis::C;
+        }
+        t
+    }
+
     /// The kind of rotor: prolate or oblate symmetric top, or asymmetric top.
     pub fn kind(&self) -> TopKind {
         let close = |x: f64, y: f64| (x - y).abs() <= SYMMETRIC_TOLERANCE * x.abs().max(y.abs());

@@ -199,11 +199,7 @@ impl LevelSums {
     pub fn eval_series(&self, times_ps: &[f64], mut out: impl FnMut(usize, (f64, f64))) {
         let (mut zr, mut zi) = (vec![], vec![]);
         let n = times_ps.len();
-        let uniform = n > 2 && {
-            let d = times_ps[1] - times_ps[0];
-            times_ps.windows(2).all(|w| ((w[1] - w[0]) - d).abs() <= 1e-9 * d.abs().max(1e-12))
-        };
-        if !uniform {
+        if !is_uniform_grid(times_ps) {
             for (i, &t) in times_ps.iter().enumerate() {
                 self.phases(t, &mut zr, &mut zi);
                 out(i, self.eval_with(&zr, &zi));
@@ -378,6 +374,15 @@ impl DenseSums {
                 v
             })
             .collect()
+    }
+}
+
+/// True for more than two times on an equally spaced grid (spacing equal to 1e-9 relative), where phases
+/// can advance by one complex product per step.
+pub fn is_uniform_grid(times_ps: &[f64]) -> bool {
+    times_ps.len() > 2 && {
+        let d = times_ps[1] - times_ps[0];
+        times_ps.windows(2).all(|w| ((w[1] - w[0]) - d).abs() <= 1e-9 * d.abs().max(1e-12))
     }
 }
 

@@ -120,11 +120,7 @@ impl PairSums {
     /// level and step, re-synchronized every 64 steps.
     pub fn eval_series(&self, times_ps: &[f64], mut out: impl FnMut(usize, Vec<f64>)) {
         let n = times_ps.len();
-        let uniform = n > 2 && {
-            let d = times_ps[1] - times_ps[0];
-            times_ps.windows(2).all(|w| ((w[1] - w[0]) - d).abs() <= 1e-9 * d.abs().max(1e-12))
-        };
-        if !uniform {
+        if !super::is_uniform_grid(times_ps) {
             for (i, &t) in times_ps.iter().enumerate() {
                 out(i, self.eval(t));
             }

@@ -505,6 +505,26 @@ impl Solver {
     }
 }
 
+/// One polar block's result: per-observable samples, time averages after the last item, and its report.
+type PolarOutcome = (Vec<Vec<f64>>, Vec<f64>, BlockReport);
+
+/// Sum the polar blocks' samples and time averages (cos²θ, |cosθ|, cosθ, cos³θ) over `n` sample times.
+fn sum_polar(outcomes: Vec<PolarOutcome>, n: usize) -> ([Vec<f64>; POLAR_OBSERVABLES], [f64; POLAR_OBSERVABLES], Vec<BlockReport>) {
+    let mut values = vec![vec![0.0; n]; POLAR_OBSERVABLES];
+    let mut permanent = [0.0; POLAR_OBSERVABLES];
+    let mut reports = vec![];
+    for (v, perm, report) in outcomes {
+        for o in 0..POLAR_OBSERVABLES {
+            for i in 0..n {
+                values[o][i] += v[o][i];
+            }
+            permanent[o] += perm[o];
+        }
+        reports.push(report);
+    }
+    (values.try_into().expect("four observables"), permanent, reports)
+}
+
 /// One step of the schedule with both parities.
 enum PolarItem {
     /// exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) at time t.
@@ -596,33 +616,26 @@ impl Solver {
         (items, laser_events)
     }
 
+    /// Levels to add above a polar block's thermal top: room for the laser kicks, the static-field mixing
+    /// (about sqrt(μE/B) levels) and the dipole kicks of `items`.
+    fn polar_extra(&self, field: &FieldModel, items: &[PolarItem]) -> usize {
+        let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
+        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        let dipole_kicks: f64 = items.iter().map(|i| if let PolarItem::Kick { theta, .. } = i { theta[0].abs() + theta[2].abs() } else { 0.0 }).sum();
+        2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + (1.5 * dipole_kicks).ceil() as usize + 4
+    }
+
     /// The solver with one block per |M| holding both parities of J (static, two-colour, terahertz fields).
     fn run_polar(&self, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
         self.check_strength(field)?;
         let (items, events) = self.polar_schedule(field);
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
-        // Room for the kicks plus the static-field mixing (about sqrt(μE/B) levels).
-        let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
-        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
-        let dipole_kicks: f64 = items.iter().map(|i| if let PolarItem::Kick { theta, .. } = i { theta[0].abs() + theta[2].abs() } else { 0.0 }).sum();
-        let extra = 2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + (1.5 * dipole_kicks).ceil() as usize + 4;
+        let extra = self.polar_extra(field, &items);
         let pops = self.ensemble.merged_by_m();
-        let outcomes: Vec<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> =
+        let outcomes: Vec<PolarOutcome> =
             pops.par_iter().map(|bp| self.run_polar_block(bp, field, &items, times, t_first, extra)).collect::<Result<Vec<_>>>()?;
-        let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
-        let mut permanent = [0.0; POLAR_OBSERVABLES];
-        let mut blocks = vec![];
-        for (v, perm, report) in outcomes {
-            for o in 0..POLAR_OBSERVABLES {
-                for i in 0..times.len() {
-                    values[o][i] += v[o][i];
-                }
-                permanent[o] += perm[o];
-            }
-            blocks.push(report);
-        }
-        let [cos2, cos2_2d, cos, cos3]: [Vec<f64>; POLAR_OBSERVABLES] = values.try_into().expect("four observables");
+        let ([cos2, cos2_2d, cos, cos3], permanent, blocks) = sum_polar(outcomes, times.len());
         let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3, ..Default::default() };
         // Coherence sums by J do not apply in a static field: goals are scored on the samples alone.
         let mut final_sums = LevelSums::new(vec![], f64::INFINITY, false);

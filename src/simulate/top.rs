@@ -13,7 +13,7 @@ use crate::field::FieldModel;
 use crate::molecule::top::{BodyAxis, Top};
 use crate::observe::pairs::PairSums;
 use crate::observe::{FreeSums, Trace};
-use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
+use crate::propagate::polar::PolarOps;
 use crate::propagate::sparse::{Csr, chebyshev_kick};
 use crate::propagate::{BlockState, propagate_finite};
 use crate::scenario::{Method, SolverSettings};
@@ -135,6 +135,7 @@ fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
 }
 
 /// A block's coherence coefficients ρ_ab O_ba (a < b) per observable, and the diagonal sums.
+#[derive(Clone)]
 struct BlockPairs {
     diag: Vec<f64>,
     pairs: Vec<Vec<(usize, usize, (f64, f64))>>,
@@ -467,7 +468,7 @@ impl TopSolver {
         }
         let final_pairs = (state.t_ps, block_pairs(&state, &pops, &ops.observables));
         if ti < times.len() {
-            gaps.push((ti, times.len(), final_pairs.0, block_pairs(&state, &pops, &ops.observables)));
+            gaps.push((ti, times.len(), final_pairs.0, final_pairs.1.clone()));
         }
         let label = match bp.sym {
             TopSym::K(k) => format!("K={k}"),
@@ -524,10 +525,7 @@ impl super::Solver {
         let (items, events) = self.polar_schedule(field);
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
-        let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
-        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
-        let dipole_kicks: f64 = items.iter().map(|i| if let super::PolarItem::Kick { theta, .. } = i { theta[0].abs() + theta[2].abs() } else { 0.0 }).sum();
-        let extra = 2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + (1.5 * dipole_kicks).ceil() as usize + 4;
+        let extra = self.polar_extra(field, &items);
         // (K, M) blocks: ±M differ once K ≠ 0 (the Stark shift −μE K M / J(J+1)); (K, M) and (−K, −M) agree.
         let mut blocks: Vec<(i64, i64, f64, Vec<(u32, f64)>)> = vec![];
         for bp in &solver.ensemble.blocks {
@@ -540,7 +538,7 @@ impl super::Solver {
                 blocks.push((k, -bp.m, bp.weight / 2.0, levels));
             }
         }
-        let outcomes: Vec<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> = blocks
+        let outcomes: Vec<super::PolarOutcome> = blocks
             .par_iter()
             .map(|(k, m, w, levels)| {
                 let j_thermal = levels.last().map(|l| l.0 as i64).unwrap_or(0);
@@ -559,19 +557,7 @@ impl super::Solver {
                 }
             })
             .collect::<Result<Vec<_>>>()?;
-        let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
-        let mut permanent = [0.0; POLAR_OBSERVABLES];
-        let mut reports = vec![];
-        for (v, perm, report) in outcomes {
-            for o in 0..POLAR_OBSERVABLES {
-                for i in 0..times.len() {
-                    values[o][i] += v[o][i];
-                }
-                permanent[o] += perm[o];
-            }
-            reports.push(report);
-        }
-        let [fig2, abs_align, cos, cos3]: [Vec<f64>; POLAR_OBSERVABLES] = values.try_into().expect("four observables");
+        let ([fig2, abs_align, cos, cos3], permanent, reports) = super::sum_polar(outcomes, times.len());
         // Fixed-K states have ⟨Φ_Zx²⟩ = ⟨Φ_Zy²⟩ = (1 − ⟨cos²θ⟩)/2 (sin²θ cos2χ changes K by 2).
         let across: Vec<f64> = fig2.iter().map(|c| 0.5 * (1.0 - c)).collect();
         let fig = frame.axes[0].index();
