@@ -5,6 +5,9 @@
 //! computes (N2-like constants, 300 K, one 50 fs Gaussian pulse at 5e13 W/cm², trace 0.2–12 ps every
 //! 20 fs, both ⟨cos²θ⟩ and ⟨cos²θ_2D⟩). With KICKTRAIN_BENCH_PEER=1 the scipy script is run too
 //! (needs python3 with numpy and scipy) and the speed ratio is printed.
+//!
+//! KICKTRAIN_BENCH_JOBS picks jobs by number, e.g. `KICKTRAIN_BENCH_JOBS=2 cargo bench` for the
+//! designer's kick-model throughput alone.
 
 use kicktrain::field::{FieldModel, Pulse};
 use kicktrain::molecule::Molecule;
@@ -109,10 +112,21 @@ fn main() {
     if !std::env::args().any(|a| a == "--bench") {
         return;
     }
-    peer_job();
-    kick_evaluations();
-    nanosecond_mixed_field();
-    asymmetric_top();
+    // KICKTRAIN_BENCH_JOBS picks jobs by number (comma-separated, default all four).
+    let jobs = std::env::var("KICKTRAIN_BENCH_JOBS").unwrap_or_else(|_| "1,2,3,4".into());
+    let wanted = |n: &str| jobs.split(',').any(|j| j.trim() == n);
+    if wanted("1") {
+        peer_job();
+    }
+    if wanted("2") {
+        kick_evaluations();
+    }
+    if wanted("3") {
+        nanosecond_mixed_field();
+    }
+    if wanted("4") {
+        asymmetric_top();
+    }
 }
 
 /// Job 4 (tops): an asymmetric top near (A, B, C) = (0.19, 0.025, 0.022) cm⁻¹ with α = (20, 12, 9) Å³,

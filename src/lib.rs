@@ -20,6 +20,7 @@ pub mod field;
 pub mod goal;
 pub mod input;
 pub mod molecule;
+pub mod numeric;
 pub mod observe;
 pub mod optics;
 pub mod pendular;

@@ -241,3 +241,41 @@ fn robust_design_scores_the_mean_under_errors_as_the_tolerance_analysis_does() {
     assert!((tol.mean - r.best.full.value).abs() < 1e-12, "tolerance mean {} vs robust score {}", tol.mean, r.best.full.value);
     assert!(tol.nominal >= tol.mean - 1e-9 || tol.spread > 0.0);
 }
+
+#[test]
+fn batched_kick_scores_equal_one_by_one_scores() {
+    // The designer scores swarms as batches (all trains of a block side by side). Each batched score
+    // must equal the score of the same train run alone through the general solver, which the physics
+    // tests check against closed forms and the scipy peer. Covered: peak, minimum and mean goals,
+    // ⟨cos²θ⟩ and ⟨cos²θ_2D⟩, a focal average, trains with empty pulses, and trains strong enough that
+    // the batch's first basis estimate is too small (they are re-run in a larger basis).
+    let cases = [
+        (r#""molecule": "N2", "temperature_k": 300"#, 1e14, r#"{"kind": "peak", "window_ps": [0.05, 9.0], "step_fs": 20}"#, ""),
+        (r#""molecule": "CO2", "temperature_k": 10"#, 2e13, r#"{"kind": "mean", "observable": "cos2_2d", "window_ps": [0.0, 20.0]}"#, ""),
+        (r#""molecule": "OCS", "temperature_k": 1"#, 4e12, r#"{"kind": "minimum", "window_ps": [0.0, 30.0], "step_fs": 50}"#, ""),
+        (
+            r#""molecule": "N2", "temperature_k": 100"#,
+            3e13,
+            r#"{"kind": "peak", "window_ps": [0.0, 6.0], "step_fs": 10}"#,
+            r#", "focal_average": {"pump_waist_um": 40, "probe_waist_um": 20, "probe_order": 2, "points": 4}"#,
+        ),
+    ];
+    for (mol, ceiling, goal, extra) in cases {
+        let obj = objective(&format!(
+            r#"{{{mol}, "pulses": {{"count": 3, "fwhm_fs": 60, "delay_ps": {{"min": 0.3, "max": 8}}, "peak_intensity_wcm2": {{"min": 0, "max": {ceiling}}}}},
+               "max_peak_intensity_wcm2": {ceiling}, "goal": {goal}{extra}}}"#
+        ));
+        let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+        let d = obj.space.dims();
+        let mut points: Vec<Vec<f64>> = (0..70).map(|_| (0..d).map(|_| rng.random::<f64>()).collect()).collect();
+        points.push(vec![0.0; d]); // every pulse empty
+        points.push(vec![1.0; d]); // every pulse at the ceiling
+        let fields: Vec<_> = points.iter().map(|u| obj.space.field(u)).collect();
+        let batched = evaluate_kick_many(&obj, &fields).unwrap();
+        for (f, b) in fields.iter().zip(&batched) {
+            let alone = kicktrain::design::search::evaluate_kick(&obj, f).unwrap();
+            assert!((alone.value - b.value).abs() < 1e-11, "{mol}: batched {} vs alone {}", b.value, alone.value);
+            assert!(b.value.is_finite());
+        }
+    }
+}

@@ -5,9 +5,10 @@
 use super::{Bounds, DesignSpace, Objective, PulseBounds, Score};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
+use crate::observe::{FreeSums, Trace};
 use crate::scenario::{Method, SolverSettings};
 use crate::simulate::Solver;
-use argmin::core::{CostFunction, Executor, KV, Problem, State, TerminationReason, TerminationStatus};
+use argmin::core::{CostFunction, Executor, KV, Problem, SendAlias, State, SyncAlias, TerminationReason, TerminationStatus};
 use argmin::solver::neldermead::NelderMead;
 use argmin::solver::particleswarm::ParticleSwarm;
 use rand::SeedableRng;
@@ -136,6 +137,18 @@ impl<'a> Evaluator<'a> {
 
     /// Score a train; `record` false leaves the best-so-far and the history untouched.
     fn score_with(&self, field: &FieldModel, full: bool, record: bool) -> Result<Score> {
+        let s = self.compute(field, full)?;
+        if record {
+            self.record(field, full, s);
+        } else {
+            let counter = if full { &self.full_count } else { &self.kick_count };
+            counter.fetch_add(1, Ordering::Relaxed);
+        }
+        Ok(s)
+    }
+
+    /// The goal value of one train with the kick model (`full` false) or the full solver.
+    fn compute(&self, field: &FieldModel, full: bool) -> Result<Score> {
         let goal = &self.obj.goal;
         let t_last = field.last_center_ps();
         let times = goal.times(t_last);
@@ -147,33 +160,95 @@ impl<'a> Evaluator<'a> {
             };
             Ok(crate::observe::score_goal(goal, &run.trace, &run.final_sums, t_last))
         };
-        let s = match (&self.obj.robust, full) {
+        match (&self.obj.robust, full) {
             // Robust design: the mean over fixed error samples (common random numbers), probe at nominal times.
             (Some((noise, n)), true) => {
                 let values: Vec<f64> =
                     (0..*n).map(|i| one(&crate::tolerance::perturb(field, *noise, self.obj.search.seed, i)).map(|s| s.value)).collect::<Result<_>>()?;
-                Score { value: values.iter().sum::<f64>() / *n as f64, t_ps: one(field)?.t_ps }
+                Ok(Score { value: values.iter().sum::<f64>() / *n as f64, t_ps: one(field)?.t_ps })
             }
-            _ => one(field)?,
-        };
+            _ => one(field),
+        }
+    }
+
+    /// Count one evaluation and keep the best design, the stage's best and the history up to date.
+    fn record(&self, field: &FieldModel, full: bool, s: Score) {
+        let goal = &self.obj.goal;
         let counter = if full { &self.full_count } else { &self.kick_count };
         counter.fetch_add(1, Ordering::Relaxed);
         let n = self.evaluations();
-        if record {
-            let mut best = self.best.lock().expect("lock");
-            let slot = &mut best[usize::from(full)];
-            if slot.as_ref().map(|(v, _)| goal.sense() * s.value > goal.sense() * *v).unwrap_or(true) {
-                *slot = Some((s.value, field.clone()));
-            }
-            let mut sb = self.stage_best.lock().expect("lock");
-            if sb.map(|v| goal.sense() * s.value > goal.sense() * v).unwrap_or(true) {
-                *sb = Some(s.value);
-                let stage = self.stage.lock().expect("lock").clone();
-                self.history.lock().expect("lock").push(HistoryPoint { evaluation: n, stage, best: s.value });
-            }
-            self.monitor.evaluated(n, *sb);
+        let mut best = self.best.lock().expect("lock");
+        let slot = &mut best[usize::from(full)];
+        if slot.as_ref().map(|(v, _)| goal.sense() * s.value > goal.sense() * *v).unwrap_or(true) {
+            *slot = Some((s.value, field.clone()));
         }
-        Ok(s)
+        let mut sb = self.stage_best.lock().expect("lock");
+        if sb.map(|v| goal.sense() * s.value > goal.sense() * v).unwrap_or(true) {
+            *sb = Some(s.value);
+            let stage = self.stage.lock().expect("lock").clone();
+            self.history.lock().expect("lock").push(HistoryPoint { evaluation: n, stage, best: s.value });
+        }
+        self.monitor.evaluated(n, *sb);
+    }
+
+    /// Kick-model scores of many trains, batched through [`Solver::kick_batch`] where the trains allow it
+    /// (the rest one by one); each is recorded as by `score`. Focal averages run as extra trains
+    /// with scaled intensities.
+    fn score_kick_many(&self, fields: &[FieldModel]) -> Result<Vec<Score>> {
+        use rayon::prelude::*;
+        let goal = &self.obj.goal;
+        let nodes: Vec<(f64, f64)> = match &self.obj.base.focal_average {
+            None => vec![(1.0, 1.0)],
+            Some(avg) => avg.nodes(),
+        };
+        let expanded: Vec<FieldModel> = fields
+            .iter()
+            .flat_map(|f| {
+                nodes.iter().map(move |&(u, _)| {
+                    let mut g = f.clone();
+                    g.pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= u);
+                    g
+                })
+            })
+            .collect();
+        let sums = self.kick.kick_batch(&expanded, self.with_2d)?;
+        let per = nodes.len();
+        fields
+            .par_iter()
+            .enumerate()
+            .map(|(i, f)| {
+                let t_last = f.last_center_ps();
+                let times = goal.times(t_last);
+                let parts = &sums[i * per..(i + 1) * per];
+                let batched = match parts.iter().map(|p| p.as_ref()).collect::<Option<Vec<_>>>() {
+                    Some(ps) if times.first().is_some_and(|&t| t >= ps[0].t0_ps) => {
+                        let mut total = ps[0].clone();
+                        total.scale(nodes[0].1);
+                        for (p, &(_, w)) in ps.iter().zip(&nodes).skip(1) {
+                            total.add_scaled(w, p);
+                        }
+                        let mut trace = Trace { times_ps: times.clone(), cos2: vec![0.0; times.len()], ..Default::default() };
+                        if self.with_2d {
+                            trace.cos2_2d = vec![0.0; times.len()];
+                        }
+                        total.eval_series(&times, |k, (a, b)| {
+                            trace.cos2[k] = a;
+                            if self.with_2d {
+                                trace.cos2_2d[k] = b;
+                            }
+                        });
+                        Some(crate::observe::score_goal(goal, &trace, &FreeSums::Levels(total), t_last))
+                    }
+                    _ => None,
+                };
+                let s = match batched {
+                    Some(s) => s,
+                    None => self.compute(f, false)?,
+                };
+                self.record(f, false, s);
+                Ok(s)
+            })
+            .collect()
     }
 
     fn set_stage(&self, name: &str, planned: usize) {
@@ -216,6 +291,22 @@ impl CostFunction for Cost<'_, '_> {
         let field = self.space.field(&self.unit(p));
         let s = self.ev.score(&field, self.full).map_err(argmin::core::Error::new)?;
         Ok(-self.ev.obj.goal.sense() * s.value)
+    }
+
+    /// A swarm's particles: kick-model trains run as one batch (see `Solver::kick_batch`).
+    fn bulk_cost<P>(&self, params: &[P]) -> std::result::Result<Vec<f64>, argmin::core::Error>
+    where
+        P: std::borrow::Borrow<Vec<f64>> + SyncAlias,
+        f64: SendAlias,
+        Self: SyncAlias,
+    {
+        use rayon::prelude::*;
+        if self.full || self.ev.monitor.interrupted() {
+            return params.par_iter().map(|p| self.cost(p.borrow())).collect();
+        }
+        let fields: Vec<FieldModel> = params.iter().map(|p| self.space.field(&self.unit(p.borrow()))).collect();
+        let scores = self.ev.score_kick_many(&fields).map_err(argmin::core::Error::new)?;
+        Ok(scores.iter().map(|s| -self.ev.obj.goal.sense() * s.value).collect())
     }
 }
 
@@ -439,9 +530,8 @@ pub fn evaluate_kick(obj: &Objective, field: &FieldModel) -> Result<Score> {
     ev.score(field, false)
 }
 
-/// Kick-model scores of many trains with one shared solver, in parallel (used by benchmarks and scans).
+/// Kick-model scores of many trains with one shared solver, as one batch (used by benchmarks and scans).
 pub fn evaluate_kick_many(obj: &Objective, fields: &[FieldModel]) -> Result<Vec<Score>> {
-    use rayon::prelude::*;
     let ev = Evaluator::new(obj, &Silent)?;
-    fields.par_iter().map(|f| ev.score(f, false)).collect()
+    ev.score_kick_many(fields)
 }

@@ -4,6 +4,7 @@
 pub mod pairs;
 
 use crate::goal::{Goal, GoalKind, Observable, Score};
+use crate::numeric::sin_cos;
 use crate::propagate::{BlockOps, BlockState};
 use pairs::PairSums;
 
@@ -186,8 +187,73 @@ impl LevelSums {
         }
     }
 
+    /// Multiply every coefficient by `w` (e.g. a quadrature weight).
+    pub fn scale(&mut self, w: f64) {
+        self.cos2_static *= w;
+        self.abscos_static *= w;
+        self.c2.iter_mut().chain(self.abs.iter_mut()).for_each(|c| *c = (w * c.0, w * c.1));
+    }
+
+    /// True if `other` can be added to these sums: same time, same observables, same levels J where both have them.
+    pub fn compatible(&self, other: &LevelSums) -> bool {
+        let common = self.omega.len().min(other.omega.len());
+        self.t0_ps == other.t0_ps && self.with_2d == other.with_2d && self.omega[..common] == other.omega[..common]
+    }
+
+    /// Add `w` times sums of the same molecule taken at the same time (either may cover more levels J;
+    /// panics on sums of different runs: a programming error).
+    pub fn add_scaled(&mut self, w: f64, other: &LevelSums) {
+        assert!(self.compatible(other), "level sums of different runs");
+        if other.omega.len() > self.omega.len() {
+            self.grow(other.omega.clone());
+        }
+        self.cos2_static += w * other.cos2_static;
+        self.abscos_static += w * other.abscos_static;
+        for (a, b) in self.c2.iter_mut().zip(&other.c2) {
+            a.0 += w * b.0;
+            a.1 += w * b.1;
+        }
+        let (n, m) = (self.omega.len(), other.omega.len());
+        if self.with_2d {
+            for j in 0..m {
+                for jp in 0..m {
+                    let b = other.abs[j * m + jp];
+                    self.abs[j * n + jp].0 += w * b.0;
+                    self.abs[j * n + jp].1 += w * b.1;
+                }
+            }
+        }
+    }
+
+    /// Extend to the levels of `omega_by_j` (which starts with the current levels), with zero coefficients.
+    fn grow(&mut self, omega_by_j: Vec<f64>) {
+        let (old, n) = (self.omega.len(), omega_by_j.len());
+        self.c2.resize(n, (0.0, 0.0));
+        if self.with_2d {
+            let mut abs = vec![(0.0, 0.0); n * n];
+            for j in 0..old {
+                abs[j * n..j * n + old].copy_from_slice(&self.abs[j * old..(j + 1) * old]);
+            }
+            self.abs = abs;
+        }
+        self.omega = omega_by_j;
+    }
+
     /// (⟨cos²θ⟩, ⟨|cosθ|⟩) at time t (ps); the second is 0 without 2D preparation.
     pub fn eval(&self, t_ps: f64) -> (f64, f64) {
+        if !self.with_2d {
+            // ⟨cos²θ⟩ alone: one phase per coherence J, J+2, no buffers.
+            let tau = t_ps - self.t0_ps;
+            let mut acc = 0.0;
+            for j in 0..self.omega.len().saturating_sub(2) {
+                let c = self.c2[j];
+                if c != (0.0, 0.0) {
+                    let (s, co) = sin_cos((self.omega[j + 2] - self.omega[j]) * tau);
+                    acc += c.0 * co - c.1 * s;
+                }
+            }
+            return (self.cos2_static + 2.0 * acc, 0.0);
+        }
         let (mut zr, mut zi) = (vec![], vec![]);
         self.phases(t_ps, &mut zr, &mut zi);
         self.eval_with(&zr, &zi)
@@ -207,6 +273,9 @@ impl LevelSums {
             return;
         }
         let dt = (times_ps[n - 1] - times_ps[0]) / (n - 1) as f64;
+        if !self.with_2d {
+            return self.eval_cos2_series(times_ps[0], dt, n, out);
+        }
         let (mut rr, mut ri) = (vec![], vec![]);
         self.phases(self.t0_ps + dt, &mut rr, &mut ri);
         for i in 0..n {
@@ -223,6 +292,38 @@ impl LevelSums {
         }
     }
 
+    /// ⟨cos²θ⟩ alone on the uniform grid t_i = t_first + i dt (i < n): each coherence J, J+2 with a
+    /// nonzero coefficient advances its phase exp(i(ω_J+2 − ω_J)(t − t0)) by one complex
+    /// multiplication per step (re-synchronized every 256 steps). The second value is 0.
+    fn eval_cos2_series(&self, t_first: f64, dt: f64, n: usize, mut out: impl FnMut(usize, (f64, f64))) {
+        let live: Vec<usize> = (0..self.omega.len().saturating_sub(2)).filter(|&j| self.c2[j] != (0.0, 0.0)).collect();
+        let d: Vec<f64> = live.iter().map(|&j| self.omega[j + 2] - self.omega[j]).collect();
+        let (cr, ci): (Vec<f64>, Vec<f64>) = live.iter().map(|&j| self.c2[j]).unzip();
+        let (rr, ri): (Vec<f64>, Vec<f64>) = d.iter().map(|&x| sin_cos(x * dt)).map(|(s, c)| (c, s)).unzip();
+        let (mut wr, mut wi) = (vec![0.0; live.len()], vec![0.0; live.len()]);
+        for i in 0..n {
+            if i % 256 == 0 {
+                let tau = t_first + i as f64 * dt - self.t0_ps;
+                for q in 0..d.len() {
+                    let (s, c) = sin_cos(d[q] * tau);
+                    wr[q] = c;
+                    wi[q] = s;
+                }
+            } else {
+                for q in 0..d.len() {
+                    let (a, b) = (wr[q], wi[q]);
+                    wr[q] = a * rr[q] - b * ri[q];
+                    wi[q] = a * ri[q] + b * rr[q];
+                }
+            }
+            let mut acc = 0.0;
+            for q in 0..d.len() {
+                acc += cr[q] * wr[q] - ci[q] * wi[q];
+            }
+            out(i, (self.cos2_static + 2.0 * acc, 0.0));
+        }
+    }
+
     /// Exact mean of (⟨cos²θ⟩, ⟨|cosθ|⟩) over [a, b] (ps), from ∫ exp(−iΔω t) dt in closed form.
     pub fn mean_over(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
         let len = b_ps - a_ps;
@@ -233,11 +334,11 @@ impl LevelSums {
         // Mean of exp(−iD τ) over [ta, tb] = (exp(−iD tb) − exp(−iD ta)) / (−iD L).
         let avg = |d: f64| -> (f64, f64) {
             if (d * len).abs() < 1e-9 {
-                let (s, c) = (-d * 0.5 * (ta + tb)).sin_cos();
+                let (s, c) = sin_cos(-d * 0.5 * (ta + tb));
                 return (c, s);
             }
-            let (sb, cb) = (-d * tb).sin_cos();
-            let (sa, ca) = (-d * ta).sin_cos();
+            let (sb, cb) = sin_cos(-d * tb);
+            let (sa, ca) = sin_cos(-d * ta);
             let (nr, ni) = (cb - ca, sb - sa);
             // (nr + i ni) / (−i d L) = (−ni + i nr) / (d L)
             (-ni / (d * len), nr / (d * len))
@@ -273,7 +374,7 @@ impl LevelSums {
         z_re.clear();
         z_im.clear();
         for w in &self.omega {
-            let (s, c) = (-w * tau).sin_cos();
+            let (s, c) = sin_cos(-w * tau);
             z_re.push(c);
             z_im.push(s);
         }

@@ -55,6 +55,11 @@ impl BlockOps {
     pub fn size(&self) -> usize {
         self.block.size
     }
+
+    /// Transpose of the cos²θ eigenvectors (eigenbasis × J basis).
+    pub fn cos2_eigenvectors_t(&self) -> &DMatrix<f64> {
+        &self.cos2_eigenvectors_t
+    }
 }
 
 /// All propagated states of a block: column k is the state that started in initial level k.
@@ -102,7 +107,7 @@ impl BlockState {
     /// Field-free evolution with precomputed phases.
     pub fn free_with(&mut self, ph: &FreePhases) {
         let n = self.psi.nrows();
-        rotate_rows(&mut self.psi, self.k, n, &ph.c, &ph.s);
+        rotate_rows(self.psi.as_mut_slice(), self.k, n, &ph.c, &ph.s);
         self.t_ps += ph.dt_ps;
     }
 
@@ -139,7 +144,7 @@ impl BlockState {
                 (c, s)
             })
             .unzip();
-        rotate_rows(&mut self.work, k, n, &c, &s);
+        rotate_rows(self.work.as_mut_slice(), k, n, &c, &s);
         self.psi.gemm(1.0, v, &self.work, 0.0);
     }
 
@@ -253,9 +258,8 @@ impl FreePhases {
     }
 }
 
-/// Multiply row r of the complex matrix [Re | Im] (K columns each) by c_r + i s_r.
-fn rotate_rows(m: &mut DMatrix<f64>, k: usize, n: usize, c: &[f64], s: &[f64]) {
-    let data = m.as_mut_slice();
+/// Multiply row r of the complex matrix [Re | Im] (K columns each, column-major, N rows) by c_r + i s_r.
+pub(crate) fn rotate_rows(data: &mut [f64], k: usize, n: usize, c: &[f64], s: &[f64]) {
     let (re, im) = data.split_at_mut(n * k);
     for col in 0..k {
         let rc = &mut re[col * n..(col + 1) * n];

@@ -17,6 +17,7 @@ use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
 use nalgebra::DMatrix;
 use rayon::prelude::*;
 
+pub mod batch;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -451,6 +452,9 @@ impl Solver {
     pub fn run_focal(&self, field: &FieldModel, times: &[f64], with_2d: bool, avg: &FocalAverage) -> Result<RunResult> {
         let mut out: Option<RunResult> = None;
         let (mut perm, mut perm2d, mut perm_cos) = (0.0, 0.0, 0.0);
+        // Linear runs whose coherence sums share one time combine into exact sums of the average.
+        let mut combined: Option<LevelSums> = None;
+        let mut combinable = true;
         for (u, w) in avg.nodes() {
             let mut f = field.clone();
             f.pulses.iter_mut().for_each(|p| p.peak_intensity_wcm2 *= u);
@@ -462,6 +466,15 @@ impl Solver {
             perm += w * r.permanent_cos2;
             perm2d += w * r.permanent_cos2_2d;
             perm_cos += w * r.permanent_cos.unwrap_or(0.0);
+            match (&r.final_sums, &mut combined) {
+                (FreeSums::Levels(ls), None) if combinable && ls.t0_ps.is_finite() => {
+                    let mut first = ls.clone();
+                    first.scale(w);
+                    combined = Some(first);
+                }
+                (FreeSums::Levels(ls), Some(acc)) if combinable && acc.compatible(ls) => acc.add_scaled(w, ls),
+                _ => combinable = false,
+            }
             match &mut out {
                 None => {
                     let mut first = r;
@@ -496,11 +509,16 @@ impl Solver {
         r.permanent_cos2 = perm;
         r.permanent_cos2_2d = perm2d;
         r.permanent_cos = r.permanent_cos.map(|_| perm_cos);
-        // An average of runs has no single set of coherence sums: goals use the samples alone.
-        let mut sums = LevelSums::new(vec![], f64::INFINITY, false);
-        sums.cos2_static = perm;
-        sums.abscos_static = perm2d;
-        r.final_sums = FreeSums::Levels(sums);
+        r.final_sums = match combined {
+            Some(sums) if combinable => FreeSums::Levels(sums),
+            _ => {
+                // No single set of coherence sums: goals use the samples alone.
+                let mut sums = LevelSums::new(vec![], f64::INFINITY, false);
+                sums.cos2_static = perm;
+                sums.abscos_static = perm2d;
+                FreeSums::Levels(sums)
+            }
+        };
         Ok(r)
     }
 }

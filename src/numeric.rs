@@ -1,0 +1,128 @@
+//! Small numerical kernels shared by the hot loops.
+
+/// π/2 split for Cody–Waite reduction: the first 33 bits (so that k·P1 is exact for |k| < 2²⁰) ...
+const PIO2_HI: f64 = 1.570_796_326_734_125_6;
+/// ... and the f64 nearest to π/2 − PIO2_HI.
+const PIO2_LO: f64 = 6.077_100_506_506_192e-11;
+
+/// Taylor coefficients (−1)ⁿ/(2n+1)! for n = 1..=8: sine on |r| ≤ π/4 to about 1e-19.
+const SIN_TAYLOR: [f64; 8] = [
+    -1.0 / 6.0,
+    1.0 / 120.0,
+    -1.0 / 5040.0,
+    1.0 / 362_880.0,
+    -1.0 / 39_916_800.0,
+    1.0 / 6_227_020_800.0,
+    -1.0 / 1_307_674_368_000.0,
+    1.0 / 355_687_428_096_000.0,
+];
+/// Taylor coefficients (−1)ⁿ/(2n)! for n = 1..=9: cosine on |r| ≤ π/4 to about 1e-20.
+const COS_TAYLOR: [f64; 9] = [
+    -1.0 / 2.0,
+    1.0 / 24.0,
+    -1.0 / 720.0,
+    1.0 / 40_320.0,
+    -1.0 / 3_628_800.0,
+    1.0 / 479_001_600.0,
+    -1.0 / 87_178_291_200.0,
+    1.0 / 20_922_789_888_000.0,
+    -1.0 / 6_402_373_705_728_000.0,
+];
+
+/// (sin x, cos x) for |x| < 1e6 rad, within about 3e-16 of the correctly rounded values, several
+/// times faster than the C library's `sincos` and free of branches (so loops over it vectorize).
+/// Beyond 1e6 rad it falls back to the standard library.
+#[inline]
+pub fn sin_cos(x: f64) -> (f64, f64) {
+    if x.abs() >= 1e6 || x.is_nan() {
+        return x.sin_cos();
+    }
+    reduced_sin_cos(x)
+}
+
+/// sin and cos of every x in `xs` into `sin` and `cos` (same lengths), as [`sin_cos`]; the range check
+/// is made once for the slice so that the loop vectorizes.
+pub fn sin_cos_slice(xs: &[f64], sin: &mut [f64], cos: &mut [f64]) {
+    assert!(sin.len() == xs.len() && cos.len() == xs.len(), "sin_cos_slice: lengths differ");
+    if xs.iter().all(|x| x.abs() < 1e6) {
+        for ((x, s), c) in xs.iter().zip(sin.iter_mut()).zip(cos.iter_mut()) {
+            (*s, *c) = reduced_sin_cos(*x);
+        }
+    } else {
+        for ((x, s), c) in xs.iter().zip(sin.iter_mut()).zip(cos.iter_mut()) {
+            (*s, *c) = sin_cos(*x);
+        }
+    }
+}
+
+/// Round to the nearest integer (ties to even) for |y| < 2⁵¹, without a library call.
+#[inline(always)]
+fn round_near(y: f64) -> f64 {
+    const SHIFT: f64 = 6_755_399_441_055_744.0; // 2⁵² + 2⁵¹
+    (y + SHIFT) - SHIFT
+}
+
+/// The branch-free kernel of [`sin_cos`] for |x| < 1e6.
+#[inline(always)]
+fn reduced_sin_cos(x: f64) -> (f64, f64) {
+    let k = round_near(x * std::f64::consts::FRAC_2_PI);
+    let r = (x - k * PIO2_HI) - k * PIO2_LO;
+    let z = r * r;
+    let mut ps = SIN_TAYLOR[7];
+    for c in SIN_TAYLOR[..7].iter().rev() {
+        ps = ps * z + c;
+    }
+    let mut pc = COS_TAYLOR[8];
+    for c in COS_TAYLOR[..8].iter().rev() {
+        pc = pc * z + c;
+    }
+    let s = r + r * z * ps;
+    let c = 1.0 + z * pc;
+    let q = k as i64;
+    let (a, b) = if q & 1 == 0 { (s, c) } else { (c, s) };
+    let sin = if q & 2 == 0 { a } else { -a };
+    let cos = if (q + 1) & 2 == 0 { b } else { -b };
+    (sin, cos)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn split_of_half_pi_is_exact_and_short() {
+        // The high part must have at most 33 significant bits so that k·PIO2_HI is exact, and the two
+        // parts must add up to π/2 in f64 (common practice for Cody–Waite reduction).
+        let bits = PIO2_HI.to_bits() & ((1u64 << 52) - 1);
+        assert_eq!(bits & ((1u64 << (52 - 32)) - 1), 0, "PIO2_HI has more than 33 significant bits");
+        assert_eq!(PIO2_HI + PIO2_LO, std::f64::consts::FRAC_PI_2);
+        assert!(PIO2_LO > 0.0 && PIO2_LO < 1e-10);
+    }
+
+    #[test]
+    fn agrees_with_the_standard_library() {
+        // Reference: Rust's f64::sin_cos (the platform libm, correctly reduced for any argument).
+        let mut worst: f64 = 0.0;
+        let mut x: f64 = 0.1234567;
+        for i in 0..200_000 {
+            // Arguments spread over 1e-8 .. 1e5 in magnitude, both signs, plus multiples of π/4.
+            x = (x * 1.618_033_988_749_895 + 0.377).fract();
+            let scale = 10f64.powf(-8.0 + 13.0 * (i as f64 / 200_000.0));
+            for arg in [x * scale, -x * scale, (i % 4000) as f64 * std::f64::consts::FRAC_PI_4] {
+                let (s, c) = sin_cos(arg);
+                let (s0, c0) = arg.sin_cos();
+                worst = worst.max((s - s0).abs()).max((c - c0).abs());
+            }
+        }
+        assert!(worst < 4e-16, "max deviation from std sin_cos {worst:e}");
+        // The slice form agrees with the scalar form, in and beyond the fast range.
+        let xs: Vec<f64> = (0..1000).map(|i| (i as f64 - 500.0) * 37.3).chain([3e6]).collect();
+        let (mut s, mut c) = (vec![0.0; xs.len()], vec![0.0; xs.len()]);
+        sin_cos_slice(&xs, &mut s, &mut c);
+        assert!(xs.iter().zip(s.iter().zip(&c)).all(|(x, (s, c))| sin_cos(*x) == (*s, *c)));
+        // Tiny arguments keep full relative accuracy.
+        assert_eq!(sin_cos(1e-300).0, 1e-300);
+        assert_eq!(sin_cos(2e6), 2e6f64.sin_cos());
+        assert!(sin_cos(f64::NAN).0.is_nan());
+    }
+}
