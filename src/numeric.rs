@@ -40,6 +40,29 @@ pub fn sin_cos(x: f64) -> (f64, f64) {
     reduced_sin_cos(x)
 }
 
+/// Run `$body` (a block using only its own arguments) in a copy compiled for AVX2 when the processor has
+/// it, else in the portable build. Element-wise loops give bit-identical results either way (no
+/// reassociation or fused multiply-add is allowed), only wider vectors.
+macro_rules! wide_simd {
+    ($(#[$meta:meta])* $vis:vis fn $name:ident($($arg:ident: $ty:ty),*) $(-> $ret:ty)? $body:block) => {
+        $(#[$meta])*
+        $vis fn $name($($arg: $ty),*) $(-> $ret)? {
+            #[cfg(target_arch = "x86_64")]
+            {
+                #[target_feature(enable = "avx2")]
+                fn wide($($arg: $ty),*) $(-> $ret)? $body
+                if std::arch::is_x86_feature_detected!("avx2") {
+                    // SAFETY: the processor supports AVX2 (checked just above).
+                    return unsafe { wide($($arg),*) };
+                }
+            }
+            $body
+        }
+    };
+}
+pub(crate) use wide_simd;
+
+wide_simd! {
 /// sin and cos of every x in `xs` into `sin` and `cos` (same lengths), as [`sin_cos`]; the range check
 /// is made once for the slice so that the loop vectorizes.
 pub fn sin_cos_slice(xs: &[f64], sin: &mut [f64], cos: &mut [f64]) {
@@ -53,6 +76,37 @@ pub fn sin_cos_slice(xs: &[f64], sin: &mut [f64], cos: &mut [f64]) {
             (*s, *c) = sin_cos(*x);
         }
     }
+}
+}
+
+wide_simd! {
+/// Advance each phase w_q by one step, w_q ← w_q r_q (complex, split into real and imaginary arrays of
+/// equal length), and return Σ_q Re(c_q w_q) with the new phases. Four interleaved partial sums keep
+/// the loop vectorized; the order of additions is fixed, so results do not depend on the processor.
+pub fn advance_and_project(wr: &mut [f64], wi: &mut [f64], rr: &[f64], ri: &[f64], cr: &[f64], ci: &[f64]) -> f64 {
+    let n = wr.len();
+    let (wi, rr, ri, cr, ci) = (&mut wi[..n], &rr[..n], &ri[..n], &cr[..n], &ci[..n]);
+    let mut acc = [0.0f64; 4];
+    let full = n - n % 4;
+    for base in (0..full).step_by(4) {
+        for l in 0..4 {
+            let q = base + l;
+            let (a, b) = (wr[q], wi[q]);
+            let (x, y) = (a * rr[q] - b * ri[q], a * ri[q] + b * rr[q]);
+            wr[q] = x;
+            wi[q] = y;
+            acc[l] += cr[q] * x - ci[q] * y;
+        }
+    }
+    for q in full..n {
+        let (a, b) = (wr[q], wi[q]);
+        let (x, y) = (a * rr[q] - b * ri[q], a * ri[q] + b * rr[q]);
+        wr[q] = x;
+        wi[q] = y;
+        acc[q - full] += cr[q] * x - ci[q] * y;
+    }
+    (acc[0] + acc[1]) + (acc[2] + acc[3])
+}
 }
 
 /// Round to the nearest integer (ties to even) for |y| < 2⁵¹, without a library call.

@@ -103,7 +103,7 @@ impl<'a> Evaluator<'a> {
         // the user's tolerances.
         let screening = SolverSettings {
             method: Method::Kick,
-            thermal_tolerance: base.thermal_tolerance.max(1e-5),
+            thermal_tolerance: base.thermal_tolerance.max(1e-4),
             edge_tolerance: base.edge_tolerance.max(1e-6),
             kick_terahertz_as_finite: true,
             ..base

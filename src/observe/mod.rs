@@ -4,7 +4,7 @@
 pub mod pairs;
 
 use crate::goal::{Goal, GoalKind, Observable, Score};
-use crate::numeric::sin_cos;
+use crate::numeric::{advance_and_project, sin_cos, sin_cos_slice};
 use crate::propagate::{BlockOps, BlockState};
 use pairs::PairSums;
 
@@ -81,45 +81,64 @@ impl BlockSums {
     /// The block's coefficients from its propagated states (populations `pops`); `with_2d` adds |cosθ|.
     /// Without 2D only the diagonal and first off-diagonal of ρ are formed (O(N K) work).
     pub fn from_state(ops: &BlockOps, state: &BlockState, pops: &[f64], with_2d: bool) -> BlockSums {
+        let mut out = BlockSums::from_columns(ops, state.psi.as_slice(), state.k, pops);
+        if with_2d {
+            out.add_abscos(ops, state, pops);
+        }
+        out
+    }
+
+    /// The ⟨cos²θ⟩ coefficients from the states' amplitudes `psi` (column-major, N rows, columns
+    /// [Re ψ_1..ψ_K | Im ψ_1..ψ_K]) with populations `pops`; the |cosθ| part is left empty.
+    pub fn from_columns(ops: &BlockOps, psi: &[f64], k: usize, pops: &[f64]) -> BlockSums {
         let n = ops.size();
-        let k = state.k;
-        let psi = &state.psi;
-        let diag: Vec<f64> = (0..n).map(|r| (0..k).map(|c| pops[c] * (psi[(r, c)].powi(2) + psi[(r, c + k)].powi(2))).sum()).collect();
+        let (re, im) = psi[..2 * n * k].split_at(n * k);
+        // ρ_rr and ρ_{r,r+1} = Σ_c p_c ψ_r conj(ψ_{r+1}), column by column (contiguous rows).
+        let (mut diag, mut off_re, mut off_im) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
+        for c in 0..k {
+            let p = pops[c];
+            let (a, b) = (&re[c * n..(c + 1) * n], &im[c * n..(c + 1) * n]);
+            for r in 0..n {
+                diag[r] += p * (a[r] * a[r] + b[r] * b[r]);
+            }
+            for r in 0..n - 1 {
+                off_re[r] += p * (a[r] * a[r + 1] + b[r] * b[r + 1]);
+                off_im[r] += p * (b[r] * a[r + 1] - a[r] * b[r + 1]);
+            }
+        }
         let lo = (0..n).find(|&i| diag[i] > TRIM_POPULATION).unwrap_or(0);
         let hi = (0..n).rev().find(|&i| diag[i] > TRIM_POPULATION).map(|i| i + 1).unwrap_or(0).max(lo);
         let m = hi - lo;
-        let mut out = BlockSums { j_first: ops.block.j(lo), cos2_static: 0.0, cos2_c: vec![], abscos_static: 0.0, abs_c: vec![], levels: m };
-        // ρ_ab = Σ_c p_c ψ_a conj(ψ_b)
-        let rho = |a: usize, b: usize| -> (f64, f64) {
-            let (mut re, mut im) = (0.0, 0.0);
-            for c in 0..k {
-                let (ar, ai, br, bi) = (psi[(a, c)], psi[(a, c + k)], psi[(b, c)], psi[(b, c + k)]);
-                re += pops[c] * (ar * br + ai * bi);
-                im += pops[c] * (ai * br - ar * bi);
-            }
-            (re, im)
-        };
+        let mut out = BlockSums { j_first: ops.block.j(lo), cos2_static: 0.0, cos2_c: Vec::with_capacity(m), abscos_static: 0.0, abs_c: vec![], levels: m };
         for a in 0..m {
             let i = a + lo;
             out.cos2_static += diag[i] * ops.cos2_diag[i];
             if a + 1 < m {
-                let (re, im) = rho(i, i + 1);
-                out.cos2_c.push((re * ops.cos2_off[i], im * ops.cos2_off[i]));
-            }
-        }
-        if with_2d {
-            let o = ops.abscos.as_ref().expect("|cosθ| matrix built for 2D observables");
-            let (rre, rim) = state.density(pops);
-            for a in 0..m {
-                let i = a + lo;
-                out.abscos_static += diag[i] * o[(i, i)];
-                for b in (a + 1)..m {
-                    let j = b + lo;
-                    out.abs_c.push((rre[(i, j)] * o[(i, j)], rim[(i, j)] * o[(i, j)]));
-                }
+                out.cos2_c.push((off_re[i] * ops.cos2_off[i], off_im[i] * ops.cos2_off[i]));
             }
         }
         out
+    }
+
+    /// Add the |cosθ| (⟨cos²θ_2D⟩) coefficients over the kept levels.
+    fn add_abscos(&mut self, ops: &BlockOps, state: &BlockState, pops: &[f64]) {
+        let n = ops.size();
+        let k = state.k;
+        let psi = &state.psi;
+        let diag: Vec<f64> = (0..n).map(|r| (0..k).map(|c| pops[c] * (psi[(r, c)].powi(2) + psi[(r, c + k)].powi(2))).sum()).collect();
+        let lo = ((self.j_first - ops.block.j(0)) / ops.block.j_step()) as usize;
+        let m = self.levels;
+        let out = self;
+        let o = ops.abscos.as_ref().expect("|cosθ| matrix built for 2D observables");
+        let (rre, rim) = state.density(pops);
+        for a in 0..m {
+            let i = a + lo;
+            out.abscos_static += diag[i] * o[(i, i)];
+            for b in (a + 1)..m {
+                let j = b + lo;
+                out.abs_c.push((rre[(i, j)] * o[(i, j)], rim[(i, j)] * o[(i, j)]));
+            }
+        }
     }
 }
 
@@ -242,15 +261,15 @@ impl LevelSums {
     /// (⟨cos²θ⟩, ⟨|cosθ|⟩) at time t (ps); the second is 0 without 2D preparation.
     pub fn eval(&self, t_ps: f64) -> (f64, f64) {
         if !self.with_2d {
-            // ⟨cos²θ⟩ alone: one phase per coherence J, J+2, no buffers.
+            // ⟨cos²θ⟩ alone: one phase per coherence J, J+2.
             let tau = t_ps - self.t0_ps;
+            let m = self.omega.len().saturating_sub(2);
+            let arg: Vec<f64> = (0..m).map(|j| (self.omega[j + 2] - self.omega[j]) * tau).collect();
+            let (mut s, mut c) = (vec![0.0; m], vec![0.0; m]);
+            sin_cos_slice(&arg, &mut s, &mut c);
             let mut acc = 0.0;
-            for j in 0..self.omega.len().saturating_sub(2) {
-                let c = self.c2[j];
-                if c != (0.0, 0.0) {
-                    let (s, co) = sin_cos((self.omega[j + 2] - self.omega[j]) * tau);
-                    acc += c.0 * co - c.1 * s;
-                }
+            for j in 0..m {
+                acc += self.c2[j].0 * c[j] - self.c2[j].1 * s[j];
             }
             return (self.cos2_static + 2.0 * acc, 0.0);
         }
@@ -301,25 +320,17 @@ impl LevelSums {
         let (cr, ci): (Vec<f64>, Vec<f64>) = live.iter().map(|&j| self.c2[j]).unzip();
         let (rr, ri): (Vec<f64>, Vec<f64>) = d.iter().map(|&x| sin_cos(x * dt)).map(|(s, c)| (c, s)).unzip();
         let (mut wr, mut wi) = (vec![0.0; live.len()], vec![0.0; live.len()]);
+        let (one, zero) = (vec![1.0; live.len()], vec![0.0; live.len()]);
         for i in 0..n {
-            if i % 256 == 0 {
+            let acc = if i % 256 == 0 {
+                // Re-synchronize: w = exp(i d τ) directly, then project with a unit step.
                 let tau = t_first + i as f64 * dt - self.t0_ps;
-                for q in 0..d.len() {
-                    let (s, c) = sin_cos(d[q] * tau);
-                    wr[q] = c;
-                    wi[q] = s;
-                }
+                let arg: Vec<f64> = d.iter().map(|x| x * tau).collect();
+                sin_cos_slice(&arg, &mut wi, &mut wr);
+                advance_and_project(&mut wr, &mut wi, &one, &zero, &cr, &ci)
             } else {
-                for q in 0..d.len() {
-                    let (a, b) = (wr[q], wi[q]);
-                    wr[q] = a * rr[q] - b * ri[q];
-                    wi[q] = a * ri[q] + b * rr[q];
-                }
-            }
-            let mut acc = 0.0;
-            for q in 0..d.len() {
-                acc += cr[q] * wr[q] - ci[q] * wi[q];
-            }
+                advance_and_project(&mut wr, &mut wi, &rr, &ri, &cr, &ci)
+            };
             out(i, (self.cos2_static + 2.0 * acc, 0.0));
         }
     }

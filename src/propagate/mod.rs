@@ -258,18 +258,19 @@ impl FreePhases {
     }
 }
 
+crate::numeric::wide_simd! {
 /// Multiply row r of the complex matrix [Re | Im] (K columns each, column-major, N rows) by c_r + i s_r.
 pub(crate) fn rotate_rows(data: &mut [f64], k: usize, n: usize, c: &[f64], s: &[f64]) {
     let (re, im) = data.split_at_mut(n * k);
-    for col in 0..k {
-        let rc = &mut re[col * n..(col + 1) * n];
-        let ic = &mut im[col * n..(col + 1) * n];
+    let (c, s) = (&c[..n], &s[..n]);
+    for (rc, ic) in re.chunks_exact_mut(n).zip(im.chunks_exact_mut(n)) {
         for r in 0..n {
             let (a, b) = (rc[r], ic[r]);
             rc[r] = a * c[r] - b * s[r];
             ic[r] = a * s[r] + b * c[r];
         }
     }
+}
 }
 
 /// Substep weights of the fourth-order symmetric composition (Suzuki 1990, five Strang steps).

@@ -148,6 +148,7 @@ impl Solver {
 
     /// One block for every train of the batch: the coherence sums after the last kick, or None for a
     /// train whose states reached the basis edge.
+    #[inline(never)]
     fn batch_block(&self, block: Block, levels: &[(u32, f64)], kicks: &[Kicks], phases: &[Vec<(Vec<f64>, Vec<f64>)>], with_2d: bool) -> Vec<Option<BlockSums>> {
         let ops = self.ops(block.m, block.parity, block.size, with_2d);
         let n = block.size;
@@ -213,11 +214,15 @@ impl Solver {
         let mut state = BlockState::new(n, &start, 0.0);
         (0..trains)
             .map(|t| {
-                state.psi.as_mut_slice().copy_from_slice(&psi.as_slice()[slab(t)]);
                 if edge[t] > self.settings.edge_tolerance {
                     return None;
                 }
-                Some(BlockSums::from_state(&ops, &state, &pops, with_2d))
+                let columns = &psi.as_slice()[slab(t)];
+                if !with_2d {
+                    return Some(BlockSums::from_columns(&ops, columns, k, &pops));
+                }
+                state.psi.as_mut_slice().copy_from_slice(columns);
+                Some(BlockSums::from_state(&ops, &state, &pops, true))
             })
             .collect()
     }
