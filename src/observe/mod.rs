@@ -81,7 +81,7 @@ impl BlockSums {
     /// The block's coefficients from its propagated states (populations `pops`); `with_2d` adds |cosθ|.
     /// Without 2D only the diagonal and first off-diagonal of ρ are formed (O(N K) work).
     pub fn from_state(ops: &BlockOps, state: &BlockState, pops: &[f64], with_2d: bool) -> BlockSums {
-        let mut out = BlockSums::from_columns(ops, state.psi.as_slice(), state.k, pops);
+        let mut out = BlockSums::from_columns(ops, state.psi.as_slice(), state.k, pops, &mut Default::default());
         if with_2d {
             out.add_abscos(ops, state, pops);
         }
@@ -89,23 +89,18 @@ impl BlockSums {
     }
 
     /// The ⟨cos²θ⟩ coefficients from the states' amplitudes `psi` (column-major, N rows, columns
-    /// [Re ψ_1..ψ_K | Im ψ_1..ψ_K]) with populations `pops`; the |cosθ| part is left empty.
-    pub fn from_columns(ops: &BlockOps, psi: &[f64], k: usize, pops: &[f64]) -> BlockSums {
+    /// [Re ψ_1..ψ_K | Im ψ_1..ψ_K]) with populations `pops`; the |cosθ| part is left empty. `scratch`
+    /// holds work arrays that can be reused from call to call.
+    pub fn from_columns(ops: &BlockOps, psi: &[f64], k: usize, pops: &[f64], scratch: &mut [Vec<f64>; 3]) -> BlockSums {
         let n = ops.size();
         let (re, im) = psi[..2 * n * k].split_at(n * k);
         // ρ_rr and ρ_{r,r+1} = Σ_c p_c ψ_r conj(ψ_{r+1}), column by column (contiguous rows).
-        let (mut diag, mut off_re, mut off_im) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-        for c in 0..k {
-            let p = pops[c];
-            let (a, b) = (&re[c * n..(c + 1) * n], &im[c * n..(c + 1) * n]);
-            for r in 0..n {
-                diag[r] += p * (a[r] * a[r] + b[r] * b[r]);
-            }
-            for r in 0..n - 1 {
-                off_re[r] += p * (a[r] * a[r + 1] + b[r] * b[r + 1]);
-                off_im[r] += p * (b[r] * a[r + 1] - a[r] * b[r + 1]);
-            }
+        for v in scratch.iter_mut() {
+            v.clear();
+            v.resize(n, 0.0);
         }
+        let [diag, off_re, off_im] = scratch;
+        accumulate_neighbours(re, im, n, &pops[..k], diag, off_re, off_im);
         let lo = (0..n).find(|&i| diag[i] > TRIM_POPULATION).unwrap_or(0);
         let hi = (0..n).rev().find(|&i| diag[i] > TRIM_POPULATION).map(|i| i + 1).unwrap_or(0).max(lo);
         let m = hi - lo;
@@ -140,6 +135,24 @@ impl BlockSums {
             }
         }
     }
+}
+
+crate::numeric::wide_simd! {
+/// ρ_rr (into `diag`) and ρ_{r,r+1} (into `off_re`, `off_im`) = Σ_c p_c ψ_r conj(ψ_{r+1}) over the
+/// columns c of `re` and `im` (N rows each, column-major), added to what the arrays hold.
+fn accumulate_neighbours(re: &[f64], im: &[f64], n: usize, pops: &[f64], diag: &mut [f64], off_re: &mut [f64], off_im: &mut [f64]) {
+    let (diag, off_re, off_im) = (&mut diag[..n], &mut off_re[..n], &mut off_im[..n]);
+    for (c, &p) in pops.iter().enumerate() {
+        let (a, b) = (&re[c * n..(c + 1) * n], &im[c * n..(c + 1) * n]);
+        for r in 0..n {
+            diag[r] += p * (a[r] * a[r] + b[r] * b[r]);
+        }
+        for r in 0..n - 1 {
+            off_re[r] += p * (a[r] * a[r + 1] + b[r] * b[r + 1]);
+            off_im[r] += p * (b[r] * a[r + 1] - a[r] * b[r + 1]);
+        }
+    }
+}
 }
 
 /// Coherence sums of the whole ensemble, merged over blocks by rotational level J. Field-free

@@ -6,12 +6,12 @@ use super::{Event, Solver};
 use crate::basis::Block;
 use crate::error::Result;
 use crate::field::FieldModel;
-use crate::numeric::{sin_cos, sin_cos_slice};
+use crate::numeric::sin_cos_slice;
 use crate::observe::{BlockSums, LevelSums};
 use crate::propagate::{BlockState, rotate_rows};
 use crate::scenario::Method;
 use crate::units::cm_to_rad_per_ps;
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DMatrixView, DMatrixViewMut};
 use rayon::prelude::*;
 
 /// Trains per batch: enough to make the products efficient, few enough that a block's states stay in cache.
@@ -20,6 +20,26 @@ const BATCH: usize = 32;
 /// Per train of a batch: its sums, or None where its states reached the basis edge; None for the
 /// whole batch if its basis would go beyond the physical limit.
 type BatchOutcome = Option<Vec<Option<LevelSums>>>;
+
+/// Field-free phase factors of one step by J: entry p·half + J/2 holds level J of parity p.
+struct FreeTable {
+    cos: Vec<f64>,
+    sin: Vec<f64>,
+    half: usize,
+}
+
+impl FreeTable {
+    /// (cos, sin) of the `n` levels of `block`, in block order.
+    fn of(&self, block: &Block, n: usize) -> (&[f64], &[f64]) {
+        let from = block.parity as usize * self.half + block.j_min() as usize / 2;
+        (&self.cos[from..from + n], &self.sin[from..from + n])
+    }
+}
+
+thread_local! {
+    /// Reused state buffers of `batch_block` (ψ and the eigenbasis products).
+    static BUFFERS: std::cell::RefCell<[Vec<f64>; 2]> = const { std::cell::RefCell::new([Vec::new(), Vec::new()]) };
+}
 
 /// One train reduced to its kicks: (time in ps, kick strength P in rad), time-ordered.
 type Kicks = Vec<(f64, f64)>;
@@ -102,19 +122,19 @@ impl Solver {
         // Field-free phases between kicks by J, per train and step (the same for every block).
         let j_count = (self.ensemble.j_max + 2 * extra as u32 + 2).min(j_limit) as usize + 1;
         let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.molecule.energy_cm(j))).collect();
-        let phases: Vec<Vec<(Vec<f64>, Vec<f64>)>> = kicks
+        // Per train and step: cos and sin of −ω_J dt, stored as [even J | odd J] so that a block's
+        // levels (one parity, consecutive) are one contiguous run.
+        let half = j_count.div_ceil(2);
+        let phases: Vec<Vec<FreeTable>> = kicks
             .iter()
             .map(|k| {
                 (1..steps)
                     .map(|s| {
                         let dt = k[s].0 - k[s - 1].0;
-                        omega
-                            .iter()
-                            .map(|w| {
-                                let (s, c) = sin_cos(-w * dt);
-                                (c, s)
-                            })
-                            .unzip()
+                        let arg: Vec<f64> = (0..2 * half).map(|i| -omega.get(2 * (i % half) + i / half).copied().unwrap_or(0.0) * dt).collect();
+                        let mut t = FreeTable { cos: vec![0.0; 2 * half], sin: vec![0.0; 2 * half], half };
+                        sin_cos_slice(&arg, &mut t.sin, &mut t.cos);
+                        t
                     })
                     .collect()
             })
@@ -149,7 +169,31 @@ impl Solver {
     /// One block for every train of the batch: the coherence sums after the last kick, or None for a
     /// train whose states reached the basis edge.
     #[inline(never)]
-    fn batch_block(&self, block: Block, levels: &[(u32, f64)], kicks: &[Kicks], phases: &[Vec<(Vec<f64>, Vec<f64>)>], with_2d: bool) -> Vec<Option<BlockSums>> {
+    fn batch_block(&self, block: Block, levels: &[(u32, f64)], kicks: &[Kicks], phases: &[Vec<FreeTable>], with_2d: bool) -> Vec<Option<BlockSums>> {
+        BUFFERS.with_borrow_mut(|[a, b]| {
+            let len = block.size * 2 * levels.len() * kicks.len();
+            for buf in [&mut *a, &mut *b] {
+                if buf.len() < len {
+                    buf.resize(len, 0.0);
+                }
+            }
+            self.batch_block_in(block, levels, kicks, phases, with_2d, &mut a[..len], &mut b[..len])
+        })
+    }
+
+    /// `batch_block` with its buffers for ψ and for the eigenbasis products (each N × 2K × trains;
+    /// their contents on entry do not matter).
+    #[allow(clippy::too_many_arguments)]
+    fn batch_block_in(
+        &self,
+        block: Block,
+        levels: &[(u32, f64)],
+        kicks: &[Kicks],
+        phases: &[Vec<FreeTable>],
+        with_2d: bool,
+        psi_buf: &mut [f64],
+        work_buf: &mut [f64],
+    ) -> Vec<Option<BlockSums>> {
         let ops = self.ops(block.m, block.parity, block.size, with_2d);
         let n = block.size;
         let k = levels.len();
@@ -160,8 +204,10 @@ impl Solver {
         let v = &ops.cos2_eigenvectors;
         let vt = ops.cos2_eigenvectors_t();
         let lambda = &ops.cos2_eigenvalues;
-        let mut psi = DMatrix::<f64>::zeros(n, width * trains);
-        let mut work = DMatrix::<f64>::zeros(n, width * trains);
+        let (psi, work) = (psi_buf, work_buf);
+        let cols = width * trains;
+        // dst ← a · src for N × cols column-major buffers.
+        let product = |dst: &mut [f64], a: &DMatrix<f64>, src: &[f64]| DMatrixViewMut::from_slice(dst, n, cols).gemm(1.0, a, &DMatrixView::from_slice(src, n, cols), 0.0);
         let (mut c, mut s) = (vec![0.0; n], vec![0.0; n]);
         let mut arg = vec![0.0; n];
         let mut kick_phases = |theta: f64, c: &mut [f64], s: &mut [f64]| {
@@ -177,52 +223,52 @@ impl Solver {
                 // Vᵀψ is a row of V, so the first kick needs one product only.
                 for (t, train) in kicks.iter().enumerate() {
                     kick_phases(train[0].1, &mut c, &mut s);
-                    let (re, im) = work.as_mut_slice()[slab(t)].split_at_mut(n * k);
+                    let (re, im) = work[slab(t)].split_at_mut(n * k);
                     for (col, &r) in start.iter().enumerate() {
-                        let row = vt.column(r);
+                        let row = &vt.as_slice()[r * n..(r + 1) * n];
+                        let (re, im) = (&mut re[col * n..(col + 1) * n], &mut im[col * n..(col + 1) * n]);
                         for q in 0..n {
-                            re[col * n + q] = row[q] * c[q];
-                            im[col * n + q] = row[q] * s[q];
+                            re[q] = row[q] * c[q];
+                            im[q] = row[q] * s[q];
                         }
                     }
                 }
             } else {
-                for (t, (pc, ps)) in phases.iter().map(|p| &p[step - 1]).enumerate() {
-                    for q in 0..n {
-                        let j = block.j(q) as usize;
-                        c[q] = pc[j];
-                        s[q] = ps[j];
-                    }
-                    rotate_rows(&mut psi.as_mut_slice()[slab(t)], k, n, &c, &s);
+                for (t, table) in phases.iter().map(|p| &p[step - 1]).enumerate() {
+                    let (pc, ps) = table.of(&block, n);
+                    rotate_rows(&mut psi[slab(t)], k, n, pc, ps);
                 }
-                work.gemm(1.0, vt, &psi, 0.0);
+                product(work, vt, psi);
                 for (t, train) in kicks.iter().enumerate() {
                     kick_phases(train[step].1, &mut c, &mut s);
-                    rotate_rows(&mut work.as_mut_slice()[slab(t)], k, n, &c, &s);
+                    rotate_rows(&mut work[slab(t)], k, n, &c, &s);
                 }
             }
-            psi.gemm(1.0, v, &work, 0.0);
+            product(psi, v, work);
             // Largest population in the top two levels after every kick, as in the general path.
             for (t, e) in edge.iter_mut().enumerate() {
-                let data = &psi.as_slice()[slab(t)];
+                let data = &psi[slab(t)];
                 for col in 0..k {
                     let top = |c: usize| -> f64 { data[c * n + n.saturating_sub(2)..(c + 1) * n].iter().map(|x| x * x).sum() };
                     *e = e.max(top(col) + top(col + k));
                 }
             }
         }
-        let mut state = BlockState::new(n, &start, 0.0);
+        let mut scratch = Default::default();
+        let mut state = if with_2d { Some(BlockState::new(n, &start, 0.0)) } else { None };
         (0..trains)
             .map(|t| {
                 if edge[t] > self.settings.edge_tolerance {
                     return None;
                 }
-                let columns = &psi.as_slice()[slab(t)];
-                if !with_2d {
-                    return Some(BlockSums::from_columns(&ops, columns, k, &pops));
+                let columns = &psi[slab(t)];
+                match &mut state {
+                    None => Some(BlockSums::from_columns(&ops, columns, k, &pops, &mut scratch)),
+                    Some(st) => {
+                        st.psi.as_mut_slice().copy_from_slice(columns);
+                        Some(BlockSums::from_state(&ops, st, &pops, true))
+                    }
                 }
-                state.psi.as_mut_slice().copy_from_slice(columns);
-                Some(BlockSums::from_state(&ops, &state, &pops, true))
             })
             .collect()
     }
