@@ -207,7 +207,8 @@ impl Solver {
         let (psi, work) = (psi_buf, work_buf);
         let cols = width * trains;
         // dst ← a · src for N × cols column-major buffers.
-        let product = |dst: &mut [f64], a: &DMatrix<f64>, src: &[f64]| DMatrixViewMut::from_slice(dst, n, cols).gemm(1.0, a, &DMatrixView::from_slice(src, n, cols), 0.0);
+        let product =
+            |dst: &mut [f64], a: &DMatrix<f64>, src: &[f64]| DMatrixViewMut::from_slice(dst, n, cols).gemm(1.0, a, &DMatrixView::from_slice(src, n, cols), 0.0);
         let (mut c, mut s) = (vec![0.0; n], vec![0.0; n]);
         let mut arg = vec![0.0; n];
         let mut kick_phases = |theta: f64, c: &mut [f64], s: &mut [f64]| {
