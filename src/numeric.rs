@@ -187,6 +187,35 @@ mod tests {
     }
 
     #[test]
+    fn strided_products_match_nalgebra() {
+        // Reference: nalgebra's dense product of explicit (copied) transposes.
+        use nalgebra::DMatrix;
+        let a = DMatrix::from_fn(5, 3, |i, j| (i as f64 + 1.0) * 0.7 - j as f64 * 1.3);
+        let b = DMatrix::from_fn(5, 4, |i, j| ((i * 4 + j) as f64).sin());
+        // C (3 × 4) = Aᵀ B, reading Aᵀ in place through swapped strides, into a transposed C (4 × 3 storage).
+        let mut c = vec![0.0; 2 + 12];
+        let at = Strided { data: a.as_slice(), offset: 0, shape: (3, 5), strides: (5, 1) };
+        let bv = Strided { data: b.as_slice(), offset: 0, shape: (5, 4), strides: (1, 5) };
+        gemm_strided(at, bv, &mut c, 2, (4, 1));
+        let want = a.transpose() * &b;
+        for i in 0..3 {
+            for j in 0..4 {
+                assert!((c[2 + i * 4 + j] - want[(i, j)]).abs() < 1e-13);
+            }
+        }
+        assert_eq!(&c[..2], &[0.0, 0.0]);
+    }
+
+    #[test]
+    #[should_panic(expected = "outside its slice")]
+    fn strided_products_refuse_views_beyond_their_slices() {
+        let data = [1.0; 6];
+        let a = Strided { data: &data, offset: 1, shape: (2, 3), strides: (1, 2) };
+        let mut c = [0.0; 4];
+        gemm_strided(a, Strided { data: &data, offset: 0, shape: (3, 2), strides: (1, 3) }, &mut c, 0, (1, 2));
+    }
+
+    #[test]
     fn split_of_half_pi_is_exact_and_short() {
         // The high part must have at most 33 significant bits so that k·PIO2_HI is exact, and the two
         // parts must add up to π/2 in f64 (common practice for Cody–Waite reduction).
@@ -221,5 +250,60 @@ mod tests {
         assert_eq!(sin_cos(1e-300).0, 1e-300);
         assert_eq!(sin_cos(2e6), 2e6f64.sin_cos());
         assert!(sin_cos(f64::NAN).0.is_nan());
+    }
+}
+
+/// A read-only matrix inside a slice: element (i, j) is `data[offset + i·row_stride + j·col_stride]`.
+#[derive(Debug, Clone, Copy)]
+pub struct Strided<'a> {
+    /// The storage.
+    pub data: &'a [f64],
+    /// Index of element (0, 0).
+    pub offset: usize,
+    /// Rows and columns.
+    pub shape: (usize, usize),
+    /// Steps between rows and between columns.
+    pub strides: (usize, usize),
+}
+
+impl Strided<'_> {
+    /// True if every element lies inside `len` entries.
+    fn fits(offset: usize, shape: (usize, usize), strides: (usize, usize), len: usize) -> bool {
+        shape.0 == 0 || shape.1 == 0 || offset + (shape.0 - 1) * strides.0 + (shape.1 - 1) * strides.1 < len
+    }
+}
+
+/// C ← A·B, with C an `a.shape.0` × `b.shape.1` matrix in `c` at `c_offset` with strides `c_strides`
+/// (any layout, including transposed views, without copies). Panics if the shapes do not chain or a
+/// matrix does not fit in its slice (programming errors).
+pub fn gemm_strided(a: Strided, b: Strided, c: &mut [f64], c_offset: usize, c_strides: (usize, usize)) {
+    let (m, k) = a.shape;
+    let n = b.shape.1;
+    assert_eq!(b.shape.0, k, "gemm_strided: inner dimensions differ");
+    assert!(Strided::fits(a.offset, a.shape, a.strides, a.data.len()), "gemm_strided: A outside its slice");
+    assert!(Strided::fits(b.offset, b.shape, b.strides, b.data.len()), "gemm_strided: B outside its slice");
+    assert!(Strided::fits(c_offset, (m, n), c_strides, c.len()), "gemm_strided: C outside its slice");
+    if m == 0 || n == 0 {
+        return;
+    }
+    // SAFETY: all three matrices lie inside their slices (checked above); C does not alias A or B
+    // (it is borrowed mutably while they are borrowed shared).
+    unsafe {
+        matrixmultiply::dgemm(
+            m,
+            k,
+            n,
+            1.0,
+            a.data.as_ptr().add(a.offset),
+            a.strides.0 as isize,
+            a.strides.1 as isize,
+            b.data.as_ptr().add(b.offset),
+            b.strides.0 as isize,
+            b.strides.1 as isize,
+            0.0,
+            c.as_mut_ptr().add(c_offset),
+            c_strides.0 as isize,
+            c_strides.1 as isize,
+        );
     }
 }
