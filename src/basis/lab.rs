@@ -1,0 +1,221 @@
+//! Orientation functions with lab-frame components other than Z, for fields that are not symmetric
+//! about Z (three-dimensional alignment: elliptical or tilted polarizations). They couple states of
+//! different M, so their matrix elements are taken between symmetric-top functions |J K M⟩ of any M
+//! (linear molecules are the K = 0 case). Groundwork for the all-M solver.
+
+use super::wigner::three_j;
+use num_complex::Complex64;
+
+/// A lab-frame axis.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LabAxis {
+    /// X (in the polarization plane, across the beam).
+    X,
+    /// Y (the propagation direction).
+    Y,
+    /// Z (the reference polarization direction).
+    Z,
+}
+
+/// Spherical components a(−1), a(0), a(+1) of a Cartesian unit vector (x, y, z) = (0, 1, 2), such that a
+/// direction cosine is Φ_Fg = Σ_pq a_F(p) conj(a_g(q)) D¹_pq(Ω)* (checked by quadrature in the tests).
+fn spherical(axis: usize) -> [Complex64; 3] {
+    let h = std::f64::consts::FRAC_1_SQRT_2;
+    let z = Complex64::new(0.0, 0.0);
+    match axis {
+        0 => [Complex64::new(h, 0.0), z, Complex64::new(-h, 0.0)],
+        1 => [Complex64::new(0.0, h), z, Complex64::new(0.0, h)],
+        _ => [z, Complex64::new(1.0, 0.0), z],
+    }
+}
+
+/// c₀ + Σ c·D^r_pq(Ω)* with complex coefficients: a function of the orientation Ω = (φ, θ, χ).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LabOperator {
+    /// Coefficient of the identity.
+    pub identity: f64,
+    /// (rank r, lab component p, body component q, coefficient).
+    pub terms: Vec<(i64, i64, i64, Complex64)>,
+}
+
+impl LabOperator {
+    /// The direction cosine Φ_Fg between lab axis `lab` and the body axis at frame position `body`
+    /// (0 = z, 1 = x, 2 = y of the quantization frame).
+    pub fn direction_cosine(lab: LabAxis, body: usize) -> LabOperator {
+        let a = spherical(match lab {
+            LabAxis::X => 0,
+            LabAxis::Y => 1,
+            LabAxis::Z => 2,
+        });
+        let b = spherical(match body {
+            0 => 2,
+            1 => 0,
+            _ => 1,
+        });
+        let mut terms = vec![];
+        for p in -1i64..=1 {
+            for q in -1i64..=1 {
+                let c = a[(p + 1) as usize] * b[(q + 1) as usize].conj();
+                if c.norm() > 0.0 {
+                    terms.push((1, p, q, c));
+                }
+            }
+        }
+        LabOperator { identity: 0.0, terms }
+    }
+
+    /// Highest rank of the terms.
+    pub fn rank(&self) -> i64 {
+        self.terms.iter().map(|t| t.0).max().unwrap_or(0)
+    }
+
+    /// ⟨J' K' M'|O|J K M⟩ between primitive symmetric-top functions ψ = sqrt((2J+1)/8π²) D^J_MK(Ω)*:
+    /// ⟨J'K'M'|D^r_pq*|JKM⟩ = sqrt((2J+1)(2J'+1)) (−1)^(p−q+M−K) (J' r J; M' −p −M)(J' r J; K' −q −K).
+    pub fn element(&self, bra: (i64, i64, i64), ket: (i64, i64, i64)) -> Complex64 {
+        let ((jp, kp, mp), (j, k, m)) = (bra, ket);
+        let mut v = Complex64::new(if bra == ket { self.identity } else { 0.0 }, 0.0);
+        for &(r, p, q, c) in &self.terms {
+            if mp != m + p || kp != k + q || (jp - j).abs() > r {
+                continue;
+            }
+            let a = three_j(jp, r, j, mp, -p, -m);
+            if a == 0.0 {
+                continue;
+            }
+            let b = three_j(jp, r, j, kp, -q, -k);
+            let phase = if (p - q + m - k).rem_euclid(2) == 0 { 1.0 } else { -1.0 };
+            v += c * (phase * (((2 * j + 1) * (2 * jp + 1)) as f64).sqrt() * a * b);
+        }
+        v
+    }
+}
+
+/// ⟨J'K'M'|O₁ O₂|JKM⟩ for two operators, summed over the complete set of intermediate states the
+/// ranks allow (exact: |J'' − J| ≤ rank of O₂).
+pub fn product_element(o1: &LabOperator, o2: &LabOperator, bra: (i64, i64, i64), ket: (i64, i64, i64)) -> Complex64 {
+    let (j, k, m) = ket;
+    let r = o2.rank();
+    let mut v = Complex64::new(0.0, 0.0);
+    for jm in (j - r).max(0)..=(j + r) {
+        for km in -jm..=jm {
+            for mm in -jm..=jm {
+                let right = o2.element((jm, km, mm), ket);
+                if right.norm() == 0.0 {
+                    continue;
+                }
+                v += o1.element(bra, (jm, km, mm)) * right;
+            }
+        }
+    }
+    let _ = (k, m);
+    v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::basis::legendre::gauss_legendre;
+    use crate::basis::wigner::small_d_explicit;
+    use std::f64::consts::PI;
+
+    /// The rotation matrix R(φ, θ, χ) = R_z(φ) R_y(θ) R_z(χ) (z-y-z Euler angles, active): column g is
+    /// body axis g (x, y, z) in lab coordinates, so Φ_Fg = R[F][g] (textbook, e.g. Zare, "Angular
+    /// Momentum", eq. 3.37).
+    fn rotation(phi: f64, th: f64, chi: f64) -> [[f64; 3]; 3] {
+        let (sp, cp) = phi.sin_cos();
+        let (st, ct) = th.sin_cos();
+        let (sc, cc) = chi.sin_cos();
+        [
+            [cp * ct * cc - sp * sc, -cp * ct * sc - sp * cc, cp * st],
+            [sp * ct * cc + cp * sc, -sp * ct * sc + cp * cc, sp * st],
+            [-st * cc, st * sc, ct],
+        ]
+    }
+
+    /// ⟨J'K'M'|f|JKM⟩ by quadrature over all three Euler angles of ψ = sqrt((2J+1)/8π²) e^{iMφ} d^J_MK(θ)
+    /// e^{iKχ}: uniform grids in φ and χ (exact for these trigonometric polynomials), Gauss–Legendre in cosθ.
+    fn quad(bra: (i64, i64, i64), ket: (i64, i64, i64), f: impl Fn(f64, f64, f64) -> f64) -> Complex64 {
+        let ((jp, kp, mp), (j, k, m)) = (bra, ket);
+        let n_ang = 16;
+        let (x, w) = gauss_legendre(24, -1.0, 1.0);
+        let norm = (((2 * j + 1) * (2 * jp + 1)) as f64).sqrt() / (8.0 * PI * PI);
+        let step = 2.0 * PI / n_ang as f64;
+        let mut v = Complex64::new(0.0, 0.0);
+        for a in 0..n_ang {
+            let phi = step * a as f64;
+            for (xq, wq) in x.iter().zip(&w) {
+                let th = xq.acos();
+                let dd = small_d_explicit(jp, mp, kp, th) * small_d_explicit(j, m, k, th);
+                for c in 0..n_ang {
+                    let chi = step * c as f64;
+                    let ph = (m - mp) as f64 * phi + (k - kp) as f64 * chi;
+                    v += Complex64::from_polar(norm * wq * dd * f(phi, th, chi) * step * step, ph);
+                }
+            }
+        }
+        v
+    }
+
+    fn states(j_max: i64) -> Vec<(i64, i64, i64)> {
+        let mut out = vec![];
+        for j in 0..=j_max {
+            for k in -j..=j {
+                for m in -j..=j {
+                    out.push((j, k, m));
+                }
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn direction_cosines_of_every_lab_and_body_axis_match_euler_angle_quadrature() {
+        // Closed forms (3j products) against quadrature of the explicit rotation matrix elements, for
+        // all nine direction cosines between states up to J = 2 of every K and M (ΔM = 0, ±1).
+        let s = states(2);
+        let mut checked = 0;
+        for (fi, lab) in [LabAxis::X, LabAxis::Y, LabAxis::Z].into_iter().enumerate() {
+            for (body, col) in [(0usize, 2usize), (1, 0), (2, 1)] {
+                let op = LabOperator::direction_cosine(lab, body);
+                for &bra in &s {
+                    for &ket in &s {
+                        let want = quad(bra, ket, |p, t, c| rotation(p, t, c)[fi][col]);
+                        let got = op.element(bra, ket);
+                        assert!((got - want).norm() < 1e-12, "Φ_{lab:?},{body} {bra:?} {ket:?}: {got} vs {want}");
+                        checked += 1;
+                    }
+                }
+            }
+        }
+        assert!(checked > 5000);
+    }
+
+    #[test]
+    fn products_of_direction_cosines_match_quadrature_and_sum_to_one() {
+        // Φ_Xz², Φ_Xz Φ_Zz and Φ_Yx Φ_Zy (couplings of tilted and elliptical fields) by summation over
+        // intermediate states, against quadrature; and Σ_F Φ_Fz² = 1 (orthonormal rows) as a matrix.
+        let s = states(2);
+        let z = |lab| LabOperator::direction_cosine(lab, 0);
+        let pairs: [(LabOperator, LabOperator, fn([[f64; 3]; 3]) -> f64); 3] = [
+            (z(LabAxis::X), z(LabAxis::X), |r| r[0][2] * r[0][2]),
+            (z(LabAxis::X), z(LabAxis::Z), |r| r[0][2] * r[2][2]),
+            (LabOperator::direction_cosine(LabAxis::Y, 1), LabOperator::direction_cosine(LabAxis::Z, 2), |r| r[1][0] * r[2][1]),
+        ];
+        for (a, b, f) in &pairs {
+            for &bra in &s {
+                for &ket in &s {
+                    let want = quad(bra, ket, |p, t, c| f(rotation(p, t, c)));
+                    let got = product_element(a, b, bra, ket);
+                    assert!((got - want).norm() < 1e-12, "{bra:?} {ket:?}: {got} vs {want}");
+                }
+            }
+        }
+        for &bra in &s {
+            for &ket in &s {
+                let sum: Complex64 = [LabAxis::X, LabAxis::Y, LabAxis::Z].iter().map(|&l| product_element(&z(l), &z(l), bra, ket)).sum();
+                let want = if bra == ket { 1.0 } else { 0.0 };
+                assert!((sum - want).norm() < 1e-12, "{bra:?} {ket:?}: {sum}");
+            }
+        }
+    }
+}
