@@ -125,11 +125,7 @@ mod tests {
         let (sp, cp) = phi.sin_cos();
         let (st, ct) = th.sin_cos();
         let (sc, cc) = chi.sin_cos();
-        [
-            [cp * ct * cc - sp * sc, -cp * ct * sc - sp * cc, cp * st],
-            [sp * ct * cc + cp * sc, -sp * ct * sc + cp * cc, sp * st],
-            [-st * cc, st * sc, ct],
-        ]
+        [[cp * ct * cc - sp * sc, -cp * ct * sc - sp * cc, cp * st], [sp * ct * cc + cp * sc, -sp * ct * sc + cp * cc, sp * st], [-st * cc, st * sc, ct]]
     }
 
     /// ⟨J'K'M'|f|JKM⟩ by quadrature over all three Euler angles of ψ = sqrt((2J+1)/8π²) e^{iMφ} d^J_MK(θ)
@@ -196,7 +192,8 @@ mod tests {
         // intermediate states, against quadrature; and Σ_F Φ_Fz² = 1 (orthonormal rows) as a matrix.
         let s = states(2);
         let z = |lab| LabOperator::direction_cosine(lab, 0);
-        let pairs: [(LabOperator, LabOperator, fn([[f64; 3]; 3]) -> f64); 3] = [
+        type Product = (LabOperator, LabOperator, fn([[f64; 3]; 3]) -> f64);
+        let pairs: [Product; 3] = [
             (z(LabAxis::X), z(LabAxis::X), |r| r[0][2] * r[0][2]),
             (z(LabAxis::X), z(LabAxis::Z), |r| r[0][2] * r[2][2]),
             (LabOperator::direction_cosine(LabAxis::Y, 1), LabOperator::direction_cosine(LabAxis::Z, 2), |r| r[1][0] * r[2][1]),
@@ -216,6 +213,124 @@ mod tests {
                 let want = if bra == ket { 1.0 } else { 0.0 };
                 assert!((sum - want).norm() < 1e-12, "{bra:?} {ket:?}: {sum}");
             }
+        }
+    }
+}
+
+/// The polarization of a pulse travelling along Y: the major axis of the field ellipse lies in the XZ
+/// plane at `angle_rad` from Z towards X, and the minor axis, also in that plane, carries `ellipticity`
+/// times the major field (0 linear, 1 circular).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Polarization {
+    /// Angle of the major axis from Z towards X, rad.
+    pub angle_rad: f64,
+    /// Ratio of minor to major field amplitude, 0..=1.
+    pub ellipticity: f64,
+}
+
+impl Polarization {
+    /// Linear polarization along Z.
+    pub const Z: Polarization = Polarization { angle_rad: 0.0, ellipticity: 0.0 };
+
+    /// The cycle-averaged coupling of a body axis with this field, normalized to the intensity:
+    /// [(ê₁·n)² + ε²(ê₂·n)²] / (1 + ε²) for the body axis n at frame position `body`, with ê₁ the major
+    /// and ê₂ the minor axis. Its spectrum lies in [0, 1]; for Z polarization it is cos²θ.
+    /// Returned as weights of the products Φ_F Φ_F' over lab axes (X, Z), to be combined with
+    /// [`product_element`].
+    pub fn coupling_weights(&self) -> [(LabAxis, LabAxis, f64); 4] {
+        let (s, c) = self.angle_rad.sin_cos();
+        let e2 = self.ellipticity * self.ellipticity;
+        let norm = 1.0 / (1.0 + e2);
+        // ê₁ = (sin β, 0, cos β), ê₂ = (cos β, 0, −sin β): (ê·n)² = e_X² n_X² + e_Z² n_Z² + 2 e_X e_Z n_X n_Z.
+        let zz = (c * c + e2 * s * s) * norm;
+        let xx = (s * s + e2 * c * c) * norm;
+        let xz = (1.0 - e2) * s * c * norm;
+        [(LabAxis::Z, LabAxis::Z, zz), (LabAxis::X, LabAxis::X, xx), (LabAxis::X, LabAxis::Z, xz), (LabAxis::Z, LabAxis::X, xz)]
+    }
+
+    /// ⟨J'K'M'|coupling|JKM⟩ for the body axis at frame position `body` (see [`Polarization::coupling_weights`]).
+    pub fn coupling_element(&self, body: usize, bra: (i64, i64, i64), ket: (i64, i64, i64)) -> Complex64 {
+        self.coupling_weights()
+            .iter()
+            .filter(|w| w.2 != 0.0)
+            .map(|&(f1, f2, w)| w * product_element(&LabOperator::direction_cosine(f1, body), &LabOperator::direction_cosine(f2, body), bra, ket))
+            .sum()
+    }
+}
+
+#[cfg(test)]
+mod polarization_tests {
+    use super::*;
+    use crate::basis::Block;
+    use nalgebra::DMatrix;
+
+    /// All |J 0 M⟩ (linear molecule) with J ≤ j_max of one parity, as (J, K, M).
+    fn linear_states(parity: i64, j_max: i64) -> Vec<(i64, i64, i64)> {
+        (0..=j_max).filter(|j| j % 2 == parity).flat_map(|j| (-j..=j).map(move |m| (j, 0, m))).collect()
+    }
+
+    /// The coupling matrix of `pol` for a linear molecule on `states` (real: the field lies in the XZ plane).
+    fn coupling_matrix(pol: Polarization, states: &[(i64, i64, i64)]) -> DMatrix<f64> {
+        let n = states.len();
+        DMatrix::from_fn(n, n, |a, b| {
+            let v = pol.coupling_element(0, states[a], states[b]);
+            assert!(v.im.abs() < 1e-14, "coupling of a field in the XZ plane is real");
+            v.re
+        })
+    }
+
+    #[test]
+    fn z_polarization_reproduces_the_m_conserving_cos2_matrix() {
+        // Reference: the closed-form tridiagonal cos²θ of the M-conserving blocks (checked elsewhere
+        // against quadrature), element by element.
+        let states = linear_states(0, 6);
+        let a = coupling_matrix(Polarization::Z, &states);
+        for m in 0..=6i64 {
+            let block = Block { m: m as u32, parity: 0, size: Block::size_to_reach(m as u32, 0, 6) };
+            let dense = block.cos2_dense();
+            let idx = |j: i64| states.iter().position(|s| *s == (j, 0, m)).expect("state");
+            for r in 0..block.size {
+                for c in 0..block.size {
+                    let (jr, jc) = (block.j(r) as i64, block.j(c) as i64);
+                    assert!((a[(idx(jr), idx(jc))] - dense[(r, c)]).abs() < 1e-13);
+                }
+            }
+        }
+        // and nothing couples different M.
+        for (i, si) in states.iter().enumerate() {
+            for (j, sj) in states.iter().enumerate() {
+                if si.2 != sj.2 {
+                    assert_eq!(a[(i, j)], 0.0);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn rotating_the_polarization_keeps_the_spectrum_and_circular_light_is_an_average() {
+        // Exact limits: on a space closed under rotations (all M of each J) a rotated field has the same
+        // eigenvalues; the coupling of circular light is the mean of the X and Z couplings; every
+        // coupling is a weighted mean of squared direction cosines, so its spectrum lies in [0, 1].
+        let states = linear_states(1, 7);
+        let eig = |p: Polarization| {
+            let mut v: Vec<f64> = coupling_matrix(p, &states).symmetric_eigenvalues().iter().copied().collect();
+            v.sort_by(f64::total_cmp);
+            v
+        };
+        let z = eig(Polarization::Z);
+        for angle in [0.3, std::f64::consts::FRAC_PI_2, 2.0] {
+            let rotated = eig(Polarization { angle_rad: angle, ellipticity: 0.0 });
+            for (a, b) in z.iter().zip(&rotated) {
+                assert!((a - b).abs() < 1e-12, "angle {angle}: {a} vs {b}");
+            }
+        }
+        let circ = coupling_matrix(Polarization { angle_rad: 0.4, ellipticity: 1.0 }, &states);
+        let mean = 0.5
+            * (coupling_matrix(Polarization::Z, &states) + coupling_matrix(Polarization { angle_rad: std::f64::consts::FRAC_PI_2, ellipticity: 0.0 }, &states));
+        assert!((circ - mean).abs().max() < 1e-13);
+        for e in [0.0, 0.5, 1.0] {
+            let v = eig(Polarization { angle_rad: 0.7, ellipticity: e });
+            assert!(v[0] > -1e-12 && *v.last().expect("eigenvalues") < 1.0 + 1e-12);
         }
     }
 }
