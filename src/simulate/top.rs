@@ -104,6 +104,13 @@ impl TopOps {
         });
     }
 
+    /// Approximate memory held by the operators, bytes.
+    pub fn bytes(&self) -> usize {
+        let vectors: usize = self.basis.vectors.iter().map(|v| v.len()).sum();
+        let observables: usize = self.observables.iter().flat_map(|o| o.blocks.iter().map(|b| b.2.len())).sum();
+        8 * (vectors + observables + self.omega.len()) + 16 * self.coupling.nnz()
+    }
+
     /// Number of eigenstates in the top two J values of the basis (the edge watched for truncation).
     pub fn edge_states(&self) -> usize {
         let r = &self.basis.j_ranges;
@@ -201,7 +208,10 @@ fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> Bloc
     BlockPairs { diag, pairs }
 }
 
-/// Solver for one top at one temperature; operators are cached across runs.
+/// Operators cached across runs stay below this many bytes (the rest are rebuilt when needed).
+const OPS_CACHE_BYTES: usize = 2 << 30;
+
+/// Solver for one top at one temperature; operators are cached across runs (up to `OPS_CACHE_BYTES`).
 pub struct TopSolver {
     /// The top's constants.
     pub top: Top,
@@ -240,7 +250,14 @@ impl TopSolver {
             return o.clone();
         }
         let o = Arc::new(TopOps::new(&self.top, &self.frame, block, with_2d));
-        self.cache.lock().expect("cache lock").insert(key, o.clone());
+        // Keep operators for later runs (the designer) only while they fit the budget: a warm top's
+        // blocks with the dense detector-plane operator would otherwise fill the memory.
+        let bytes = o.bytes();
+        let mut cache = self.cache.lock().expect("cache lock");
+        let held: usize = cache.values().map(|c| c.bytes()).sum();
+        if held + bytes <= OPS_CACHE_BYTES {
+            cache.insert(key, o.clone());
+        }
         o
     }
 
@@ -305,53 +322,53 @@ impl TopSolver {
         }
         events.sort_by(|a, b| a.span().0.total_cmp(&b.span().0));
         let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
-        let outcomes: Vec<TopOutcome> =
-            self.ensemble.blocks.par_iter().map(|bp| self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach)).collect::<Result<Vec<_>>>()?;
         let nobs = AXES + usize::from(with_2d);
         let mut values = vec![vec![0.0; times_ps.len()]; nobs];
-        for o in &outcomes {
-            for (acc, v) in values.iter_mut().zip(&o.values) {
-                for (a, b) in acc.iter_mut().zip(v) {
-                    *a += b;
-                }
-            }
-        }
-        // Level labels shared by all blocks: (symmetry, J, index within J) → id, assigned in block order.
+        // Blocks run in parallel a few at a time; each group's coherences merge into the running sums in
+        // block order and are then dropped, so memory holds a few blocks' coefficients, not all of them,
+        // and the sums do not depend on thread timing.
         let mut ids: HashMap<(TopSym, i64, usize), u32> = HashMap::new();
-        let level_ids: Vec<Vec<u32>> = outcomes
-            .iter()
-            .map(|o| {
+        let mut gap_sums: Vec<(usize, usize, PairSums)> = vec![];
+        let mut final_sums: Option<PairSums> = None;
+        let mut reports = vec![];
+        let group = 2 * rayon::current_num_threads().max(1);
+        for blocks in self.ensemble.blocks.chunks(group) {
+            let outcomes: Vec<TopOutcome> =
+                blocks.par_iter().map(|bp| self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach)).collect::<Result<Vec<_>>>()?;
+            for o in outcomes {
+                for (acc, v) in values.iter_mut().zip(&o.values) {
+                    for (a, b) in acc.iter_mut().zip(v) {
+                        *a += b;
+                    }
+                }
+                // Level labels shared by all blocks: (symmetry, J, index within J) → id, in block order.
                 let b = &o.ops.basis;
-                let mut out = vec![0u32; b.size()];
+                let mut lid = vec![0u32; b.size()];
                 for &(j, start, n) in &b.j_ranges {
                     for i in 0..n {
                         let next = ids.len() as u32;
-                        out[start + i] = *ids.entry((b.block.sym, j, i)).or_insert(next);
+                        lid[start + i] = *ids.entry((b.block.sym, j, i)).or_insert(next);
                     }
                 }
-                out
-            })
-            .collect();
-        let merge = |t0: f64, pick: &dyn Fn(&TopOutcome) -> &BlockPairs| -> PairSums {
-            let mut sums = PairSums::new(nobs, t0);
-            for (o, lid) in outcomes.iter().zip(&level_ids) {
-                let p = pick(o);
-                sums.add_pairs(o.weight, &p.diag, &p.pairs, lid, &o.ops.omega);
-            }
-            sums
-        };
-        if let Some(first) = outcomes.first() {
-            for (g, &(from, to, t0, _)) in first.gaps.iter().enumerate() {
-                let sums = merge(t0, &|o: &TopOutcome| &o.gaps[g].3);
-                sums.eval_series(&times_ps[from..to], |i, v| {
-                    for (acc, x) in values.iter_mut().zip(v) {
-                        acc[from + i] += x;
-                    }
-                });
+                if gap_sums.is_empty() {
+                    gap_sums = o.gaps.iter().map(|&(from, to, t0, _)| (from, to, PairSums::new(nobs, t0))).collect();
+                }
+                for ((_, _, sums), (_, _, _, p)) in gap_sums.iter_mut().zip(&o.gaps) {
+                    sums.add_pairs(o.weight, &p.diag, &p.pairs, &lid, &o.ops.omega);
+                }
+                let fin = final_sums.get_or_insert_with(|| PairSums::new(nobs, o.final_pairs.0));
+                fin.add_pairs(o.weight, &o.final_pairs.1.diag, &o.final_pairs.1.pairs, &lid, &o.ops.omega);
+                reports.push(o.report);
             }
         }
-        let t_end = outcomes.first().map(|o| o.final_pairs.0).unwrap_or(t_first);
-        let final_sums = merge(t_end, &|o: &TopOutcome| &o.final_pairs.1);
+        for (from, to, sums) in &gap_sums {
+            sums.eval_series(&times_ps[*from..*to], |i, v| {
+                for (acc, x) in values.iter_mut().zip(v) {
+                    acc[from + i] += x;
+                }
+            });
+        }
+        let final_sums = final_sums.unwrap_or_else(|| PairSums::new(nobs, t_first));
         let statics = final_sums.statics();
         let align = self.top.alignment_axis.index();
         let trace = Trace {
@@ -367,7 +384,7 @@ impl TopSolver {
             trace,
             permanent_cos2: statics[align],
             permanent_cos2_2d: if with_2d { statics[AXES] } else { 0.0 },
-            blocks: outcomes.into_iter().map(|o| o.report).collect(),
+            blocks: reports,
             events,
             final_sums: FreeSums::Pairs { sums: final_sums, cos2: align, abs: with_2d.then_some(AXES) },
             permanent_cos: None,
