@@ -324,14 +324,14 @@ impl TopSolver {
         let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
         let nobs = AXES + usize::from(with_2d);
         let mut values = vec![vec![0.0; times_ps.len()]; nobs];
-        // Blocks run in parallel a few at a time; each group's coherences merge into the running sums in
-        // block order and are then dropped, so memory holds a few blocks' coefficients, not all of them,
-        // and the sums do not depend on thread timing.
+        // Blocks run in parallel in groups (eight per thread, enough to balance the threads); each group's
+        // coherences merge into the running sums in block order and are then dropped, so memory holds one
+        // group's coefficients, not every block's, and the sums do not depend on thread timing.
         let mut ids: HashMap<(TopSym, i64, usize), u32> = HashMap::new();
         let mut gap_sums: Vec<(usize, usize, PairSums)> = vec![];
         let mut final_sums: Option<PairSums> = None;
         let mut reports = vec![];
-        let group = 2 * rayon::current_num_threads().max(1);
+        let group = 8 * rayon::current_num_threads().max(1);
         for blocks in self.ensemble.blocks.chunks(group) {
             let outcomes: Vec<TopOutcome> =
                 blocks.par_iter().map(|bp| self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach)).collect::<Result<Vec<_>>>()?;
