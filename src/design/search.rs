@@ -222,7 +222,7 @@ impl<'a> Evaluator<'a> {
                 let times = goal.times(t_last);
                 let parts = &sums[i * per..(i + 1) * per];
                 let batched = match parts.iter().map(|p| p.as_ref()).collect::<Option<Vec<_>>>() {
-                    Some(ps) if times.first().is_some_and(|&t| t >= ps[0].t0_ps) => {
+                    Some(ps) if times.first().is_some_and(|&t| t >= ps[0].t0_ps) && ps.iter().all(|p| ps[0].compatible(p)) => {
                         let mut total = ps[0].clone();
                         total.scale(nodes[0].1);
                         for (p, &(_, w)) in ps.iter().zip(&nodes).skip(1) {
