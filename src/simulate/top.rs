@@ -208,6 +208,18 @@ fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> Bloc
     BlockPairs { diag, pairs }
 }
 
+/// The scenario key of the orienting field in `field` that a top refuses: the static field, else the
+/// two-colour pulses, else the terahertz pulses.
+fn polar_field_key(field: &FieldModel) -> &'static str {
+    if field.static_field.is_some() {
+        "static_field"
+    } else if !field.two_colour.is_empty() {
+        "two_colour"
+    } else {
+        "terahertz"
+    }
+}
+
 /// Operators cached across runs stay below this many bytes (the rest are rebuilt when needed).
 const OPS_CACHE_BYTES: usize = 2 << 30;
 
@@ -278,15 +290,8 @@ impl TopSolver {
     /// Run `field` and sample the observables at `times_ps` (ascending).
     pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
         if field.is_polar() {
-            let which = if field.static_field.is_some() {
-                "static_field"
-            } else if !field.two_colour.is_empty() {
-                "two_colour"
-            } else {
-                "terahertz"
-            };
             return Err(Error::input(
-                which,
+                polar_field_key(field),
                 "orienting fields are supported for linear molecules only so far; symmetric and asymmetric tops take laser pulses",
             ));
         }
@@ -535,14 +540,10 @@ impl super::Solver {
     pub(super) fn run_polar_top(&self, solver: &TopSolver, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
         let top = &solver.top;
         if top.kind() == crate::molecule::top::TopKind::Asymmetric {
-            let which = if field.static_field.is_some() {
-                "static_field"
-            } else if !field.terahertz.is_empty() {
-                "terahertz"
-            } else {
-                "two_colour"
-            };
-            return Err(Error::input(which, "orienting fields on asymmetric tops are not supported yet; symmetric tops and linear molecules take them"));
+            return Err(Error::input(
+                polar_field_key(field),
+                "orienting fields on asymmetric tops are not supported yet; symmetric tops and linear molecules take them",
+            ));
         }
         let frame = TopFrame::new(top, true);
         let (items, events) = self.polar_schedule(field);
