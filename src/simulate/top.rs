@@ -292,7 +292,7 @@ impl TopSolver {
         if field.is_polar() {
             return Err(Error::input(
                 polar_field_key(field),
-                "orienting fields are supported for linear molecules only so far; symmetric and asymmetric tops take laser pulses",
+                "orienting fields on asymmetric tops are not supported yet; linear molecules and symmetric tops take them",
             ));
         }
         let total = self.strengths(field);
