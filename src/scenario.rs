@@ -2,7 +2,7 @@
 //! Parsed field by field so that every error names the field and the expected unit or range.
 
 use crate::error::{Error, Result, require_non_negative, require_positive};
-use crate::field::{FieldModel, Pulse, PulseShape, StaticField, TerahertzPulse, TerahertzWaveform, TwoColourPulse};
+use crate::field::{FieldModel, Pulse, PulsePolarization, PulseShape, StaticField, TerahertzPulse, TerahertzWaveform, TwoColourPulse};
 use crate::goal::{Goal, parse_goal};
 use crate::input::{Fields, join, parse_json, type_name};
 use crate::molecule::Molecule;
@@ -507,8 +507,21 @@ fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {
         Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
     };
     let rise_fs = f.opt_f64("rise_fs", "fs")?;
+    let polarization = match f.opt_value("polarization") {
+        None => PulsePolarization::default(),
+        Some(v) => {
+            let at = join(path, "polarization");
+            let mut g = Fields::new(v, &at)?;
+            let angle_deg = g.opt_f64("angle_deg", "degrees")?.unwrap_or(0.0);
+            let ellipticity = g.opt_f64("ellipticity", "minor-to-major field ratio, 0 to 1")?.unwrap_or(0.0);
+            g.finish()?;
+            let pol = PulsePolarization { angle_deg, ellipticity };
+            pol.validate(&at)?;
+            pol
+        }
+    };
     f.finish()?;
-    let mut p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2: 0.0, shape, rise_fs };
+    let mut p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2: 0.0, shape, rise_fs, polarization };
     let optics = match (intensity, energy) {
         (Some(i), None) => {
             let given = [("waist_um", waist_um), ("beam_radius_mm", beam_radius_mm), ("wavelength_nm", wavelength_nm), ("focal_length_mm", focal_length_mm)];

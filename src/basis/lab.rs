@@ -111,6 +111,73 @@ pub fn product_element(o1: &LabOperator, o2: &LabOperator, bra: (i64, i64, i64),
     v
 }
 
+/// Clebsch–Gordan coefficient ⟨j1 m1 j2 m2|j m⟩ from the 3j symbol (Condon–Shortley phases).
+pub fn clebsch_gordan(j1: i64, m1: i64, j2: i64, m2: i64, j: i64, m: i64) -> f64 {
+    let phase = if (j1 - j2 + m).rem_euclid(2) == 0 { 1.0 } else { -1.0 };
+    phase * ((2 * j + 1) as f64).sqrt() * three_j(j1, j2, j, m1, m2, -m)
+}
+
+/// Spherical coefficients of the product of two rank-1 tensors with components u(p), v(p):
+/// Σ_{p+p'=P} u(p) v(p') ⟨1 p 1 p'|r P⟩, indexed [r][P + 2] for r = 0, 1, 2.
+fn couple(u: [Complex64; 3], v: [Complex64; 3]) -> [[Complex64; 5]; 3] {
+    let mut out = [[Complex64::new(0.0, 0.0); 5]; 3];
+    for (r, row) in out.iter_mut().enumerate() {
+        for p in -1i64..=1 {
+            for pp in -1i64..=1 {
+                let big = p + pp;
+                if big.abs() > r as i64 {
+                    continue;
+                }
+                row[(big + 2) as usize] += u[(p + 1) as usize] * v[(pp + 1) as usize] * clebsch_gordan(1, p, 1, pp, r as i64, big);
+            }
+        }
+    }
+    out
+}
+
+/// Lab-frame factor of Φ_{F₁g} Φ_{F₂g}: with [`body_square`] it gives
+/// Φ_{F₁g} Φ_{F₂g} = Σ_r Σ_{P,Q} lab[r][P+2] · body[r][Q+2] · D^r_PQ(Ω)* (Clebsch–Gordan series).
+pub fn lab_pair(f1: LabAxis, f2: LabAxis) -> [[Complex64; 5]; 3] {
+    let idx = |f: LabAxis| match f {
+        LabAxis::X => 0,
+        LabAxis::Y => 1,
+        LabAxis::Z => 2,
+    };
+    couple(spherical(idx(f1)), spherical(idx(f2)))
+}
+
+/// Body-frame factor of Φ_{Fg}² for the body axis at frame position `body` (0 = z, 1 = x, 2 = y); see [`lab_pair`].
+pub fn body_square(body: usize) -> [[Complex64; 5]; 3] {
+    let b = spherical(match body {
+        0 => 2,
+        1 => 0,
+        _ => 1,
+    });
+    let c = [b[0].conj(), b[1].conj(), b[2].conj()];
+    couple(c, c)
+}
+
+/// The operator Σ_r Σ_{P,Q} lab[r][P+2] body[r][Q+2] D^r_PQ* as a [`LabOperator`].
+pub fn factored_operator(lab: &[[Complex64; 5]; 3], body: &[[Complex64; 5]; 3]) -> LabOperator {
+    let mut op = LabOperator { identity: 0.0, terms: vec![] };
+    for r in 0..3usize {
+        for p in 0..5usize {
+            for q in 0..5usize {
+                let c = lab[r][p] * body[r][q];
+                if c.norm() < 1e-15 {
+                    continue;
+                }
+                if r == 0 {
+                    op.identity += c.re;
+                } else {
+                    op.terms.push((r as i64, p as i64 - 2, q as i64 - 2, c));
+                }
+            }
+        }
+    }
+    op
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -184,6 +251,32 @@ mod tests {
             }
         }
         assert!(checked > 5000);
+    }
+
+    #[test]
+    fn rank_decomposition_of_squared_cosines_matches_the_product_over_intermediate_states() {
+        // The Clebsch–Gordan series (lab ⊗ body factors) against the explicit sum over intermediate
+        // states, itself checked against Euler-angle quadrature above; all lab pairs in the XZ plane
+        // and Y, every body axis, states up to J = 3.
+        let s = states(3);
+        let pairs = [(LabAxis::Z, LabAxis::Z), (LabAxis::X, LabAxis::X), (LabAxis::Y, LabAxis::Y), (LabAxis::X, LabAxis::Z)];
+        for (f1, f2) in pairs {
+            for body in 0..3 {
+                let op = factored_operator(&lab_pair(f1, f2), &body_square(body));
+                let (a, b) = (LabOperator::direction_cosine(f1, body), LabOperator::direction_cosine(f2, body));
+                for &bra in &s {
+                    for &ket in &s {
+                        let want = product_element(&a, &b, bra, ket);
+                        let got = op.element(bra, ket);
+                        assert!((got - want).norm() < 1e-12, "{f1:?}{f2:?} body {body} {bra:?} {ket:?}: {got} vs {want}");
+                    }
+                }
+            }
+        }
+        // Textbook values: ⟨1 1 1 −1|0 0⟩ = 1/√3, ⟨1 1 1 0|2 1⟩ = 1/√2, ⟨1 0 1 0|2 0⟩ = √(2/3) (Condon–Shortley).
+        assert!((clebsch_gordan(1, 1, 1, -1, 0, 0) - 1.0 / 3f64.sqrt()).abs() < 1e-15);
+        assert!((clebsch_gordan(1, 1, 1, 0, 2, 1) - 0.5f64.sqrt()).abs() < 1e-15);
+        assert!((clebsch_gordan(1, 0, 1, 0, 2, 0) - (2.0f64 / 3.0).sqrt()).abs() < 1e-15);
     }
 
     #[test]

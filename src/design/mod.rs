@@ -218,7 +218,7 @@ impl DesignSpace {
         let mut pulses: Vec<Pulse> = (0..n)
             .map(|k| {
                 t += delay[k];
-                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs }
+                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, polarization: Default::default() }
             })
             .collect();
         if let Some(budget) = self.max_total_fluence_jcm2 {
@@ -348,6 +348,7 @@ impl DesignSpace {
                         peak_intensity_wcm2: self.intensity_bounds(k).min,
                         shape: self.shape,
                         rise_fs: self.rise_fs,
+                        polarization: Default::default(),
                     };
                     fluence_jcm2(&p)
                 })
@@ -593,7 +594,7 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
         .ok_or_else(|| Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name)))?;
     let mut largest_cap: f64 = 0.0;
     for (k, pb) in space.pulses.iter_mut().enumerate() {
-        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs };
+        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, polarization: Default::default() };
         let (mut lo, mut hi) = (1e8f64.ln(), 1e17f64.ln());
         for _ in 0..60 {
             let mid = 0.5 * (lo + hi);
@@ -725,7 +726,7 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
     // Check each pulse shape once through the pulse validator (rise vs FWHM and so on).
     for (k, p) in space.pulses.iter().enumerate() {
         for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
-            let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs };
+            let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs, polarization: Default::default() };
             pulse.validate(&format!("{path}.each[{k}]"))?;
         }
     }

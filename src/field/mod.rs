@@ -60,12 +60,52 @@ pub struct Pulse {
     /// Edge duration (0–100 %) of a flat-top pulse, fs; ignored for other shapes.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub rise_fs: Option<f64>,
+    /// Polarization in the XZ plane (default: linear along Z).
+    #[serde(default, skip_serializing_if = "PulsePolarization::is_along_z")]
+    pub polarization: PulsePolarization,
+}
+
+/// Polarization of a laser pulse travelling along Y: the major axis of the field ellipse lies in the XZ
+/// plane at `angle_deg` from Z towards X; the minor axis (along the other XZ direction) carries
+/// `ellipticity` times the major field amplitude (0 linear, 1 circular). The intensity is the total of both.
+#[derive(Debug, Clone, Copy, PartialEq, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PulsePolarization {
+    /// Angle of the major axis from Z towards X, degrees.
+    #[serde(default)]
+    pub angle_deg: f64,
+    /// Minor-to-major field amplitude ratio, 0..=1.
+    #[serde(default)]
+    pub ellipticity: f64,
+}
+
+impl PulsePolarization {
+    /// True for linear polarization along Z (angle a multiple of 180°, no ellipticity): the field is symmetric about Z.
+    pub fn is_along_z(&self) -> bool {
+        self.ellipticity == 0.0 && (self.angle_deg / 180.0).fract() == 0.0
+    }
+
+    /// True when the field ellipse keeps Z and X as two-fold axes (angle a multiple of 90°).
+    pub fn keeps_xz_axes(&self) -> bool {
+        (self.angle_deg / 90.0).fract() == 0.0
+    }
+
+    /// Check the angle and ellipticity; errors name the field (prefixed by `path`).
+    pub fn validate(&self, path: &str) -> Result<()> {
+        if !self.angle_deg.is_finite() {
+            return Err(Error::input(format!("{path}.angle_deg"), format!("expected a finite angle in degrees, got {}", self.angle_deg)));
+        }
+        if !self.ellipticity.is_finite() || !(0.0..=1.0).contains(&self.ellipticity) {
+            return Err(Error::input(format!("{path}.ellipticity"), format!("expected a minor-to-major field ratio between 0 and 1, got {}", self.ellipticity)));
+        }
+        Ok(())
+    }
 }
 
 impl Pulse {
     /// A Gaussian pulse.
     pub fn gaussian(center_ps: f64, fwhm_fs: f64, peak_intensity_wcm2: f64) -> Pulse {
-        Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape: PulseShape::Gaussian, rise_fs: None }
+        Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape: PulseShape::Gaussian, rise_fs: None, polarization: PulsePolarization::default() }
     }
 
     /// FWHM in ps.
@@ -82,6 +122,7 @@ impl Pulse {
     pub fn validate(&self, path: &str) -> Result<()> {
         require_finite(&format!("{path}.center_ps"), self.center_ps, "ps")?;
         require_positive(&format!("{path}.fwhm_fs"), self.fwhm_fs, "fs")?;
+        self.polarization.validate(&format!("{path}.polarization"))?;
         if self.fwhm_fs > 1e7 {
             return Err(Error::input(format!("{path}.fwhm_fs"), "expected at most 1e7 fs (10 ns) for a laser pulse"));
         }
@@ -305,7 +346,7 @@ pub struct TwoColourPulse {
 impl TwoColourPulse {
     /// The envelope as a pulse of unit peak intensity (for shape, support and areas).
     pub fn envelope_pulse(&self) -> Pulse {
-        Pulse { center_ps: self.center_ps, fwhm_fs: self.fwhm_fs, peak_intensity_wcm2: 1.0, shape: self.shape, rise_fs: None }
+        Pulse { center_ps: self.center_ps, fwhm_fs: self.fwhm_fs, peak_intensity_wcm2: 1.0, shape: self.shape, rise_fs: None, polarization: PulsePolarization::default() }
     }
 
     /// Check the element; errors name the field under `path`.
@@ -454,7 +495,12 @@ impl FieldModel {
         FieldModel { pulses, ..Default::default() }
     }
 
-    /// True if any element breaks the head–tail symmetry (and with it the parity of J).
+    /// True if every laser pulse is linearly polarized along Z (the field is symmetric about Z; M is conserved).
+    pub fn is_symmetric_about_z(&self) -> bool {
+        self.pulses.iter().all(|p| p.peak_intensity_wcm2 == 0.0 || p.polarization.is_along_z())
+    }
+
+    /// True if some field element breaks head–tail symmetry (static field, two-colour or terahertz pulse).
     pub fn is_polar(&self) -> bool {
         self.static_field.map(|s| s.strength_kv_cm != 0.0).unwrap_or(false) || !self.two_colour.is_empty() || !self.terahertz.is_empty()
     }
@@ -592,7 +638,7 @@ mod tests {
     #[test]
     fn shapes_have_unit_peak_half_max_at_fwhm_and_right_area() {
         for shape in [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop, PulseShape::Truncated] {
-            let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0) };
+            let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0), polarization: PulsePolarization::default() };
             assert!((p.envelope(1.0) - 1.0).abs() < 1e-15);
             // Half maximum at ±FWHM/2 (definition of FWHM); a truncated pulse only on its rising side.
             if shape != PulseShape::Truncated {

@@ -557,6 +557,9 @@ pub struct Trace {
     pub cos2_b: Vec<f64>,
     /// Tops: ⟨cos²θ⟩ of the body c axis with Z; empty for linear molecules.
     pub cos2_c: Vec<f64>,
+    /// Fields not symmetric about Z: ⟨cos²⟩ of each body axis with each lab axis, named `cos2_<lab><body>`
+    /// (e.g. `cos2_Xb`; `cos2_X` for the axis of a linear molecule); empty otherwise.
+    pub lab_axes: Vec<(String, Vec<f64>)>,
 }
 
 /// Location of an extremum of a sampled series.

@@ -110,6 +110,18 @@ impl PairSums {
         }
     }
 
+    /// Add Σ over one level's own sublevels (a time-independent term) to observable `o`.
+    pub fn add_diagonal(&mut self, o: usize, value: f64) {
+        self.diag[o] += value;
+    }
+
+    /// Add the coefficient C = ρ_ab O_ba of levels a and b (ids with angular frequencies, rad/ps) to observable `o`.
+    pub fn add_level_pair(&mut self, o: usize, a: (u32, f64), b: (u32, f64), c: (f64, f64)) {
+        self.level(a.0, a.1);
+        self.level(b.0, b.1);
+        self.obs[o].add(a.0, b.0, c);
+    }
+
     /// Values of every observable at time t (ps).
     pub fn eval(&self, t_ps: f64) -> Vec<f64> {
         let z = self.phases(t_ps);

@@ -39,6 +39,23 @@ impl Csr {
         Csr { n, row_ptr, col, val }
     }
 
+    /// From compressed rows: `row_ptr` (n + 1 offsets), column indices and values.
+    pub fn from_parts(n: usize, row_ptr: Vec<usize>, col: Vec<usize>, val: Vec<f64>) -> Csr {
+        assert!(row_ptr.len() == n + 1 && col.len() == val.len() && row_ptr[n] == val.len(), "Csr::from_parts: inconsistent rows");
+        Csr { n, row_ptr, col, val }
+    }
+
+    /// The matrix as a dense one (for checks).
+    pub fn to_dense(&self) -> DMatrix<f64> {
+        let mut m = DMatrix::zeros(self.n, self.n);
+        for r in 0..self.n {
+            for e in self.row_ptr[r]..self.row_ptr[r + 1] {
+                m[(r, self.col[e])] += self.val[e];
+            }
+        }
+        m
+    }
+
     /// Number of stored elements.
     pub fn nnz(&self) -> usize {
         self.val.len()

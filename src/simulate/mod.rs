@@ -8,6 +8,7 @@ use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::goal::{Observable, Score};
 use crate::molecule::Molecule;
+use crate::molecule::top::BodyAxis;
 use crate::observe::{BlockSums, DenseSums, FreeSums, LevelSums, Trace, score_goal};
 use crate::optics::focal::FocalAverage;
 use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
@@ -19,6 +20,7 @@ use rayon::prelude::*;
 
 pub mod batch;
 pub mod top;
+pub mod lab_frame;
 use serde::Serialize;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex};
@@ -105,6 +107,8 @@ pub struct Solver {
     cache: Mutex<HashMap<(u32, u32, usize, bool), Arc<BlockOps>>>,
     /// The solver for symmetric and asymmetric tops (None for linear molecules, whose ensemble is `ensemble`).
     pub top: Option<top::TopSolver>,
+    /// The all-M solver for fields not symmetric about Z, built on first use.
+    lab: std::sync::OnceLock<lab_frame::LabSolver>,
 }
 
 /// Per-block result before summing.
@@ -124,10 +128,10 @@ impl Solver {
         if let Some(t) = &molecule.top {
             let top = top::TopSolver::new(t, temperature_k, settings)?;
             let ensemble = ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, blocks: vec![] };
-            return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: Some(top) });
+            return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: Some(top), lab: Default::default() });
         }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
-        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: None })
+        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() })
     }
 
     /// A linear-molecule view of a symmetric top along its figure axis (B, α∥ − α⊥ with sign, dipole), used
@@ -139,7 +143,7 @@ impl Solver {
         m.dipole_debye = self.molecule.dipole_debye;
         m.ionization_energy_ev = self.molecule.ionization_energy_ev;
         let ensemble = ThermalEnsemble { temperature_k: self.ensemble.temperature_k, j_max: self.ensemble.j_max, discarded_population: 0.0, blocks: vec![] };
-        Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), top: None }
+        Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() }
     }
 
     /// Population left out of the thermal ensemble by its truncation.
@@ -254,11 +258,81 @@ impl Solver {
         events
     }
 
+    /// Run `field` through the all-M solver (any polarization in the XZ plane) and sample the direction-cosine
+    /// averages ⟨cos²⟩ of each body axis with each lab axis at `times_ps` (ascending). `run` takes this path
+    /// by itself when some pulse is not polarized along Z; called directly it also runs Z-polarized fields.
+    pub fn run_lab_frame(&self, field: &FieldModel, times_ps: &[f64]) -> Result<RunResult> {
+        if times_ps.windows(2).any(|w| w[1] < w[0]) {
+            return Err(Error::input("window", "sample times must be ascending"));
+        }
+        if field.is_polar() {
+            return Err(Error::input(
+                "pulses",
+                "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses; expected polarization along Z (angle_deg 0, ellipticity 0)",
+            ));
+        }
+        let (events, reach) = match &self.top {
+            Some(t) => (t.schedule(field), t.reach(field)?),
+            None => {
+                self.check_strength(field)?;
+                (self.schedule(field), 2 * self.extra_levels(field) as i64)
+            }
+        };
+        let lab = self.lab.get_or_init(|| {
+            let rotor = match &self.top {
+                Some(t) => lab_frame::LabRotor::from_top(t),
+                None => lab_frame::LabRotor::from_linear(&self.molecule, &self.ensemble),
+            };
+            lab_frame::LabSolver::new(rotor, self.settings)
+        });
+        let run = lab.run(field, &events, reach, times_ps)?;
+        let frame = &lab.rotor.frame;
+        let (names, positions): (Vec<&str>, Vec<usize>) = if lab.rotor.linear {
+            (vec![""], vec![0])
+        } else {
+            (vec!["a", "b", "c"], [BodyAxis::A, BodyAxis::B, BodyAxis::C].iter().map(|&a| frame.position(a)).collect())
+        };
+        let mut lab_axes = vec![];
+        for (f, lab_name) in ["X", "Y", "Z"].iter().enumerate() {
+            for (name, &pos) in names.iter().zip(&positions) {
+                lab_axes.push((format!("cos2_{lab_name}{name}"), run.values[f][pos].clone()));
+            }
+        }
+        let align_pos = match &self.top {
+            Some(t) => frame.position(t.top.alignment_axis),
+            None => 0,
+        };
+        let body = |i: usize| if lab.rotor.linear { vec![] } else { run.values[2][positions[i]].clone() };
+        let trace = Trace {
+            times_ps: times_ps.to_vec(),
+            cos2: run.values[2][align_pos].clone(),
+            cos2_a: body(0),
+            cos2_b: body(1),
+            cos2_c: body(2),
+            lab_axes,
+            ..Default::default()
+        };
+        let statics = run.final_sums.statics();
+        let align = 6 + align_pos;
+        Ok(RunResult {
+            trace,
+            permanent_cos2: statics[align],
+            permanent_cos2_2d: 0.0,
+            blocks: run.blocks,
+            events,
+            final_sums: FreeSums::Pairs { sums: run.final_sums, cos2: align, abs: None },
+            permanent_cos: None,
+        })
+    }
+
     /// Run the field model and sample ⟨cos²θ⟩ (and ⟨cos²θ_2D⟩ if `with_2d`) at `times_ps` (ascending).
     /// Fields that break the parity of J (or `both_parities`) also give ⟨cosθ⟩ and ⟨cos³θ⟩.
     pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
+        }
+        if !field.is_symmetric_about_z() {
+            return self.run_lab_frame(field, times_ps);
         }
         if let Some(t) = &self.top {
             if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric {

@@ -287,14 +287,9 @@ impl TopSolver {
             .sum()
     }
 
-    /// Run `field` and sample the observables at `times_ps` (ascending).
-    pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
-        if field.is_polar() {
-            return Err(Error::input(
-                polar_field_key(field),
-                "orienting fields on asymmetric tops are not supported yet; linear molecules and symmetric tops take them",
-            ));
-        }
+    /// Room (in J) above the thermal levels that the pulses of `field` need; refuses fields that would
+    /// need a basis beyond `MAX_TOP_BASIS_J`.
+    pub(super) fn reach(&self, field: &FieldModel) -> Result<i64> {
         let total = self.strengths(field);
         let reach = (1.35 * total).ceil() as i64 + 10;
         if !total.is_finite() || self.ensemble.j_max + reach > MAX_TOP_BASIS_J {
@@ -305,6 +300,11 @@ impl TopSolver {
                 ),
             ));
         }
+        Ok(reach)
+    }
+
+    /// Kicks (kick model) or finite intervals with their default steps, in time order.
+    pub(super) fn schedule(&self, field: &FieldModel) -> Vec<Event> {
         let da = self.top.delta_alpha_a3();
         let mut events: Vec<Event> = vec![];
         if self.settings.method == Method::Kick {
@@ -326,6 +326,19 @@ impl TopSolver {
             }
         }
         events.sort_by(|a, b| a.span().0.total_cmp(&b.span().0));
+        events
+    }
+
+    /// Run `field` and sample the observables at `times_ps` (ascending).
+    pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
+        if field.is_polar() {
+            return Err(Error::input(
+                polar_field_key(field),
+                "orienting fields on asymmetric tops are not supported yet; linear molecules and symmetric tops take them",
+            ));
+        }
+        let reach = self.reach(field)?;
+        let events = self.schedule(field);
         let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
         let nobs = AXES + usize::from(with_2d);
         let mut values = vec![vec![0.0; times_ps.len()]; nobs];
@@ -588,7 +601,7 @@ impl super::Solver {
         let axis = |i: usize| if i == fig { fig2.clone() } else { across.clone() };
         let align = top.alignment_axis.index();
         let perm_align = if align == fig { permanent[0] } else { 0.5 * (1.0 - permanent[0]) };
-        let trace = Trace { times_ps: times.to_vec(), cos2: axis(align), cos2_2d: abs_align, cos, cos3, cos2_a: axis(0), cos2_b: axis(1), cos2_c: axis(2) };
+        let trace = Trace { times_ps: times.to_vec(), cos2: axis(align), cos2_2d: abs_align, cos, cos3, cos2_a: axis(0), cos2_b: axis(1), cos2_c: axis(2), lab_axes: vec![] };
         let mut sums = crate::observe::LevelSums::new(vec![], f64::INFINITY, false);
         sums.cos2_static = perm_align;
         sums.abscos_static = permanent[1];
