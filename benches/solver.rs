@@ -9,7 +9,7 @@
 //! KICKTRAIN_BENCH_JOBS picks jobs by number, e.g. `KICKTRAIN_BENCH_JOBS=2 cargo bench` for the
 //! designer's kick-model throughput alone.
 
-use kicktrain::field::{FieldModel, Pulse};
+use kicktrain::field::{FieldModel, Pulse, PulsePolarization};
 use kicktrain::molecule::Molecule;
 use kicktrain::scenario::SolverSettings;
 use kicktrain::simulate::Solver;
@@ -112,8 +112,8 @@ fn main() {
     if !std::env::args().any(|a| a == "--bench") {
         return;
     }
-    // KICKTRAIN_BENCH_JOBS picks jobs by number (comma-separated, default all four).
-    let jobs = std::env::var("KICKTRAIN_BENCH_JOBS").unwrap_or_else(|_| "1,2,3,4".into());
+    // KICKTRAIN_BENCH_JOBS picks jobs by number (comma-separated, default all five).
+    let jobs = std::env::var("KICKTRAIN_BENCH_JOBS").unwrap_or_else(|_| "1,2,3,4,5".into());
     let wanted = |n: &str| jobs.split(',').any(|j| j.trim() == n);
     if wanted("1") {
         peer_job();
@@ -126,6 +126,47 @@ fn main() {
     }
     if wanted("4") {
         asymmetric_top();
+    }
+    if wanted("5") {
+        three_axis();
+    }
+}
+
+/// Job 5 (3D alignment): the asymmetric top of job 4, one 1 ps pulse polarized elliptically (major axis
+/// Z, ellipticity 0.5), trace 0–400 ps every 200 fs, at the temperatures in KICKTRAIN_BENCH_3D_K
+/// (default "1") and peak intensities in KICKTRAIN_BENCH_3D_I (W/cm², default "5e11"); prints where the
+/// time goes.
+fn three_axis() {
+    let top = kicktrain::molecule::top::Top::rigid(0.19, 0.025, 0.022, [20.0, 12.0, 9.0]);
+    let mol = Molecule::from_top("benchmark top", top, 0.0, None);
+    let times: Vec<f64> = (0..=2000).map(|i| i as f64 * 0.2).collect();
+    let list = |key: &str, default: &str| -> Vec<f64> {
+        std::env::var(key).unwrap_or_else(|_| default.into()).split(',').filter_map(|x| x.trim().parse::<f64>().ok()).collect()
+    };
+    println!("asymmetric top (0.19, 0.025, 0.022) cm⁻¹, one elliptical (0.5) 1 ps pulse, 0–400 ps every 200 fs, all nine ⟨cos²⟩");
+    for intensity in list("KICKTRAIN_BENCH_3D_I", "5e11") {
+        let pulse = Pulse { polarization: PulsePolarization { angle_deg: 0.0, ellipticity: 0.5 }, ..Pulse::gaussian(0.0, 1000.0, intensity) };
+        let field = FieldModel { pulses: vec![pulse], ..Default::default() };
+        for t in list("KICKTRAIN_BENCH_3D_K", "1") {
+            let t0 = Instant::now();
+            let solver = Solver::new(&mol, t, SolverSettings::default()).unwrap();
+            let r = solver.run(&field, &times, false).unwrap();
+            let secs = t0.elapsed().as_secs_f64();
+            let tm = solver.lab_timing().unwrap_or_default();
+            let col = |n: &str| r.trace.lab_axes.iter().find(|c| c.0 == n).map(|c| c.1.iter().cloned().fold(0.0, f64::max)).unwrap_or(f64::NAN);
+            let j = r.blocks.iter().map(|b| b.j_max).max().unwrap_or(0);
+            let size = r.blocks.iter().map(|b| b.size).max().unwrap_or(0);
+            println!(
+                "  {intensity:.0e} W/cm², {t} K: {secs:.1} s ({} initial states, largest block {size} states up to J = {j}); thread-seconds: propagation {:.1}, observables {:.1}; coherence sums {:.1} s; peaks ⟨cos²θ_Za⟩ {:.4}, ⟨cos²θ_Xb⟩ {:.4}, ⟨cos²θ_Yc⟩ {:.4}",
+                solver.initial_states(),
+                tm.propagate_cpu_s,
+                tm.observe_cpu_s,
+                tm.sums_s,
+                col("cos2_Za"),
+                col("cos2_Xb"),
+                col("cos2_Yc")
+            );
+        }
     }
 }
 

@@ -732,6 +732,27 @@ mod tests {
     }
 
     #[test]
+    fn polarization_reads_round_trips_and_refuses_bad_values() {
+        let text = GOOD.replace("\"fwhm_fs\":50", "\"fwhm_fs\":50,\"polarization\":{\"angle_deg\":90,\"ellipticity\":0.5}");
+        let s = Scenario::from_json_str(&text, "x").unwrap();
+        assert_eq!(s.field.pulses[0].polarization, PulsePolarization { angle_deg: 90.0, ellipticity: 0.5 });
+        assert!(!s.field.is_symmetric_about_z());
+        assert_eq!(Scenario::from_value(&s.to_value(), "").unwrap(), s);
+        for bad in ["1.5", "-0.1"] {
+            let e = err(&text.replace("\"ellipticity\":0.5", &format!("\"ellipticity\":{bad}")));
+            assert!(e.starts_with("pulses[0].polarization.ellipticity: expected a minor-to-major field ratio between 0 and 1"), "{e}");
+        }
+        assert!(err(&text.replace("\"angle_deg\":90", "\"angle_deg\":\"x\"")).starts_with("pulses[0].polarization.angle_deg: expected a number"));
+        assert!(err(&text.replace("\"angle_deg\":90", "\"angle\":90")).starts_with("pulses[0].polarization.angle: unknown key"));
+        let mut p = s.field.pulses[0].clone();
+        p.polarization.angle_deg = f64::NAN;
+        assert!(p.validate("pulses[0]").unwrap_err().to_string().starts_with("pulses[0].polarization.angle_deg: expected a finite angle"));
+        // Along Z (any multiple of 180°) the field stays symmetric about Z.
+        let z = GOOD.replace("\"fwhm_fs\":50", "\"fwhm_fs\":50,\"polarization\":{\"angle_deg\":180}");
+        assert!(Scenario::from_json_str(&z, "x").unwrap().field.is_symmetric_about_z());
+    }
+
+    #[test]
     fn errors_name_the_field() {
         assert!(err(&GOOD.replace("\"temperature_k\":300", "\"temperature_k\":-1")).starts_with("temperature_k:"));
         assert!(err(&GOOD.replace("\"fwhm_fs\":50", "\"fwhm_fs\":0")).starts_with("pulses[0].fwhm_fs:"));

@@ -99,6 +99,9 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
             json!({"peak_cos2_a": extremum(tr.max_after(&tr.cos2_a, after)), "peak_cos2_b": extremum(tr.max_after(&tr.cos2_b, after)),
                 "peak_cos2_c": extremum(tr.max_after(&tr.cos2_c, after))})
         },
+        "lab_axes": if tr.lab_axes.is_empty() { Value::Null } else {
+            Value::Object(tr.lab_axes.iter().map(|(name, series)| (format!("peak_{name}"), extremum(tr.max_after(series, after)))).collect())
+        },
         "temperature_k": s.temperature_k,
         "pulses": pulses,
         "after_last_pulse_from_ps": if after.is_finite() { json!(after) } else { Value::Null },
@@ -158,6 +161,9 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     if !trace.cos.is_empty() {
         cols.push(("cos", &trace.cos));
         cols.push(("cos3", &trace.cos3));
+    }
+    for (name, series) in &trace.lab_axes {
+        cols.push((name.as_str(), series.as_slice()));
     }
     cols.extend_from_slice(extra);
     let extra = &cols[..];

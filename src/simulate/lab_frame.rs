@@ -722,8 +722,23 @@ pub struct LabRun {
     pub blocks: Vec<BlockReport>,
 }
 
+/// Where the time of the last all-M run went.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct LabTiming {
+    /// Thread-seconds in kicks and free evolution.
+    pub propagate_cpu_s: f64,
+    /// Thread-seconds in observables: in-pulse samples and the coherence coefficients of the states.
+    pub observe_cpu_s: f64,
+    /// Wall seconds merging the coherence sums and evaluating them at the sample times.
+    pub sums_s: f64,
+    /// Wall seconds of the whole run.
+    pub total_s: f64,
+}
+
 /// What one chunk of initial states returns.
 struct ChunkOutcome {
+    propagate_s: f64,
+    observe_s: f64,
     class: usize,
     weight: f64,
     values: Vec<[f64; 9]>,
@@ -762,12 +777,18 @@ pub struct LabSolver {
     pub rotor: LabRotor,
     settings: SolverSettings,
     cache: Mutex<HashMap<LabBlock, Arc<LabOps>>>,
+    timing: Mutex<LabTiming>,
 }
 
 impl LabSolver {
     /// A solver for `rotor` with `settings`.
     pub fn new(rotor: LabRotor, settings: SolverSettings) -> LabSolver {
-        LabSolver { rotor, settings, cache: Mutex::new(HashMap::new()) }
+        LabSolver { rotor, settings, cache: Mutex::new(HashMap::new()), timing: Mutex::new(LabTiming::default()) }
+    }
+
+    /// Where the time of the last run went.
+    pub fn last_timing(&self) -> LabTiming {
+        *self.timing.lock().expect("timing lock")
     }
 
     fn ops(&self, block: LabBlock) -> Arc<LabOps> {
@@ -834,6 +855,8 @@ impl LabSolver {
                 }
             }
         }
+        let started = std::time::Instant::now();
+        let mut timing = LabTiming::default();
         let (plan, final_from) = sample_plan(events, times_ps);
         let gap_count = plan.iter().flatten().count();
         let mut values = vec![[0.0; 9]; times_ps.len()];
@@ -844,6 +867,8 @@ impl LabSolver {
         for batch in chunks.chunks(group) {
             let outcomes: Vec<ChunkOutcome> = batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first)).collect::<Result<Vec<_>>>()?;
             for o in outcomes {
+                timing.propagate_cpu_s += o.propagate_s;
+                timing.observe_cpu_s += o.observe_s;
                 for (acc, v) in values.iter_mut().zip(&o.values) {
                     for (a, b) in acc.iter_mut().zip(v) {
                         *a += b;
@@ -875,6 +900,7 @@ impl LabSolver {
                 r.edge_population = r.edge_population.max(o.edge);
             }
         }
+        let sums_started = std::time::Instant::now();
         // Field-free stretches: each starts where the previous event ended (or at the first event).
         let mut gap_spans = vec![];
         let mut t_prev = t_first;
@@ -901,6 +927,9 @@ impl LabSolver {
                 values[final_from + i][o] += x;
             }
         });
+        timing.sums_s = sums_started.elapsed().as_secs_f64();
+        timing.total_s = started.elapsed().as_secs_f64();
+        *self.timing.lock().expect("timing lock") = timing;
         let mut out: [[Vec<f64>; 3]; 3] = Default::default();
         for (f, row) in out.iter_mut().enumerate() {
             for (g, series) in row.iter_mut().enumerate() {
@@ -936,6 +965,13 @@ impl LabSolver {
             })
             .collect();
         let pops: Vec<f64> = cols.iter().map(|c| c.3).collect();
+        let chunk_started = std::time::Instant::now();
+        let observe = std::cell::Cell::new(0.0f64);
+        let timed = |f: &mut dyn FnMut()| {
+            let t = std::time::Instant::now();
+            f();
+            observe.set(observe.get() + t.elapsed().as_secs_f64());
+        };
         let class = &self.rotor.classes[ops.block.class];
         let g = class.weight;
         let da = self.rotor.delta_alpha_a3;
@@ -950,7 +986,7 @@ impl LabSolver {
         for (ev, gap) in events.iter().zip(&plan) {
             let (s, e) = ev.span();
             if let Some((_, end)) = gap {
-                gaps.push(ops.coefficients(&state, &pops));
+                timed(&mut || gaps.push(ops.coefficients(&state, &pops)));
                 ti = *end;
             }
             let dt = s - state.t_ps;
@@ -965,7 +1001,7 @@ impl LabSolver {
                 }
                 Event::Finite { pulses, step_ps, .. } => {
                     while ti < times.len() && times[ti] == s {
-                        values[ti] = ops.expect(&state, &pops).map(|v| v * g);
+                        timed(&mut || values[ti] = ops.expect(&state, &pops).map(|v| v * g));
                         ti += 1;
                     }
                     let inside = times[ti..].partition_point(|t| *t <= e);
@@ -997,11 +1033,11 @@ impl LabSolver {
                         }
                     };
                     propagate_finite(&mut state, &ops.omega, &mut kick, e, step, &stops, &breaks, |i, st| {
-                        values[base + i] = ops.expect(st, &pops).map(|v| v * g);
+                        timed(&mut || values[base + i] = ops.expect(st, &pops).map(|v| v * g));
                     });
                     ti += stops.len();
                     if at_end {
-                        values[ti] = ops.expect(&state, &pops).map(|v| v * g);
+                        timed(&mut || values[ti] = ops.expect(&state, &pops).map(|v| v * g));
                         ti += 1;
                     }
                 }
@@ -1011,8 +1047,12 @@ impl LabSolver {
                 return None;
             }
         }
-        let final_coeffs = ops.coefficients(&state, &pops);
+        let mut final_coeffs = vec![];
+        timed(&mut || final_coeffs = ops.coefficients(&state, &pops));
+        let total = chunk_started.elapsed().as_secs_f64();
         Some(ChunkOutcome {
+            propagate_s: total - observe.get(),
+            observe_s: observe.get(),
             class: ops.block.class,
             weight: g,
             values,

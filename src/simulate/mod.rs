@@ -258,6 +258,11 @@ impl Solver {
         events
     }
 
+    /// Where the time of the last all-M run went (None before any).
+    pub fn lab_timing(&self) -> Option<lab_frame::LabTiming> {
+        self.lab.get().map(|l| l.last_timing())
+    }
+
     /// Run `field` through the all-M solver (any polarization in the XZ plane) and sample the direction-cosine
     /// averages ⟨cos²⟩ of each body axis with each lab axis at `times_ps` (ascending). `run` takes this path
     /// by itself when some pulse is not polarized along Z; called directly it also runs Z-polarized fields.
