@@ -14,6 +14,9 @@ pub enum Observable {
     Cos2TwoD,
     /// ⟨cosθ⟩, the orientation (needs a field that breaks head–tail symmetry).
     Cos,
+    /// Three-axis alignment of a top: the smaller of ⟨cos²⟩ of the alignment axis with Z and of the
+    /// second most polarizable axis with X.
+    ThreeAxis,
 }
 
 impl Observable {
@@ -23,6 +26,7 @@ impl Observable {
             Observable::Cos2 => "cos2",
             Observable::Cos2TwoD => "cos2_2d",
             Observable::Cos => "cos",
+            Observable::ThreeAxis => "three_axis",
         }
     }
 }
@@ -108,11 +112,14 @@ impl Goal {
 pub fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
     let mut f = Fields::new(v, path)?;
     let kind_s = f.opt_str("kind", "\"peak\", \"value_at\", \"mean\" or \"minimum\"")?.unwrap_or("peak");
-    let observable = match f.opt_str("observable", "\"cos2\", \"cos2_2d\" or \"cos\"")?.unwrap_or("cos2") {
+    let observable = match f.opt_str("observable", "\"cos2\", \"cos2_2d\", \"cos\" or \"three_axis\"")?.unwrap_or("cos2") {
         "cos2" => Observable::Cos2,
         "cos2_2d" => Observable::Cos2TwoD,
         "cos" => Observable::Cos,
-        other => return Err(Error::input(join(path, "observable"), format!("expected \"cos2\", \"cos2_2d\" or \"cos\", got \"{other}\""))),
+        "three_axis" => Observable::ThreeAxis,
+        other => {
+            return Err(Error::input(join(path, "observable"), format!("expected \"cos2\", \"cos2_2d\", \"cos\" or \"three_axis\", got \"{other}\"")));
+        }
     };
     let at = f.opt_f64("at_ps", "ps after the last pulse centre")?;
     let window = match f.opt_value("window_ps") {

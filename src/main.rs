@@ -325,6 +325,12 @@ fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error
     Ok(())
 }
 
+/// ", polarized at A° from Z, ellipticity E" for pulses not polarized along Z (empty otherwise).
+fn polarization_text(v: &serde_json::Value) -> String {
+    let (a, e) = (v["angle_deg"].as_f64().unwrap_or(0.0), v["ellipticity"].as_f64().unwrap_or(0.0));
+    if a == 0.0 && e == 0.0 { String::new() } else { format!(", polarized at {a:.1}° from Z towards X, ellipticity {e:.3}") }
+}
+
 fn fmt_ext(v: &serde_json::Value) -> String {
     match (v.get("value").and_then(|x| x.as_f64()), v.get("t_ps").and_then(|x| x.as_f64())) {
         (Some(a), Some(t)) => format!("{a:.4} at {t:.3} ps"),
@@ -342,18 +348,28 @@ fn print_simulation(s: &serde_json::Value) {
             };
             let ion = p["ionized_fraction_adk"].as_f64().map(|x| format!(", ionized ≈ {x:.1e} (ADK estimate)")).unwrap_or_default();
             println!(
-                "  pulse {}: centre {} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({}){ion}",
+                "  pulse {}: centre {:.4} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({}){ion}{}",
                 i + 1,
-                p["center_ps"],
+                p["center_ps"].as_f64().unwrap_or(0.0),
                 p["fwhm_fs"],
                 p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
                 p["kick_strength"].as_f64().unwrap_or(0.0),
-                p["method"].as_str().unwrap_or("")
+                p["method"].as_str().unwrap_or(""),
+                polarization_text(&p["polarization"])
             );
         }
     }
     println!("  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]));
-    println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
+    if s["lab_axes"].is_null() {
+        println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
+    } else {
+        println!("  peak ⟨cos²θ_2D⟩ after the last pulse — (not computed for pulses polarized away from Z)");
+        if let Some(obj) = s["lab_axes"].as_object() {
+            for (name, v) in obj {
+                println!("  {:<37}{}", format!("{} after the last pulse", name.replace("peak_cos2_", "peak ⟨cos²⟩ ")), fmt_ext(v));
+            }
+        }
+    }
     println!("  deepest anti-alignment ⟨cos²θ⟩      {}", fmt_ext(&s["min_cos2"]));
     println!("  permanent alignment ⟨cos²θ⟩         {:.4}", s["permanent_cos2"].as_f64().unwrap_or(f64::NAN));
     if let Some(o) = s.get("peak_orientation").filter(|o| !o.is_null()) {
@@ -497,13 +513,14 @@ fn print_design(s: &serde_json::Value) {
     if let Some(ps) = s["pulses"].as_array() {
         for p in ps {
             println!(
-                "  pulse {}: t = {:.4} ps, {:.4e} W/cm² ({:.0} % of ceiling), FWHM {:.1} fs, kick strength {:.3}",
+                "  pulse {}: t = {:.4} ps, {:.4e} W/cm² ({:.0} % of ceiling), FWHM {:.1} fs, kick strength {:.3}{}",
                 p["pulse"],
                 p["center_ps"].as_f64().unwrap_or(0.0),
                 p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
                 100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0),
                 p["fwhm_fs"].as_f64().unwrap_or(0.0),
-                p["kick_strength"].as_f64().unwrap_or(0.0)
+                p["kick_strength"].as_f64().unwrap_or(0.0),
+                polarization_text(&p["polarization"])
             );
         }
     }

@@ -262,6 +262,15 @@ impl Scenario {
             }
         }
         if let Some(g) = &self.goal
+            && g.observable == crate::goal::Observable::ThreeAxis
+            && self.molecule.top.is_none()
+        {
+            return Err(Error::input(
+                join(path, "goal.observable"),
+                format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", self.molecule.name),
+            ));
+        }
+        if let Some(g) = &self.goal
             && g.observable == crate::goal::Observable::Cos
             && !self.field.is_polar()
         {

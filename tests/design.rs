@@ -37,6 +37,8 @@ fn constraints_hold_for_every_point_of_random_spaces() {
                     delay_ps: Bounds { min: rng.random_range(0.0..dmax), max: dmax },
                     peak_intensity_wcm2: Bounds { min: 0.0, max: imax },
                     fwhm_fs: Bounds { min: fmin, max: fmin * rng.random_range(1.0..3.0) },
+                    angle_deg: Bounds::fixed(0.0),
+                    ellipticity: Bounds::fixed(0.0),
                 }
             })
             .collect();
@@ -278,4 +280,43 @@ fn batched_kick_scores_equal_one_by_one_scores() {
             assert!(b.value.is_finite());
         }
     }
+}
+
+#[test]
+fn three_axis_designs_search_polarizations_and_replay_exactly() {
+    // Three-axis goal with searched polarization angle and ellipticity: the design keeps its bounds, is
+    // never worse than one pulse under the same ceiling, and replays through simulate exactly.
+    let text = r#"{
+      "molecule": "SO2", "temperature_k": 0.2,
+      "pulses": {"count": 2, "fwhm_fs": 300, "delay_ps": {"min": 1.0, "max": 8.0},
+                 "peak_intensity_wcm2": {"min": 0, "max": 5e12},
+                 "each": [{"polarization": {"ellipticity": {"min": 0, "max": 1}}},
+                          {"polarization": {"angle_deg": {"min": 0, "max": 90}, "ellipticity": {"min": 0, "max": 1}}}]},
+      "max_peak_intensity_wcm2": 5e12,
+      "goal": {"kind": "peak", "observable": "three_axis", "window_ps": [0.3, 8.0], "step_fs": 100},
+      "search": {"seed": 2, "swarm_size": 6, "iterations": 3, "starts": 1, "refine_candidates": 1, "refine_iterations": 2}
+    }"#;
+    let obj = objective(text);
+    assert_eq!(obj.space.dims(), 6, "delay, two intensities, two ellipticities, one angle");
+    let r = design(&obj, &Silent).unwrap();
+    obj.space.check(&r.best.field).unwrap();
+    let p2 = r.best.field.pulses[1].polarization;
+    assert!((0.0..=90.0).contains(&p2.angle_deg) && (0.0..=1.0).contains(&p2.ellipticity), "{p2:?}");
+    assert!(r.best.full.value > 1.0 / 3.0, "three-axis alignment expected: {}", r.best.full.value);
+    assert!(r.best.full.value >= r.baseline.full.value - 1e-9);
+    let dir = std::env::temp_dir().join(format!("kicktrain-three-axis-design-{}", std::process::id()));
+    kicktrain::report::design::write_design(&obj, &r, &dir).unwrap();
+    let scenario = kicktrain::scenario::Scenario::from_json_str(&std::fs::read_to_string(dir.join("design.json")).unwrap(), "design.json").unwrap();
+    let q2 = scenario.field.pulses[1].polarization;
+    assert!((q2.angle_deg - p2.angle_deg).abs() < 1e-12 && (q2.ellipticity - p2.ellipticity).abs() < 1e-12, "{q2:?} vs {p2:?}");
+    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
+    assert!((replay.value - r.best.full.value).abs() < 1e-9, "replay {} vs {}", replay.value, r.best.full.value);
+    std::fs::remove_dir_all(&dir).ok();
+    // A three-axis goal for a linear molecule, and ellipticities outside [0, 1], are refused up front.
+    let linear = text.replace(r#""molecule": "SO2""#, r#""molecule": "N2""#);
+    let e = Objective::from_json_str(&linear, "x").unwrap_err().to_string();
+    assert!(e.starts_with("goal.observable: a three-axis goal needs a symmetric or asymmetric top"), "{e}");
+    let wide = text.replace(r#"{"ellipticity": {"min": 0, "max": 1}}"#, r#"{"ellipticity": {"min": 0, "max": 1.5}}"#);
+    let e = Objective::from_json_str(&wide, "x").unwrap_err().to_string();
+    assert!(e.starts_with("pulses.each[0].polarization.ellipticity: expected minor-to-major field ratios between 0 and 1"), "{e}");
 }

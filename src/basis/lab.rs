@@ -160,10 +160,10 @@ pub fn body_square(body: usize) -> [[Complex64; 5]; 3] {
 /// The operator Σ_r Σ_{P,Q} lab[r][P+2] body[r][Q+2] D^r_PQ* as a [`LabOperator`].
 pub fn factored_operator(lab: &[[Complex64; 5]; 3], body: &[[Complex64; 5]; 3]) -> LabOperator {
     let mut op = LabOperator { identity: 0.0, terms: vec![] };
-    for r in 0..3usize {
-        for p in 0..5usize {
-            for q in 0..5usize {
-                let c = lab[r][p] * body[r][q];
+    for (r, (lr, br)) in lab.iter().zip(body).enumerate() {
+        for (p, lv) in lr.iter().enumerate() {
+            for (q, bv) in br.iter().enumerate() {
+                let c = lv * bv;
                 if c.norm() < 1e-15 {
                     continue;
                 }

@@ -599,7 +599,8 @@ mod tests {
     fn direction_cosines_match_euler_angle_quadrature() {
         // Closed forms (products of two 3j symbols) against direct quadrature over φ, θ, χ of explicit
         // Wigner-D wavefunctions (shared physics notes §5 ask for exactly this cross-check).
-        let ops: [(AngularOperator, fn(f64, f64) -> f64); 4] = [
+        type Check = (AngularOperator, fn(f64, f64) -> f64);
+        let ops: [Check; 4] = [
             (AngularOperator::cos2_z(), |t, _| t.cos().powi(2)),
             (AngularOperator::cos2_x(), |t, c| (t.sin() * c.cos()).powi(2)),
             (AngularOperator::cos2_y(), |t, c| (t.sin() * c.sin()).powi(2)),
@@ -865,10 +866,10 @@ mod tests {
             let mut h = DMatrix::from_diagonal(&nalgebra::DVector::from_vec(blk.energies_cm.clone()));
             h -= mu_e * &c;
             let (vals, _) = sorted_eigen(h);
-            for n in 0..4 {
+            for (n, val) in vals.iter().enumerate().take(4) {
                 let j = blk.j(n) as f64;
                 let want = blk.energies_cm[n] - mu_e * (k * m) as f64 / (j * (j + 1.0));
-                assert!((vals[n] - want).abs() < 1e-9 * mu_e.max(1e-12) * 1e4, "K={k} M={m} J={j}: {} vs {want}", vals[n]);
+                assert!((val - want).abs() < 1e-9 * mu_e.max(1e-12) * 1e4, "K={k} M={m} J={j}: {val} vs {want}");
             }
         }
     }

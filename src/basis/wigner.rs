@@ -172,7 +172,7 @@ mod tests {
     #[test]
     fn small_d_recursion_matches_explicit_sum() {
         // Recursion against Wigner's explicit formula (Edmonds eq. 4.1.23) for j ≤ 12.
-        for beta in [0.0, 0.3, 1.1, 1.5707963267948966, 2.7, std::f64::consts::PI] {
+        for beta in [0.0, 0.3, 1.1, std::f64::consts::FRAC_PI_2, 2.7, std::f64::consts::PI] {
             for mp in -5i64..=5 {
                 for m in -5i64..=5 {
                     let rec = small_d_series(mp, m, beta, 12);

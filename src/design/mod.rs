@@ -56,6 +56,10 @@ pub struct PulseBounds {
     pub peak_intensity_wcm2: Bounds,
     /// Intensity FWHM, fs.
     pub fwhm_fs: Bounds,
+    /// Angle of the polarization's major axis from Z towards X, degrees (fixed 0: along Z).
+    pub angle_deg: Bounds,
+    /// Ellipticity (minor-to-major field ratio), 0..=1 (fixed 0: linear).
+    pub ellipticity: Bounds,
 }
 
 /// The space of pulse trains searched: bounds per pulse and global constraints.
@@ -109,6 +113,8 @@ enum Slot {
     Delay(usize),
     Intensity(usize),
     Fwhm(usize),
+    Angle(usize),
+    Ellipticity(usize),
     Static,
     Ratio,
     Phase,
@@ -140,6 +146,12 @@ impl DesignSpace {
             }
             if !self.pulses[k].fwhm_fs.is_fixed() {
                 s.push(Slot::Fwhm(k));
+            }
+            if !self.pulses[k].angle_deg.is_fixed() {
+                s.push(Slot::Angle(k));
+            }
+            if !self.pulses[k].ellipticity.is_fixed() {
+                s.push(Slot::Ellipticity(k));
             }
         }
         if self.static_field_kv_cm.map(|b| !b.is_fixed()).unwrap_or(false) {
@@ -177,6 +189,8 @@ impl DesignSpace {
                 Slot::Delay(k) => format!("pulse {} delay (ps)", k + 1),
                 Slot::Intensity(k) => format!("pulse {} peak intensity (W/cm²)", k + 1),
                 Slot::Fwhm(k) => format!("pulse {} FWHM (fs)", k + 1),
+                Slot::Angle(k) => format!("pulse {} polarization angle (deg)", k + 1),
+                Slot::Ellipticity(k) => format!("pulse {} ellipticity", k + 1),
                 Slot::Static => "static field (kV/cm)".to_string(),
                 Slot::Ratio => "second-harmonic ratio".to_string(),
                 Slot::Phase => "two-colour phase (rad)".to_string(),
@@ -194,8 +208,10 @@ impl DesignSpace {
         let mut delay = vec![0.0; n];
         let mut inten: Vec<f64> = (0..n).map(|k| self.intensity_bounds(k).min).collect();
         let mut fwhm: Vec<f64> = self.pulses.iter().map(|p| p.fwhm_fs.min).collect();
-        for k in 1..n {
-            delay[k] = self.delay_bounds(k).min;
+        let mut angle: Vec<f64> = self.pulses.iter().map(|p| p.angle_deg.min).collect();
+        let mut ellipticity: Vec<f64> = self.pulses.iter().map(|p| p.ellipticity.min).collect();
+        for (k, d) in delay.iter_mut().enumerate().skip(1) {
+            *d = self.delay_bounds(k).min;
         }
         let mut static_kv = self.static_field_kv_cm.map(|b| b.min);
         let mut ratio = self.two_colour.map(|t| t.ratio.min).unwrap_or(0.0);
@@ -207,6 +223,8 @@ impl DesignSpace {
                 Slot::Delay(k) => delay[k] = self.delay_bounds(k).at(x),
                 Slot::Intensity(k) => inten[k] = self.intensity_bounds(k).at(x),
                 Slot::Fwhm(k) => fwhm[k] = self.pulses[k].fwhm_fs.at(x),
+                Slot::Angle(k) => angle[k] = self.pulses[k].angle_deg.at(x),
+                Slot::Ellipticity(k) => ellipticity[k] = self.pulses[k].ellipticity.at(x),
                 Slot::Static => static_kv = self.static_field_kv_cm.map(|b| b.at(x)),
                 Slot::Ratio => ratio = self.two_colour.expect("two-colour bounds").ratio.at(x),
                 Slot::Phase => phase = self.two_colour.expect("two-colour bounds").phase_rad.at(x),
@@ -218,7 +236,8 @@ impl DesignSpace {
         let mut pulses: Vec<Pulse> = (0..n)
             .map(|k| {
                 t += delay[k];
-                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, polarization: Default::default() }
+                let polarization = crate::field::PulsePolarization { angle_deg: angle[k], ellipticity: ellipticity[k] };
+                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, polarization }
             })
             .collect();
         if let Some(budget) = self.max_total_fluence_jcm2 {
@@ -516,6 +535,13 @@ impl Objective {
         if goal.observable == Observable::Cos && obj.space.static_field_kv_cm.is_none() && obj.space.two_colour.is_none() && obj.space.terahertz.is_none() {
             return Err(Error::input("goal.observable", "⟨cosθ⟩ needs an orienting field: give static_field_kv_cm, pulses.two_colour or terahertz"));
         }
+        if goal.observable == Observable::ThreeAxis && obj.molecule().top.is_none() {
+            return Err(Error::input("goal.observable", format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", obj.molecule().name)));
+        }
+        let polarized = obj.space.pulses.iter().any(|p| !(p.angle_deg.is_fixed() && p.ellipticity.is_fixed() && p.ellipticity.min == 0.0 && (p.angle_deg.min / 180.0).fract() == 0.0));
+        if polarized && (obj.space.static_field_kv_cm.is_some() || obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
+            return Err(Error::input("pulses.polarization", "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses"));
+        }
         // The longest design must replay as a valid scenario: check before any search starts.
         let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
         // The strongest design must fit the largest basis the solver allows.
@@ -669,7 +695,11 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         Some(i) => parse_bounds(i, &join(path, "peak_intensity_wcm2"), "W/cm²")?,
         None => Bounds { min: 0.0, max: ceiling },
     };
-    let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm }; n];
+    let (angle_deg, ellipticity) = match f.opt_value("polarization") {
+        Some(v) => parse_polarization_bounds(v, &join(path, "polarization"))?,
+        None => (Bounds::fixed(0.0), Bounds::fixed(0.0)),
+    };
+    let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm, angle_deg, ellipticity }; n];
     let two_colour = match f.opt_value("two_colour") {
         None => None,
         Some(v) => {
@@ -708,6 +738,9 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
             if let Some(w) = g.opt_value("fwhm_fs") {
                 pulses[k].fwhm_fs = parse_bounds(w, &join(&pp, "fwhm_fs"), "fs")?;
             }
+            if let Some(v) = g.opt_value("polarization") {
+                (pulses[k].angle_deg, pulses[k].ellipticity) = parse_polarization_bounds(v, &join(&pp, "polarization"))?;
+            }
             g.finish()?;
         }
     }
@@ -731,6 +764,27 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         }
     }
     Ok((space, variable))
+}
+
+/// Bounds of a pulse's polarization: {"angle_deg": deg or {min, max}, "ellipticity": ratio or {min, max}}.
+fn parse_polarization_bounds(v: &Value, path: &str) -> Result<(Bounds, Bounds)> {
+    let mut f = Fields::new(v, path)?;
+    let angle = match f.opt_value("angle_deg") {
+        Some(a) => parse_bounds(a, &join(path, "angle_deg"), "degrees")?,
+        None => Bounds::fixed(0.0),
+    };
+    let ell = match f.opt_value("ellipticity") {
+        Some(e) => parse_bounds(e, &join(path, "ellipticity"), "minor-to-major field ratio")?,
+        None => Bounds::fixed(0.0),
+    };
+    f.finish()?;
+    if !angle.min.is_finite() || !angle.max.is_finite() || angle.max - angle.min > 360.0 {
+        return Err(Error::input(join(path, "angle_deg"), format!("expected finite angles spanning at most 360 degrees, got [{}, {}]", angle.min, angle.max)));
+    }
+    if !(0.0..=1.0).contains(&ell.min) || !(0.0..=1.0).contains(&ell.max) {
+        return Err(Error::input(join(path, "ellipticity"), format!("expected minor-to-major field ratios between 0 and 1, got [{}, {}]", ell.min, ell.max)));
+    }
+    Ok((angle, ell))
 }
 
 fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {

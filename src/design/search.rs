@@ -494,6 +494,8 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
             delay_ps: Bounds::fixed(0.0),
             peak_intensity_wcm2: Bounds { min: 0.0, max: obj.space.max_peak_intensity_wcm2 },
             fwhm_fs: obj.space.pulses[0].fwhm_fs,
+            angle_deg: obj.space.pulses[0].angle_deg,
+            ellipticity: obj.space.pulses[0].ellipticity,
         }],
         ..obj.space.clone()
     };

@@ -164,6 +164,13 @@ impl Top {
         BodyAxis::from_index(best)
     }
 
+    /// The more polarizable of the two axes other than the alignment axis (ties go to the earlier of a, b, c):
+    /// the axis a three-axis goal holds along X.
+    pub fn second_axis(&self) -> BodyAxis {
+        let others: Vec<BodyAxis> = [BodyAxis::A, BodyAxis::B, BodyAxis::C].into_iter().filter(|a| *a != self.alignment_axis).collect();
+        if self.alpha(others[1]) > self.alpha(others[0]) { others[1] } else { others[0] }
+    }
+
     /// Largest minus smallest principal polarizability, Å³: the anisotropy that sets the kick strength.
     pub fn delta_alpha_a3(&self) -> f64 {
         let p = self.polarizability_a3;

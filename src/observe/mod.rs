@@ -22,6 +22,10 @@ pub enum FreeSums {
         cos2: usize,
         /// Index of its ⟨cos²θ_2D⟩, when built.
         abs: Option<usize>,
+        /// Indices of the three-axis goal's two averages (alignment axis with Z, second axis with X);
+        /// with `true` the second index is the second axis with Z, and its X average is (1 − ⟨·⟩)/2
+        /// (fields symmetric about Z).
+        three_axis: Option<(usize, usize, bool)>,
     },
 }
 
@@ -38,10 +42,22 @@ impl FreeSums {
     pub fn eval(&self, t_ps: f64) -> (f64, f64) {
         match self {
             FreeSums::Levels(l) => l.eval(t_ps),
-            FreeSums::Pairs { sums, cos2, abs } => {
+            FreeSums::Pairs { sums, cos2, abs, .. } => {
                 let v = sums.eval(t_ps);
                 (v[*cos2], abs.map(|i| v[i]).unwrap_or(0.0))
             }
+        }
+    }
+
+    /// The three-axis goal's value at time t (ps), when the sums carry it.
+    pub fn eval_three_axis(&self, t_ps: f64) -> Option<f64> {
+        match self {
+            FreeSums::Pairs { sums, three_axis: Some((i, j, symmetric)), .. } => {
+                let v = sums.eval(t_ps);
+                let second = if *symmetric { 0.5 * (1.0 - v[*j]) } else { v[*j] };
+                Some(v[*i].min(second))
+            }
+            _ => None,
         }
     }
 
@@ -49,7 +65,7 @@ impl FreeSums {
     pub fn mean_over(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
         match self {
             FreeSums::Levels(l) => l.mean_over(a_ps, b_ps),
-            FreeSums::Pairs { sums, cos2, abs } => {
+            FreeSums::Pairs { sums, cos2, abs, .. } => {
                 let v = sums.mean_over(a_ps, b_ps);
                 (v[*cos2], abs.map(|i| v[i]).unwrap_or(0.0))
             }
@@ -508,10 +524,9 @@ impl DenseSums {
                 let mut idx = 0;
                 for a in 0..m {
                     let (mut sr, mut si) = (0.0, 0.0);
-                    for b in (a + 1)..m {
+                    for &(zr, zi) in &z[(a + 1)..m] {
                         let c = cf[idx];
                         idx += 1;
-                        let (zr, zi) = z[b];
                         sr += c.0 * zr + c.1 * zi;
                         si += c.1 * zr - c.0 * zi;
                     }
@@ -557,6 +572,9 @@ pub struct Trace {
     pub cos2_b: Vec<f64>,
     /// Tops: ⟨cos²θ⟩ of the body c axis with Z; empty for linear molecules.
     pub cos2_c: Vec<f64>,
+    /// Tops: the three-axis goal's series, min(⟨cos²⟩ of the alignment axis with Z, ⟨cos²⟩ of the second
+    /// most polarizable axis with X); empty for linear molecules.
+    pub three_axis: Vec<f64>,
     /// Fields not symmetric about Z: ⟨cos²⟩ of each body axis with each lab axis, named `cos2_<lab><body>`
     /// (e.g. `cos2_Xb`; `cos2_X` for the axis of a linear molecule); empty otherwise.
     pub lab_axes: Vec<(String, Vec<f64>)>,
@@ -598,6 +616,7 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> 
         Observable::Cos2 => &trace.cos2,
         Observable::Cos2TwoD => &trace.cos2_2d,
         Observable::Cos => &trace.cos,
+        Observable::ThreeAxis => &trace.three_axis,
     };
     if series.is_empty() {
         // ⟨cosθ⟩ without any orienting field: zero by symmetry.
@@ -605,7 +624,13 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> 
     }
     let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
     // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
-    let field_free = if goal.observable == Observable::Cos { f64::INFINITY } else { after.t0_ps() };
+    let field_free = match goal.observable {
+        Observable::Cos => f64::INFINITY,
+        // The minimum of two averages has no exact mean from the sums: means use the samples.
+        Observable::ThreeAxis if goal.kind == GoalKind::Mean => f64::INFINITY,
+        Observable::ThreeAxis if after.eval_three_axis(after.t0_ps()).is_none() => f64::INFINITY,
+        _ => after.t0_ps(),
+    };
     match goal.kind {
         GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(trace.times_ps[0]) },
         GoalKind::Mean => {
@@ -636,7 +661,7 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> 
             let hi = (t_best + dt).min(*trace.times_ps.last().expect("samples"));
             let mut score = Score { value: series[best], t_ps: Some(t_best) };
             if dt > 0.0 && lo >= field_free {
-                let f = |t: f64| sense * pick(after.eval(t));
+                let f = |t: f64| sense * if goal.observable == Observable::ThreeAxis { after.eval_three_axis(t).unwrap_or(f64::NAN) } else { pick(after.eval(t)) };
                 // ⟨cos²θ⟩ of a linear molecule: Newton steps on the exact derivatives (a few passes);
                 // elsewhere, or if Newton leaves the bracket, golden-section search.
                 let newton = match (after, goal.observable) {

@@ -5,6 +5,9 @@
 use nalgebra::DMatrix;
 use std::collections::HashMap;
 
+/// A coherence coefficient between two states of a block: (state a, state b, (Re, Im) of ρ_ab O_ba).
+pub type StatePair = (usize, usize, (f64, f64));
+
 /// Populations below this are treated as empty when collecting coherences.
 const TRIM: f64 = 1e-22;
 
@@ -97,7 +100,7 @@ impl PairSums {
     /// Add one block's coefficients with weight `g`: diagonal sums per observable and, per observable, the
     /// coefficients ρ_ab O_ba of pairs of the block's states (a < b); states are levels `level_of` with
     /// frequencies `omega` (rad/ps).
-    pub fn add_pairs(&mut self, g: f64, diag: &[f64], pairs: &[Vec<(usize, usize, (f64, f64))>], level_of: &[u32], omega: &[f64]) {
+    pub fn add_pairs(&mut self, g: f64, diag: &[f64], pairs: &[Vec<StatePair>], level_of: &[u32], omega: &[f64]) {
         for (o, d) in diag.iter().enumerate() {
             self.diag[o] += g * d;
         }

@@ -43,6 +43,7 @@ fn pulses_json(obj: &Objective, field: &FieldModel) -> Vec<Value> {
                 "fwhm_fs": p.fwhm_fs,
                 "shape": p.shape,
                 "kick_strength": p.kick_strength(da),
+                "polarization": p.polarization,
                 "fluence_jcm2": fluence_jcm2(p),
                 "ionized_fraction_adk": obj.molecule().ionization_energy_ev.map(|ip| crate::optics::ionization::ionized_fraction(p, ip)),
             })
@@ -157,7 +158,12 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
     };
     write_file(dir, "design.json", &(serde_json::to_string_pretty(&scenario.to_value()).expect("json") + "\n"))?;
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
-    let extra: [(&str, &[f64]); 2] = [("baseline_cos2", &base.result.trace.cos2), ("baseline_cos2_2d", &base.result.trace.cos2_2d)];
+    let bt = &base.result.trace;
+    let extra: Vec<(&str, &[f64])> = [("baseline_cos2", &bt.cos2), ("baseline_cos2_2d", &bt.cos2_2d), ("baseline_three_axis", &bt.three_axis)]
+        .into_iter()
+        .filter(|(_, s)| !s.is_empty())
+        .map(|(n, s)| (n, s.as_slice()))
+        .collect();
     write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
     let mut plot = super::alignment_plot(&scenario, &sim.result.trace, "Optimized pulse train");
     plot.y_label = "alignment".into();
@@ -166,7 +172,18 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
         crate::goal::Observable::Cos2 => (&base.result.trace.cos2, "best single pulse ⟨cos²θ⟩"),
         crate::goal::Observable::Cos2TwoD => (&base.result.trace.cos2_2d, "best single pulse ⟨cos²θ_2D⟩"),
         crate::goal::Observable::Cos => (&base.result.trace.cos, "best single pulse ⟨cosθ⟩"),
+        crate::goal::Observable::ThreeAxis => (&base.result.trace.three_axis, "best single pulse, three axes"),
     };
+    if obs == crate::goal::Observable::ThreeAxis {
+        plot.series.push(svg::Series {
+            label: "three-axis goal (smaller of the two)".into(),
+            x: sim.result.trace.times_ps.clone(),
+            y: sim.result.trace.three_axis.clone(),
+            color: "#6a3d9a".into(),
+            dashed: false,
+            width: 1.8,
+        });
+    }
     plot.series.push(svg::Series {
         label: label.into(),
         x: base.result.trace.times_ps.clone(),

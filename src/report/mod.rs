@@ -56,6 +56,7 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
             let mut v = json!({
                 "center_ps": p.center_ps, "fwhm_fs": p.fwhm_fs, "peak_intensity_wcm2": p.peak_intensity_wcm2,
                 "shape": p.shape, "kick_strength": p.kick_strength(da), "method": methods[i],
+                "polarization": p.polarization,
             });
             if let Some(ip) = s.molecule.ionization_energy_ev {
                 v["ionized_fraction_adk"] = num(crate::optics::ionization::ionized_fraction(p, ip));
@@ -162,13 +163,18 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
         cols.push(("cos", &trace.cos));
         cols.push(("cos3", &trace.cos3));
     }
+    if !trace.three_axis.is_empty() {
+        cols.push(("three_axis", &trace.three_axis));
+    }
     for (name, series) in &trace.lab_axes {
         cols.push((name.as_str(), series.as_slice()));
     }
     cols.extend_from_slice(extra);
+    // Every column has one value per sample; a column that does not (an observable not computed) is left out.
+    cols.retain(|(_, c)| c.len() == trace.times_ps.len());
     let extra = &cols[..];
     let mut out = String::from("t_ps,cos2");
-    let has_2d = !trace.cos2_2d.is_empty();
+    let has_2d = trace.cos2_2d.len() == trace.times_ps.len() && !trace.cos2_2d.is_empty();
     if has_2d {
         out.push_str(",cos2_2d");
     }
@@ -216,6 +222,20 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
                     width: 1.2,
                 });
             }
+        }
+    }
+    if let Some(t) = &scenario.molecule.top {
+        // Pulses polarized away from Z: the second axis with X, the partner of a three-axis goal.
+        let name = format!("cos2_X{}", t.second_axis().letter());
+        if let Some((_, series)) = trace.lab_axes.iter().find(|c| c.0 == name) {
+            plot.series.push(svg::Series {
+                label: format!("⟨cos²⟩ ({} axis with X)", t.second_axis().letter()),
+                x: trace.times_ps.clone(),
+                y: series.clone(),
+                color: "#2a9d5b".into(),
+                dashed: false,
+                width: 1.4,
+            });
         }
     }
     if !trace.cos2_2d.is_empty() {

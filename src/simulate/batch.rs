@@ -46,9 +46,14 @@ type Kicks = Vec<(f64, f64)>;
 
 impl Solver {
     /// True if `field` can run through [`Solver::kick_batch`]: a linear molecule, the kick method, laser
-    /// pulses only (no static, two-colour or terahertz field) and at least one pulse.
+    /// pulses only (no static, two-colour or terahertz field), all polarized along Z, and at least one pulse.
     pub fn batchable(&self, field: &FieldModel) -> bool {
-        self.top.is_none() && self.settings.method == Method::Kick && !self.settings.both_parities && !field.is_polar() && !field.pulses.is_empty()
+        self.top.is_none()
+            && self.settings.method == Method::Kick
+            && !self.settings.both_parities
+            && !field.is_polar()
+            && field.is_symmetric_about_z()
+            && !field.pulses.is_empty()
     }
 
     /// Field-free coherence sums just after the last kick of each train, computed for all trains

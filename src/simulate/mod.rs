@@ -96,6 +96,9 @@ impl RunResult {
     }
 }
 
+/// Key of cached block operators: (|M|, parity, size, with ⟨cos²θ_2D⟩).
+type OpsKey = (u32, u32, usize, bool);
+
 /// Solver for one molecule at one temperature; reusable across many field models (operators are cached).
 pub struct Solver {
     /// The molecule.
@@ -104,7 +107,7 @@ pub struct Solver {
     pub ensemble: ThermalEnsemble,
     /// Numerical settings.
     pub settings: SolverSettings,
-    cache: Mutex<HashMap<(u32, u32, usize, bool), Arc<BlockOps>>>,
+    cache: Mutex<HashMap<OpsKey, Arc<BlockOps>>>,
     /// The solver for symmetric and asymmetric tops (None for linear molecules, whose ensemble is `ensemble`).
     pub top: Option<top::TopSolver>,
     /// The all-M solver for fields not symmetric about Z, built on first use.
@@ -277,7 +280,12 @@ impl Solver {
             ));
         }
         let (events, reach) = match &self.top {
-            Some(t) => (t.schedule(field), t.reach(field)?),
+            // Every M of every J is in one basis (cost ∝ J³): start tighter than the M-conserving path
+            // (P + 6 instead of 1.35 P + 10); the edge check grows the basis where a chunk needs more.
+            Some(t) => {
+                t.reach(field)?;
+                (t.schedule(field), (t.strengths(field).ceil() as i64) + 6)
+            }
             None => {
                 self.check_strength(field)?;
                 (self.schedule(field), 2 * self.extra_levels(field) as i64)
@@ -303,9 +311,13 @@ impl Solver {
                 lab_axes.push((format!("cos2_{lab_name}{name}"), run.values[f][pos].clone()));
             }
         }
-        let align_pos = match &self.top {
-            Some(t) => frame.position(t.top.alignment_axis),
-            None => 0,
+        let (align_pos, second_pos) = match &self.top {
+            Some(t) => (frame.position(t.top.alignment_axis), Some(frame.position(t.top.second_axis()))),
+            None => (0, None),
+        };
+        let three_axis = match second_pos {
+            Some(s) => run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
+            None => vec![],
         };
         let body = |i: usize| if lab.rotor.linear { vec![] } else { run.values[2][positions[i]].clone() };
         let trace = Trace {
@@ -314,6 +326,7 @@ impl Solver {
             cos2_a: body(0),
             cos2_b: body(1),
             cos2_c: body(2),
+            three_axis,
             lab_axes,
             ..Default::default()
         };
@@ -325,7 +338,7 @@ impl Solver {
             permanent_cos2_2d: 0.0,
             blocks: run.blocks,
             events,
-            final_sums: FreeSums::Pairs { sums: run.final_sums, cos2: align, abs: None },
+            final_sums: FreeSums::Pairs { sums: run.final_sums, cos2: align, abs: None, three_axis: second_pos.map(|s| (align, s, false)) },
             permanent_cos: None,
         })
     }
@@ -939,7 +952,7 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
             // Scored exactly as the designer scores it: the goal's own sample grid and refinement.
             let t_last = scenario.last_pulse_center_ps();
             let goal_times = goal.times(t_last);
-            let with_2d = goal.observable != Observable::Cos2;
+            let with_2d = matches!(goal.observable, Observable::Cos2TwoD | Observable::Cos);
             let run = match &scenario.focal_average {
                 None => solver.run(&scenario.field, &goal_times, with_2d)?,
                 Some(avg) => solver.run_focal(&scenario.field, &goal_times, with_2d, avg)?,

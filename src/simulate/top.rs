@@ -150,7 +150,7 @@ fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
 #[derive(Clone)]
 struct BlockPairs {
     diag: Vec<f64>,
-    pairs: Vec<Vec<(usize, usize, (f64, f64))>>,
+    pairs: Vec<Vec<crate::observe::pairs::StatePair>>,
 }
 
 /// Coefficients below this are dropped (their total stays far below the accuracy of any trace).
@@ -274,7 +274,7 @@ impl TopSolver {
     }
 
     /// Kick strength P (rad) of each pulse for the top's anisotropy Δα = α_max − α_min.
-    fn strengths(&self, field: &FieldModel) -> f64 {
+    pub(super) fn strengths(&self, field: &FieldModel) -> f64 {
         let da = self.top.delta_alpha_a3();
         let b = cm_to_rad_per_ps(self.top.c_cm);
         field
@@ -389,7 +389,11 @@ impl TopSolver {
         let final_sums = final_sums.unwrap_or_else(|| PairSums::new(nobs, t_first));
         let statics = final_sums.statics();
         let align = self.top.alignment_axis.index();
+        let second = self.top.second_axis().index();
+        // Symmetric about Z: ⟨Φ_Xg²⟩ = (1 − ⟨Φ_Zg²⟩)/2.
+        let three_axis = values[align].iter().zip(&values[second]).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect();
         let trace = Trace {
+            three_axis,
             times_ps: times_ps.to_vec(),
             cos2: values[align].clone(),
             cos2_2d: if with_2d { values[AXES].clone() } else { vec![] },
@@ -404,7 +408,7 @@ impl TopSolver {
             permanent_cos2_2d: if with_2d { statics[AXES] } else { 0.0 },
             blocks: reports,
             events,
-            final_sums: FreeSums::Pairs { sums: final_sums, cos2: align, abs: with_2d.then_some(AXES) },
+            final_sums: FreeSums::Pairs { sums: final_sums, cos2: align, abs: with_2d.then_some(AXES), three_axis: Some((align, second, true)) },
             permanent_cos: None,
         })
     }
@@ -564,7 +568,9 @@ impl super::Solver {
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
         let extra = self.polar_extra(field, &items);
         // (K, M) blocks: ±M differ once K ≠ 0 (the Stark shift −μE K M / J(J+1)); (K, M) and (−K, −M) agree.
-        let mut blocks: Vec<(i64, i64, f64, Vec<(u32, f64)>)> = vec![];
+        // (K, M, weight, thermal levels (J, population)) of each block.
+        type PolarBlock = (i64, i64, f64, Vec<(u32, f64)>);
+        let mut blocks: Vec<PolarBlock> = vec![];
         for bp in &solver.ensemble.blocks {
             let TopSym::K(k) = bp.sym else { continue };
             let levels: Vec<(u32, f64)> = bp.levels.iter().map(|l| (l.0 as u32, l.2)).collect();
@@ -601,7 +607,7 @@ impl super::Solver {
         let axis = |i: usize| if i == fig { fig2.clone() } else { across.clone() };
         let align = top.alignment_axis.index();
         let perm_align = if align == fig { permanent[0] } else { 0.5 * (1.0 - permanent[0]) };
-        let trace = Trace { times_ps: times.to_vec(), cos2: axis(align), cos2_2d: abs_align, cos, cos3, cos2_a: axis(0), cos2_b: axis(1), cos2_c: axis(2), lab_axes: vec![] };
+        let trace = Trace { times_ps: times.to_vec(), cos2: axis(align), cos2_2d: abs_align, cos, cos3, cos2_a: axis(0), cos2_b: axis(1), cos2_c: axis(2), ..Default::default() };
         let mut sums = crate::observe::LevelSums::new(vec![], f64::INFINITY, false);
         sums.cos2_static = perm_align;
         sums.abscos_static = permanent[1];
