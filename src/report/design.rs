@@ -172,11 +172,11 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
         crate::goal::Observable::Cos2 => (&base.result.trace.cos2, "best single pulse ⟨cos²θ⟩"),
         crate::goal::Observable::Cos2TwoD => (&base.result.trace.cos2_2d, "best single pulse ⟨cos²θ_2D⟩"),
         crate::goal::Observable::Cos => (&base.result.trace.cos, "best single pulse ⟨cosθ⟩"),
-        crate::goal::Observable::ThreeAxis => (&base.result.trace.three_axis, "best single pulse, three axes"),
+        crate::goal::Observable::ThreeAxis => (&base.result.trace.three_axis, "single pulse, three-axis"),
     };
     if obs == crate::goal::Observable::ThreeAxis {
         plot.series.push(svg::Series {
-            label: "three-axis goal (smaller of the two)".into(),
+            label: "three-axis goal".into(),
             x: sim.result.trace.times_ps.clone(),
             y: sim.result.trace.three_axis.clone(),
             color: "#6a3d9a".into(),

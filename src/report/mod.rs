@@ -200,7 +200,9 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
 pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::LinePlot {
     let mut plot = svg::LinePlot::new(title, "time (ps)", "alignment");
     plot.subtitle = Some(format!("{} at {} K; {} pulse(s); shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, scenario.field.pulses.len()));
-    let axis = scenario.molecule.top.as_ref().map(|t| format!(" ({} axis)", t.alignment_axis.letter())).unwrap_or_default();
+    // With pulses polarized away from Z the lab axis is named too.
+    let with_z = if trace.lab_axes.is_empty() { "" } else { " with Z" };
+    let axis = scenario.molecule.top.as_ref().map(|t| format!(" ({} axis{with_z})", t.alignment_axis.letter())).unwrap_or_default();
     plot.series.push(svg::Series {
         label: format!("⟨cos²θ⟩{axis}"),
         x: trace.times_ps.clone(),
@@ -214,7 +216,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         for (i, (series, color)) in [(&trace.cos2_a, "#5b8fd1"), (&trace.cos2_b, "#7a7a7a"), (&trace.cos2_c, "#a0a0a0")].into_iter().enumerate() {
             if i != t.alignment_axis.index() && !series.is_empty() {
                 plot.series.push(svg::Series {
-                    label: format!("⟨cos²θ⟩ ({} axis)", ["a", "b", "c"][i]),
+                    label: format!("⟨cos²θ⟩ ({} axis{with_z})", ["a", "b", "c"][i]),
                     x: trace.times_ps.clone(),
                     y: series.clone(),
                     color: color.into(),

@@ -879,7 +879,10 @@ impl LabSolver {
         let mut gap_coeffs: Vec<Coefficients> = (0..gap_count).map(|_| Coefficients::default()).collect();
         let mut final_coeffs = Coefficients::default();
         let mut reports: HashMap<(usize, i64, Option<i64>), BlockReport> = HashMap::new();
-        let group = 4 * rayon::current_num_threads().max(1);
+        // Largest bases first (the longest chunks start early and no thread idles at the end of a group);
+        // results are merged in this fixed order, so they do not depend on thread timing.
+        chunks.sort_by_key(|c| std::cmp::Reverse(c.0.j_max));
+        let group = 16 * rayon::current_num_threads().max(1);
         for batch in chunks.chunks(group) {
             let outcomes: Vec<ChunkOutcome> = batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first)).collect::<Result<Vec<_>>>()?;
             for o in outcomes {
@@ -1031,7 +1034,13 @@ impl LabSolver {
                     let pols: Vec<PulsePolarization> = pulses.iter().map(|&i| field.pulses[i].polarization).collect();
                     let single = pols.iter().all(|p| *p == pols[0]).then(|| ops.coupling_for(&pols[0]));
                     let base = ti;
+                    // A chunk whose edge fills up at a sample inside the pulse starts again in a larger basis:
+                    // skip the rest of its kicks.
+                    let overflow = std::cell::Cell::new(false);
                     let mut kick = |st: &mut BlockState, t: f64, h: f64| {
+                        if overflow.get() {
+                            return;
+                        }
                         let rates: Vec<f64> = pulses.iter().map(|&i| rate_of(i, t)).collect();
                         let total: f64 = rates.iter().sum();
                         if total == 0.0 {
@@ -1052,8 +1061,15 @@ impl LabSolver {
                         }
                     };
                     propagate_finite(&mut state, &ops.omega, &mut kick, e, step, &stops, &breaks, |i, st| {
+                        if overflow.get() || st.edge_population(edge_states) > self.settings.edge_tolerance {
+                            overflow.set(true);
+                            return;
+                        }
                         timed(&mut || values[base + i] = ops.expect(st, &pops).map(|v| v * g));
                     });
+                    if overflow.get() {
+                        return None;
+                    }
                     ti += stops.len();
                     if at_end {
                         timed(&mut || values[ti] = ops.expect(&state, &pops).map(|v| v * g));
