@@ -351,6 +351,41 @@ impl Polarization {
     }
 }
 
+/// ⟨J' K M'|cos²θ_2D|J K M⟩ for the projection of the frame z axis onto the detector plane XZ (beam along
+/// Y): cos²θ_2D = n_Z²/(n_Z² + n_X²) = cos²ψ, with ψ the azimuth of the axis about Y. It depends on the
+/// axis direction only, so K is kept, and it is not a finite-rank tensor (it couples every J and every
+/// even ΔM). Integrated over the axis direction in coordinates about Y, where the integrand is smooth:
+/// Gauss–Legendre in cos ϑ_Y (`nodes` points) and a uniform grid in ψ (2·`nodes` points).
+pub fn detector_plane_cos2(bra: (i64, i64, i64), ket: (i64, i64, i64), nodes: usize) -> Complex64 {
+    use std::f64::consts::PI;
+    let ((jp, kp, mp), (j, k, m)) = (bra, ket);
+    if kp != k {
+        return Complex64::new(0.0, 0.0);
+    }
+    let (x, w) = super::legendre::gauss_legendre(nodes, -1.0, 1.0);
+    let n_psi = 2 * nodes;
+    // ∫dχ ψ*_bra ψ_ket = 2π · sqrt((2J+1)(2J'+1))/(8π²) · e^{i(M' − M)φ}·… with ψ = sqrt((2J+1)/8π²) e^{iMφ} d^J_MK(θ) e^{iKχ}.
+    let norm = 2.0 * PI * (((2 * j + 1) * (2 * jp + 1)) as f64).sqrt() / (8.0 * PI * PI);
+    let mut v = Complex64::new(0.0, 0.0);
+    for (cy, wy) in x.iter().zip(&w) {
+        let sy = (1.0 - cy * cy).max(0.0).sqrt();
+        for q in 0..n_psi {
+            let psi = 2.0 * PI * (q as f64 + 0.5) / n_psi as f64;
+            let (nx, ny, nz) = (sy * psi.sin(), *cy, sy * psi.cos());
+            let (theta, phi) = (nz.clamp(-1.0, 1.0).acos(), ny.atan2(nx));
+            let f = psi.cos().powi(2);
+            let d = small_d(jp, mp, k, theta) * small_d(j, m, k, theta);
+            v += Complex64::from_polar(norm * wy * (2.0 * PI / n_psi as f64) * f * d, (m - mp) as f64 * phi);
+        }
+    }
+    v
+}
+
+/// Wigner small d by the explicit sum (used for checks and quadrature).
+fn small_d(j: i64, mp: i64, m: i64, beta: f64) -> f64 {
+    super::wigner::small_d_explicit(j, mp, m, beta)
+}
+
 #[cfg(test)]
 mod polarization_tests {
     use super::*;
@@ -394,6 +429,43 @@ mod polarization_tests {
             for (j, sj) in states.iter().enumerate() {
                 if si.2 != sj.2 {
                     assert_eq!(a[(i, j)], 0.0);
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn detector_plane_operator_is_one_half_on_average_and_reduces_to_abs_cos_for_fixed_m() {
+        // (Groundwork: the all-M solver does not evaluate this operator yet; see DEVELOPERS §10.)
+        // Exact limits: summed over M (an isotropic level) ⟨cos²θ_2D⟩ = 1/2, the mean of cos²ψ; between
+        // states of equal M the φ average of cos²θ/(cos²θ + sin²θ cos²φ) is |cosθ| (closed form), so those
+        // elements equal the M-conserving ⟨|cosθ|⟩ matrix (Gauss–Legendre on each half of θ, checked
+        // elsewhere). Linear molecule (K = 0) and a top's K = 1 and 2.
+        for k in [0i64, 1, 2] {
+            for j in k.max(0)..=5 {
+                let mut trace = Complex64::new(0.0, 0.0);
+                for m in -j..=j {
+                    trace += detector_plane_cos2((j, k, m), (j, k, m), 48);
+                }
+                let mean = trace / (2 * j + 1) as f64;
+                assert!((mean.re - 0.5).abs() < 1e-12 && mean.im.abs() < 1e-12, "K = {k}, J = {j}: {mean}");
+            }
+        }
+        let frame = crate::basis::top::TopFrame {
+            axes: [crate::molecule::top::BodyAxis::A, crate::molecule::top::BodyAxis::B, crate::molecule::top::BodyAxis::C],
+            az: 1.0,
+            bx: 0.5,
+            by: 0.5,
+            distortion: [0.0; 3],
+            symmetric: true,
+        };
+        for (k, m) in [(0i64, 0i64), (0, 1), (1, 1), (2, -1)] {
+            let basis = crate::basis::top::TopBlockBasis::new(&frame, crate::basis::top::TopBlock { m, sym: crate::basis::top::TopSym::K(k), j_max: 7 });
+            let abs = basis.abs_direction_cosine(0);
+            for r in 0..basis.size() {
+                for c in 0..basis.size() {
+                    let got = detector_plane_cos2((basis.j(r), k, m), (basis.j(c), k, m), 64);
+                    assert!((got.re - abs[(r, c)]).abs() < 1e-10 && got.im.abs() < 1e-12, "K {k} M {m} ({r}, {c}): {got} vs {}", abs[(r, c)]);
                 }
             }
         }

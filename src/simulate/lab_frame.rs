@@ -511,32 +511,33 @@ impl LabOps {
         self.slices.iter().rev().take(2).map(|s| s.nk * s.mus.len()).sum()
     }
 
-    /// f = (V ψ)ᵀ: the function-basis states, transposed (row r of the states in f[r·cols..]).
-    fn states_to_functions(&self, psi: &[f64], n: usize, cols: usize, f: &mut [f64]) {
+    /// Calls `each(Vᵀ, first state, length)` for every (J, M combination) range of states, with Vᵀ the
+    /// transposed eigenvectors of that J (one basis change per range).
+    fn for_each_range(&self, mut each: impl FnMut(Strided<'_>, usize, usize)) {
         for sl in &self.slices {
             let len = sl.nk;
             let v = &self.basis.vectors[sl.range];
             let vt = Strided { data: v.as_slice(), offset: 0, shape: (len, len), strides: (len, 1) };
             for mu in 0..sl.mus.len() {
-                let s = sl.start + mu * len;
-                let rows_t = Strided { data: psi, offset: s, shape: (cols, len), strides: (n, 1) };
-                gemm_strided(rows_t, vt, f, s * cols, (1, cols));
+                each(vt, sl.start + mu * len, len);
             }
         }
     }
 
+    /// f = (V ψ)ᵀ: the function-basis states, transposed (row r of the states in f[r·cols..]).
+    fn states_to_functions(&self, psi: &[f64], n: usize, cols: usize, f: &mut [f64]) {
+        self.for_each_range(|vt, s, len| {
+            let rows_t = Strided { data: psi, offset: s, shape: (cols, len), strides: (n, 1) };
+            gemm_strided(rows_t, vt, f, s * cols, (1, cols));
+        });
+    }
+
     /// ψ = Vᵀ f for states given transposed in the function basis.
     fn functions_to_states(&self, f: &[f64], n: usize, cols: usize, psi: &mut [f64]) {
-        for sl in &self.slices {
-            let len = sl.nk;
-            let v = &self.basis.vectors[sl.range];
-            let vt = Strided { data: v.as_slice(), offset: 0, shape: (len, len), strides: (len, 1) };
-            for mu in 0..sl.mus.len() {
-                let s = sl.start + mu * len;
-                let rows = Strided { data: f, offset: s * cols, shape: (len, cols), strides: (cols, 1) };
-                gemm_strided(vt, rows, psi, s, (1, n));
-            }
-        }
+        self.for_each_range(|vt, s, len| {
+            let rows = Strided { data: f, offset: s * cols, shape: (len, cols), strides: (cols, 1) };
+            gemm_strided(vt, rows, psi, s, (1, n));
+        });
     }
 
     /// ψ ← exp(iθA) ψ for the coupling A (eigenbasis in and out, through the function basis).

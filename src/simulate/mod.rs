@@ -96,6 +96,23 @@ impl RunResult {
     }
 }
 
+/// The three-axis series min(⟨cos²⟩ alignment axis with Z, ⟨cos²⟩ second axis with X) from a top's
+/// trace: the X column when pulses were polarized away from Z, else (1 − ⟨cos²⟩ with Z)/2 (symmetric about Z).
+fn three_axis_of_averages(top: &crate::molecule::top::Top, trace: &Trace) -> Vec<f64> {
+    let by_axis = |a: BodyAxis| match a {
+        BodyAxis::A => &trace.cos2_a,
+        BodyAxis::B => &trace.cos2_b,
+        BodyAxis::C => &trace.cos2_c,
+    };
+    let z = by_axis(top.alignment_axis);
+    let second = top.second_axis();
+    let name = format!("cos2_X{}", second.letter());
+    match trace.lab_axes.iter().find(|c| c.0 == name) {
+        Some((_, x)) => z.iter().zip(x).map(|(a, b)| a.min(*b)).collect(),
+        None => z.iter().zip(by_axis(second)).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect(),
+    }
+}
+
 /// Key of cached block operators: (|M|, parity, size, with ⟨cos²θ_2D⟩).
 type OpsKey = (u32, u32, usize, bool);
 
@@ -575,6 +592,9 @@ impl Solver {
                     for series in [&mut t.cos2, &mut t.cos2_2d, &mut t.cos, &mut t.cos3, &mut t.cos2_a, &mut t.cos2_b, &mut t.cos2_c] {
                         series.iter_mut().for_each(|v| *v *= w);
                     }
+                    for (_, series) in t.lab_axes.iter_mut() {
+                        series.iter_mut().for_each(|v| *v *= w);
+                    }
                     out = Some(first);
                 }
                 Some(acc) => {
@@ -590,6 +610,9 @@ impl Solver {
                     for (a, b) in pairs {
                         a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
                     }
+                    for ((_, a), (_, b)) in acc.trace.lab_axes.iter_mut().zip(&r.trace.lab_axes) {
+                        a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
+                    }
                     for (a, b) in acc.blocks.iter_mut().zip(&r.blocks) {
                         if b.j_max > a.j_max {
                             *a = b.clone();
@@ -599,6 +622,10 @@ impl Solver {
             }
         }
         let mut r = out.expect("at least two quadrature points");
+        // The three-axis goal of the average is the smaller of the two averaged values (not a mean of minima).
+        if let Some(t) = &self.top {
+            r.trace.three_axis = three_axis_of_averages(&t.top, &r.trace);
+        }
         r.permanent_cos2 = perm;
         r.permanent_cos2_2d = perm2d;
         r.permanent_cos = r.permanent_cos.map(|_| perm_cos);
