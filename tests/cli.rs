@@ -913,3 +913,18 @@ fn rejects_or_finishes_inline_molecule_strong_pulse_finishes_in_reasonable_time(
     assert!(r.stderr.lines().count() <= 1, "{}", r.stderr);
     assert!(matches!(r.code, Some(0) | Some(1) | Some(2)), "exit {:?}: {}", r.code, r.stderr);
 }
+
+#[test]
+fn scenario_bad_polarization_and_three_axis_goal_on_a_linear_molecule() {
+    // Checks: ellipticity outside [0, 1] and a three-axis goal for a linear molecule fail with exit code 2
+    // and a one-line error naming the field; nothing is written.
+    let mut v = good_scenario();
+    v["pulses"][0]["polarization"] = json!({"angle_deg": 30, "ellipticity": 1.2});
+    simulate_fails_on("bad-ellipticity", &v, "pulses[0].polarization.ellipticity");
+    let mut v = good_scenario();
+    v["pulses"][0]["polarization"] = json!({"angle_deg": "thirty"});
+    simulate_fails_on("bad-angle", &v, "pulses[0].polarization.angle_deg");
+    let mut v = good_scenario();
+    v["goal"] = json!({"kind": "peak", "observable": "three_axis", "window_ps": [0.1, 5.0], "step_fs": 50});
+    simulate_fails_on("three-axis-linear", &v, "goal.observable");
+}

@@ -538,7 +538,10 @@ impl Objective {
         if goal.observable == Observable::ThreeAxis && obj.molecule().top.is_none() {
             return Err(Error::input("goal.observable", format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", obj.molecule().name)));
         }
-        let polarized = obj.space.pulses.iter().any(|p| !(p.angle_deg.is_fixed() && p.ellipticity.is_fixed() && p.ellipticity.min == 0.0 && (p.angle_deg.min / 180.0).fract() == 0.0));
+        let along_z = |p: &PulseBounds| {
+            p.angle_deg.is_fixed() && p.ellipticity.is_fixed() && crate::field::PulsePolarization { angle_deg: p.angle_deg.min, ellipticity: p.ellipticity.min }.is_along_z()
+        };
+        let polarized = !obj.space.pulses.iter().all(along_z);
         if polarized && (obj.space.static_field_kv_cm.is_some() || obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
             return Err(Error::input("pulses.polarization", "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses"));
         }
