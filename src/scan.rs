@@ -40,7 +40,7 @@ pub enum Metric {
     PeakCos2,
 }
 
-/// The result of a scan: values[iy][ix] (iy = 0 for 1D scans).
+/// The result of a scan: `values[iy][ix]` (iy = 0 for 1D scans).
 #[derive(Debug, Clone)]
 pub struct ScanResult {
     /// The first axis.

@@ -136,7 +136,7 @@ fn couple(u: [Complex64; 3], v: [Complex64; 3]) -> [[Complex64; 5]; 3] {
 }
 
 /// Lab-frame factor of Φ_{F₁g} Φ_{F₂g}: with [`body_square`] it gives
-/// Φ_{F₁g} Φ_{F₂g} = Σ_r Σ_{P,Q} lab[r][P+2] · body[r][Q+2] · D^r_PQ(Ω)* (Clebsch–Gordan series).
+/// Φ_{F₁g} Φ_{F₂g} = Σ_r Σ_{P,Q} `lab[r][P+2]` · `body[r][Q+2]` · D^r_PQ(Ω)* (Clebsch–Gordan series).
 pub fn lab_pair(f1: LabAxis, f2: LabAxis) -> [[Complex64; 5]; 3] {
     let idx = |f: LabAxis| match f {
         LabAxis::X => 0,
@@ -157,7 +157,7 @@ pub fn body_square(body: usize) -> [[Complex64; 5]; 3] {
     couple(c, c)
 }
 
-/// The operator Σ_r Σ_{P,Q} lab[r][P+2] body[r][Q+2] D^r_PQ* as a [`LabOperator`].
+/// The operator Σ_r Σ_{P,Q} `lab[r][P+2]` `body[r][Q+2]` D^r_PQ* as a [`LabOperator`].
 pub fn factored_operator(lab: &[[Complex64; 5]; 3], body: &[[Complex64; 5]; 3]) -> LabOperator {
     let mut op = LabOperator { identity: 0.0, terms: vec![] };
     for (r, (lr, br)) in lab.iter().zip(body).enumerate() {
