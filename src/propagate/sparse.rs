@@ -130,6 +130,20 @@ thread_local! {
     static WORK: std::cell::RefCell<[Vec<f64>; 4]> = const { std::cell::RefCell::new([Vec::new(), Vec::new(), Vec::new(), Vec::new()]) };
 }
 
+thread_local! {
+    /// Scratch for the function-basis copy of a block's states around a kick or an evaluation.
+    static SCRATCH: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// Run `f` on a reused thread-local buffer of `len` numbers (contents unspecified on entry: write before
+/// reading). Not re-entrant: `f` must not call `with_scratch` itself.
+pub fn with_scratch<R>(len: usize, f: impl FnOnce(&mut [f64]) -> R) -> R {
+    SCRATCH.with_borrow_mut(|buf| {
+        buf.resize(len.max(buf.len()), 0.0);
+        f(&mut buf[..len])
+    })
+}
+
 /// Bessel functions J_0(z) … J_kmax(z) by Miller's backward recurrence, normalized with
 /// J_0 + 2 Σ J_2k = 1 (Abramowitz & Stegun 9.1.46 and 9.12).
 pub fn bessel_j_series(z: f64, kmax: usize) -> Vec<f64> {

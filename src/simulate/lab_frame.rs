@@ -26,7 +26,7 @@ use crate::field::{FieldModel, PulsePolarization};
 use crate::molecule::top::BodyAxis;
 use crate::numeric::{Strided, gemm_strided};
 use crate::observe::pairs::PairSums;
-use crate::propagate::sparse::{Csr, chebyshev_kick_transposed};
+use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
 use crate::propagate::{BlockState, FreePhases, propagate_finite};
 use crate::scenario::SolverSettings;
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
@@ -540,16 +540,23 @@ impl LabOps {
         });
     }
 
+    /// Run `f` on a read-only evaluation of the states in the function basis, transposed (`f(states, cols)`,
+    /// see `states_to_functions`).
+    fn in_functions<R>(&self, state: &BlockState, f: impl FnOnce(&mut [f64], usize) -> R) -> R {
+        let (n, cols) = state.psi.shape();
+        with_scratch(n * cols, |buf| {
+            self.states_to_functions(state.psi.as_slice(), n, cols, buf);
+            f(buf, cols)
+        })
+    }
+
     /// ψ ← exp(iθA) ψ for the coupling A (eigenbasis in and out, through the function basis).
     fn kick(&self, state: &mut BlockState, theta: f64, a: &Csr) {
         if theta == 0.0 {
             return;
         }
-        BUFFER.with(|b| {
-            let mut f = b.borrow_mut();
-            let (n, cols) = state.psi.shape();
-            f.resize(n * cols, 0.0);
-            let f = &mut f[..n * cols];
+        let (n, cols) = state.psi.shape();
+        with_scratch(n * cols, |f| {
             self.states_to_functions(state.psi.as_slice(), n, cols, f);
             chebyshev_kick_transposed(a, theta, f, cols);
             self.functions_to_states(f, n, cols, state.psi.as_mut_slice());
@@ -560,12 +567,8 @@ impl LabOps {
     fn expect(&self, state: &BlockState, pops: &[f64]) -> [f64; 9] {
         let obs = self.observables();
         let mut out = [0.0; 9];
-        BUFFER.with(|b| {
-            let mut f = b.borrow_mut();
-            let (n, cols) = state.psi.shape();
-            f.resize(n * cols, 0.0);
-            let f = &mut f[..n * cols];
-            self.states_to_functions(state.psi.as_slice(), n, cols, f);
+        self.in_functions(state, |f, cols| {
+            let n = state.psi.nrows();
             let k = state.k;
             let w: Vec<f64> = (0..cols).map(|c| pops[c % k]).collect();
             let mut wr = vec![0.0; cols];
@@ -646,11 +649,6 @@ impl LabOps {
         }
         out
     }
-}
-
-thread_local! {
-    /// The function-basis copy of the states during a kick or an evaluation.
-    static BUFFER: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
 /// Coherence coefficients of one chunk: per (J, d) the nine observables' (Re, Im) matrices.

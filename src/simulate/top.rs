@@ -15,7 +15,7 @@ use crate::numeric::{Strided, gemm_strided};
 use crate::observe::pairs::PairSums;
 use crate::observe::{FreeSums, Trace};
 use crate::propagate::polar::PolarOps;
-use crate::propagate::sparse::{Csr, chebyshev_kick_transposed};
+use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
 use crate::propagate::{BlockState, propagate_finite};
 use crate::scenario::{Method, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
@@ -82,11 +82,8 @@ impl TopOps {
         if theta == 0.0 {
             return;
         }
-        KICK_BUFFER.with(|b| {
-            let mut f = b.borrow_mut();
-            let (n, cols) = state.psi.shape();
-            f.resize(n * cols, 0.0);
-            let f = &mut f[..n * cols];
+        let (n, cols) = state.psi.shape();
+        with_scratch(n * cols, |f| {
             // f = (V ψ)ᵀ per J range: the function-basis states, transposed (cols × n) for the sparse
             // products, computed and undone by strided products without copies.
             for (r, &(_, s, len)) in self.basis.j_ranges.iter().enumerate() {
@@ -116,11 +113,6 @@ impl TopOps {
         let r = &self.basis.j_ranges;
         r.iter().rev().take(2).map(|x| x.2).sum()
     }
-}
-
-thread_local! {
-    /// The function-basis copy of the states during a kick, reused across kicks of the same shape.
-    static KICK_BUFFER: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
 /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis), one matrix product per stored block.
