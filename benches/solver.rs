@@ -134,8 +134,8 @@ fn main() {
 
 /// Job 5 (3D alignment): the asymmetric top of job 4, one 1 ps pulse polarized elliptically (major axis
 /// Z, ellipticity 0.5), trace 0–400 ps every 200 fs, at the temperatures in KICKTRAIN_BENCH_3D_K
-/// (default "1") and peak intensities in KICKTRAIN_BENCH_3D_I (W/cm², default "5e11"); prints where the
-/// time goes.
+/// (default "1") and peak intensities in KICKTRAIN_BENCH_3D_I (W/cm², default "5e11"), without and with
+/// ⟨cos²θ_2D⟩ (KICKTRAIN_BENCH_3D_2D, default "0,1"); prints where the time goes.
 fn three_axis() {
     let top = kicktrain::molecule::top::Top::rigid(0.19, 0.025, 0.022, [20.0, 12.0, 9.0]);
     let mol = Molecule::from_top("benchmark top", top, 0.0, None);
@@ -143,28 +143,30 @@ fn three_axis() {
     let list = |key: &str, default: &str| -> Vec<f64> {
         std::env::var(key).unwrap_or_else(|_| default.into()).split(',').filter_map(|x| x.trim().parse::<f64>().ok()).collect()
     };
-    println!("asymmetric top (0.19, 0.025, 0.022) cm⁻¹, one elliptical (0.5) 1 ps pulse, 0–400 ps every 200 fs, all nine ⟨cos²⟩");
+    println!("asymmetric top (0.19, 0.025, 0.022) cm⁻¹, one elliptical (0.5) 1 ps pulse, 0–400 ps every 200 fs, all nine ⟨cos²⟩ (and ⟨cos²θ_2D⟩)");
     for intensity in list("KICKTRAIN_BENCH_3D_I", "5e11") {
         let pulse = Pulse { polarization: PulsePolarization { angle_deg: 0.0, ellipticity: 0.5 }, ..Pulse::gaussian(0.0, 1000.0, intensity) };
         let field = FieldModel { pulses: vec![pulse], ..Default::default() };
-        for t in list("KICKTRAIN_BENCH_3D_K", "1") {
+        for (t, with_2d) in list("KICKTRAIN_BENCH_3D_K", "1").into_iter().flat_map(|t| list("KICKTRAIN_BENCH_3D_2D", "0,1").into_iter().map(move |d| (t, d != 0.0))) {
             let t0 = Instant::now();
             let solver = Solver::new(&mol, t, SolverSettings::default()).unwrap();
-            let r = solver.run(&field, &times, false).unwrap();
+            let r = solver.run(&field, &times, with_2d).unwrap();
             let secs = t0.elapsed().as_secs_f64();
             let tm = solver.lab_timing().unwrap_or_default();
             let col = |n: &str| r.trace.lab_axes.iter().find(|c| c.0 == n).map(|c| c.1.iter().cloned().fold(0.0, f64::max)).unwrap_or(f64::NAN);
             let j = r.blocks.iter().map(|b| b.j_max).max().unwrap_or(0);
             let size = r.blocks.iter().map(|b| b.size).max().unwrap_or(0);
             println!(
-                "  {intensity:.0e} W/cm², {t} K: {secs:.1} s ({} initial states, largest block {size} states up to J = {j}); thread-seconds: propagation {:.1}, observables {:.1}; coherence sums {:.1} s; peaks ⟨cos²θ_Za⟩ {:.4}, ⟨cos²θ_Xb⟩ {:.4}, ⟨cos²θ_Yc⟩ {:.4}",
+                "  {intensity:.0e} W/cm², {t} K{}: {secs:.1} s ({} initial states, largest block {size} states up to J = {j}); thread-seconds: propagation {:.1}, observables {:.1}; coherence sums {:.1} s; peaks ⟨cos²θ_Za⟩ {:.4}, ⟨cos²θ_Xb⟩ {:.4}, ⟨cos²θ_Yc⟩ {:.4}{}",
+                if with_2d { " with 2D" } else { "" },
                 solver.initial_states(),
                 tm.propagate_cpu_s,
                 tm.observe_cpu_s,
                 tm.sums_s,
                 col("cos2_Za"),
                 col("cos2_Xb"),
-                col("cos2_Yc")
+                col("cos2_Yc"),
+                if with_2d { format!(", ⟨cos²θ_2D⟩ {:.4}", r.trace.cos2_2d.iter().cloned().fold(0.0, f64::max)) } else { String::new() }
             );
         }
     }

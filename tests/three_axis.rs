@@ -33,21 +33,27 @@ fn z_polarized_pulses_through_the_all_m_path_reproduce_the_m_conserving_solvers(
     let times: Vec<f64> = (0..=120).map(|i| -1.0 + 0.1 * i as f64).collect();
     let n2 = Molecule::from_library("N2", "molecule").unwrap();
     let train = FieldModel::pulses(vec![pulse(0.0, 100.0, 3e13, 0.0, 0.0), pulse(4.0, 100.0, 2e13, 0.0, 0.0)]);
+    // ⟨cos²θ_2D⟩ too: the M-conserving solvers use ⟨|cosθ|⟩ (the azimuthal average of cos²θ_2D for an
+    // ensemble symmetric about Z, exact), the all-M path the full operator quantized along the beam.
     for method in [Method::Kick, Method::Finite] {
         let solver = Solver::new(&n2, 20.0, SolverSettings { method, ..Default::default() }).unwrap();
-        let a = solver.run(&train, &times, false).unwrap().trace;
-        let b = solver.run_lab_frame(&train, &times).unwrap().trace;
-        let d = max_diff(&a.cos2, &b.cos2);
+        let a = solver.run(&train, &times, true).unwrap();
+        let b = solver.run_lab_frame(&train, &times, true).unwrap();
+        let d = max_diff(&a.trace.cos2, &b.trace.cos2);
         assert!(d < 1e-8, "N2 {method:?}: {d}");
-        assert!(a.cos2.iter().cloned().fold(0.0, f64::max) > 0.5, "the train aligns");
+        let d = max_diff(&a.trace.cos2_2d, &b.trace.cos2_2d);
+        assert!(d < 1e-8, "N2 {method:?} 2D: {d}");
+        assert!((a.permanent_cos2_2d - b.permanent_cos2_2d).abs() < 1e-8, "N2 {method:?} 2D permanent");
+        assert!(a.trace.cos2.iter().cloned().fold(0.0, f64::max) > 0.5, "the train aligns");
+        assert!(a.trace.cos2_2d.iter().cloned().fold(0.0, f64::max) > 0.7, "and shows in the detector plane");
     }
     let top = asymmetric();
     let field = FieldModel::pulses(vec![pulse(0.0, 1000.0, 3e11, 0.0, 0.0)]);
     let times: Vec<f64> = (0..=60).map(|i| -3.0 + 0.5 * i as f64).collect();
     let solver = Solver::new(&top, 0.3, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
-    let a = solver.run(&field, &times, false).unwrap().trace;
-    let b = solver.run_lab_frame(&field, &times).unwrap().trace;
-    for (x, y, axis) in [(&a.cos2_a, &b.cos2_a, "a"), (&a.cos2_b, &b.cos2_b, "b"), (&a.cos2_c, &b.cos2_c, "c")] {
+    let a = solver.run(&field, &times, true).unwrap().trace;
+    let b = solver.run_lab_frame(&field, &times, true).unwrap().trace;
+    for (x, y, axis) in [(&a.cos2_a, &b.cos2_a, "a"), (&a.cos2_b, &b.cos2_b, "b"), (&a.cos2_c, &b.cos2_c, "c"), (&a.cos2_2d, &b.cos2_2d, "a in 2D")] {
         let d = max_diff(x, y);
         assert!(d < 1e-8, "top axis {axis}: {d}");
     }
@@ -61,8 +67,12 @@ fn rotating_the_polarization_by_90_degrees_exchanges_x_and_z() {
     let times: Vec<f64> = (0..=48).map(|i| -2.0 + 0.5 * i as f64).collect();
     let top = asymmetric();
     let solver = Solver::new(&top, 0.2, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
-    let along_z = solver.run(&FieldModel::pulses(vec![pulse(0.0, 700.0, 3e11, 0.0, 0.6)]), &times, false).unwrap().trace;
-    let along_x = solver.run(&FieldModel::pulses(vec![pulse(0.0, 700.0, 3e11, 90.0, 0.6)]), &times, false).unwrap().trace;
+    let along_z = solver.run(&FieldModel::pulses(vec![pulse(0.0, 700.0, 3e11, 0.0, 0.6)]), &times, true).unwrap().trace;
+    let along_x = solver.run(&FieldModel::pulses(vec![pulse(0.0, 700.0, 3e11, 90.0, 0.6)]), &times, true).unwrap().trace;
+    // In the detector plane the projected angle from Z moves by 90°: cos²θ_2D ↔ sin²θ_2D.
+    let flipped: Vec<f64> = along_x.cos2_2d.iter().map(|v| 1.0 - v).collect();
+    assert!(max_diff(&along_z.cos2_2d, &flipped) < 1e-9, "2D: X ↔ Z");
+    assert!(along_z.cos2_2d.iter().cloned().fold(0.0, f64::max) > 0.6, "the a axis shows along Z in the detector plane");
     for body in ["a", "b", "c"] {
         let (x, y, z) = (format!("cos2_X{body}"), format!("cos2_Y{body}"), format!("cos2_Z{body}"));
         assert!(max_diff(column(&along_z, &x), column(&along_x, &z)) < 1e-9, "{body}: X ↔ Z");
@@ -83,10 +93,13 @@ fn direction_cosines_are_isotropic_without_a_field_and_sum_to_one_at_all_times()
     let times: Vec<f64> = (0..=24).map(|i| -2.0 + 0.5 * i as f64).collect();
     let top = asymmetric();
     let solver = Solver::new(&top, 0.15, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
-    let none = solver.run_lab_frame(&FieldModel::default(), &times).unwrap().trace;
+    let none = solver.run_lab_frame(&FieldModel::default(), &times, true).unwrap().trace;
     for (name, series) in &none.lab_axes {
         assert!(series.iter().all(|v| (v - 1.0 / 3.0).abs() < 1e-12), "{name} without a field");
     }
+    // Isotropic ⟨cos²θ_2D⟩ = 1/2 (exact) with the full φ-dependent operator.
+    assert_eq!(none.cos2_2d.len(), times.len());
+    assert!(none.cos2_2d.iter().all(|v| (v - 0.5).abs() < 1e-12), "2D without a field: {:?}", &none.cos2_2d[..3]);
     let t = solver.run(&FieldModel::pulses(vec![pulse(0.0, 500.0, 3e11, 35.0, 0.4)]), &times, false).unwrap().trace;
     for (i, time) in times.iter().enumerate() {
         for body in ["a", "b", "c"] {
@@ -115,7 +128,7 @@ fn three_axis_goal_agrees_between_the_symmetric_formula_and_the_all_m_path() {
     let times = goal.times(0.0);
     let solver = Solver::new(&top, 0.2, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
     let a = solver.run(&field, &times, false).unwrap();
-    let b = solver.run_lab_frame(&field, &times).unwrap();
+    let b = solver.run_lab_frame(&field, &times, false).unwrap();
     let d = max_diff(&a.trace.three_axis, &b.trace.three_axis);
     assert!(d < 1e-8, "series differ by {d}");
     let (sa, sb) = (score_goal(&goal, &a.trace, &a.final_sums, 0.0), score_goal(&goal, &b.trace, &b.final_sums, 0.0));
@@ -132,16 +145,33 @@ fn symmetric_tops_and_linear_molecules_run_through_the_same_path() {
     let times: Vec<f64> = (0..=40).map(|i| -0.5 + 0.25 * i as f64).collect();
     let field = FieldModel::pulses(vec![pulse(0.0, 200.0, 5e12, 0.0, 0.0)]);
     let solver = Solver::new(&prolate, 3.0, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
-    let a = solver.run(&field, &times, false).unwrap().trace;
-    let b = solver.run_lab_frame(&field, &times).unwrap().trace;
+    let a = solver.run(&field, &times, true).unwrap().trace;
+    let b = solver.run_lab_frame(&field, &times, true).unwrap().trace;
     let d = max_diff(&a.cos2, &b.cos2);
     assert!(d < 1e-8, "prolate top: {d}");
+    let d = max_diff(&a.cos2_2d, &b.cos2_2d);
+    assert!(d < 1e-8, "prolate top 2D: {d}");
     assert!(a.cos2.iter().cloned().fold(0.0, f64::max) > 0.4, "the pulse aligns the figure axis");
+    // An oblate top aligns an axis perpendicular to its figure axis: the M-conserving path's detector-plane
+    // value is ⟨(2/π) sinθ⟩ (|cosχ| averaged about the figure axis), the all-M path's the exact χ average of
+    // e^{2iψ} about the beam; for a field symmetric about Z they must agree.
+    let oblate = Molecule::from_top("oblate demo", Top::rigid(0.19, 0.19, 0.095, [10.0, 10.0, 6.0]), 0.0, None);
+    let solver = Solver::new(&oblate, 1.0, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
+    let times: Vec<f64> = (0..=40).map(|i| -0.5 + 0.5 * i as f64).collect();
+    let field = FieldModel::pulses(vec![pulse(0.0, 300.0, 2e12, 0.0, 0.0)]);
+    let a = solver.run(&field, &times, true).unwrap().trace;
+    let b = solver.run_lab_frame(&field, &times, true).unwrap().trace;
+    let d = max_diff(&a.cos2_2d, &b.cos2_2d);
+    assert!(d < 1e-8, "oblate top 2D: {d}");
+    let spread = a.cos2_2d.iter().cloned().fold(0.0, f64::max) - a.cos2_2d.iter().cloned().fold(1.0, f64::min);
+    assert!(spread > 0.02, "the pulse moves the in-plane axis ({spread})");
     let co2 = Molecule::from_library("CO2", "molecule").unwrap();
     let solver = Solver::new(&co2, 5.0, SolverSettings { method: Method::Kick, ..Default::default() }).unwrap();
     let times: Vec<f64> = (0..=100).map(|i| 0.1 * i as f64).collect();
-    let along_z = solver.run_lab_frame(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 0.0, 0.0)]), &times).unwrap().trace;
-    let along_x = solver.run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 90.0, 0.0)]), &times, false).unwrap().trace;
+    let along_z = solver.run_lab_frame(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 0.0, 0.0)]), &times, true).unwrap().trace;
+    let along_x = solver.run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 90.0, 0.0)]), &times, true).unwrap().trace;
+    let flipped: Vec<f64> = along_x.cos2_2d.iter().map(|v| 1.0 - v).collect();
+    assert!(max_diff(&along_z.cos2_2d, &flipped) < 1e-9, "2D: X ↔ Z");
     assert!(max_diff(column(&along_z, "cos2_Z"), column(&along_x, "cos2_X")) < 1e-9);
     assert!(max_diff(column(&along_z, "cos2_X"), column(&along_x, "cos2_Z")) < 1e-9);
     assert!(max_diff(column(&along_z, "cos2_Y"), column(&along_x, "cos2_Y")) < 1e-9);

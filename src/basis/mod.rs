@@ -4,6 +4,7 @@
 //! into independent (|M|, parity) blocks. Inside a block the states are J = j_min, j_min + 2, ….
 
 pub mod lab;
+pub mod detector;
 pub mod legendre;
 pub mod top;
 pub mod wigner;

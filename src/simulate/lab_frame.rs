@@ -17,7 +17,10 @@
 //! assembled into the sparse coupling for Chebyshev kicks, and, after the pulses, contracted with the
 //! states into coherence sums over pairs of field-free levels (M-degenerate sublevels summed exactly).
 
+mod detector;
+
 use super::{BlockReport, Event};
+use crate::basis::detector::{DetectorAxis, DetectorTable};
 use crate::basis::lab::{LabAxis, Polarization, body_square, lab_pair};
 use crate::basis::top::{BasisFunction, TopBlock, TopBlockBasis, TopFrame, TopSym};
 use crate::basis::wigner::three_j;
@@ -30,6 +33,7 @@ use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
 use crate::propagate::{BlockState, FreePhases, propagate_finite};
 use crate::scenario::SolverSettings;
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
+use detector::{DetectorCoefficients, DetectorOps};
 use nalgebra::DMatrix;
 use num_complex::Complex64;
 use rayon::prelude::*;
@@ -97,6 +101,8 @@ pub struct LabRotor {
     pub linear: bool,
     /// Level classes with their thermal populations.
     pub classes: Vec<LevelClass>,
+    /// The axis whose detector-plane alignment ⟨cos²θ_2D⟩ is reported (None: not available).
+    pub detector_axis: Option<DetectorAxis>,
 }
 
 impl LabRotor {
@@ -114,7 +120,13 @@ impl LabRotor {
             .filter(|b| b.m == 0)
             .map(|b| LevelClass { sym: b.sym, j_parity: None, weight: b.weight, levels: b.levels.clone() })
             .collect();
-        LabRotor { frame: t.frame.clone(), alpha_weights: [w(0), w(1), w(2)], delta_alpha_a3: da, linear: false, classes }
+        // The alignment axis along the K axis, or (symmetric tops, K conserved) perpendicular to it.
+        let detector_axis = match t.frame.position(t.top.alignment_axis) {
+            0 => Some(DetectorAxis::FrameZ),
+            _ if t.frame.symmetric => Some(DetectorAxis::Perpendicular),
+            _ => None,
+        };
+        LabRotor { frame: t.frame.clone(), alpha_weights: [w(0), w(1), w(2)], delta_alpha_a3: da, linear: false, classes, detector_axis }
     }
 
     /// A linear molecule: K = 0 only, the molecular axis as frame z, parity of J as the body symmetry.
@@ -141,7 +153,7 @@ impl LabRotor {
                 levels: b.levels.iter().map(|&(j, p)| (j as i64, 0, p)).collect(),
             })
             .collect();
-        LabRotor { frame, alpha_weights: [w(par), w(perp), w(perp)], delta_alpha_a3: da, linear: true, classes }
+        LabRotor { frame, alpha_weights: [w(par), w(perp), w(perp)], delta_alpha_a3: da, linear: true, classes, detector_axis: Some(DetectorAxis::FrameZ) }
     }
 }
 
@@ -302,6 +314,8 @@ pub struct LabOps {
     coupling: MultiCsr,
     /// Nine observables Φ_Fg² (F = X, Y, Z; g = frame position), built when first needed.
     observables: OnceLock<MultiCsr>,
+    /// Change to Y quantization and |K| matches for ⟨cos²θ_2D⟩, built when first needed.
+    detector: OnceLock<DetectorOps>,
     /// Coupling per polarization, cached.
     by_polarization: Mutex<HashMap<(u64, u64), Arc<Csr>>>,
     /// Largest angular frequency of a transition the coupling drives, rad/ps.
@@ -385,6 +399,7 @@ impl LabOps {
             pairs,
             coupling: MultiCsr::new(0, 1, vec![]),
             observables: OnceLock::new(),
+            detector: OnceLock::new(),
             by_polarization: Mutex::new(HashMap::new()),
             fastest: 0.0,
         };
@@ -479,6 +494,11 @@ impl LabOps {
         })
     }
 
+    /// What ⟨cos²θ_2D⟩ needs of this block.
+    fn detector(&self) -> &DetectorOps {
+        self.detector.get_or_init(|| DetectorOps::new(self))
+    }
+
     /// The coupling of one polarization (spectrum in [0, 1]).
     fn coupling_for(&self, pol: &PulsePolarization) -> Arc<Csr> {
         let key = (pol.angle_deg.to_bits(), pol.ellipticity.to_bits());
@@ -503,7 +523,8 @@ impl LabOps {
         let nnz = self.coupling.col.len();
         let later = 80 * nnz + POLARIZATION_CACHE * 16 * nnz;
         let pairs: usize = self.pairs.iter().map(|p| 16 * p.lab.iter().map(|l| l.len()).sum::<usize>() + 8 * 12 * p.body[0][0].len()).sum();
-        pairs + self.coupling.bytes() + later + 8 * self.omega.len()
+        let detector = self.detector.get().map(|d| d.bytes()).unwrap_or(0);
+        pairs + self.coupling.bytes() + later + 8 * self.omega.len() + detector
     }
 
     /// States in the top two J values (the edge watched for truncation).
@@ -657,14 +678,35 @@ type PairCoefficients = Vec<((i64, i64), Vec<(DMatrix<f64>, DMatrix<f64>)>)>;
 /// Level-pair coefficients of one level class, keyed by (J, d): nine (Re, Im) matrices each.
 type ClassCoefficients = HashMap<(i64, i64), Vec<(DMatrix<f64>, DMatrix<f64>)>>;
 
+/// Detector-plane coefficients of one level class, keyed by ordered (J_a, J_b): (Re, Im) of ρ_ab D_ba.
+type ClassDetector = HashMap<(i64, i64), (DMatrix<f64>, DMatrix<f64>)>;
+
 /// Coefficients of all classes, merged in a fixed order.
 #[derive(Default)]
 struct Coefficients {
     classes: HashMap<usize, ClassCoefficients>,
+    /// Detector-plane coefficients per class and the weighted Σ ρ_aa, when ⟨cos²θ_2D⟩ is computed.
+    detector: Option<(HashMap<usize, ClassDetector>, f64)>,
 }
 
 impl Coefficients {
-    fn add(&mut self, class: usize, weight: f64, list: PairCoefficients) {
+    fn add(&mut self, class: usize, weight: f64, list: PairCoefficients, det: Option<DetectorCoefficients>) {
+        if let Some(det) = det {
+            let (by_class, norm) = self.detector.get_or_insert_with(Default::default);
+            *norm += weight * det.norm;
+            let acc = by_class.entry(class).or_default();
+            for (key, (re, im)) in det.pairs {
+                match acc.get_mut(&key) {
+                    Some((hr, hi)) => {
+                        *hr += re * weight;
+                        *hi += im * weight;
+                    }
+                    None => {
+                        acc.insert(key, (re * weight, im * weight));
+                    }
+                }
+            }
+        }
         let acc = self.classes.entry(class).or_default();
         for (key, mats) in list {
             match acc.get_mut(&key) {
@@ -681,10 +723,39 @@ impl Coefficients {
         }
     }
 
-    /// The coherence sums (nine observables) at time `t0_ps`; `energies(class, j)` gives the levels' cm⁻¹.
+    /// The coherence sums at time `t0_ps` (nine observables, and ⟨cos²θ_2D⟩ as the tenth when computed);
+    /// `energies(class, j)` gives the levels' cm⁻¹.
     fn into_sums(self, t0_ps: f64, energies: &dyn Fn(usize, i64) -> Vec<f64>) -> PairSums {
-        let mut sums = PairSums::new(9, t0_ps);
+        let mut sums = PairSums::new(if self.detector.is_some() { 10 } else { 9 }, t0_ps);
         let mut ids: HashMap<(usize, i64, usize), u32> = HashMap::new();
+        if let Some((by_class, norm)) = self.detector {
+            // cos²θ_2D = ½ + ¼(D + D†): ρ_aa O_aa = ½ρ_aa + ½ Re X_aa, and C_ab = ¼(X_ab + conj X_ba), X_ab = ρ_ab D_ba.
+            sums.add_diagonal(9, 0.5 * norm);
+            let mut classes: Vec<_> = by_class.into_iter().collect();
+            classes.sort_by_key(|c| c.0);
+            for (class, acc) in classes {
+                let mut keys: Vec<_> = acc.keys().copied().collect();
+                keys.sort_unstable();
+                for (ja, jb) in keys {
+                    let (re, im) = &acc[&(ja, jb)];
+                    let (ea, eb) = (energies(class, ja), energies(class, jb));
+                    for x in 0..re.ncols() {
+                        for y in 0..re.nrows() {
+                            let c = (re[(y, x)], im[(y, x)]);
+                            if ja == jb && x == y {
+                                sums.add_diagonal(9, 0.5 * c.0);
+                            } else if c.0.abs() + c.1.abs() > 1e-16 {
+                                let next = ids.len() as u32;
+                                let la = *ids.entry((class, ja, x)).or_insert(next);
+                                let next = ids.len() as u32;
+                                let lb = *ids.entry((class, jb, y)).or_insert(next);
+                                sums.add_level_pair(9, (la, cm_to_rad_per_ps(ea[x])), (lb, cm_to_rad_per_ps(eb[y])), (0.25 * c.0, 0.25 * c.1));
+                            }
+                        }
+                    }
+                }
+            }
+        }
         let mut classes: Vec<_> = self.classes.into_iter().collect();
         classes.sort_by_key(|c| c.0);
         for (class, acc) in classes {
@@ -728,7 +799,9 @@ impl Coefficients {
 pub struct LabRun {
     /// ⟨Φ_Fg²⟩(t): [lab axis X, Y, Z][frame position z, x, y] per sample time.
     pub values: [[Vec<f64>; 3]; 3],
-    /// Coherence sums after the last event (parts 3F + frame position).
+    /// ⟨cos²θ_2D⟩ of the alignment axis per sample time (empty when not computed).
+    pub cos2_2d: Vec<f64>,
+    /// Coherence sums after the last event (parts 3F + frame position; part 9 ⟨cos²θ_2D⟩ when computed).
     pub final_sums: PairSums,
     /// One report per block (largest basis and edge population over its chunks).
     pub blocks: Vec<BlockReport>,
@@ -753,9 +826,9 @@ struct ChunkOutcome {
     observe_s: f64,
     class: usize,
     weight: f64,
-    values: Vec<[f64; 9]>,
-    gaps: Vec<PairCoefficients>,
-    final_coeffs: PairCoefficients,
+    values: Vec<[f64; 10]>,
+    gaps: Vec<(PairCoefficients, Option<DetectorCoefficients>)>,
+    final_coeffs: (PairCoefficients, Option<DetectorCoefficients>),
     block: LabBlock,
     j_max: i64,
     size: usize,
@@ -792,13 +865,29 @@ pub struct LabSolver {
     pub rotor: LabRotor,
     settings: SolverSettings,
     cache: Mutex<HashMap<LabBlock, Arc<LabOps>>>,
+    /// θ tables of the detector-plane operator per level class (grown when a larger basis needs them).
+    detector_tables: Mutex<HashMap<usize, Arc<DetectorTable>>>,
     timing: Mutex<LabTiming>,
 }
 
 impl LabSolver {
     /// A solver for `rotor` with `settings`.
     pub fn new(rotor: LabRotor, settings: SolverSettings) -> LabSolver {
-        LabSolver { rotor, settings, cache: Mutex::new(HashMap::new()), timing: Mutex::new(LabTiming::default()) }
+        LabSolver { rotor, settings, cache: Mutex::new(HashMap::new()), detector_tables: Mutex::new(HashMap::new()), timing: Mutex::new(LabTiming::default()) }
+    }
+
+    /// The detector-plane θ table of level class `class` covering J ≤ `j_max` (None: no detector axis).
+    fn detector_table(&self, class: usize, j_max: i64) -> Option<Arc<DetectorTable>> {
+        let axis = self.rotor.detector_axis?;
+        let mut tables = self.detector_tables.lock().expect("detector tables");
+        if let Some(t) = tables.get(&class).filter(|t| t.j_max >= j_max) {
+            return Some(t.clone());
+        }
+        let basis = TopBlockBasis::new(&self.rotor.frame, TopBlock { m: 0, sym: self.rotor.classes[class].sym, j_max });
+        let ks: Vec<i64> = basis.functions.iter().map(|f| f.k).collect();
+        let t = Arc::new(DetectorTable::new(&ks, j_max, axis));
+        tables.insert(class, t.clone());
+        Some(t)
     }
 
     /// Where the time of the last run went.
@@ -828,6 +917,11 @@ impl LabSolver {
                 let e = top.entry(*class).or_insert(0);
                 *e = (*e).max(j);
             }
+            for (class, acc) in c.detector.iter().flat_map(|d| d.0.iter()) {
+                let j = acc.keys().map(|k| k.0.max(k.1)).max().unwrap_or(0);
+                let e = top.entry(*class).or_insert(0);
+                *e = (*e).max(j);
+            }
         }
         let mut out = HashMap::new();
         for (class, j_max) in top {
@@ -840,8 +934,9 @@ impl LabSolver {
     }
 
     /// Run the `events` of `field` (kicks or finite intervals, in time order) with `reach` J values of
-    /// room above each initial level, sampling at `times_ps` (ascending).
-    pub fn run(&self, field: &FieldModel, events: &[Event], reach: i64, times_ps: &[f64]) -> Result<LabRun> {
+    /// room above each initial level, sampling at `times_ps` (ascending); `with_2d` adds ⟨cos²θ_2D⟩.
+    pub fn run(&self, field: &FieldModel, events: &[Event], reach: i64, times_ps: &[f64], with_2d: bool) -> Result<LabRun> {
+        let with_2d = with_2d && self.rotor.detector_axis.is_some();
         let m_parity_kept = field.pulses.iter().all(|p| p.peak_intensity_wcm2 == 0.0 || p.polarization.keeps_xz_axes());
         let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
         // Chunks: per block, initial states (level, M combination) sorted by J, CHUNK at a time.
@@ -874,7 +969,7 @@ impl LabSolver {
         let mut timing = LabTiming::default();
         let (plan, final_from) = sample_plan(events, times_ps);
         let gap_count = plan.iter().flatten().count();
-        let mut values = vec![[0.0; 9]; times_ps.len()];
+        let mut values = vec![[0.0; 10]; times_ps.len()];
         let mut gap_coeffs: Vec<Coefficients> = (0..gap_count).map(|_| Coefficients::default()).collect();
         let mut final_coeffs = Coefficients::default();
         let mut reports: HashMap<(usize, i64, Option<i64>), BlockReport> = HashMap::new();
@@ -883,7 +978,7 @@ impl LabSolver {
         chunks.sort_by_key(|c| std::cmp::Reverse(c.0.j_max));
         let group = 16 * rayon::current_num_threads().max(1);
         for batch in chunks.chunks(group) {
-            let outcomes: Vec<ChunkOutcome> = batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first)).collect::<Result<Vec<_>>>()?;
+            let outcomes: Vec<ChunkOutcome> = batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d)).collect::<Result<Vec<_>>>()?;
             for o in outcomes {
                 timing.propagate_cpu_s += o.propagate_s;
                 timing.observe_cpu_s += o.observe_s;
@@ -892,10 +987,10 @@ impl LabSolver {
                         *a += b;
                     }
                 }
-                for (acc, c) in gap_coeffs.iter_mut().zip(o.gaps) {
-                    acc.add(o.class, o.weight, c);
+                for (acc, (c, d)) in gap_coeffs.iter_mut().zip(o.gaps) {
+                    acc.add(o.class, o.weight, c, d);
                 }
-                final_coeffs.add(o.class, o.weight, o.final_coeffs);
+                final_coeffs.add(o.class, o.weight, o.final_coeffs.0, o.final_coeffs.1);
                 let r = reports.entry((o.block.class, o.block.s, o.block.m_parity)).or_insert_with(|| {
                     let c = &self.rotor.classes[o.block.class];
                     let sym = match c.sym {
@@ -954,17 +1049,19 @@ impl LabSolver {
                 *series = values.iter().map(|v| v[3 * f + g]).collect();
             }
         }
+        let cos2_2d = if with_2d { values.iter().map(|v| v[9]).collect() } else { vec![] };
         let mut blocks: Vec<_> = reports.into_iter().collect();
         blocks.sort_by_key(|b| (b.0.0, -b.0.1, b.0.2));
-        Ok(LabRun { values: out, final_sums, blocks: blocks.into_iter().map(|b| b.1).collect() })
+        Ok(LabRun { values: out, cos2_2d, final_sums, blocks: blocks.into_iter().map(|b| b.1).collect() })
     }
 
     #[allow(clippy::too_many_arguments)]
-    fn run_chunk(&self, block: LabBlock, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64) -> Result<ChunkOutcome> {
+    fn run_chunk(&self, block: LabBlock, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64, with_2d: bool) -> Result<ChunkOutcome> {
         let mut block = block;
         loop {
             let ops = self.ops(block);
-            if let Some(o) = self.try_chunk(&ops, cols, field, events, times, t_first) {
+            let table = if with_2d { self.detector_table(block.class, block.j_max) } else { None };
+            if let Some(o) = self.try_chunk(&ops, cols, field, events, times, t_first, table.as_deref()) {
                 return Ok(o);
             }
             if block.j_max >= MAX_LAB_BASIS_J {
@@ -974,7 +1071,8 @@ impl LabSolver {
         }
     }
 
-    fn try_chunk(&self, ops: &LabOps, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64) -> Option<ChunkOutcome> {
+    #[allow(clippy::too_many_arguments)]
+    fn try_chunk(&self, ops: &LabOps, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64, table: Option<&DetectorTable>) -> Option<ChunkOutcome> {
         let start: Vec<usize> = cols
             .iter()
             .map(|&(mu, j, i, _)| {
@@ -994,8 +1092,15 @@ impl LabSolver {
         let g = class.weight;
         let da = self.rotor.delta_alpha_a3;
         let mut state = BlockState::new(ops.size, &start, t_first);
-        let mut values = vec![[0.0; 9]; times.len()];
+        let mut values = vec![[0.0; 10]; times.len()];
         let mut gaps = vec![];
+        // The nine direction-cosine averages and ⟨cos²θ_2D⟩ (when asked) of the states, times the class weight.
+        let sample = |st: &BlockState| -> [f64; 10] {
+            let nine = ops.expect(st, &pops);
+            let two_d = table.map(|t| ops.expect_detector(ops.detector(), t, st, &pops)).unwrap_or(0.0);
+            std::array::from_fn(|i| g * if i < 9 { nine[i] } else { two_d })
+        };
+        let coefficients = |st: &BlockState| (ops.coefficients(st, &pops), table.map(|t| ops.detector_coefficients(ops.detector(), t, st, &pops)));
         let (plan, _) = sample_plan(events, times);
         let mut ti = 0usize;
         let mut edge: f64 = 0.0;
@@ -1004,7 +1109,7 @@ impl LabSolver {
         for (ev, gap) in events.iter().zip(&plan) {
             let (s, e) = ev.span();
             if let Some((_, end)) = gap {
-                timed(&mut || gaps.push(ops.coefficients(&state, &pops)));
+                timed(&mut || gaps.push(coefficients(&state)));
                 ti = *end;
             }
             let dt = s - state.t_ps;
@@ -1019,7 +1124,7 @@ impl LabSolver {
                 }
                 Event::Finite { pulses, step_ps, .. } => {
                     while ti < times.len() && times[ti] == s {
-                        timed(&mut || values[ti] = ops.expect(&state, &pops).map(|v| v * g));
+                        timed(&mut || values[ti] = sample(&state));
                         ti += 1;
                     }
                     let inside = times[ti..].partition_point(|t| *t <= e);
@@ -1064,14 +1169,14 @@ impl LabSolver {
                             overflow.set(true);
                             return;
                         }
-                        timed(&mut || values[base + i] = ops.expect(st, &pops).map(|v| v * g));
+                        timed(&mut || values[base + i] = sample(st));
                     });
                     if overflow.get() {
                         return None;
                     }
                     ti += stops.len();
                     if at_end {
-                        timed(&mut || values[ti] = ops.expect(&state, &pops).map(|v| v * g));
+                        timed(&mut || values[ti] = sample(&state));
                         ti += 1;
                     }
                 }
@@ -1081,8 +1186,8 @@ impl LabSolver {
                 return None;
             }
         }
-        let mut final_coeffs = vec![];
-        timed(&mut || final_coeffs = ops.coefficients(&state, &pops));
+        let mut final_coeffs = (vec![], None);
+        timed(&mut || final_coeffs = coefficients(&state));
         let total = chunk_started.elapsed().as_secs_f64();
         Some(ChunkOutcome {
             propagate_s: total - observe.get(),

@@ -286,7 +286,8 @@ impl Solver {
     /// Run `field` through the all-M solver (any polarization in the XZ plane) and sample the direction-cosine
     /// averages ⟨cos²⟩ of each body axis with each lab axis at `times_ps` (ascending). `run` takes this path
     /// by itself when some pulse is not polarized along Z; called directly it also runs Z-polarized fields.
-    pub fn run_lab_frame(&self, field: &FieldModel, times_ps: &[f64]) -> Result<RunResult> {
+    /// `with_2d` adds the detector-plane ⟨cos²θ_2D⟩ of the alignment axis with its full azimuthal dependence.
+    pub fn run_lab_frame(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
         }
@@ -316,7 +317,7 @@ impl Solver {
             };
             lab_frame::LabSolver::new(rotor, self.settings)
         });
-        let run = lab.run(field, &events, reach, times_ps)?;
+        let run = lab.run(field, &events, reach, times_ps, with_2d)?;
         let frame = &lab.rotor.frame;
         let (names, positions): (Vec<&str>, Vec<usize>) = if lab.rotor.linear {
             (vec![""], vec![0])
@@ -346,17 +347,20 @@ impl Solver {
             cos2_c: body(2),
             three_axis,
             lab_axes,
+            cos2_2d: run.cos2_2d,
             ..Default::default()
         };
         let statics = run.final_sums.statics();
         let align = 6 + align_pos;
+        // Part 9 of the sums is ⟨cos²θ_2D⟩ when it was computed.
+        let abs = (statics.len() > 9).then_some(9);
         Ok(RunResult {
             trace,
             permanent_cos2: statics[align],
-            permanent_cos2_2d: 0.0,
+            permanent_cos2_2d: abs.map(|i| statics[i]).unwrap_or(0.0),
             blocks: run.blocks,
             events,
-            final_sums: FreeSums::Pairs { sums: run.final_sums, cos2: align, abs: None, three_axis: second_pos.map(|s| (align, s, false)) },
+            final_sums: FreeSums::Pairs { sums: run.final_sums, cos2: align, abs, three_axis: second_pos.map(|s| (align, s, false)) },
             permanent_cos: None,
         })
     }
@@ -368,7 +372,7 @@ impl Solver {
             return Err(Error::input("window", "sample times must be ascending"));
         }
         if !field.is_symmetric_about_z() {
-            return self.run_lab_frame(field, times_ps);
+            return self.run_lab_frame(field, times_ps, with_2d);
         }
         if let Some(t) = &self.top {
             if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric {
