@@ -145,6 +145,16 @@ impl DetectorTable {
         if k < 0 && (j + jp) % 2 != 0 { -v } else { v }
     }
 
+    /// The integrals for |K| = `k` at M_Y = `m`: (matrix, first J' of its rows, first J of its columns).
+    pub fn matrix(&self, k: i64, m: i64) -> Option<(&DMatrix<f64>, i64, i64)> {
+        let slot = self.ks.binary_search(&k.abs()).ok()?;
+        if m < -self.j_max || m > self.j_max {
+            return None;
+        }
+        let t = self.entries[slot][(m + self.j_max) as usize].as_ref()?;
+        Some((t, (m + 2).abs().max(k.abs()), m.abs().max(k.abs())))
+    }
+
     /// Bytes held.
     pub fn bytes(&self) -> usize {
         self.entries.iter().flatten().flatten().map(|t| 8 * t.len()).sum()

@@ -32,6 +32,8 @@ pub(super) struct DetectorOps {
     /// Per ordered slice pair (a, b) (index a · slices + b): functions (p_b, p_a) with the same |K|, with
     /// their (K, coefficient product) terms.
     matches: Vec<Vec<(usize, usize, Vec<(i64, f64)>)>>,
+    /// Per signed K: the (slice, function, coefficient) holding that primitive component.
+    by_k: Vec<(i64, Vec<(usize, usize, f64)>)>,
 }
 
 /// Coherence coefficients of the detector-plane operator for one chunk: per ordered (J_a, J_b) the
@@ -95,13 +97,23 @@ impl DetectorOps {
                 matches.push(list);
             }
         }
-        DetectorOps { turns, matches }
+        let mut by_k: std::collections::BTreeMap<i64, Vec<(usize, usize, f64)>> = Default::default();
+        for (a, sl) in ops.slices.iter().enumerate() {
+            let (_, fs, _) = ops.basis.j_ranges[sl.range];
+            for p in 0..sl.nk {
+                let (comps, nc) = ops.basis.functions[fs + p].components();
+                for &(kk, c) in &comps[..nc] {
+                    by_k.entry(kk).or_default().push((a, p, c));
+                }
+            }
+        }
+        DetectorOps { turns, matches, by_k: by_k.into_iter().collect() }
     }
 
     /// Bytes held.
     pub(super) fn bytes(&self) -> usize {
         let turns: usize = self.turns.iter().map(|t| 16 * t.re.len() + 8 * t.my.len()).sum();
-        turns + self.matches.iter().flatten().map(|m| 16 + 16 * m.2.len()).sum::<usize>()
+        turns + self.matches.iter().flatten().map(|m| 16 + 16 * m.2.len()).sum::<usize>() + self.by_k.iter().map(|b| 24 * b.1.len()).sum::<usize>()
     }
 }
 
@@ -133,37 +145,40 @@ impl LabOps {
         terms.iter().map(|&(kk, c)| c * table.element(jb, ja, kk, m)).sum()
     }
 
-    /// Σ_c p_c ⟨ψ_c|cos²θ_2D|ψ_c⟩ directly, through the function basis (samples inside pulses).
+    /// Σ_c p_c ⟨ψ_c|cos²θ_2D|ψ_c⟩ directly (samples inside pulses): per signed K and M_Y, the primitive
+    /// amplitudes over J against the θ table, one matrix product each (negative K through
+    /// ⟨…−K…⟩ = (−1)^{J+J'}⟨…K…⟩, applied as (−1)^J on the amplitudes).
     pub(super) fn expect_detector(&self, det: &DetectorOps, table: &DetectorTable, state: &BlockState, pops: &[f64]) -> f64 {
         let k = state.k;
+        let j_max = self.block.j_max;
         self.in_functions(state, |f, cols| {
-            let n = self.size;
-            let y = self.rotated(det, |r, c| f[r * cols + c], k, pops, n);
+            let y = self.rotated(det, |r, c| f[r * cols + c], k, pops, self.size);
             let norm: f64 = y.iter().flatten().map(|(re, im)| re.norm_squared() + im.norm_squared()).sum();
-            let ns = self.slices.len();
             let mut raised = 0.0;
-            for (a, (sa, ta)) in self.slices.iter().zip(&det.turns).enumerate() {
-                let Some((ar, ai)) = &y[a] else { continue };
-                for (b, (sb, tb)) in self.slices.iter().zip(&det.turns).enumerate() {
-                    let Some((br, bi)) = &y[b] else { continue };
-                    let list = &det.matches[a * ns + b];
-                    if list.is_empty() {
-                        continue;
-                    }
-                    for (ra, &m) in ta.my.iter().enumerate() {
-                        let Some(rb) = tb.row(m + 2) else { continue };
-                        for (pb, pa, terms) in list {
-                            let e = Self::detector_element(table, terms, sb.j, sa.j, m);
-                            if e == 0.0 {
-                                continue;
-                            }
-                            let mut d = 0.0;
-                            for c in 0..k {
-                                d += br[(rb, pb * k + c)] * ar[(ra, pa * k + c)] + bi[(rb, pb * k + c)] * ai[(ra, pa * k + c)];
-                            }
-                            raised += e * d;
+            for (kk, members) in &det.by_k {
+                let ka = kk.abs();
+                let lo = |m: i64| m.abs().max(ka);
+                // Rows J − lo(M_Y), columns [Re | Im] of the states.
+                let mut g: Vec<Option<DMatrix<f64>>> = vec![None; (2 * j_max + 1) as usize];
+                for &(a, p, coef) in members {
+                    let Some((re, im)) = &y[a] else { continue };
+                    let j = self.slices[a].j;
+                    let c = if *kk < 0 && j % 2 != 0 { -coef } else { coef };
+                    for (r, &m) in det.turns[a].my.iter().enumerate() {
+                        let gm = g[(m + j_max) as usize].get_or_insert_with(|| DMatrix::zeros((j_max - lo(m) + 1) as usize, 2 * k));
+                        let row = (j - lo(m)) as usize;
+                        for s in 0..k {
+                            gm[(row, s)] += c * re[(r, p * k + s)];
+                            gm[(row, k + s)] += c * im[(r, p * k + s)];
                         }
                     }
+                }
+                for m in -j_max..=j_max - 2 {
+                    let (Some(ga), Some(gb)) = (&g[(m + j_max) as usize], &g[(m + 2 + j_max) as usize]) else { continue };
+                    let Some((t, _, _)) = table.matrix(ka, m) else { continue };
+                    // Re Σ conj(b) T a = Σ (b_re ∘ T a_re + b_im ∘ T a_im).
+                    let tg = t.view((0, 0), (gb.nrows(), ga.nrows())) * ga;
+                    raised += gb.dot(&tg);
                 }
             }
             0.5 * norm + 0.5 * raised
