@@ -195,6 +195,13 @@ The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses
 }
 
 fn main() -> ExitCode {
+    // Like other Unix tools, stop quietly when the reader of stdout goes away (`kicktrain … | head`);
+    // Rust ignores SIGPIPE by default, which turns the closed pipe into a panic in println!.
+    #[cfg(unix)]
+    // SAFETY: restoring the default disposition of one signal before any thread starts.
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
+    }
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Molecules { json } => molecules(json),
@@ -360,10 +367,8 @@ fn print_simulation(s: &serde_json::Value) {
         }
     }
     println!("  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]));
-    if s["lab_axes"].is_null() {
-        println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
-    } else {
-        println!("  peak ⟨cos²θ_2D⟩ after the last pulse — (not computed for pulses polarized away from Z)");
+    println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
+    if !s["lab_axes"].is_null() {
         if let Some(obj) = s["lab_axes"].as_object() {
             for (name, v) in obj {
                 println!("  {:<37}{}", format!("{} after the last pulse", name.replace("peak_cos2_", "peak ⟨cos²⟩ ")), fmt_ext(v));

@@ -928,3 +928,25 @@ fn scenario_bad_polarization_and_three_axis_goal_on_a_linear_molecule() {
     v["goal"] = json!({"kind": "peak", "observable": "three_axis", "window_ps": [0.1, 5.0], "step_fs": 50});
     simulate_fails_on("three-axis-linear", &v, "goal.observable");
 }
+
+#[cfg(unix)]
+#[test]
+fn a_reader_that_stops_early_ends_the_program_quietly() {
+    // Common practice for Unix command-line tools: when the reader of stdout closes the pipe (`| head`),
+    // the program ends on SIGPIPE instead of panicking. The JSON listing (~170 kB) overfills the pipe
+    // buffer, so the write after the close cannot succeed.
+    use std::io::{BufRead, BufReader};
+    use std::os::unix::process::ExitStatusExt;
+    let mut child = Command::new(BIN)
+        .args(["pendular", "N2", "--intensity-wcm2", "1e13", "--j-max", "40", "--json"])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().unwrap()).read_line(&mut first).unwrap();
+    let out = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert_eq!(out.status.signal(), Some(13), "ends on SIGPIPE: {:?}", out.status);
+}
