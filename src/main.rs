@@ -368,11 +368,9 @@ fn print_simulation(s: &serde_json::Value) {
     }
     println!("  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]));
     println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
-    if !s["lab_axes"].is_null() {
-        if let Some(obj) = s["lab_axes"].as_object() {
-            for (name, v) in obj {
-                println!("  {:<37}{}", format!("{} after the last pulse", name.replace("peak_cos2_", "peak ⟨cos²⟩ ")), fmt_ext(v));
-            }
+    if let Some(obj) = s["lab_axes"].as_object() {
+        for (name, v) in obj {
+            println!("  {:<37}{}", format!("{} after the last pulse", name.replace("peak_cos2_", "peak ⟨cos²⟩ ")), fmt_ext(v));
         }
     }
     println!("  deepest anti-alignment ⟨cos²θ⟩      {}", fmt_ext(&s["min_cos2"]));

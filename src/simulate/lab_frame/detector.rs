@@ -25,15 +25,27 @@ impl Turn {
     }
 }
 
+/// Functions (p_b, p_a) of two slices with the same |K|, with their (K, coefficient product) terms.
+type Matches = Vec<(usize, usize, Vec<(i64, f64)>)>;
+
+/// (slice, function, coefficient) holding one primitive K component.
+type Holders = Vec<(usize, usize, f64)>;
+
+/// Levels of one M_Y stacked over slices: (slice, first row) of each member, and the amplitudes.
+type Stack = (Vec<(usize, usize)>, DMatrix<f64>);
+
+/// A (Re, Im) pair of real matrices.
+type ComplexParts = (DMatrix<f64>, DMatrix<f64>);
+
 /// What the detector-plane operator needs of one block, beyond the class's θ table.
 #[derive(Debug)]
 pub(super) struct DetectorOps {
     turns: Vec<Turn>,
     /// Per ordered slice pair (a, b) (index a · slices + b): functions (p_b, p_a) with the same |K|, with
     /// their (K, coefficient product) terms.
-    matches: Vec<Vec<(usize, usize, Vec<(i64, f64)>)>>,
+    matches: Vec<Matches>,
     /// Per signed K: the (slice, function, coefficient) holding that primitive component.
-    by_k: Vec<(i64, Vec<(usize, usize, f64)>)>,
+    by_k: Vec<(i64, Holders)>,
 }
 
 /// Coherence coefficients of the detector-plane operator for one chunk: per ordered (J_a, J_b) the
@@ -41,12 +53,12 @@ pub(super) struct DetectorOps {
 /// Σ_a ρ_aa.
 #[derive(Debug, Clone, Default)]
 pub(super) struct DetectorCoefficients {
-    pub pairs: Vec<((i64, i64), (DMatrix<f64>, DMatrix<f64>))>,
+    pub pairs: Vec<((i64, i64), ComplexParts)>,
     pub norm: f64,
 }
 
 /// Amplitudes of one slice in the Y-quantized basis: rows kept M_Y, columns (function or level) · k + state.
-type Rotated = Option<(DMatrix<f64>, DMatrix<f64>)>;
+type Rotated = Option<ComplexParts>;
 
 impl DetectorOps {
     /// The changes of axis and the |K| matches of `ops`'s block.
@@ -97,7 +109,7 @@ impl DetectorOps {
                 matches.push(list);
             }
         }
-        let mut by_k: std::collections::BTreeMap<i64, Vec<(usize, usize, f64)>> = Default::default();
+        let mut by_k: std::collections::BTreeMap<i64, Holders> = Default::default();
         for (a, sl) in ops.slices.iter().enumerate() {
             let (_, fs, _) = ops.basis.j_ranges[sl.range];
             for p in 0..sl.nk {
@@ -195,7 +207,8 @@ impl LabOps {
         let ns = self.slices.len();
         let j_max = self.block.j_max;
         // Stacks per M_Y: rows (slice, level) of the slices holding that M_Y, columns [Re | Im] of the states.
-        let mut stacks: Vec<(Vec<(usize, usize)>, DMatrix<f64>)> = vec![];
+        // (members: (slice, first row), stacked amplitudes) per M_Y.
+        let mut stacks: Vec<Stack> = Vec::with_capacity((2 * j_max + 1) as usize);
         for m in -j_max..=j_max {
             let mut members = vec![];
             let mut rows = 0;
@@ -218,7 +231,7 @@ impl LabOps {
             }
             stacks.push((members, s));
         }
-        let mut acc: Vec<Option<(DMatrix<f64>, DMatrix<f64>)>> = vec![None; ns * ns];
+        let mut acc: Vec<Option<ComplexParts>> = vec![None; ns * ns];
         for m in -j_max..=j_max - 2 {
             let (ma, sa) = &stacks[(m + j_max) as usize];
             let (mb, sb) = &stacks[(m + 2 + j_max) as usize];
