@@ -584,9 +584,9 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
     );
     println!("{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩");
     for s in r.states.iter().filter(|s| s.j <= j_max) {
-        println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, s.energy_cm, s.energy_b, s.cos2, s.cos);
+        println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, s.energy_cm, s.energy_b, s.cos2, no_negative_zero(s.cos, 5));
     }
-    println!("thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, r.thermal_cos);
+    println!("thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, no_negative_zero(r.thermal_cos, 5));
     println!("(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)");
     if intensity > 0.0 {
         println!("{}", report::LASER_SAFETY);
@@ -743,4 +743,9 @@ fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize
     }
     println!("{}", report::LASER_SAFETY);
     Ok(())
+}
+
+/// `v`, or +0 when it would print as −0 with `decimals` decimals (rounding noise around zero).
+fn no_negative_zero(v: f64, decimals: i32) -> f64 {
+    if v.abs() < 0.5 * 10f64.powi(-decimals) { 0.0 } else { v }
 }
