@@ -599,7 +599,7 @@ fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str) -> Resu
     use kicktrain::optics::{peak_intensity_wcm2, peak_power_w};
     focus.validate("focus")?;
     let shape = PulseShape::parse(shape).ok_or_else(|| Error::input("shape", format!("expected {}, got \"{shape}\"", PulseShape::NAMES)))?;
-    let p = Pulse { center_ps: 0.0, fwhm_fs, peak_intensity_wcm2: 1.0, shape, rise_fs: None, polarization: Default::default() };
+    let p = Pulse { center_ps: 0.0, fwhm_fs, peak_intensity_wcm2: 1.0, shape, rise_fs: None, cut_fs: None, polarization: Default::default() };
     p.validate("pulse")?;
     let power = peak_power_w(focus.energy_mj, p.envelope_area_ps());
     let w0 = focus.waist_m();

@@ -516,6 +516,7 @@ fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {
         Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
     };
     let rise_fs = f.opt_f64("rise_fs", "fs")?;
+    let cut_fs = f.opt_f64("cut_fs", "fs")?;
     let polarization = match f.opt_value("polarization") {
         None => PulsePolarization::default(),
         Some(v) => {
@@ -530,7 +531,7 @@ fn parse_pulse(v: &Value, path: &str) -> Result<(Pulse, Option<Focus>)> {
         }
     };
     f.finish()?;
-    let mut p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2: 0.0, shape, rise_fs, polarization };
+    let mut p = Pulse { center_ps, fwhm_fs, peak_intensity_wcm2: 0.0, shape, rise_fs, cut_fs, polarization };
     let optics = match (intensity, energy) {
         (Some(i), None) => {
             let given = [("waist_um", waist_um), ("beam_radius_mm", beam_radius_mm), ("wavelength_nm", wavelength_nm), ("focal_length_mm", focal_length_mm)];

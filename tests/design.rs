@@ -46,6 +46,7 @@ fn constraints_hold_for_every_point_of_random_spaces() {
         let space = DesignSpace {
             shape: PulseShape::Gaussian,
             rise_fs: None,
+            cut_fs: None,
             pulses,
             max_peak_intensity_wcm2: ceiling,
             max_total_fluence_jcm2: budget,

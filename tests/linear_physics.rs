@@ -214,7 +214,7 @@ fn pulse_shapes_of_equal_area_give_nearly_equal_kicks() {
     let traces: Vec<Vec<f64>> = [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop]
         .iter()
         .map(|&shape| {
-            let mut p = Pulse { center_ps: 0.0, fwhm_fs: 8.0, peak_intensity_wcm2: 1e14, shape, rise_fs: Some(2.0), polarization: Default::default() };
+            let mut p = Pulse { center_ps: 0.0, fwhm_fs: 8.0, peak_intensity_wcm2: 1e14, shape, rise_fs: Some(2.0), cut_fs: None, polarization: Default::default() };
             p.peak_intensity_wcm2 *= Pulse::gaussian(0.0, 8.0, 1.0).envelope_area_ps() / p.envelope_area_ps();
             Solver::new(&mol, 10.0, settings(Method::Finite))
                 .unwrap()

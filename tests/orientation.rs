@@ -141,6 +141,7 @@ fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state()
         peak_intensity_wcm2: intensity,
         shape: kicktrain::field::PulseShape::Gaussian,
         rise_fs: None,
+        cut_fs: None,
         polarization: Default::default(),
     }]);
     let settings = SolverSettings { method: Method::Finite, ..Default::default() };
@@ -277,9 +278,20 @@ fn slow_rise_and_fast_switch_off_freeze_the_pendular_state() {
     let mol = Molecule::linear("light rotor", 2.0, 0.0, 3.0, 1.0, [1.0, 1.0]);
     let intensity = 2e13;
     let ground = pendular(&mol, intensity, 0.0, 0.0, 2).unwrap().states.into_iter().find(|s| s.m == 0 && s.j == 0).unwrap();
-    let cut = Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Truncated, rise_fs: Some(10.0), polarization: Default::default() };
+    let cut = Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Truncated, rise_fs: Some(10.0), cut_fs: None, polarization: Default::default() };
     let settings = SolverSettings { method: Method::Finite, ..Default::default() };
-    let r = Solver::new(&mol, 0.0, settings).unwrap().run(&FieldModel::pulses(vec![cut]), &[0.011], false).unwrap();
+    let r = Solver::new(&mol, 0.0, settings).unwrap().run(&FieldModel::pulses(vec![cut.clone()]), &[0.011], false).unwrap();
     assert!((r.trace.cos2[0] - ground.cos2).abs() < 3e-3, "after the cut {} vs pendular {}", r.trace.cos2[0], ground.cos2);
     assert!(r.permanent_cos2 > 0.4, "a sudden cut leaves permanent alignment: {}", r.permanent_cos2);
+    // Cut half a FWHM before the peak, where the Gaussian is at half its peak: the frozen state is the
+    // pendular state at half the intensity (same two limits), distinct from the full-intensity one.
+    let half = pendular(&mol, 0.5 * intensity, 0.0, 0.0, 2).unwrap().states.into_iter().find(|s| s.m == 0 && s.j == 0).unwrap();
+    let early = Pulse { cut_fs: Some(-30_000.0), ..cut.clone() };
+    let r = Solver::new(&mol, 0.0, settings).unwrap().run(&FieldModel::pulses(vec![early.clone()]), &[-29.989], false).unwrap();
+    assert!((r.trace.cos2[0] - half.cos2).abs() < 3e-3, "after the early cut {} vs pendular at I0/2 {}", r.trace.cos2[0], half.cos2);
+    assert!(ground.cos2 - half.cos2 > 0.02, "the two pendular values differ: {} vs {}", ground.cos2, half.cos2);
+    // The field is off from the early cut on: the frozen, strongly aligned state dephases within half a
+    // picosecond (light rotor, B = 2 cm⁻¹), while a pulse still on would hold ⟨cos²θ⟩ near its adiabatic value.
+    let later = Solver::new(&mol, 0.0, settings).unwrap().run(&FieldModel::pulses(vec![early]), &[-29.989, -29.5], false).unwrap().trace.cos2;
+    assert!(later[0] - later[1] > 0.05, "field-free dephasing after the early cut: {later:?}");
 }

@@ -67,8 +67,10 @@ pub struct PulseBounds {
 pub struct DesignSpace {
     /// Envelope shape of every pulse.
     pub shape: PulseShape,
-    /// Edge duration of flat-top pulses, fs.
+    /// Edge duration of flat-top pulses, or the switch-off of truncated ones, fs.
     pub rise_fs: Option<f64>,
+    /// Start of the switch-off of truncated pulses relative to their peaks, fs.
+    pub cut_fs: Option<f64>,
     /// Bounds per pulse (the train has this many pulses).
     pub pulses: Vec<PulseBounds>,
     /// Ceiling on every pulse's peak intensity, W/cm².
@@ -237,7 +239,7 @@ impl DesignSpace {
             .map(|k| {
                 t += delay[k];
                 let polarization = crate::field::PulsePolarization { angle_deg: angle[k], ellipticity: ellipticity[k] };
-                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, polarization }
+                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, cut_fs: self.cut_fs, polarization }
             })
             .collect();
         if let Some(budget) = self.max_total_fluence_jcm2 {
@@ -367,6 +369,7 @@ impl DesignSpace {
                         peak_intensity_wcm2: self.intensity_bounds(k).min,
                         shape: self.shape,
                         rise_fs: self.rise_fs,
+                        cut_fs: self.cut_fs,
                         polarization: Default::default(),
                     };
                     fluence_jcm2(&p)
@@ -623,7 +626,7 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
         .ok_or_else(|| Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name)))?;
     let mut largest_cap: f64 = 0.0;
     for (k, pb) in space.pulses.iter_mut().enumerate() {
-        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, polarization: Default::default() };
+        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, cut_fs: space.cut_fs, polarization: Default::default() };
         let (mut lo, mut hi) = (1e8f64.ln(), 1e17f64.ln());
         for _ in 0..60 {
             let mid = 0.5 * (lo + hi);
@@ -688,6 +691,7 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
     };
     let rise_fs = f.opt_f64("rise_fs", "fs")?;
+    let cut_fs = f.opt_f64("cut_fs", "fs")?;
     let fwhm = parse_bounds(f.req_value("fwhm_fs", "a duration in fs or {min, max}")?, &join(path, "fwhm_fs"), "fs")?;
     let delay = match f.opt_value("delay_ps") {
         Some(d) => parse_bounds(d, &join(path, "delay_ps"), "ps")?,
@@ -751,6 +755,7 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
     let space = DesignSpace {
         shape,
         rise_fs,
+        cut_fs,
         pulses,
         max_peak_intensity_wcm2: ceiling,
         max_total_fluence_jcm2: budget,
@@ -760,10 +765,11 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         terahertz: None,
     };
     // Check each pulse shape once through the pulse validator (rise vs FWHM and so on).
-    for (k, p) in space.pulses.iter().enumerate() {
+    for p in &space.pulses {
         for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
-            let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs, polarization: Default::default() };
-            pulse.validate(&format!("{path}.each[{k}]"))?;
+            let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs, cut_fs, polarization: Default::default() };
+            // rise_fs and cut_fs are keys of the template: errors name it (`pulses.cut_fs`).
+            pulse.validate(path)?;
         }
     }
     Ok((space, variable))

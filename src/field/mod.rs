@@ -57,9 +57,14 @@ pub struct Pulse {
     /// Envelope shape (default Gaussian).
     #[serde(default)]
     pub shape: PulseShape,
-    /// Edge duration (0–100 %) of a flat-top pulse, fs; ignored for other shapes.
+    /// Edge duration (0–100 %) of a flat-top pulse, or the switch-off of a truncated one, fs; ignored for
+    /// other shapes.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub rise_fs: Option<f64>,
+    /// Start of a truncated pulse's switch-off relative to its peak, fs (negative: before the peak;
+    /// default 0); only for the truncated shape.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cut_fs: Option<f64>,
     /// Polarization in the XZ plane (default: linear along Z).
     #[serde(default, skip_serializing_if = "PulsePolarization::is_along_z")]
     pub polarization: PulsePolarization,
@@ -105,7 +110,12 @@ impl PulsePolarization {
 impl Pulse {
     /// A Gaussian pulse.
     pub fn gaussian(center_ps: f64, fwhm_fs: f64, peak_intensity_wcm2: f64) -> Pulse {
-        Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape: PulseShape::Gaussian, rise_fs: None, polarization: PulsePolarization::default() }
+        Pulse { center_ps, fwhm_fs, peak_intensity_wcm2, shape: PulseShape::Gaussian, rise_fs: None, cut_fs: None, polarization: PulsePolarization::default() }
+    }
+
+    /// Start of the switch-off of a truncated pulse relative to its peak, ps (0 unless `cut_fs` is set).
+    pub fn cut_ps(&self) -> f64 {
+        self.cut_fs.unwrap_or(0.0) / FS_PER_PS
     }
 
     /// FWHM in ps.
@@ -142,6 +152,16 @@ impl Pulse {
                 return Err(Error::input(format!("{path}.rise_fs"), format!("expected an edge no longer than fwhm_fs = {} fs, got {r}", self.fwhm_fs)));
             }
         }
+        if let Some(c) = self.cut_fs {
+            let key = format!("{path}.cut_fs");
+            require_finite(&key, c, "fs")?;
+            if self.shape != PulseShape::Truncated {
+                return Err(Error::input(key, "a switch-off time goes with shape \"truncated\" only"));
+            }
+            if c.abs() > 2.0 * self.fwhm_fs {
+                return Err(Error::input(key, format!("expected a switch-off within ±2 FWHM (±{} fs) of the peak, got {c}", 2.0 * self.fwhm_fs)));
+            }
+        }
         Ok(())
     }
 
@@ -169,12 +189,13 @@ impl Pulse {
                 }
             }
             PulseShape::Truncated => {
-                let r = self.rise_ps();
-                if x <= 0.0 {
-                    (-4.0 * std::f64::consts::LN_2 * x * x / (tau * tau)).exp()
-                } else if x < r {
-                    let c = (std::f64::consts::FRAC_PI_2 * x / r).cos();
-                    c * c
+                let (r, cut) = (self.rise_ps(), self.cut_ps());
+                let gauss = |y: f64| (-4.0 * std::f64::consts::LN_2 * y * y / (tau * tau)).exp();
+                if x <= cut {
+                    gauss(x)
+                } else if x < cut + r {
+                    let c = (std::f64::consts::FRAC_PI_2 * (x - cut) / r).cos();
+                    gauss(cut) * c * c
                 } else {
                     0.0
                 }
@@ -189,7 +210,12 @@ impl Pulse {
             PulseShape::Gaussian => tau * (std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)).sqrt(),
             PulseShape::Sech2 => 2.0 * tau / SECH2_FWHM_FACTOR,
             PulseShape::FlatTop => tau,
-            PulseShape::Truncated => 0.5 * tau * (std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)).sqrt() + 0.5 * self.rise_ps(),
+            PulseShape::Truncated if self.cut_ps() == 0.0 => 0.5 * tau * (std::f64::consts::PI / (4.0 * std::f64::consts::LN_2)).sqrt() + 0.5 * self.rise_ps(),
+            // The Gaussian up to the cut (Simpson on a smooth stretch) plus the sin² fall from its value there.
+            PulseShape::Truncated => {
+                let cut = self.center_ps + self.cut_ps();
+                simpson(self.support_ps().0, cut, 4000, |t| self.envelope(t)) + 0.5 * self.rise_ps() * self.envelope(cut)
+            }
         }
     }
 
@@ -223,7 +249,7 @@ impl Pulse {
             PulseShape::Gaussian => GAUSSIAN_HALF_WIDTH * tau,
             PulseShape::Sech2 => SECH2_HALF_WIDTH * tau,
             PulseShape::FlatTop => 0.5 * tau + 0.5 * self.rise_ps(),
-            PulseShape::Truncated => return (self.center_ps - GAUSSIAN_HALF_WIDTH * tau, self.center_ps + self.rise_ps()),
+            PulseShape::Truncated => return (self.center_ps - GAUSSIAN_HALF_WIDTH * tau, self.center_ps + self.cut_ps() + self.rise_ps()),
         };
         (self.center_ps - half, self.center_ps + half)
     }
@@ -236,7 +262,7 @@ impl Pulse {
                 let inner = 0.5 * tau - 0.5 * r;
                 vec![self.center_ps - inner, self.center_ps + inner]
             }
-            PulseShape::Truncated => vec![self.center_ps, self.center_ps + self.rise_ps()],
+            PulseShape::Truncated => vec![self.center_ps + self.cut_ps(), self.center_ps + self.cut_ps() + self.rise_ps()],
             _ => vec![],
         }
     }
@@ -271,9 +297,13 @@ impl Pulse {
         }
     }
 
-    /// Nominal end of the pulse (centre + one FWHM), ps: "after the pulse" in summaries.
+    /// Nominal end of the pulse (centre + one FWHM; the end of the switch-off of a truncated pulse), ps:
+    /// "after the pulse" in summaries.
     pub fn end_ps(&self) -> f64 {
-        self.center_ps + self.fwhm_ps()
+        match self.shape {
+            PulseShape::Truncated => self.support_ps().1,
+            _ => self.center_ps + self.fwhm_ps(),
+        }
     }
 }
 
@@ -346,7 +376,7 @@ pub struct TwoColourPulse {
 impl TwoColourPulse {
     /// The envelope as a pulse of unit peak intensity (for shape, support and areas).
     pub fn envelope_pulse(&self) -> Pulse {
-        Pulse { center_ps: self.center_ps, fwhm_fs: self.fwhm_fs, peak_intensity_wcm2: 1.0, shape: self.shape, rise_fs: None, polarization: PulsePolarization::default() }
+        Pulse { center_ps: self.center_ps, fwhm_fs: self.fwhm_fs, peak_intensity_wcm2: 1.0, shape: self.shape, rise_fs: None, cut_fs: None, polarization: PulsePolarization::default() }
     }
 
     /// Check the element; errors name the field under `path`.
@@ -636,9 +666,40 @@ mod tests {
     }
 
     #[test]
+    fn truncated_pulse_cut_away_from_the_peak_has_the_closed_form_area() {
+        // Area = ∫_{−∞}^{c} e^{−a x²} dx + e^{−a c²} r/2 = ½ sqrt(π/a)(1 + erf(c√a)) + e^{−a c²} r/2,
+        // a = 4 ln2/τ². c√a = 1 and −0.5 use erf(1) = 0.8427007929, erf(0.5) = 0.5204998778
+        // (Abramowitz & Stegun, table 7.1).
+        let tau_fs = 100.0;
+        let a = 4.0 * std::f64::consts::LN_2 / (tau_fs * tau_fs);
+        for (u, erf) in [(1.0, 0.8427007929), (-0.5, -0.5204998778)] {
+            let c_fs = u / a.sqrt();
+            let p = Pulse { shape: PulseShape::Truncated, rise_fs: Some(10.0), cut_fs: Some(c_fs), ..Pulse::gaussian(2.0, tau_fs, 1e13) };
+            p.validate("pulses[0]").unwrap();
+            let want_fs = 0.5 * (std::f64::consts::PI / a).sqrt() * (1.0 + erf) + (-u * u).exp() * 5.0;
+            let got_fs = p.envelope_area_ps() * FS_PER_PS;
+            assert!((got_fs / want_fs - 1.0).abs() < 1e-9, "c√a = {u}: {got_fs} vs {want_fs}");
+            // Zero after the fall, the Gaussian before the cut.
+            let cut = 2.0 + c_fs / FS_PER_PS;
+            assert!(p.envelope(cut + 0.0101) == 0.0 && (p.envelope(cut) - (-u * u).exp()).abs() < 1e-14);
+            assert_eq!(p.support_ps().1, cut + 0.01);
+        }
+        // Cut at the peak (0) is the default shape, bit for bit.
+        let base = Pulse { shape: PulseShape::Truncated, rise_fs: Some(10.0), ..Pulse::gaussian(2.0, tau_fs, 1e13) };
+        let zero = Pulse { cut_fs: Some(0.0), ..base.clone() };
+        assert_eq!(base.envelope_area_ps(), zero.envelope_area_ps());
+        assert_eq!(base.kick_time_ps(), zero.kick_time_ps());
+        // Field-named errors.
+        let e = Pulse { cut_fs: Some(250.0), ..base.clone() }.validate("pulses[1]").unwrap_err().to_string();
+        assert!(e.contains("pulses[1].cut_fs") && e.contains("±2 FWHM"), "{e}");
+        let e = Pulse { cut_fs: Some(10.0), ..Pulse::gaussian(0.0, 100.0, 1e12) }.validate("pulses[0]").unwrap_err().to_string();
+        assert!(e.contains("pulses[0].cut_fs") && e.contains("truncated"), "{e}");
+    }
+
+    #[test]
     fn shapes_have_unit_peak_half_max_at_fwhm_and_right_area() {
         for shape in [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop, PulseShape::Truncated] {
-            let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0), polarization: PulsePolarization::default() };
+            let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0), cut_fs: None, polarization: PulsePolarization::default() };
             assert!((p.envelope(1.0) - 1.0).abs() < 1e-15);
             // Half maximum at ±FWHM/2 (definition of FWHM); a truncated pulse only on its rising side.
             if shape != PulseShape::Truncated {
