@@ -157,12 +157,14 @@ fn three_axis() {
             let j = r.blocks.iter().map(|b| b.j_max).max().unwrap_or(0);
             let size = r.blocks.iter().map(|b| b.size).max().unwrap_or(0);
             println!(
-                "  {intensity:.0e} W/cm², {t} K{}: {secs:.1} s ({} initial states, largest block {size} states up to J = {j}); thread-seconds: propagation {:.1}, observables {:.1}; coherence sums {:.1} s; peaks ⟨cos²θ_Za⟩ {:.4}, ⟨cos²θ_Xb⟩ {:.4}, ⟨cos²θ_Yc⟩ {:.4}{}",
+                "  {intensity:.0e} W/cm², {t} K{}: {secs:.1} s ({} initial states, largest block {size} states up to J = {j}); thread-seconds: propagation {:.1}, observables {:.1}; coherence sums {:.1} s; {} chunks started again ({:.1} thread-s lost); peaks ⟨cos²θ_Za⟩ {:.4}, ⟨cos²θ_Xb⟩ {:.4}, ⟨cos²θ_Yc⟩ {:.4}{}",
                 if with_2d { " with 2D" } else { "" },
                 solver.initial_states(),
                 tm.propagate_cpu_s,
                 tm.observe_cpu_s,
                 tm.sums_s,
+                tm.retries,
+                tm.retry_cpu_s,
                 col("cos2_Za"),
                 col("cos2_Xb"),
                 col("cos2_Yc"),

@@ -818,11 +818,18 @@ pub struct LabTiming {
     pub sums_s: f64,
     /// Wall seconds of the whole run.
     pub total_s: f64,
+    /// Chunks that started again in a larger basis, and the thread-seconds their first attempts cost.
+    pub retries: usize,
+    /// Thread-seconds spent in attempts that were started again.
+    pub retry_cpu_s: f64,
 }
 
 /// What one chunk of initial states returns.
 struct ChunkOutcome {
     propagate_s: f64,
+    /// Attempts started again in a larger basis, and their thread-seconds.
+    retries: usize,
+    retry_s: f64,
     observe_s: f64,
     class: usize,
     weight: f64,
@@ -981,6 +988,8 @@ impl LabSolver {
             let outcomes: Vec<ChunkOutcome> = batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d)).collect::<Result<Vec<_>>>()?;
             for o in outcomes {
                 timing.propagate_cpu_s += o.propagate_s;
+                timing.retries += o.retries;
+                timing.retry_cpu_s += o.retry_s;
                 timing.observe_cpu_s += o.observe_s;
                 for (acc, v) in values.iter_mut().zip(&o.values) {
                     for (a, b) in acc.iter_mut().zip(v) {
@@ -1058,12 +1067,16 @@ impl LabSolver {
     #[allow(clippy::too_many_arguments)]
     fn run_chunk(&self, block: LabBlock, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64, with_2d: bool) -> Result<ChunkOutcome> {
         let mut block = block;
+        let (mut retries, mut retry_s) = (0, 0.0);
         loop {
+            let started = std::time::Instant::now();
             let ops = self.ops(block);
             let table = if with_2d { self.detector_table(block.class, block.j_max) } else { None };
             if let Some(o) = self.try_chunk(&ops, cols, field, events, times, t_first, table.as_deref()) {
-                return Ok(o);
+                return Ok(ChunkOutcome { retries, retry_s, ..o });
             }
+            retries += 1;
+            retry_s += started.elapsed().as_secs_f64();
             if block.j_max >= MAX_LAB_BASIS_J {
                 return Err(Error::Numerical(format!("all-M block {block:?}: the basis would need J > {MAX_LAB_BASIS_J}; lower the intensities or the temperature")));
             }
@@ -1191,6 +1204,8 @@ impl LabSolver {
         let total = chunk_started.elapsed().as_secs_f64();
         Some(ChunkOutcome {
             propagate_s: total - observe.get(),
+            retries: 0,
+            retry_s: 0.0,
             observe_s: observe.get(),
             class: ops.block.class,
             weight: g,
