@@ -208,3 +208,28 @@ fn focal_averages_of_polarized_pulses_weight_every_column_and_take_the_goal_from
     let want: Vec<f64> = column(&averaged, "cos2_Za").iter().zip(column(&averaged, "cos2_Xb")).map(|(a, b)| a.min(*b)).collect();
     assert!(max_diff(&averaged.three_axis, &want) < 1e-15);
 }
+
+#[test]
+fn a_circular_pulse_acts_as_an_anti_aligning_pulse_along_the_beam() {
+    // Exact: with equal field components along Z and X, Φ_Z² + Φ_X² = 1 − Φ_Y², so a circularly polarized
+    // pulse of intensity I couples like a linear pulse along Y of intensity −I/2 (anti-alignment along the
+    // beam), which is a pulse of I/2 on a molecule with α∥ and α⊥ exchanged. ⟨cos²⟩ of the axis with Y must
+    // then equal the M-conserving ⟨cos²θ⟩ of that molecule for I/2 along Z, and the ensemble, symmetric about
+    // Y, shows ⟨cos²θ_2D⟩ = 1/2 at every time in the XZ detector plane.
+    let co2 = Molecule::from_library("CO2", "molecule").unwrap();
+    let swapped = Molecule::linear("CO2 with α∥ and α⊥ exchanged", co2.b_cm, co2.d_cm, co2.alpha_perpendicular_a3, co2.alpha_parallel_a3, co2.spin_weights);
+    let times: Vec<f64> = (0..=80).map(|i| -0.3 + 0.15 * i as f64).collect();
+    for method in [Method::Kick, Method::Finite] {
+        // One fixed step for both solvers inside the pulse (their default steps differ; each is within ~1e-6).
+        let settings = SolverSettings { method, step_fs: Some(2.0), ..Default::default() };
+        let circular = Solver::new(&co2, 10.0, settings).unwrap().run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 4e13, 30.0, 1.0)]), &times, true).unwrap().trace;
+        let along_z = Solver::new(&swapped, 10.0, settings).unwrap().run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 0.0, 0.0)]), &times, false).unwrap().trace;
+        let d = max_diff(column(&circular, "cos2_Y"), &along_z.cos2);
+        assert!(d < 1e-8, "{method:?}: Y average vs I/2 along Z with α∥ ↔ α⊥: {d}");
+        let moved = along_z.cos2.iter().map(|v| (v - 1.0 / 3.0).abs()).fold(0.0, f64::max);
+        assert!(moved > 0.05, "{method:?}: the pulse moves the ensemble ({moved})");
+        assert_eq!(circular.cos2_2d.len(), times.len());
+        let off = circular.cos2_2d.iter().map(|v| (v - 0.5).abs()).fold(0.0, f64::max);
+        assert!(off < 1e-9, "{method:?}: 2D of an ensemble symmetric about the beam: {off}");
+    }
+}
