@@ -45,7 +45,7 @@ const GAUSSIAN_HALF_WIDTH: f64 = 2.75;
 /// sech² support half-width in FWHM units: the intensity area outside is < 2e-10 of the total.
 const SECH2_HALF_WIDTH: f64 = 6.75;
 
-/// One linearly polarized laser pulse (polarization along Z).
+/// One laser pulse travelling along Y (polarization in the XZ plane, by default linear along Z).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Pulse {
     /// Time of the intensity maximum (centre), ps.

@@ -277,7 +277,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         let h = 0.5 * p.fwhm_ps();
         // A truncated pulse ends at its switch-off.
         let x1 = if p.shape == crate::field::PulseShape::Truncated { (p.center_ps + h).min(p.end_ps()) } else { p.center_ps + h };
-        plot.markers.push(svg::Marker { x0: p.center_ps - h, x1, label: format!("pulse {}", i + 1), color: "#c0392b".into() });
+        plot.markers.push(svg::Marker { x0: (p.center_ps - h).min(x1), x1, label: format!("pulse {}", i + 1), color: "#c0392b".into() });
     }
     plot.hlines.push(svg::HLine { y: 1.0 / 3.0, label: "isotropic 1/3".into(), color: "#1f5fa8".into() });
     if !trace.cos2_2d.is_empty() {
