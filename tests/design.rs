@@ -321,3 +321,41 @@ fn three_axis_designs_search_polarizations_and_replay_exactly() {
     let e = Objective::from_json_str(&wide, "x").unwrap_err().to_string();
     assert!(e.starts_with("pulses.each[0].polarization.ellipticity: expected minor-to-major field ratios between 0 and 1"), "{e}");
 }
+
+#[test]
+fn detector_plane_designs_with_searched_angles_score_the_full_azimuthal_value() {
+    // A cos2_2d goal with the polarization angle searched: every candidate away from Z is scored through the
+    // all-M path with ⟨cos²θ_2D⟩ of the full azimuthal dependence. Exact reference: a pulse at 90° rotates
+    // the projected angle by 90°, so its 2D trace is 1 − (the 2D trace along Z); common practice: the best
+    // angle for alignment seen from Z is along Z. The design must find it and replay exactly.
+    let text = r#"{
+      "molecule": "CO2", "temperature_k": 5,
+      "pulses": {"count": 1, "fwhm_fs": 100, "peak_intensity_wcm2": {"min": 0, "max": 2e13},
+                 "each": [{"polarization": {"angle_deg": {"min": 0, "max": 90}}}]},
+      "max_peak_intensity_wcm2": 2e13,
+      "goal": {"kind": "peak", "observable": "cos2_2d", "window_ps": [0.05, 20.0], "step_fs": 50},
+      "search": {"seed": 1, "swarm_size": 6, "iterations": 3, "starts": 1, "refine_candidates": 1, "refine_iterations": 2}
+    }"#;
+    let obj = objective(text);
+    let r = design(&obj, &Silent).unwrap();
+    let best = r.best.field.pulses[0].clone();
+    assert!(best.polarization.angle_deg < 5.0, "{:?}", best.polarization);
+    let dir = std::env::temp_dir().join(format!("kicktrain-2d-design-{}", std::process::id()));
+    kicktrain::report::design::write_design(&obj, &r, &dir).unwrap();
+    let scenario = kicktrain::scenario::Scenario::from_json_str(&std::fs::read_to_string(dir.join("design.json")).unwrap(), "design.json").unwrap();
+    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
+    assert!((replay.value - r.best.full.value).abs() < 1e-9, "replay {} vs {}", replay.value, r.best.full.value);
+    std::fs::remove_dir_all(&dir).ok();
+    // The same pulse turned to 90°: 1 − (2D along Z) at every time, through the all-M path.
+    let co2 = kicktrain::molecule::Molecule::from_library("CO2", "molecule").unwrap();
+    let solver = kicktrain::simulate::Solver::new(&co2, 5.0, Default::default()).unwrap();
+    let times: Vec<f64> = (1..=200).map(|i| 0.1 * i as f64).collect();
+    let mut z = best.clone();
+    z.polarization.angle_deg = 0.0;
+    let mut x = best;
+    x.polarization.angle_deg = 90.0;
+    let along_z = solver.run_lab_frame(&kicktrain::field::FieldModel::pulses(vec![z]), &times, true).unwrap().trace.cos2_2d;
+    let along_x = solver.run(&kicktrain::field::FieldModel::pulses(vec![x]), &times, true).unwrap().trace.cos2_2d;
+    let d = along_z.iter().zip(&along_x).map(|(a, b)| (a + b - 1.0).abs()).fold(0.0, f64::max);
+    assert!(d < 1e-9 && along_z.iter().cloned().fold(0.0, f64::max) > 0.7, "X ↔ Z in 2D: {d}");
+}
