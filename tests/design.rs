@@ -20,6 +20,19 @@ fn objective(text: &str) -> Objective {
     Objective::from_json_str(text, "test").unwrap()
 }
 
+/// Write the design's files, read `design.json` back, check that simulate replays the reported score to
+/// 1e-9, and return the replayed scenario.
+fn replays_exactly(obj: &Objective, r: &kicktrain::design::search::DesignResult, tag: &str) -> kicktrain::scenario::Scenario {
+    let dir = std::env::temp_dir().join(format!("kicktrain-{tag}-{}", std::process::id()));
+    kicktrain::report::design::write_design(obj, r, &dir).unwrap();
+    let text = std::fs::read_to_string(dir.join("design.json")).unwrap();
+    let scenario = kicktrain::scenario::Scenario::from_json_str(&text, "design.json").unwrap();
+    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
+    assert!((replay.value - r.best.full.value).abs() < 1e-9, "{tag}: replay {} vs {}", replay.value, r.best.full.value);
+    std::fs::remove_dir_all(&dir).ok();
+    scenario
+}
+
 #[test]
 fn constraints_hold_for_every_point_of_random_spaces() {
     // Property test: feasible-by-construction mapping (ceiling, fluence budget, minimum separation).
@@ -117,15 +130,9 @@ fn beats_single_pulse_and_brute_force_grid_and_replays_exactly() {
     // correction scales as P (Δω σ)² and stays below 2e-3 here.
     assert!((r.best.full.value - r.best.kick.value).abs() < 2e-3, "full {} kick {}", r.best.full.value, r.best.kick.value);
     // design.json replays through simulate to the reported score.
-    let dir = std::env::temp_dir().join(format!("kicktrain-design-test-{}", std::process::id()));
-    kicktrain::report::design::write_design(&obj, &r, &dir).unwrap();
-    let text = std::fs::read_to_string(dir.join("design.json")).unwrap();
-    let scenario = kicktrain::scenario::Scenario::from_json_str(&text, "design.json").unwrap();
-    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
-    assert!((replay.value - r.best.full.value).abs() < 1e-9, "replay {} vs {}", replay.value, r.best.full.value);
+    let scenario = replays_exactly(&obj, &r, "design-test");
     let again = evaluate(&obj, &scenario.field).unwrap();
     assert!((again.full.value - r.best.full.value).abs() < 1e-9);
-    std::fs::remove_dir_all(&dir).ok();
 }
 
 #[test]
@@ -191,12 +198,7 @@ fn orientation_designs_search_the_static_field_and_replay_exactly() {
     obj.space.check(&r.best.field).unwrap();
     assert!(r.best.full.value > 0.0, "orientation expected: {}", r.best.full.value);
     assert!(r.best.full.value >= r.baseline.full.value - 1e-9);
-    let dir = std::env::temp_dir().join(format!("kicktrain-orientation-design-{}", std::process::id()));
-    kicktrain::report::design::write_design(&obj, &r, &dir).unwrap();
-    let scenario = kicktrain::scenario::Scenario::from_json_str(&std::fs::read_to_string(dir.join("design.json")).unwrap(), "design.json").unwrap();
-    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
-    assert!((replay.value - r.best.full.value).abs() < 1e-9, "replay {} vs {}", replay.value, r.best.full.value);
-    std::fs::remove_dir_all(&dir).ok();
+    replays_exactly(&obj, &r, "orientation-design");
     // A cos goal without any orienting field is refused up front.
     let bad = text.replace(r#""static_field_kv_cm": {"min": 0, "max": 20},"#, "");
     assert!(Objective::from_json_str(&bad, "x").unwrap_err().to_string().starts_with("goal.observable:"));
@@ -305,14 +307,9 @@ fn three_axis_designs_search_polarizations_and_replay_exactly() {
     assert!((0.0..=90.0).contains(&p2.angle_deg) && (0.0..=1.0).contains(&p2.ellipticity), "{p2:?}");
     assert!(r.best.full.value > 1.0 / 3.0, "three-axis alignment expected: {}", r.best.full.value);
     assert!(r.best.full.value >= r.baseline.full.value - 1e-9);
-    let dir = std::env::temp_dir().join(format!("kicktrain-three-axis-design-{}", std::process::id()));
-    kicktrain::report::design::write_design(&obj, &r, &dir).unwrap();
-    let scenario = kicktrain::scenario::Scenario::from_json_str(&std::fs::read_to_string(dir.join("design.json")).unwrap(), "design.json").unwrap();
+    let scenario = replays_exactly(&obj, &r, "three-axis-design");
     let q2 = scenario.field.pulses[1].polarization;
     assert!((q2.angle_deg - p2.angle_deg).abs() < 1e-12 && (q2.ellipticity - p2.ellipticity).abs() < 1e-12, "{q2:?} vs {p2:?}");
-    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
-    assert!((replay.value - r.best.full.value).abs() < 1e-9, "replay {} vs {}", replay.value, r.best.full.value);
-    std::fs::remove_dir_all(&dir).ok();
     // A three-axis goal for a linear molecule, and ellipticities outside [0, 1], are refused up front.
     let linear = text.replace(r#""molecule": "SO2""#, r#""molecule": "N2""#);
     let e = Objective::from_json_str(&linear, "x").unwrap_err().to_string();
@@ -340,12 +337,7 @@ fn detector_plane_designs_with_searched_angles_score_the_full_azimuthal_value() 
     let r = design(&obj, &Silent).unwrap();
     let best = r.best.field.pulses[0].clone();
     assert!(best.polarization.angle_deg < 5.0, "{:?}", best.polarization);
-    let dir = std::env::temp_dir().join(format!("kicktrain-2d-design-{}", std::process::id()));
-    kicktrain::report::design::write_design(&obj, &r, &dir).unwrap();
-    let scenario = kicktrain::scenario::Scenario::from_json_str(&std::fs::read_to_string(dir.join("design.json")).unwrap(), "design.json").unwrap();
-    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
-    assert!((replay.value - r.best.full.value).abs() < 1e-9, "replay {} vs {}", replay.value, r.best.full.value);
-    std::fs::remove_dir_all(&dir).ok();
+    replays_exactly(&obj, &r, "2d-design");
     // The same pulse turned to 90°: 1 − (2D along Z) at every time, through the all-M path.
     let co2 = kicktrain::molecule::Molecule::from_library("CO2", "molecule").unwrap();
     let solver = kicktrain::simulate::Solver::new(&co2, 5.0, Default::default()).unwrap();
