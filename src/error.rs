@@ -6,7 +6,12 @@ use std::fmt;
 #[derive(Debug, Clone, PartialEq)]
 pub enum Error {
     /// A bad value in an input file or argument: the dotted field path and what was expected.
-    Input { field: String, message: String },
+    Input {
+        /// Dotted path of the offending field, e.g. `pulses[0].fwhm_fs`.
+        field: String,
+        /// What was expected (unit or range) and what was given.
+        message: String,
+    },
     /// The numerical method could not reach the requested accuracy (e.g. basis limit).
     Numerical(String),
     /// Reading or writing a file failed.

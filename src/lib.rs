@@ -12,6 +12,8 @@
 //! assert!(peak > 1.0 / 3.0);
 //! ```
 
+#![warn(missing_docs)]
+
 pub mod basis;
 pub mod design;
 pub mod ensemble;

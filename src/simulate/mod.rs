@@ -29,9 +29,25 @@ use std::sync::{Arc, Mutex};
 #[derive(Debug, Clone, PartialEq)]
 pub enum Event {
     /// An impulsive kick exp(i P cos²θ) at time `t_ps` from pulse `pulse`.
-    Kick { t_ps: f64, strength: f64, pulse: usize },
+    Kick {
+        /// Time of the kick, ps.
+        t_ps: f64,
+        /// Kick strength P (rad).
+        strength: f64,
+        /// Index of the pulse in the field model.
+        pulse: usize,
+    },
     /// Time-dependent propagation through the pulses `pulses` from `start_ps` to `end_ps` with steps ≤ `step_ps`.
-    Finite { start_ps: f64, end_ps: f64, pulses: Vec<usize>, step_ps: f64 },
+    Finite {
+        /// Start of the interval, ps.
+        start_ps: f64,
+        /// End of the interval, ps.
+        end_ps: f64,
+        /// Indices of the pulses active in the interval.
+        pulses: Vec<usize>,
+        /// Largest time step, ps.
+        step_ps: f64,
+    },
 }
 
 impl Event {
