@@ -333,6 +333,11 @@ fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error
 }
 
 /// ", polarized at A° from Z, ellipticity E" for pulses not polarized along Z (empty otherwise).
+/// ", switched off … fs from the peak" for a truncated pulse cut away from its peak (JSON `cut_fs`).
+fn cut_text(p: &serde_json::Value) -> String {
+    p["cut_fs"].as_f64().map(|c| format!(", switched off {c:+.1} fs from the peak")).unwrap_or_default()
+}
+
 fn polarization_text(v: &serde_json::Value) -> String {
     let (a, e) = (v["angle_deg"].as_f64().unwrap_or(0.0), v["ellipticity"].as_f64().unwrap_or(0.0));
     if a == 0.0 && e == 0.0 { String::new() } else { format!(", polarized at {a:.1}° from Z towards X, ellipticity {e:.3}") }
@@ -362,7 +367,7 @@ fn print_simulation(s: &serde_json::Value) {
                 p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
                 p["kick_strength"].as_f64().unwrap_or(0.0),
                 p["method"].as_str().unwrap_or(""),
-                polarization_text(&p["polarization"])
+                polarization_text(&p["polarization"]) + &cut_text(p)
             );
         }
     }
@@ -523,7 +528,7 @@ fn print_design(s: &serde_json::Value) {
                 100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0),
                 p["fwhm_fs"].as_f64().unwrap_or(0.0),
                 p["kick_strength"].as_f64().unwrap_or(0.0),
-                polarization_text(&p["polarization"])
+                polarization_text(&p["polarization"]) + &cut_text(p)
             );
         }
     }

@@ -52,6 +52,7 @@ fn constraints_hold_for_every_point_of_random_spaces() {
                     fwhm_fs: Bounds { min: fmin, max: fmin * rng.random_range(1.0..3.0) },
                     angle_deg: Bounds::fixed(0.0),
                     ellipticity: Bounds::fixed(0.0),
+                    cut_fs: Bounds::fixed(0.0),
                 }
             })
             .collect();
@@ -59,7 +60,6 @@ fn constraints_hold_for_every_point_of_random_spaces() {
         let space = DesignSpace {
             shape: PulseShape::Gaussian,
             rise_fs: None,
-            cut_fs: None,
             pulses,
             max_peak_intensity_wcm2: ceiling,
             max_total_fluence_jcm2: budget,
@@ -350,4 +350,33 @@ fn detector_plane_designs_with_searched_angles_score_the_full_azimuthal_value() 
     let along_x = solver.run(&kicktrain::field::FieldModel::pulses(vec![x]), &times, true).unwrap().trace.cos2_2d;
     let d = along_z.iter().zip(&along_x).map(|(a, b)| (a + b - 1.0).abs()).fold(0.0, f64::max);
     assert!(d < 1e-9 && along_z.iter().cloned().fold(0.0, f64::max) > 0.7, "X ↔ Z in 2D: {d}");
+}
+
+#[test]
+fn switch_off_times_of_truncated_pulses_are_searched_and_replayed() {
+    // The switch-off of a truncated pulse as a design parameter (N2 at 300 K, one 100 fs pulse, cut
+    // between 100 fs before and 100 fs after the peak). Common practice: below saturation a larger kick
+    // strength gives a higher alignment peak, so the search keeps most of the pulse (a cut after the peak).
+    let text = r#"{
+      "molecule": "N2", "temperature_k": 300,
+      "pulses": {"count": 1, "shape": "truncated", "rise_fs": 20, "fwhm_fs": 100, "cut_fs": {"min": -100, "max": 100},
+                 "peak_intensity_wcm2": 3e13},
+      "max_peak_intensity_wcm2": 3e13,
+      "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.05, 9.0], "step_fs": 20},
+      "search": {"seed": 1, "swarm_size": 6, "iterations": 3, "starts": 1, "refine_candidates": 1, "refine_iterations": 4}
+    }"#;
+    let obj = objective(text);
+    assert_eq!(obj.space.dims(), 1, "only the switch-off is searched");
+    let r = design(&obj, &Silent).unwrap();
+    let cut = r.best.field.pulses[0].cut_fs.expect("a cut away from the peak");
+    assert!(cut > 0.0 && cut <= 100.0, "cut {cut} fs");
+    let scenario = replays_exactly(&obj, &r, "cut-design");
+    assert_eq!(scenario.field.pulses[0].cut_fs, Some(cut));
+    // A switch-off for a Gaussian, and one beyond ±2 FWHM for one pulse, are refused naming the key.
+    let gaussian = text.replace(r#""shape": "truncated", "#, "");
+    let e = Objective::from_json_str(&gaussian, "x").unwrap_err().to_string();
+    assert!(e.starts_with("pulses.cut_fs: a switch-off time goes with shape \"truncated\" only"), "{e}");
+    let far = text.replace(r#""peak_intensity_wcm2": 3e13},"#, r#""peak_intensity_wcm2": 3e13, "each": [{"cut_fs": -300}]},"#);
+    let e = Objective::from_json_str(&far, "x").unwrap_err().to_string();
+    assert!(e.starts_with("pulses.each[0].cut_fs: expected a switch-off within ±2 FWHM"), "{e}");
 }

@@ -60,6 +60,8 @@ pub struct PulseBounds {
     pub angle_deg: Bounds,
     /// Ellipticity (minor-to-major field ratio), 0..=1 (fixed 0: linear).
     pub ellipticity: Bounds,
+    /// Start of a truncated pulse's switch-off relative to its peak, fs (fixed 0: at the peak).
+    pub cut_fs: Bounds,
 }
 
 /// The space of pulse trains searched: bounds per pulse and global constraints.
@@ -69,8 +71,6 @@ pub struct DesignSpace {
     pub shape: PulseShape,
     /// Edge duration of flat-top pulses, or the switch-off of truncated ones, fs.
     pub rise_fs: Option<f64>,
-    /// Start of the switch-off of truncated pulses relative to their peaks, fs.
-    pub cut_fs: Option<f64>,
     /// Bounds per pulse (the train has this many pulses).
     pub pulses: Vec<PulseBounds>,
     /// Ceiling on every pulse's peak intensity, W/cm².
@@ -117,6 +117,7 @@ enum Slot {
     Fwhm(usize),
     Angle(usize),
     Ellipticity(usize),
+    Cut(usize),
     Static,
     Ratio,
     Phase,
@@ -154,6 +155,9 @@ impl DesignSpace {
             }
             if !self.pulses[k].ellipticity.is_fixed() {
                 s.push(Slot::Ellipticity(k));
+            }
+            if !self.pulses[k].cut_fs.is_fixed() {
+                s.push(Slot::Cut(k));
             }
         }
         if self.static_field_kv_cm.map(|b| !b.is_fixed()).unwrap_or(false) {
@@ -193,6 +197,7 @@ impl DesignSpace {
                 Slot::Fwhm(k) => format!("pulse {} FWHM (fs)", k + 1),
                 Slot::Angle(k) => format!("pulse {} polarization angle (deg)", k + 1),
                 Slot::Ellipticity(k) => format!("pulse {} ellipticity", k + 1),
+                Slot::Cut(k) => format!("pulse {} switch-off from the peak (fs)", k + 1),
                 Slot::Static => "static field (kV/cm)".to_string(),
                 Slot::Ratio => "second-harmonic ratio".to_string(),
                 Slot::Phase => "two-colour phase (rad)".to_string(),
@@ -212,6 +217,7 @@ impl DesignSpace {
         let mut fwhm: Vec<f64> = self.pulses.iter().map(|p| p.fwhm_fs.min).collect();
         let mut angle: Vec<f64> = self.pulses.iter().map(|p| p.angle_deg.min).collect();
         let mut ellipticity: Vec<f64> = self.pulses.iter().map(|p| p.ellipticity.min).collect();
+        let mut cut: Vec<f64> = self.pulses.iter().map(|p| p.cut_fs.min).collect();
         for (k, d) in delay.iter_mut().enumerate().skip(1) {
             *d = self.delay_bounds(k).min;
         }
@@ -227,6 +233,7 @@ impl DesignSpace {
                 Slot::Fwhm(k) => fwhm[k] = self.pulses[k].fwhm_fs.at(x),
                 Slot::Angle(k) => angle[k] = self.pulses[k].angle_deg.at(x),
                 Slot::Ellipticity(k) => ellipticity[k] = self.pulses[k].ellipticity.at(x),
+                Slot::Cut(k) => cut[k] = self.pulses[k].cut_fs.at(x),
                 Slot::Static => static_kv = self.static_field_kv_cm.map(|b| b.at(x)),
                 Slot::Ratio => ratio = self.two_colour.expect("two-colour bounds").ratio.at(x),
                 Slot::Phase => phase = self.two_colour.expect("two-colour bounds").phase_rad.at(x),
@@ -239,7 +246,9 @@ impl DesignSpace {
             .map(|k| {
                 t += delay[k];
                 let polarization = crate::field::PulsePolarization { angle_deg: angle[k], ellipticity: ellipticity[k] };
-                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, cut_fs: self.cut_fs, polarization }
+                // A switch-off at the peak is the truncated shape's default: leave the key out.
+                let cut_fs = (self.shape == PulseShape::Truncated && cut[k] != 0.0).then_some(cut[k]);
+                Pulse { center_ps: t, fwhm_fs: fwhm[k], peak_intensity_wcm2: inten[k], shape: self.shape, rise_fs: self.rise_fs, cut_fs, polarization }
             })
             .collect();
         if let Some(budget) = self.max_total_fluence_jcm2 {
@@ -369,7 +378,8 @@ impl DesignSpace {
                         peak_intensity_wcm2: self.intensity_bounds(k).min,
                         shape: self.shape,
                         rise_fs: self.rise_fs,
-                        cut_fs: self.cut_fs,
+                        // The least fluence: the earliest switch-off.
+                        cut_fs: (self.shape == PulseShape::Truncated).then_some(self.pulses[k].cut_fs.min),
                         polarization: Default::default(),
                     };
                     fluence_jcm2(&p)
@@ -626,7 +636,7 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
         .ok_or_else(|| Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name)))?;
     let mut largest_cap: f64 = 0.0;
     for (k, pb) in space.pulses.iter_mut().enumerate() {
-        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, cut_fs: space.cut_fs, polarization: Default::default() };
+        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, cut_fs: (space.shape == PulseShape::Truncated).then_some(pb.cut_fs.max), polarization: Default::default() };
         let (mut lo, mut hi) = (1e8f64.ln(), 1e17f64.ln());
         for _ in 0..60 {
             let mid = 0.5 * (lo + hi);
@@ -691,7 +701,10 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
     };
     let rise_fs = f.opt_f64("rise_fs", "fs")?;
-    let cut_fs = f.opt_f64("cut_fs", "fs")?;
+    let cut_fs = match f.opt_value("cut_fs") {
+        Some(v) => parse_bounds(v, &join(path, "cut_fs"), "fs")?,
+        None => Bounds::fixed(0.0),
+    };
     let fwhm = parse_bounds(f.req_value("fwhm_fs", "a duration in fs or {min, max}")?, &join(path, "fwhm_fs"), "fs")?;
     let delay = match f.opt_value("delay_ps") {
         Some(d) => parse_bounds(d, &join(path, "delay_ps"), "ps")?,
@@ -706,7 +719,7 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         Some(v) => parse_polarization_bounds(v, &join(path, "polarization"))?,
         None => (Bounds::fixed(0.0), Bounds::fixed(0.0)),
     };
-    let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm, angle_deg, ellipticity }; n];
+    let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm, angle_deg, ellipticity, cut_fs }; n];
     let two_colour = match f.opt_value("two_colour") {
         None => None,
         Some(v) => {
@@ -748,6 +761,9 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
             if let Some(v) = g.opt_value("polarization") {
                 (pulses[k].angle_deg, pulses[k].ellipticity) = parse_polarization_bounds(v, &join(&pp, "polarization"))?;
             }
+            if let Some(c) = g.opt_value("cut_fs") {
+                pulses[k].cut_fs = parse_bounds(c, &join(&pp, "cut_fs"), "fs")?;
+            }
             g.finish()?;
         }
     }
@@ -755,7 +771,6 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
     let space = DesignSpace {
         shape,
         rise_fs,
-        cut_fs,
         pulses,
         max_peak_intensity_wcm2: ceiling,
         max_total_fluence_jcm2: budget,
@@ -764,12 +779,17 @@ fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_se
         two_colour,
         terahertz: None,
     };
-    // Check each pulse shape once through the pulse validator (rise vs FWHM and so on).
-    for p in &space.pulses {
+    // Check each pulse shape through the pulse validator at the corners of its bounds (rise vs FWHM,
+    // switch-off within ±2 FWHM of the peak and only for truncated pulses). Errors name the template
+    // (`pulses.cut_fs`) or the pulse's entry under `each`.
+    for (k, p) in space.pulses.iter().enumerate() {
+        let at = if p.cut_fs != cut_fs { format!("{}[{k}]", join(path, "each")) } else { path.to_string() };
         for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
-            let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs, cut_fs, polarization: Default::default() };
-            // rise_fs and cut_fs are keys of the template: errors name it (`pulses.cut_fs`).
-            pulse.validate(path)?;
+            for c in [p.cut_fs.min, p.cut_fs.max] {
+                let cut = (c != 0.0 || !p.cut_fs.is_fixed()).then_some(c);
+                let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs, cut_fs: cut, polarization: Default::default() };
+                pulse.validate(&at)?;
+            }
         }
     }
     Ok((space, variable))

@@ -496,6 +496,7 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
             fwhm_fs: obj.space.pulses[0].fwhm_fs,
             angle_deg: obj.space.pulses[0].angle_deg,
             ellipticity: obj.space.pulses[0].ellipticity,
+            cut_fs: obj.space.pulses[0].cut_fs,
         }],
         ..obj.space.clone()
     };

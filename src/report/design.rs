@@ -44,6 +44,7 @@ fn pulses_json(obj: &Objective, field: &FieldModel) -> Vec<Value> {
                 "shape": p.shape,
                 "kick_strength": p.kick_strength(da),
                 "polarization": p.polarization,
+                "cut_fs": p.cut_fs,
                 "fluence_jcm2": fluence_jcm2(p),
                 "ionized_fraction_adk": obj.molecule().ionization_energy_ev.map(|ip| crate::optics::ionization::ionized_fraction(p, ip)),
             })

@@ -58,6 +58,9 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
                 "shape": p.shape, "kick_strength": p.kick_strength(da), "method": methods[i],
                 "polarization": p.polarization,
             });
+            if let Some(c) = p.cut_fs {
+                v["cut_fs"] = num(c);
+            }
             if let Some(ip) = s.molecule.ionization_energy_ev {
                 v["ionized_fraction_adk"] = num(crate::optics::ionization::ionized_fraction(p, ip));
             }
