@@ -584,30 +584,34 @@ impl LabOps {
         });
     }
 
-    /// Σ_c p_c ⟨ψ_c|Φ_Fg²|ψ_c⟩ for the nine observables (part order), through the function basis.
-    fn expect(&self, state: &BlockState, pops: &[f64]) -> [f64; 9] {
+    /// Σ_c p_c ⟨ψ_c|Φ_Fg²|ψ_c⟩ for the nine observables (part order) of k states given transposed in the
+    /// function basis (`states_to_functions`).
+    fn expect_in(&self, f: &[f64], cols: usize, k: usize, pops: &[f64]) -> [f64; 9] {
         let obs = self.observables();
         let mut out = [0.0; 9];
-        self.in_functions(state, |f, cols| {
-            let n = state.psi.nrows();
-            let k = state.k;
-            let w: Vec<f64> = (0..cols).map(|c| pops[c % k]).collect();
-            let mut wr = vec![0.0; cols];
-            for r in 0..n {
-                let row = &f[r * cols..(r + 1) * cols];
-                for ((x, y), z) in wr.iter_mut().zip(row).zip(&w) {
-                    *x = y * z;
-                }
-                for e in obs.row_ptr[r]..obs.row_ptr[r + 1] {
-                    let c = obs.col[e];
-                    let d: f64 = wr.iter().zip(&f[c * cols..(c + 1) * cols]).map(|(x, y)| x * y).sum();
-                    for (o, acc) in out.iter_mut().enumerate() {
-                        *acc += obs.vals[e * 9 + o] * d;
-                    }
+        let n = self.size;
+        let w: Vec<f64> = (0..cols).map(|c| pops[c % k]).collect();
+        let mut wr = vec![0.0; cols];
+        for r in 0..n {
+            let row = &f[r * cols..(r + 1) * cols];
+            for ((x, y), z) in wr.iter_mut().zip(row).zip(&w) {
+                *x = y * z;
+            }
+            for e in obs.row_ptr[r]..obs.row_ptr[r + 1] {
+                let c = obs.col[e];
+                let d: f64 = wr.iter().zip(&f[c * cols..(c + 1) * cols]).map(|(x, y)| x * y).sum();
+                for (o, acc) in out.iter_mut().enumerate() {
+                    *acc += obs.vals[e * 9 + o] * d;
                 }
             }
-        });
+        }
         out
+    }
+
+    /// One past the last row of `state` with any amplitude above 1e-13 (rows beyond hold nothing).
+    fn live_rows(state: &BlockState) -> usize {
+        let n = state.psi.nrows();
+        (0..n).rev().find(|&r| (0..2 * state.k).any(|c| state.psi[(r, c)].powi(2) > 1e-26)).map(|r| r + 1).unwrap_or(0)
     }
 
     /// Coherence coefficients of the states for the nine observables, per pair of slices (J, J + d):
@@ -616,8 +620,7 @@ impl LabOps {
     fn coefficients(&self, state: &BlockState, pops: &[f64]) -> PairCoefficients {
         let k = state.k;
         let two_k = 2 * k;
-        let n = state.psi.nrows();
-        let live = (0..n).rev().find(|&r| (0..two_k).any(|c| state.psi[(r, c)].powi(2) > 1e-26)).map(|r| r + 1).unwrap_or(0);
+        let live = Self::live_rows(state);
         let sq: Vec<f64> = pops.iter().map(|p| p.sqrt()).collect();
         let gathered: Vec<Option<DMatrix<f64>>> = self
             .slices
@@ -1108,9 +1111,11 @@ impl LabSolver {
         let mut values = vec![[0.0; 10]; times.len()];
         let mut gaps = vec![];
         // The nine direction-cosine averages and ⟨cos²θ_2D⟩ (when asked) of the states, times the class weight.
+        // One change to the function basis serves both.
         let sample = |st: &BlockState| -> [f64; 10] {
-            let nine = ops.expect(st, &pops);
-            let two_d = table.map(|t| ops.expect_detector(ops.detector(), t, st, &pops)).unwrap_or(0.0);
+            let (nine, two_d) = ops.in_functions(st, |f, cols| {
+                (ops.expect_in(f, cols, st.k, &pops), table.map(|t| ops.expect_detector_in(ops.detector(), t, f, cols, st.k, &pops)).unwrap_or(0.0))
+            });
             std::array::from_fn(|i| g * if i < 9 { nine[i] } else { two_d })
         };
         let coefficients = |st: &BlockState| (ops.coefficients(st, &pops), table.map(|t| ops.detector_coefficients(ops.detector(), t, st, &pops)));

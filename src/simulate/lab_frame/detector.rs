@@ -160,48 +160,45 @@ impl LabOps {
     /// Σ_c p_c ⟨ψ_c|cos²θ_2D|ψ_c⟩ directly (samples inside pulses): per signed K and M_Y, the primitive
     /// amplitudes over J against the θ table, one matrix product each (negative K through
     /// ⟨…−K…⟩ = (−1)^{J+J'}⟨…K…⟩, applied as (−1)^J on the amplitudes).
-    pub(super) fn expect_detector(&self, det: &DetectorOps, table: &DetectorTable, state: &BlockState, pops: &[f64]) -> f64 {
-        let k = state.k;
+    /// States are given transposed in the function basis (`states_to_functions`), k of them.
+    pub(super) fn expect_detector_in(&self, det: &DetectorOps, table: &DetectorTable, f: &[f64], cols: usize, k: usize, pops: &[f64]) -> f64 {
         let j_max = self.block.j_max;
-        self.in_functions(state, |f, cols| {
-            let y = self.rotated(det, |r, c| f[r * cols + c], k, pops, self.size);
-            let norm: f64 = y.iter().flatten().map(|(re, im)| re.norm_squared() + im.norm_squared()).sum();
-            let mut raised = 0.0;
-            for (kk, members) in &det.by_k {
-                let ka = kk.abs();
-                let lo = |m: i64| m.abs().max(ka);
-                // Rows J − lo(M_Y), columns [Re | Im] of the states.
-                let mut g: Vec<Option<DMatrix<f64>>> = vec![None; (2 * j_max + 1) as usize];
-                for &(a, p, coef) in members {
-                    let Some((re, im)) = &y[a] else { continue };
-                    let j = self.slices[a].j;
-                    let c = if *kk < 0 && j % 2 != 0 { -coef } else { coef };
-                    for (r, &m) in det.turns[a].my.iter().enumerate() {
-                        let gm = g[(m + j_max) as usize].get_or_insert_with(|| DMatrix::zeros((j_max - lo(m) + 1) as usize, 2 * k));
-                        let row = (j - lo(m)) as usize;
-                        for s in 0..k {
-                            gm[(row, s)] += c * re[(r, p * k + s)];
-                            gm[(row, k + s)] += c * im[(r, p * k + s)];
-                        }
+        let y = self.rotated(det, |r, c| f[r * cols + c], k, pops, self.size);
+        let norm: f64 = y.iter().flatten().map(|(re, im)| re.norm_squared() + im.norm_squared()).sum();
+        let mut raised = 0.0;
+        for (kk, members) in &det.by_k {
+            let ka = kk.abs();
+            let lo = |m: i64| m.abs().max(ka);
+            // Rows J − lo(M_Y), columns [Re | Im] of the states.
+            let mut g: Vec<Option<DMatrix<f64>>> = vec![None; (2 * j_max + 1) as usize];
+            for &(a, p, coef) in members {
+                let Some((re, im)) = &y[a] else { continue };
+                let j = self.slices[a].j;
+                let c = if *kk < 0 && j % 2 != 0 { -coef } else { coef };
+                for (r, &m) in det.turns[a].my.iter().enumerate() {
+                    let gm = g[(m + j_max) as usize].get_or_insert_with(|| DMatrix::zeros((j_max - lo(m) + 1) as usize, 2 * k));
+                    let row = (j - lo(m)) as usize;
+                    for s in 0..k {
+                        gm[(row, s)] += c * re[(r, p * k + s)];
+                        gm[(row, k + s)] += c * im[(r, p * k + s)];
                     }
                 }
-                for m in -j_max..=j_max - 2 {
-                    let (Some(ga), Some(gb)) = (&g[(m + j_max) as usize], &g[(m + 2 + j_max) as usize]) else { continue };
-                    let Some((t, _, _)) = table.matrix(ka, m) else { continue };
-                    // Re Σ conj(b) T a = Σ (b_re ∘ T a_re + b_im ∘ T a_im).
-                    let tg = t.view((0, 0), (gb.nrows(), ga.nrows())) * ga;
-                    raised += gb.dot(&tg);
-                }
             }
-            0.5 * norm + 0.5 * raised
-        })
+            for m in -j_max..=j_max - 2 {
+                let (Some(ga), Some(gb)) = (&g[(m + j_max) as usize], &g[(m + 2 + j_max) as usize]) else { continue };
+                let Some((t, _, _)) = table.matrix(ka, m) else { continue };
+                // Re Σ conj(b) T a = Σ (b_re ∘ T a_re + b_im ∘ T a_im).
+                let tg = t.view((0, 0), (gb.nrows(), ga.nrows())) * ga;
+                raised += gb.dot(&tg);
+            }
+        }
+        0.5 * norm + 0.5 * raised
     }
 
     /// Coherence coefficients of the detector-plane operator between field-free levels (after pulses).
     pub(super) fn detector_coefficients(&self, det: &DetectorOps, table: &DetectorTable, state: &BlockState, pops: &[f64]) -> DetectorCoefficients {
         let k = state.k;
-        let n = state.psi.nrows();
-        let live = (0..n).rev().find(|&r| (0..2 * k).any(|c| state.psi[(r, c)].powi(2) > 1e-26)).map(|r| r + 1).unwrap_or(0);
+        let live = Self::live_rows(state);
         let y = self.rotated(det, |r, c| state.psi[(r, c)], k, pops, live);
         let norm: f64 = y.iter().flatten().map(|(re, im)| re.norm_squared() + im.norm_squared()).sum();
         let ns = self.slices.len();
