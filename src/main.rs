@@ -511,13 +511,21 @@ fn print_design(s: &serde_json::Value) {
     if s["interrupted"].as_bool() == Some(true) {
         println!("  (search interrupted: best design found so far)");
     }
-    println!(
-        "  score {} at {} ps (full solver); kick model {} (difference {})",
-        f(&s["score"]),
-        f(&s["score_time_ps"]),
-        f(&s["kick_model_score"]),
-        f(&s["full_minus_kick_model"])
-    );
+    if s["kick_model_score"].is_null() {
+        println!(
+            "  score {} at {} ps (full solver; pulses too long for the kick model, searched with the full solver throughout)",
+            f(&s["score"]),
+            f(&s["score_time_ps"])
+        );
+    } else {
+        println!(
+            "  score {} at {} ps (full solver); kick model {} (difference {})",
+            f(&s["score"]),
+            f(&s["score_time_ps"]),
+            f(&s["kick_model_score"]),
+            f(&s["full_minus_kick_model"])
+        );
+    }
     if let Some(ps) = s["pulses"].as_array() {
         for p in ps {
             println!(

@@ -101,7 +101,7 @@ fn random_objectives_give_feasible_designs() {
         let r = design(&obj, &Silent).unwrap();
         for c in r.per_count.iter().chain([&r.best, &r.baseline]) {
             obj.space.check(&c.field).unwrap_or_else(|e| panic!("case {case}: {e}"));
-            assert!(c.full.value.is_finite() && c.kick.value.is_finite());
+            assert!(c.full.value.is_finite() && c.kick.expect("kick model").value.is_finite());
         }
     }
 }
@@ -125,10 +125,10 @@ fn beats_single_pulse_and_brute_force_grid_and_replays_exactly() {
         }
     }
     let grid_best = evaluate_kick_many(&obj, &fields).unwrap().iter().map(|s| s.value).fold(f64::MIN, f64::max);
-    assert!(r.best.kick.value >= grid_best - 2e-3, "designer {} vs grid {}", r.best.kick.value, grid_best);
+    assert!(r.best.kick.expect("kick model").value >= grid_best - 2e-3, "designer {} vs grid {}", r.best.kick.expect("kick model").value, grid_best);
     // The kick model and the full solver agree for 30 fs pulses on CO2 at 10 K: the finite-duration
     // correction scales as P (Δω σ)² and stays below 2e-3 here.
-    assert!((r.best.full.value - r.best.kick.value).abs() < 2e-3, "full {} kick {}", r.best.full.value, r.best.kick.value);
+    assert!((r.best.full.value - r.best.kick.expect("kick model").value).abs() < 2e-3, "full {} kick {}", r.best.full.value, r.best.kick.expect("kick model").value);
     // design.json replays through simulate to the reported score.
     let scenario = replays_exactly(&obj, &r, "design-test");
     let again = evaluate(&obj, &scenario.field).unwrap();
@@ -379,4 +379,43 @@ fn switch_off_times_of_truncated_pulses_are_searched_and_replayed() {
     let far = text.replace(r#""peak_intensity_wcm2": 3e13},"#, r#""peak_intensity_wcm2": 3e13, "each": [{"cut_fs": -300}]},"#);
     let e = Objective::from_json_str(&far, "x").unwrap_err().to_string();
     assert!(e.starts_with("pulses.each[0].cut_fs: expected a switch-off within ±2 FWHM"), "{e}");
+}
+
+#[test]
+fn long_pulse_designs_skip_the_kick_model_and_reach_the_adiabatic_limit() {
+    // HCl at 10 K (rotational period 1.6 ps) in a 20 ps pulse and a searched static field, goal ⟨cosθ⟩ at
+    // the pulse peak. The pulses are far too long for the kick model (its strength at the ceiling would not
+    // fit any basis), so the designer searches with the full solver throughout. Reference: a pulse much
+    // longer than the rotational period follows the field-dressed states adiabatically (adiabatic theorem),
+    // so the design's score equals the thermal pendular ⟨cosθ⟩ at the designed intensity and field.
+    let text = r#"{
+      "molecule": "HCl", "temperature_k": 10,
+      "static_field_kv_cm": {"min": 0, "max": 200},
+      "pulses": {"count": 1, "fwhm_fs": 20000, "peak_intensity_wcm2": {"min": 0, "max": 1e13}},
+      "max_peak_intensity_wcm2": 1e13,
+      "goal": {"kind": "value_at", "at_ps": 0, "observable": "cos", "step_fs": 100},
+      "search": {"seed": 2, "swarm_size": 4, "iterations": 2, "starts": 1, "refine_candidates": 1, "refine_iterations": 4}
+    }"#;
+    let obj = objective(text);
+    assert!(!obj.kick_screening());
+    let r = design(&obj, &Silent).unwrap();
+    assert_eq!(r.kick_evaluations, 0);
+    assert!(r.best.kick.is_none() && r.baseline.kick.is_none());
+    let p = &r.best.field.pulses[0];
+    let e = r.best.field.static_field.expect("a static field").strength_kv_cm;
+    let adiabatic = kicktrain::pendular::pendular(obj.molecule(), p.peak_intensity_wcm2, e, 10.0, 3).unwrap();
+    assert!(
+        (r.best.full.value - adiabatic.thermal_cos).abs() < 2e-3,
+        "design {} vs adiabatic {} at {:.3e} W/cm², {e:.1} kV/cm",
+        r.best.full.value,
+        adiabatic.thermal_cos,
+        p.peak_intensity_wcm2
+    );
+    // Not worse than the strongest allowed fields (in the adiabatic limit more field orients more).
+    let corner = kicktrain::pendular::pendular(obj.molecule(), 1e13, 200.0, 10.0, 3).unwrap();
+    assert!(r.best.full.value >= corner.thermal_cos - 2e-3, "design {} vs corner {}", r.best.full.value, corner.thermal_cos);
+    replays_exactly(&obj, &r, "adiabatic-design");
+    // The kick-model helpers refuse such pulses, naming the duration.
+    let e = evaluate_kick_many(&obj, std::slice::from_ref(&r.best.field)).unwrap_err().to_string();
+    assert!(e.starts_with("pulses.fwhm_fs:"), "{e}");
 }

@@ -16,6 +16,9 @@ use crate::molecule::Molecule;
 use crate::scenario::{MoleculeSource, Scenario, SolverSettings, Window};
 use serde_json::Value;
 
+/// Pulses shorter than this fraction of the fastest rotational period are screened with the kick model.
+pub const KICK_SCREENING_FRACTION: f64 = 0.25;
+
 /// A closed range [min, max]; min = max fixes the value.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Bounds {
@@ -560,13 +563,18 @@ impl Objective {
         }
         // The longest design must replay as a valid scenario: check before any search starts.
         let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
-        // The strongest design must fit the largest basis the solver allows.
-        let da = obj.molecule().delta_alpha_a3();
-        let strongest: f64 = longest.pulses.iter().map(|p| p.kick_strength(da).abs()).sum::<f64>()
+        // The strongest design must fit the largest basis the solver allows: its kick strength when the
+        // kick model screens candidates, else (long pulses) the reach the full solver allows for.
+        let molecule = obj.molecule();
+        let screening = obj.kick_screening();
+        let reach = |p: &Pulse| {
+            if screening { p.kick_strength(molecule.delta_alpha_a3()).abs() } else { crate::simulate::reach_strength(molecule, p) }
+        };
+        let strongest: f64 = longest.pulses.iter().map(reach).sum::<f64>()
             + longest
                 .two_colour
                 .iter()
-                .map(|t| t.envelope_pulse().kick_strength(da) * (t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2))
+                .map(|t| reach(&Pulse { peak_intensity_wcm2: t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2, ..t.envelope_pulse() }))
                 .sum::<f64>();
         let room = obj.molecule().max_physical_j() as f64 * 0.6;
         if strongest > room {
@@ -582,6 +590,19 @@ impl Objective {
             other => other,
         })?;
         Ok(obj)
+    }
+
+    /// Whether the kick (impulsive) model screens candidates before the full solver: only when every
+    /// pulse of the longest allowed design lasts less than a quarter of the fastest rotational period
+    /// 1/(2 A c) (sudden limit, pulse ≪ rotational period; common practice). Longer pulses, up to the
+    /// adiabatic regime, are searched with the full solver throughout.
+    pub fn kick_screening(&self) -> bool {
+        let m = self.molecule();
+        let fastest_cm = m.top.as_ref().map(|t| t.a_cm).unwrap_or(m.b_cm);
+        let period_ps = crate::units::revival_period_ps(fastest_cm);
+        let longest = self.space.field(&vec![1.0; self.space.dims()]);
+        let widest = longest.pulses.iter().map(|p| p.fwhm_ps()).chain(longest.two_colour.iter().map(|t| t.fwhm_fs / 1000.0)).fold(0.0, f64::max);
+        widest < KICK_SCREENING_FRACTION * period_ps
     }
 
     /// The scenario that replays a design: the base with the design's pulses and a window that shows

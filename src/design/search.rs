@@ -1,6 +1,7 @@
 //! The two-stage search: particle swarm then Nelder–Mead on the cheap kick model, then Nelder–Mead on
-//! the full time-dependent solver from the best kick-model candidates. Every random choice comes from
-//! the objective's seed; swarm evaluations run in parallel.
+//! the full time-dependent solver from the best kick-model candidates. Pulses too long for the kick model
+//! (see [`Objective::kick_screening`]) are searched with the full solver in both stages. Every random
+//! choice comes from the objective's seed; swarm evaluations run in parallel.
 
 use super::{Bounds, DesignSpace, Objective, PulseBounds, Score};
 use crate::error::{Error, Result};
@@ -37,8 +38,8 @@ impl Monitor for Silent {}
 pub struct Candidate {
     /// The pulse train.
     pub field: FieldModel,
-    /// Score in the kick (impulsive) model.
-    pub kick: Score,
+    /// Score in the kick (impulsive) model; None when the pulses are too long for it.
+    pub kick: Option<Score>,
     /// Score with the full time-dependent solver (the reported result).
     pub full: Score,
 }
@@ -82,7 +83,8 @@ pub const COUNT_GAIN_THRESHOLD: f64 = 2e-3;
 /// Scores trains with one solver and keeps the counts, the best point and the history.
 struct Evaluator<'a> {
     obj: &'a Objective,
-    kick: Solver,
+    /// The kick model; None when the objective's pulses are too long for it.
+    kick: Option<Solver>,
     full: Solver,
     with_2d: bool,
     kick_count: AtomicUsize,
@@ -109,7 +111,7 @@ impl<'a> Evaluator<'a> {
             kick_terahertz_as_finite: true,
             ..base
         };
-        let kick = Solver::new(obj.molecule(), obj.base.temperature_k, screening)?;
+        let kick = if obj.kick_screening() { Some(Solver::new(obj.molecule(), obj.base.temperature_k, screening)?) } else { None };
         let full_method = if base.method == Method::Kick { Method::Auto } else { base.method };
         let full = Solver::new(obj.molecule(), obj.base.temperature_k, SolverSettings { method: full_method, ..base })?;
         Ok(Evaluator {
@@ -124,6 +126,19 @@ impl<'a> Evaluator<'a> {
             history: Mutex::new(vec![]),
             stage: Mutex::new(String::new()),
             monitor,
+        })
+    }
+
+    /// The kick model, or an error naming the pulse duration when the pulses are too long for it.
+    fn kick_model(&self) -> Result<&Solver> {
+        self.kick.as_ref().ok_or_else(|| {
+            Error::input(
+                "pulses.fwhm_fs",
+                format!(
+                    "pulses this long (from {:.0}% of the fastest rotational period) are not impulsive; the kick model does not apply, use the full solver",
+                    100.0 * super::KICK_SCREENING_FRACTION
+                ),
+            )
         })
     }
 
@@ -153,7 +168,7 @@ impl<'a> Evaluator<'a> {
         let goal = &self.obj.goal;
         let t_last = field.last_center_ps();
         let times = goal.times(t_last);
-        let solver = if full { &self.full } else { &self.kick };
+        let solver = if full { &self.full } else { self.kick_model()? };
         let one = |f: &FieldModel| -> Result<Score> {
             let run = match &self.obj.base.focal_average {
                 None => solver.run(f, &times, self.with_2d)?,
@@ -212,7 +227,7 @@ impl<'a> Evaluator<'a> {
                 })
             })
             .collect();
-        let sums = self.kick.kick_batch(&expanded, self.with_2d)?;
+        let sums = self.kick_model()?.kick_batch(&expanded, self.with_2d)?;
         let per = nodes.len();
         fields
             .par_iter()
@@ -344,10 +359,11 @@ fn argmin_error(e: argmin::core::Error) -> Error {
 }
 
 /// Particle swarm in the unit cube; returns (best point, best cost).
-fn swarm(ev: &Evaluator, space: &DesignSpace, seed: u64, size: usize, iterations: usize) -> Result<(Vec<f64>, f64)> {
+/// `full` scores every particle with the full solver instead of the kick model.
+fn swarm(ev: &Evaluator, space: &DesignSpace, seed: u64, size: usize, iterations: usize, full: bool) -> Result<(Vec<f64>, f64)> {
     let d = space.dims();
     let pso = ParticleSwarm::new((vec![0.0; d], vec![1.0; d]), size).with_rng_generator(rand::rngs::StdRng::seed_from_u64(seed));
-    let cost = Cost { ev, space, full: false, periodic: false };
+    let cost = Cost { ev, space, full, periodic: false };
     let res =
         Executor::new(cost, Interruptible { inner: pso, monitor: ev.monitor }).configure(|s| s.max_iters(iterations as u64)).run().map_err(argmin_error)?;
     let st = res.state();
@@ -382,29 +398,32 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
     let st = obj.search;
     let (swarm_size, iterations, starts) = if small { (12.min(st.swarm_size), 15.min(st.iterations), 1) } else { (st.swarm_size, st.iterations, st.starts) };
     let sense = obj.goal.sense();
+    // Pulses too long for the kick model: both stages run the full solver (`screen_full`).
+    let screen_full = ev.kick.is_none();
+    let model = if screen_full { "full" } else { "kick" };
     let mut candidates: Vec<(Vec<f64>, f64)> = vec![];
     if space.dims() == 0 {
         candidates.push((vec![], 0.0));
     } else {
-        ev.set_stage(&format!("{label} · kick swarm"), starts * swarm_size * (iterations + 1));
+        ev.set_stage(&format!("{label} · {model} swarm"), starts * swarm_size * (iterations + 1));
         for s in 0..starts {
             if ev.monitor.interrupted() {
                 break;
             }
-            let (u, c) = swarm(ev, space, seed.wrapping_mul(1_000_003).wrapping_add(s as u64), swarm_size, iterations)?;
+            let (u, c) = swarm(ev, space, seed.wrapping_mul(1_000_003).wrapping_add(s as u64), swarm_size, iterations, screen_full)?;
             candidates.push((u, c));
         }
         if candidates.is_empty() {
             return Err(Error::Interrupted);
         }
-        ev.set_stage(&format!("{label} · kick simplex"), candidates.len() * st.refine_iterations * 2);
+        ev.set_stage(&format!("{label} · {model} simplex"), candidates.len() * st.refine_iterations * 2);
         let mut refined = vec![];
         for (u, c) in &candidates {
             if ev.monitor.interrupted() {
                 refined.push((u.clone(), *c));
                 continue;
             }
-            let (u2, c2) = simplex(ev, space, u, false, st.refine_iterations)?;
+            let (u2, c2) = simplex(ev, space, u, screen_full, st.refine_iterations)?;
             refined.push(if c2 <= *c { (u2, c2) } else { (u.clone(), *c) });
         }
         candidates = refined;
@@ -417,8 +436,9 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
         }
         candidates = distinct;
     }
-    // Stage two: the full solver scores the best candidates and refines the best of them.
-    let keep = candidates.len().min(st.refine_candidates.max(1));
+    // Stage two: the full solver scores the best candidates and refines the best of them (after a
+    // full-solver first stage, only the best is scored again, for the time of its score).
+    let keep = if screen_full { 1 } else { candidates.len().min(st.refine_candidates.max(1)) };
     ev.set_stage(&format!("{label} · full solver"), keep + st.refine_iterations * 2);
     let mut best: Option<(Vec<f64>, Score)> = None;
     for (u, _) in candidates.iter().take(keep) {
@@ -431,7 +451,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
         }
     }
     let (mut u, mut full) = best.expect("at least one candidate");
-    if space.dims() > 0 && !ev.monitor.interrupted() {
+    if space.dims() > 0 && !screen_full && !ev.monitor.interrupted() {
         let (u2, c2) = simplex(ev, space, &u, true, if small { st.refine_iterations.min(15) } else { st.refine_iterations })?;
         if c2.is_finite() && -c2 > sense * full.value {
             let s2 = ev.score(&space.field(&u2), true)?;
@@ -442,7 +462,7 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, obj
         }
     }
     let field = space.field(&u);
-    let kick = ev.score_with(&field, false, false)?;
+    let kick = if screen_full { None } else { Some(ev.score_with(&field, false, false)?) };
     Ok(Candidate { field, kick, full })
 }
 
@@ -477,11 +497,12 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
         }
     }
     if per_count.is_empty() {
-        // Interrupted before any candidate: fall back to the best kick-model train seen so far.
-        let kick_best = ev.best.lock().expect("lock")[0].clone();
-        let Some((_, field)) = kick_best else { return Err(Error::Interrupted) };
+        // Interrupted before any candidate: fall back to the best train seen so far (kick model, or
+        // the full solver when it ran the first stage).
+        let seen = { ev.best.lock().expect("lock").iter().flatten().next().cloned() };
+        let Some((_, field)) = seen else { return Err(Error::Interrupted) };
         let full = ev.score(&field, true)?;
-        let kick = ev.score(&field, false)?;
+        let kick = if ev.kick.is_some() { Some(ev.score(&field, false)?) } else { None };
         per_count.push(Candidate { field, kick, full });
     }
     let sense = obj.goal.sense();
@@ -503,7 +524,8 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let baseline = if interrupted || monitor.interrupted() {
         // No time for a search: the single pulse at the ceiling (or at the fluence budget).
         let field = base_space.field(&vec![1.0; base_space.dims()]);
-        Candidate { kick: ev.score_with(&field, false, false)?, full: ev.score_with(&field, true, false)?, field }
+        let kick = if ev.kick.is_some() { Some(ev.score_with(&field, false, false)?) } else { None };
+        Candidate { kick, full: ev.score_with(&field, true, false)?, field }
     } else {
         search_space(&ev, &base_space, "baseline", obj.search.seed.wrapping_add(17), obj, true)?
     };
@@ -525,7 +547,8 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
 /// Score one train with the kick model and the full solver (as the search would).
 pub fn evaluate(obj: &Objective, field: &FieldModel) -> Result<Candidate> {
     let ev = Evaluator::new(obj, &Silent)?;
-    Ok(Candidate { kick: ev.score(field, false)?, full: ev.score(field, true)?, field: field.clone() })
+    let kick = if ev.kick.is_some() { Some(ev.score(field, false)?) } else { None };
+    Ok(Candidate { kick, full: ev.score(field, true)?, field: field.clone() })
 }
 
 /// Kick-model score of one train (one evaluation as the search's first stage does it).

@@ -52,10 +52,15 @@ fn pulses_json(obj: &Objective, field: &FieldModel) -> Vec<Value> {
         .collect()
 }
 
+/// The kick-model score (null when the pulses were too long for the kick model).
+fn kick_value(c: &Candidate) -> Value {
+    c.kick.map(|k| num(k.value)).unwrap_or(Value::Null)
+}
+
 fn candidate_json(obj: &Objective, c: &Candidate) -> Value {
     json!({
         "score": num(c.full.value), "time_ps": c.full.t_ps,
-        "kick_model_score": num(c.kick.value), "kick_model_time_ps": c.kick.t_ps,
+        "kick_model_score": kick_value(c), "kick_model_time_ps": c.kick.map(|k| k.t_ps),
         "pulses": pulses_json(obj, &c.field),
     })
 }
@@ -73,9 +78,10 @@ pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
         "observable": g.observable.name(),
         "score": num(best.full.value),
         "score_time_ps": best.full.t_ps,
-        "kick_model_score": num(best.kick.value),
-        "kick_model_score_time_ps": best.kick.t_ps,
-        "full_minus_kick_model": num(best.full.value - best.kick.value),
+        "kick_model_score": kick_value(best),
+        "kick_model_score_time_ps": best.kick.map(|k| k.t_ps),
+        "full_minus_kick_model": best.kick.map(|k| num(best.full.value - k.value)).unwrap_or(Value::Null),
+        "screening": if obj.kick_screening() { "kick model, then full solver" } else { "full solver only (pulses too long for the kick model)" },
         "pulses": pulses_json(obj, &best.field),
         "static_field": best.field.static_field,
         "terahertz": best.field.terahertz,
@@ -85,7 +91,7 @@ pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
         "min_separation_ps": obj.space.min_separation_ps,
         "single_pulse_baseline": candidate_json(obj, &r.baseline),
         "gain_over_single_pulse": num(g.sense() * (best.full.value - r.baseline.full.value)),
-        "per_pulse_count": r.per_count.iter().map(|c| json!({"pulses": c.field.pulses.len(), "score": num(c.full.value), "kick_model_score": num(c.kick.value)})).collect::<Vec<_>>(),
+        "per_pulse_count": r.per_count.iter().map(|c| json!({"pulses": c.field.pulses.len(), "score": num(c.full.value), "kick_model_score": kick_value(c)})).collect::<Vec<_>>(),
         "pulse_count_rule": if obj.variable_count { json!(format!("fewest pulses within {COUNT_GAIN_THRESHOLD} of the best score")) } else { Value::Null },
         "evaluations": {"kick_model": r.kick_evaluations, "full_solver": r.full_evaluations},
         "run_time_s": r.run_time_s,

@@ -158,6 +158,15 @@ struct BlockOutcome {
     report: BlockReport,
 }
 
+/// How far (in J) `pulse` can push a linear `molecule` (dimensionless): its kick strength P for a short
+/// pulse, but for a long (adiabatic) pulse no more than the width of the pendular states,
+/// about 1.5 sqrt(U0/B) + 3 levels.
+pub fn reach_strength(molecule: &Molecule, pulse: &crate::field::Pulse) -> f64 {
+    let da = molecule.delta_alpha_a3();
+    let adiabatic = 1.5 * (pulse.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(molecule.b_cm)).sqrt() + 3.0;
+    pulse.kick_strength(da).abs().min(adiabatic)
+}
+
 impl Solver {
     /// A solver for `molecule` at `temperature_k` with `settings`.
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
@@ -211,9 +220,7 @@ impl Solver {
     /// How far (in J) a pulse can push the rotor: its kick strength P for a short pulse, but for a long
     /// (adiabatic) pulse no more than the width of the pendular states, about 1.5 sqrt(U0/B) + 3 block levels (the basis grows if that is too few).
     fn effective_strength(&self, p: &crate::field::Pulse) -> f64 {
-        let da = self.molecule.delta_alpha_a3();
-        let adiabatic = 1.5 * (p.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(self.molecule.b_cm)).sqrt() + 3.0;
-        p.kick_strength(da).abs().min(adiabatic)
+        reach_strength(&self.molecule, p)
     }
 
     /// Sum of the effective strengths of the laser and two-colour pulses.
