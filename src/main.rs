@@ -254,6 +254,8 @@ fn molecules(json: bool) -> Result<(), Error> {
                     "alpha_perpendicular_a3": {"value": e.alpha_perpendicular_a3.value, "source": e.alpha_perpendicular_a3.source},
                     "spin_weights": {"value": e.spin_weights, "source": e.spin_weights_source},
                     "dipole_debye": e.dipole_debye.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
+                    "beta_parallel_au": e.beta_parallel_au.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
+                    "beta_perpendicular_au": e.beta_perpendicular_au.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
                     "ionization_energy_ev": e.ionization_energy_ev.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
                 })
             })
@@ -276,10 +278,18 @@ fn molecules(json: bool) -> Result<(), Error> {
         println!("{}", serde_json::to_string_pretty(&serde_json::json!({"linear": list, "tops": tops})).expect("json"));
         return Ok(());
     }
-    println!("{:<6} {:>11} {:>10} {:>8} {:>8} {:>7} {:>9}  description", "name", "B (cm⁻¹)", "D (cm⁻¹)", "α∥ (Å³)", "α⊥ (Å³)", "Δα", "even:odd");
+    println!(
+        "{:<6} {:>11} {:>10} {:>8} {:>8} {:>7} {:>9} {:>7} {:>15}  description",
+        "name", "B (cm⁻¹)", "D (cm⁻¹)", "α∥ (Å³)", "α⊥ (Å³)", "Δα", "even:odd", "μ (D)", "β∥, β⊥ (a.u.)"
+    );
     for e in library() {
+        let dipole = e.dipole_debye.map(|d| format!("{:.4}", d.value)).unwrap_or_else(|| "—".into());
+        let beta = match (e.beta_parallel_au, e.beta_perpendicular_au) {
+            (Some(a), Some(b)) => format!("{:.2}, {:.2}", a.value, b.value),
+            _ => "—".into(),
+        };
         println!(
-            "{:<6} {:>11.6} {:>10.3e} {:>8.3} {:>8.3} {:>7.3} {:>4}:{:<4}  {}",
+            "{:<6} {:>11.6} {:>10.3e} {:>8.3} {:>8.3} {:>7.3} {:>4}:{:<4} {:>7} {:>15}  {}",
             e.name,
             e.b_cm.value,
             e.d_cm.value,
@@ -288,6 +298,8 @@ fn molecules(json: bool) -> Result<(), Error> {
             e.alpha_parallel_a3.value - e.alpha_perpendicular_a3.value,
             e.spin_weights[0],
             e.spin_weights[1],
+            dipole,
+            beta,
             e.description
         );
     }
@@ -371,6 +383,32 @@ fn print_simulation(s: &serde_json::Value) {
             );
         }
     }
+    for (i, t) in s["two_colour"].as_array().into_iter().flatten().enumerate() {
+        println!(
+            "  two-colour pulse {}: centre {:.4} ps, FWHM {} fs, ω {:.3e} W/cm² + 2ω {:.3e} W/cm², phase {:.4} rad",
+            i + 1,
+            t["center_ps"].as_f64().unwrap_or(0.0),
+            t["fwhm_fs"],
+            t["fundamental_intensity_wcm2"].as_f64().unwrap_or(0.0),
+            t["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0),
+            t["phase_rad"].as_f64().unwrap_or(0.0)
+        );
+    }
+    for (i, t) in s["terahertz"].as_array().into_iter().flatten().enumerate() {
+        println!(
+            "  terahertz pulse {}: centre {:.4} ps, {} fs, peak field {:.1} kV/cm, {}",
+            i + 1,
+            t["center_ps"].as_f64().unwrap_or(0.0),
+            t["duration_fs"],
+            t["peak_field_kv_cm"].as_f64().unwrap_or(0.0),
+            t["waveform"].as_str().unwrap_or("?").replace('_', "-")
+        );
+    }
+    if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
+        let on = s["static_field"]["on_ps"].as_f64().map(|t| format!(" from {t} ps")).unwrap_or_else(|| " (entered adiabatically)".into());
+        let off = s["static_field"]["off_ps"].as_f64().map(|t| format!(" until {t} ps")).unwrap_or_default();
+        println!("  static field {e:.3} kV/cm{on}{off}");
+    }
     println!("  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]));
     println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
     if let Some(obj) = s["lab_axes"].as_object() {
@@ -386,7 +424,7 @@ fn print_simulation(s: &serde_json::Value) {
             o["cos"].as_f64().unwrap_or(0.0),
             o["t_ps"].as_f64().unwrap_or(0.0),
             o["sign"].as_str().unwrap_or("?"),
-            s["permanent_cos"].as_f64().unwrap_or(0.0)
+            no_negative_zero(s["permanent_cos"].as_f64().unwrap_or(0.0), 4)
         );
     }
     if let Some(fa) = s.get("focal_average").filter(|v| !v.is_null()) {
@@ -409,7 +447,8 @@ fn print_simulation(s: &serde_json::Value) {
         s["basis"]["max_edge_population"].as_f64().unwrap_or(0.0),
         s["run_time_s"].as_f64().unwrap_or(0.0)
     );
-    if !s["pulses"].as_array().map(|a| a.is_empty()).unwrap_or(true) {
+    let lasers = |key: &str| !s[key].as_array().map(|a| a.is_empty()).unwrap_or(true);
+    if lasers("pulses") || lasers("two_colour") {
         println!("  {}", report::LASER_SAFETY);
     }
 }

@@ -180,6 +180,22 @@ fn every_example_objective_parses() {
 }
 
 #[test]
+fn every_example_scenario_parses_and_validates() {
+    let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/examples/scenarios");
+    let mut n = 0;
+    for entry in std::fs::read_dir(dir).unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().and_then(|e| e.to_str()) == Some("json") {
+            let text = std::fs::read_to_string(&path).unwrap();
+            let s = kicktrain::scenario::Scenario::from_json_str(&text, &path.display().to_string()).unwrap();
+            s.validate().unwrap();
+            n += 1;
+        }
+    }
+    assert!(n >= 5, "expected at least five example scenarios, found {n}");
+}
+
+#[test]
 fn orientation_designs_search_the_static_field_and_replay_exactly() {
     // Mixed-field orientation objective with a searched static field: the design obeys the bounds,
     // is never worse than one pulse with the same fields, and replays through simulate exactly.

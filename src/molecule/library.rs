@@ -154,9 +154,15 @@ static LIBRARY: &[LibraryEntry] = &[
             0.10980,
             "μ0 = 0.10980 D, ground vibrational state: CRC Handbook of Chemistry and Physics, 84th ed. (Lide 2003), 'Dipole moments' table p. 9-45, as transcribed in the ChemTherm package data (jaortizco/ChemTherm, src/chemtherm/data/db_dipole_moments.json); the NIST CCCBDB experimental dipole list gives 0.11 D (copy in CalebBell/thermo, cccbdb.nist.gov_Dipoles.csv). Polarity C⁻O⁺ (carbon end negative; the dipole vector points from C to O): recalled (rotational Zeeman sign determination), consistent with the ⊖C≡O⊕ formula on retrieved web pages; the tables give the magnitude only",
         )),
-        // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
-        beta_parallel_au: None,
-        beta_perpendicular_au: None,
+        // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
+        beta_parallel_au: Some(s(
+            28.77,
+            "β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum); static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 29.26; the same run gives α_zz 15.55 a.u. = 2.304 Å³ and μ_z +0.050 a.u. (C⁻O⁺)",
+        )),
+        beta_perpendicular_au: Some(s(
+            7.98,
+            "β_zxx, CCSD(T)/d-aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 8.46",
+        )),
         ionization_energy_ev: Some(s(14.014, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of CO")),
     },
     LibraryEntry {
@@ -203,9 +209,15 @@ static LIBRARY: &[LibraryEntry] = &[
             0.16083,
             "from memory: μ0 = 0.16083 D, 14N14N16O ground state (believed: CRC Handbook 'Dipole moments' table, from the molecular-beam electric-resonance value of Scharpen, Muenter & Laurie 1970, J. Chem. Phys. 53, 2513); the retrieved copy of the NIST CCCBDB experimental list (CalebBell/thermo, cccbdb.nist.gov_Dipoles.csv) gives 0.17 D at two decimals, so the second and third digits are not confirmed by a retrieved source. Polarity recalled: terminal N end negative, O end positive (⁻NNO⁺)",
         )),
-        // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
-        beta_parallel_au: None,
-        beta_perpendicular_au: None,
+        // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
+        beta_parallel_au: Some(s(
+            59.79,
+            "β_zzz, CCSD(T)/aug-cc-pVDZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (terminal N → O; bond lengths r(NN) 1.1273 Å, r(NO) 1.1851 Å from memory); a small basis: uncertain by 10–30 % (at the HF level d-aug-cc-pVTZ lowers β_zzz from 61.6 to 55.2), and this level gets the sign of the small dipole wrong",
+        )),
+        beta_perpendicular_au: Some(s(
+            6.47,
+            "β_zxx, CCSD(T)/aug-cc-pVDZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (terminal N → O); a small basis: uncertain by 10–30 % (at the HF level d-aug-cc-pVTZ lowers β_zxx from 4.6 to 3.5)",
+        )),
         ionization_energy_ev: Some(s(12.889, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of N2O")),
     },
     LibraryEntry {
@@ -231,9 +243,15 @@ static LIBRARY: &[LibraryEntry] = &[
             0.71521,
             "μ0 = 0.71521 ± 0.00020 D, OCS ground state, as quoted in the Wikipedia article 'Rotational spectroscopy' (Stark effect section, retrieved via the liquisearch.com mirror); consistent with the microwave Stark value 0.7124 ± 0.0002 D (Phys. Rev. 105, 1502 (1957), 'Microwave Stark effect measurement of the dipole moment and polarizability of carbonyl sulfide', abstract via scilit.com) and the NIST CCCBDB experimental list value 0.71 D (copy in CalebBell/thermo). Polarity: O end negative, S end positive (⁻OCS⁺), recalled (isotopic rotational-Zeeman sign determination), not stated in the retrieved sources",
         )),
-        // β: no published β_zzz/β_zxx pair was found in a retrieved reference; left unset rather than recalled.
-        beta_parallel_au: None,
-        beta_perpendicular_au: None,
+        // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
+        beta_parallel_au: Some(s(
+            -42.04,
+            "β_zzz, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (O → S; bond lengths r(CO) 1.1578 Å, r(CS) 1.5601 Å from memory); one field step (0.002 a.u.) corrected by the aug-cc-pVDZ Richardson shift; basis uncertainty about 5 % (aug-cc-pVDZ gives −40.38); the same run gives α_zz 52.53 a.u. = 7.784 Å³ and μ_z +0.276 a.u.",
+        )),
+        beta_perpendicular_au: Some(s(
+            -53.42,
+            "β_zxx, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (O → S); one field step corrected as for β_zzz; basis uncertainty about 5–10 % (aug-cc-pVDZ gives −44.04)",
+        )),
         ionization_energy_ev: Some(s(11.18, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of OCS")),
     },
     LibraryEntry {
@@ -260,11 +278,16 @@ static LIBRARY: &[LibraryEntry] = &[
             "from memory: μ0 = 1.1086 D, H35Cl v = 0 (believed: Kaiser 1970, J. Chem. Phys. 53, 1686, molecular-beam electric resonance; the CRC Handbook 'Dipole moments' value); retrieved sources give 1.08 D (older compilation value, CCCBDB copy in CalebBell/thermo, cccbdb.nist.gov_Dipoles.csv) and the ab initio μe = 0.4238 e a0 = 1.077 D at Re (Maroulis 1998, J. Chem. Phys. 108, 5432, abstract), below μ0 as expected from dμ/dR > 0. Polarity H⁺Cl⁻ (hydrogen end positive)",
         )),
         // β: Maroulis 1998 (J. Chem. Phys. 108, 5432, abstract, retrieved) gives only the mean (vector-part)
-        // value β̄ = −6.8 ± 0.3 a.u. (static, electronic, at Re, Buckingham/Taylor convention; believed to be
-        // β̄ = (3/5)(β_zzz + 2β_zxx) with the axis orientation of that paper). The components β_zzz and β_zxx
-        // are not in the retrieved text and cannot be split from β̄, so both stay unset.
-        beta_parallel_au: None,
-        beta_perpendicular_au: None,
+        // value β̄ = −6.8 ± 0.3 a.u. (static, electronic, at Re), not the components; they come from our own
+        // CCSD(T) computation, whose β̄ = (3/5)(β_zzz + 2β_zxx) = −7.74 (checked in the tests below).
+        beta_parallel_au: Some(s(
+            -11.68,
+            "β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum); static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (Cl → H); finite-field error ±0.02; diffuse functions matter (aug-cc-pVTZ gives −18.76); the same run gives α_zz 18.48, α_xx 16.83, μ_z 0.4266 a.u., against 18.48, 16.88, 0.4238 of Maroulis 1998 (J. Chem. Phys. 108, 5432, abstract)",
+        )),
+        beta_perpendicular_au: Some(s(
+            -0.61,
+            "β_zxx, CCSD(T)/d-aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (Cl → H); small and basis-sensitive (aug-cc-pVTZ gives +0.62)",
+        )),
         ionization_energy_ev: Some(s(12.74, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of HCl")),
     },
     LibraryEntry {
