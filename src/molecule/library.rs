@@ -211,12 +211,12 @@ static LIBRARY: &[LibraryEntry] = &[
         )),
         // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
         beta_parallel_au: Some(s(
-            59.79,
-            "β_zzz, CCSD(T)/aug-cc-pVDZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (terminal N → O; bond lengths r(NN) 1.1273 Å, r(NO) 1.1851 Å from memory); a small basis: uncertain by 10–30 % (at the HF level d-aug-cc-pVTZ lowers β_zzz from 61.6 to 55.2), and this level gets the sign of the small dipole wrong",
+            52.50,
+            "β_zzz, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies, computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (terminal N → O; bond lengths r(NN) 1.1273 Å, r(NO) 1.1851 Å from memory); one field step (0.002 a.u., raw 52.55) corrected by the aug-cc-pVDZ Richardson shift (−0.04); basis uncertainty about 5 % (aug-cc-pVDZ gives 59.79; at the HF level d-aug-cc-pVTZ lowers β_zzz by 2.2); this level still gets the sign of the small dipole wrong (μ_z −0.048 a.u.)",
         )),
         beta_perpendicular_au: Some(s(
-            6.47,
-            "β_zxx, CCSD(T)/aug-cc-pVDZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (terminal N → O); a small basis: uncertain by 10–30 % (at the HF level d-aug-cc-pVTZ lowers β_zxx from 4.6 to 3.5)",
+            5.60,
+            "β_zxx, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies, computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (terminal N → O); one field step (0.002 a.u.) corrected as for β_zzz; basis uncertainty about 25 % (aug-cc-pVDZ gives 6.47; at the HF level d-aug-cc-pVTZ lowers β_zxx from 4.8 to 3.5)",
         )),
         ionization_energy_ev: Some(s(12.889, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of N2O")),
     },
