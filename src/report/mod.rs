@@ -202,7 +202,15 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
 /// A plot of the alignment trace with the pulses marked and the isotropic values drawn.
 pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::LinePlot {
     let mut plot = svg::LinePlot::new(title, "time (ps)", "alignment");
-    plot.subtitle = Some(format!("{} at {} K; {} pulse(s); shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, scenario.field.pulses.len()));
+    let f = &scenario.field;
+    let mut counts = vec![format!("{} pulse(s)", f.pulses.len())];
+    if !f.two_colour.is_empty() {
+        counts.push(format!("{} two-colour", f.two_colour.len()));
+    }
+    if !f.terahertz.is_empty() {
+        counts.push(format!("{} terahertz", f.terahertz.len()));
+    }
+    plot.subtitle = Some(format!("{} at {} K; {}; shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, counts.join(", ")));
     // With pulses polarized away from Z the lab axis is named too.
     let with_z = if trace.lab_axes.is_empty() { "" } else { " with Z" };
     let axis = scenario.molecule.top.as_ref().map(|t| format!(" ({} axis{with_z})", t.alignment_axis.letter())).unwrap_or_default();
