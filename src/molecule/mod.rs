@@ -255,7 +255,7 @@ mod tests {
         }
         // HCl: the mean first hyperpolarizability β̄ = (3/5)(β_zzz + 2β_zxx) of the stored components
         // against the published CCSD(T) value β̄ = −6.8 ± 0.3 a.u. (Maroulis, J. Chem. Phys. 108, 5432
-        // (1998), abstract). Ours is −7.74; the 14 % gap is the basis set (ours is smaller). A swapped
+        // (1998), abstract). Ours is −7.74; the 14 % gap is most likely our smaller basis set. A swapped
         // sign, a swapped pair or a factor-2 convention slip would all fail.
         let hcl = Molecule::from_library("HCl", "molecule").unwrap();
         let mean = 0.6 * (hcl.beta_parallel_au.unwrap() + 2.0 * hcl.beta_perpendicular_au.unwrap());
