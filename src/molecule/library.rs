@@ -157,11 +157,11 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
         beta_parallel_au: Some(s(
             28.77,
-            "β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum); static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 29.26; the same run gives α_zz 15.55 a.u. = 2.304 Å³ and μ_z +0.050 a.u. (C⁻O⁺)",
+            "β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum); static electronic value at r_e, frozen-core CCSD(T) finite-field energies, computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 29.26; the same run gives α_zz 15.55 a.u. = 2.304 Å³ and μ_z +0.050 a.u. (C⁻O⁺)",
         )),
         beta_perpendicular_au: Some(s(
             7.98,
-            "β_zxx, CCSD(T)/d-aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 8.46",
+            "β_zxx, CCSD(T)/d-aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies, computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 8.46",
         )),
         ionization_energy_ev: Some(s(14.014, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of CO")),
     },
@@ -246,11 +246,11 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
         beta_parallel_au: Some(s(
             -42.04,
-            "β_zzz, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (O → S; bond lengths r(CO) 1.1578 Å, r(CS) 1.5601 Å from memory); one field step (0.002 a.u.) corrected by the aug-cc-pVDZ Richardson shift; basis uncertainty about 5 % (aug-cc-pVDZ gives −40.38); the same run gives α_zz 52.53 a.u. = 7.784 Å³ and μ_z +0.276 a.u.",
+            "β_zzz, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies, computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (O → S; bond lengths r(CO) 1.1578 Å, r(CS) 1.5601 Å from memory); one field step (0.002 a.u.) corrected by the aug-cc-pVDZ Richardson shift; basis uncertainty about 5 % (aug-cc-pVDZ gives −40.38); the same run gives α_zz 52.53 a.u. = 7.784 Å³ and μ_z +0.276 a.u.",
         )),
         beta_perpendicular_au: Some(s(
             -53.42,
-            "β_zxx, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies (fields 0.002/0.004 a.u., Richardson), computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (O → S); one field step corrected as for β_zzz; basis uncertainty about 5–10 % (aug-cc-pVDZ gives −44.04)",
+            "β_zxx, CCSD(T)/aug-cc-pVTZ; static electronic value at r_e, frozen-core CCSD(T) finite-field energies, computed for kicktrain with PySCF 2.14.0 by tools/beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability to 4e-4 a.u.); frame z along the dipole (O → S); one field step corrected as for β_zzz; basis uncertainty about 5–10 % (aug-cc-pVDZ gives −44.04)",
         )),
         ionization_energy_ev: Some(s(11.18, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of OCS")),
     },
