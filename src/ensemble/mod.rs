@@ -34,8 +34,13 @@ pub struct ThermalEnsemble {
     pub temperature_k: f64,
     /// Highest J kept.
     pub j_max: u32,
-    /// Population left out by the truncation (before renormalizing the kept states to 1).
+    /// Population left out by the truncation (before renormalizing the kept states to 1): the dropped
+    /// levels' share of the converged partition function plus a bound on the levels never listed.
     pub discarded_population: f64,
+    /// Rotational partition function Σ (g/g_max)(2J+1) exp(−(E_J − E_0)/kT) over every existing level,
+    /// summed to convergence (relative spin weights g scaled to the largest, energies from the lowest
+    /// existing level E_0); at T = 0 the ground level's weighted degeneracy.
+    pub partition_function: f64,
     /// Populated blocks.
     pub blocks: Vec<BlockPopulation>,
 }
@@ -49,6 +54,8 @@ impl ThermalEnsemble {
         let weight = |j: u32| mol.spin_weights[(j % 2) as usize] / wmax;
         let j_limit = mol.max_physical_j();
         let mut level_pop: Vec<f64> = vec![];
+        // Bound on the population of the levels never listed (relative to the listed sum).
+        let mut unlisted = 0.0;
         if temperature_k <= 0.0 {
             let j0 = if weight(0) > 0.0 { 0 } else { 1 };
             level_pop.resize(j0 as usize + 1, 0.0);
@@ -56,14 +63,25 @@ impl ThermalEnsemble {
         } else {
             let kt = kt_in_cm(temperature_k);
             let e0 = (0..2u32).filter(|&j| weight(j) > 0.0).map(|j| mol.energy_cm(j)).fold(f64::INFINITY, f64::min);
-            // Unnormalized level populations until they are utterly negligible.
+            // What a level could hold with the larger spin weight (1 after normalizing): the stopping
+            // rule looks at this bound, never at the level's own weight, which may be zero.
+            let bound = |j: u32| (2 * j + 1) as f64 * (-(mol.energy_cm(j) - e0) / kt).exp();
+            let mut total = 0.0;
             let mut j = 0u32;
             loop {
-                let p = weight(j) * (2 * j + 1) as f64 * (-(mol.energy_cm(j) - e0) / kt).exp();
+                let p = weight(j) * bound(j);
                 level_pop.push(p);
-                let total: f64 = level_pop.iter().sum();
-                if j > 2 && p < 1e-18 * total && mol.energy_cm(j) - e0 > 5.0 * kt {
-                    break;
+                total += p;
+                // Past the Boltzmann peak the level bounds fall faster than a geometric series of
+                // ratio r, so everything above J is at most bound(J + 1) / (1 − r).
+                // (Both bounds underflow to zero at very low temperature: nothing is left above J.)
+                let r = if bound(j) > 0.0 { bound(j + 1) / bound(j) } else { 0.0 };
+                if j > 2 && mol.energy_cm(j) - e0 > 5.0 * kt && r < 0.9 {
+                    let rest = bound(j + 1) / (1.0 - r);
+                    if rest < 1e-20 * total {
+                        unlisted = rest / total;
+                        break;
+                    }
                 }
                 j += 1;
                 if j > j_limit {
@@ -77,8 +95,14 @@ impl ThermalEnsemble {
             }
         }
         let z: f64 = level_pop.iter().sum();
-        // Keep the smallest J range whose tail is below the tolerance.
-        let mut tail = 0.0;
+        let partition_function = if temperature_k <= 0.0 {
+            let j0 = level_pop.len() - 1;
+            weight(j0 as u32) * (2 * j0 + 1) as f64
+        } else {
+            z
+        };
+        // Keep the smallest J range whose tail (with the unlisted bound) is below the tolerance.
+        let mut tail = unlisted;
         let mut j_max = level_pop.len() as u32 - 1;
         for j in (0..level_pop.len()).rev() {
             if tail + level_pop[j] / z > tolerance {
@@ -86,6 +110,11 @@ impl ThermalEnsemble {
                 break;
             }
             tail += level_pop[j] / z;
+        }
+        if tail > tolerance {
+            return Err(Error::Numerical(format!(
+                "the thermal ensemble at {temperature_k} K leaves out {tail:.1e} of the population, more than solver.thermal_tolerance = {tolerance:.1e}"
+            )));
         }
         let kept = 1.0 - tail;
         let mut blocks = vec![];
@@ -100,7 +129,7 @@ impl ThermalEnsemble {
                 }
             }
         }
-        Ok(ThermalEnsemble { temperature_k, j_max, discarded_population: tail, blocks })
+        Ok(ThermalEnsemble { temperature_k, j_max, discarded_population: tail, partition_function, blocks })
     }
 
     /// The populations grouped by |M| only (both parities of J together), for fields that mix parities.

@@ -30,8 +30,14 @@ pub struct TopEnsemble {
     pub temperature_k: f64,
     /// Highest J kept.
     pub j_max: i64,
-    /// Population left out by the truncation.
+    /// Population left out by the truncation: the dropped levels' share of the converged partition
+    /// function plus a bound on the levels never listed.
     pub discarded_population: f64,
+    /// Rotational partition function Σ (g/g_max) exp(−(E − E_0)/kT) over every existing sublevel
+    /// (each M and, for symmetric tops, each sign of K), summed to convergence; spin weights g scaled to
+    /// the largest, energies from the lowest existing level E_0; at T = 0 the ground level's weighted
+    /// degeneracy.
+    pub partition_function: f64,
     /// Populated blocks.
     pub blocks: Vec<TopBlockPopulation>,
 }
@@ -59,6 +65,17 @@ impl TopEnsemble {
         // Levels J by J until the lowest level of a J is far above the ground level.
         let mut levels: Vec<Level> = vec![];
         let mut e_ground = f64::INFINITY;
+        // The largest spin weight and multiplicity any level can have: the stopping rule bounds what
+        // a whole J could hold with them, never with the weights of its own levels, which may be zero.
+        let w_top = match &top.spin_weights {
+            crate::molecule::top::TopSpinWeights::Equal => 1.0,
+            crate::molecule::top::TopSpinWeights::ByK(w) => w.iter().copied().fold(0.0, f64::max),
+            crate::molecule::top::TopSpinWeights::ByKaKc(w) => w.iter().copied().fold(0.0, f64::max),
+        };
+        // Bound on the population of every level of J (all its (2J+1) levels and (2J+1) values of M).
+        let j_bound = |j: i64, e_min: f64, e_ground: f64| w_top * ((2 * j + 1) as f64).powi(2) * (-(e_min - e_ground) / kt).exp();
+        let mut previous_bound = f64::INFINITY;
+        let mut unlisted = 0.0;
         let mut j = 0i64;
         loop {
             let mut e_min_j = f64::INFINITY;
@@ -89,7 +106,24 @@ impl TopEnsemble {
                     index += 1;
                 }
             }
-            let done = if kt == 0.0 { e_ground.is_finite() && j >= 2 } else { e_ground.is_finite() && e_min_j - e_ground > 45.0 * kt && j >= 2 };
+            let done = if kt == 0.0 {
+                e_ground.is_finite() && j >= 2
+            } else if e_ground.is_finite() {
+                // Past the Boltzmann peak the bounds of successive J fall faster than a geometric series
+                // of ratio r, so all levels above J hold at most bound(J) r / (1 − r).
+                let b = j_bound(j, e_min_j, e_ground);
+                let r = if previous_bound > 0.0 { b / previous_bound } else { 0.0 };
+                previous_bound = b;
+                let rest = b * r / (1.0 - r);
+                let listed: f64 = levels.iter().map(|l| l.weight * l.multiplicity * (2 * l.j + 1) as f64 * (-(l.energy_cm - e_ground) / kt).exp()).sum();
+                let settled = j >= 2 && e_min_j - e_ground > 5.0 * kt && r < 0.9 && rest < 1e-20 * listed;
+                if settled {
+                    unlisted = rest;
+                }
+                settled
+            } else {
+                false
+            };
             if done {
                 break;
             }
@@ -127,7 +161,13 @@ impl TopEnsemble {
             covered += share;
             kept.push(i);
         }
-        let discarded = 1.0 - covered / total;
+        // What the truncation leaves out: the listed levels not kept, and the bound on the unlisted ones.
+        let discarded = (1.0 - covered / total).max(0.0) + unlisted / total;
+        if discarded > tolerance.max(1e-15) {
+            return Err(Error::Numerical(format!(
+                "the thermal ensemble at {temperature_k} K leaves out {discarded:.1e} of the population, more than solver.thermal_tolerance = {tolerance:.1e}"
+            )));
+        }
         let j_max = kept.iter().map(|&i| levels[i].j).max().unwrap_or(0);
         let mut blocks = vec![];
         for &sym in &syms {
@@ -145,7 +185,7 @@ impl TopEnsemble {
                 blocks.push(TopBlockPopulation { m, sym, weight: mult * if m > 0 { 2.0 } else { 1.0 }, levels: lv });
             }
         }
-        Ok(TopEnsemble { temperature_k, j_max, discarded_population: discarded, blocks })
+        Ok(TopEnsemble { temperature_k, j_max, discarded_population: discarded, partition_function: total / w_top, blocks })
     }
 
     /// Number of initially populated |J τ M⟩ sublevels (counting ±M and ±K).

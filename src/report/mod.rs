@@ -145,7 +145,7 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
             _ => Value::Null,
         },
         "thermal": {"initial_states": sim.initial_states, "discarded_population": sim.discarded_population,
-            "tolerance": s.solver.thermal_tolerance},
+            "partition_function": sim.partition_function, "tolerance": s.solver.thermal_tolerance},
         "basis": {"edge_tolerance": s.solver.edge_tolerance, "max_edge_population": max_edge,
             "max_j": r.blocks.iter().map(|b| b.j_max).max(), "blocks": r.blocks},
         "solver": {"method": s.solver.method.name(), "steps": steps},

@@ -172,7 +172,7 @@ impl Solver {
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
         if let Some(t) = &molecule.top {
             let top = top::TopSolver::new(t, temperature_k, settings)?;
-            let ensemble = ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, blocks: vec![] };
+            let ensemble = ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
             return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: Some(top), lab: Default::default() });
         }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
@@ -187,13 +187,18 @@ impl Solver {
         let mut m = Molecule::linear(&self.molecule.name, t.top.b_cm, 0.0, t.top.alpha(fig), t.top.alpha(across), [1.0, 1.0]);
         m.dipole_debye = self.molecule.dipole_debye;
         m.ionization_energy_ev = self.molecule.ionization_energy_ev;
-        let ensemble = ThermalEnsemble { temperature_k: self.ensemble.temperature_k, j_max: self.ensemble.j_max, discarded_population: 0.0, blocks: vec![] };
+        let ensemble = ThermalEnsemble { temperature_k: self.ensemble.temperature_k, j_max: self.ensemble.j_max, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
         Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() }
     }
 
     /// Population left out of the thermal ensemble by its truncation.
     pub fn discarded_population(&self) -> f64 {
         self.top.as_ref().map(|t| t.ensemble.discarded_population).unwrap_or(self.ensemble.discarded_population)
+    }
+
+    /// Rotational partition function of the thermal ensemble, summed to convergence.
+    pub fn partition_function(&self) -> f64 {
+        self.top.as_ref().map(|t| t.ensemble.partition_function).unwrap_or(self.ensemble.partition_function)
     }
 
     /// Number of initially populated sublevels.
@@ -980,6 +985,8 @@ pub struct Simulation {
     pub result: RunResult,
     /// Population left out of the thermal ensemble.
     pub discarded_population: f64,
+    /// Rotational partition function of the thermal ensemble (see `ThermalEnsemble::partition_function`).
+    pub partition_function: f64,
     /// Initially populated |J M⟩ sublevels.
     pub initial_states: usize,
     /// The scenario's goal scored on this run (None without a goal); on the focal average when one is set.
@@ -1021,6 +1028,7 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
         scenario: scenario.clone(),
         result,
         discarded_population: solver.discarded_population(),
+        partition_function: solver.partition_function(),
         initial_states: solver.initial_states(),
         run_time_s: t0.elapsed().as_secs_f64(),
     })
