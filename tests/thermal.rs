@@ -9,7 +9,7 @@
 use kicktrain::ensemble::ThermalEnsemble;
 use kicktrain::molecule::Molecule;
 use kicktrain::scenario::{Scenario, SolverSettings};
-use kicktrain::simulate::Solver;
+use kicktrain::simulate::{Solver, simulate};
 use kicktrain::units::kt_in_cm;
 
 /// Rotational constants of the three linear test molecules, as in `kicktrain molecules`.
@@ -187,5 +187,114 @@ fn tops_with_a_zero_spin_weight_sum_their_partition_function_to_convergence() {
             let kept_by_j = solver.initial_states();
             assert!(kept_by_j > 0);
         }
+    }
+}
+
+/// A stored reference trace: column names, rows, and the partition function from its header (if given).
+struct Reference {
+    columns: Vec<String>,
+    rows: Vec<Vec<f64>>,
+    partition_function: Option<f64>,
+}
+
+fn reference(case: &str) -> Reference {
+    let path = format!("{}/tests/data/reference_{case}.csv", env!("CARGO_MANIFEST_DIR"));
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"));
+    let mut partition_function = None;
+    let mut columns = vec![];
+    let mut rows = vec![];
+    for line in text.lines() {
+        if let Some(c) = line.strip_prefix('#') {
+            let lower = c.to_lowercase();
+            if lower.contains("partition_function") && partition_function.is_none() {
+                partition_function = c.split(|ch: char| ch == ':' || ch == '=').nth(1).and_then(|v| v.split_whitespace().next()).and_then(|v| v.parse().ok());
+            }
+        } else if columns.is_empty() {
+            columns = line.split(',').map(|x| x.trim().to_string()).collect();
+        } else if !line.trim().is_empty() {
+            rows.push(line.split(',').map(|x| x.trim().parse().unwrap()).collect());
+        }
+    }
+    Reference { columns, rows, partition_function }
+}
+
+/// The scenario of each reference case (the same numbers as in the script's case table).
+fn reference_scenario(case: &str) -> Scenario {
+    let co2 = r#"{"name": "CO2-like", "b_cm": 0.39021, "d_cm": 1.333e-7, "alpha_parallel_a3": 4.038, "alpha_perpendicular_a3": 1.929, "spin_weights": [1, 0]}"#;
+    let o2 = r#"{"name": "O2-like", "b_cm": 1.437677, "d_cm": 4.839e-6, "alpha_parallel_a3": 2.302, "alpha_perpendicular_a3": 1.202, "spin_weights": [0, 1]}"#;
+    let prolate = r#"{"name": "prolate K=3n absent", "a_cm": 5.182, "b_cm": 0.85179, "c_cm": 0.85179, "polarizability_a3": {"a": 3.24, "b": 2.84, "c": 2.84}, "spin_weights_by_k": [0, 1, 1]}"#;
+    let so2 = r#"{"name": "SO2-like", "a_cm": 2.02736, "b_cm": 0.34417, "c_cm": 0.29354, "polarizability_a3": {"a": 5.5, "b": 3.5, "c": 2.7}, "spin_weights_by_ka_kc": [1, 0, 0, 1]}"#;
+    let (mol, t, fwhm, intensity, window) = match case {
+        "co2like_20k" => (co2, 20.0, 100.0, 3e13, (-0.2, 45.0, 250.0)),
+        "co2like_100k" => (co2, 100.0, 100.0, 3e13, (-0.2, 45.0, 250.0)),
+        "o2like_30k" => (o2, 30.0, 60.0, 5e13, (-0.1, 12.0, 50.0)),
+        "o2like_300k" => (o2, 300.0, 60.0, 5e13, (-0.1, 12.0, 50.0)),
+        "prolate_k3_5k" => (prolate, 5.0, 200.0, 3e13, (-0.4, 20.0, 100.0)),
+        "prolate_k3_30k" => (prolate, 30.0, 200.0, 3e13, (-0.4, 20.0, 100.0)),
+        "so2like_1k" => (so2, 1.0, 500.0, 1e12, (-1.0, 60.0, 500.0)),
+        "so2like_4k" => (so2, 4.0, 500.0, 1e12, (-1.0, 60.0, 500.0)),
+        _ => unreachable!(),
+    };
+    let text = format!(
+        r#"{{"molecule": {mol}, "temperature_k": {t}, "pulses": [{{"center_ps": 0, "fwhm_fs": {fwhm}, "peak_intensity_wcm2": {intensity}}}],
+        "window": {{"start_ps": {}, "stop_ps": {}, "step_fs": {}}}, "solver": {{"method": "finite"}}}}"#,
+        window.0, window.1, window.2
+    );
+    Scenario::from_json_str(&text, "test").unwrap()
+}
+
+/// Largest difference between the reference columns and the same columns of kicktrain's trace.
+fn worst_difference(case: &str, columns: &[&str]) -> f64 {
+    let r = reference(case);
+    let s = reference_scenario(case);
+    let sim = simulate(&s).unwrap();
+    let tr = &sim.result.trace;
+    assert_eq!(tr.times_ps.len(), r.rows.len(), "{case}: sample count");
+    let mut worst: f64 = 0.0;
+    for name in columns {
+        let col = r.columns.iter().position(|c| c == name).unwrap_or_else(|| panic!("{case}: no column {name}"));
+        let ours = match *name {
+            "cos2" => &tr.cos2,
+            "cos2_a" => &tr.cos2_a,
+            "cos2_b" => &tr.cos2_b,
+            "cos2_c" => &tr.cos2_c,
+            _ => unreachable!(),
+        };
+        for (row, v) in r.rows.iter().zip(ours) {
+            worst = worst.max((row[col] - v).abs());
+        }
+    }
+    for (row, t) in r.rows.iter().zip(&tr.times_ps) {
+        assert!((row[0] - t).abs() < 1e-9, "{case}: time {} vs {t}", row[0]);
+    }
+    worst
+}
+
+#[test]
+fn thermal_traces_of_zero_weight_rotors_match_the_independent_reference() {
+    // Stored traces from tools/reference/rotor_reference.py: its own spherical-harmonic quadrature,
+    // Boltzmann sum to convergence and a DOP853 solution of the Schrödinger equation (scipy), nothing
+    // shared with kicktrain. Tolerance 1e-5.
+    for case in ["co2like_20k", "co2like_100k", "o2like_30k", "o2like_300k"] {
+        let worst = worst_difference(case, &["cos2"]);
+        eprintln!("{case}: worst difference {worst:.2e}");
+        assert!(worst < 1e-5, "{case}: worst difference {worst:.2e}");
+    }
+}
+
+#[test]
+fn thermal_traces_of_tops_with_a_zero_spin_weight_match_the_independent_reference() {
+    // As above for a symmetric top whose K = 3n levels are absent and an SO2-like asymmetric top whose
+    // Ka + Kc odd levels are absent (reference: its own Wigner-function quadrature and per-J
+    // diagonalization, level classes read from the energy ordering).
+    for case in ["prolate_k3_5k", "prolate_k3_30k", "so2like_1k", "so2like_4k"] {
+        let worst = worst_difference(case, &["cos2_a", "cos2_b", "cos2_c"]);
+        eprintln!("{case}: worst difference {worst:.2e}");
+        assert!(worst < 1e-5, "{case}: worst difference {worst:.2e}");
+        let r = reference(case);
+        let s = reference_scenario(case);
+        let solver = Solver::new(&s.molecule, s.temperature_k, s.solver).unwrap();
+        let q = r.partition_function.expect("the reference states its partition function");
+        assert!((solver.partition_function() / q - 1.0).abs() < 1e-9, "{case}: Z {} vs reference {q}", solver.partition_function());
     }
 }
