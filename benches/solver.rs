@@ -7,7 +7,8 @@
 //! (needs python3 with numpy and scipy) and the speed ratio is printed.
 //!
 //! KICKTRAIN_BENCH_JOBS picks jobs by number, e.g. `KICKTRAIN_BENCH_JOBS=2 cargo bench` for the
-//! designer's kick-model throughput alone.
+//! designer's kick-model throughput alone. Job 6 times whole designs with the default search: the
+//! built-in objective and the three- and four-pulse N2 designs of `tests/best_designs.rs`.
 
 use kicktrain::field::{FieldModel, Pulse, PulsePolarization};
 use kicktrain::molecule::Molecule;
@@ -112,8 +113,8 @@ fn main() {
     if !std::env::args().any(|a| a == "--bench") {
         return;
     }
-    // KICKTRAIN_BENCH_JOBS picks jobs by number (comma-separated, default all five).
-    let jobs = std::env::var("KICKTRAIN_BENCH_JOBS").unwrap_or_else(|_| "1,2,3,4,5".into());
+    // KICKTRAIN_BENCH_JOBS picks jobs by number (comma-separated, default all six).
+    let jobs = std::env::var("KICKTRAIN_BENCH_JOBS").unwrap_or_else(|_| "1,2,3,4,5,6".into());
     let wanted = |n: &str| jobs.split(',').any(|j| j.trim() == n);
     if wanted("1") {
         peer_job();
@@ -129,6 +130,41 @@ fn main() {
     }
     if wanted("5") {
         three_axis();
+    }
+    if wanted("6") {
+        designs();
+    }
+}
+
+/// Job 6 (designer): whole designs with the default search, one run each (seed 1): the built-in
+/// objective, and three and four 50 fs pulses on N2-like molecules at 300 K (the problems of
+/// `tests/best_designs.rs`, best known 0.594858 and 0.648097).
+fn designs() {
+    use kicktrain::design::Objective;
+    use kicktrain::design::search::{Silent, design};
+    let builtin = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/objectives/two-pulse-room-temperature.json")).unwrap();
+    let n2 = |n: usize| {
+        format!(
+            r#"{{"molecule": {{"name": "N2-like", "b_cm": 1.98958, "d_cm": 5.76e-6, "alpha_parallel_a3": 2.38, "alpha_perpendicular_a3": 1.45, "spin_weights": [2, 1]}},
+            "temperature_k": 300, "pulses": {{"count": {n}, "fwhm_fs": 50, "delay_ps": {{"min": 0.2, "max": 10.0}}, "peak_intensity_wcm2": {{"min": 0, "max": 5e13}}}},
+            "max_peak_intensity_wcm2": 5e13, "min_separation_ps": 0.2, "goal": {{"kind": "peak", "observable": "cos2", "window_ps": [0.05, 8.8], "step_fs": 20}}}}"#
+        )
+    };
+    println!("designs with the default search (seed 1)");
+    for (name, text) in [("built-in objective (two pulses, N2 at 300 K)", builtin), ("three 50 fs pulses, N2-like 300 K", n2(3)), ("four 50 fs pulses, N2-like 300 K", n2(4))] {
+        let obj = Objective::from_json_str(&text, name).unwrap();
+        let t0 = Instant::now();
+        let r = design(&obj, &Silent).unwrap();
+        let c = r.best_confidence().unwrap();
+        println!(
+            "  {name}: {:.1} s, score {:.6}; {} of {} starts agree; {} kick-model and {} full-solver evaluations",
+            t0.elapsed().as_secs_f64(),
+            r.best.full.value,
+            c.agreeing,
+            c.starts.len(),
+            r.kick_evaluations,
+            r.full_evaluations
+        );
     }
 }
 

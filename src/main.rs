@@ -40,6 +40,8 @@ enum Command {
 kicktrain design objectives/two-pulse-room-temperature.json --out best\n  \
 kicktrain simulate best/design.json --out check   # replays the design\n\n\
 --out DIR writes design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg.\n\
+The search runs independent starts until three agree (see summary.json search.confidence) and warns when\n\
+they do not; --effort thorough searches harder, --time-limit S bounds the time.\n\
 Ctrl-C stops the search and still reports (and writes) the best design found so far.")]
     Design {
         /// Objective file (JSON); the built-in two-pulse example when omitted.
@@ -50,6 +52,12 @@ Ctrl-C stops the search and still reports (and writes) the best design found so 
         /// Seed for the search (overrides the file's search.seed).
         #[arg(long)]
         seed: Option<u64>,
+        /// Effort: quick, normal or thorough (overrides the file's search.effort).
+        #[arg(long)]
+        effort: Option<String>,
+        /// No new independent start after this many seconds (overrides search.time_limit_s).
+        #[arg(long, value_name = "S")]
+        time_limit: Option<f64>,
         /// No progress bar.
         #[arg(long)]
         quiet: bool,
@@ -222,7 +230,7 @@ fn main() -> ExitCode {
             seed,
             out.as_deref(),
         ),
-        Command::Design { objective, out, seed, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, quiet, json),
+        Command::Design { objective, out, seed, effort, time_limit, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, effort.as_deref(), time_limit, quiet, json),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
@@ -493,7 +501,7 @@ impl Monitor for Progress {
     }
 }
 
-fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, quiet: bool, json: bool) -> Result<(), Error> {
+fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, effort: Option<&str>, time_limit: Option<f64>, quiet: bool, json: bool) -> Result<(), Error> {
     let (text, name) = match path {
         Some(p) => (read_text(p)?, p.display().to_string()),
         None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
@@ -501,6 +509,15 @@ fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, quiet:
     let mut obj = Objective::from_json_str(&text, &name)?;
     if let Some(s) = seed {
         obj.search.seed = s;
+    }
+    if let Some(e) = effort {
+        obj.search.effort = kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
+    }
+    if let Some(t) = time_limit {
+        if !(t > 0.0 && t <= 1e7) {
+            return Err(Error::input("--time-limit", format!("expected a time above 0 and at most 1e7 s, got {t}")));
+        }
+        obj.search.time_limit_s = Some(t);
     }
     let stop = Arc::new(AtomicBool::new(false));
     {
@@ -549,6 +566,20 @@ fn print_design(s: &serde_json::Value) {
     );
     if s["interrupted"].as_bool() == Some(true) {
         println!("  (search interrupted: best design found so far)");
+    }
+    if let Some(c) = s["search"]["confidence"].as_object() {
+        println!(
+            "  search: {} of {} independent starts reached this score (within {}; spread {}), effort {}, stopped by {}",
+            c["starts_agreeing"],
+            c["starts"],
+            c["agreement"],
+            f(&c["spread"]),
+            s["search"]["effort"].as_str().unwrap_or("?"),
+            c["stopped_by"].as_str().unwrap_or("?")
+        );
+    }
+    for w in s["warnings"].as_array().into_iter().flatten() {
+        println!("  warning: {}", w.as_str().unwrap_or(""));
     }
     if s["kick_model_score"].is_null() {
         println!(
@@ -744,7 +775,7 @@ fn run_scan(
                     label: String::new(),
                     x: xa.values.clone(),
                     y: r.values[0].clone(),
-                    color: "#1f5fa8".into(),
+                    color: svg::ALIGNMENT.into(),
                     dashed: false,
                     width: 1.8,
                 });
@@ -788,8 +819,8 @@ fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize
             r.samples.clone(),
             0,
         );
-        h.markers.push(svg::Marker { x0: r.nominal, x1: r.nominal, label: "nominal".into(), color: "#c0392b".into() });
-        h.markers.push(svg::Marker { x0: r.worst_decile, x1: r.worst_decile, label: "worst decile".into(), color: "#7f7f7f".into() });
+        h.markers.push(svg::Marker { x0: r.nominal, x1: r.nominal, label: "nominal".into(), color: svg::PULSE.into() });
+        h.markers.push(svg::Marker { x0: r.worst_decile, x1: r.worst_decile, label: "worst decile".into(), color: svg::NEUTRAL.into() });
         report::write_file(dir, "tolerance.svg", &h.to_svg())?;
         println!("wrote {}/tolerance.csv, tolerance.svg", dir.display());
     }

@@ -82,6 +82,9 @@ pub struct SolverSettings {
     pub both_parities: bool,
     /// In the kick model, propagate terahertz pulses in time anyway (the designer's screening stage).
     pub kick_terahertz_as_finite: bool,
+    /// In the kick model, the number of sub-kicks per laser pulse (1: one kick at its kick time; more:
+    /// the split-kick model of `Pulse::quadrature_nodes`). Not read from scenario files.
+    pub kick_nodes: usize,
 }
 
 impl Default for SolverSettings {
@@ -93,6 +96,7 @@ impl Default for SolverSettings {
             edge_tolerance: 1e-8,
             both_parities: false,
             kick_terahertz_as_finite: false,
+            kick_nodes: 1,
         }
     }
 }
@@ -700,7 +704,7 @@ fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
         thermal_tolerance: f.opt_f64("thermal_tolerance", "population fraction")?.unwrap_or(d.thermal_tolerance),
         edge_tolerance: f.opt_f64("edge_tolerance", "population fraction")?.unwrap_or(d.edge_tolerance),
         both_parities: f.opt_bool("both_parities")?.unwrap_or(false),
-        kick_terahertz_as_finite: false,
+        ..d
     };
     f.finish()?;
     Ok(s)

@@ -138,8 +138,8 @@ fn beats_single_pulse_and_brute_force_grid_and_replays_exactly() {
 #[test]
 fn same_seed_same_design_and_seeds_agree_within_spread() {
     let mut obj = objective(TWO_PULSE);
-    obj.search.swarm_size = 12;
-    obj.search.iterations = 12;
+    obj.search.swarm_size = Some(12);
+    obj.search.iterations = Some(12);
     let a = design(&obj, &Silent).unwrap();
     let b = design(&obj, &Silent).unwrap();
     assert_eq!(a.best.field, b.best.field, "same seed must give the same design to the last digit");

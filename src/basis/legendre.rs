@@ -44,13 +44,17 @@ pub fn gauss_legendre(n: usize, a: f64, b: f64) -> (Vec<f64>, Vec<f64>) {
 
 /// Composite Simpson rule for ∫_a^b f(t) dt with `n` (made even) intervals.
 pub fn simpson(a: f64, b: f64, n: usize, f: impl Fn(f64) -> f64) -> f64 {
+    let (x, w) = simpson_grid(a, b, n);
+    x.iter().zip(&w).map(|(&x, &w)| w * f(x)).sum()
+}
+
+/// Nodes and weights of composite Simpson's rule on [a, b] with `n` intervals (rounded up to even).
+pub fn simpson_grid(a: f64, b: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
     let n = n.max(2) + n % 2;
     let h = (b - a) / n as f64;
-    let mut s = f(a) + f(b);
-    for i in 1..n {
-        s += f(a + i as f64 * h) * if i % 2 == 1 { 4.0 } else { 2.0 };
-    }
-    s * h / 3.0
+    let x = (0..=n).map(|i| a + i as f64 * h).collect();
+    let w = (0..=n).map(|i| h / 3.0 * if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 }).collect();
+    (x, w)
 }
 
 /// Normalized associated Legendre functions Θ_J^m(x) for J = m..=j_max at one x, with

@@ -5,6 +5,7 @@
 //! design space turns it into a `FieldModel`, the solver propagates it and the goal scores it.
 
 pub mod search;
+pub mod seeds;
 
 pub use crate::goal::{Goal, GoalKind, Observable, Score};
 
@@ -188,6 +189,24 @@ impl DesignSpace {
     /// Number of free parameters.
     pub fn dims(&self) -> usize {
         self.slots().len()
+    }
+
+    /// Grid points of the exhaustive line search along each free parameter: delays are scanned every
+    /// fifth of the shortest allowed pulse duration, but at least every 10 fs (kicks arrive at narrow
+    /// revival features, and a pulse of duration τ smooths features finer than about τ/5), on 100 to
+    /// 3000 points; the other parameters on 41 points.
+    pub fn line_points(&self) -> Vec<usize> {
+        let shortest_ps = self.pulses.iter().map(|p| p.fwhm_fs.min).fold(f64::INFINITY, f64::min) / 1000.0;
+        let step_ps = (shortest_ps / 5.0).max(0.01);
+        let fine = |b: Bounds| (((b.max - b.min) / step_ps).ceil() as usize).clamp(100, 3000);
+        self.slots()
+            .iter()
+            .map(|s| match *s {
+                Slot::Delay(k) => fine(self.delay_bounds(k)),
+                Slot::ThzDelay => fine(self.terahertz.expect("terahertz bounds").delay_ps),
+                _ => 41,
+            })
+            .collect()
     }
 
     /// Names of the free parameters, e.g. "pulse 2 delay (ps)".
@@ -404,26 +423,156 @@ pub fn fluence_jcm2(p: &Pulse) -> f64 {
     p.peak_intensity_wcm2 * p.envelope_area_ps() * 1e-12
 }
 
-/// Settings of the search.
+/// How hard the search tries: the size of each swarm, how many independent starts it may run and how
+/// long each polish lasts. Every level stops early once three starts agree.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Effort {
+    /// Small swarms, two to four starts: a first look.
+    Quick,
+    /// The default: sized so that 1–4 pulse designs of linear molecules reach the best known design.
+    Normal,
+    /// Larger swarms, up to sixteen starts.
+    Thorough,
+}
+
+impl Effort {
+    /// The level of a name as written in objective files.
+    pub fn parse(name: &str) -> Option<Effort> {
+        match name {
+            "quick" => Some(Effort::Quick),
+            "normal" => Some(Effort::Normal),
+            "thorough" => Some(Effort::Thorough),
+            _ => None,
+        }
+    }
+
+    /// Name as written in objective files.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Effort::Quick => "quick",
+            Effort::Normal => "normal",
+            Effort::Thorough => "thorough",
+        }
+    }
+}
+
+/// Settings of the search as the objective gives them (every number optional: the effort level
+/// chooses what is not given).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SearchSettings {
     /// Seed of every random choice; the same file and seed give the same design.
     pub seed: u64,
-    /// Particles in the swarm.
-    pub swarm_size: usize,
+    /// Effort level.
+    pub effort: Effort,
+    /// Particles in each swarm.
+    pub swarm_size: Option<usize>,
     /// Swarm iterations per start.
-    pub iterations: usize,
-    /// Independent seeded swarm starts.
-    pub starts: usize,
-    /// Best kick-model candidates re-scored with the full solver.
-    pub refine_candidates: usize,
-    /// Nelder–Mead iterations of the local refinement (each stage).
-    pub refine_iterations: usize,
+    pub iterations: Option<usize>,
+    /// A fixed number of independent starts (no early stop on agreement).
+    pub starts: Option<usize>,
+    /// Most starts the search may run before it gives up on agreement.
+    pub max_starts: Option<usize>,
+    /// Distinct trains refined with the full solver.
+    pub refine_candidates: Option<usize>,
+    /// Nelder–Mead iterations of each polish and each full-solver refinement.
+    pub refine_iterations: Option<usize>,
+    /// Starts whose scores differ by less than this agree (units of the observable).
+    pub agreement: f64,
+    /// Wall-clock budget, s: no new start begins after it (at least the effort's minimum starts run).
+    pub time_limit_s: Option<f64>,
 }
 
 impl Default for SearchSettings {
     fn default() -> Self {
-        SearchSettings { seed: 1, swarm_size: 24, iterations: 30, starts: 2, refine_candidates: 3, refine_iterations: 40 }
+        SearchSettings {
+            seed: 1,
+            effort: Effort::Normal,
+            swarm_size: None,
+            iterations: None,
+            starts: None,
+            max_starts: None,
+            refine_candidates: None,
+            refine_iterations: None,
+            agreement: 2e-3,
+            time_limit_s: None,
+        }
+    }
+}
+
+/// The numbers one search runs with, resolved from the settings for a space of a given dimension.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SearchPlan {
+    /// Effort level the plan came from.
+    pub effort: Effort,
+    /// Random trains scored to pick each swarm's first population (with the seeds).
+    pub sample: usize,
+    /// Particles per swarm.
+    pub swarm_size: usize,
+    /// Swarm iterations.
+    pub iterations: usize,
+    /// Starts run before agreement is checked.
+    pub min_starts: usize,
+    /// Most starts.
+    pub max_starts: usize,
+    /// Stop as soon as three starts agree.
+    pub stop_on_agreement: bool,
+    /// Sweeps of the exhaustive line search after each swarm (kick model; 0 for none).
+    pub line_sweeps: usize,
+    /// Nelder–Mead iterations of each start's polish (split-kick model).
+    pub polish_iterations: usize,
+    /// Distinct trains refined with the full solver.
+    pub refine_candidates: usize,
+    /// Nelder–Mead iterations of each full-solver refinement.
+    pub refine_iterations: usize,
+    /// Agreement tolerance.
+    pub agreement: f64,
+}
+
+impl SearchSettings {
+    /// The plan for a space with `dims` free parameters; `full_screening` when every evaluation is a
+    /// full-solver run (pulses too long for the kick model), which keeps swarms and starts small.
+    pub fn plan(&self, dims: usize, full_screening: bool) -> SearchPlan {
+        let d = dims;
+        // (random sample, swarm, iterations, min starts, max starts, polish, refine candidates, refine iterations)
+        let (sample, swarm, iterations, min_starts, max_starts, polish, candidates, refine) = match (self.effort, full_screening) {
+            (Effort::Quick, false) => (100 * d, 8 + 4 * d, 10 + 4 * d, 2, 4, 20 + 10 * d, 1, 6 + 3 * d),
+            (Effort::Normal, false) => (300 * d, 10 + 6 * d, 15 + 6 * d, 3, 8, 40 + 20 * d, 2, 8 + 4 * d),
+            (Effort::Thorough, false) => (1000 * d, 16 + 8 * d, 25 + 10 * d, 5, 16, 80 + 30 * d, 3, 15 + 6 * d),
+            (Effort::Quick, true) => (0, 6 + d, 6 + d, 1, 2, 5 + 2 * d, 1, 0),
+            (Effort::Normal, true) => (0, 8 + 2 * d, 8 + 2 * d, 2, 3, 10 + 4 * d, 1, 0),
+            (Effort::Thorough, true) => (0, 10 + 3 * d, 12 + 3 * d, 3, 6, 20 + 6 * d, 1, 0),
+        };
+        let (min_starts, max_starts, stop_on_agreement) = match self.starts {
+            Some(n) => (n, n, false),
+            None => {
+                let max = self.max_starts.unwrap_or(max_starts);
+                (min_starts.min(max), max, true)
+            }
+        };
+        SearchPlan {
+            effort: self.effort,
+            sample,
+            swarm_size: self.swarm_size.unwrap_or(swarm),
+            iterations: self.iterations.unwrap_or(iterations),
+            min_starts,
+            max_starts,
+            stop_on_agreement,
+            line_sweeps: match self.effort {
+                Effort::Quick => 2,
+                Effort::Normal => 4,
+                Effort::Thorough => 8,
+            },
+            polish_iterations: self.refine_iterations.unwrap_or(polish),
+            refine_candidates: self.refine_candidates.unwrap_or(candidates),
+            refine_iterations: self.refine_iterations.unwrap_or(refine),
+            agreement: self.agreement,
+        }
+    }
+
+    /// The smaller plan of the single-pulse baseline: two quick starts.
+    pub fn baseline_plan(&self, dims: usize, full_screening: bool) -> SearchPlan {
+        let p = SearchSettings { effort: Effort::Quick, ..*self }.plan(dims, full_screening);
+        SearchPlan { min_starts: 1, max_starts: if full_screening { 1 } else { 2 }, stop_on_agreement: false, ..p }
     }
 }
 
@@ -840,25 +989,45 @@ fn parse_polarization_bounds(v: &Value, path: &str) -> Result<(Bounds, Bounds)> 
 fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {
     let mut f = Fields::new(v, path)?;
     let d = SearchSettings::default();
+    let effort = match f.opt_str("effort", "\"quick\", \"normal\" or \"thorough\"")? {
+        None => Effort::Normal,
+        Some(name) => Effort::parse(name)
+            .ok_or_else(|| Error::input(join(path, "effort"), format!("expected \"quick\", \"normal\" or \"thorough\", got \"{name}\"")))?,
+    };
     let s = SearchSettings {
         seed: f.opt_usize("seed", "a seed")?.map(|x| x as u64).unwrap_or(d.seed),
-        swarm_size: f.opt_usize("swarm_size", "particles")?.unwrap_or(d.swarm_size),
-        iterations: f.opt_usize("iterations", "swarm iterations")?.unwrap_or(d.iterations),
-        starts: f.opt_usize("starts", "independent starts")?.unwrap_or(d.starts),
-        refine_candidates: f.opt_usize("refine_candidates", "candidates")?.unwrap_or(d.refine_candidates),
-        refine_iterations: f.opt_usize("refine_iterations", "iterations")?.unwrap_or(d.refine_iterations),
+        effort,
+        swarm_size: f.opt_usize("swarm_size", "particles")?,
+        iterations: f.opt_usize("iterations", "swarm iterations")?,
+        starts: f.opt_usize("starts", "independent starts")?,
+        max_starts: f.opt_usize("max_starts", "independent starts")?,
+        refine_candidates: f.opt_usize("refine_candidates", "candidates")?,
+        refine_iterations: f.opt_usize("refine_iterations", "iterations")?,
+        agreement: f.opt_f64("agreement", "units of the observable")?.unwrap_or(d.agreement),
+        time_limit_s: f.opt_f64("time_limit_s", "s")?,
     };
     f.finish()?;
     for (name, val, lo, hi) in [
         ("swarm_size", s.swarm_size, 2, 10_000),
         ("iterations", s.iterations, 1, 100_000),
         ("starts", s.starts, 1, 100),
+        ("max_starts", s.max_starts, 1, 100),
         ("refine_candidates", s.refine_candidates, 1, 100),
         ("refine_iterations", s.refine_iterations, 0, 100_000),
     ] {
-        if val < lo || val > hi {
+        if let Some(val) = val
+            && (val < lo || val > hi)
+        {
             return Err(Error::input(join(path, name), format!("expected a whole number from {lo} to {hi}, got {val}")));
         }
+    }
+    if !(s.agreement > 0.0 && s.agreement <= 0.1) {
+        return Err(Error::input(join(path, "agreement"), format!("expected a tolerance above 0 and at most 0.1 (units of the observable), got {}", s.agreement)));
+    }
+    if let Some(t) = s.time_limit_s
+        && !(t > 0.0 && t <= 1e7)
+    {
+        return Err(Error::input(join(path, "time_limit_s"), format!("expected a time above 0 and at most 1e7 s, got {t}")));
     }
     Ok(s)
 }

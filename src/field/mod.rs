@@ -297,6 +297,56 @@ impl Pulse {
         }
     }
 
+    /// Times (ps) and fractions of the kick strength of an `n`-point Gaussian quadrature of the intensity
+    /// envelope (fractions sum to 1): the sub-kicks of the split-kick model, which replaces the pulse by
+    /// `n` kicks with exact free evolution between them. One point is the kick at `kick_time_ps`; three
+    /// points integrate the envelope exactly for polynomials up to degree five (for a Gaussian: the
+    /// centre with 2/3 and ±√3 σ with 1/6 each, the Gauss–Hermite rule). Built by the Stieltjes
+    /// procedure on a Simpson grid of the envelope, so it serves every shape, symmetric or not.
+    pub fn quadrature_nodes(&self, n: usize) -> Vec<(f64, f64)> {
+        if n <= 1 {
+            return vec![(self.kick_time_ps(), 1.0)];
+        }
+        let (a, b) = self.support_ps();
+        let (ts, ws) = crate::basis::legendre::simpson_grid(a, b, 4000);
+        let w: Vec<f64> = ts.iter().zip(&ws).map(|(&t, &c)| c * self.envelope(t)).collect();
+        let m0: f64 = w.iter().sum();
+        let centre = self.kick_time_ps();
+        let scale = self.rms_duration_ps().max(1e-12);
+        let x: Vec<f64> = ts.iter().map(|t| (t - centre) / scale).collect();
+        // Three-term recurrence p_{k+1} = (x − α_k) p_k − β_k p_{k−1} of the polynomials orthogonal under w.
+        let (mut alpha, mut beta) = (vec![], vec![]);
+        let mut prev = vec![0.0; x.len()];
+        let mut cur = vec![1.0; x.len()];
+        let mut norm_prev = 1.0;
+        for k in 0..n {
+            let norm: f64 = cur.iter().zip(&w).map(|(p, w)| p * p * w).sum();
+            let ak = cur.iter().zip(&w).zip(&x).map(|((p, w), x)| x * p * p * w).sum::<f64>() / norm;
+            let bk = if k == 0 { 0.0 } else { norm / norm_prev };
+            alpha.push(ak);
+            beta.push(bk);
+            let next: Vec<f64> = (0..x.len()).map(|i| (x[i] - ak) * cur[i] - bk * prev[i]).collect();
+            prev = std::mem::replace(&mut cur, next);
+            norm_prev = norm;
+        }
+        let jacobi = nalgebra::DMatrix::from_fn(n, n, |i, j| {
+            if i == j {
+                alpha[i]
+            } else if i + 1 == j || j + 1 == i {
+                beta[i.max(j)].sqrt()
+            } else {
+                0.0
+            }
+        });
+        let eig = nalgebra::SymmetricEigen::new(jacobi);
+        let mut nodes: Vec<(f64, f64)> = (0..n).map(|i| (centre + scale * eig.eigenvalues[i], eig.eigenvectors[(0, i)].powi(2))).collect();
+        nodes.sort_by(|p, q| p.0.total_cmp(&q.0));
+        let total: f64 = nodes.iter().map(|x| x.1).sum();
+        debug_assert!(m0 > 0.0);
+        nodes.iter_mut().for_each(|x| x.1 /= total);
+        nodes
+    }
+
     /// Nominal end of the pulse (centre + one FWHM; the end of the switch-off of a truncated pulse), ps:
     /// "after the pulse" in summaries.
     pub fn end_ps(&self) -> f64 {
@@ -736,6 +786,39 @@ mod tests {
             // Negligible area outside the support.
             let (s, e) = p.support_ps();
             assert!(p.envelope(s) < 1e-9 && p.envelope(e) < 1e-9);
+        }
+    }
+
+    #[test]
+    fn three_point_quadrature_of_envelopes() {
+        // A Gaussian intensity envelope is the normal weight exp(−t²/2σ²): its three-point Gauss rule is
+        // Gauss–Hermite, nodes 0 and ±√3 σ with weights 2/3 and 1/6 (Abramowitz & Stegun, Table 25.10,
+        // rescaled to the probabilists' weight).
+        let g = Pulse::gaussian(1.5, 50.0, 1e13);
+        let sigma = g.rms_duration_ps();
+        let n = g.quadrature_nodes(3);
+        let want = [(1.5 - 3f64.sqrt() * sigma, 1.0 / 6.0), (1.5, 2.0 / 3.0), (1.5 + 3f64.sqrt() * sigma, 1.0 / 6.0)];
+        for (a, b) in n.iter().zip(want) {
+            // (1e-7: the envelope is integrated over its support, which ends where it has fallen to ~1e-9.)
+            assert!((a.0 - b.0).abs() < 1e-7 * sigma && (a.1 - b.1).abs() < 1e-7, "{a:?} vs {b:?}");
+        }
+        assert_eq!(g.quadrature_nodes(1), vec![(1.5, 1.0)]);
+        // Every shape: the rule reproduces the envelope's moments up to t⁵ (Gauss quadrature, degree 2n − 1),
+        // compared with Simpson's rule on a fine grid.
+        for p in [
+            Pulse { shape: PulseShape::Sech2, ..Pulse::gaussian(0.3, 80.0, 1e13) },
+            Pulse { shape: PulseShape::FlatTop, rise_fs: Some(30.0), ..Pulse::gaussian(0.3, 200.0, 1e13) },
+            Pulse { shape: PulseShape::Truncated, rise_fs: Some(10.0), cut_fs: Some(-20.0), ..Pulse::gaussian(0.3, 100.0, 1e13) },
+        ] {
+            let nodes = p.quadrature_nodes(3);
+            let (a, b) = p.support_ps();
+            let s = p.rms_duration_ps();
+            let m0 = simpson(a, b, 20000, |t| p.envelope(t));
+            for k in 0..6 {
+                let exact = simpson(a, b, 20000, |t| ((t - 0.3) / s).powi(k) * p.envelope(t)) / m0;
+                let rule: f64 = nodes.iter().map(|(t, w)| w * ((t - 0.3) / s).powi(k)).sum();
+                assert!((rule - exact).abs() < 1e-6 * (1.0 + exact.abs()), "{:?} moment {k}: {rule} vs {exact}", p.shape);
+            }
         }
     }
 

@@ -486,8 +486,9 @@ pub struct DenseSums {
     eps: Vec<f64>,
     /// Diagonal parts Σ_i ρ_ii O_ii: the exact time averages.
     pub statics: Vec<f64>,
-    /// Per observable, upper triangle (i < j, row-major over the kept states) of ρ_ij O_ji.
-    coeffs: Vec<Vec<(f64, f64)>>,
+    /// Per observable, the strict upper triangle (i < j, over the kept states) of ρ_ij O_ji as real and
+    /// imaginary matrices.
+    coeffs: Vec<(nalgebra::DMatrix<f64>, nalgebra::DMatrix<f64>)>,
 }
 
 impl DenseSums {
@@ -496,50 +497,72 @@ impl DenseSums {
     pub fn new(rho_re: &nalgebra::DMatrix<f64>, rho_im: &nalgebra::DMatrix<f64>, observables: &[nalgebra::DMatrix<f64>], eps: &[f64], t0_ps: f64) -> DenseSums {
         let n = eps.len();
         let keep: Vec<usize> = (0..n).filter(|&i| rho_re[(i, i)] > TRIM_POPULATION).collect();
+        let m = keep.len();
         let mut statics = vec![0.0; observables.len()];
-        let mut coeffs = vec![vec![]; observables.len()];
+        let mut coeffs = vec![];
         for (o, op) in observables.iter().enumerate() {
+            let (mut c0, mut c1) = (nalgebra::DMatrix::zeros(m, m), nalgebra::DMatrix::zeros(m, m));
             for (a, &i) in keep.iter().enumerate() {
                 statics[o] += rho_re[(i, i)] * op[(i, i)];
-                for &j in &keep[a + 1..] {
-                    coeffs[o].push((rho_re[(i, j)] * op[(j, i)], rho_im[(i, j)] * op[(j, i)]));
+                for (b, &j) in keep.iter().enumerate().skip(a + 1) {
+                    c0[(a, b)] = rho_re[(i, j)] * op[(j, i)];
+                    c1[(a, b)] = rho_im[(i, j)] * op[(j, i)];
                 }
             }
+            coeffs.push((c0, c1));
         }
         DenseSums { t0_ps, eps: keep.iter().map(|&i| eps[i]).collect(), statics, coeffs }
     }
 
     /// Values of every observable at time t (ps).
     pub fn eval(&self, t_ps: f64) -> Vec<f64> {
-        let tau = t_ps - self.t0_ps;
+        let mut out = vec![];
+        self.eval_series(&[t_ps], |_, v| out = v);
+        out
+    }
+
+    /// Values of every observable at each of `times_ps`, passed to `out(index, values)`. The phases
+    /// z_a(t) = exp(−i ε_a (t − t0)) of a chunk of times form the columns of a matrix, so the pair sums
+    /// Σ_{a<b} c_ab z_a* z_b of all times are matrix products; on a uniform grid the phases advance by
+    /// one complex product per step (re-synchronized at every chunk).
+    pub fn eval_series(&self, times_ps: &[f64], mut out: impl FnMut(usize, Vec<f64>)) {
+        const CHUNK: usize = 256;
         let m = self.eps.len();
-        let z: Vec<(f64, f64)> = self
-            .eps
-            .iter()
-            .map(|e| {
-                let (s, c) = (-e * tau).sin_cos();
-                (c, s)
-            })
-            .collect();
-        self.coeffs
-            .iter()
-            .zip(&self.statics)
-            .map(|(cf, st)| {
-                let mut v = *st;
-                let mut idx = 0;
+        let uniform = is_uniform_grid(times_ps);
+        let dt = if uniform { times_ps[1] - times_ps[0] } else { 0.0 };
+        let step: Vec<(f64, f64)> = self.eps.iter().map(|e| sin_cos(-e * dt)).collect();
+        for (c, chunk) in times_ps.chunks(CHUNK).enumerate() {
+            let k = chunk.len();
+            let (mut zr, mut zi) = (nalgebra::DMatrix::<f64>::zeros(m, k), nalgebra::DMatrix::<f64>::zeros(m, k));
+            for (col, &t) in chunk.iter().enumerate() {
                 for a in 0..m {
-                    let (mut sr, mut si) = (0.0, 0.0);
-                    for &(zr, zi) in &z[(a + 1)..m] {
-                        let c = cf[idx];
-                        idx += 1;
-                        sr += c.0 * zr + c.1 * zi;
-                        si += c.1 * zr - c.0 * zi;
-                    }
-                    v += 2.0 * (sr * z[a].0 - si * z[a].1);
+                    let (s, co) = if uniform && col > 0 {
+                        let (ps, pc) = (zi[(a, col - 1)], zr[(a, col - 1)]);
+                        let (ss, sc) = step[a];
+                        (ps * sc + pc * ss, pc * sc - ps * ss)
+                    } else {
+                        sin_cos(-self.eps[a] * (t - self.t0_ps))
+                    };
+                    zr[(a, col)] = co;
+                    zi[(a, col)] = s;
                 }
-                v
-            })
-            .collect()
+            }
+            // S = C z: SR = C0 ZR + C1 ZI, SI = C1 ZR − C0 ZI; the value is static + 2 Σ_a Re(conj-free
+            // products) as in the pair sum 2 Σ_a (SR_a zr_a − SI_a zi_a).
+            let sums: Vec<nalgebra::DMatrix<f64>> = self
+                .coeffs
+                .iter()
+                .map(|(c0, c1)| {
+                    let sr = c0 * &zr + c1 * &zi;
+                    let si = c1 * &zr - c0 * &zi;
+                    sr.component_mul(&zr) - si.component_mul(&zi)
+                })
+                .collect();
+            for col in 0..k {
+                let vals = sums.iter().zip(&self.statics).map(|(p, st)| st + 2.0 * p.column(col).sum()).collect();
+                out(c * CHUNK + col, vals);
+            }
+        }
     }
 }
 

@@ -114,7 +114,12 @@ impl PolarOps {
             }
         }
         let e = Arc::new(StaticEigen { rate, eps, st: s.transpose(), s });
-        self.statics.lock().expect("lock").insert(key, e.clone());
+        let mut cache = self.statics.lock().expect("lock");
+        // A search tries a new field strength at every step: keep the cache bounded.
+        if cache.len() >= 16 {
+            cache.clear();
+        }
+        cache.insert(key, e.clone());
         e
     }
 

@@ -1,7 +1,7 @@
 //! Reports of a design search: the replayable design, its summary, traces, history and plots.
 
 use super::{LASER_SAFETY, num, svg, trace_csv, write_file};
-use crate::design::search::{COUNT_GAIN_THRESHOLD, Candidate, DesignResult};
+use crate::design::search::{COUNT_GAIN_THRESHOLD, Candidate, Confidence, DesignResult, STARTS_THAT_MUST_AGREE};
 use crate::design::{Objective, fluence_jcm2};
 use crate::error::Result;
 use crate::field::FieldModel;
@@ -65,6 +65,19 @@ fn candidate_json(obj: &Objective, c: &Candidate) -> Value {
     })
 }
 
+/// How sure the search is of one pulse count's design, as JSON.
+fn confidence_json(c: &Confidence) -> Value {
+    json!({
+        "starts": c.starts.len(),
+        "starts_agreeing": c.agreeing,
+        "agreement": c.agreement,
+        "spread": num(c.spread),
+        "stopped_by": c.stopped_by,
+        "converged": c.agreeing >= STARTS_THAT_MUST_AGREE,
+        "per_start": c.starts.iter().map(|s| json!({"swarm": num(s.swarm), "polished": num(s.polished), "full_solver": num(s.full), "evaluations": s.evaluations})).collect::<Vec<_>>(),
+    })
+}
+
 /// The summary of a design search as JSON.
 pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
     let g = &obj.goal;
@@ -91,7 +104,16 @@ pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
         "min_separation_ps": obj.space.min_separation_ps,
         "single_pulse_baseline": candidate_json(obj, &r.baseline),
         "gain_over_single_pulse": num(g.sense() * (best.full.value - r.baseline.full.value)),
-        "per_pulse_count": r.per_count.iter().map(|c| json!({"pulses": c.field.pulses.len(), "score": num(c.full.value), "kick_model_score": kick_value(c)})).collect::<Vec<_>>(),
+        "per_pulse_count": r.per_count.iter().zip(&r.confidence).map(|(c, conf)| json!({"pulses": c.field.pulses.len().max(c.field.two_colour.len()), "score": num(c.full.value),
+            "kick_model_score": kick_value(c), "search": confidence_json(conf)})).collect::<Vec<_>>(),
+        "search": {
+            "effort": obj.search.effort.name(),
+            "time_limit_s": obj.search.time_limit_s,
+            "confidence": r.best_confidence().map(confidence_json),
+            "seeds": "a quarter of every swarm starts from physics seeds: trains with each pulse at the alignment peak left by the earlier ones, trains spaced by multiples of a quarter revival period, and (with max_count) the best design with one pulse fewer extended by one pulse",
+            "stopping_rule": format!("starts run until {STARTS_THAT_MUST_AGREE} agree within {} in the split-kick model (or the start limit or time limit is reached)", obj.search.agreement),
+        },
+        "warnings": r.confidence.iter().filter_map(|c| c.warning.clone()).collect::<Vec<_>>(),
         "pulse_count_rule": if obj.variable_count { json!(format!("fewest pulses within {COUNT_GAIN_THRESHOLD} of the best score")) } else { Value::Null },
         "evaluations": {"kick_model": r.kick_evaluations, "full_solver": r.full_evaluations},
         "run_time_s": r.run_time_s,
@@ -112,33 +134,45 @@ pub fn history_csv(r: &DesignResult) -> String {
     out
 }
 
-/// Plot of the best value versus evaluations, one line per stage.
+/// Plot of the best value versus evaluations: one line per independent start (its kick-model swarm and
+/// line search, then its split-kick polish, which sits closer to the full solver), and one dashed line
+/// per full-solver stage.
 pub fn convergence_plot(obj: &Objective, r: &DesignResult) -> svg::LinePlot {
     let mut plot = svg::LinePlot::new("Search convergence", "objective evaluations", format!("best {} ({})", obj.goal.kind_name(), obj.goal.observable.name()));
-    let mut stages: Vec<String> = vec![];
-    for h in &r.history {
-        if !stages.contains(&h.stage) {
-            stages.push(h.stage.clone());
+    // "3 pulses · start 2 · kick swarm" belongs to the line "3 pulses · start 2".
+    let line_of = |stage: &str| -> String {
+        let parts: Vec<&str> = stage.split(" · ").collect();
+        if parts.len() >= 3 && parts[1].starts_with("start") { format!("{} · {}", parts[0], parts[1]) } else { stage.to_string() }
+    };
+    let mut lines: Vec<String> = vec![];
+    for h in r.history.iter().filter(|h| h.stage != "done" && !h.stage.starts_with("baseline")) {
+        let l = line_of(&h.stage);
+        if !lines.contains(&l) {
+            lines.push(l);
         }
     }
-    for (i, st) in stages.iter().enumerate() {
-        let pts: Vec<_> = r.history.iter().filter(|h| &h.stage == st).collect();
+    let mut start_index = 0;
+    for l in &lines {
+        let pts: Vec<_> = r.history.iter().filter(|h| &line_of(&h.stage) == l).collect();
         let mut x: Vec<f64> = pts.iter().map(|h| h.evaluation as f64).collect();
         let mut y: Vec<f64> = pts.iter().map(|h| h.best).collect();
         if x.len() == 1 {
             x.push(x[0]);
             y.push(y[0]);
         }
-        plot.series.push(svg::Series {
-            label: st.clone(),
-            x,
-            y,
-            color: svg::PALETTE[i % svg::PALETTE.len()].to_string(),
-            dashed: st.contains("full"),
-            width: 1.8,
-        });
+        let full = l.contains("full");
+        let color = if full {
+            svg::INK.to_string()
+        } else {
+            start_index += 1;
+            svg::PALETTE[(start_index - 1) % svg::PALETTE.len()].to_string()
+        };
+        plot.series.push(svg::Series { label: l.clone(), x, y, color, dashed: full, width: if full { 2.2 } else { 1.4 } });
     }
-    plot.subtitle = Some(format!("{} kick-model and {} full-solver evaluations, seed {}", r.kick_evaluations, r.full_evaluations, obj.search.seed));
+    plot.subtitle = Some(format!(
+        "every start shown; {} kick-model (incl. split-kick) and {} full-solver evaluations, seed {}",
+        r.kick_evaluations, r.full_evaluations, obj.search.seed
+    ));
     plot
 }
 
@@ -186,7 +220,7 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
             label: "three-axis goal".into(),
             x: sim.result.trace.times_ps.clone(),
             y: sim.result.trace.three_axis.clone(),
-            color: "#6a3d9a".into(),
+            color: svg::VIOLET.into(),
             dashed: false,
             width: 1.8,
         });
@@ -195,12 +229,12 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
         label: label.into(),
         x: base.result.trace.times_ps.clone(),
         y: base_series.clone(),
-        color: "#7f7f7f".into(),
+        color: svg::NEUTRAL.into(),
         dashed: true,
         width: 1.2,
     });
     if let Some(t) = r.best.full.t_ps {
-        plot.markers.push(svg::Marker { x0: t, x1: t, label: format!("optimum {:.4}", r.best.full.value), color: "#2a7f3f".into() });
+        plot.markers.push(svg::Marker { x0: t, x1: t, label: format!("optimum {:.4}", r.best.full.value), color: svg::ORIENTATION.into() });
     }
     plot.subtitle = Some(format!(
         "{} at {} K; goal: {} {}; score {:.4} vs single pulse {:.4}",

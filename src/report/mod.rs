@@ -218,13 +218,13 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         label: format!("⟨cos²θ⟩{axis}"),
         x: trace.times_ps.clone(),
         y: trace.cos2.clone(),
-        color: "#1f5fa8".into(),
+        color: svg::ALIGNMENT.into(),
         dashed: false,
         width: 1.6,
     });
     if let Some(t) = &scenario.molecule.top {
         // The other two body axes, dashed (their sum with the alignment axis is 1).
-        for (i, (series, color)) in [(&trace.cos2_a, "#5b8fd1"), (&trace.cos2_b, "#7a7a7a"), (&trace.cos2_c, "#a0a0a0")].into_iter().enumerate() {
+        for (i, (series, color)) in [(&trace.cos2_a, svg::AXIS_A), (&trace.cos2_b, svg::NEUTRAL), (&trace.cos2_c, svg::NEUTRAL_LIGHT)].into_iter().enumerate() {
             if i != t.alignment_axis.index() && !series.is_empty() {
                 plot.series.push(svg::Series {
                     label: format!("⟨cos²θ⟩ ({} axis{with_z})", ["a", "b", "c"][i]),
@@ -245,7 +245,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
                 label: format!("⟨cos²⟩ ({} axis with X)", t.second_axis().letter()),
                 x: trace.times_ps.clone(),
                 y: series.clone(),
-                color: "#2a9d5b".into(),
+                color: svg::TEAL.into(),
                 dashed: false,
                 width: 1.4,
             });
@@ -256,7 +256,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
             label: "⟨cos²θ_2D⟩".into(),
             x: trace.times_ps.clone(),
             y: trace.cos2_2d.clone(),
-            color: "#d9622b".into(),
+            color: svg::PROJECTED.into(),
             dashed: false,
             width: 1.6,
         });
@@ -266,11 +266,11 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
             label: "⟨cosθ⟩".into(),
             x: trace.times_ps.clone(),
             y: trace.cos.clone(),
-            color: "#2a7f3f".into(),
+            color: svg::ORIENTATION.into(),
             dashed: false,
             width: 1.6,
         });
-        plot.hlines.push(svg::HLine { y: 0.0, label: "no orientation".into(), color: "#2a7f3f".into() });
+        plot.hlines.push(svg::HLine { y: 0.0, label: "no orientation".into(), color: svg::ORIENTATION.into() });
         plot.y_label = "alignment and orientation".into();
     }
     if let Some(sf) = &scenario.field.static_field {
@@ -278,21 +278,21 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     }
     for (i, tc) in scenario.field.two_colour.iter().enumerate() {
         let h = 0.5 * tc.fwhm_fs / 1000.0;
-        plot.markers.push(svg::Marker { x0: tc.center_ps - h, x1: tc.center_ps + h, label: format!("ω+2ω {}", i + 1), color: "#8e44ad".into() });
+        plot.markers.push(svg::Marker { x0: tc.center_ps - h, x1: tc.center_ps + h, label: format!("ω+2ω {}", i + 1), color: svg::VIOLET.into() });
     }
     for (i, th) in scenario.field.terahertz.iter().enumerate() {
         let h = 0.5 * th.duration_fs / 1000.0;
-        plot.markers.push(svg::Marker { x0: th.center_ps - h, x1: th.center_ps + h, label: format!("THz {}", i + 1), color: "#16a085".into() });
+        plot.markers.push(svg::Marker { x0: th.center_ps - h, x1: th.center_ps + h, label: format!("THz {}", i + 1), color: svg::TEAL.into() });
     }
     for (i, p) in scenario.field.pulses.iter().enumerate() {
         let h = 0.5 * p.fwhm_ps();
         // A truncated pulse ends at its switch-off.
         let x1 = if p.shape == crate::field::PulseShape::Truncated { (p.center_ps + h).min(p.end_ps()) } else { p.center_ps + h };
-        plot.markers.push(svg::Marker { x0: (p.center_ps - h).min(x1), x1, label: format!("pulse {}", i + 1), color: "#c0392b".into() });
+        plot.markers.push(svg::Marker { x0: (p.center_ps - h).min(x1), x1, label: format!("pulse {}", i + 1), color: svg::PULSE.into() });
     }
-    plot.hlines.push(svg::HLine { y: 1.0 / 3.0, label: "isotropic 1/3".into(), color: "#1f5fa8".into() });
+    plot.hlines.push(svg::HLine { y: 1.0 / 3.0, label: "isotropic 1/3".into(), color: svg::ALIGNMENT.into() });
     if !trace.cos2_2d.is_empty() {
-        plot.hlines.push(svg::HLine { y: 0.5, label: "isotropic 2D 1/2".into(), color: "#d9622b".into() });
+        plot.hlines.push(svg::HLine { y: 0.5, label: "isotropic 2D 1/2".into(), color: svg::PROJECTED.into() });
     }
     plot
 }
@@ -324,7 +324,7 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
             label: "⟨cos²θ⟩ focal average".into(),
             x: av.trace.times_ps.clone(),
             y: av.trace.cos2.clone(),
-            color: "#1f5fa8".into(),
+            color: svg::ALIGNMENT.into(),
             dashed: true,
             width: 1.4,
         });
@@ -332,7 +332,7 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
             label: "⟨cos²θ_2D⟩ focal average".into(),
             x: av.trace.times_ps.clone(),
             y: av.trace.cos2_2d.clone(),
-            color: "#d9622b".into(),
+            color: svg::PROJECTED.into(),
             dashed: true,
             width: 1.4,
         });

@@ -11,12 +11,39 @@ use std::path::Path;
 pub const DOWNSAMPLE_THRESHOLD: usize = 20_000;
 
 /// Qualitative colour palette (CSS hex strings) used for series whose `color` is empty.
-pub const PALETTE: [&str; 10] = ["#1f77b4", "#ff7f0e", "#2ca02c", "#d62728", "#9467bd", "#8c564b", "#e377c2", "#7f7f7f", "#bcbd22", "#17becf"];
+pub const PALETTE: [&str; 8] = [ALIGNMENT, PROJECTED, VIOLET, ORIENTATION, "#e3a0b8", PULSE, TEAL, OCHRE];
+
+// kicktrain's colours, defined here and nowhere else. Neighbours in `PALETTE` stay at least 29 ΔE00
+// apart for normal vision and simulated protanopia, deuteranopia and tritanopia
+// (`tools/palette_check.py`: Machado et al. 2009 simulation, CIEDE2000).
+/// ⟨cos²θ⟩ of the alignment axis.
+pub const ALIGNMENT: &str = "#1f5fa8";
+/// ⟨cos²θ_2D⟩, the detector-plane alignment.
+pub const PROJECTED: &str = "#d9622b";
+/// ⟨cosθ⟩ (orientation), the optimum marker and "no orientation".
+pub const ORIENTATION: &str = "#2a7f3f";
+/// The three-axis goal and two-colour pulses.
+pub const VIOLET: &str = "#6a3d9a";
+/// Laser pulse markers and the nominal value of a tolerance histogram.
+pub const PULSE: &str = "#a8324e";
+/// Terahertz pulse markers and a second axis held along X.
+pub const TEAL: &str = "#3fa7b5";
+/// Spare palette colour.
+pub const OCHRE: &str = "#c9a227";
+/// The other body axes of a top (lighter than the alignment axis) and baselines.
+pub const AXIS_A: &str = "#6f9bd6";
+/// Body axis b of a top and single-pulse baselines.
+pub const NEUTRAL: &str = "#7a7a7a";
+/// Body axis c of a top.
+pub const NEUTRAL_LIGHT: &str = "#a3a3a3";
+
+/// Near-black for reference lines (full-solver stage of the convergence plot).
+pub const INK: &str = "#222222";
 
 /// Fill colour (CSS hex) of heatmap cells whose value is not finite.
 pub const MISSING_COLOR: &str = "#d9d9d9";
 
-const FONT: &str = "DejaVu Sans, Helvetica, Arial, sans-serif";
+const FONT: &str = "sans-serif";
 const GRID_COLOR: &str = "#e6e6e6";
 const AXIS_COLOR: &str = "#333333";
 const TEXT_COLOR: &str = "#222222";
@@ -47,7 +74,7 @@ pub struct Series {
     pub x: Vec<f64>,
     /// Ordinates, in the plot's y units (only the first `min(x.len(), y.len())` pairs are used).
     pub y: Vec<f64>,
-    /// CSS stroke colour, e.g. `"#1f77b4"`; empty picks a palette colour.
+    /// CSS stroke colour, e.g. `"#1f5fa8"`; empty picks a palette colour.
     pub color: String,
     /// Draw with a dashed stroke.
     pub dashed: bool,
@@ -374,30 +401,44 @@ fn superscript(e: i32) -> String {
 // Colour map
 // ---------------------------------------------------------------------------------------------
 
-const VIRIDIS: [(u8, u8, u8); 9] = [
-    (0x44, 0x01, 0x54),
-    (0x47, 0x2d, 0x7b),
-    (0x3b, 0x52, 0x8b),
-    (0x2c, 0x72, 0x8e),
-    (0x21, 0x91, 0x8c),
-    (0x28, 0xae, 0x80),
-    (0x5e, 0xc9, 0x62),
-    (0xad, 0xdc, 0x30),
-    (0xfd, 0xe7, 0x25),
-];
+/// Anchors (CIE L*, a*, b*) of the sequential heat-map colours: deep indigo, teal, pale straw. The map
+/// runs linearly in CIELAB between them, so lightness rises steadily from 18 to 93 and equal steps of the
+/// value are close to equal perceived steps (the principle of maps uniform in a perceptual colour space,
+/// e.g. Kovesi, "Good colour maps: how to design them", arXiv:1509.03700 (2015)). Checked in
+/// `tools/palette_check.py`; every colour on the path lies inside the sRGB gamut, so none is clipped.
+const MAP_LAB: [(f64, f64, f64); 3] = [(18.0, 18.0, -42.0), (55.5, -26.0, -10.0), (93.0, -10.0, 62.0)];
 
-/// Viridis-like perceptual colour for `t` in [0, 1] (clamped; non-finite gives the low end) as RGB.
-pub fn colormap(t: f64) -> (u8, u8, u8) {
-    let t = if t.is_finite() { t.clamp(0.0, 1.0) } else { 0.0 };
-    let pos = t * (VIRIDIS.len() - 1) as f64;
-    let i = (pos.floor() as usize).min(VIRIDIS.len() - 2);
-    let f = pos - i as f64;
-    let (a, b) = (VIRIDIS[i], VIRIDIS[i + 1]);
-    let mix = |p: u8, q: u8| (p as f64 + (q as f64 - p as f64) * f).round().clamp(0.0, 255.0) as u8;
-    (mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2))
+/// CIELAB (D65) to 8-bit sRGB (CIE 15:2004; IEC 61966-2-1), clipped to the gamut.
+fn lab_to_srgb(l: f64, a: f64, b: f64) -> (u8, u8, u8) {
+    let fy = (l + 16.0) / 116.0;
+    let (fx, fz) = (fy + a / 500.0, fy - b / 200.0);
+    let d = 6.0 / 29.0;
+    let inv = |t: f64| if t > d { t * t * t } else { 3.0 * d * d * (t - 4.0 / 29.0) };
+    let (x, y, z) = (0.95047 * inv(fx), inv(fy), 1.08883 * inv(fz));
+    let lin = [
+        3.2404542 * x - 1.5371385 * y - 0.4985314 * z,
+        -0.9692660 * x + 1.8760108 * y + 0.0415560 * z,
+        0.0556434 * x - 0.2040259 * y + 1.0572252 * z,
+    ];
+    let gamma = |c: f64| {
+        let c = c.clamp(0.0, 1.0);
+        let v = if c <= 0.0031308 { 12.92 * c } else { 1.055 * c.powf(1.0 / 2.4) - 0.055 };
+        (v * 255.0).round().clamp(0.0, 255.0) as u8
+    };
+    (gamma(lin[0]), gamma(lin[1]), gamma(lin[2]))
 }
 
-/// [`colormap`] as a CSS hex colour string such as `"#21918c"`.
+/// kicktrain's sequential colour for `t` in [0, 1] (clamped; non-finite gives the low end) as RGB.
+pub fn colormap(t: f64) -> (u8, u8, u8) {
+    let t = if t.is_finite() { t.clamp(0.0, 1.0) } else { 0.0 };
+    let pos = t * (MAP_LAB.len() - 1) as f64;
+    let i = (pos.floor() as usize).min(MAP_LAB.len() - 2);
+    let f = pos - i as f64;
+    let (a, b) = (MAP_LAB[i], MAP_LAB[i + 1]);
+    lab_to_srgb(a.0 + (b.0 - a.0) * f, a.1 + (b.1 - a.1) * f, a.2 + (b.2 - a.2) * f)
+}
+
+/// [`colormap`] as a CSS hex colour string such as `"#1f5fa8"`.
 pub fn colormap_hex(t: f64) -> String {
     let (r, g, b) = colormap(t);
     format!("#{r:02x}{g:02x}{b:02x}")
@@ -1117,8 +1158,9 @@ impl Heatmap {
         let mut svg = Svg::new(width, height);
         let gid = format!("kt-cmap-{:08x}", fnv(&["heat", &self.title, &self.z_label]));
         let _ = write!(svg.buf, "<defs><linearGradient id=\"{gid}\" x1=\"0\" y1=\"1\" x2=\"0\" y2=\"0\">");
-        for (i, _) in VIRIDIS.iter().enumerate() {
-            let t = i as f64 / (VIRIDIS.len() - 1) as f64;
+        // Eight stops: the map is piecewise linear in CIELAB, close to linear in sRGB between stops.
+        for i in 0..=8 {
+            let t = i as f64 / 8.0;
             let _ = write!(svg.buf, "<stop offset=\"{}\" stop-color=\"{}\"/>", N(t), colormap_hex(t));
         }
         svg.raw("</linearGradient></defs>\n");
@@ -1236,7 +1278,7 @@ impl Histogram {
         draw_titles(&mut svg, &f, width, &self.title, Some(&subtitle));
         draw_grid(&mut svg, &lay);
         draw_marker_spans(&mut svg, &self.markers, &f);
-        svg.raw("<g fill=\"#4c78a8\" stroke=\"#ffffff\" stroke-width=\"0.5\">\n");
+        svg.raw(&format!("<g fill=\"{ALIGNMENT}\" stroke=\"#ffffff\" stroke-width=\"0.5\">\n"));
         for (k, &c) in counts.iter().enumerate() {
             if c == 0 {
                 continue;
@@ -1556,11 +1598,29 @@ mod tests {
     }
 
     #[test]
-    fn colormap_endpoints() {
-        assert_eq!(colormap_hex(0.0), "#440154");
-        assert_eq!(colormap_hex(1.0), "#fde725");
-        assert_eq!(colormap_hex(0.5), "#21918c");
-        assert_eq!(colormap_hex(f64::NAN), "#440154");
+    fn colormap_rises_in_lightness_in_even_steps() {
+        // The map's colours converted back to CIELAB (sRGB → XYZ → L*a*b*, D65; IEC 61966-2-1, CIE 15:2004,
+        // written out here independently of `lab_to_srgb`): L* rises at every step and the 8-bit rounding
+        // keeps it within 0.5 of the linear ramp 18 → 93. A sRGB white must come back as L* = 100.
+        let lightness = |(r, g, b): (u8, u8, u8)| {
+            let lin = |c: u8| {
+                let c = c as f64 / 255.0;
+                if c <= 0.04045 { c / 12.92 } else { ((c + 0.055) / 1.055).powf(2.4) }
+            };
+            let y = 0.2126729 * lin(r) + 0.7151522 * lin(g) + 0.0721750 * lin(b);
+            if y > (6.0f64 / 29.0).powi(3) { 116.0 * y.cbrt() - 16.0 } else { y * (29.0f64 / 3.0).powi(3) }
+        };
+        assert!((lightness((255, 255, 255)) - 100.0).abs() < 1e-3);
+        let mut previous = -1.0;
+        for k in 0..=100 {
+            let t = k as f64 / 100.0;
+            let l = lightness(colormap(t));
+            assert!(l > previous, "t = {t}: L* {l} after {previous}");
+            assert!((l - (18.0 + 75.0 * t)).abs() < 0.5, "t = {t}: L* {l}");
+            previous = l;
+        }
+        assert_eq!(colormap_hex(f64::NAN), colormap_hex(0.0));
+        assert_eq!(colormap_hex(2.0), colormap_hex(1.0));
     }
 
     #[test]
@@ -1569,7 +1629,7 @@ mod tests {
         let (edges, counts) = h.counts();
         assert_eq!(counts, vec![3, 2]);
         assert_eq!(edges.len(), 3);
-        h.markers.push(Marker::line(0.5, "median", "#d62728"));
+        h.markers.push(Marker::line(0.5, "median", PULSE));
         h.markers.push(Marker::span(0.4, 0.6, "band", ""));
         let svg = h.to_svg();
         assert_clean(&svg);

@@ -129,6 +129,28 @@ fn three_axis_of_averages(top: &crate::molecule::top::Top, trace: &Trace) -> Vec
     }
 }
 
+/// The kicks that replace laser pulse `index` of strength P (polarizability anisotropy `da`, Å³): one
+/// at its kick time, or with `nodes` > 1 the sub-kicks at the nodes of `Pulse::quadrature_nodes`, each
+/// with its share of P and exact free evolution between them (the split-kick model).
+pub(crate) fn pulse_kicks(p: &crate::field::Pulse, index: usize, da: f64, nodes: usize) -> Vec<Event> {
+    let strength = p.kick_strength(da);
+    p.quadrature_nodes(nodes).into_iter().map(|(t_ps, w)| Event::Kick { t_ps, strength: strength * w, pulse: index }).collect()
+}
+
+/// Which of the polar observables (cos²θ, |cosθ|, cosθ, cos³θ) a run computes: every one.
+const ALL_POLAR: [bool; POLAR_OBSERVABLES] = [true; POLAR_OBSERVABLES];
+
+/// The polar series of a run, with the ones not computed left empty.
+fn polar_series(values: [Vec<f64>; POLAR_OBSERVABLES], wanted: [bool; POLAR_OBSERVABLES]) -> [Vec<f64>; POLAR_OBSERVABLES] {
+    let mut out = values;
+    for (v, w) in out.iter_mut().zip(wanted) {
+        if !w {
+            v.clear();
+        }
+    }
+    out
+}
+
 /// Key of cached block operators: (|M|, parity, size, with ⟨cos²θ_2D⟩).
 type OpsKey = (u32, u32, usize, bool);
 
@@ -141,6 +163,8 @@ pub struct Solver {
     /// Numerical settings.
     pub settings: SolverSettings,
     cache: Mutex<HashMap<OpsKey, Arc<BlockOps>>>,
+    /// Operators of the both-parity blocks, keyed by (|M|, size), built once.
+    polar_cache: Mutex<HashMap<(u32, usize), Arc<PolarOps>>>,
     /// The solver for symmetric and asymmetric tops (None for linear molecules, whose ensemble is `ensemble`).
     pub top: Option<top::TopSolver>,
     /// The all-M solver for fields not symmetric about Z, built on first use.
@@ -173,10 +197,10 @@ impl Solver {
         if let Some(t) = &molecule.top {
             let top = top::TopSolver::new(t, temperature_k, settings)?;
             let ensemble = ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
-            return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: Some(top), lab: Default::default() });
+            return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), polar_cache: Mutex::new(HashMap::new()), top: Some(top), lab: Default::default() });
         }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
-        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() })
+        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), polar_cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() })
     }
 
     /// A linear-molecule view of a symmetric top along its figure axis (B, α∥ − α⊥ with sign, dipole), used
@@ -188,7 +212,7 @@ impl Solver {
         m.dipole_debye = self.molecule.dipole_debye;
         m.ionization_energy_ev = self.molecule.ionization_energy_ev;
         let ensemble = ThermalEnsemble { temperature_k: self.ensemble.temperature_k, j_max: self.ensemble.j_max, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
-        Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() }
+        Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), polar_cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() }
     }
 
     /// Population left out of the thermal ensemble by its truncation.
@@ -286,8 +310,7 @@ impl Solver {
             };
             if impulsive {
                 for &i in &iv.pulses {
-                    let p = &field.pulses[i];
-                    events.push(Event::Kick { t_ps: p.kick_time_ps(), strength: p.kick_strength(da), pulse: i });
+                    events.extend(pulse_kicks(&field.pulses[i], i, da, self.settings.kick_nodes));
                 }
             } else {
                 let shortest = iv.pulses.iter().map(|&i| field.pulses[i].time_scale_ps()).fold(f64::INFINITY, f64::min);
@@ -393,6 +416,23 @@ impl Solver {
         })
     }
 
+    /// Run the field model for scoring a goal on `observable`: as [`Solver::run`], except that fields that
+    /// break the parity of J compute only ⟨cos²θ⟩ and the goal's observable at the samples (the other
+    /// series of the trace stay empty), which is what a search needs.
+    pub fn run_for_goal(&self, field: &FieldModel, times_ps: &[f64], observable: Observable) -> Result<RunResult> {
+        let with_2d = observable == Observable::Cos2TwoD;
+        let parity_breaking = field.is_polar() || self.settings.both_parities;
+        if !parity_breaking || !field.is_symmetric_about_z() || times_ps.windows(2).any(|w| w[1] < w[0]) {
+            return self.run(field, times_ps, with_2d);
+        }
+        let wanted = [true, with_2d, observable == Observable::Cos, false];
+        match &self.top {
+            Some(t) if t.top.kind() != crate::molecule::top::TopKind::Asymmetric => self.figure_axis_view(t).run_polar_top(t, field, times_ps, wanted),
+            Some(t) => t.run(field, times_ps, with_2d),
+            None => self.run_polar(field, times_ps, wanted),
+        }
+    }
+
     /// Run the field model and sample ⟨cos²θ⟩ (and ⟨cos²θ_2D⟩ if `with_2d`) at `times_ps` (ascending).
     /// Fields that break the parity of J (or `both_parities`) also give ⟨cosθ⟩ and ⟨cos³θ⟩.
     pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
@@ -404,12 +444,12 @@ impl Solver {
         }
         if let Some(t) = &self.top {
             if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric {
-                return self.figure_axis_view(t).run_polar_top(t, field, times_ps);
+                return self.figure_axis_view(t).run_polar_top(t, field, times_ps, ALL_POLAR);
             }
             return t.run(field, times_ps, with_2d);
         }
         if field.is_polar() || self.settings.both_parities {
-            return self.run_polar(field, times_ps);
+            return self.run_polar(field, times_ps, ALL_POLAR);
         }
         self.check_strength(field)?;
         let events = self.schedule(field);
@@ -741,9 +781,12 @@ impl Solver {
             let kick_mode = self.settings.method == Method::Kick && !(has_thz && self.settings.kick_terahertz_as_finite);
             if kick_mode {
                 for &i in &lasers {
-                    let p = &field.pulses[i];
-                    items.push(PolarItem::Kick { t_ps: p.center_ps, theta: [0.0, p.kick_strength(da), 0.0] });
-                    laser_events.push(Event::Kick { t_ps: p.center_ps, strength: p.kick_strength(da), pulse: i });
+                    for e in pulse_kicks(&field.pulses[i], i, da, self.settings.kick_nodes) {
+                        if let Event::Kick { t_ps, strength, .. } = e {
+                            items.push(PolarItem::Kick { t_ps, theta: [0.0, strength, 0.0] });
+                        }
+                        laser_events.push(e);
+                    }
                 }
                 for tc in field.two_colour.iter().filter(|t| overlaps(t.envelope_pulse().support_ps(), lo, hi)) {
                     let env = tc.envelope_pulse();
@@ -796,7 +839,7 @@ impl Solver {
     }
 
     /// The solver with one block per |M| holding both parities of J (static, two-colour, terahertz fields).
-    fn run_polar(&self, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
+    fn run_polar(&self, field: &FieldModel, times: &[f64], wanted: [bool; POLAR_OBSERVABLES]) -> Result<RunResult> {
         self.check_strength(field)?;
         let (items, events) = self.polar_schedule(field);
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
@@ -804,8 +847,9 @@ impl Solver {
         let extra = self.polar_extra(field, &items);
         let pops = self.ensemble.merged_by_m();
         let outcomes: Vec<PolarOutcome> =
-            pops.par_iter().map(|bp| self.run_polar_block(bp, field, &items, times, t_first, extra)).collect::<Result<Vec<_>>>()?;
-        let ([cos2, cos2_2d, cos, cos3], permanent, blocks) = sum_polar(outcomes, times.len());
+            pops.par_iter().map(|bp| self.run_polar_block(bp, field, &items, times, t_first, extra, wanted)).collect::<Result<Vec<_>>>()?;
+        let (values, permanent, blocks) = sum_polar(outcomes, times.len());
+        let [cos2, cos2_2d, cos, cos3] = polar_series(values, wanted);
         let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3, ..Default::default() };
         // Coherence sums by J do not apply in a static field: goals are scored on the samples alone.
         let mut final_sums = LevelSums::new(vec![], f64::INFINITY, false);
@@ -832,6 +876,7 @@ impl Solver {
         times: &[f64],
         t_first: f64,
         extra: usize,
+        wanted: [bool; POLAR_OBSERVABLES],
     ) -> Result<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
@@ -844,8 +889,18 @@ impl Solver {
                     bp.m
                 )));
             }
-            let ops = PolarOps::new(bp.m, size, &self.molecule);
-            if let Some(out) = self.try_polar_block(&ops, &bp.levels, field, items, times, t_first)? {
+            let ops = {
+                let cached = self.polar_cache.lock().expect("cache lock").get(&(bp.m, size)).cloned();
+                match cached {
+                    Some(o) => o,
+                    None => {
+                        let o = Arc::new(PolarOps::new(bp.m, size, &self.molecule));
+                        self.polar_cache.lock().expect("cache lock").insert((bp.m, size), o.clone());
+                        o
+                    }
+                }
+            };
+            if let Some(out) = self.try_polar_block(&ops, &bp.levels, field, items, times, t_first, wanted)? {
                 return Ok(out);
             }
             size += (size / 4).max(4);
@@ -861,6 +916,7 @@ impl Solver {
         items: &[PolarItem],
         times: &[f64],
         t_first: f64,
+        wanted: [bool; POLAR_OBSERVABLES],
     ) -> Result<Option<(Vec<Vec<f64>>, Vec<f64>, BlockReport)>> {
         let g = ops.degeneracy;
         let pops: Vec<f64> = levels.iter().map(|l| l.1).collect();
@@ -884,13 +940,15 @@ impl Solver {
         let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
         let mut ti = 0usize;
         let mut edge: f64 = 0.0;
-        let eval_now = |st: &BlockState| -> Vec<f64> { ops.observables.iter().map(|o| g * st.expect_dense(&pops, o)).collect() };
+        // Only the wanted observables: the others stay zero (and are dropped from the trace).
+        let active: Vec<usize> = (0..POLAR_OBSERVABLES).filter(|&o| wanted[o]).collect();
+        let eval_now = |st: &BlockState| -> Vec<(usize, f64)> { active.iter().map(|&o| (o, g * st.expect_dense(&pops, &ops.observables[o]))).collect() };
         // Field-free or static-field stretch from the state's time: sums in the eigenbasis of H0 − sX.
         let gap_sums = |st: &BlockState, rate: f64| -> DenseSums {
             let (re, im) = st.density(&pops);
             let e = ops.static_eigen(rate);
             let to_eig = |m: &DMatrix<f64>| &e.st * m * &e.s;
-            let obs: Vec<DMatrix<f64>> = ops.observables.iter().map(to_eig).collect();
+            let obs: Vec<DMatrix<f64>> = active.iter().map(|&o| to_eig(&ops.observables[o])).collect();
             DenseSums::new(&to_eig(&re), &to_eig(&im), &obs, &e.eps, st.t_ps)
         };
         let switch_times: Vec<f64> = field.static_field.map(|s| s.on_ps.into_iter().chain(s.off_ps).collect()).unwrap_or_default();
@@ -905,11 +963,11 @@ impl Solver {
             let gap_end = ti + times[ti..].partition_point(|t| *t < s);
             if gap_end > ti {
                 let sums = gap_sums(&state, rate_gap);
-                for i in ti..gap_end {
-                    for (o, v) in sums.eval(times[i]).into_iter().enumerate() {
-                        values[o][i] = g * v;
+                sums.eval_series(&times[ti..gap_end], |i, vals| {
+                    for (&o, v) in active.iter().zip(vals) {
+                        values[o][ti + i] = g * v;
                     }
-                }
+                });
                 ti = gap_end;
             }
             let dt = s - state.t_ps;
@@ -920,7 +978,7 @@ impl Solver {
                 PolarItem::Kick { theta, .. } => ops.kick(&mut state, theta[0], theta[1], theta[2]),
                 PolarItem::Finite { step_ps, .. } => {
                     while ti < times.len() && times[ti] == s {
-                        for (o, v) in eval_now(&state).into_iter().enumerate() {
+                        for (o, v) in eval_now(&state) {
                             values[o][ti] = v;
                         }
                         ti += 1;
@@ -938,7 +996,7 @@ impl Solver {
                     let base = ti;
                     let step = *step_ps;
                     propagate_finite(&mut state, &ops.omega, &mut kick, e, step, stops, &breaks, |i, st| {
-                        for (o, v) in eval_now(st).into_iter().enumerate() {
+                        for (o, v) in eval_now(st) {
                             values[o][base + i] = v;
                         }
                     });
@@ -952,11 +1010,11 @@ impl Solver {
         }
         let rate_end = self.static_rate(field, state.t_ps);
         let sums = gap_sums(&state, rate_end);
-        for i in ti..times.len() {
-            for (o, v) in sums.eval(times[i]).into_iter().enumerate() {
-                values[o][i] = g * v;
+        sums.eval_series(&times[ti..], |i, vals| {
+            for (&o, v) in active.iter().zip(vals) {
+                values[o][ti + i] = g * v;
             }
-        }
+        });
         // Edge also after a long static-field stretch (dressed states reach higher J).
         let e = ops.static_eigen(rate_end);
         let (re, _) = state.density(&pops);
@@ -970,7 +1028,10 @@ impl Solver {
         if edge > self.settings.edge_tolerance {
             return Ok(None);
         }
-        let perm: Vec<f64> = sums.statics.iter().map(|v| g * v).collect();
+        let mut perm = vec![0.0; POLAR_OBSERVABLES];
+        for (&o, v) in active.iter().zip(&sums.statics) {
+            perm[o] = g * v;
+        }
         let report = BlockReport { m: ops.block.m, parity: ops.label.clone(), j_max: ops.j_last(), size: ops.size(), edge_population: edge };
         Ok(Some((values, perm, report)))
     }

@@ -301,7 +301,7 @@ impl TopSolver {
         let mut events: Vec<Event> = vec![];
         if self.settings.method == Method::Kick {
             for (i, p) in field.pulses.iter().enumerate().filter(|(_, p)| p.peak_intensity_wcm2 > 0.0) {
-                events.push(Event::Kick { t_ps: p.kick_time_ps(), strength: p.kick_strength(da), pulse: i });
+                events.extend(super::pulse_kicks(p, i, da, self.settings.kick_nodes));
             }
         } else {
             for iv in field.active_intervals() {
@@ -546,7 +546,7 @@ impl super::Solver {
     /// Symmetric tops in static, terahertz (and laser) fields: one block per (K, M) holding every J, run
     /// through the polar schedule of linear molecules. `self` is the figure-axis view of the top (α∥ and
     /// α⊥ along and across the figure axis, the dipole along it).
-    pub(super) fn run_polar_top(&self, solver: &TopSolver, field: &FieldModel, times: &[f64]) -> Result<RunResult> {
+    pub(super) fn run_polar_top(&self, solver: &TopSolver, field: &FieldModel, times: &[f64], wanted: [bool; super::POLAR_OBSERVABLES]) -> Result<RunResult> {
         let top = &solver.top;
         if top.kind() == crate::molecule::top::TopKind::Asymmetric {
             return Err(Error::input(
@@ -580,7 +580,7 @@ impl super::Solver {
                 let mut j_max = (j_thermal + extra as i64).min(MAX_TOP_BASIS_J);
                 loop {
                     let ops = symmetric_top_polar_ops(top, &frame, *k, *m, j_max, *w);
-                    if let Some(out) = self.try_polar_block(&ops, levels, field, &items, times, t_first)? {
+                    if let Some(out) = self.try_polar_block(&ops, levels, field, &items, times, t_first, wanted)? {
                         return Ok(out);
                     }
                     if j_max >= MAX_TOP_BASIS_J {
@@ -592,7 +592,8 @@ impl super::Solver {
                 }
             })
             .collect::<Result<Vec<_>>>()?;
-        let ([fig2, abs_align, cos, cos3], permanent, reports) = super::sum_polar(outcomes, times.len());
+        let (values, permanent, reports) = super::sum_polar(outcomes, times.len());
+        let [fig2, abs_align, cos, cos3] = super::polar_series(values, wanted);
         // Fixed-K states have ⟨Φ_Zx²⟩ = ⟨Φ_Zy²⟩ = (1 − ⟨cos²θ⟩)/2 (sin²θ cos2χ changes K by 2).
         let across: Vec<f64> = fig2.iter().map(|c| 0.5 * (1.0 - c)).collect();
         let fig = frame.axes[0].index();
