@@ -1,10 +1,12 @@
 //! Performance figures (run with `cargo bench`). Prints medians from one run; machines are noisy,
 //! so compare ratios, not absolute numbers.
 //!
-//! Job 1 (linear solver): the thermal alignment trace that ../shared/bench/peer_linear_scipy.py
-//! computes (N2-like constants, 300 K, one 50 fs Gaussian pulse at 5e13 W/cm², trace 0.2–12 ps every
-//! 20 fs, both ⟨cos²θ⟩ and ⟨cos²θ_2D⟩). With KICKTRAIN_BENCH_PEER=1 the scipy script is run too
-//! (needs python3 with numpy and scipy) and the speed ratio is printed.
+//! Job 1 (linear solver): the thermal alignment trace of the reference case n2like_300k_2d of
+//! tools/reference/rotor_reference.py (N2-like constants, 300 K, one 50 fs Gaussian pulse at 5e13 W/cm²,
+//! trace 0.2–11.98 ps every 20 fs, both ⟨cos²θ⟩ and ⟨cos²θ_2D⟩), compared with the stored
+//! tests/data/reference_n2like_300k_2d.csv. With KICKTRAIN_BENCH_PEER=1 our plain numpy/scipy version of
+//! the same trace, tools/reference/peer_timing.py (one solve_ivp per initial state, one process), is run
+//! too (needs python3 with numpy and scipy) and the speed ratio is printed.
 //!
 //! KICKTRAIN_BENCH_JOBS picks jobs by number, e.g. `KICKTRAIN_BENCH_JOBS=2 cargo bench` for the
 //! designer's kick-model throughput alone. Job 6 times whole designs with the default search: the
@@ -22,7 +24,7 @@ fn median(mut v: Vec<f64>) -> f64 {
 }
 
 fn peer_job() {
-    let mol = Molecule::linear("N2 (peer constants)", 1.98958, 5.76e-6, 1.93, 1.0, [2.0, 1.0]);
+    let mol = Molecule::linear("N2-like (reference constants)", 1.98958, 5.76e-6, 1.93, 1.0, [2.0, 1.0]);
     let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 5e13)], static_field: None, ..Default::default() };
     let times: Vec<f64> = (0..590).map(|i| 0.2 + i as f64 * 0.02).collect();
     let mut runs = vec![];
@@ -37,24 +39,28 @@ fn peer_job() {
     }
     let (r, states) = last.unwrap();
     let ms = median(runs) * 1e3;
-    // Agreement with the stored scipy trace (tests/data/peer_scipy_n2_300k.csv).
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/peer_scipy_n2_300k.csv")).unwrap();
+    // Agreement with the stored reference trace (tools/reference/rotor_reference.py n2like_300k_2d).
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/data/reference_n2like_300k_2d.csv")).unwrap();
     let mut worst: f64 = 0.0;
-    for (i, line) in text.lines().skip(1).enumerate() {
+    for (i, line) in text.lines().filter(|l| !l.starts_with('#')).skip(1).enumerate() {
         let v: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
         worst = worst.max((v[1] - r.trace.cos2[i]).abs()).max((v[2] - r.trace.cos2_2d[i]).abs());
     }
     println!("linear solver, N2 300 K, 50 fs at 5e13 W/cm², 590 samples ({states} initial states)");
-    println!("  kicktrain median of 21 runs: {ms:.1} ms; max |difference| from the scipy trace: {worst:.1e}");
+    println!("  kicktrain median of 21 runs: {ms:.1} ms; max |difference| from the reference trace: {worst:.1e}");
     if std::env::var("KICKTRAIN_BENCH_PEER").is_ok() {
-        let script = concat!(env!("CARGO_MANIFEST_DIR"), "/../shared/bench/peer_linear_scipy.py");
+        // The script checks its own trace against the stored reference (exit status 1 above 1e-5).
+        let script = concat!(env!("CARGO_MANIFEST_DIR"), "/tools/reference/peer_timing.py");
         let t0 = Instant::now();
         let ok = std::process::Command::new("python3").arg(script).output().map(|o| o.status.success()).unwrap_or(false);
         let peer = t0.elapsed().as_secs_f64();
         if ok {
-            println!("  scipy peer on this machine: {peer:.2} s; ratio peer / kicktrain = {:.0}×", peer * 1e3 / ms);
+            println!(
+                "  our numpy/scipy reference (tools/reference/peer_timing.py, whole process) on this machine: {peer:.2} s; ratio reference / kicktrain = {:.0}×",
+                peer * 1e3 / ms
+            );
         } else {
-            println!("  scipy peer could not run (python3 -m pip install numpy scipy)");
+            println!("  tools/reference/peer_timing.py could not run or disagreed (needs python3 with numpy and scipy)");
         }
     }
 }

@@ -267,7 +267,7 @@ fn robust_design_scores_the_mean_under_errors_as_the_tolerance_analysis_does() {
 fn batched_kick_scores_equal_one_by_one_scores() {
     // The designer scores swarms as batches (all trains of a block side by side). Each batched score
     // must equal the score of the same train run alone through the general solver, which the physics
-    // tests check against closed forms and the scipy peer. Covered: peak, minimum and mean goals,
+    // tests check against closed forms and our numpy/scipy reference scripts. Covered: peak, minimum and mean goals,
     // ⟨cos²θ⟩ and ⟨cos²θ_2D⟩, a focal average, trains with empty pulses, and trains strong enough that
     // the batch's first basis estimate is too small (they are re-run in a larger basis).
     let cases = [

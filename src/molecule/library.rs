@@ -105,11 +105,11 @@ static LIBRARY: &[LibraryEntry] = &[
         d_cm: s(5.76e-6, "from memory: De of 14N2 X state (Huber & Herzberg 1979); D0 differs by < 1 %"),
         alpha_parallel_a3: s(
             2.2070,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.7403 Å³ (CRC Handbook 100th ed., Polarizabilities of atoms and molecules, as tabulated on launchloop.com/Polarizability) and Δα = 0.70 Å³ (Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334, 632.8 nm); the older α∥ = 2.38 / α⊥ = 1.45 (Hirschfelder, Curtiss & Bird 1954) give Δα = 0.93",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.7403 Å³ (CRC Handbook 100th ed., Polarizabilities of atoms and molecules,, read from a secondary copy of the table) and Δα = 0.70 Å³ (Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334, 632.8 nm); the older α∥ = 2.38 / α⊥ = 1.45 (Hirschfelder, Curtiss & Bird 1954) give Δα = 0.93",
         ),
         alpha_perpendicular_a3: s(
             1.5070,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 1.7403 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα = 0.70 Å³ (Bridge & Buckingham 1966)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 1.7403 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα = 0.70 Å³ (Bridge & Buckingham 1966)",
         ),
         spin_weights: [2.0, 1.0],
         spin_weights_source: "14N nuclei (I = 1, bosons), X ¹Σg⁺: even J (ortho) weight (I+1)(2I+1) = 6, odd J (para) weight I(2I+1) = 3, i.e. 2 : 1 (textbook spin statistics)",
@@ -132,11 +132,11 @@ static LIBRARY: &[LibraryEntry] = &[
         ),
         alpha_parallel_a3: s(
             2.3022,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.5689 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 1.10 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.5689 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα ≈ 1.10 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
         ),
         alpha_perpendicular_a3: s(
             1.2022,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 1.5689 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 1.10 Å³ (believed: Bridge & Buckingham 1966)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 1.5689 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα ≈ 1.10 Å³ (believed: Bridge & Buckingham 1966)",
         ),
         spin_weights: [0.0, 1.0],
         spin_weights_source: "16O nuclei (I = 0, bosons) with a ³Σg⁻ electronic state: only odd N levels exist, so [even, odd] = [0, 1] (Herzberg; missing even-N lines of 16O2)",
@@ -156,11 +156,11 @@ static LIBRARY: &[LibraryEntry] = &[
         d_cm: s(6.1215e-6, "from memory: De of 12C16O X state (Huber & Herzberg 1979)"),
         alpha_parallel_a3: s(
             2.3033,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.95 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 0.53 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 1.95 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα ≈ 0.53 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
         ),
         alpha_perpendicular_a3: s(
             1.7733,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 1.95 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 0.53 Å³ (believed: Bridge & Buckingham 1966)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 1.95 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα ≈ 0.53 Å³ (believed: Bridge & Buckingham 1966)",
         ),
         spin_weights: [1.0, 1.0],
         spin_weights_source: "heteronuclear diatomic: no exchange symmetry between the nuclei, all J equally weighted",
@@ -211,11 +211,11 @@ static LIBRARY: &[LibraryEntry] = &[
         d_cm: s(1.7615e-7, "D0 = 5.2808 kHz of 14N14N16O (NIST Triatomic Spectral Database, Lovas 1978, N2O table), converted to cm⁻¹"),
         alpha_parallel_a3: s(
             4.8967,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 3.03 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 2.8 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ + 2Δα/3 with ᾱ = 3.03 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα ≈ 2.8 Å³ (believed: Bridge & Buckingham 1966, Proc. R. Soc. A 295, 334)",
         ),
         alpha_perpendicular_a3: s(
             2.0967,
-            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 3.03 Å³ (CRC Handbook 100th ed., via launchloop.com/Polarizability) and Δα ≈ 2.8 Å³ (believed: Bridge & Buckingham 1966)",
+            "from memory: (Δα recalled, ᾱ retrieved) ᾱ − Δα/3 with ᾱ = 3.03 Å³ (CRC Handbook 100th ed., read from a secondary copy of the table) and Δα ≈ 2.8 Å³ (believed: Bridge & Buckingham 1966)",
         ),
         spin_weights: [1.0, 1.0],
         spin_weights_source: "asymmetric linear molecule (N–N–O, no centre of symmetry): no nuclear exchange symmetry, all J equally weighted",

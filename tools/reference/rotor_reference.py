@@ -1,8 +1,8 @@
 #!/usr/bin/env python3
 """
 Independent numerical reference traces for laser alignment of thermal ensembles
-of rigid rotors with zero nuclear-spin weights (linear rotors, a prolate
-symmetric top and an asymmetric top).
+of rigid rotors with nuclear-spin weights, some of them zero (linear rotors, a
+prolate symmetric top and an asymmetric top).
 
 Usage
     python3 tools/reference/rotor_reference.py            # every case
@@ -18,7 +18,12 @@ What is computed
     (lab Z) and the molecular axis (linear rotors; column cos2), or of each body
     axis a, b, c (tops; columns cos2_a, cos2_b, cos2_c), for a thermal ensemble
     kicked by one Gaussian pulse, sampled from `start` to `stop` inclusive every
-    `step` (ps), including times inside the pulse.
+    `step` (ps), including times inside the pulse. Linear cases may add the
+    detector-plane alignment (column cos2_2d, case n2like_300k_2d):
+    cos^2(theta_2D) = cos^2 theta / (cos^2 theta + sin^2 theta sin^2 phi), the
+    squared cosine of the angle between Z and the projection of the molecular
+    axis on the plane YZ that contains the polarization (a detector viewing
+    along X).
 
 Physics (SI constants, CODATA exact values of h, c, k_B)
     Linear rotor: E(J) = hc[B J(J+1) - D J^2 (J+1)^2].
@@ -41,6 +46,31 @@ Basis and matrix elements (all by quadrature, no closed forms used)
     matrix elements by Gauss-Legendre quadrature in cos(theta) (exact for these
     polynomial integrands); checked against the closed form that follows from
     the Clebsch-Gordan series of Y_2^0 Y_J^M (common practice).
+    cos^2(theta_2D) (linear): not a polynomial, and it depends on phi, so it
+    couples M to M +- 2, +- 4, ...; a state of one M block has a single M,
+    so only the elements diagonal in M enter, <psi|O|psi> =
+    sum c_J^* c_J' <J M|O|J' M>. These are computed by a two-dimensional
+    quadrature of conj(Y_J^M) Y_J'^M O over cos(theta) and phi: Gauss-Legendre
+    in cos(theta) separately on [-1, 0] and [0, 1] (the phi average has a
+    kink at cos(theta) = 0; on each half the integrand is a polynomial times a
+    smooth function), at least J cap + 8 nodes each; in phi composite
+    Gauss-Legendre panels graded geometrically towards phi = 0 and pi, where
+    the integrand is a peak of width about |cos(theta)| (a uniform rule would
+    need far more than 1/|cos(theta)| nodes at the nodes near the equator).
+    The sum over phi at each theta node uses Y_J^M(theta, phi) =
+    Y_J^M(theta, 0) exp(i M phi) with Y_J^M(theta, 0) real; for the elements
+    diagonal in M the phase convention of Y_J^M cancels. Checks (asserted to
+    1e-11, written to the CSV): the phi integral against the closed form
+    (1/2pi) int O dphi = |cos theta| (standard integral, used only as a
+    check); the graded rule against a 65536-node uniform rule where that one
+    converges; the factorized sum against the plain 2D sum with Y evaluated at
+    every node (M, M' = -3..3, J <= 5; elements with odd M' - M vanish); the
+    isotropic average sum_M <J M|O|J M> / (2J + 1) = 1/2 for J <= 40 (exact:
+    the mean of cos^2 of a uniformly distributed angle in a plane) and the
+    J = 0 value 1/2; the matrices for M = 0, 1, 7, 30 up to J = 100 unchanged
+    with 20 more cos(theta) nodes, 24 nodes per phi panel or grading to 1e-4.
+    cos^2(theta_2D) is unchanged by a rotation by pi about X
+    ((theta, phi) -> (pi - theta, -phi)), so the M -> -M multiplicity holds.
     Tops: Wigner small-d matrices d^J(beta) = exp(-i beta J_y) built from the
     angular-momentum matrix J_y (eigendecomposition with the exact eigenvalues
     m), checked against scipy.linalg.expm and against the Jacobi-polynomial
@@ -101,8 +131,15 @@ Convergence checks (numbers written to each CSV and printed)
       FWHM; asserted < 1e-8);
     * thermal truncation: discarded population < 1e-12 (bounds its effect);
     * quadrature: matrix elements against closed forms / more nodes;
-    * isotropy: the initial ensemble gives 1/3 for every axis (asserted);
-      tops: cos2_a + cos2_b + cos2_c = 1 at every time (asserted).
+    * isotropy: the initial ensemble gives 1/3 for every axis and 1/2 for
+      cos2_2d (asserted); tops: cos2_a + cos2_b + cos2_c = 1 at every time
+      (asserted).
+
+The case n2like_300k_2d (N2-like constants, even:odd J = 2:1, 300 K, 50 fs at
+5e13 W/cm^2, t = 0.2 + 0.02 i ps for i = 0..589) is also what benches/solver.rs
+times; tools/reference/peer_timing.py computes the same trace with a plain
+per-state solve_ivp loop in one process and prints its wall time for the
+benchmark's speed ratio (and checks itself against the stored CSV).
 
 Runtime (2 worker processes on a 2-core AMD EPYC machine that was shared with
 other jobs, load average 7-8, so wall times are about twice the CPU times):
@@ -112,6 +149,8 @@ other jobs, load average 7-8, so wall times are about twice the CPU times):
     o2like_30k           8.0     3.8      so2like_1k          36.0    17.8
     o2like_300k         31.5    15.3      so2like_4k         206.3   102.2
     all eight cases with the common checks: 445 s wall (7.5 min), about 220 s CPU.
+    n2like_300k_2d (run later, alone, load average about 2): 17.4 s wall,
+    17.2 s CPU, including about 5 s for the cos^2(theta_2D) checks.
 The figures of the last run are also written in each CSV ('runtime_s').
 """
 
@@ -171,6 +210,8 @@ CO2 = dict(kind="linear", b_cm=0.39021, d_cm=1.333e-7, alpha_par=4.038, alpha_pe
            spin_weights=[1, 0])
 O2 = dict(kind="linear", b_cm=1.437677, d_cm=4.839e-6, alpha_par=2.302, alpha_perp=1.202,
           spin_weights=[0, 1])
+N2 = dict(kind="linear", b_cm=1.98958, d_cm=5.76e-6, alpha_par=1.93, alpha_perp=1.0,
+          spin_weights=[2, 1])
 PROLATE = dict(kind="symmetric", a_cm=5.182, b_cm=0.85179, c_cm=0.85179,
                alpha=(3.24, 2.84, 2.84), spin_weights_by_k=[0, 1, 1])
 SO2 = dict(kind="asymmetric", a_cm=2.02736, b_cm=0.34417, c_cm=0.29354,
@@ -189,6 +230,12 @@ CASES = {
     "o2like_300k": dict(molecule=O2, temperature_k=300.0,
                         pulse=dict(center_ps=0.0, fwhm_fs=60.0, peak_intensity_wcm2=5e13),
                         window=dict(start_ps=-0.1, stop_ps=12.0, step_ps=0.05)),
+    # times 0.2 + 0.02 i ps, i = 0..589 (0.2 ps is the end of the integrated pulse
+    # window t0 +- 4 FWHM); also the detector-plane observable cos^2(theta_2D)
+    "n2like_300k_2d": dict(molecule=N2, temperature_k=300.0,
+                           pulse=dict(center_ps=0.0, fwhm_fs=50.0, peak_intensity_wcm2=5e13),
+                           window=dict(start_ps=0.2, stop_ps=11.98, step_ps=0.02),
+                           observables=["cos2", "cos2_2d"]),
     "prolate_k3_5k": dict(molecule=PROLATE, temperature_k=5.0,
                           pulse=dict(center_ps=0.0, fwhm_fs=200.0, peak_intensity_wcm2=3e13),
                           window=dict(start_ps=-0.4, stop_ps=20.0, step_ps=0.1)),
@@ -253,6 +300,103 @@ def cos2_closed_form_linear(j1, j2, m):
         return math.sqrt(((j + 1) ** 2 - m * m) * ((j + 2) ** 2 - m * m)
                          / ((2 * j + 1) * (2 * j + 3) ** 2 * (2 * j + 5)))
     return 0.0
+
+
+# ----------------------------------------------------------------------------
+# Detector-plane alignment cos^2(theta_2D) of a linear rotor
+# ----------------------------------------------------------------------------
+PHI_PANEL_NODES = 16   # Gauss-Legendre nodes per azimuthal panel
+PHI_GRADING = 1e-2     # the panel at phi = 0 ends below this fraction of |cos theta|
+
+
+def cos2_2d_function(x, phi):
+    """cos^2(theta_2D) at cos(theta) = x and azimuth phi: the squared cosine of the
+    angle between Z and the projection of the molecular axis
+    n = (sin th cos ph, sin th sin ph, cos th) on the detector plane YZ (viewed
+    along X), n_Z^2 / (n_Z^2 + n_Y^2) = cos^2 th / (cos^2 th + sin^2 th sin^2 ph)."""
+    return x * x / (x * x + (1.0 - x * x) * np.sin(phi) ** 2)
+
+
+def phi_rule(x, npanel=PHI_PANEL_NODES, grading=PHI_GRADING):
+    """Quadrature nodes and weights on [0, 2 pi) for the azimuthal integral of
+    cos^2(theta_2D) at cos(theta) = x (times exp(i k phi)). For small |x| the
+    integrand is a narrow peak of width about |x| at phi = 0 and pi (its poles lie
+    at phi = k pi +- i asinh(|x| / sin theta)), which a uniform rule would need
+    far more than 1/|x| nodes to resolve. Composite Gauss-Legendre instead, graded
+    geometrically towards the peaks: on [0, pi/2] the panels [b/2, b] for
+    b = pi/2, pi/4, ... and a last panel [0, b] once b < grading |x|; every panel
+    is at least its own length away from the poles, so npanel nodes per panel give
+    close to machine precision. The other quadrants use the mirrored nodes
+    pi - phi, pi + phi, 2 pi - phi (valid rules there for any integrand)."""
+    xg, wg = gauss_legendre(npanel)
+    edges = [0.5 * math.pi]
+    while edges[-1] >= grading * abs(x):
+        edges.append(0.5 * edges[-1])
+    edges.append(0.0)
+    nodes, weights = [], []
+    for b, a in zip(edges[:-1], edges[1:]):
+        nodes.append(0.5 * (b - a) * xg + 0.5 * (a + b))
+        weights.append(0.5 * (b - a) * wg)
+    p = np.concatenate(nodes)
+    w = np.concatenate(weights)
+    return (np.concatenate([p, math.pi - p, math.pi + p, 2.0 * math.pi - p]),
+            np.concatenate([w, w, w, w]))
+
+
+def half_gauss_legendre(n):
+    """Gauss-Legendre with n nodes on each of [-1, 0] and [0, 1]: cos^2(theta_2D)
+    averaged over phi has a kink at cos(theta) = 0 (the function itself is
+    discontinuous at theta = pi/2, phi = 0), so the cos(theta) rule is split there;
+    on each half the integrands are then smooth."""
+    x, w = gauss_legendre(n)
+    return np.concatenate([0.5 * x - 0.5, 0.5 * x + 0.5]), np.concatenate([0.5 * w, 0.5 * w])
+
+
+_G2D_CACHE = {}
+
+
+def cos2_2d_azimuthal(nh, dm, npanel=PHI_PANEL_NODES, grading=PHI_GRADING):
+    """G_dm(x_q) = int_0^{2 pi} exp(i dm phi) cos^2(theta_2D)(x_q, phi) dphi at the
+    nodes x_q of half_gauss_legendre(nh), by phi_rule."""
+    key = (nh, dm, npanel, grading)
+    if key not in _G2D_CACHE:
+        x, _ = half_gauss_legendre(nh)
+        g = np.empty(len(x), dtype=complex)
+        for q, xq in enumerate(x):
+            p, w = phi_rule(xq, npanel, grading)
+            g[q] = np.sum(w * np.exp(1j * dm * p) * cos2_2d_function(xq, p))
+        _G2D_CACHE[key] = g
+    return _G2D_CACHE[key]
+
+
+def cos2_2d_matrix(js, m, js2, m2, nh, npanel=PHI_PANEL_NODES, grading=PHI_GRADING):
+    """<J m|cos^2(theta_2D)|J' m2> (J in js, J' in js2) between the spherical
+    harmonics Y_J^m of scipy.special.sph_harm_y, by two-dimensional quadrature:
+    half_gauss_legendre(nh) in cos(theta) times phi_rule in phi. Uses the form
+    Y_J^m(theta, phi) = Y_J^m(theta, 0) exp(i m phi) with Y_J^m(theta, 0) real
+    (asserted here, and compared with evaluating Y at every node of the 2D grid in
+    check_cos2_2d), so that the phi sum at each theta node is done once:
+    sum_p w_p conj(Y_J^m) Y_J'^m2 O = Y_J^m(theta, 0) Y_J'^m2(theta, 0) G_{m2-m}.
+    For m2 = m any phase convention of Y_J^m cancels."""
+    x, w = half_gauss_legendre(nh)
+    theta = np.arccos(x)
+    ya = np.array([sph_harm_y(j, m, theta, 0.0) for j in js])
+    yb = np.array([sph_harm_y(j, m2, theta, 0.0) for j in js2])
+    assert np.max(np.abs(ya.imag), initial=0.0) < 1e-13 and np.max(np.abs(yb.imag), initial=0.0) < 1e-13
+    g = cos2_2d_azimuthal(nh, m2 - m, npanel, grading)
+    return (ya.real * (w * g)) @ yb.real.T
+
+
+def cos2_2d_block_matrix(js, m, nh):
+    """The observable within one M block (real symmetric; imaginary part asserted
+    to vanish): a state of the block has the single azimuthal number m, so
+    <psi|cos^2(theta_2D)|psi> = sum c_J^* c_J' <J m|cos^2(theta_2D)|J' m>; the
+    elements with m2 = m +- 2, +- 4, ... (the operator has them) never enter."""
+    mat = cos2_2d_matrix(js, m, js, m, nh)
+    assert np.max(np.abs(mat.imag)) < 1e-13
+    mat = mat.real
+    assert np.max(np.abs(mat - mat.T)) < 1e-13
+    return mat
 
 
 def jy_matrix(j):
@@ -737,7 +881,10 @@ def build_linear_block(spec, jcap):
     index = {j: i for i, j in enumerate(js)}
     init_idx = [index[j] for j in spec["init_js"]]
     edge_idx = [index[j] for j in js[-2:]]
-    return e, w, [cos2], init_idx, edge_idx, len(js)
+    obs = [cos2]
+    if "cos2_2d" in spec["observables"]:
+        obs.append(cos2_2d_block_matrix(js, m, nq))
+    return e, w, obs, init_idx, edge_idx, len(js)
 
 
 def top_block_basis(m, kset_fn, jcap):
@@ -841,6 +988,16 @@ def block_worker(spec):
 # ----------------------------------------------------------------------------
 # Case drivers
 # ----------------------------------------------------------------------------
+def observable_names(case):
+    if case["molecule"]["kind"] == "linear":
+        return case.get("observables", ["cos2"])
+    return ["cos2_a", "cos2_b", "cos2_c"]
+
+
+# value of each observable for an isotropic ensemble (integrals over the sphere)
+ISOTROPIC_VALUE = dict(cos2=1.0 / 3.0, cos2_2d=0.5, cos2_a=1.0 / 3.0, cos2_b=1.0 / 3.0, cos2_c=1.0 / 3.0)
+
+
 def make_specs(case):
     mol = case["molecule"]
     times = sample_times(case["window"])
@@ -861,6 +1018,7 @@ def make_specs(case):
                 if not js:
                     continue
                 specs.append(dict(kind="linear", mol=mol, m=m, par=par, init_js=js,
+                                  observables=observable_names(case),
                                   pops=[per_state[j] for j in js], mult=2 if m > 0 else 1,
                                   jinit_max=max(js), margin0=margin0, margin_step=8, extend=8,
                                   pulse=pulse, times=times, label=f"M={m} parity={par}",
@@ -919,6 +1077,74 @@ def check_linear_matrix_elements():
                     worst = max(worst, abs(c[a, b] - cos2_closed_form_linear(ja, jb, m)))
     assert worst < 1e-12, worst
     return worst
+
+
+def check_cos2_2d():
+    """Checks of the cos^2(theta_2D) matrix elements; returns a dict of the worst
+    deviations (all asserted)."""
+    out = {}
+    nh = 120
+    x, _ = half_gauss_legendre(nh)
+    g0 = cos2_2d_azimuthal(nh, 0)
+    # phi integral against the closed form int_0^{2pi} dphi / (a + b sin^2 phi)
+    # = 2 pi / sqrt(a (a + b)), i.e. (1/2pi) int cos^2(theta_2D) dphi = |cos theta|
+    # (standard integral, from memory; used only here)
+    out["phi_integral_vs_closed_form_abs_cos"] = float(np.max(np.abs(g0 / (2 * math.pi) - np.abs(x))))
+    # the graded rule against a plain uniform (trapezoid) rule of 65536 nodes where
+    # that one is converged (|cos theta| >= 0.02: error about exp(-65536 * 0.02))
+    phi_u = 2 * math.pi * np.arange(65536) / 65536
+    worst = 0.0
+    for q in np.nonzero(np.abs(x) >= 0.02)[0]:
+        for dm in (0, 2):
+            gu = np.sum(np.exp(1j * dm * phi_u) * cos2_2d_function(x[q], phi_u)) * 2 * math.pi / 65536
+            worst = max(worst, abs(gu - cos2_2d_azimuthal(nh, dm)[q]))
+    out["graded_vs_uniform_phi_rule"] = float(worst)
+    # the factorized sums against the plain 2D sum with Y evaluated at every node
+    # (complex, any m and m2: checks the phase structure of Y_J^m as used)
+    xs, ws = half_gauss_legendre(24)
+    worst = 0.0
+    odd = 0.0
+    for m in range(-3, 4):
+        for m2 in range(-3, 4):
+            js = list(range(abs(m), 6))
+            js2 = list(range(abs(m2), 6))
+            fact = cos2_2d_matrix(js, m, js2, m2, 24)
+            direct = np.zeros((len(js), len(js2)), dtype=complex)
+            for q, xq in enumerate(xs):
+                p, wp = phi_rule(xq)
+                th = np.full_like(p, math.acos(xq))
+                ya = np.array([sph_harm_y(j, m, th, p) for j in js])
+                yb = np.array([sph_harm_y(j, m2, th, p) for j in js2])
+                direct += ws[q] * (ya.conj() * (wp * cos2_2d_function(xq, p))) @ yb.T
+            worst = max(worst, float(np.max(np.abs(fact - direct))))
+            if (m2 - m) % 2:
+                odd = max(odd, float(np.max(np.abs(fact))))
+    out["factorized_vs_direct_2d_sum"] = worst
+    out["odd_delta_m_elements"] = odd   # zero: O is unchanged by phi -> phi + pi
+    # isotropic limits: (1/4pi) int cos^2(theta_2D) dOmega = 1/2 exactly (the mean of
+    # cos^2 of a uniformly distributed angle in the plane), so sum_M <J M|O|J M> =
+    # (2J + 1)/2 for every J; J = 0 alone gives 1/2
+    worst = 0.0
+    for j in range(0, 41):
+        tr = sum(cos2_2d_block_matrix([j], m, nh)[0, 0] for m in range(-j, j + 1))
+        worst = max(worst, abs(tr / (2 * j + 1) - 0.5))
+    out["isotropic_level_average_minus_half"] = float(worst)
+    out["j0_value_minus_half"] = float(abs(cos2_2d_block_matrix([0], 0, nh)[0, 0] - 0.5))
+    # more nodes in cos(theta) and phi, finer grading
+    worst = 0.0
+    for m in (0, 1, 7, 30):
+        for par in (0, 1):
+            js = [j for j in range(m, 101) if j % 2 == par]
+            nq = n_nodes_for(max(js))
+            base = cos2_2d_matrix(js, m, js, m, nq).real
+            for alt in (cos2_2d_matrix(js, m, js, m, nq + 20).real,
+                        cos2_2d_matrix(js, m, js, m, nq, npanel=24).real,
+                        cos2_2d_matrix(js, m, js, m, nq, grading=1e-4).real):
+                worst = max(worst, float(np.max(np.abs(alt - base))))
+    out["matrix_change_with_more_nodes"] = worst
+    for key, val in out.items():
+        assert val < 1e-11, f"cos^2(theta_2D) check {key} failed ({val})"
+    return out
 
 
 def check_wigner_d():
@@ -1027,6 +1253,12 @@ def run_case(name, workers):
     print(f"   Q = {info['Q']:.12g}, kept levels {info['n_levels']}, states {info['n_states']}, "
           f"J_keep_max {info['J_keep_max']}, discarded {info['discarded']:.3e}, blocks {len(specs)}",
           flush=True)
+    names = observable_names(case)
+    if "cos2_2d" in names:
+        for key, val in check_cos2_2d().items():
+            checks["cos2_2d_" + key] = val
+        print("   cos^2(theta_2D) checks: " + ", ".join(f"{k[8:]} {v:.1e}" for k, v in checks.items()
+                                                     if k.startswith("cos2_2d_")), flush=True)
     if mol["kind"] != "linear":
         w, nchk = check_mirror_blocks(case, specs)
         checks["mirror_block_max_difference"] = w
@@ -1056,7 +1288,7 @@ def run_case(name, workers):
         print(f"   Magnus-4 check, block {m['label']} ({m['basis']} states): max |difference| "
               f"{m['diffs'][0]:.2e} (50 steps/FWHM), {m['diffs'][1]:.2e} (100 steps/FWHM)", flush=True)
     assert magnus_diff < CONVERGENCE_LIMIT, f"Magnus cross-check differs ({magnus_diff})"
-    nobs = 1 if mol["kind"] == "linear" else 3
+    nobs = len(names)
     tr = {v: np.zeros((nobs, len(times))) for v in ("base", "ext", "tight")}
     initial = np.zeros(nobs)
     edge = 0.0
@@ -1077,9 +1309,9 @@ def run_case(name, workers):
         attempts = max(attempts, r["attempts"])
     d_basis = float(np.max(np.abs(tr["ext"] - tr["base"])))
     d_tol = float(np.max(np.abs(tr["tight"] - tr["base"])))
-    iso_err = float(np.max(np.abs(initial - 1.0 / 3.0)))
+    iso_err = float(np.max(np.abs(initial - np.array([ISOTROPIC_VALUE[n] for n in names]))))
     assert iso_err < 1e-12, f"initial ensemble not isotropic ({iso_err})"
-    if nobs == 3:
+    if mol["kind"] != "linear":
         sum_err = float(np.max(np.abs(tr["base"].sum(axis=0) - 1.0)))
         assert sum_err < 1e-9, f"cos2_a + cos2_b + cos2_c != 1 ({sum_err})"
         checks["max_abs_sum_of_axes_minus_1"] = sum_err
@@ -1107,6 +1339,12 @@ def run_case(name, workers):
           f"spin_weights [even_J, odd_J] = {mol['spin_weights']}")
         c("energy: E(J) = hc[B J(J+1) - D J^2(J+1)^2]; coupling -u(t) cos^2(theta), "
           "u = 2 pi (alpha_par - alpha_perp) I(t) / (c hbar)")
+        if "cos2_2d" in names:
+            c("observables: cos2 = <cos^2 theta> (theta from Z); cos2_2d = <cos^2 theta_2D>, projection of the axis on")
+            c("  the detector plane YZ (viewed along X): cos^2 theta / (cos^2 theta + sin^2 theta sin^2 phi)")
+            c("  cos2_2d matrix elements by 2D quadrature: Gauss-Legendre in cos(theta) on [-1, 0] and [0, 1] "
+              f"(>= J cap + 8 nodes each), composite Gauss-Legendre in phi ({PHI_PANEL_NODES} nodes per panel, panels "
+              f"graded geometrically towards phi = 0, pi down to {PHI_GRADING:g} |cos theta|); M blocks use the M -> M part")
     else:
         c(f"molecule: {'prolate symmetric top (figure axis a)' if mol['kind'] == 'symmetric' else 'asymmetric top'}, "
           f"A = {mol['a_cm']} cm^-1, B = {mol['b_cm']} cm^-1, C = {mol['c_cm']} cm^-1 (rigid), "
@@ -1155,21 +1393,19 @@ def run_case(name, workers):
         c(f"cross-check: block {mg['label']} ({mg['basis']} states, populations normalized to 1) with an "
           f"unrelated propagator (4th-order Magnus, Schroedinger picture): max |difference| "
           f"{mg['diffs'][0]:.2e} at 50 steps/FWHM, {mg['diffs'][1]:.2e} at 100 steps/FWHM")
-    c(f"check: initial ensemble isotropic, max |<cos^2> - 1/3| = {iso_err:.2e}")
+    if "cos2_2d" in names:
+        c(f"check: initial ensemble isotropic, max |<cos^2> - 1/3|, |<cos^2_2D> - 1/2| = {iso_err:.2e}")
+    else:
+        c(f"check: initial ensemble isotropic, max |<cos^2> - 1/3| = {iso_err:.2e}")
     for key, val in checks.items():
         c(f"check: {key} = {val:.3g}" if isinstance(val, float) else f"check: {key} = {val}")
     for key, val in GLOBAL_CHECKS.items():
         c(f"check: {key} = {val:.3g}")
     c(f"runtime_s = {runtime:.1f} wall, {cpu:.1f} CPU (workers = {workers}; "
       f"1-min load average at the end {load:.1f})")
-    if nobs == 1:
-        lines.append("t_ps,cos2")
-        for it, t in enumerate(times):
-            lines.append(f"{fmt(t)},{fmt(tr['base'][0, it])}")
-    else:
-        lines.append("t_ps,cos2_a,cos2_b,cos2_c")
-        for it, t in enumerate(times):
-            lines.append(f"{fmt(t)},{fmt(tr['base'][0, it])},{fmt(tr['base'][1, it])},{fmt(tr['base'][2, it])}")
+    lines.append(",".join(["t_ps"] + names))
+    for it, t in enumerate(times):
+        lines.append(",".join([fmt(t)] + [fmt(tr["base"][io, it]) for io in range(nobs)]))
     os.makedirs(DATA_DIR, exist_ok=True)
     with open(path, "w") as fh:
         fh.write("\n".join(lines) + "\n")
