@@ -28,8 +28,9 @@ fn a_uniform_pump_leaves_the_trace_unchanged() {
 
 #[test]
 fn a_gaussian_pump_never_raises_the_peak_alignment() {
-    // Molecules off axis see less intensity; for pulses below saturation of the alignment the average
-    // cannot exceed the on-axis peak (common practice; checked for several probe sizes and orders).
+    // Molecules off axis see less intensity; for pulses below saturation of the alignment (peak ⟨cos²θ⟩
+    // growing with intensity) the average, a weighted mean of traces each below its own peak, cannot exceed
+    // the on-axis peak (common practice; checked for several probe sizes and orders).
     let mol = Molecule::from_library("CO2", "m").unwrap();
     let times = grid(0.05, 45.0, 0.05);
     let field = FieldModel::pulses(vec![Pulse::gaussian(0.0, 100.0, 1e13)]);
@@ -52,8 +53,9 @@ fn scenario_with_energy_and_focal_average_reports_both() {
         "focal_average": {"pump_waist_um": 31.8, "probe_waist_um": 20, "probe_order": 2},
         "window": {"start_ps": 0, "stop_ps": 10, "step_fs": 50}}"#;
     let s = Scenario::from_json_str(text, "x").unwrap();
-    // w0 = λf/(π w_in) = 31.83 µm; P = 0.9394 × 0.2 mJ / 60 fs = 3.131e9 W; I0 = 2P/(π w0²) = 1.967e14 W/cm²
-    // (Gaussian-beam optics, Siegman 1986; worked by hand).
+    // w0 = λf/(π w_in) = 0.8 µm × 500 mm / (π × 4 mm) = 31.83 µm; P = 0.9394 × 0.2 mJ / 60 fs = 3.131e9 W
+    // (0.9394 = sqrt(4 ln2/π), the reciprocal of the Gaussian envelope area ∫f dt/τ = sqrt(π/(4 ln2)));
+    // I0 = 2P/(π w0²) = 1.967e14 W/cm² (Gaussian-beam optics, A. E. Siegman, "Lasers" (1986); worked by hand).
     assert!((s.field.pulses[0].peak_intensity_wcm2 / 1.967e14 - 1.0).abs() < 2e-3, "{}", s.field.pulses[0].peak_intensity_wcm2);
     let sim = simulate(&s).unwrap();
     let avg = sim.averaged.as_ref().unwrap();
@@ -77,7 +79,8 @@ fn simpson(a: f64, b: f64, n: usize, f: impl Fn(f64) -> f64) -> f64 {
 
 #[test]
 fn the_axial_average_matches_a_direct_volume_integral() {
-    // Independent check of the slice weights and exponents: integrate the probe signal
+    // Independent check of the slice weights and exponents (no outside value: a brute-force quadrature of the
+    // same model, written out here from the beam formulas): integrate the probe signal
     // ∫dz ∫2πr dr I_probe(r,z)^n O(I(r,z)) / ∫dz ∫2πr dr I_probe(r,z)^n directly over the focal volume with
     // Simpson's rule in r and z, using the Gaussian-beam fields I(r,z) = I0/(1+z²/z_R²) exp(−2r²/w(z)²),
     // w(z) = w0 √(1+z²/z_R²) (Siegman, "Lasers", 1986, ch. 17), and compare with the condensed rule.
@@ -123,8 +126,9 @@ fn a_short_sample_along_the_beam_reproduces_the_thin_average() {
 
 #[test]
 fn averaging_along_the_beam_never_raises_the_peak_alignment() {
-    // Molecules away from the focus see less intensity (I0/(1+z²/z_R²)); below saturation of the alignment the
-    // average cannot exceed the on-axis peak (common practice). Longer samples lower it further here.
+    // Molecules away from the focus see less intensity (I0/(1+z²/z_R²), Siegman, "Lasers" (1986)); below
+    // saturation of the alignment the average cannot exceed the on-axis peak (common practice, as above).
+    // Longer samples lower it further here.
     let mol = Molecule::from_library("CO2", "m").unwrap();
     let times = grid(0.05, 45.0, 0.05);
     let field = FieldModel::pulses(vec![Pulse::gaussian(0.0, 100.0, 1e13)]);

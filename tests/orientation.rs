@@ -66,8 +66,11 @@ fn reversing_the_static_field_reverses_orientation_exactly() {
 
 #[test]
 fn weak_static_field_second_order_stark_shift_and_brute_force_orientation() {
-    // Rigid rotor J = 0 in a weak field: ΔE = −μ²E²/(6B) and ⟨cosθ⟩ = μE/(3B) (second- and first-order
-    // perturbation theory, textbook Stark effect).
+    // Rigid rotor J = 0 in a weak field: ΔE = −μ²E²/(6B) and ⟨cosθ⟩ = −∂ΔE/∂(μE) = μE/(3B). Second-order
+    // Stark energy of a linear rotor, W = μ²E²/(2B) [J(J+1) − 3M²] / [J(J+1)(2J−1)(2J+3)] for J > 0 and
+    // −μ²E²/(6B) for J = 0 (C. H. Townes & A. L. Schawlow, "Microwave Spectroscopy" (1955); W. Gordy &
+    // R. L. Cook, "Microwave Molecular Spectra"); the J = 0 value is one term, |⟨1 0|cosθ|0 0⟩|² = 1/3 over
+    // E_0 − E_1 = −2B.
     let mol = lib("OCS");
     let ops = PolarOps::new(0, 30, &mol);
     let b = cm_to_rad_per_ps(mol.b_cm);
@@ -84,14 +87,19 @@ fn weak_static_field_second_order_stark_shift_and_brute_force_orientation() {
 
 #[test]
 fn thermal_orientation_in_a_static_field_follows_langevin_debye() {
-    // High-temperature limit: ⟨cosθ⟩ = L(μE/kT) ≈ μE/(3kT) (Langevin–Debye), with quantum corrections
-    // of order B/kT (0.6 % here). The ensemble enters the field adiabatically (field on from the start).
+    // High-temperature limit: ⟨cosθ⟩ = L(x) = coth x − 1/x, x = μE/kT, ≈ μE/(3kT) for small x (the classical
+    // orientation of a rigid dipole: P. Langevin (1905), P. Debye, "Polar Molecules" (1929)), with quantum
+    // corrections of order B/kT (0.6 % here: B = 0.2029 cm⁻¹, kT = 34.75 cm⁻¹). The ensemble enters the
+    // field adiabatically (field on from the start).
     let mol = lib("OCS");
     let t = 50.0;
     let kv = 100.0;
     let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }), ..Default::default() };
     let r = Solver::new(&mol, t, SolverSettings::default()).unwrap().run(&field, &[0.0, 5.0], false).unwrap();
-    let mu_e = mol.dipole_debye * 0.016_792_5 * kv; // cm⁻¹ (1 D·kV/cm = 0.0167925 cm⁻¹)
+    // 1 D·kV/cm = 0.016 792 0 cm⁻¹, written out independently of the library's conversion: 1 D = 1e-21/c C·m =
+    // 3.335 640 95e-30 C·m, so μE/(hc) = 3.335 640 95e-25 J / (6.626 070 15e-34 J s × 2.997 924 58e10 cm/s)
+    // = 0.016 792 005 cm⁻¹ (CODATA 2018 h and c, exact; Tiesinga et al., Rev. Mod. Phys. 93, 025010 (2021)).
+    let mu_e = mol.dipole_debye * 0.016_792_0 * kv; // cm⁻¹
     let x = mu_e / kicktrain::units::kt_in_cm(t);
     let langevin = 1.0 / x.tanh() - 1.0 / x;
     assert!((r.trace.cos[0] / langevin - 1.0).abs() < 0.02, "⟨cos⟩ {} vs Langevin {langevin}", r.trace.cos[0]);
@@ -101,9 +109,10 @@ fn thermal_orientation_in_a_static_field_follows_langevin_debye() {
 
 #[test]
 fn dressed_energies_equal_oblate_spheroidal_characteristic_values() {
-    // Pure laser field, D = 0: E/B = λ_mn(c) with c² = Δω = U0/B, the oblate angular spheroidal
-    // characteristic values (Abramowitz & Stegun ch. 21). Reference numbers: scipy.special.obl_cv
-    // (scipy 1.17.1), computed once and pasted here.
+    // Pure laser field, D = 0: H/B = J² − Δω cos²θ is the oblate angular spheroidal operator, so E/B = λ_mn(c)
+    // with c² = Δω = U0/B (Abramowitz & Stegun ch. 21; the pendular-state mapping of B. Friedrich &
+    // D. Herschbach, J. Phys. Chem. 99, 15686 (1995)). Reference numbers: scipy.special.obl_cv(m, n, c)
+    // (SciPy 1.17.1) for n = m … m + 3, computed once and pasted here (re-run for this audit: identical).
     let table: [(u32, f64, [f64; 4]); 6] = [
         (0, 1.0, [-0.34860239947026983, 1.3932063104484202, 5.486800053818676, 11.492120902297968]),
         (0, 10.0, [-4.976895949621676, -4.607952313971346, 1.938419863832853, 7.141427596351875]),
@@ -156,7 +165,8 @@ fn slow_pulse_follows_the_adiabatic_states_and_returns_to_the_field_free_state()
 #[test]
 fn short_half_cycle_terahertz_pulse_acts_as_the_kick_exp_iq_cos() {
     // A half-cycle pulse much shorter than the rotational period acts as exp(iQ cosθ), Q = μ∫E dt/ħ
-    // (impulsive limit). Reference: the J = 0 wavefunction kicked by quadrature.
+    // (impulsive/sudden limit of the dipole coupling −μE cosθ; common practice). Reference: the J = 0
+    // wavefunction kicked by quadrature (tests/common, independent of the solver's representation).
     use kicktrain::field::{TerahertzPulse, TerahertzWaveform};
     let mol = lib("OCS");
     let thz = TerahertzPulse { center_ps: 0.0, duration_fs: 300.0, peak_field_kv_cm: 1500.0, waveform: TerahertzWaveform::HalfCycle };
@@ -181,9 +191,13 @@ fn short_half_cycle_terahertz_pulse_acts_as_the_kick_exp_iq_cos() {
 
 #[test]
 fn two_colour_phase_shift_by_pi_reverses_orientation_and_short_pulse_matches_quadrature() {
-    // Cycle-averaged two-colour coupling −⅛E1²E2 cosφ [(β∥ − 3β⊥)cos³θ + 3β⊥ cosθ] (shared physics notes §4):
-    // φ → φ + π flips the sign of the odd terms, so ⟨cosθ⟩ reverses exactly. β values here are
-    // hypothetical numbers for a symmetry test, not data for a real molecule.
+    // Cycle-averaged two-colour coupling −⅛E1²E2 cosφ [(β∥ − 3β⊥)cos³θ + 3β⊥ cosθ], derived here: the
+    // hyperpolarizability energy −β_ZZZ E³/6 (Taylor-series convention for β, common practice) with
+    // E = E1 cos ωt + E2 cos(2ωt + φ) has the cycle average ⟨E³⟩ = 3E1²E2⟨cos²ωt cos(2ωt + φ)⟩ = ¾E1²E2 cosφ,
+    // and for a linear molecule β_ZZZ = β∥cos³θ + 3β⊥cosθ sin²θ = (β∥ − 3β⊥)cos³θ + 3β⊥cosθ.
+    // φ → φ + π flips the sign of the odd terms, so ⟨cosθ⟩ reverses exactly (exact symmetry). β values here
+    // are hypothetical numbers for a symmetry test, not data for a real molecule. The kick comparison below
+    // uses the same coupling formula, so it checks the solver's kick against quadrature, not the formula.
     use kicktrain::field::{PulseShape, TwoColourPulse};
     let mut mol = lib("OCS");
     mol.beta_parallel_au = Some(20000.0);

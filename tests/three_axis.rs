@@ -80,7 +80,8 @@ fn rotating_the_polarization_by_90_degrees_exchanges_x_and_z() {
         assert!(max_diff(column(&along_z, &y), column(&along_x, &y)) < 1e-9, "{body}: Y");
     }
     // The most polarizable axis follows the major axis Z; the least polarizable one leaves the
-    // polarization plane for Y (common practice for elliptically polarized alignment).
+    // polarization plane for Y (common practice for elliptically polarized 3D alignment; Stapelfeldt &
+    // Seideman, Rev. Mod. Phys. 75, 543 (2003)).
     let peak = |s: &[f64]| s.iter().cloned().fold(0.0, f64::max);
     assert!(peak(column(&along_z, "cos2_Za")) > 0.4 && peak(column(&along_z, "cos2_Yc")) > 0.4, "a goes to Z, c out of the polarization plane");
 }

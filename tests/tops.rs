@@ -16,7 +16,8 @@ const ASYMMETRIC: &str = r#"{"name": "asymmetric demo", "a_cm": 0.6, "b_cm": 0.2
 fn axes_sum_to_one_and_are_isotropic_without_a_field() {
     // Σ_i Φ_Zi² = 1 for the rows of a rotation matrix (exact identity), so the three ⟨cos²θ_iZ⟩ sum to 1
     // at all times; a thermal ensemble with no field is isotropic: each is 1/3 and ⟨cos²θ_2D⟩ = 1/2
-    // (isotropic averages, shared physics notes §6).
+    // (isotropic averages over the sphere: ⟨cos²θ⟩ = ½∫_{−1}^{1} x² dx = 1/3, and the projection of an isotropic
+    // axis onto a plane has a uniform angle there, so ⟨cos²θ_2D⟩ = 1/2; exact integrals, derived here).
     for mol in [PROLATE, ASYMMETRIC] {
         let s = scenario(
             mol,
@@ -48,7 +49,8 @@ fn axes_sum_to_one_and_are_isotropic_without_a_field() {
 fn symmetric_top_revives_with_the_linear_rotor_period() {
     // A rigid symmetric top has E = B J(J+1) + (A − B)K² and the laser keeps K, so every coherence
     // oscillates at a multiple of 2B: the field-free trace repeats exactly after T_rev = 1/(2Bc), the
-    // linear-rotor revival period (textbook; shared physics notes §2).
+    // linear-rotor revival period (derived here: with ΔK = 0 the (A − B)K² terms cancel in every coherence and
+    // J(J+1) is even; common practice, e.g. Stapelfeldt & Seideman, Rev. Mod. Phys. 75, 543 (2003)).
     let t_rev = kicktrain::units::revival_period_ps(0.3);
     let s = scenario(
         PROLATE,
@@ -68,8 +70,10 @@ fn symmetric_top_revives_with_the_linear_rotor_period() {
 #[test]
 fn symmetric_top_from_its_ground_state_equals_the_linear_rotor() {
     // At T = 0 a prolate top sits in J = K = M = 0; the laser keeps K = 0, whose block is exactly the
-    // linear rotor with the same B and Δα = α_a − α_b (shared physics notes §4–5). Compared with the
-    // independent linear-molecule solver.
+    // linear rotor with the same B and Δα = α_a − α_b: the K = 0 functions are D^J_{M0}* ∝ Y_J^M(θ, φ)
+    // (R. N. Zare, "Angular Momentum" (Wiley 1988)) and E = B J(J+1) for K = 0 (symmetric-top term values,
+    // G. Herzberg, "Molecular Spectra and Molecular Structure II" (1945)). Compared with the independent
+    // linear-molecule solver (a code-to-code comparison resting on that identity).
     let pulse = r#"{"center_ps": 0.0, "fwhm_fs": 300, "peak_intensity_wcm2": 1e13}"#;
     let window = r#"{"start_ps": -1.0, "stop_ps": 60.0, "step_fs": 100}"#;
     let top = simulate(&scenario(PROLATE, 0.0, pulse, window, "")).unwrap().result;
@@ -86,8 +90,9 @@ fn symmetric_top_from_its_ground_state_equals_the_linear_rotor() {
 
 #[test]
 fn short_pulse_approaches_the_kick_for_an_asymmetric_top() {
-    // A pulse much shorter than every rotational period acts as the kick exp(iPA) (sudden limit, shared
-    // physics notes §4): the finite-pulse trace converges to the kick trace as the pulse shortens.
+    // A pulse much shorter than every rotational period acts as the kick exp(iPA) (impulsive/sudden limit,
+    // common practice; Stapelfeldt & Seideman, Rev. Mod. Phys. 75, 543 (2003)): the finite-pulse trace
+    // converges to the kick trace as the pulse shortens (equal fluence: intensity × FWHM kept fixed).
     let window = r#"{"start_ps": 1.0, "stop_ps": 30.0, "step_fs": 500}"#;
     let kick = scenario(ASYMMETRIC, 2.0, r#"{"center_ps": 0.0, "fwhm_fs": 20, "peak_intensity_wcm2": 2e13}"#, window, r#", "solver": {"method": "kick"}"#);
     let rk = simulate(&kick).unwrap().result;
@@ -157,8 +162,10 @@ const POLAR_PROLATE: &str =
 #[test]
 fn symmetric_top_in_a_static_field_from_its_ground_state_equals_the_linear_rotor() {
     // At T = 0 the top sits in J = K = M = 0, and neither the laser nor the static field changes K: the
-    // K = 0 ladder is the linear rotor with the same B, Δα and dipole (shared physics notes §4–5). Compared
-    // with the independent linear polar solver (Legendre quadrature instead of 3j closed forms).
+    // K = 0 ladder is the linear rotor with the same B, Δα and dipole (D^J_{M0}* ∝ Y_J^M, Zare, "Angular
+    // Momentum" (1988); for K = 0 the first-order Stark diagonal K M / J(J+1) vanishes as for a linear
+    // rotor). Compared with the independent linear polar solver (Legendre quadrature instead of 3j closed
+    // forms; a code-to-code comparison resting on that identity).
     let pulse = r#"{"center_ps": 0.0, "fwhm_fs": 500, "peak_intensity_wcm2": 5e12}"#;
     let window = r#"{"start_ps": -2.0, "stop_ps": 40.0, "step_fs": 200}"#;
     let field = r#", "static_field": {"strength_kv_cm": 50}"#;

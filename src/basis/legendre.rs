@@ -105,14 +105,16 @@ mod tests {
 
     #[test]
     fn simpson_is_exact_for_cubics() {
-        // Simpson's rule integrates cubics exactly (textbook numerical analysis).
+        // Simpson's rule integrates cubics exactly (its error term is ∝ f⁗, which vanishes; common practice,
+        // Abramowitz & Stegun §25.4): ∫_0^2 (t³ − t) dt = 16/4 − 4/2 = 2.
         let v = simpson(0.0, 2.0, 4, |t| t * t * t - t);
         assert!((v - 2.0).abs() < 1e-14);
     }
 
     #[test]
     fn legendre_orthonormal_and_tabulated() {
-        // Orthonormality on [-1,1] checked by exact quadrature.
+        // Orthonormality ∫_{−1}^{1} Θ_a Θ_b dx = δ_ab on [-1,1] (the definition of the normalized functions),
+        // checked by Gauss–Legendre quadrature that is exact for these polynomial integrands.
         let (x, w) = gauss_legendre(40, -1.0, 1.0);
         for m in [0u32, 1, 3, 7] {
             let vals: Vec<Vec<f64>> = x.iter().map(|&xi| theta_normalized(m, m + 20, xi)).collect();
@@ -124,8 +126,9 @@ mod tests {
                 }
             }
         }
-        // Closed forms (Abramowitz & Stegun 8.6): P_2(x) = (3x²−1)/2, normalization sqrt(5/2);
-        // P_2^1 = 3x sqrt(1−x²) (sign convention aside), normalization sqrt(5/2 · 1/6).
+        // Closed forms (Abramowitz & Stegun ch. 8 and 22; common practice): P_2(x) = (3x²−1)/2,
+        // normalization sqrt((2l+1)/2) = sqrt(5/2); P_2^1 = 3x sqrt(1−x²) (sign convention aside),
+        // normalization sqrt((2l+1)/2 · (l−m)!/(l+m)!) = sqrt(5/2 · 1/6).
         let x0: f64 = 0.3;
         let t0 = theta_normalized(0, 2, x0);
         assert!((t0[2] - (2.5f64).sqrt() * (3.0 * x0 * x0 - 1.0) / 2.0).abs() < 1e-14);

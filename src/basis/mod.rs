@@ -180,7 +180,10 @@ mod tests {
 
     #[test]
     fn cos2_closed_form_matches_quadrature() {
-        // Closed forms (shared physics notes §5, Zare "Angular Momentum" 1988) against quadrature of Y_J^M.
+        // The closed forms of cosθ and cos²θ between |J M⟩ (R. N. Zare, "Angular Momentum" (Wiley 1988):
+        // integrals of three spherical harmonics; equivalently the Legendre recurrence
+        // (2J+1) x P_J^M = (J−M+1) P_{J+1}^M + (J+M) P_{J−1}^M, Abramowitz & Stegun §8.5) against direct
+        // Gauss–Legendre quadrature of the normalized Θ_J^M (orthonormality checked in legendre::tests).
         for m in 0..6u32 {
             for j in m..(m + 25) {
                 let q = quad(j, j, m, |x| x * x, 40);
@@ -197,7 +200,9 @@ mod tests {
 
     #[test]
     fn abscos_by_hand_and_by_fine_quadrature() {
-        // By hand: ⟨00| |cosθ| |00⟩ = 1/2 and ⟨00| |cosθ| |20⟩ = √5/8 (exact integrals of Legendre polynomials).
+        // By hand (exact integrals, derived here): with Θ_00 = 1/√2 and Θ_20 = √(5/2)·(3x² − 1)/2,
+        // ⟨00| |cosθ| |00⟩ = ½∫_{−1}^{1}|x| dx = 1/2 and
+        // ⟨00| |cosθ| |20⟩ = (√5/2)·2∫_0^1 x(3x² − 1)/2 dx = (√5/2)(3/4 − 1/2) = √5/8.
         let b = Block { m: 0, parity: 0, size: 12 };
         let a = b.abscos_dense();
         assert!((a[(0, 0)] - 0.5).abs() < 1e-14);
@@ -228,7 +233,9 @@ mod tests {
 
     #[test]
     fn isotropic_sums() {
-        // Σ_M ⟨J M|cos²θ|J M⟩ = (2J+1)/3 (isotropy of a full M multiplet; exact).
+        // Σ_M ⟨J M|cos²θ|J M⟩ = (2J+1)/3: a full M multiplet is isotropic, Σ_M |Y_J^M|² = (2J+1)/4π
+        // (Unsöld's theorem, the addition theorem of spherical harmonics at zero angle; Zare, "Angular
+        // Momentum" (1988)), so the sum is (2J+1)·⟨cos²θ⟩_sphere = (2J+1)/3. Exact.
         for j in 0..30u32 {
             let s: f64 = (0..=j).map(|m| if m == 0 { 1.0 } else { 2.0 } * cos2_diag(j, m)).sum();
             assert!((s - (2 * j + 1) as f64 / 3.0).abs() < 1e-12);
@@ -237,9 +244,10 @@ mod tests {
 
     #[test]
     fn quadrature_matrices_match_closed_forms_in_both_parity_blocks() {
-        // cosθ couples J ± 1 and cos²θ J, J ± 2 (closed forms above, physics notes §5); cos³θ by
-        // quadrature equals the product of the cosθ matrix with cos²θ where the basis is complete
-        // (away from the top row).
+        // cosθ couples J ± 1 and cos²θ J, J ± 2 (closed forms above, checked against independent quadrature
+        // in cos2_closed_form_matches_quadrature; Zare, "Angular Momentum" (1988)); cos³θ by quadrature
+        // equals the product of the cosθ matrix with cos²θ where the basis is complete (away from the top
+        // row): an exact identity of matrix representations, not an outside value.
         let b = Block { m: 2, parity: BOTH_PARITIES, size: 20 };
         assert_eq!(b.j(0), 2);
         assert_eq!(b.j(3), 5);

@@ -597,8 +597,10 @@ mod tests {
 
     #[test]
     fn direction_cosines_match_euler_angle_quadrature() {
-        // Closed forms (products of two 3j symbols) against direct quadrature over φ, θ, χ of explicit
-        // Wigner-D wavefunctions (shared physics notes §5 ask for exactly this cross-check).
+        // Closed forms (products of two 3j symbols: the integral of three Wigner D functions, R. N. Zare,
+        // "Angular Momentum" (Wiley 1988)) against direct quadrature over φ, θ, χ of the explicit
+        // symmetric-top wavefunctions ψ = sqrt((2J+1)/8π²) e^{iMφ} d^J_{MK}(θ) e^{iKχ}, with d^J from Wigner's
+        // explicit sum (checked against Edmonds in wigner::tests). Independent of the 3j code.
         type Check = (AngularOperator, fn(f64, f64) -> f64);
         let ops: [Check; 4] = [
             (AngularOperator::cos2_z(), |t, _| t.cos().powi(2)),
@@ -628,8 +630,12 @@ mod tests {
 
     #[test]
     fn asymmetric_energies_up_to_j2_match_closed_forms() {
-        // Townes & Schawlow, "Microwave Spectroscopy" (1955), Table 4-6 (from memory of the table):
+        // The rigid asymmetric rotor's closed-form levels for J ≤ 2 (C. H. Townes & A. L. Schawlow,
+        // "Microwave Spectroscopy" (1955), asymmetric-rotor chapter; the table number is from memory):
         // J=1: B+C, A+C, A+B; J=2: 2(A+B+C) ∓ 2 sqrt((B−C)² + (A−C)(A−B)), A+B+4C, A+4B+C, 4A+B+C.
+        // Recomputed independently for these (A, B, C) by diagonalizing A J_z² + B J_x² + C J_y² built from
+        // the standard J = 1, 2 angular-momentum matrices with numpy (eigenvalues 0.047, 0.212, 0.215 and
+        // 0.1409595, 0.303, 0.312, 0.807, 0.8070405 cm⁻¹, equal to the formulas).
         let t = top(0.19, 0.025, 0.022);
         let (a, b, c) = (t.a_cm, t.b_cm, t.c_cm);
         let root = ((b - c).powi(2) + (a - c) * (a - b)).sqrt();
@@ -663,7 +669,9 @@ mod tests {
     #[test]
     fn symmetric_limits_of_the_asymmetric_rotor() {
         // B → C: the asymmetric machinery gives B J(J+1) + (A − B)K² (prolate symmetric top, exact formula);
-        // A → B: B J(J+1) + (C − B)K² (oblate). Any textbook, e.g. Townes & Schawlow ch. 3.
+        // A → B: B J(J+1) + (C − B)K² (oblate). Symmetric-top term values F(J, K) (G. Herzberg, "Molecular
+        // Spectra and Molecular Structure II: Infrared and Raman Spectra of Polyatomic Molecules" (1945);
+        // Townes & Schawlow, "Microwave Spectroscopy" (1955)).
         for (a, b, c, prolate) in [(5.0, 0.8 + 1e-9, 0.8, true), (0.2 + 1e-9, 0.2, 0.1, false)] {
             let t = top(a, b, c);
             assert_eq!(t.kind(), TopKind::Asymmetric);
@@ -693,8 +701,9 @@ mod tests {
 
     #[test]
     fn k_zero_block_of_a_symmetric_top_is_the_linear_rotor() {
-        // K = 0 of a prolate top: energies B J(J+1) and the cos²θ matrix of the linear rotor (closed forms of
-        // the shared physics notes §5, themselves checked against quadrature in basis::tests).
+        // K = 0 of a prolate top: energies B J(J+1) and the cos²θ matrix of the linear rotor, because
+        // D^J_{M0}(φ, θ, χ)* = sqrt(4π/(2J+1)) Y_J^M(θ, φ) (Zare, "Angular Momentum" (1988)); the linear-rotor
+        // closed forms are themselves checked against quadrature in basis::tests.
         let t = top(50.0, 0.8, 0.8);
         // Only the frame and H0 are used here, so the (non-cylindrical) test tensor does not matter.
         let frame = TopFrame::new(&t, false);
@@ -716,7 +725,9 @@ mod tests {
     #[test]
     fn symmetry_labels_agree_with_the_energy_ordering() {
         // Within each J the asymmetric-rotor levels in ascending energy carry Ka = ⌊(i+1)/2⌋ and
-        // Kc = J − ⌊i/2⌋ (the standard J_{Ka Kc} labelling, e.g. Gordy & Cook ch. 7). The block labels
+        // Kc = J − ⌊i/2⌋ (the standard J_{Ka Kc} labelling by correlation with the prolate and oblate limits:
+        // within one J the levels are ordered by τ = Ka − Kc at any asymmetry; W. Gordy & R. L. Cook, "Microwave Molecular Spectra",
+        // asymmetric-rotor chapter). The block labels
         // derived from the two-fold rotations must give the same parities in every frame.
         let t = top(0.19, 0.025, 0.022);
         for z in [BodyAxis::A, BodyAxis::B, BodyAxis::C] {
@@ -757,7 +768,9 @@ mod tests {
     fn j1_level_a_plus_b_is_the_c_axis_direction_cosine() {
         // The J = 1 level with energy A + B has J_c ψ = 0, so ψ(M = 0) = √3 Φ_Zc. Then
         // ⟨Φ_Zc²⟩ = 3⟨Φ⁴⟩ = 3/5 and ⟨Φ_Za²⟩ = ⟨Φ_Zb²⟩ = 3⟨Φ_Zc² Φ_Za²⟩ = 1/5 (isotropic averages
-        // ⟨n_z⁴⟩ = 1/5, ⟨n_z² n_x²⟩ = 1/15). Fixes the relative phase of H0 and the direction cosines.
+        // over the unit sphere ⟨n_z⁴⟩ = ½∫_{−1}^{1} x⁴ dx = 1/5 and ⟨n_z² n_x²⟩ = ½⟨n_z²(1 − n_z²)⟩ =
+        // ½(1/3 − 1/5) = 1/15: exact integrals, derived here). Fixes the relative phase of H0 and the
+        // direction cosines.
         let t = top(0.19, 0.025, 0.022);
         let frame = TopFrame::new(&t, false);
         let mut found = false;
@@ -855,8 +868,9 @@ mod tests {
 
     #[test]
     fn symmetric_top_first_order_stark_shift() {
-        // Weak static field: E = E0 − μE K M / (J(J+1)) to first order (Townes & Schawlow ch. 10; the
-        // diagonal ⟨J K M|cosθ|J K M⟩ = K M / J(J+1) of the shared physics notes §5).
+        // Weak static field: E = E0 − μE K M / (J(J+1)) to first order, the first-order Stark effect of a
+        // symmetric top (Townes & Schawlow, "Microwave Spectroscopy" (1955), Stark-effect chapter; Gordy &
+        // Cook, "Microwave Molecular Spectra"), i.e. the diagonal ⟨J K M|cosθ|J K M⟩ = K M / J(J+1).
         let t = Top { d_j_cm: 0.0, ..top(5.1, 0.85, 0.85) };
         let frame = TopFrame::new(&t, true);
         let mu_e = 1e-5; // cm⁻¹, far below the level spacings

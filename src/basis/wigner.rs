@@ -136,6 +136,7 @@ mod tests {
         // and (j j 0; m −m 0) = (−1)^{j−m}/sqrt(2j+1) (eq. 3.7.9):
         // (1 1 0; 0 0 0) = −1/√3, (1 1 2; 0 0 0) = √(2/15), (2 2 2; 0 0 0) = −√(2/35),
         // (2 2 0; 2 −2 0) = 1/√5, (3 2 1; 0 0 0) = −√(3/35); and (1 1 2; 1 −1 0) = √(1/30) (from memory).
+        // All six values were also recomputed with SymPy's sympy.physics.wigner.wigner_3j (SymPy 1.14).
         let cases = [
             ((1, 1, 0, 0, 0, 0), -1.0 / 3f64.sqrt()),
             ((1, 1, 2, 0, 0, 0), (2.0 / 15.0f64).sqrt()),

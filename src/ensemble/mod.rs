@@ -167,7 +167,9 @@ mod tests {
         let total: f64 = e.blocks.iter().map(|b| b.total()).sum();
         assert!((total - 1.0).abs() < 1e-12);
         assert!(e.discarded_population <= 1e-7 && e.discarded_population > 0.0);
-        // Ratio of sublevel populations J=2 / J=0: exp(−6B/kT) (Boltzmann; same spin weight).
+        // Ratio of sublevel populations J=2 / J=0: exp(−E_2/kT), E_2 ≈ 6B (Boltzmann distribution, same spin
+        // weight and one sublevel each; common practice). Uses the library's own E_J and kT conversion, so it
+        // checks the bookkeeping, not the constants.
         let b0 = e.blocks.iter().find(|b| b.m == 0 && b.parity == 0).unwrap();
         let r = b0.levels[1].1 / b0.levels[0].1;
         let mol = n2();
@@ -180,7 +182,9 @@ mod tests {
         let e = ThermalEnsemble::new(&n2(), 0.0, 1e-7).unwrap();
         assert_eq!(e.blocks.len(), 1);
         assert_eq!(e.blocks[0].levels, vec![(0, 1.0)]);
-        // A molecule without even-J states (16O2-like spin weights) starts in J = 1, three sublevels.
+        // A molecule without even-J states (16O2-like spin weights; ¹⁶O nuclei are spinless bosons, so only odd
+        // rotational levels of the ground state exist: G. Herzberg, "Molecular Spectra and Molecular Structure
+        // I: Spectra of Diatomic Molecules" (1950)) starts in J = 1, three sublevels (M = −1, 0, 1).
         let mut o = n2();
         o.spin_weights = [0.0, 1.0];
         let e = ThermalEnsemble::new(&o, 0.0, 1e-7).unwrap();
@@ -190,7 +194,11 @@ mod tests {
 
     #[test]
     fn nitrogen_even_odd_ratio() {
-        // 14N2 at high T: even-J : odd-J total populations → 2 : 1 (spin statistics; classical limit).
+        // 14N2 at high T: even-J : odd-J total populations → 2 : 1. Spin statistics of a homonuclear diatomic
+        // with nuclear spin I = 1 (bosons): g_even : g_odd = (I + 1) : I = 2 : 1 (G. Herzberg, "Molecular
+        // Spectra and Molecular Structure I: Spectra of Diatomic Molecules" (1950), intensity alternation);
+        // at kT ≫ B the even and odd rotational partition sums become equal, so the populations follow the
+        // weights (1 % tolerance at 1000 K, where B/kT ≈ 3e-3).
         let e = ThermalEnsemble::new(&n2(), 1000.0, 1e-9).unwrap();
         let even: f64 = e.blocks.iter().filter(|b| b.parity == 0).map(|b| b.total()).sum();
         let odd: f64 = e.blocks.iter().filter(|b| b.parity == 1).map(|b| b.total()).sum();

@@ -214,10 +214,12 @@ mod tests {
 
     #[test]
     fn water_ortho_para_ratio_reaches_three_to_one() {
-        // Ortho (Ka + Kc odd) : para = 3 : 1 in nuclear-spin weight (Townes & Schawlow); at high temperature
-        // the rotational partition functions of the two classes become equal, so the ortho fraction → 3/4.
-        // At 300 K water is within a few 1e-3 of that limit (its lowest para level lies 23.8 cm⁻¹ below the
-        // lowest ortho one, kT = 208 cm⁻¹: common practice).
+        // Ortho (Ka + Kc odd) : para = 3 : 1 in nuclear-spin weight for H2O (two equivalent protons, I = ½:
+        // Townes & Schawlow, "Microwave Spectroscopy" (1955); G. Herzberg, "Molecular Spectra and Molecular
+        // Structure II" (1945)); at high temperature the rotational partition functions of the two classes
+        // become equal, so the ortho fraction → 3/4. At 300 K water is within a few 1e-3 of that limit (common
+        // practice): its lowest para level 0_00 lies B + C = 14.512 + 9.285 = 23.8 cm⁻¹ (the J = 1 closed form,
+        // library constants) below the lowest ortho one, 1_01, against kT = 208.5 cm⁻¹.
         let (e, frame) = ensemble("H2O", 300.0);
         let ortho: f64 = e
             .blocks
@@ -236,7 +238,8 @@ mod tests {
     #[test]
     fn zero_spin_weights_remove_symmetry_classes() {
         // SO2: ¹⁶O nuclei are spinless bosons, so only Ka + Kc even levels exist (derived by character
-        // projection; Herzberg, Molecular Spectra II).
+        // projection; G. Herzberg, "Molecular Spectra and Molecular Structure II" (1945), nuclear-spin
+        // statistics of C2v molecules).
         let (e, frame) = ensemble("SO2", 5.0);
         assert!(!e.blocks.is_empty());
         for b in &e.blocks {

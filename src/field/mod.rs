@@ -718,8 +718,8 @@ mod tests {
     #[test]
     fn truncated_pulse_cut_away_from_the_peak_has_the_closed_form_area() {
         // Area = ∫_{−∞}^{c} e^{−a x²} dx + e^{−a c²} r/2 = ½ sqrt(π/a)(1 + erf(c√a)) + e^{−a c²} r/2,
-        // a = 4 ln2/τ². c√a = 1 and −0.5 use erf(1) = 0.8427007929, erf(0.5) = 0.5204998778
-        // (Abramowitz & Stegun, table 7.1).
+        // a = 4 ln2/τ² (closed form derived here; r/2 is the area of the cos² fall). c√a = 1 and −0.5 use
+        // erf(1) = 0.8427007929, erf(0.5) = 0.5204998778 (Abramowitz & Stegun, table 7.1).
         let tau_fs = 100.0;
         let a = 4.0 * std::f64::consts::LN_2 / (tau_fs * tau_fs);
         for (u, erf) in [(1.0, 0.8427007929), (-0.5, -0.5204998778)] {
@@ -760,9 +760,14 @@ mod tests {
             assert!((p.envelope(0.96) - 0.5).abs() < 1e-12, "{shape:?}");
             let q = area_by_quadrature(&p);
             assert!((q / p.envelope_area_ps() - 1.0).abs() < 1e-9, "{shape:?} {q}");
-            // Gaussian ∫I dt = 1.0645 I0 τ (shared physics notes §4); sech²: 1.1346 I0 τ (2/1.7627).
+            // Closed forms of ∫I dt / (I0 τ), τ = FWHM (derived here; pulse shapes as in A. E. Siegman, "Lasers"
+            // (1986)): Gaussian exp(−4 ln2 t²/τ²) gives sqrt(π/(4 ln2)) = 1.0644670; sech²(t/T0) with
+            // τ = 2 arccosh(√2) T0 = 1.7627 T0 gives 2 T0/τ = 2/1.7627 = 1.1345927; flat top with cos² edges
+            // (antisymmetric about the half-maximum points) gives exactly 1. Expectations below are these values
+            // rounded to 4–5 digits, inside the 1e-4 tolerance.
             let ratio = p.envelope_area_ps() / p.fwhm_ps();
-            // Truncated: half the Gaussian area plus half the 20 fs fall, over 80 fs: 0.5 × 1.0645 + 0.125.
+            // Truncated: half the Gaussian area plus the cos² fall, ∫_0^r cos²(πx/2r) dx = r/2 = 10 fs, over
+            // 80 fs: 0.5 × 1.0644670 + 0.125 = 0.6572335.
             let want = match shape {
                 PulseShape::Gaussian => 1.0645,
                 PulseShape::Sech2 => 1.1346,
@@ -824,8 +829,12 @@ mod tests {
 
     #[test]
     fn kick_strength_of_nitrogen_pulse() {
-        // P = 2π Δα' ∫I dt/(c ħ): Δα' = 0.93 Å³, 5e13 W/cm², 50 fs Gaussian → P ≈ 4.919
-        // (hand evaluation of the formula in the shared physics notes §4 with CODATA constants).
+        // P = 2π Δα' ∫I dt/(c ħ): Δα' = 0.93 Å³, 5e13 W/cm², 50 fs Gaussian → P ≈ 4.919. Derivation: the
+        // cycle-averaged interaction −¼ Δα E0² cos²θ (H. Stapelfeldt & T. Seideman, Rev. Mod. Phys. 75, 543
+        // (2003)) with Δα = 4πε0 Δα' (polarizability volume) and I = ½ c ε0 E0² gives ¼ Δα E0² = 2π Δα' I / c;
+        // ∫I dt = sqrt(π/(4 ln2)) I0 τ = 1.0644670194 I0 τ for a Gaussian. Evaluated by hand with the CODATA
+        // 2018 values c = 299 792 458 m/s and ħ = 1.054 571 817e-34 J s (Tiesinga et al., Rev. Mod. Phys. 93,
+        // 025010 (2021)): 2π × 0.93e-30 m³ × 5e17 W/m² × 1.0644670 × 50e-15 s / (c ħ) = 4.91856.
         let p = Pulse::gaussian(0.0, 50.0, 5e13);
         let hand = 2.0 * std::f64::consts::PI * 0.93e-30 * 5e17 * 1.0644670194 * 50e-15 / (299792458.0 * 1.054571817e-34);
         assert!((p.kick_strength(0.93) / hand - 1.0).abs() < 1e-6);

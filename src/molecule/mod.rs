@@ -254,9 +254,11 @@ mod tests {
             assert!(m.beta_parallel_au.is_some() && m.beta_perpendicular_au.is_some(), "{name}");
         }
         // HCl: the mean first hyperpolarizability β̄ = (3/5)(β_zzz + 2β_zxx) of the stored components
-        // against the published CCSD(T) value β̄ = −6.8 ± 0.3 a.u. (Maroulis, J. Chem. Phys. 108, 5432
-        // (1998), abstract). Ours is −7.74; the 14 % gap is most likely our smaller basis set. A swapped
-        // sign, a swapped pair or a factor-2 convention slip would all fail.
+        // against the published value β̄ = −6.8 ± 0.3 a.u. (G. Maroulis, "A systematic study of basis set,
+        // electron correlation, and geometry effects on the electric multipole moments, polarizability, and
+        // hyperpolarizability of HCl", J. Chem. Phys. 108, 5432 (1998), abstract; β̄ = (3/5)(β_zzz + 2β_zxx)
+        // for a linear molecule is the usual mean, common practice). Ours is −7.74; the 14 % gap is most likely
+        // our smaller basis set. A swapped sign, a swapped pair or a factor-2 convention slip would all fail.
         let hcl = Molecule::from_library("HCl", "molecule").unwrap();
         let mean = 0.6 * (hcl.beta_parallel_au.unwrap() + 2.0 * hcl.beta_perpendicular_au.unwrap());
         assert!((mean - (-6.8)).abs() < 1.2, "β̄ = {mean}");
@@ -286,6 +288,8 @@ mod tests {
 
     #[test]
     fn edit_distance_basics() {
+        // Levenshtein distance: kitten → sitting needs 3 edits (k→s, e→i, insert g), the classic textbook example
+        // (common practice); from the empty string it is the other string's length.
         assert_eq!(edit_distance("kitten", "sitting"), 3);
         assert_eq!(edit_distance("", "abc"), 3);
     }

@@ -285,14 +285,17 @@ mod tests {
 
     #[test]
     fn averages_of_powers_are_exact() {
-        // For O(I) = (I/I0)^k the average is a/(a + k) (integral of a u^(a+k−1)); exact calculus.
+        // For O(I) = (I/I0)^k the average is a ∫₀¹ u^(a+k−1) du = a/(a + k) (exact calculus), with the
+        // intensity distribution a u^(a−1), a = n w²/w_p², derived in the module comment from the Gaussian-beam
+        // profiles (here a = 2 × (50/30)² = 5.556).
         let f = FocalAverage::thin(50.0, 30.0, 2.0, 16);
         let a = f.exponent();
         for k in [1.0, 2.0, 3.0] {
             let s: f64 = f.nodes().iter().map(|(u, w)| w * u.powf(k)).sum();
             assert!((s - a / (a + k)).abs() < 1e-9, "k={k}: {s} vs {}", a / (a + k));
         }
-        // The widest probe accepted (a = 1/2) is still integrated accurately with the default points.
+        // The widest probe accepted (a = 2 × (50/100)² = 1/2) is still integrated accurately with the default
+        // points: ⟨u⟩ = a/(a + 1) = 1/3.
         let wide = FocalAverage { probe_waist_um: 100.0, points: 20, ..f };
         assert!((wide.exponent() - 0.5).abs() < 1e-12);
         wide.validate("f").unwrap();
@@ -358,7 +361,9 @@ mod tests {
     #[test]
     fn axial_nodes_are_a_proper_rule() {
         // Positive weights summing to one and intensity fractions in (0, 1] (properties of any Gauss rule of a
-        // probability distribution on (0, 1]; Gautschi 2004, Thm 1.46), also for a very long sample.
+        // probability distribution on (0, 1]: nodes inside the support, positive weights; W. Gautschi,
+        // "Orthogonal Polynomials: Computation and Approximation" (2004), ch. 1, Thm 1.46 (theorem number from memory)),
+        // also for a very long sample.
         for (l, zr, zp, n) in [(5000.0, 2000.0, 800.0, 3.0), (9e5, 300.0, 900.0, 1.0), (10.0, 1e6, 1e6, 2.0)] {
             let f = FocalAverage::thin(40.0, 30.0, n, 24).along_axis(l, zr, zp);
             f.validate("f").unwrap();
@@ -386,8 +391,9 @@ mod tests {
 
     #[test]
     fn rayleigh_range_worked_example() {
-        // z_R = π w0²/(M² λ): w0 = 50 µm, λ = 800 nm, M² = 1 → 9817.5 µm (Gaussian-beam optics, Siegman 1986;
-        // worked by hand).
+        // z_R = π w0²/(M² λ): w0 = 50 µm, λ = 800 nm, M² = 1 → π × 2500 µm² / 0.8 µm = 9817.48 µm, and
+        // 9817.48/1.5 = 6544.98 µm for M² = 1.5 (Gaussian-beam optics, A. E. Siegman, "Lasers" (1986); worked
+        // by hand).
         assert!((rayleigh_range_um(50.0, 800.0, 1.0) - 9817.48).abs() < 0.01);
         assert!((rayleigh_range_um(50.0, 800.0, 1.5) - 6544.98).abs() < 0.01);
     }

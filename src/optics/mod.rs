@@ -113,7 +113,10 @@ mod tests {
     #[test]
     fn worked_example_gaussian_and_sech2() {
         // Worked by hand from the Gaussian-beam formula I0 = 2P/(πw0²) (Siegman, "Lasers", 1986, ch. 17)
-        // and the temporal shape factors P = 0.9394 E/τ (Gaussian) and 0.8814 E/τ (sech²):
+        // and the temporal shape factors P = 0.9394 E/τ (Gaussian) and 0.8814 E/τ (sech²). These are the
+        // reciprocals of the envelope areas ∫f dt/τ (closed forms, derived here): Gaussian
+        // sqrt(4 ln2/π) = 0.939437; sech² with τ = 2 arccosh(√2) T0, area 2 T0, so τ/(2 T0) = arccosh(√2)
+        // = ln(1 + √2) = 0.881374.
         // 1 mJ, 100 fs, w0 = 50 µm → P = 9.394e9 W, I0 = 2 × 9.394e9 / (π × 2.5e-9 m²) = 2.392e18 W/m²
         // = 2.392e14 W/cm² (Gaussian); sech²: P = 8.814e9 W, I0 = 2.245e14 W/cm².
         let g = Pulse { center_ps: 0.0, fwhm_fs: 100.0, peak_intensity_wcm2: 1.0, shape: PulseShape::Gaussian, rise_fs: None, cut_fs: None, polarization: Default::default() };
@@ -128,8 +131,9 @@ mod tests {
 
     #[test]
     fn focusing_a_collimated_beam() {
-        // w0 = M² λ f / (π w_in): 800 nm, f = 300 mm, w_in = 5 mm, M² = 1 → 15.28 µm; z_R = π w0²/λ = 0.917 mm
-        // (Gaussian-beam optics, Siegman 1986).
+        // w0 = M² λ f / (π w_in): 800 nm, f = 300 mm, w_in = 5 mm, M² = 1 → 8e-7 × 0.3 / (π × 5e-3) m =
+        // 15.279 µm; z_R = π w0²/λ = π (15.279 µm)² / 0.8 µm = 0.9167 mm (Gaussian-beam optics, A. E. Siegman,
+        // "Lasers" (1986); worked by hand).
         let f = Focus { energy_mj: 2.0, waist_um: None, beam_radius_mm: Some(5.0), wavelength_nm: Some(800.0), focal_length_mm: Some(300.0), m2: 1.0 };
         f.validate("f").unwrap();
         assert!((f.waist_m() * 1e6 - 15.279).abs() < 1e-3);
