@@ -118,13 +118,23 @@ Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envel
         /// Beam quality factor M².
         #[arg(long, default_value_t = 1.0)]
         m2: f64,
+        /// Compare the intensity with this library molecule's ionization estimate (default: every library molecule).
+        #[arg(long)]
+        molecule: Option<String>,
+        /// Print the results as JSON (keys carry their units).
+        #[arg(long)]
+        json: bool,
     },
     /// Scan one or two numeric fields of a scenario (for example delay × intensity), in parallel.
     #[command(allow_negative_numbers = true)]
     #[command(
         after_help = "Examples:\n  kicktrain scan examples/scenarios/nitrogen-one-pulse.json --x pulses[0].peak_intensity_wcm2 --from 1e13 --to 8e13 --steps 15 --out scan1\n  \
 kicktrain scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 --y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --out scan2\n\n\
-Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the last pulse. Writes scan.csv and scan.svg (a line or a heatmap)."
+Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the last pulse. Writes scan.csv and scan.svg (a line or a heatmap).\n\n\
+Cost: every point is a whole run with the scenario's solver. With the default solver a 40 × 40 two-pulse scan of N2 at 300 K\n\
+takes about a minute on two cores; with \"solver\": {\"method\": \"kick\"} (each pulse replaced by its impulsive kick) under a\n\
+second. Use the kick model for first looks when every pulse is much shorter than the rotational period (about 100 fs or less\n\
+for N2, whose period is 8.4 ps), then check the interesting region with the default solver."
     )]
     Scan {
         /// Scenario file (JSON).
@@ -217,8 +227,8 @@ fn main() -> ExitCode {
         Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => {
             run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json)
         }
-        Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 } => {
-            run_focus(kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 }, fwhm_fs, &shape)
+        Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2, molecule, json } => {
+            run_focus(kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 }, fwhm_fs, &shape, molecule.as_deref(), json)
         }
         Command::Scan { scenario, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } => {
             run_scan(&scenario, &x, from, to, steps, y.as_deref(), y_from, y_to, y_steps, out.as_deref(), quiet)
@@ -456,7 +466,7 @@ fn print_simulation(s: &serde_json::Value) {
         s["run_time_s"].as_f64().unwrap_or(0.0)
     );
     let lasers = |key: &str| !s[key].as_array().map(|a| a.is_empty()).unwrap_or(true);
-    if lasers("pulses") || lasers("two_colour") {
+    if lasers("pulses") || lasers("two_colour") || lasers("terahertz") {
         println!("  {}", report::LASER_SAFETY);
     }
 }
@@ -663,11 +673,15 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
     }
     println!(
         "{} in {:.3e} W/cm² and {} kV/cm: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}",
-        mol.name, intensity, static_kv_cm, r.laser_strength_b, r.static_strength_b
+        mol.name,
+        intensity,
+        static_kv_cm,
+        no_negative_zero(r.laser_strength_b, 3),
+        no_negative_zero(r.static_strength_b, 3)
     );
     println!("{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩");
     for s in r.states.iter().filter(|s| s.j <= j_max) {
-        println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, s.energy_cm, s.energy_b, s.cos2, no_negative_zero(s.cos, 5));
+        println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, no_negative_zero(s.energy_cm, 6), no_negative_zero(s.energy_b, 5), s.cos2, no_negative_zero(s.cos, 5));
     }
     println!("thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, no_negative_zero(r.thermal_cos, 5));
     println!("(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)");
@@ -677,16 +691,58 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
     Ok(())
 }
 
-fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str) -> Result<(), Error> {
+fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str, molecule: Option<&str>, json: bool) -> Result<(), Error> {
     use kicktrain::field::{Pulse, PulseShape};
-    use kicktrain::optics::{peak_intensity_wcm2, peak_power_w};
+    use kicktrain::optics::{ionization, peak_intensity_wcm2, peak_power_w};
     focus.validate("focus")?;
     let shape = PulseShape::parse(shape).ok_or_else(|| Error::input("shape", format!("expected {}, got \"{shape}\"", PulseShape::NAMES)))?;
     let p = Pulse { center_ps: 0.0, fwhm_fs, peak_intensity_wcm2: 1.0, shape, rise_fs: None, cut_fs: None, polarization: Default::default() };
     p.validate("pulse")?;
+    // The molecules whose ionization the intensity is compared with: the named one, or every library entry
+    // that lists an ionization energy.
+    let molecules: Vec<kicktrain::molecule::Molecule> = match molecule {
+        Some(name) => {
+            let m = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
+            if m.ionization_energy_ev.is_none() {
+                return Err(Error::input("molecule", format!("{} has no ionization energy in the library; name another molecule or leave --molecule out", m.name)));
+            }
+            vec![m]
+        }
+        None => kicktrain::molecule::library()
+            .iter()
+            .map(|e| e.molecule())
+            .chain(kicktrain::molecule::top_library().iter().map(|e| e.molecule()))
+            .filter(|m| m.ionization_energy_ev.is_some())
+            .collect(),
+    };
     let power = peak_power_w(focus.energy_mj, p.envelope_area_ps());
     let w0 = focus.waist_m();
     let i0 = peak_intensity_wcm2(power, w0);
+    let field = kicktrain::units::peak_field_v_per_m(i0);
+    let fluence = 2.0 * focus.energy_mj * 1e-3 / (std::f64::consts::PI * (w0 * 100.0).powi(2));
+    // The intensity at which one pulse of this shape and duration ionizes 10 % of each molecule (ADK).
+    let pulse_at = |i: f64| Pulse { peak_intensity_wcm2: i, ..p.clone() };
+    let ceilings: Vec<(String, f64)> = molecules
+        .iter()
+        .map(|m| (m.name.clone(), ionization::intensity_for_fraction(pulse_at, m.ionization_energy_ev.unwrap_or(f64::INFINITY), IONIZED_WARNING)))
+        .collect();
+    let warning = ionization_warning(i0, &ceilings);
+    if json {
+        let v = serde_json::json!({
+            "energy_mj": focus.energy_mj, "fwhm_fs": fwhm_fs, "shape": shape,
+            "peak_power_w": power, "waist_um": w0 * 1e6, "rayleigh_range_mm": focus.rayleigh_range_mm(),
+            "peak_intensity_wcm2": i0, "peak_field_v_per_m": field, "peak_fluence_j_per_cm2": fluence,
+            "ionization": {
+                "fraction": IONIZED_WARNING,
+                "method": "ADK tunnelling estimate for one pulse of this shape and duration (order of magnitude)",
+                "intensity_wcm2_by_molecule": ceilings.iter().map(|(n, c)| (n.clone(), serde_json::json!(c))).collect::<serde_json::Map<_, _>>(),
+            },
+            "warnings": warning.iter().collect::<Vec<_>>(),
+            "laser_safety": report::LASER_SAFETY,
+        });
+        println!("{}", serde_json::to_string_pretty(&v).expect("json"));
+        return Ok(());
+    }
     println!("pulse energy        {} mJ in {fwhm_fs} fs ({shape:?})", focus.energy_mj);
     println!("peak power          {power:.4e} W");
     println!("focal waist w0      {:.3} µm (1/e² intensity radius)", w0 * 1e6);
@@ -694,10 +750,39 @@ fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str) -> Resu
         println!("Rayleigh range      {z:.4} mm");
     }
     println!("peak intensity      {i0:.4e} W/cm² (on axis, at the focus)");
-    println!("peak field          {:.4e} V/m", kicktrain::units::peak_field_v_per_m(i0));
-    println!("peak fluence        {:.4e} J/cm²", 2.0 * focus.energy_mj * 1e-3 / (std::f64::consts::PI * (w0 * 100.0).powi(2)));
+    println!("peak field          {field:.4e} V/m");
+    println!("peak fluence        {fluence:.4e} J/cm²");
+    if let Some(w) = warning {
+        println!("warning: {w}");
+    }
     println!("{}", report::LASER_SAFETY);
     Ok(())
+}
+
+/// Fraction ionized per pulse (ADK estimate) above which `focus` warns.
+const IONIZED_WARNING: f64 = 0.1;
+
+/// A warning when intensity `i0` ionizes at least [`IONIZED_WARNING`] of some of the molecules compared.
+fn ionization_warning(i0: f64, ceilings: &[(String, f64)]) -> Option<String> {
+    let over: Vec<&(String, f64)> = ceilings.iter().filter(|(_, c)| i0 > *c).collect();
+    if over.is_empty() {
+        return None;
+    }
+    let pct = IONIZED_WARNING * 100.0;
+    if over.len() == 1 && ceilings.len() == 1 {
+        let (n, c) = &ceilings[0];
+        return Some(format!("{i0:.2e} W/cm² is above {c:.2e} W/cm², where one such pulse ionizes {pct:.0} % of {n} (ADK estimate): molecules do not survive to be aligned"));
+    }
+    let highest = ceilings.iter().max_by(|a, b| a.1.total_cmp(&b.1)).expect("not empty");
+    if over.len() == ceilings.len() {
+        Some(format!(
+            "{i0:.2e} W/cm² is above the intensity where one such pulse ionizes {pct:.0} % of every library molecule (ADK estimate; highest {:.2e} W/cm² for {}): molecules do not survive to be aligned",
+            highest.1, highest.0
+        ))
+    } else {
+        let names: Vec<&str> = over.iter().map(|(n, _)| n.as_str()).collect();
+        Some(format!("{i0:.2e} W/cm² ionizes {pct:.0} % or more of {} of the {} library molecules per pulse (ADK estimate): {}", over.len(), ceilings.len(), names.join(", ")))
+    }
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -767,10 +852,19 @@ fn run_scan(
             }
         }
         report::write_file(dir, "scan.csv", &csv)?;
+        // A scanned intensity, energy or field puts the laser-safety caution on the plot.
+        let states_laser = |p: &str| ["intensity", "_wcm2", "energy_mj", "_kv_cm", "field"].iter().any(|k| p.contains(k));
+        let caution = (states_laser(&xa.path) || ya.as_ref().is_some_and(|a| states_laser(&a.path)))
+            .then(|| "Laser safety: class 4 lasers; follow your local laser safety officer and IEC 60825-1 / ANSI Z136.1.".to_string());
         let svg_text = match &ya {
-            Some(a) => svg::Heatmap::new(format!("Scan of {label}"), &xa.path, &a.path, label, xa.values.clone(), a.values.clone(), r.values.clone()).to_svg(),
+            Some(a) => {
+                let mut h = svg::Heatmap::new(format!("Scan of {label}"), xa.label(), a.label(), label, xa.values.clone(), a.values.clone(), r.values.clone());
+                h.subtitle = caution.clone();
+                h.to_svg()
+            }
             None => {
-                let mut p = svg::LinePlot::new(format!("Scan of {label}"), &xa.path, label);
+                let mut p = svg::LinePlot::new(format!("Scan of {label}"), xa.label(), label);
+                p.subtitle = caution.clone();
                 p.series.push(svg::Series {
                     label: String::new(),
                     x: xa.values.clone(),

@@ -29,6 +29,71 @@ impl Axis {
         let values = if steps == 1 { vec![from] } else { (0..steps).map(|i| from + (to - from) * i as f64 / (steps - 1) as f64).collect() };
         Ok(Axis { path: path.to_string(), values })
     }
+
+    /// The axis as a person reads it: `pulses[1].peak_intensity_wcm2` → "pulse 2 peak intensity (W/cm²)".
+    pub fn label(&self) -> String {
+        readable_path(&self.path)
+    }
+}
+
+/// Unit suffixes of scenario keys and how a label shows them (longest first, so `_kv_cm` wins over `_cm`).
+const UNIT_SUFFIXES: [(&str, &str); 17] = [
+    ("_wcm2", "W/cm²"),
+    ("_kv_cm", "kV/cm"),
+    ("_debye", "D"),
+    ("_rad", "rad"),
+    ("_deg", "°"),
+    ("_thz", "THz"),
+    ("_a3", "Å³"),
+    ("_cm", "cm⁻¹"),
+    ("_ps", "ps"),
+    ("_fs", "fs"),
+    ("_mj", "mJ"),
+    ("_um", "µm"),
+    ("_mm", "mm"),
+    ("_nm", "nm"),
+    ("_au", "a.u."),
+    ("_k", "K"),
+    ("_s", "s"),
+];
+
+/// A key path such as `pulses[1].center_ps` in words: array entries counted from 1, the unit suffix in
+/// brackets, `center` spelt "centre".
+pub fn readable_path(path: &str) -> String {
+    let mut words: Vec<String> = vec![];
+    let mut unit = None;
+    let parts: Vec<&str> = path.split('.').collect();
+    for (i, part) in parts.iter().enumerate() {
+        let (key, index) = match part.find('[') {
+            Some(b) => (&part[..b], part[b + 1..].trim_end_matches(']').parse::<usize>().ok()),
+            None => (*part, None),
+        };
+        let mut key = key.to_string();
+        if i + 1 == parts.len()
+            && let Some((suffix, u)) = UNIT_SUFFIXES.iter().find(|(s, _)| key.len() > s.len() && key.ends_with(s))
+        {
+            key.truncate(key.len() - suffix.len());
+            unit = Some(*u);
+        }
+        let name = match key.as_str() {
+            "pulses" => "pulse".to_string(),
+            "two_colour" => "two-colour pulse".to_string(),
+            "terahertz" => "terahertz pulse".to_string(),
+            "center" => "centre".to_string(),
+            "fwhm" => "FWHM".to_string(),
+            "b" => "B".to_string(),
+            k => k.replace('_', " "),
+        };
+        words.push(match index {
+            Some(n) => format!("{name} {}", n + 1),
+            None => name,
+        });
+    }
+    let text = words.join(" ");
+    match unit {
+        Some(u) => format!("{text} ({u})"),
+        None => text,
+    }
 }
 
 /// What a scan reports at each point.
@@ -145,4 +210,22 @@ pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Syn
         .collect::<Result<_>>()?;
     let values = flat.chunks(x.values.len()).map(|c| c.to_vec()).collect();
     Ok(ScanResult { x: x.clone(), y: y.cloned(), metric, values })
+}
+
+#[cfg(test)]
+mod label_tests {
+    use super::readable_path;
+
+    #[test]
+    fn key_paths_read_as_words_with_units() {
+        // The labels scan.svg puts on its axes (the CSV keeps the key path).
+        assert_eq!(readable_path("pulses[1].peak_intensity_wcm2"), "pulse 2 peak intensity (W/cm²)");
+        assert_eq!(readable_path("pulses[1].center_ps"), "pulse 2 centre (ps)");
+        assert_eq!(readable_path("pulses[0].fwhm_fs"), "pulse 1 FWHM (fs)");
+        assert_eq!(readable_path("temperature_k"), "temperature (K)");
+        assert_eq!(readable_path("static_field.strength_kv_cm"), "static field strength (kV/cm)");
+        assert_eq!(readable_path("two_colour[0].phase_rad"), "two-colour pulse 1 phase (rad)");
+        assert_eq!(readable_path("molecule.b_cm"), "molecule B (cm⁻¹)");
+        assert_eq!(readable_path("weird"), "weird");
+    }
 }

@@ -164,6 +164,8 @@ impl Scenario {
     pub fn from_value(v: &Value, path: &str) -> Result<Scenario> {
         let mut f = Fields::new(v, path)?;
         let description = f.opt_str("description", "a string")?.map(str::to_string);
+        // Files kicktrain writes carry the laser-safety caution; reading one back ignores it.
+        f.opt_str("laser_safety", "a string")?;
         let mv = f.req_value("molecule", "a library name (see `kicktrain molecules`) or an object with b_cm, alpha_parallel_a3, ...")?;
         let (molecule, molecule_source) = parse_molecule(mv, &f.path_of("molecule"))?;
         let temperature_k = f.req_f64("temperature_k", "K")?;

@@ -739,6 +739,8 @@ fn design_tiny_search_writes_a_replayable_design() {
     let summary = std::fs::read_to_string(out.join("summary.json")).unwrap();
     assert!(summary.contains("laser_safety"));
     serde_json::from_str::<Value>(&summary).expect("summary.json is JSON");
+    let design: Value = serde_json::from_str(&std::fs::read_to_string(out.join("design.json")).unwrap()).unwrap();
+    assert!(design["laser_safety"].as_str().is_some_and(|t| t.contains("class 4")), "design.json states intensities with the caution");
     let csv = std::fs::read_to_string(out.join("trace.csv")).unwrap();
     assert!(!csv.to_ascii_lowercase().contains("nan"), "NaN in the design trace");
     let replay_out = sb.dir.join("replay");
@@ -955,4 +957,72 @@ fn a_reader_that_stops_early_ends_the_program_quietly() {
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(!stderr.contains("panicked"), "{stderr}");
     assert_eq!(out.status.signal(), Some(13), "ends on SIGPIPE: {:?}", out.status);
+}
+
+#[test]
+fn pendular_prints_no_negative_zero() {
+    // Checks (common practice for printed tables): a weak field pointing down gives values that round to
+    // zero from below (⟨cosθ⟩ ≈ −2e-5, μE/B ≈ −1e-4, ground energy ≈ −1e-7 cm⁻¹); none prints as "-0.000…".
+    let r = run(&["pendular", "OCS", "--static-kv-cm", "-0.001"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    for token in r.stdout.split(|c: char| c.is_whitespace() || c == ',') {
+        let zero = token.parse::<f64>().is_ok_and(|x| x == 0.0);
+        assert!(!(zero && token.starts_with('-')), "negative zero {token:?} printed:\n{}", r.stdout);
+    }
+    assert!(r.stdout.contains("-0.00002"), "a value that does not round to zero keeps its sign:\n{}", r.stdout);
+}
+
+#[test]
+fn focus_json_and_the_ionization_warning() {
+    // Checks: `focus --json` prints JSON with unit-suffixed keys and the laser-safety caution; 2 mJ in 40 fs
+    // focused to 5 µm (I0 = 2P/(πw0²) ≈ 1.2e17 W/cm², Siegman "Lasers" ch. 17) warns that every library
+    // molecule ionizes, in text and JSON; 0.1 mJ in 100 fs on 100 µm (≈ 6e12 W/cm²) does not warn.
+    let r = run(&["focus", "--energy-mj", "2", "--fwhm-fs", "40", "--waist-um", "5", "--json"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let v: Value = serde_json::from_str(&r.stdout).expect("focus --json prints JSON");
+    let i0 = v["peak_intensity_wcm2"].as_f64().unwrap();
+    assert!((i0 / 1.196e17 - 1.0).abs() < 1e-3, "{i0}");
+    for key in ["peak_power_w", "waist_um", "peak_field_v_per_m", "peak_fluence_j_per_cm2", "laser_safety"] {
+        assert!(v.get(key).is_some(), "{key} missing: {v}");
+    }
+    assert!(v["warnings"][0].as_str().unwrap().contains("every library molecule"), "{v}");
+    let text = run(&["focus", "--energy-mj", "2", "--fwhm-fs", "40", "--waist-um", "5"]);
+    assert!(text.stdout.contains("warning:") && text.stdout.contains("Laser safety"), "{}", text.stdout);
+    let low = run(&["focus", "--energy-mj", "0.1", "--fwhm-fs", "100", "--waist-um", "100", "--molecule", "N2"]);
+    assert_eq!(low.code, Some(0), "{}", low.stderr);
+    assert!(!low.stdout.contains("warning"), "{}", low.stdout);
+    let bad = run(&["focus", "--energy-mj", "1", "--fwhm-fs", "40", "--waist-um", "30", "--molecule", "unobtainium"]);
+    assert_eq!(bad.code, Some(2));
+    assert!(bad.stderr.starts_with("error: molecule"), "{}", bad.stderr);
+}
+
+#[test]
+fn terahertz_only_run_and_design_file_carry_the_laser_safety_caution() {
+    // Checks (laser-safety practice, IEC 60825-1): a run with only a terahertz pulse prints the caution.
+    let v = json!({
+        "molecule": "OCS", "temperature_k": 1,
+        "terahertz": [{"center_ps": 0.5, "duration_fs": 500, "peak_field_kv_cm": 200, "waveform": "single_cycle"}],
+        "window": {"start_ps": 0.0, "stop_ps": 2.0, "step_fs": 50}
+    });
+    let sb = Sandbox::new("thz-safety");
+    let input = sb.write("scenario.json", &v.to_string());
+    let r = run(&["simulate", s(&input)]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(r.stdout.contains("Laser safety"), "{}", r.stdout);
+}
+
+#[test]
+fn scan_plot_labels_axes_in_words_and_keeps_key_paths_in_the_csv() {
+    // Checks: scan.svg reads "pulse 1 peak intensity (W/cm²)" with the caution (an intensity is scanned);
+    // scan.csv keeps the key path in its header.
+    let sb = Sandbox::new("scan-labels");
+    let input = sb.write("scenario.json", &cheap_scenario().to_string());
+    let out = sb.out();
+    let r = run(&["scan", s(&input), "--x", "pulses[0].peak_intensity_wcm2", "--from", "1e12", "--to", "2e12", "--steps", "2", "--out", s(&out), "--quiet"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let svg = std::fs::read_to_string(out.join("scan.svg")).unwrap();
+    assert!(svg.contains("pulse 1 peak intensity (W/cm²)"), "axis label");
+    assert!(svg.contains("Laser safety"), "caution on the plot");
+    let csv = std::fs::read_to_string(out.join("scan.csv")).unwrap();
+    assert!(csv.starts_with("pulses[0].peak_intensity_wcm2,value"), "{csv}");
 }

@@ -207,7 +207,7 @@ fn reference(case: &str) -> Reference {
         if let Some(c) = line.strip_prefix('#') {
             let lower = c.to_lowercase();
             if lower.contains("partition_function") && partition_function.is_none() {
-                partition_function = c.split(|ch: char| ch == ':' || ch == '=').nth(1).and_then(|v| v.split_whitespace().next()).and_then(|v| v.parse().ok());
+                partition_function = c.split([':', '=']).nth(1).and_then(|v| v.split_whitespace().next()).and_then(|v| v.parse().ok());
             }
         } else if columns.is_empty() {
             columns = line.split(',').map(|x| x.trim().to_string()).collect();

@@ -807,16 +807,7 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
     let mut largest_cap: f64 = 0.0;
     for (k, pb) in space.pulses.iter_mut().enumerate() {
         let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, cut_fs: (space.shape == PulseShape::Truncated).then_some(pb.cut_fs.max), polarization: Default::default() };
-        let (mut lo, mut hi) = (1e8f64.ln(), 1e17f64.ln());
-        for _ in 0..60 {
-            let mid = 0.5 * (lo + hi);
-            if crate::optics::ionization::ionized_fraction(&pulse(mid.exp()), ip) > limit {
-                hi = mid;
-            } else {
-                lo = mid;
-            }
-        }
-        let cap = lo.exp();
+        let cap = crate::optics::ionization::intensity_for_fraction(pulse, ip, limit);
         if cap < pb.peak_intensity_wcm2.min {
             return Err(Error::input(
                 format!("pulses.each[{k}].peak_intensity_wcm2"),

@@ -197,7 +197,11 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
         Some(s) => num(s.value),
         None => Value::Null,
     };
-    write_file(dir, "design.json", &(serde_json::to_string_pretty(&scenario.to_value()).expect("json") + "\n"))?;
+    let mut replay = scenario.to_value();
+    if let Value::Object(map) = &mut replay {
+        map.insert("laser_safety".into(), json!(LASER_SAFETY));
+    }
+    write_file(dir, "design.json", &(serde_json::to_string_pretty(&replay).expect("json") + "\n"))?;
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
     let bt = &base.result.trace;
     let extra: Vec<(&str, &[f64])> = [("baseline_cos2", &bt.cos2), ("baseline_cos2_2d", &bt.cos2_2d), ("baseline_three_axis", &bt.three_axis)]

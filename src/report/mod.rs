@@ -12,7 +12,7 @@ use serde_json::{Value, json};
 use std::path::Path;
 
 /// The laser-safety caution printed with every output that states intensities or pulse energies.
-pub const LASER_SAFETY: &str = "Laser safety: intensities of 1e12-1e14 W/cm² come from class 4 lasers. \
+pub const LASER_SAFETY: &str = "Laser safety: pulses like these come from class 4 lasers (terahertz pulses from sources they pump). \
 Follow your local laser safety officer and the applicable standards (IEC 60825-1, ANSI Z136.1); \
 these numbers are no substitute for a safety assessment.";
 

@@ -182,6 +182,8 @@ pub struct LinePlot {
 pub struct Heatmap {
     /// Title drawn at the top.
     pub title: String,
+    /// Optional second line under the title.
+    pub subtitle: Option<String>,
     /// Text under the x axis.
     pub x_label: String,
     /// Text beside the y axis, drawn rotated.
@@ -1109,7 +1111,7 @@ impl Heatmap {
         y: Vec<f64>,
         z: Vec<Vec<f64>>,
     ) -> Self {
-        Heatmap { title: title.into(), x_label: x_label.into(), y_label: y_label.into(), z_label: z_label.into(), x, y, z, width: 800.0, height: 560.0 }
+        Heatmap { title: title.into(), subtitle: None, x_label: x_label.into(), y_label: y_label.into(), z_label: z_label.into(), x, y, z, width: 800.0, height: 560.0 }
     }
 
     /// Write the SVG document to `path`.
@@ -1144,7 +1146,7 @@ impl Heatmap {
         let zr = if zlo <= zhi { widen(zlo, zhi) } else { (0.0, 1.0) };
 
         // Colour bar ticks decide the right margin.
-        let top0 = content_top(&self.title, None);
+        let top0 = content_top(&self.title, self.subtitle.as_deref());
         let bar_h_guess = (height - top0 - 8.0 - BOTTOM_MARGIN).max(40.0);
         let (zt, zl) = y_ticks(zr.0, zr.1, bar_h_guess, false);
         let zw = zl.iter().map(|l| text_width(l, TICK_FONT)).fold(0.0, f64::max);
@@ -1164,7 +1166,7 @@ impl Heatmap {
             let _ = write!(svg.buf, "<stop offset=\"{}\" stop-color=\"{}\"/>", N(t), colormap_hex(t));
         }
         svg.raw("</linearGradient></defs>\n");
-        draw_titles(&mut svg, &f, width, &self.title, None);
+        draw_titles(&mut svg, &f, width, &self.title, self.subtitle.as_deref());
 
         // Cells, merging horizontal runs of identical colour.
         svg.raw("<g shape-rendering=\"crispEdges\" stroke=\"none\">\n");
