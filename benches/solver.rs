@@ -157,7 +157,9 @@ fn designs() {
         )
     };
     println!("designs with the default search (seed 1)");
-    for (name, text) in [("built-in objective (two pulses, N2 at 300 K)", builtin), ("three 50 fs pulses, N2-like 300 K", n2(3)), ("four 50 fs pulses, N2-like 300 K", n2(4))] {
+    for (name, text) in
+        [("built-in objective (two pulses, N2 at 300 K)", builtin), ("three 50 fs pulses, N2-like 300 K", n2(3)), ("four 50 fs pulses, N2-like 300 K", n2(4))]
+    {
         let obj = Objective::from_json_str(&text, name).unwrap();
         let t0 = Instant::now();
         let r = design(&obj, &Silent).unwrap();
@@ -189,7 +191,9 @@ fn three_axis() {
     for intensity in list("KICKTRAIN_BENCH_3D_I", "5e11") {
         let pulse = Pulse { polarization: PulsePolarization { angle_deg: 0.0, ellipticity: 0.5 }, ..Pulse::gaussian(0.0, 1000.0, intensity) };
         let field = FieldModel { pulses: vec![pulse], ..Default::default() };
-        for (t, with_2d) in list("KICKTRAIN_BENCH_3D_K", "1").into_iter().flat_map(|t| list("KICKTRAIN_BENCH_3D_2D", "0,1").into_iter().map(move |d| (t, d != 0.0))) {
+        for (t, with_2d) in
+            list("KICKTRAIN_BENCH_3D_K", "1").into_iter().flat_map(|t| list("KICKTRAIN_BENCH_3D_2D", "0,1").into_iter().map(move |d| (t, d != 0.0)))
+        {
             let t0 = Instant::now();
             let solver = Solver::new(&mol, t, SolverSettings::default()).unwrap();
             let r = solver.run(&field, &times, with_2d).unwrap();

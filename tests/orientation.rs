@@ -292,7 +292,15 @@ fn slow_rise_and_fast_switch_off_freeze_the_pendular_state() {
     let mol = Molecule::linear("light rotor", 2.0, 0.0, 3.0, 1.0, [1.0, 1.0]);
     let intensity = 2e13;
     let ground = pendular(&mol, intensity, 0.0, 0.0, 2).unwrap().states.into_iter().find(|s| s.m == 0 && s.j == 0).unwrap();
-    let cut = Pulse { center_ps: 0.0, fwhm_fs: 60_000.0, peak_intensity_wcm2: intensity, shape: kicktrain::field::PulseShape::Truncated, rise_fs: Some(10.0), cut_fs: None, polarization: Default::default() };
+    let cut = Pulse {
+        center_ps: 0.0,
+        fwhm_fs: 60_000.0,
+        peak_intensity_wcm2: intensity,
+        shape: kicktrain::field::PulseShape::Truncated,
+        rise_fs: Some(10.0),
+        cut_fs: None,
+        polarization: Default::default(),
+    };
     let settings = SolverSettings { method: Method::Finite, ..Default::default() };
     let r = Solver::new(&mol, 0.0, settings).unwrap().run(&FieldModel::pulses(vec![cut.clone()]), &[0.011], false).unwrap();
     assert!((r.trace.cos2[0] - ground.cos2).abs() < 3e-3, "after the cut {} vs pendular {}", r.trace.cos2[0], ground.cos2);

@@ -56,7 +56,11 @@ fn partition_function_and_discarded_population_equal_a_direct_sum() {
                 let e = ThermalEnsemble::new(&m, t, tol).unwrap();
                 let (z, above) = direct_sum(&m, t, e.j_max);
                 assert!((e.partition_function / z - 1.0).abs() < 1e-12, "{name} {t} K: Z {} vs direct {z}", e.partition_function);
-                assert!((e.discarded_population - above).abs() < 1e-14 + 1e-9 * above, "{name} {t} K tol {tol}: discarded {} vs direct {above}", e.discarded_population);
+                assert!(
+                    (e.discarded_population - above).abs() < 1e-14 + 1e-9 * above,
+                    "{name} {t} K tol {tol}: discarded {} vs direct {above}",
+                    e.discarded_population
+                );
                 assert!(e.discarded_population <= tol, "{name} {t} K: {} above the tolerance {tol}", e.discarded_population);
                 // The truncation is not wasteful either: one level fewer would leave out more than the tolerance.
                 let (_, one_fewer) = direct_sum(&m, t, e.j_max - 1);

@@ -223,8 +223,10 @@ fn a_circular_pulse_acts_as_an_anti_aligning_pulse_along_the_beam() {
     for method in [Method::Kick, Method::Finite] {
         // One fixed step for both solvers inside the pulse (their default steps differ; each is within ~1e-6).
         let settings = SolverSettings { method, step_fs: Some(2.0), ..Default::default() };
-        let circular = Solver::new(&co2, 10.0, settings).unwrap().run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 4e13, 30.0, 1.0)]), &times, true).unwrap().trace;
-        let along_z = Solver::new(&swapped, 10.0, settings).unwrap().run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 0.0, 0.0)]), &times, false).unwrap().trace;
+        let circular =
+            Solver::new(&co2, 10.0, settings).unwrap().run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 4e13, 30.0, 1.0)]), &times, true).unwrap().trace;
+        let along_z =
+            Solver::new(&swapped, 10.0, settings).unwrap().run(&FieldModel::pulses(vec![pulse(0.0, 100.0, 2e13, 0.0, 0.0)]), &times, false).unwrap().trace;
         let d = max_diff(column(&circular, "cos2_Y"), &along_z.cos2);
         assert!(d < 1e-8, "{method:?}: Y average vs I/2 along Z with α∥ ↔ α⊥: {d}");
         let moved = along_z.cos2.iter().map(|v| (v - 1.0 / 3.0).abs()).fold(0.0, f64::max);

@@ -53,7 +53,18 @@ pub fn simpson_grid(a: f64, b: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
     let n = n.max(2) + n % 2;
     let h = (b - a) / n as f64;
     let x = (0..=n).map(|i| a + i as f64 * h).collect();
-    let w = (0..=n).map(|i| h / 3.0 * if i == 0 || i == n { 1.0 } else if i % 2 == 1 { 4.0 } else { 2.0 }).collect();
+    let w = (0..=n)
+        .map(|i| {
+            h / 3.0
+                * if i == 0 || i == n {
+                    1.0
+                } else if i % 2 == 1 {
+                    4.0
+                } else {
+                    2.0
+                }
+        })
+        .collect();
     (x, w)
 }
 

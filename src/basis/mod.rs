@@ -3,8 +3,8 @@
 //! A field polarized along Z conserves M, and cos²θ keeps the parity of J, so the problem splits
 //! into independent (|M|, parity) blocks. Inside a block the states are J = j_min, j_min + 2, ….
 
-pub mod lab;
 pub mod detector;
+pub mod lab;
 pub mod legendre;
 pub mod top;
 pub mod wigner;

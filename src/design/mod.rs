@@ -701,14 +701,22 @@ impl Objective {
             return Err(Error::input("goal.observable", "⟨cosθ⟩ needs an orienting field: give static_field_kv_cm, pulses.two_colour or terahertz"));
         }
         if goal.observable == Observable::ThreeAxis && obj.molecule().top.is_none() {
-            return Err(Error::input("goal.observable", format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", obj.molecule().name)));
+            return Err(Error::input(
+                "goal.observable",
+                format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", obj.molecule().name),
+            ));
         }
         let along_z = |p: &PulseBounds| {
-            p.angle_deg.is_fixed() && p.ellipticity.is_fixed() && crate::field::PulsePolarization { angle_deg: p.angle_deg.min, ellipticity: p.ellipticity.min }.is_along_z()
+            p.angle_deg.is_fixed()
+                && p.ellipticity.is_fixed()
+                && crate::field::PulsePolarization { angle_deg: p.angle_deg.min, ellipticity: p.ellipticity.min }.is_along_z()
         };
         let polarized = !obj.space.pulses.iter().all(along_z);
         if polarized && (obj.space.static_field_kv_cm.is_some() || obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
-            return Err(Error::input("pulses.polarization", "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses"));
+            return Err(Error::input(
+                "pulses.polarization",
+                "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses",
+            ));
         }
         // The longest design must replay as a valid scenario: check before any search starts.
         let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
@@ -806,7 +814,15 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
         .ok_or_else(|| Error::input("molecule.ionization_energy_ev", format!("max_ionized_fraction needs the ionization energy of {} (eV)", mol.name)))?;
     let mut largest_cap: f64 = 0.0;
     for (k, pb) in space.pulses.iter_mut().enumerate() {
-        let pulse = |i: f64| Pulse { center_ps: 0.0, fwhm_fs: pb.fwhm_fs.max, peak_intensity_wcm2: i, shape: space.shape, rise_fs: space.rise_fs, cut_fs: (space.shape == PulseShape::Truncated).then_some(pb.cut_fs.max), polarization: Default::default() };
+        let pulse = |i: f64| Pulse {
+            center_ps: 0.0,
+            fwhm_fs: pb.fwhm_fs.max,
+            peak_intensity_wcm2: i,
+            shape: space.shape,
+            rise_fs: space.rise_fs,
+            cut_fs: (space.shape == PulseShape::Truncated).then_some(pb.cut_fs.max),
+            polarization: Default::default(),
+        };
         let cap = crate::optics::ionization::intensity_for_fraction(pulse, ip, limit);
         if cap < pb.peak_intensity_wcm2.min {
             return Err(Error::input(
@@ -982,8 +998,9 @@ fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {
     let d = SearchSettings::default();
     let effort = match f.opt_str("effort", "\"quick\", \"normal\" or \"thorough\"")? {
         None => Effort::Normal,
-        Some(name) => Effort::parse(name)
-            .ok_or_else(|| Error::input(join(path, "effort"), format!("expected \"quick\", \"normal\" or \"thorough\", got \"{name}\"")))?,
+        Some(name) => {
+            Effort::parse(name).ok_or_else(|| Error::input(join(path, "effort"), format!("expected \"quick\", \"normal\" or \"thorough\", got \"{name}\"")))?
+        }
     };
     let s = SearchSettings {
         seed: f.opt_usize("seed", "a seed")?.map(|x| x as u64).unwrap_or(d.seed),
@@ -1013,7 +1030,10 @@ fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {
         }
     }
     if !(s.agreement > 0.0 && s.agreement <= 0.1) {
-        return Err(Error::input(join(path, "agreement"), format!("expected a tolerance above 0 and at most 0.1 (units of the observable), got {}", s.agreement)));
+        return Err(Error::input(
+            join(path, "agreement"),
+            format!("expected a tolerance above 0 and at most 0.1 (units of the observable), got {}", s.agreement),
+        ));
     }
     if let Some(t) = s.time_limit_s
         && !(t > 0.0 && t <= 1e7)

@@ -456,7 +456,14 @@ fn argmin_error(e: argmin::core::Error) -> Error {
 
 /// Particle swarm in the unit cube from a given first population with its costs; returns (best point,
 /// best cost).
-fn swarm(ev: &Evaluator, space: &DesignSpace, rng: &mut rand::rngs::StdRng, first: Vec<(Vec<f64>, f64)>, iterations: usize, model: Model) -> Result<(Vec<f64>, f64)> {
+fn swarm(
+    ev: &Evaluator,
+    space: &DesignSpace,
+    rng: &mut rand::rngs::StdRng,
+    first: Vec<(Vec<f64>, f64)>,
+    iterations: usize,
+    model: Model,
+) -> Result<(Vec<f64>, f64)> {
     let d = space.dims();
     let cost = Cost { ev, space, model, periodic: false };
     let particles: Vec<Particle<Vec<f64>, f64>> =
@@ -539,7 +546,15 @@ fn line_sweeps(ev: &Evaluator, space: &DesignSpace, start: Vec<f64>, start_cost:
 /// The first population of a start: every seed and `sample` random points are scored together (one
 /// batch), and the best `size` of them that lie apart from each other (0.01 in every coordinate) become
 /// the swarm. Returns (point, cost) pairs.
-fn first_population(ev: &Evaluator, space: &DesignSpace, model: Model, seeds: &[Vec<f64>], size: usize, sample: usize, rng: &mut rand::rngs::StdRng) -> Result<Vec<(Vec<f64>, f64)>> {
+fn first_population(
+    ev: &Evaluator,
+    space: &DesignSpace,
+    model: Model,
+    seeds: &[Vec<f64>],
+    size: usize,
+    sample: usize,
+    rng: &mut rand::rngs::StdRng,
+) -> Result<Vec<(Vec<f64>, f64)>> {
     let dims = space.dims();
     let mut points: Vec<Vec<f64>> = seeds.to_vec();
     points.extend((0..sample.max(size)).map(|_| (0..dims).map(|_| rng.random::<f64>()).collect::<Vec<f64>>()));
@@ -569,7 +584,15 @@ fn first_population(ev: &Evaluator, space: &DesignSpace, model: Model, seeds: &[
 }
 
 /// Search one design space (fixed pulse count). `previous` is the best design with one pulse fewer.
-fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, plan: &SearchPlan, previous: Option<&FieldModel>, deadline: Option<Instant>) -> Result<(Candidate, Confidence)> {
+fn search_space(
+    ev: &Evaluator,
+    space: &DesignSpace,
+    label: &str,
+    seed: u64,
+    plan: &SearchPlan,
+    previous: Option<&FieldModel>,
+    deadline: Option<Instant>,
+) -> Result<(Candidate, Confidence)> {
     let obj = ev.obj;
     let sense = obj.goal.sense();
     let (screen, polish) = ev.screening_models();
@@ -672,11 +695,8 @@ fn search_space(ev: &Evaluator, space: &DesignSpace, label: &str, seed: u64, pla
     }
     let field = space.field(&u);
     let kick = if ev.kick.is_some() { Some(ev.score_quietly(&field, Model::Kick)?) } else { None };
-    let outcomes: Vec<StartOutcome> = starts
-        .iter()
-        .zip(&full_values)
-        .map(|((_, sw, po, n), f)| StartOutcome { swarm: *sw, polished: *po, full: *f, evaluations: *n })
-        .collect();
+    let outcomes: Vec<StartOutcome> =
+        starts.iter().zip(&full_values).map(|((_, sw, po, n), f)| StartOutcome { swarm: *sw, polished: *po, full: *f, evaluations: *n }).collect();
     let best_start = full_values.iter().map(|v| sense * v).fold(f64::NEG_INFINITY, f64::max);
     let worst_start = full_values.iter().map(|v| sense * v).fold(f64::INFINITY, f64::min);
     let agreeing = full_values.iter().filter(|v| sense * **v >= best_start - plan.agreement).count();

@@ -101,7 +101,10 @@ impl PulsePolarization {
             return Err(Error::input(format!("{path}.angle_deg"), format!("expected a finite angle in degrees, got {}", self.angle_deg)));
         }
         if !self.ellipticity.is_finite() || !(0.0..=1.0).contains(&self.ellipticity) {
-            return Err(Error::input(format!("{path}.ellipticity"), format!("expected a minor-to-major field ratio between 0 and 1, got {}", self.ellipticity)));
+            return Err(Error::input(
+                format!("{path}.ellipticity"),
+                format!("expected a minor-to-major field ratio between 0 and 1, got {}", self.ellipticity),
+            ));
         }
         Ok(())
     }
@@ -426,7 +429,15 @@ pub struct TwoColourPulse {
 impl TwoColourPulse {
     /// The envelope as a pulse of unit peak intensity (for shape, support and areas).
     pub fn envelope_pulse(&self) -> Pulse {
-        Pulse { center_ps: self.center_ps, fwhm_fs: self.fwhm_fs, peak_intensity_wcm2: 1.0, shape: self.shape, rise_fs: None, cut_fs: None, polarization: PulsePolarization::default() }
+        Pulse {
+            center_ps: self.center_ps,
+            fwhm_fs: self.fwhm_fs,
+            peak_intensity_wcm2: 1.0,
+            shape: self.shape,
+            rise_fs: None,
+            cut_fs: None,
+            polarization: PulsePolarization::default(),
+        }
     }
 
     /// Check the element; errors name the field under `path`.
@@ -749,7 +760,15 @@ mod tests {
     #[test]
     fn shapes_have_unit_peak_half_max_at_fwhm_and_right_area() {
         for shape in [PulseShape::Gaussian, PulseShape::Sech2, PulseShape::FlatTop, PulseShape::Truncated] {
-            let p = Pulse { center_ps: 1.0, fwhm_fs: 80.0, peak_intensity_wcm2: 1e13, shape, rise_fs: Some(20.0), cut_fs: None, polarization: PulsePolarization::default() };
+            let p = Pulse {
+                center_ps: 1.0,
+                fwhm_fs: 80.0,
+                peak_intensity_wcm2: 1e13,
+                shape,
+                rise_fs: Some(20.0),
+                cut_fs: None,
+                polarization: PulsePolarization::default(),
+            };
             assert!((p.envelope(1.0) - 1.0).abs() < 1e-15);
             // Half maximum at ±FWHM/2 (definition of FWHM); a truncated pulse only on its rising side.
             if shape != PulseShape::Truncated {

@@ -171,11 +171,19 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
         beta_parallel_au: Some(s(
             28.77,
-            computed_beta!("β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum)", "", " (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 29.26; the same run gives α_zz 15.55 a.u. = 2.304 Å³ and μ_z +0.050 a.u. (C⁻O⁺)"),
+            computed_beta!(
+                "β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum)",
+                "",
+                " (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 29.26; the same run gives α_zz 15.55 a.u. = 2.304 Å³ and μ_z +0.050 a.u. (C⁻O⁺)"
+            ),
         )),
         beta_perpendicular_au: Some(s(
             7.98,
-            computed_beta!("β_zxx, CCSD(T)/d-aug-cc-pVTZ", "", " (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 8.46"),
+            computed_beta!(
+                "β_zxx, CCSD(T)/d-aug-cc-pVTZ",
+                "",
+                " (C → O); one field step (0.002 a.u.) corrected by the aug-cc-pVTZ Richardson shift, finite-field error ±0.03, basis error larger: aug-cc-pVTZ gives 8.46"
+            ),
         )),
         ionization_energy_ev: Some(s(14.014, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of CO")),
     },
@@ -226,11 +234,19 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
         beta_parallel_au: Some(s(
             52.50,
-            computed_beta!("β_zzz, CCSD(T)/aug-cc-pVTZ", "", " (terminal N → O; bond lengths r(NN) 1.1273 Å, r(NO) 1.1851 Å from memory); one field step (0.002 a.u., raw 52.55) corrected by the aug-cc-pVDZ Richardson shift (−0.04); basis uncertainty about 5 % (aug-cc-pVDZ gives 59.79; at the HF level d-aug-cc-pVTZ lowers β_zzz by 2.2); this level still gets the sign of the small dipole wrong (μ_z −0.048 a.u.)"),
+            computed_beta!(
+                "β_zzz, CCSD(T)/aug-cc-pVTZ",
+                "",
+                " (terminal N → O; bond lengths r(NN) 1.1273 Å, r(NO) 1.1851 Å from memory); one field step (0.002 a.u., raw 52.55) corrected by the aug-cc-pVDZ Richardson shift (−0.04); basis uncertainty about 5 % (aug-cc-pVDZ gives 59.79; at the HF level d-aug-cc-pVTZ lowers β_zzz by 2.2); this level still gets the sign of the small dipole wrong (μ_z −0.048 a.u.)"
+            ),
         )),
         beta_perpendicular_au: Some(s(
             5.60,
-            computed_beta!("β_zxx, CCSD(T)/aug-cc-pVTZ", "", " (terminal N → O); one field step (0.002 a.u.) corrected as for β_zzz; basis uncertainty about 25 % (aug-cc-pVDZ gives 6.47; at the HF level d-aug-cc-pVTZ lowers β_zxx from 4.8 to 3.5)"),
+            computed_beta!(
+                "β_zxx, CCSD(T)/aug-cc-pVTZ",
+                "",
+                " (terminal N → O); one field step (0.002 a.u.) corrected as for β_zzz; basis uncertainty about 25 % (aug-cc-pVDZ gives 6.47; at the HF level d-aug-cc-pVTZ lowers β_zxx from 4.8 to 3.5)"
+            ),
         )),
         ionization_energy_ev: Some(s(12.889, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of N2O")),
     },
@@ -260,11 +276,19 @@ static LIBRARY: &[LibraryEntry] = &[
         // β: no published β_zzz/β_zxx pair was reachable, so both come from our own CCSD(T) computation.
         beta_parallel_au: Some(s(
             -42.04,
-            computed_beta!("β_zzz, CCSD(T)/aug-cc-pVTZ", "", " (O → S; bond lengths r(CO) 1.1578 Å, r(CS) 1.5601 Å from memory); one field step (0.002 a.u.) corrected by the aug-cc-pVDZ Richardson shift; basis uncertainty about 5 % (aug-cc-pVDZ gives −40.38); the same run gives α_zz 52.53 a.u. = 7.784 Å³ and μ_z +0.276 a.u."),
+            computed_beta!(
+                "β_zzz, CCSD(T)/aug-cc-pVTZ",
+                "",
+                " (O → S; bond lengths r(CO) 1.1578 Å, r(CS) 1.5601 Å from memory); one field step (0.002 a.u.) corrected by the aug-cc-pVDZ Richardson shift; basis uncertainty about 5 % (aug-cc-pVDZ gives −40.38); the same run gives α_zz 52.53 a.u. = 7.784 Å³ and μ_z +0.276 a.u."
+            ),
         )),
         beta_perpendicular_au: Some(s(
             -53.42,
-            computed_beta!("β_zxx, CCSD(T)/aug-cc-pVTZ", "", " (O → S); one field step corrected as for β_zzz; basis uncertainty about 5–10 % (aug-cc-pVDZ gives −44.04)"),
+            computed_beta!(
+                "β_zxx, CCSD(T)/aug-cc-pVTZ",
+                "",
+                " (O → S); one field step corrected as for β_zzz; basis uncertainty about 5–10 % (aug-cc-pVDZ gives −44.04)"
+            ),
         )),
         ionization_energy_ev: Some(s(11.18, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of OCS")),
     },
@@ -296,11 +320,19 @@ static LIBRARY: &[LibraryEntry] = &[
         // CCSD(T) computation, whose β̄ = (3/5)(β_zzz + 2β_zxx) = −7.74 (checked in the tests below).
         beta_parallel_au: Some(s(
             -11.68,
-            computed_beta!("β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum)", " (fields 0.002/0.004 a.u., Richardson)", " (Cl → H); finite-field error ±0.02; diffuse functions matter (aug-cc-pVTZ gives −18.76); the same run gives α_zz 18.48, α_xx 16.83, μ_z 0.4266 a.u., against 18.48, 16.88, 0.4238 of Maroulis 1998 (J. Chem. Phys. 108, 5432, abstract)"),
+            computed_beta!(
+                "β_zzz, CCSD(T)/d-aug-cc-pVTZ (aug-cc-pVTZ plus one even-tempered diffuse shell per angular momentum)",
+                " (fields 0.002/0.004 a.u., Richardson)",
+                " (Cl → H); finite-field error ±0.02; diffuse functions matter (aug-cc-pVTZ gives −18.76); the same run gives α_zz 18.48, α_xx 16.83, μ_z 0.4266 a.u., against 18.48, 16.88, 0.4238 of Maroulis 1998 (J. Chem. Phys. 108, 5432, abstract)"
+            ),
         )),
         beta_perpendicular_au: Some(s(
             -0.61,
-            computed_beta!("β_zxx, CCSD(T)/d-aug-cc-pVTZ", " (fields 0.002/0.004 a.u., Richardson)", " (Cl → H); small and basis-sensitive (aug-cc-pVTZ gives +0.62)"),
+            computed_beta!(
+                "β_zxx, CCSD(T)/d-aug-cc-pVTZ",
+                " (fields 0.002/0.004 a.u., Richardson)",
+                " (Cl → H); small and basis-sensitive (aug-cc-pVTZ gives +0.62)"
+            ),
         )),
         ionization_energy_ev: Some(s(12.74, "from memory: NIST Chemistry WebBook, gas-phase ion energetics, evaluated ionization energy of HCl")),
     },

@@ -689,7 +689,8 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> 
             let hi = (t_best + dt).min(*trace.times_ps.last().expect("samples"));
             let mut score = Score { value: series[best], t_ps: Some(t_best) };
             if dt > 0.0 && lo >= field_free {
-                let f = |t: f64| sense * if goal.observable == Observable::ThreeAxis { after.eval_three_axis(t).unwrap_or(f64::NAN) } else { pick(after.eval(t)) };
+                let f =
+                    |t: f64| sense * if goal.observable == Observable::ThreeAxis { after.eval_three_axis(t).unwrap_or(f64::NAN) } else { pick(after.eval(t)) };
                 // ⟨cos²θ⟩ of a linear molecule: Newton steps on the exact derivatives (a few passes);
                 // elsewhere, or if Newton leaves the bracket, golden-section search.
                 let newton = match (after, goal.observable) {

@@ -119,7 +119,15 @@ mod tests {
         // = ln(1 + √2) = 0.881374.
         // 1 mJ, 100 fs, w0 = 50 µm → P = 9.394e9 W, I0 = 2 × 9.394e9 / (π × 2.5e-9 m²) = 2.392e18 W/m²
         // = 2.392e14 W/cm² (Gaussian); sech²: P = 8.814e9 W, I0 = 2.245e14 W/cm².
-        let g = Pulse { center_ps: 0.0, fwhm_fs: 100.0, peak_intensity_wcm2: 1.0, shape: PulseShape::Gaussian, rise_fs: None, cut_fs: None, polarization: Default::default() };
+        let g = Pulse {
+            center_ps: 0.0,
+            fwhm_fs: 100.0,
+            peak_intensity_wcm2: 1.0,
+            shape: PulseShape::Gaussian,
+            rise_fs: None,
+            cut_fs: None,
+            polarization: Default::default(),
+        };
         let p = peak_power_w(1.0, g.envelope_area_ps());
         assert!((p / 9.394e9 - 1.0).abs() < 2e-4, "{p}");
         assert!((peak_intensity_wcm2(p, 50e-6) / 2.392e14 - 1.0).abs() < 5e-4);

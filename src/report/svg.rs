@@ -417,11 +417,7 @@ fn lab_to_srgb(l: f64, a: f64, b: f64) -> (u8, u8, u8) {
     let d = 6.0 / 29.0;
     let inv = |t: f64| if t > d { t * t * t } else { 3.0 * d * d * (t - 4.0 / 29.0) };
     let (x, y, z) = (0.95047 * inv(fx), inv(fy), 1.08883 * inv(fz));
-    let lin = [
-        3.2404542 * x - 1.5371385 * y - 0.4985314 * z,
-        -0.9692660 * x + 1.8760108 * y + 0.0415560 * z,
-        0.0556434 * x - 0.2040259 * y + 1.0572252 * z,
-    ];
+    let lin = [3.2404542 * x - 1.5371385 * y - 0.4985314 * z, -0.9692660 * x + 1.8760108 * y + 0.0415560 * z, 0.0556434 * x - 0.2040259 * y + 1.0572252 * z];
     let gamma = |c: f64| {
         let c = c.clamp(0.0, 1.0);
         let v = if c <= 0.0031308 { 12.92 * c } else { 1.055 * c.powf(1.0 / 2.4) - 0.055 };
@@ -1111,7 +1107,18 @@ impl Heatmap {
         y: Vec<f64>,
         z: Vec<Vec<f64>>,
     ) -> Self {
-        Heatmap { title: title.into(), subtitle: None, x_label: x_label.into(), y_label: y_label.into(), z_label: z_label.into(), x, y, z, width: 800.0, height: 560.0 }
+        Heatmap {
+            title: title.into(),
+            subtitle: None,
+            x_label: x_label.into(),
+            y_label: y_label.into(),
+            z_label: z_label.into(),
+            x,
+            y,
+            z,
+            width: 800.0,
+            height: 560.0,
+        }
     }
 
     /// Write the SVG document to `path`.

@@ -404,21 +404,19 @@ impl LabOps {
             fastest: 0.0,
         };
         let alpha = rotor.alpha_weights;
-        let body_coupling = |p: &PairOps, r: usize| -> DMatrix<f64> { (0..3).map(|g| &p.body[r][g] * alpha[g]).fold(DMatrix::zeros(p.body[r][0].nrows(), p.body[r][0].ncols()), |acc, m| acc + m) };
-        let parts = [
-            kind_weights(&lab_pair(LabAxis::Z, LabAxis::Z)),
-            kind_weights(&lab_pair(LabAxis::X, LabAxis::X)),
-            {
-                let (xz, zx) = (lab_pair(LabAxis::X, LabAxis::Z), lab_pair(LabAxis::Z, LabAxis::X));
-                let mut s = [[Complex64::new(0.0, 0.0); 5]; 3];
-                for r in 0..3 {
-                    for q in 0..5 {
-                        s[r][q] = xz[r][q] + zx[r][q];
-                    }
+        let body_coupling = |p: &PairOps, r: usize| -> DMatrix<f64> {
+            (0..3).map(|g| &p.body[r][g] * alpha[g]).fold(DMatrix::zeros(p.body[r][0].nrows(), p.body[r][0].ncols()), |acc, m| acc + m)
+        };
+        let parts = [kind_weights(&lab_pair(LabAxis::Z, LabAxis::Z)), kind_weights(&lab_pair(LabAxis::X, LabAxis::X)), {
+            let (xz, zx) = (lab_pair(LabAxis::X, LabAxis::Z), lab_pair(LabAxis::Z, LabAxis::X));
+            let mut s = [[Complex64::new(0.0, 0.0); 5]; 3];
+            for r in 0..3 {
+                for q in 0..5 {
+                    s[r][q] = xz[r][q] + zx[r][q];
                 }
-                kind_weights(&s)
-            },
-        ];
+            }
+            kind_weights(&s)
+        }];
         let mut t = vec![];
         for (part, lam) in parts.iter().enumerate() {
             ops.triplets(lam, |p, r| body_coupling(p, r), part, &mut t);
@@ -626,7 +624,9 @@ impl LabOps {
             .slices
             .iter()
             .map(|sl| {
-                (sl.start < live).then(|| DMatrix::from_fn(sl.nk, sl.mus.len() * two_k, |i, col| state.psi[(sl.start + (col / two_k) * sl.nk + i, col % two_k)] * sq[col % k]))
+                (sl.start < live).then(|| {
+                    DMatrix::from_fn(sl.nk, sl.mus.len() * two_k, |i, col| state.psi[(sl.start + (col / two_k) * sl.nk + i, col % two_k)] * sq[col % k])
+                })
             })
             .collect();
         let lams: Vec<[f64; KINDS]> = LAB_AXES.iter().map(|&f| kind_weights(&lab_pair(f, f))).collect();
@@ -967,7 +967,9 @@ impl LabSolver {
                         if j_top + reach > MAX_LAB_BASIS_J {
                             return Err(Error::input(
                                 "pulses",
-                                format!("the pulses would drive the rotor beyond J = {MAX_LAB_BASIS_J}, the largest all-M basis kicktrain uses; expected weaker pulses or a lower temperature"),
+                                format!(
+                                    "the pulses would drive the rotor beyond J = {MAX_LAB_BASIS_J}, the largest all-M basis kicktrain uses; expected weaker pulses or a lower temperature"
+                                ),
                             ));
                         }
                         chunks.push((LabBlock { class: ci, s, m_parity, j_max }, part.to_vec()));
@@ -988,7 +990,8 @@ impl LabSolver {
         chunks.sort_by_key(|c| std::cmp::Reverse(c.0.j_max));
         let group = 16 * rayon::current_num_threads().max(1);
         for batch in chunks.chunks(group) {
-            let outcomes: Vec<ChunkOutcome> = batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d)).collect::<Result<Vec<_>>>()?;
+            let outcomes: Vec<ChunkOutcome> =
+                batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d)).collect::<Result<Vec<_>>>()?;
             for o in outcomes {
                 timing.propagate_cpu_s += o.propagate_s;
                 timing.retries += o.retries;
@@ -1068,7 +1071,16 @@ impl LabSolver {
     }
 
     #[allow(clippy::too_many_arguments)]
-    fn run_chunk(&self, block: LabBlock, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64, with_2d: bool) -> Result<ChunkOutcome> {
+    fn run_chunk(
+        &self,
+        block: LabBlock,
+        cols: &[Column],
+        field: &FieldModel,
+        events: &[Event],
+        times: &[f64],
+        t_first: f64,
+        with_2d: bool,
+    ) -> Result<ChunkOutcome> {
         let mut block = block;
         let (mut retries, mut retry_s) = (0, 0.0);
         loop {
@@ -1081,14 +1093,25 @@ impl LabSolver {
             retries += 1;
             retry_s += started.elapsed().as_secs_f64();
             if block.j_max >= MAX_LAB_BASIS_J {
-                return Err(Error::Numerical(format!("all-M block {block:?}: the basis would need J > {MAX_LAB_BASIS_J}; lower the intensities or the temperature")));
+                return Err(Error::Numerical(format!(
+                    "all-M block {block:?}: the basis would need J > {MAX_LAB_BASIS_J}; lower the intensities or the temperature"
+                )));
             }
             block.j_max = (block.j_max + (block.j_max / 4).max(4)).min(MAX_LAB_BASIS_J);
         }
     }
 
     #[allow(clippy::too_many_arguments)]
-    fn try_chunk(&self, ops: &LabOps, cols: &[Column], field: &FieldModel, events: &[Event], times: &[f64], t_first: f64, table: Option<&DetectorTable>) -> Option<ChunkOutcome> {
+    fn try_chunk(
+        &self,
+        ops: &LabOps,
+        cols: &[Column],
+        field: &FieldModel,
+        events: &[Event],
+        times: &[f64],
+        t_first: f64,
+        table: Option<&DetectorTable>,
+    ) -> Option<ChunkOutcome> {
         let start: Vec<usize> = cols
             .iter()
             .map(|&(mu, j, i, _)| {
@@ -1306,7 +1329,8 @@ mod tests {
                 }
                 // Nine observables: Σ over lab axes of Φ_Fg² is the identity for each body axis.
                 let obs = ops.observables();
-                let sum: DMatrix<f64> = (0..3).map(|f| obs.combine(&std::array::from_fn::<f64, 9, _>(|o| if o == 3 * f + 1 { 1.0 } else { 0.0 })).to_dense()).sum();
+                let sum: DMatrix<f64> =
+                    (0..3).map(|f| obs.combine(&std::array::from_fn::<f64, 9, _>(|o| if o == 3 * f + 1 { 1.0 } else { 0.0 })).to_dense()).sum();
                 assert!((sum - DMatrix::identity(ops.size, ops.size)).abs().max() < 1e-13);
             }
         }

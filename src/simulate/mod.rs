@@ -19,8 +19,8 @@ use nalgebra::DMatrix;
 use rayon::prelude::*;
 
 pub mod batch;
-pub mod top;
 pub mod lab_frame;
+pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex};
@@ -196,11 +196,28 @@ impl Solver {
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
         if let Some(t) = &molecule.top {
             let top = top::TopSolver::new(t, temperature_k, settings)?;
-            let ensemble = ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
-            return Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), polar_cache: Mutex::new(HashMap::new()), top: Some(top), lab: Default::default() });
+            let ensemble =
+                ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
+            return Ok(Solver {
+                molecule: molecule.clone(),
+                ensemble,
+                settings,
+                cache: Mutex::new(HashMap::new()),
+                polar_cache: Mutex::new(HashMap::new()),
+                top: Some(top),
+                lab: Default::default(),
+            });
         }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
-        Ok(Solver { molecule: molecule.clone(), ensemble, settings, cache: Mutex::new(HashMap::new()), polar_cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() })
+        Ok(Solver {
+            molecule: molecule.clone(),
+            ensemble,
+            settings,
+            cache: Mutex::new(HashMap::new()),
+            polar_cache: Mutex::new(HashMap::new()),
+            top: None,
+            lab: Default::default(),
+        })
     }
 
     /// A linear-molecule view of a symmetric top along its figure axis (B, α∥ − α⊥ with sign, dipole), used
@@ -211,8 +228,22 @@ impl Solver {
         let mut m = Molecule::linear(&self.molecule.name, t.top.b_cm, 0.0, t.top.alpha(fig), t.top.alpha(across), [1.0, 1.0]);
         m.dipole_debye = self.molecule.dipole_debye;
         m.ionization_energy_ev = self.molecule.ionization_energy_ev;
-        let ensemble = ThermalEnsemble { temperature_k: self.ensemble.temperature_k, j_max: self.ensemble.j_max, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
-        Solver { molecule: m, ensemble, settings: self.settings, cache: Mutex::new(HashMap::new()), polar_cache: Mutex::new(HashMap::new()), top: None, lab: Default::default() }
+        let ensemble = ThermalEnsemble {
+            temperature_k: self.ensemble.temperature_k,
+            j_max: self.ensemble.j_max,
+            discarded_population: 0.0,
+            partition_function: 0.0,
+            blocks: vec![],
+        };
+        Solver {
+            molecule: m,
+            ensemble,
+            settings: self.settings,
+            cache: Mutex::new(HashMap::new()),
+            polar_cache: Mutex::new(HashMap::new()),
+            top: None,
+            lab: Default::default(),
+        }
     }
 
     /// Population left out of the thermal ensemble by its truncation.

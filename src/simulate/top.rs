@@ -600,7 +600,17 @@ impl super::Solver {
         let axis = |i: usize| if i == fig { fig2.clone() } else { across.clone() };
         let align = top.alignment_axis.index();
         let perm_align = if align == fig { permanent[0] } else { 0.5 * (1.0 - permanent[0]) };
-        let trace = Trace { times_ps: times.to_vec(), cos2: axis(align), cos2_2d: abs_align, cos, cos3, cos2_a: axis(0), cos2_b: axis(1), cos2_c: axis(2), ..Default::default() };
+        let trace = Trace {
+            times_ps: times.to_vec(),
+            cos2: axis(align),
+            cos2_2d: abs_align,
+            cos,
+            cos3,
+            cos2_a: axis(0),
+            cos2_b: axis(1),
+            cos2_c: axis(2),
+            ..Default::default()
+        };
         let mut sums = crate::observe::LevelSums::new(vec![], f64::INFINITY, false);
         sums.cos2_static = perm_align;
         sums.abscos_static = permanent[1];
