@@ -10,7 +10,6 @@ use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
-use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
 #[derive(Parser)]
@@ -19,6 +18,9 @@ use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
     version,
     about = "Design and simulate laser pulse trains that align gas-phase molecules.",
     after_help = "Examples:\n  kicktrain molecules\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n  kicktrain design --out best\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20\n\n\
+Exit codes: 0 done; 1 numerical limit (the run could not reach its accuracy); 2 bad input (one line naming the field);\n\
+3 output could not be read or written; 4 stopped by SIGINT/SIGTERM, result so far written and marked partial\n\
+(design, scan, tolerance); 130 stopped before anything could be written. --out folders appear whole or not at all.\n\n\
 Lasers that align molecules are class 4: follow your laser safety officer and IEC 60825-1 / ANSI Z136.1."
 )]
 struct Cli {
@@ -42,7 +44,8 @@ kicktrain simulate best/design.json --out check   # replays the design\n\n\
 --out DIR writes design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg.\n\
 The search runs independent starts until three agree (see summary.json search.confidence) and warns when\n\
 they do not; --effort thorough searches harder, --time-limit S bounds the time.\n\
-Ctrl-C stops the search and still reports (and writes) the best design found so far.")]
+Ctrl-C or SIGTERM stops the search and still reports (and writes) the best design found so far, exit code 4;\n\
+a second signal quits at once (exit 130) and writes nothing.")]
     Design {
         /// Objective file (JSON); the built-in two-pulse example when omitted.
         objective: Option<PathBuf>,
@@ -221,15 +224,21 @@ fn main() -> ExitCode {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
     let cli = Cli::parse();
+    install_signal_handler();
     let result = match cli.command {
-        Command::Molecules { json } => molecules(json),
-        Command::Simulate { scenario, out, json } => run_simulate(&scenario, out.as_deref(), json),
+        Command::Molecules { json } => molecules(json).map(|()| Finish::Done),
+        Command::Simulate { scenario, out, json } => run_simulate(&scenario, out.as_deref(), json).map(|()| Finish::Done),
         Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => {
-            run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json)
+            run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json).map(|()| Finish::Done)
         }
-        Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2, molecule, json } => {
-            run_focus(kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 }, fwhm_fs, &shape, molecule.as_deref(), json)
-        }
+        Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2, molecule, json } => run_focus(
+            kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 },
+            fwhm_fs,
+            &shape,
+            molecule.as_deref(),
+            json,
+        )
+        .map(|()| Finish::Done),
         Command::Scan { scenario, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } => {
             run_scan(&scenario, &x, from, to, steps, y.as_deref(), y_from, y_to, y_steps, out.as_deref(), quiet)
         }
@@ -240,23 +249,84 @@ fn main() -> ExitCode {
             seed,
             out.as_deref(),
         ),
-        Command::Design { objective, out, seed, effort, time_limit, quiet, json } => run_design(objective.as_deref(), out.as_deref(), seed, effort.as_deref(), time_limit, quiet, json),
+        Command::Design { objective, out, seed, effort, time_limit, quiet, json } => {
+            run_design(objective.as_deref(), out.as_deref(), seed, effort.as_deref(), time_limit, quiet, json)
+        }
     };
     match result {
-        Ok(()) => ExitCode::SUCCESS,
+        Ok(Finish::Done) => ExitCode::SUCCESS,
+        Ok(Finish::Partial) => ExitCode::from(EXIT_PARTIAL),
         Err(e) => {
             eprintln!("error: {e}");
-            match e {
-                Error::Input { .. } => ExitCode::from(2),
-                Error::Interrupted => ExitCode::from(130),
-                _ => ExitCode::from(1),
-            }
+            ExitCode::from(match e {
+                Error::Input { .. } => 2,
+                Error::Numerical(_) => 1,
+                Error::Io(_) => EXIT_IO,
+                Error::Interrupted => EXIT_INTERRUPTED,
+            })
         }
     }
 }
 
+/// Exit code: the output could not be read or written (nothing written).
+const EXIT_IO: u8 = 3;
+/// Exit code: stopped by a signal; the result so far was reported and written, marked partial.
+const EXIT_PARTIAL: u8 = 4;
+/// Exit code: stopped by a signal before anything could be reported; nothing written (128 + SIGINT).
+const EXIT_INTERRUPTED: u8 = 130;
+
+/// How a command ended.
+enum Finish {
+    /// Everything asked for was done.
+    Done,
+    /// Stopped by a signal; what was done is reported and written, marked partial.
+    Partial,
+}
+
+/// Set by the first SIGINT or SIGTERM; the commands that can stop cleanly poll it.
+static STOP: AtomicBool = AtomicBool::new(false);
+/// True while the running command stops cleanly on a first signal (design, scan, tolerance).
+static GRACEFUL: AtomicBool = AtomicBool::new(false);
+
+/// SIGINT and SIGTERM (what a batch scheduler sends at its time limit): a command that can stop cleanly
+/// finishes its current step and writes what it has; any other command, or a second signal, quits at
+/// once and removes its unfinished output. A signal during the final renames of an output folder waits
+/// for them, so a folder is always complete or absent.
+fn install_signal_handler() {
+    let _ = ctrlc::set_handler(|| {
+        let second = STOP.swap(true, Ordering::SeqCst);
+        if kicktrain::report::output::committing() {
+            eprintln!("\nfinishing writing the output");
+            return;
+        }
+        if second || !GRACEFUL.load(Ordering::SeqCst) {
+            kicktrain::report::output::abandon_staging();
+            eprintln!("\ninterrupted: nothing written");
+            std::process::exit(EXIT_INTERRUPTED as i32);
+        }
+        eprintln!("\nstopping: finishing the current step and keeping what is done (a second signal quits at once, writing nothing)");
+    });
+}
+
+/// Prepare the output folder before any work, so that an output that cannot be written fails at once.
+fn prepare_out(out: Option<&Path>, command: &str) -> Result<Option<kicktrain::report::output::OutputDir>, Error> {
+    out.map(|d| kicktrain::report::output::OutputDir::prepare(d, command)).transpose()
+}
+
+/// Largest input file read (scenarios and objectives are a few kB).
+const MAX_INPUT_BYTES: u64 = 16 << 20;
+
+/// Read an input file of at most [`MAX_INPUT_BYTES`] as UTF-8 text (never echoing its contents).
 fn read_text(path: &Path) -> Result<String, Error> {
-    std::fs::read_to_string(path).map_err(|e| Error::input(path.display().to_string(), format!("cannot read the file: {e}")))
+    use std::io::Read;
+    let field = path.display().to_string();
+    let file = std::fs::File::open(path).map_err(|e| Error::input(&field, format!("cannot read the file: {e}")))?;
+    let mut bytes = vec![];
+    file.take(MAX_INPUT_BYTES + 1).read_to_end(&mut bytes).map_err(|e| Error::input(&field, format!("cannot read the file: {e}")))?;
+    if bytes.len() as u64 > MAX_INPUT_BYTES {
+        return Err(Error::input(&field, format!("expected an input file of at most {} MiB", MAX_INPUT_BYTES >> 20)));
+    }
+    String::from_utf8(bytes).map_err(|e| Error::input(&field, format!("expected UTF-8 text (invalid byte at offset {})", e.utf8_error().valid_up_to())))
 }
 
 fn molecules(json: bool) -> Result<(), Error> {
@@ -346,9 +416,14 @@ fn molecules(json: bool) -> Result<(), Error> {
 fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error> {
     let text = read_text(path)?;
     let scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    let staged = prepare_out(out, "simulate")?;
     let sim = simulate(&scenario)?;
-    let summary = match out {
-        Some(dir) => report::write_simulation(&sim, dir)?,
+    let summary = match staged {
+        Some(o) => {
+            let summary = report::write_simulation(&sim, o.path())?;
+            o.commit()?;
+            summary
+        }
         None => report::simulation_summary(&sim),
     };
     if json {
@@ -477,7 +552,7 @@ const DEFAULT_OBJECTIVE: &str = include_str!("../objectives/two-pulse-room-tempe
 /// Progress bar and Ctrl-C flag for a design search.
 struct Progress {
     bar: indicatif::ProgressBar,
-    stop: Arc<AtomicBool>,
+    stop: &'static AtomicBool,
     stage_start: AtomicUsize,
 }
 
@@ -511,7 +586,15 @@ impl Monitor for Progress {
     }
 }
 
-fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, effort: Option<&str>, time_limit: Option<f64>, quiet: bool, json: bool) -> Result<(), Error> {
+fn run_design(
+    path: Option<&Path>,
+    out: Option<&Path>,
+    seed: Option<u64>,
+    effort: Option<&str>,
+    time_limit: Option<f64>,
+    quiet: bool,
+    json: bool,
+) -> Result<Finish, Error> {
     let (text, name) = match path {
         Some(p) => (read_text(p)?, p.display().to_string()),
         None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
@@ -521,7 +604,8 @@ fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, effort
         obj.search.seed = s;
     }
     if let Some(e) = effort {
-        obj.search.effort = kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
+        obj.search.effort =
+            kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
     }
     if let Some(t) = time_limit {
         if !(t > 0.0 && t <= 1e7) {
@@ -529,27 +613,22 @@ fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, effort
         }
         obj.search.time_limit_s = Some(t);
     }
-    let stop = Arc::new(AtomicBool::new(false));
-    {
-        let stop = stop.clone();
-        // First Ctrl-C: finish the current iteration and report the best so far; second: quit at once.
-        let _ = ctrlc::set_handler(move || {
-            if stop.swap(true, Ordering::SeqCst) {
-                std::process::exit(130);
-            }
-            eprintln!("\nstopping: finishing the current step and keeping the best design so far (Ctrl-C again to quit now)");
-        });
-    }
+    let staged = prepare_out(out, "design")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
     let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(1) };
     bar.set_style(indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})").expect("template").progress_chars("=> "));
     if !quiet {
         eprintln!("designing: {} ({} pulse(s){}, seed {})", name, obj.space.pulses.len(), if obj.variable_count { " at most" } else { "" }, obj.search.seed);
     }
-    let monitor = Progress { bar, stop: stop.clone(), stage_start: AtomicUsize::new(usize::MAX) };
+    let monitor = Progress { bar, stop: &STOP, stage_start: AtomicUsize::new(usize::MAX) };
     let result = design(&obj, &monitor)?;
     monitor.bar.finish_and_clear();
-    let summary = match out {
-        Some(dir) => kicktrain::report::design::write_design(&obj, &result, dir)?,
+    let summary = match staged {
+        Some(o) => {
+            let summary = kicktrain::report::design::write_design(&obj, &result, o.path())?;
+            o.commit()?;
+            summary
+        }
         None => kicktrain::report::design::design_summary(&obj, &result),
     };
     if json {
@@ -561,7 +640,7 @@ fn run_design(path: Option<&Path>, out: Option<&Path>, seed: Option<u64>, effort
             println!("replay: kicktrain simulate {}/design.json", dir.display());
         }
     }
-    Ok(())
+    Ok(if result.interrupted { Finish::Partial } else { Finish::Done })
 }
 
 fn print_design(s: &serde_json::Value) {
@@ -681,7 +760,15 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
     );
     println!("{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩");
     for s in r.states.iter().filter(|s| s.j <= j_max) {
-        println!("{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}", s.j, s.m, no_negative_zero(s.energy_cm, 6), no_negative_zero(s.energy_b, 5), s.cos2, no_negative_zero(s.cos, 5));
+        println!(
+            "{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}",
+            s.j,
+            s.m,
+            no_negative_zero(s.energy_cm, 6),
+            no_negative_zero(s.energy_b, 5),
+            s.cos2,
+            no_negative_zero(s.cos, 5)
+        );
     }
     println!("thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, no_negative_zero(r.thermal_cos, 5));
     println!("(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)");
@@ -704,7 +791,10 @@ fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str, molecul
         Some(name) => {
             let m = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
             if m.ionization_energy_ev.is_none() {
-                return Err(Error::input("molecule", format!("{} has no ionization energy in the library; name another molecule or leave --molecule out", m.name)));
+                return Err(Error::input(
+                    "molecule",
+                    format!("{} has no ionization energy in the library; name another molecule or leave --molecule out", m.name),
+                ));
             }
             vec![m]
         }
@@ -771,7 +861,9 @@ fn ionization_warning(i0: f64, ceilings: &[(String, f64)]) -> Option<String> {
     let pct = IONIZED_WARNING * 100.0;
     if over.len() == 1 && ceilings.len() == 1 {
         let (n, c) = &ceilings[0];
-        return Some(format!("{i0:.2e} W/cm² is above {c:.2e} W/cm², where one such pulse ionizes {pct:.0} % of {n} (ADK estimate): molecules do not survive to be aligned"));
+        return Some(format!(
+            "{i0:.2e} W/cm² is above {c:.2e} W/cm², where one such pulse ionizes {pct:.0} % of {n} (ADK estimate): molecules do not survive to be aligned"
+        ));
     }
     let highest = ceilings.iter().max_by(|a, b| a.1.total_cmp(&b.1)).expect("not empty");
     if over.len() == ceilings.len() {
@@ -781,7 +873,12 @@ fn ionization_warning(i0: f64, ceilings: &[(String, f64)]) -> Option<String> {
         ))
     } else {
         let names: Vec<&str> = over.iter().map(|(n, _)| n.as_str()).collect();
-        Some(format!("{i0:.2e} W/cm² ionizes {pct:.0} % or more of {} of the {} library molecules per pulse (ADK estimate): {}", over.len(), ceilings.len(), names.join(", ")))
+        Some(format!(
+            "{i0:.2e} W/cm² ionizes {pct:.0} % or more of {} of the {} library molecules per pulse (ADK estimate): {}",
+            over.len(),
+            ceilings.len(),
+            names.join(", ")
+        ))
     }
 }
 
@@ -798,7 +895,7 @@ fn run_scan(
     y_steps: usize,
     out: Option<&Path>,
     quiet: bool,
-) -> Result<(), Error> {
+) -> Result<Finish, Error> {
     use kicktrain::report::svg;
     use kicktrain::scan::{Axis, Metric, scan};
     let text = read_text(path)?;
@@ -815,10 +912,17 @@ fn run_scan(
         }
     };
     let total = steps * ya.as_ref().map(|a| a.values.len()).unwrap_or(1);
+    let staged = prepare_out(out, "scan")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
     let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(total as u64) };
     bar.set_style(indicatif::ProgressStyle::with_template("scan [{bar:30}] {pos}/{len} (ETA {eta})").expect("template").progress_chars("=> "));
     let t0 = std::time::Instant::now();
-    let r = scan(&base, &xa, ya.as_ref(), &|| bar.inc(1))?;
+    let r = scan(&base, &xa, ya.as_ref(), &|| bar.inc(1), &STOP)?;
+    let finished = r.finished();
+    if finished == 0 {
+        return Err(Error::Interrupted);
+    }
+    let partial = r.partial().then(|| format!("partial: stopped by a signal after {finished} of {total} points"));
     bar.finish_and_clear();
     let label = match r.metric {
         Metric::Goal => "goal score",
@@ -827,24 +931,28 @@ fn run_scan(
     let mut best = (f64::NEG_INFINITY, 0, 0);
     for (iy, row) in r.values.iter().enumerate() {
         for (ix, v) in row.iter().enumerate() {
-            if *v > best.0 {
+            if *v > best.0 && r.done[iy][ix] {
                 best = (*v, ix, iy);
             }
         }
     }
+    if let Some(p) = &partial {
+        println!("{p}");
+    }
     println!(
         "{} points in {:.2} s; {label}: best {:.5} at {} = {}{}",
-        total,
+        finished,
         t0.elapsed().as_secs_f64(),
         best.0,
         xa.path,
         xa.values[best.1],
         ya.as_ref().map(|a| format!(", {} = {}", a.path, a.values[best.2])).unwrap_or_default()
     );
-    if let Some(dir) = out {
+    if let Some(o) = staged {
+        let dir = o.path();
         let mut csv = format!("{}{},value\n", xa.path, ya.as_ref().map(|a| format!(",{}", a.path)).unwrap_or_default());
         for (iy, row) in r.values.iter().enumerate() {
-            for (ix, v) in row.iter().enumerate() {
+            for (ix, v) in row.iter().enumerate().filter(|(ix, _)| r.done[iy][*ix]) {
                 match &ya {
                     Some(a) => csv.push_str(&format!("{},{},{:.10}\n", xa.values[ix], a.values[iy], v)),
                     None => csv.push_str(&format!("{},{:.10}\n", xa.values[ix], v)),
@@ -856,6 +964,11 @@ fn run_scan(
         let states_laser = |p: &str| ["intensity", "_wcm2", "energy_mj", "_kv_cm", "field"].iter().any(|k| p.contains(k));
         let caution = (states_laser(&xa.path) || ya.as_ref().is_some_and(|a| states_laser(&a.path)))
             .then(|| "Laser safety: class 4 lasers; follow your local laser safety officer and IEC 60825-1 / ANSI Z136.1.".to_string());
+        let caution = match (&partial, caution) {
+            (Some(p), Some(c)) => Some(format!("{p}; {c}")),
+            (Some(p), None) => Some(p.clone()),
+            (None, c) => c,
+        };
         let svg_text = match &ya {
             Some(a) => {
                 let mut h = svg::Heatmap::new(format!("Scan of {label}"), xa.label(), a.label(), label, xa.values.clone(), a.values.clone(), r.values.clone());
@@ -877,18 +990,32 @@ fn run_scan(
             }
         };
         report::write_file(dir, "scan.svg", &svg_text)?;
-        println!("wrote {}/scan.csv, scan.svg", dir.display());
+        if let Some(p) = &partial {
+            report::write_file(dir, "PARTIAL.txt", &format!("{p}; scan.csv holds the finished points, scan.svg leaves the others blank.\n"))?;
+        }
+        o.commit()?;
+        println!(
+            "wrote {}/scan.csv, scan.svg{}",
+            out.map(|d| d.display().to_string()).unwrap_or_default(),
+            if partial.is_some() { ", PARTIAL.txt" } else { "" }
+        );
     }
     println!("{}", report::LASER_SAFETY);
-    Ok(())
+    Ok(if partial.is_some() { Finish::Partial } else { Finish::Done })
 }
 
-fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<(), Error> {
+fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<Finish, Error> {
     use kicktrain::report::svg;
     let text = read_text(path)?;
     let scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    let staged = prepare_out(out, "tolerance")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
     let t0 = std::time::Instant::now();
-    let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed)?;
+    let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed, &STOP)?;
+    let partial = (r.samples.len() < r.requested).then(|| format!("partial: stopped by a signal after {} of {} samples", r.samples.len(), r.requested));
+    if let Some(p) = &partial {
+        println!("{p}");
+    }
     let goal = scenario.goal.expect("checked by tolerance()");
     println!(
         "{} of {}: nominal {:.5}; with jitter {} fs, energy noise {} %, phase noise {} rad ({} samples, seed {seed}):",
@@ -898,12 +1025,13 @@ fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize
         noise.jitter_fs,
         noise.energy_percent,
         noise.phase_rad,
-        samples
+        r.samples.len()
     );
     println!("  mean {:.5}, spread (rms) {:.5}, worst decile {:.5}; {:.2} s", r.mean, r.spread, r.worst_decile, t0.elapsed().as_secs_f64());
-    if let Some(dir) = out {
+    if let Some(o) = staged {
+        let dir = o.path();
         let mut csv = String::from("sample,score\n");
-        for (i, v) in r.samples.iter().enumerate() {
+        for (i, v) in r.sample_index.iter().zip(&r.samples) {
             csv.push_str(&format!("{i},{v:.10}\n"));
         }
         report::write_file(dir, "tolerance.csv", &csv)?;
@@ -916,10 +1044,18 @@ fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize
         h.markers.push(svg::Marker { x0: r.nominal, x1: r.nominal, label: "nominal".into(), color: svg::PULSE.into() });
         h.markers.push(svg::Marker { x0: r.worst_decile, x1: r.worst_decile, label: "worst decile".into(), color: svg::NEUTRAL.into() });
         report::write_file(dir, "tolerance.svg", &h.to_svg())?;
-        println!("wrote {}/tolerance.csv, tolerance.svg", dir.display());
+        if let Some(p) = &partial {
+            report::write_file(dir, "PARTIAL.txt", &format!("{p}; tolerance.csv and tolerance.svg cover the finished samples.\n"))?;
+        }
+        o.commit()?;
+        println!(
+            "wrote {}/tolerance.csv, tolerance.svg{}",
+            out.map(|d| d.display().to_string()).unwrap_or_default(),
+            if partial.is_some() { ", PARTIAL.txt" } else { "" }
+        );
     }
     println!("{}", report::LASER_SAFETY);
-    Ok(())
+    Ok(if partial.is_some() { Finish::Partial } else { Finish::Done })
 }
 
 /// `v`, or +0 when it would print as −0 with `decimals` decimals (rounding noise around zero).

@@ -7,6 +7,7 @@ use crate::scenario::Scenario;
 use crate::simulate::Solver;
 use rayon::prelude::*;
 use serde_json::Value;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 /// One scanned axis: a dotted path into the scenario JSON and the values it takes.
 #[derive(Debug, Clone, PartialEq)]
@@ -114,8 +115,22 @@ pub struct ScanResult {
     pub y: Option<Axis>,
     /// What was computed.
     pub metric: Metric,
-    /// Values, rows over y, columns over x.
+    /// Values, rows over y, columns over x (NaN where `done` is false).
     pub values: Vec<Vec<f64>>,
+    /// Which points were computed (all of them unless the scan was stopped).
+    pub done: Vec<Vec<bool>>,
+}
+
+impl ScanResult {
+    /// Number of points computed.
+    pub fn finished(&self) -> usize {
+        self.done.iter().flatten().filter(|d| **d).count()
+    }
+
+    /// True when the scan was stopped before every point was computed.
+    pub fn partial(&self) -> bool {
+        self.done.iter().flatten().any(|d| !d)
+    }
 }
 
 /// Set a number at a dotted path like `pulses[1].center_ps` inside a JSON value.
@@ -166,8 +181,9 @@ fn evaluate(s: &Scenario, solver: &Solver, metric: Metric) -> Result<f64> {
     }
 }
 
-/// Scan `base` (the scenario as JSON) over one or two axes; `progress` is called after each point.
-pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Sync)) -> Result<ScanResult> {
+/// Scan `base` (the scenario as JSON) over one or two axes; `progress` is called after each point. Once
+/// `stop` is set no new point starts; the points finished so far are returned (see [`ScanResult::done`]).
+pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Sync), stop: &AtomicBool) -> Result<ScanResult> {
     let base_scenario = Scenario::from_value(base, "")?;
     let metric = if base_scenario.goal.is_some() { Metric::Goal } else { Metric::PeakCos2 };
     let ys: Vec<Option<f64>> = match y {
@@ -200,16 +216,20 @@ pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Syn
         .collect::<Result<_>>()?;
     let shared = Solver::new(&base_scenario.molecule, base_scenario.temperature_k, base_scenario.solver)?;
     let same = |s: &Scenario| s.molecule == base_scenario.molecule && s.temperature_k == base_scenario.temperature_k && s.solver == base_scenario.solver;
-    let flat: Vec<f64> = scenarios
+    let flat: Vec<Option<f64>> = scenarios
         .par_iter()
         .map(|s| {
+            if stop.load(Ordering::SeqCst) {
+                return Ok(None);
+            }
             let v = if same(s) { evaluate(s, &shared, metric) } else { evaluate(s, &Solver::new(&s.molecule, s.temperature_k, s.solver)?, metric) };
             progress();
-            v
+            v.map(Some)
         })
         .collect::<Result<_>>()?;
-    let values = flat.chunks(x.values.len()).map(|c| c.to_vec()).collect();
-    Ok(ScanResult { x: x.clone(), y: y.cloned(), metric, values })
+    let values = flat.chunks(x.values.len()).map(|c| c.iter().map(|v| v.unwrap_or(f64::NAN)).collect()).collect();
+    let done = flat.chunks(x.values.len()).map(|c| c.iter().map(Option::is_some).collect()).collect();
+    Ok(ScanResult { x: x.clone(), y: y.cloned(), metric, values, done })
 }
 
 #[cfg(test)]

@@ -8,6 +8,7 @@ use crate::scenario::Scenario;
 use crate::simulate::Solver;
 use rand::{Rng, SeedableRng};
 use rayon::prelude::*;
+use std::sync::atomic::{AtomicBool, Ordering};
 
 /// The errors to sample.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -25,8 +26,12 @@ pub struct Noise {
 pub struct ToleranceResult {
     /// Score without errors.
     pub nominal: f64,
-    /// Scores of the samples, in sampling order.
+    /// Scores of the samples computed, in sampling order.
     pub samples: Vec<f64>,
+    /// The draw number of each score in `samples` (0, 1, 2, … unless the run was stopped).
+    pub sample_index: Vec<usize>,
+    /// Number of samples asked for; more than `samples.len()` when the run was stopped.
+    pub requested: usize,
     /// Mean of the samples.
     pub mean: f64,
     /// Standard deviation of the samples.
@@ -65,8 +70,9 @@ pub fn perturb(field: &crate::field::FieldModel, noise: Noise, seed: u64, i: usi
     f
 }
 
-/// Evaluate `scenario`'s goal under `samples` random draws of `noise` (reproducible with `seed`).
-pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64) -> Result<ToleranceResult> {
+/// Evaluate `scenario`'s goal under `samples` random draws of `noise` (reproducible with `seed`). Once
+/// `stop` is set no new sample starts, and the statistics cover the samples finished.
+pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64, stop: &AtomicBool) -> Result<ToleranceResult> {
     let goal = scenario.goal.ok_or_else(|| Error::input("goal", "a tolerance analysis needs a goal in the scenario (design.json files carry one)"))?;
     for (name, v) in [("jitter_fs", noise.jitter_fs), ("energy_percent", noise.energy_percent), ("phase_rad", noise.phase_rad)] {
         if !v.is_finite() || v < 0.0 {
@@ -93,7 +99,12 @@ pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64) -
     };
     let nominal = score(&scenario.field)?;
     let fields: Vec<crate::field::FieldModel> = (0..samples).map(|i| perturb(&scenario.field, noise, seed, i)).collect();
-    let values: Vec<f64> = fields.par_iter().map(&score).collect::<Result<_>>()?;
+    let scored: Vec<Option<f64>> = fields.par_iter().map(|f| if stop.load(Ordering::SeqCst) { Ok(None) } else { score(f).map(Some) }).collect::<Result<_>>()?;
+    let sample_index: Vec<usize> = (0..samples).filter(|&i| scored[i].is_some()).collect();
+    let values: Vec<f64> = scored.iter().flatten().copied().collect();
+    if values.is_empty() {
+        return Err(Error::Interrupted);
+    }
     let n = values.len() as f64;
     let mean = values.iter().sum::<f64>() / n;
     let spread = (values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
@@ -101,5 +112,5 @@ pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64) -
     sorted.sort_by(f64::total_cmp);
     let k = ((0.1 * n).floor() as usize).min(sorted.len() - 1);
     let worst_decile = if goal.sense() > 0.0 { sorted[k] } else { sorted[sorted.len() - 1 - k] };
-    Ok(ToleranceResult { nominal, samples: values, mean, spread, worst_decile })
+    Ok(ToleranceResult { nominal, samples: values, sample_index, requested: samples, mean, spread, worst_decile })
 }

@@ -1026,3 +1026,175 @@ fn scan_plot_labels_axes_in_words_and_keeps_key_paths_in_the_csv() {
     let csv = std::fs::read_to_string(out.join("scan.csv")).unwrap();
     assert!(csv.starts_with("pulses[0].peak_intensity_wcm2,value"), "{csv}");
 }
+
+// ---------------------------------------------------------------------------------------------------
+// Outputs written whole or not at all; signals; exit codes
+// ---------------------------------------------------------------------------------------------------
+
+/// Start the binary with `args`, send `signals` (names for `kill -s`) after the given delays, and wait.
+fn run_and_signal(args: &[&str], signals: &[(Duration, &str)]) -> Run {
+    let scratch = Sandbox::new("sig");
+    let (so, se) = (scratch.dir.join("stdout"), scratch.dir.join("stderr"));
+    let start = Instant::now();
+    let mut child = Command::new(BIN)
+        .args(args)
+        .stdin(Stdio::null())
+        .stdout(std::fs::File::create(&so).unwrap())
+        .stderr(std::fs::File::create(&se).unwrap())
+        .spawn()
+        .expect("spawn kicktrain");
+    for (delay, sig) in signals {
+        std::thread::sleep(*delay);
+        let _ = Command::new("kill").args(["-s", sig, &child.id().to_string()]).status();
+    }
+    let status = loop {
+        if let Some(s) = child.try_wait().unwrap() {
+            break s;
+        }
+        if start.elapsed() > Duration::from_secs(120) {
+            let _ = child.kill();
+            panic!("kicktrain {args:?} did not stop within 120 s of its signals");
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    };
+    Run {
+        code: status.code(),
+        stdout: std::fs::read_to_string(&so).unwrap_or_default(),
+        stderr: std::fs::read_to_string(&se).unwrap_or_default(),
+        elapsed: start.elapsed(),
+    }
+}
+
+/// Entries of `dir` other than its hidden marker, sorted.
+fn listing(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> =
+        std::fs::read_dir(dir).map(|d| d.filter_map(|e| e.ok()).map(|e| e.file_name().to_string_lossy().into_owned()).collect()).unwrap_or_default();
+    v.sort();
+    v
+}
+
+const THREE_PULSES: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/objectives/three-pulse-room-temperature.json");
+
+#[test]
+fn sigterm_during_a_design_writes_the_best_design_so_far_and_exits_4() {
+    // Checks: SIGTERM (a batch scheduler's time limit) stops the search cleanly; the folder holds every
+    // file, summary.json says interrupted, and the exit code tells a partial result from a finished one.
+    let sb = Sandbox::new("sigterm-design");
+    let out = sb.out();
+    let r = run_and_signal(&["design", THREE_PULSES, "--out", s(&out), "--quiet"], &[(Duration::from_millis(2500), "TERM")]);
+    assert_eq!(r.code, Some(4), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    assert_eq!(listing(&out), [".kicktrain-output", "convergence.svg", "design.json", "design.svg", "history.csv", "summary.json", "trace.csv"]);
+    let summary: Value = serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["interrupted"], json!(true));
+    assert!(r.stdout.contains("interrupted"), "{}", r.stdout);
+    assert_eq!(listing(&sb.dir), ["out"], "no staging folder left");
+}
+
+#[test]
+fn a_second_signal_quits_at_once_and_leaves_no_folder() {
+    // Checks: Ctrl-C twice: exit 130, no output folder and no staging folder left behind.
+    let sb = Sandbox::new("sigint-twice");
+    let out = sb.out();
+    let r = run_and_signal(&["design", THREE_PULSES, "--out", s(&out), "--quiet"], &[(Duration::from_millis(2000), "INT"), (Duration::from_millis(30), "INT")]);
+    assert_eq!(r.code, Some(130), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    assert!(!out.exists());
+    assert!(listing(&sb.dir).is_empty(), "left behind: {:?}", listing(&sb.dir));
+}
+
+#[test]
+fn a_scan_stopped_by_sigterm_keeps_the_finished_points_marked_partial() {
+    // Checks: scan on SIGTERM writes the rows it finished (fewer than asked), PARTIAL.txt, exit 4.
+    let sb = Sandbox::new("sigterm-scan");
+    let mut v = cheap_scenario();
+    v["temperature_k"] = json!(300);
+    v["window"] = json!({"start_ps": 0.0, "stop_ps": 12.0, "step_fs": 20});
+    let input = sb.write("scenario.json", &v.to_string());
+    let out = sb.out();
+    let args = [
+        "scan",
+        s(&input),
+        "--x",
+        "pulses[0].center_ps",
+        "--from",
+        "0",
+        "--to",
+        "1",
+        "--steps",
+        "40",
+        "--y",
+        "pulses[0].peak_intensity_wcm2",
+        "--y-from",
+        "1e13",
+        "--y-to",
+        "5e13",
+        "--y-steps",
+        "40",
+        "--out",
+        s(&out),
+        "--quiet",
+    ];
+    let r = run_and_signal(&args, &[(Duration::from_millis(1500), "TERM")]);
+    assert_eq!(r.code, Some(4), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    let rows = std::fs::read_to_string(out.join("scan.csv")).unwrap().lines().count() - 1;
+    assert!(rows > 0 && rows < 1600, "{rows} rows");
+    assert!(std::fs::read_to_string(out.join("PARTIAL.txt")).unwrap().contains(&format!("after {rows} of 1600 points")));
+}
+
+#[test]
+fn a_run_killed_at_any_moment_leaves_the_last_complete_folder() {
+    // Checks: SIGKILL (no handler can run) at many moments of a second run into the same folder: the
+    // folder always holds one complete set (the first run's or the second's), never a mix or a fragment.
+    let sb = Sandbox::new("kill-anytime");
+    let input = sb.write("scenario.json", &cheap_scenario().to_string());
+    let out = sb.out();
+    let first = run(&["simulate", s(&input), "--out", s(&out)]);
+    assert_eq!(first.code, Some(0), "{}", first.stderr);
+    let complete = [".kicktrain-output", "alignment.svg", "summary.json", "trace.csv"];
+    let reference = std::fs::read_to_string(out.join("trace.csv")).unwrap();
+    let full = run(&["simulate", s(&input), "--out", s(&out)]).elapsed;
+    for k in 0..12 {
+        let delay = full.mul_f64(k as f64 / 10.0);
+        let _ = run_and_signal(&["simulate", s(&input), "--out", s(&out)], &[(delay, "KILL")]);
+        assert_eq!(listing(&out), complete, "after a kill at {delay:?}");
+        assert_eq!(std::fs::read_to_string(out.join("trace.csv")).unwrap(), reference);
+        serde_json::from_str::<Value>(&std::fs::read_to_string(out.join("summary.json")).unwrap()).expect("whole summary");
+    }
+}
+
+#[test]
+fn foreign_folders_unwritable_outputs_and_huge_inputs_are_refused_before_any_work() {
+    // Checks: a folder holding a user's own files is refused (exit 2, file untouched); an output that
+    // cannot be created fails at once with exit 3 (before a design search); a 17 MiB input is refused.
+    let sb = Sandbox::new("refusals");
+    let mine = sb.dir.join("mine");
+    std::fs::create_dir_all(&mine).unwrap();
+    std::fs::write(mine.join("notes.txt"), "keep").unwrap();
+    let input = sb.write("scenario.json", &cheap_scenario().to_string());
+    let r = run(&["simulate", s(&input), "--out", s(&mine)]);
+    assert_eq!(r.code, Some(2), "{}", r.stderr);
+    assert!(r.stderr.starts_with("error: --out:") && r.stderr.lines().count() == 1, "{}", r.stderr);
+    assert_eq!(listing(&mine), ["notes.txt"]);
+    let blocked = sb.dir.join("a-file");
+    std::fs::write(&blocked, "x").unwrap();
+    let r = run(&["design", "--out", s(&blocked.join("sub")), "--quiet"]);
+    assert_eq!(r.code, Some(3), "{}", r.stderr);
+    assert!(r.elapsed < Duration::from_secs(2), "failed only after {:?}", r.elapsed);
+    let big = sb.write("big.json", &" ".repeat(17 << 20));
+    let r = run(&["simulate", s(&big)]);
+    assert_eq!(r.code, Some(2));
+    assert!(r.stderr.contains("at most 16 MiB") && r.stderr.len() < 300, "{}", r.stderr);
+}
+
+#[test]
+fn identical_designs_write_identical_history_and_plots() {
+    // Checks: the same objective and seed give byte-identical history.csv and convergence.svg (the
+    // history is recorded in a fixed order, not in the order parallel evaluations finish).
+    let mut v = good_objective();
+    v["search"] = json!({"seed": 3, "effort": "quick"});
+    let (a, sa) = design_value("hist-a", &v, Duration::from_secs(120));
+    let (b, sbx) = design_value("hist-b", &v, Duration::from_secs(120));
+    assert_eq!((a.code, b.code), (Some(0), Some(0)), "{}{}", a.stderr, b.stderr);
+    for f in ["history.csv", "convergence.svg", "design.json"] {
+        assert_eq!(std::fs::read(sa.out().join(f)).unwrap(), std::fs::read(sbx.out().join(f)).unwrap(), "{f} differs");
+    }
+}

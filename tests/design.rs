@@ -128,7 +128,12 @@ fn beats_single_pulse_and_brute_force_grid_and_replays_exactly() {
     assert!(r.best.kick.expect("kick model").value >= grid_best - 2e-3, "designer {} vs grid {}", r.best.kick.expect("kick model").value, grid_best);
     // The kick model and the full solver agree for 30 fs pulses on CO2 at 10 K: the finite-duration
     // correction scales as P (Δω σ)² and stays below 2e-3 here.
-    assert!((r.best.full.value - r.best.kick.expect("kick model").value).abs() < 2e-3, "full {} kick {}", r.best.full.value, r.best.kick.expect("kick model").value);
+    assert!(
+        (r.best.full.value - r.best.kick.expect("kick model").value).abs() < 2e-3,
+        "full {} kick {}",
+        r.best.full.value,
+        r.best.kick.expect("kick model").value
+    );
     // design.json replays through simulate to the reported score.
     let scenario = replays_exactly(&obj, &r, "design-test");
     let again = evaluate(&obj, &scenario.field).unwrap();
@@ -258,7 +263,7 @@ fn robust_design_scores_the_mean_under_errors_as_the_tolerance_analysis_does() {
     let mut scenario = obj.scenario_for(&r.best.field);
     scenario.goal = Some(obj.goal);
     let (noise, n) = obj.robust.unwrap();
-    let tol = kicktrain::tolerance::tolerance(&scenario, noise, n, obj.search.seed).unwrap();
+    let tol = kicktrain::tolerance::tolerance(&scenario, noise, n, obj.search.seed, &std::sync::atomic::AtomicBool::new(false)).unwrap();
     assert!((tol.mean - r.best.full.value).abs() < 1e-12, "tolerance mean {} vs robust score {}", tol.mean, r.best.full.value);
     assert!(tol.nominal >= tol.mean - 1e-9 || tol.spread > 0.0);
 }

@@ -3,6 +3,7 @@
 use kicktrain::scan::{Axis, scan, set_path};
 use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
+use std::sync::atomic::AtomicBool;
 
 const TWO: &str = r#"{"molecule": "N2", "temperature_k": 300,
  "pulses": [{"center_ps": 0, "fwhm_fs": 50, "peak_intensity_wcm2": 4e13}, {"center_ps": 4, "fwhm_fs": 50, "peak_intensity_wcm2": 2e13}],
@@ -12,9 +13,14 @@ const TWO: &str = r#"{"molecule": "N2", "temperature_k": 300,
 fn a_scan_over_one_value_equals_simulate_at_that_value() {
     let base: serde_json::Value = serde_json::from_str(TWO).unwrap();
     for (x, y) in [(4.1, 2e13), (8.3, 3.5e13)] {
-        let r =
-            scan(&base, &Axis::linear("pulses[1].center_ps", x, x, 1).unwrap(), Some(&Axis::linear("pulses[1].peak_intensity_wcm2", y, y, 1).unwrap()), &|| {})
-                .unwrap();
+        let r = scan(
+            &base,
+            &Axis::linear("pulses[1].center_ps", x, x, 1).unwrap(),
+            Some(&Axis::linear("pulses[1].peak_intensity_wcm2", y, y, 1).unwrap()),
+            &|| {},
+            &AtomicBool::new(false),
+        )
+        .unwrap();
         let mut v = base.clone();
         set_path(&mut v, "pulses[1].center_ps", x).unwrap();
         set_path(&mut v, "pulses[1].peak_intensity_wcm2", y).unwrap();
@@ -28,9 +34,9 @@ fn a_scan_over_one_value_equals_simulate_at_that_value() {
 #[test]
 fn bad_paths_and_values_name_the_field() {
     let base: serde_json::Value = serde_json::from_str(TWO).unwrap();
-    let err = scan(&base, &Axis::linear("pulses[5].center_ps", 0.0, 1.0, 2).unwrap(), None, &|| {}).unwrap_err().to_string();
+    let err = scan(&base, &Axis::linear("pulses[5].center_ps", 0.0, 1.0, 2).unwrap(), None, &|| {}, &AtomicBool::new(false)).unwrap_err().to_string();
     assert!(err.starts_with("pulses[5].center_ps:"), "{err}");
-    let err = scan(&base, &Axis::linear("pulses[1].fwhm_fs", -10.0, 10.0, 3).unwrap(), None, &|| {}).unwrap_err().to_string();
+    let err = scan(&base, &Axis::linear("pulses[1].fwhm_fs", -10.0, 10.0, 3).unwrap(), None, &|| {}, &AtomicBool::new(false)).unwrap_err().to_string();
     assert!(err.starts_with("pulses[1].fwhm_fs:") && err.contains("scan point"), "{err}");
     assert!(Axis::linear("temperature_k", 0.0, 1.0, 0).is_err());
 }

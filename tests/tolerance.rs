@@ -2,6 +2,7 @@
 
 use kicktrain::scenario::Scenario;
 use kicktrain::tolerance::{Noise, tolerance};
+use std::sync::atomic::AtomicBool;
 
 const DESIGN: &str = r#"{"molecule": "N2", "temperature_k": 300,
  "pulses": [{"center_ps": 0, "fwhm_fs": 50, "peak_intensity_wcm2": 4e13}, {"center_ps": 4.05, "fwhm_fs": 50, "peak_intensity_wcm2": 4e13}],
@@ -11,14 +12,14 @@ const DESIGN: &str = r#"{"molecule": "N2", "temperature_k": 300,
 #[test]
 fn zero_noise_gives_the_nominal_score_exactly_and_noise_is_reproducible() {
     let s = Scenario::from_json_str(DESIGN, "x").unwrap();
-    let quiet = tolerance(&s, Noise { jitter_fs: 0.0, energy_percent: 0.0, phase_rad: 0.0 }, 8, 1).unwrap();
+    let quiet = tolerance(&s, Noise { jitter_fs: 0.0, energy_percent: 0.0, phase_rad: 0.0 }, 8, 1, &AtomicBool::new(false)).unwrap();
     let nominal = kicktrain::simulate::simulate(&s).unwrap().goal_score.unwrap().value;
     assert_eq!(quiet.nominal.to_bits(), nominal.to_bits());
     assert!(quiet.samples.iter().all(|v| v.to_bits() == nominal.to_bits()));
     assert!(quiet.spread < 1e-15, "{}", quiet.spread);
     let noisy = Noise { jitter_fs: 30.0, energy_percent: 5.0, phase_rad: 0.0 };
-    let a = tolerance(&s, noisy, 16, 7).unwrap();
-    let b = tolerance(&s, noisy, 16, 7).unwrap();
+    let a = tolerance(&s, noisy, 16, 7, &AtomicBool::new(false)).unwrap();
+    let b = tolerance(&s, noisy, 16, 7, &AtomicBool::new(false)).unwrap();
     assert_eq!(a.samples, b.samples);
     assert!(a.spread > 1e-4, "noise must show: {}", a.spread);
     assert!(a.worst_decile <= a.mean);
@@ -35,6 +36,6 @@ fn a_scenario_without_goal_is_refused() {
         "x",
     )
     .unwrap();
-    let err = tolerance(&s, Noise { jitter_fs: 1.0, energy_percent: 0.0, phase_rad: 0.0 }, 4, 1).unwrap_err().to_string();
+    let err = tolerance(&s, Noise { jitter_fs: 1.0, energy_percent: 0.0, phase_rad: 0.0 }, 4, 1, &AtomicBool::new(false)).unwrap_err().to_string();
     assert!(err.starts_with("goal:"), "{err}");
 }

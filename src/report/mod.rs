@@ -1,6 +1,7 @@
 //! Reports: the summary (JSON), traces (CSV) and plots (SVG) written to an output folder.
 
 pub mod design;
+pub mod output;
 pub mod svg;
 
 use crate::error::{Error, Result};
@@ -297,11 +298,11 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     plot
 }
 
-/// Create `dir` (and parents) and write `name` inside it.
+/// Create `dir` (and parents) and write `name` inside it, flushed to disk. Commands write into the staging
+/// folder of an [`output::OutputDir`], so that the folder the user names appears whole or not at all.
 pub fn write_file(dir: &Path, name: &str, contents: &str) -> Result<()> {
     std::fs::create_dir_all(dir).map_err(|e| Error::Io(format!("cannot create output folder {}: {e}", dir.display())))?;
-    let path = dir.join(name);
-    std::fs::write(&path, contents).map_err(|e| Error::Io(format!("cannot write {}: {e}", path.display())))
+    output::write_synced(&dir.join(name), contents)
 }
 
 /// Write `summary.json`, `trace.csv` and `alignment.svg` of a simulation into `dir`.
