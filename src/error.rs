@@ -51,6 +51,17 @@ pub fn require_positive(field: &str, value: f64, unit: &str) -> Result<f64> {
     Ok(value)
 }
 
+/// Longest time from zero any input may name, ps (10 µs: far beyond any nanosecond pulse and its delays).
+pub const MAX_TIME_PS: f64 = 1e7;
+
+/// Check that a time (ps) is finite and within ±[`MAX_TIME_PS`]; the error names `field`.
+pub fn require_time_ps(field: &str, value: f64) -> Result<f64> {
+    if !value.is_finite() || value.abs() > MAX_TIME_PS {
+        return Err(Error::input(field, format!("expected a time within ±1e7 ps (10 µs), got {value:e}")));
+    }
+    Ok(value)
+}
+
 /// Check that `value` is finite and ≥ 0; the error names `field` and its `unit`.
 pub fn require_non_negative(field: &str, value: f64, unit: &str) -> Result<f64> {
     if !value.is_finite() || value < 0.0 {

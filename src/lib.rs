@@ -28,6 +28,7 @@ pub mod optics;
 pub mod pendular;
 pub mod propagate;
 pub mod report;
+pub mod resources;
 pub mod scan;
 pub mod scenario;
 pub mod simulate;

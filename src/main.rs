@@ -26,6 +26,22 @@ Lasers that align molecules are class 4: follow your laser safety officer and IE
 struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Go on with runs whose estimated number of finite-pulse time steps exceeds solver.max_steps.
+    #[arg(long, global = true)]
+    allow_long: bool,
+}
+
+/// Set from --allow-long: lift every scenario's solver.max_steps.
+static ALLOW_LONG: AtomicBool = AtomicBool::new(false);
+
+/// Read a scenario file; --allow-long lifts its step limit.
+fn read_scenario(path: &Path) -> Result<Scenario, Error> {
+    let text = read_text(path)?;
+    let mut scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    if ALLOW_LONG.load(Ordering::SeqCst) {
+        scenario.solver.max_steps = f64::INFINITY;
+    }
+    Ok(scenario)
 }
 
 #[derive(Subcommand)]
@@ -224,6 +240,7 @@ fn main() -> ExitCode {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
     let cli = Cli::parse();
+    ALLOW_LONG.store(cli.allow_long, Ordering::SeqCst);
     install_signal_handler();
     let result = match cli.command {
         Command::Molecules { json } => molecules(json).map(|()| Finish::Done),
@@ -414,10 +431,23 @@ fn molecules(json: bool) -> Result<(), Error> {
 }
 
 fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error> {
-    let text = read_text(path)?;
-    let scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    let scenario = read_scenario(path)?;
     let staged = prepare_out(out, "simulate")?;
-    let sim = simulate(&scenario)?;
+    // On a terminal, a ticking line with the elapsed time, so a long run is visibly alive.
+    let spinner = if std::io::IsTerminal::is_terminal(&std::io::stderr()) && !json {
+        let sp = indicatif::ProgressBar::new_spinner();
+        sp.set_style(indicatif::ProgressStyle::with_template("{spinner} simulating {msg} ({elapsed})").expect("template"));
+        sp.set_message(format!("{} at {} K", scenario.molecule.name, scenario.temperature_k));
+        sp.enable_steady_tick(std::time::Duration::from_millis(200));
+        Some(sp)
+    } else {
+        None
+    };
+    let sim = simulate(&scenario);
+    if let Some(sp) = spinner {
+        sp.finish_and_clear();
+    }
+    let sim = sim?;
     let summary = match staged {
         Some(o) => {
             let summary = report::write_simulation(&sim, o.path())?;
@@ -899,7 +929,15 @@ fn run_scan(
     use kicktrain::report::svg;
     use kicktrain::scan::{Axis, Metric, scan};
     let text = read_text(path)?;
-    let base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
+    let mut base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
+    if ALLOW_LONG.load(Ordering::SeqCst)
+        && let Some(obj) = base.as_object_mut()
+    {
+        let solver = obj.entry("solver").or_insert_with(|| serde_json::json!({}));
+        if let Some(sv) = solver.as_object_mut() {
+            sv.insert("max_steps".into(), serde_json::json!(1e12));
+        }
+    }
     let xa = Axis::linear(x, from, to, steps)?;
     let ya = match y {
         None => None,
@@ -1006,8 +1044,7 @@ fn run_scan(
 
 fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<Finish, Error> {
     use kicktrain::report::svg;
-    let text = read_text(path)?;
-    let scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    let scenario = read_scenario(path)?;
     let staged = prepare_out(out, "tolerance")?;
     GRACEFUL.store(true, Ordering::SeqCst);
     let t0 = std::time::Instant::now();

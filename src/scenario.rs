@@ -54,6 +54,8 @@ impl Window {
     }
 
     fn validate(&self, path: &str) -> Result<()> {
+        crate::error::require_time_ps(&join(path, "start_ps"), self.start_ps)?;
+        crate::error::require_time_ps(&join(path, "stop_ps"), self.stop_ps)?;
         require_positive(&join(path, "step_fs"), self.step_fs, "fs")?;
         if self.stop_ps <= self.start_ps {
             return Err(Error::input(join(path, "stop_ps"), format!("expected a time after start_ps = {} ps, got {} ps", self.start_ps, self.stop_ps)));
@@ -85,7 +87,14 @@ pub struct SolverSettings {
     /// In the kick model, the number of sub-kicks per laser pulse (1: one kick at its kick time; more:
     /// the split-kick model of `Pulse::quadrature_nodes`). Not read from scenario files.
     pub kick_nodes: usize,
+    /// Most finite-pulse time steps one run may take (each step costs a few basis-sized products per
+    /// block); a run that would take more is refused before it starts. Infinite: no limit.
+    pub max_steps: f64,
 }
+
+/// Default of [`SolverSettings::max_steps`]: a few minutes of work for a room-temperature linear
+/// molecule or a cold heavy one (a 10 ns pulse on OCS at 1 K takes about 1e4 steps and 11 s).
+pub const DEFAULT_MAX_STEPS: f64 = 2e5;
 
 impl Default for SolverSettings {
     fn default() -> Self {
@@ -97,6 +106,7 @@ impl Default for SolverSettings {
             both_parities: false,
             kick_terahertz_as_finite: false,
             kick_nodes: 1,
+            max_steps: DEFAULT_MAX_STEPS,
         }
     }
 }
@@ -352,6 +362,9 @@ impl Scenario {
         }
         solver.insert("thermal_tolerance".into(), json!(self.solver.thermal_tolerance));
         solver.insert("edge_tolerance".into(), json!(self.solver.edge_tolerance));
+        if self.solver.max_steps != DEFAULT_MAX_STEPS && self.solver.max_steps.is_finite() {
+            solver.insert("max_steps".into(), json!(self.solver.max_steps));
+        }
         if self.solver.both_parities {
             solver.insert("both_parities".into(), json!(true));
         }
@@ -706,9 +719,13 @@ fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
         thermal_tolerance: f.opt_f64("thermal_tolerance", "population fraction")?.unwrap_or(d.thermal_tolerance),
         edge_tolerance: f.opt_f64("edge_tolerance", "population fraction")?.unwrap_or(d.edge_tolerance),
         both_parities: f.opt_bool("both_parities")?.unwrap_or(false),
+        max_steps: f.opt_f64("max_steps", "time steps")?.unwrap_or(d.max_steps),
         ..d
     };
     f.finish()?;
+    if !(s.max_steps >= 1.0 && s.max_steps <= 1e12) {
+        return Err(Error::input(join(path, "max_steps"), format!("expected 1 to 1e12 time steps, got {}", s.max_steps)));
+    }
     Ok(s)
 }
 

@@ -1198,3 +1198,57 @@ fn identical_designs_write_identical_history_and_plots() {
         assert_eq!(std::fs::read(sa.out().join(f)).unwrap(), std::fs::read(sbx.out().join(f)).unwrap(), "{f} differs");
     }
 }
+
+#[test]
+fn runs_above_the_step_limit_are_refused_naming_the_cost_and_run_with_allow_long() {
+    // Checks: the finite-pulse step estimate is compared with solver.max_steps before any work; the
+    // one-line error names the input that drives the cost (the pulse, or solver.step_fs when set);
+    // --allow-long goes on.
+    let mut v = cheap_scenario();
+    v["solver"] = json!({"method": "finite", "max_steps": 5});
+    simulate_fails_on("steps-pulse", &v, "pulses[0].fwhm_fs");
+    v["solver"] = json!({"method": "finite", "max_steps": 5, "step_fs": 1});
+    simulate_fails_on("steps-step", &v, "solver.step_fs");
+    let sb = Sandbox::new("allow-long");
+    let input = sb.write("scenario.json", &v.to_string());
+    let r = run(&["simulate", s(&input), "--allow-long"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    // A 5 ns pulse at the default limit: refused at once, not after hours.
+    let mut long = cheap_scenario();
+    long["pulses"][0]["fwhm_fs"] = json!(5e6);
+    let (r, sb) = simulate_value("steps-long", &long);
+    assert_field_error(&r, &sb.out(), "pulses[0].fwhm_fs");
+    assert!(r.elapsed < Duration::from_secs(5) && r.stderr.contains("max_steps"), "{:?} {}", r.elapsed, r.stderr);
+}
+
+#[test]
+fn times_and_strengths_are_checked_against_physics_not_only_finiteness() {
+    // Checks: times beyond ±10 µs, an edge shorter than an optical cycle and an absurd β are refused
+    // with the field named (they gave NaN traces or endless runs before).
+    type Change = Box<dyn Fn(&mut Value)>;
+    let cases: Vec<(&str, Change, &str)> = vec![
+        ("t-centre", Box::new(|v: &mut Value| v["pulses"][0]["center_ps"] = json!(1e306)), "pulses[0].center_ps"),
+        ("t-window", Box::new(|v: &mut Value| v["window"]["stop_ps"] = json!(1e300)), "window.stop_ps"),
+        ("t-start", Box::new(|v: &mut Value| v["window"]["start_ps"] = json!(-2e7)), "window.start_ps"),
+        (
+            "rise",
+            Box::new(|v: &mut Value| {
+                v["pulses"][0]["shape"] = json!("flat_top");
+                v["pulses"][0]["rise_fs"] = json!(0.01);
+            }),
+            "pulses[0].rise_fs",
+        ),
+        (
+            "beta",
+            Box::new(|v: &mut Value| {
+                v["molecule"] = json!({"name": "x", "b_cm": 0.2, "alpha_parallel_a3": 5, "alpha_perpendicular_a3": 3, "dipole_debye": 1, "beta_parallel_au": 1e9, "beta_perpendicular_au": 1});
+            }),
+            "molecule.beta_parallel_au",
+        ),
+    ];
+    for (tag, change, field) in cases {
+        let mut v = cheap_scenario();
+        change(&mut v);
+        simulate_fails_on(tag, &v, field);
+    }
+}

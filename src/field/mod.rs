@@ -133,7 +133,7 @@ impl Pulse {
 
     /// Check the pulse; errors name the field under `path`.
     pub fn validate(&self, path: &str) -> Result<()> {
-        require_finite(&format!("{path}.center_ps"), self.center_ps, "ps")?;
+        crate::error::require_time_ps(&format!("{path}.center_ps"), self.center_ps)?;
         require_positive(&format!("{path}.fwhm_fs"), self.fwhm_fs, "fs")?;
         self.polarization.validate(&format!("{path}.polarization"))?;
         if self.fwhm_fs > 1e7 {
@@ -151,6 +151,13 @@ impl Pulse {
         }
         if let Some(r) = self.rise_fs {
             require_positive(&format!("{path}.rise_fs"), r, "fs")?;
+            // Cycle averaging needs envelopes longer than an optical cycle (2.7 fs at 800 nm).
+            if r < 1.0 {
+                return Err(Error::input(
+                    format!("{path}.rise_fs"),
+                    format!("expected an edge of at least 1 fs (envelopes shorter than an optical cycle are outside the cycle-averaged model), got {r}"),
+                ));
+            }
             if self.shape == PulseShape::FlatTop && r > self.fwhm_fs {
                 return Err(Error::input(format!("{path}.rise_fs"), format!("expected an edge no longer than fwhm_fs = {} fs, got {r}", self.fwhm_fs)));
             }
@@ -381,10 +388,10 @@ impl StaticField {
             return Err(Error::input(format!("{path}.strength_kv_cm"), format!("expected at most 1e4 kV/cm (1 GV/m) for a static field, got {e}")));
         }
         if let Some(t) = self.on_ps {
-            require_finite(&format!("{path}.on_ps"), t, "ps")?;
+            crate::error::require_time_ps(&format!("{path}.on_ps"), t)?;
         }
         if let Some(t) = self.off_ps {
-            require_finite(&format!("{path}.off_ps"), t, "ps")?;
+            crate::error::require_time_ps(&format!("{path}.off_ps"), t)?;
             if let Some(on) = self.on_ps
                 && t <= on
             {
@@ -491,7 +498,7 @@ pub struct TerahertzPulse {
 impl TerahertzPulse {
     /// Check the element; errors name the field under `path`.
     pub fn validate(&self, path: &str) -> Result<()> {
-        require_finite(&format!("{path}.center_ps"), self.center_ps, "ps")?;
+        crate::error::require_time_ps(&format!("{path}.center_ps"), self.center_ps)?;
         require_positive(&format!("{path}.duration_fs"), self.duration_fs, "fs")?;
         if self.duration_fs > 1e6 {
             return Err(Error::input(format!("{path}.duration_fs"), "expected at most 1e6 fs for a terahertz pulse"));

@@ -179,6 +179,10 @@ impl Molecule {
         for (name, b) in [("beta_parallel_au", self.beta_parallel_au), ("beta_perpendicular_au", self.beta_perpendicular_au)] {
             if let Some(b) = b {
                 crate::error::require_finite(&format!("{path}.{name}"), b, "atomic units")?;
+                // Small molecules have |β| of tens of a.u., large push–pull chromophores ~1e4 (common practice).
+                if b.abs() > 1e5 {
+                    return Err(Error::input(format!("{path}.{name}"), format!("expected |β| ≤ 1e5 atomic units (Taylor convention), got {b:e}")));
+                }
             }
         }
         Ok(())

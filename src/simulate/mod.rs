@@ -220,6 +220,69 @@ impl Solver {
         })
     }
 
+    /// The finite-pulse time steps a run of `field` takes on the path `run` chooses (kicks cost none):
+    /// the total and the interval that needs the most, as (steps, start, end, step) in ps.
+    pub fn time_steps(&self, field: &FieldModel) -> (f64, Option<(f64, f64, f64, f64)>) {
+        let spans: Vec<(f64, f64, f64)> = if let Some(t) = &self.top
+            && field.is_symmetric_about_z()
+            && !(field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric)
+        {
+            finite_spans(&t.schedule(field))
+        } else if let Some(t) = &self.top {
+            if field.is_symmetric_about_z() { polar_spans(&self.figure_axis_view(t).polar_schedule(field).0) } else { finite_spans(&t.schedule(field)) }
+        } else if field.is_symmetric_about_z() && (field.is_polar() || self.settings.both_parities) {
+            polar_spans(&self.polar_schedule(field).0)
+        } else {
+            finite_spans(&self.schedule(field))
+        };
+        let mut total = 0.0;
+        let mut worst: Option<(f64, f64, f64, f64)> = None;
+        for (a, b, step) in spans {
+            let n = ((b - a) / step).ceil().max(1.0);
+            total += n;
+            if worst.is_none_or(|w| n > w.0) {
+                worst = Some((n, a, b, step));
+            }
+        }
+        (total, worst)
+    }
+
+    /// Refuse a run whose finite-pulse steps exceed `settings.max_steps`, naming the input that drives
+    /// the cost: the solver step when one is set, else the longest field element in the costliest interval.
+    fn check_time_steps(&self, field: &FieldModel) -> Result<()> {
+        let (total, worst) = self.time_steps(field);
+        if total <= self.settings.max_steps {
+            return Ok(());
+        }
+        let (n, a, b, step) = worst.unwrap_or((total, 0.0, 0.0, 0.0));
+        let overlaps = |(lo, hi): (f64, f64)| lo <= b && hi >= a;
+        let mut longest: Option<(f64, String)> = None;
+        let mut consider = |span: (f64, f64), key: String| {
+            if overlaps(span) && longest.as_ref().is_none_or(|l| span.1 - span.0 > l.0) {
+                longest = Some((span.1 - span.0, key));
+            }
+        };
+        for (i, p) in field.pulses.iter().enumerate() {
+            consider(p.support_ps(), format!("pulses[{i}].fwhm_fs"));
+        }
+        for (i, t) in field.two_colour.iter().enumerate() {
+            consider(t.envelope_pulse().support_ps(), format!("two_colour[{i}].fwhm_fs"));
+        }
+        for (i, t) in field.terahertz.iter().enumerate() {
+            consider(t.support_ps(), format!("terahertz[{i}].duration_fs"));
+        }
+        let key = if self.settings.step_fs.is_some() { "solver.step_fs".to_string() } else { longest.map(|l| l.1).unwrap_or_else(|| "pulses".into()) };
+        Err(Error::input(
+            key,
+            format!(
+                "the run would take {total:.2e} time steps ({n:.2e} from {a:.1} to {b:.1} ps at {:.3} fs), above solver.max_steps = {:.0e}; \
+                 shorten or weaken the pulse, use the kick model, or raise solver.max_steps (or pass --allow-long) to go on",
+                step * 1e3,
+                self.settings.max_steps
+            ),
+        ))
+    }
+
     /// A linear-molecule view of a symmetric top along its figure axis (B, α∥ − α⊥ with sign, dipole), used
     /// to build schedules and coupling rates for the polar path.
     fn figure_axis_view(&self, t: &top::TopSolver) -> Solver {
@@ -470,6 +533,7 @@ impl Solver {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
         }
+        self.check_time_steps(field)?;
         if !field.is_symmetric_about_z() {
             return self.run_lab_frame(field, times_ps, with_2d);
         }
@@ -767,6 +831,16 @@ fn sum_polar(outcomes: Vec<PolarOutcome>, n: usize) -> ([Vec<f64>; POLAR_OBSERVA
 }
 
 /// One step of the schedule with both parities.
+/// (start, end, step) of every finite-pulse interval of a schedule.
+fn finite_spans(events: &[Event]) -> Vec<(f64, f64, f64)> {
+    events.iter().filter_map(|e| if let Event::Finite { start_ps, end_ps, step_ps, .. } = e { Some((*start_ps, *end_ps, *step_ps)) } else { None }).collect()
+}
+
+/// (start, end, step) of every finite interval of a polar schedule.
+fn polar_spans(items: &[PolarItem]) -> Vec<(f64, f64, f64)> {
+    items.iter().filter_map(|e| if let PolarItem::Finite { start_ps, end_ps, step_ps } = e { Some((*start_ps, *end_ps, *step_ps)) } else { None }).collect()
+}
+
 enum PolarItem {
     /// exp(i[θ1 cosθ + θ2 cos²θ + θ3 cos³θ]) at time t.
     Kick { t_ps: f64, theta: [f64; 3] },
@@ -1093,6 +1167,13 @@ pub struct Simulation {
 pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
     scenario.validate()?;
     let t0 = std::time::Instant::now();
+    // The trace (up to 16 columns, twice with a focal average) and its CSV text, before any work.
+    let samples = ((scenario.window.stop_ps - scenario.window.start_ps) * 1000.0 / scenario.window.step_fs).floor() as usize + 1;
+    crate::resources::check_memory(
+        crate::resources::trace_bytes(samples, 16, if scenario.focal_average.is_some() { 2 } else { 1 }),
+        "window.step_fs",
+        &format!("a trace of {samples} samples"),
+    )?;
     let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?;
     let times = scenario.window.times_ps();
     let result = solver.run(&scenario.field, &times, true)?;
