@@ -30,7 +30,7 @@ impl Error {
 impl fmt::Display for Error {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
-            Error::Input { field, message } => write!(f, "{field}: {message}"),
+            Error::Input { field, message } => write!(f, "{}: {}", shorten(field, 200), shorten(message, 400)),
             Error::Numerical(m) => write!(f, "numerical limit: {m}"),
             Error::Io(m) => write!(f, "{m}"),
             Error::Interrupted => write!(f, "interrupted"),
@@ -39,6 +39,11 @@ impl fmt::Display for Error {
 }
 
 impl std::error::Error for Error {}
+
+/// `s` cut to at most `max` characters with an ellipsis, so an error never echoes a huge input.
+fn shorten(s: &str, max: usize) -> std::borrow::Cow<'_, str> {
+    if s.chars().count() <= max { std::borrow::Cow::Borrowed(s) } else { std::borrow::Cow::Owned(s.chars().take(max).collect::<String>() + "…") }
+}
 
 /// Result alias used throughout the crate.
 pub type Result<T> = std::result::Result<T, Error>;

@@ -1252,3 +1252,64 @@ fn times_and_strengths_are_checked_against_physics_not_only_finiteness() {
         simulate_fails_on(tag, &v, field);
     }
 }
+
+#[test]
+fn a_generated_corpus_of_hostile_values_never_panics_and_fails_cleanly() {
+    // Checks (common practice for input validation): every leaf of a valid scenario replaced by each of
+    // a set of hostile values (huge, tiny, negative, wrong type, a 1 MB string) either still runs (exit 0)
+    // or fails cleanly: exit 2, one short line naming the key or its parent, nothing written, no panic.
+    let base = cheap_scenario();
+    let mut leaves: Vec<Vec<Value>> = vec![];
+    fn walk(v: &Value, path: Vec<Value>, out: &mut Vec<Vec<Value>>) {
+        match v {
+            Value::Object(m) => m.iter().for_each(|(k, x)| walk(x, [path.clone(), vec![json!(k)]].concat(), out)),
+            Value::Array(a) => a.iter().enumerate().for_each(|(i, x)| walk(x, [path.clone(), vec![json!(i)]].concat(), out)),
+            _ => out.push(path),
+        }
+    }
+    walk(&base, vec![], &mut leaves);
+    let long = "x".repeat(1 << 20);
+    let hostile = [json!(1e308), json!(-1e308), json!(5e-324), json!(-1), json!(0), json!("12"), json!(null), json!([]), json!({}), json!(long)];
+    let sb = Sandbox::new("corpus");
+    let (mut failures, mut runs) = (0, 0);
+    for path in &leaves {
+        let key = path.last().unwrap().as_str().map(str::to_string).unwrap_or_default();
+        for h in &hostile {
+            let mut v = base.clone();
+            let mut cur = &mut v;
+            for p in path {
+                cur = match p {
+                    Value::String(k) => &mut cur[k.as_str()],
+                    Value::Number(i) => &mut cur[i.as_u64().unwrap() as usize],
+                    _ => unreachable!(),
+                };
+            }
+            *cur = h.clone();
+            let input = sb.write("scenario.json", &v.to_string());
+            let out = sb.dir.join("out");
+            let _ = std::fs::remove_dir_all(&out);
+            let r = run_with_limit(&["simulate", s(&input), "--out", s(&out)], Duration::from_secs(60));
+            runs += 1;
+            let ctx = format!(
+                "{path:?} = {}: exit {:?}, stderr {:?}",
+                h.to_string().chars().take(40).collect::<String>(),
+                r.code,
+                r.stderr.chars().take(300).collect::<String>()
+            );
+            assert!(!r.stderr.contains("panicked"), "{ctx}");
+            match r.code {
+                Some(0) => assert!(out.join("trace.csv").is_file(), "{ctx}"),
+                Some(2) => {
+                    failures += 1;
+                    assert_eq!(r.stderr.lines().count(), 1, "{ctx}");
+                    assert!(r.stderr.starts_with("error: ") && r.stderr.len() < 1000, "{ctx}");
+                    let parent = path.iter().rev().find_map(|p| p.as_str().filter(|k| *k != key)).unwrap_or("");
+                    assert!(r.stderr.contains(&key) || (!parent.is_empty() && r.stderr.contains(parent)), "error names neither {key} nor {parent}: {ctx}");
+                    assert!(!out.exists(), "{ctx}");
+                }
+                _ => panic!("unexpected exit: {ctx}"),
+            }
+        }
+    }
+    assert!(failures > runs / 2, "{failures} of {runs} hostile inputs refused");
+}
