@@ -181,6 +181,9 @@ fn evaluate(s: &Scenario, solver: &Solver, metric: Metric) -> Result<f64> {
     }
 }
 
+/// A scan or tolerance run may take this many times a single run's `solver.max_steps` in all.
+pub const COMMAND_STEP_FACTOR: f64 = 50.0;
+
 /// Scan `base` (the scenario as JSON) over one or two axes; `progress` is called after each point. Once
 /// `stop` is set no new point starts; the points finished so far are returned (see [`ScanResult::done`]).
 pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Sync), stop: &AtomicBool) -> Result<ScanResult> {
@@ -216,6 +219,19 @@ pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Syn
         .collect::<Result<_>>()?;
     let shared = Solver::new(&base_scenario.molecule, base_scenario.temperature_k, base_scenario.solver)?;
     let same = |s: &Scenario| s.molecule == base_scenario.molecule && s.temperature_k == base_scenario.temperature_k && s.solver == base_scenario.solver;
+    // The whole scan's finite-pulse steps (each point is also checked alone when it runs).
+    let total: f64 = scenarios.iter().filter(|s| same(s)).map(|s| shared.time_steps(&s.field).0).sum();
+    let limit = COMMAND_STEP_FACTOR * base_scenario.solver.max_steps;
+    if total > limit {
+        let key = if y.is_some() { "--steps × --y-steps" } else { "--steps" };
+        return Err(Error::input(
+            key,
+            format!(
+                "the scan would take {total:.2e} time steps in all ({} points), above {COMMAND_STEP_FACTOR} × solver.max_steps = {limit:.0e}; use fewer points, the kick model, or --allow-long",
+                scenarios.len()
+            ),
+        ));
+    }
     let flat: Vec<Option<f64>> = scenarios
         .par_iter()
         .map(|s| {

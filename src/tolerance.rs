@@ -86,6 +86,17 @@ pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64, s
         return Err(Error::input("samples", format!("expected 1 to 100000 samples, got {samples}")));
     }
     let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?;
+    let per_sample = solver.time_steps(&scenario.field).0;
+    let limit = crate::scan::COMMAND_STEP_FACTOR * scenario.solver.max_steps;
+    if per_sample * (samples + 1) as f64 > limit {
+        return Err(Error::input(
+            "samples",
+            format!(
+                "{samples} samples of {per_sample:.2e} time steps each exceed {} × solver.max_steps = {limit:.0e}; use fewer samples, the kick model, or --allow-long",
+                crate::scan::COMMAND_STEP_FACTOR
+            ),
+        ));
+    }
     // The probe times stay where the nominal design puts them.
     let t_last = scenario.last_pulse_center_ps();
     let times = goal.times(t_last);

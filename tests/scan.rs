@@ -40,3 +40,21 @@ fn bad_paths_and_values_name_the_field() {
     assert!(err.starts_with("pulses[1].fwhm_fs:") && err.contains("scan point"), "{err}");
     assert!(Axis::linear("temperature_k", 0.0, 1.0, 0).is_err());
 }
+
+#[test]
+fn a_scan_whose_total_steps_exceed_the_limit_is_refused_before_it_starts() {
+    // Checks: each point fits solver.max_steps, but 60 points exceed 50 × max_steps in all: refused at
+    // once naming --steps; 40 points run.
+    let mut base: serde_json::Value = serde_json::from_str(TWO).unwrap();
+    base["solver"] = serde_json::json!({"method": "finite"});
+    let s = Scenario::from_value(&base, "").unwrap();
+    let per_run = kicktrain::simulate::Solver::new(&s.molecule, s.temperature_k, s.solver).unwrap().time_steps(&s.field).0;
+    assert!(per_run > 10.0, "{per_run}");
+    base["solver"]["max_steps"] = serde_json::json!(per_run + 1.0);
+    let stop = AtomicBool::new(false);
+    let err = scan(&base, &Axis::linear("pulses[1].center_ps", 3.0, 5.0, 60).unwrap(), None, &|| {}, &stop).unwrap_err().to_string();
+    assert!(err.starts_with("--steps: the scan would take"), "{err}");
+    let t0 = std::time::Instant::now();
+    assert!(scan(&base, &Axis::linear("pulses[1].center_ps", 3.0, 5.0, 40).unwrap(), None, &|| {}, &stop).is_ok());
+    assert!(t0.elapsed().as_secs() < 60);
+}

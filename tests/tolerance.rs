@@ -39,3 +39,18 @@ fn a_scenario_without_goal_is_refused() {
     let err = tolerance(&s, Noise { jitter_fs: 1.0, energy_percent: 0.0, phase_rad: 0.0 }, 4, 1, &AtomicBool::new(false)).unwrap_err().to_string();
     assert!(err.starts_with("goal:"), "{err}");
 }
+
+#[test]
+fn too_many_samples_of_a_costly_run_are_refused_before_they_start() {
+    // Checks: samples × the run's finite-pulse steps above 50 × solver.max_steps is refused naming samples.
+    let mut v: serde_json::Value = serde_json::from_str(DESIGN).unwrap();
+    v["solver"] = serde_json::json!({"method": "finite"});
+    let s = Scenario::from_value(&v, "").unwrap();
+    let per_run = kicktrain::simulate::Solver::new(&s.molecule, s.temperature_k, s.solver).unwrap().time_steps(&s.field).0;
+    v["solver"]["max_steps"] = serde_json::json!(per_run + 1.0);
+    let s = Scenario::from_value(&v, "").unwrap();
+    let noise = Noise { jitter_fs: 10.0, energy_percent: 1.0, phase_rad: 0.0 };
+    let err = tolerance(&s, noise, 200, 1, &AtomicBool::new(false)).unwrap_err().to_string();
+    assert!(err.starts_with("samples:"), "{err}");
+    assert!(tolerance(&s, noise, 4, 1, &AtomicBool::new(false)).is_ok());
+}

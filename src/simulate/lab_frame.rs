@@ -878,12 +878,21 @@ pub struct LabSolver {
     /// θ tables of the detector-plane operator per level class (grown when a larger basis needs them).
     detector_tables: Mutex<HashMap<usize, Arc<DetectorTable>>>,
     timing: Mutex<LabTiming>,
+    /// Where finished chunks are counted (shared with the owning `Solver`).
+    pub progress: Arc<super::RunProgress>,
 }
 
 impl LabSolver {
     /// A solver for `rotor` with `settings`.
     pub fn new(rotor: LabRotor, settings: SolverSettings) -> LabSolver {
-        LabSolver { rotor, settings, cache: Mutex::new(HashMap::new()), detector_tables: Mutex::new(HashMap::new()), timing: Mutex::new(LabTiming::default()) }
+        LabSolver {
+            rotor,
+            settings,
+            cache: Mutex::new(HashMap::new()),
+            detector_tables: Mutex::new(HashMap::new()),
+            timing: Mutex::new(LabTiming::default()),
+            progress: Default::default(),
+        }
     }
 
     /// The detector-plane θ table of level class `class` covering J ≤ `j_max` (None: no detector axis).
@@ -989,9 +998,16 @@ impl LabSolver {
         // results are merged in this fixed order, so they do not depend on thread timing.
         chunks.sort_by_key(|c| std::cmp::Reverse(c.0.j_max));
         let group = 16 * rayon::current_num_threads().max(1);
+        self.progress.plan(chunks.len());
         for batch in chunks.chunks(group) {
-            let outcomes: Vec<ChunkOutcome> =
-                batch.par_iter().map(|(block, cols)| self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d)).collect::<Result<Vec<_>>>()?;
+            let outcomes: Vec<ChunkOutcome> = batch
+                .par_iter()
+                .map(|(block, cols)| {
+                    let r = self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d);
+                    self.progress.finish_one();
+                    r
+                })
+                .collect::<Result<Vec<_>>>()?;
             for o in outcomes {
                 timing.propagate_cpu_s += o.propagate_s;
                 timing.retries += o.retries;

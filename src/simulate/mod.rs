@@ -169,6 +169,33 @@ pub struct Solver {
     pub top: Option<top::TopSolver>,
     /// The all-M solver for fields not symmetric about Z, built on first use.
     lab: std::sync::OnceLock<lab_frame::LabSolver>,
+    /// Blocks started and finished by this solver's runs (for a progress display).
+    pub progress: Arc<RunProgress>,
+}
+
+/// Counts of the independent pieces of work (symmetry blocks, chunks of initial states) that runs have
+/// planned and finished; shared by a solver and the views it builds, read by a progress display.
+#[derive(Debug, Default)]
+pub struct RunProgress {
+    planned: std::sync::atomic::AtomicU64,
+    finished: std::sync::atomic::AtomicU64,
+}
+
+impl RunProgress {
+    /// Record `n` more pieces of work.
+    pub fn plan(&self, n: usize) {
+        self.planned.fetch_add(n as u64, std::sync::atomic::Ordering::Relaxed);
+    }
+
+    /// Record one piece finished.
+    pub fn finish_one(&self) {
+        self.finished.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    }
+
+    /// (finished, planned) so far; planned grows as later runs of one command start.
+    pub fn counts(&self) -> (u64, u64) {
+        (self.finished.load(std::sync::atomic::Ordering::Relaxed), self.planned.load(std::sync::atomic::Ordering::Relaxed))
+    }
 }
 
 /// Per-block result before summing.
@@ -195,7 +222,9 @@ impl Solver {
     /// A solver for `molecule` at `temperature_k` with `settings`.
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
         if let Some(t) = &molecule.top {
-            let top = top::TopSolver::new(t, temperature_k, settings)?;
+            let mut top = top::TopSolver::new(t, temperature_k, settings)?;
+            let progress = Arc::new(RunProgress::default());
+            top.progress = progress.clone();
             let ensemble =
                 ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
             return Ok(Solver {
@@ -206,6 +235,7 @@ impl Solver {
                 polar_cache: Mutex::new(HashMap::new()),
                 top: Some(top),
                 lab: Default::default(),
+                progress,
             });
         }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
@@ -217,7 +247,17 @@ impl Solver {
             polar_cache: Mutex::new(HashMap::new()),
             top: None,
             lab: Default::default(),
+            progress: Arc::new(RunProgress::default()),
         })
+    }
+
+    /// This solver reporting its work to `progress` (shared with its top and all-M solvers).
+    pub fn with_progress(mut self, progress: Arc<RunProgress>) -> Solver {
+        if let Some(t) = &mut self.top {
+            t.progress = progress.clone();
+        }
+        self.progress = progress;
+        self
     }
 
     /// The finite-pulse time steps a run of `field` takes on the path `run` chooses (kicks cost none):
@@ -306,6 +346,7 @@ impl Solver {
             polar_cache: Mutex::new(HashMap::new()),
             top: None,
             lab: Default::default(),
+            progress: self.progress.clone(),
         }
     }
 
@@ -460,7 +501,9 @@ impl Solver {
                 Some(t) => lab_frame::LabRotor::from_top(t),
                 None => lab_frame::LabRotor::from_linear(&self.molecule, &self.ensemble),
             };
-            lab_frame::LabSolver::new(rotor, self.settings)
+            let mut lab = lab_frame::LabSolver::new(rotor, self.settings);
+            lab.progress = self.progress.clone();
+            lab
         });
         let run = lab.run(field, &events, reach, times_ps, with_2d)?;
         let frame = &lab.rotor.frame;
@@ -566,8 +609,18 @@ impl Solver {
                     .collect()
             })
             .collect();
-        let outcomes: Vec<BlockOutcome> =
-            self.ensemble.blocks.par_iter().map(|bp| self.run_block(bp, field, &events, &tables, times_ps, with_2d, extra)).collect::<Result<Vec<_>>>()?;
+        let outcomes: Vec<BlockOutcome> = {
+            self.progress.plan(self.ensemble.blocks.len());
+            self.ensemble
+                .blocks
+                .par_iter()
+                .map(|bp| {
+                    let r = self.run_block(bp, field, &events, &tables, times_ps, with_2d, extra);
+                    self.progress.finish_one();
+                    r
+                })
+                .collect::<Result<Vec<_>>>()?
+        };
         let mut cos2 = vec![0.0; times_ps.len()];
         let mut c2d = vec![0.0; times_ps.len()];
         for o in &outcomes {
@@ -951,8 +1004,16 @@ impl Solver {
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
         let extra = self.polar_extra(field, &items);
         let pops = self.ensemble.merged_by_m();
-        let outcomes: Vec<PolarOutcome> =
-            pops.par_iter().map(|bp| self.run_polar_block(bp, field, &items, times, t_first, extra, wanted)).collect::<Result<Vec<_>>>()?;
+        let outcomes: Vec<PolarOutcome> = {
+            self.progress.plan(pops.len());
+            pops.par_iter()
+                .map(|bp| {
+                    let r = self.run_polar_block(bp, field, &items, times, t_first, extra, wanted);
+                    self.progress.finish_one();
+                    r
+                })
+                .collect::<Result<Vec<_>>>()?
+        };
         let (values, permanent, blocks) = sum_polar(outcomes, times.len());
         let [cos2, cos2_2d, cos, cos3] = polar_series(values, wanted);
         let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3, ..Default::default() };
@@ -1165,6 +1226,11 @@ pub struct Simulation {
 
 /// Run a scenario: thermal ensemble, schedule, propagation and both alignment observables over the window.
 pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
+    simulate_with_progress(scenario, Arc::new(RunProgress::default()))
+}
+
+/// [`simulate`], counting the blocks of its runs in `progress` as they finish (for a progress bar).
+pub fn simulate_with_progress(scenario: &Scenario, progress: Arc<RunProgress>) -> Result<Simulation> {
     scenario.validate()?;
     let t0 = std::time::Instant::now();
     // The trace (up to 16 columns, twice with a focal average) and its CSV text, before any work.
@@ -1174,7 +1240,7 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
         "window.step_fs",
         &format!("a trace of {samples} samples"),
     )?;
-    let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?;
+    let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?.with_progress(progress);
     let times = scenario.window.times_ps();
     let result = solver.run(&scenario.field, &times, true)?;
     let averaged = match &scenario.focal_average {

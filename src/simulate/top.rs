@@ -225,6 +225,8 @@ pub struct TopSolver {
     pub ensemble: TopEnsemble,
     settings: SolverSettings,
     cache: Mutex<HashMap<(TopBlock, bool), Arc<TopOps>>>,
+    /// Where finished blocks are counted (shared with the owning `Solver`).
+    pub(super) progress: Arc<super::RunProgress>,
 }
 
 /// What one block returns before the blocks are merged.
@@ -245,7 +247,7 @@ impl TopSolver {
     pub fn new(top: &Top, temperature_k: f64, settings: SolverSettings) -> Result<TopSolver> {
         let frame = TopFrame::new(top, false);
         let ensemble = TopEnsemble::new(top, &frame, temperature_k, settings.thermal_tolerance)?;
-        Ok(TopSolver { top: top.clone(), frame, ensemble, settings, cache: Mutex::new(HashMap::new()) })
+        Ok(TopSolver { top: top.clone(), frame, ensemble, settings, cache: Mutex::new(HashMap::new()), progress: Default::default() })
     }
 
     fn ops(&self, block: TopBlock, with_2d: bool) -> Arc<TopOps> {
@@ -342,9 +344,16 @@ impl TopSolver {
         let mut final_sums: Option<PairSums> = None;
         let mut reports = vec![];
         let group = 8 * rayon::current_num_threads().max(1);
+        self.progress.plan(self.ensemble.blocks.len());
         for blocks in self.ensemble.blocks.chunks(group) {
-            let outcomes: Vec<TopOutcome> =
-                blocks.par_iter().map(|bp| self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach)).collect::<Result<Vec<_>>>()?;
+            let outcomes: Vec<TopOutcome> = blocks
+                .par_iter()
+                .map(|bp| {
+                    let r = self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach);
+                    self.progress.finish_one();
+                    r
+                })
+                .collect::<Result<Vec<_>>>()?;
             for o in outcomes {
                 for (acc, v) in values.iter_mut().zip(&o.values) {
                     for (a, b) in acc.iter_mut().zip(v) {
