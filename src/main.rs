@@ -4,8 +4,8 @@ use clap::{Parser, Subcommand};
 use kicktrain::design::Objective;
 use kicktrain::design::search::{Monitor, design};
 use kicktrain::error::Error;
-use kicktrain::molecule::library;
 use kicktrain::report;
+use kicktrain::report::output::OutputDir;
 use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
 use std::path::{Path, PathBuf};
@@ -326,8 +326,8 @@ fn install_signal_handler() {
 }
 
 /// Prepare the output folder before any work, so that an output that cannot be written fails at once.
-fn prepare_out(out: Option<&Path>, command: &str) -> Result<Option<kicktrain::report::output::OutputDir>, Error> {
-    out.map(|d| kicktrain::report::output::OutputDir::prepare(d, command)).transpose()
+fn prepare_out(out: Option<&Path>, command: &str) -> Result<Option<OutputDir>, Error> {
+    out.map(|d| OutputDir::prepare(d, command)).transpose()
 }
 
 /// Largest input file read (scenarios and objectives are a few kB).
@@ -348,105 +348,41 @@ fn read_text(path: &Path) -> Result<String, Error> {
 
 fn molecules(json: bool) -> Result<(), Error> {
     if json {
-        let list: Vec<_> = library()
-            .iter()
-            .map(|e| {
-                serde_json::json!({
-                    "name": e.name, "aliases": e.aliases, "description": e.description,
-                    "b_cm": {"value": e.b_cm.value, "source": e.b_cm.source},
-                    "d_cm": {"value": e.d_cm.value, "source": e.d_cm.source},
-                    "alpha_parallel_a3": {"value": e.alpha_parallel_a3.value, "source": e.alpha_parallel_a3.source},
-                    "alpha_perpendicular_a3": {"value": e.alpha_perpendicular_a3.value, "source": e.alpha_perpendicular_a3.source},
-                    "spin_weights": {"value": e.spin_weights, "source": e.spin_weights_source},
-                    "dipole_debye": e.dipole_debye.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
-                    "beta_parallel_au": e.beta_parallel_au.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
-                    "beta_perpendicular_au": e.beta_perpendicular_au.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
-                    "ionization_energy_ev": e.ionization_energy_ev.map(|d| serde_json::json!({"value": d.value, "source": d.source})),
-                })
-            })
-            .collect();
-        let tops: Vec<_> = kicktrain::molecule::top_library()
-            .iter()
-            .map(|e| {
-                let sv = |x: &kicktrain::molecule::Sourced| serde_json::json!({"value": x.value, "source": x.source});
-                serde_json::json!({
-                    "name": e.name, "aliases": e.aliases, "description": e.description,
-                    "a_cm": sv(&e.constants_cm[0]), "b_cm": sv(&e.constants_cm[1]), "c_cm": sv(&e.constants_cm[2]),
-                    "d_j_cm": sv(&e.distortion_cm[0]), "d_jk_cm": sv(&e.distortion_cm[1]),
-                    "polarizability_a3": {"a": sv(&e.polarizability_a3[0]), "b": sv(&e.polarizability_a3[1]), "c": sv(&e.polarizability_a3[2])},
-                    "dipole": e.dipole.map(|d| serde_json::json!({"value_debye": d.0.value, "axis": d.1.letter(), "source": d.0.source})),
-                    "spin_weights": {"value": e.spin_weights, "source": e.spin_weights_source},
-                    "ionization_energy_ev": e.ionization_energy_ev.map(|d| sv(&d)),
-                })
-            })
-            .collect();
-        println!("{}", serde_json::to_string_pretty(&serde_json::json!({"linear": list, "tops": tops})).expect("json"));
-        return Ok(());
+        println!("{}", serde_json::to_string_pretty(&report::text::molecules_json()).expect("json"));
+    } else {
+        print!("{}", report::text::molecules_table());
     }
-    println!(
-        "{:<6} {:>11} {:>10} {:>8} {:>8} {:>7} {:>9} {:>7} {:>15}  description",
-        "name", "B (cm⁻¹)", "D (cm⁻¹)", "α∥ (Å³)", "α⊥ (Å³)", "Δα", "even:odd", "μ (D)", "β∥, β⊥ (a.u.)"
-    );
-    for e in library() {
-        let dipole = e.dipole_debye.map(|d| format!("{:.4}", d.value)).unwrap_or_else(|| "—".into());
-        let beta = match (e.beta_parallel_au, e.beta_perpendicular_au) {
-            (Some(a), Some(b)) => format!("{:.2}, {:.2}", a.value, b.value),
-            _ => "—".into(),
-        };
-        println!(
-            "{:<6} {:>11.6} {:>10.3e} {:>8.3} {:>8.3} {:>7.3} {:>4}:{:<4} {:>7} {:>15}  {}",
-            e.name,
-            e.b_cm.value,
-            e.d_cm.value,
-            e.alpha_parallel_a3.value,
-            e.alpha_perpendicular_a3.value,
-            e.alpha_parallel_a3.value - e.alpha_perpendicular_a3.value,
-            e.spin_weights[0],
-            e.spin_weights[1],
-            dipole,
-            beta,
-            e.description
-        );
-    }
-    println!("\n{:<6} {:>9} {:>9} {:>9} {:>6} {:>21}  description", "top", "A (cm⁻¹)", "B (cm⁻¹)", "C (cm⁻¹)", "κ", "α_a, α_b, α_c (Å³)");
-    for e in kicktrain::molecule::top_library() {
-        let m = e.molecule();
-        let t = m.top.as_ref().expect("top");
-        let p = t.polarizability_a3;
-        println!(
-            "{:<6} {:>9.5} {:>9.5} {:>9.5} {:>6.2} {:>6.2}, {:>5.2}, {:>5.2}  {}",
-            e.name,
-            t.a_cm,
-            t.b_cm,
-            t.c_cm,
-            t.kappa(),
-            p[0],
-            p[1],
-            p[2],
-            e.description
-        );
-    }
-    println!("\nSources of every constant: kicktrain molecules --json");
     Ok(())
 }
 
 fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error> {
     let scenario = read_scenario(path)?;
     let staged = prepare_out(out, "simulate")?;
-    // On a terminal, a ticking line with the elapsed time, so a long run is visibly alive.
-    let spinner = if std::io::IsTerminal::is_terminal(&std::io::stderr()) && !json {
-        let sp = indicatif::ProgressBar::new_spinner();
-        sp.set_style(indicatif::ProgressStyle::with_template("{spinner} simulating {msg} ({elapsed})").expect("template"));
-        sp.set_message(format!("{} at {} K", scenario.molecule.name, scenario.temperature_k));
-        sp.enable_steady_tick(std::time::Duration::from_millis(200));
-        Some(sp)
+    // On a terminal, a bar of the symmetry blocks (or chunks of initial states) finished; the total grows
+    // as the runs of the command (trace, focal average, goal) plan their blocks.
+    let progress = std::sync::Arc::new(kicktrain::simulate::RunProgress::default());
+    let sim = if std::io::IsTerminal::is_terminal(&std::io::stderr()) && !json {
+        let bar = indicatif::ProgressBar::new(0);
+        bar.set_style(
+            indicatif::ProgressStyle::with_template("simulating {msg} [{bar:30}] {pos}/{len} blocks ({elapsed}, ETA {eta})")
+                .expect("template")
+                .progress_chars("=> "),
+        );
+        bar.set_message(format!("{} at {} K", scenario.molecule.name, scenario.temperature_k));
+        std::thread::scope(|scope| {
+            let run = scope.spawn(|| kicktrain::simulate::simulate_with_progress(&scenario, progress.clone()));
+            while !run.is_finished() {
+                let (done, planned) = progress.counts();
+                bar.set_length(planned);
+                bar.set_position(done);
+                std::thread::sleep(std::time::Duration::from_millis(100));
+            }
+            bar.finish_and_clear();
+            run.join().unwrap_or_else(|_| Err(Error::Numerical("the simulation thread failed".into())))
+        })
     } else {
-        None
+        simulate(&scenario)
     };
-    let sim = simulate(&scenario);
-    if let Some(sp) = spinner {
-        sp.finish_and_clear();
-    }
     let sim = sim?;
     let summary = match staged {
         Some(o) => {
@@ -459,121 +395,12 @@ fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error
     if json {
         println!("{}", serde_json::to_string_pretty(&summary).expect("json"));
     } else {
-        print_simulation(&summary);
+        print!("{}", report::text::simulation_text(&summary));
         if let Some(dir) = out {
             println!("wrote {}/summary.json, trace.csv, alignment.svg", dir.display());
         }
     }
     Ok(())
-}
-
-/// ", polarized at A° from Z, ellipticity E" for pulses not polarized along Z (empty otherwise).
-/// ", switched off … fs from the peak" for a truncated pulse cut away from its peak (JSON `cut_fs`).
-fn cut_text(p: &serde_json::Value) -> String {
-    p["cut_fs"].as_f64().map(|c| format!(", switched off {c:+.1} fs from the peak")).unwrap_or_default()
-}
-
-fn polarization_text(v: &serde_json::Value) -> String {
-    let (a, e) = (v["angle_deg"].as_f64().unwrap_or(0.0), v["ellipticity"].as_f64().unwrap_or(0.0));
-    if a == 0.0 && e == 0.0 { String::new() } else { format!(", polarized at {a:.1}° from Z towards X, ellipticity {e:.3}") }
-}
-
-fn fmt_ext(v: &serde_json::Value) -> String {
-    match (v.get("value").and_then(|x| x.as_f64()), v.get("t_ps").and_then(|x| x.as_f64())) {
-        (Some(a), Some(t)) => format!("{a:.4} at {t:.3} ps"),
-        _ => "— (window ends before the last pulse)".into(),
-    }
-}
-
-fn print_simulation(s: &serde_json::Value) {
-    println!("{} at {} K", s["molecule"]["name"].as_str().unwrap_or("?"), s["temperature_k"]);
-    if let Some(ps) = s["pulses"].as_array() {
-        for (i, p) in ps.iter().enumerate() {
-            let energy = match (p["energy_mj"].as_f64(), p["waist_um"].as_f64()) {
-                (Some(e), Some(w)) => format!(" ({e} mJ focused to w0 = {w:.1} µm)"),
-                _ => String::new(),
-            };
-            let ion = p["ionized_fraction_adk"].as_f64().map(|x| format!(", ionized ≈ {x:.1e} (ADK estimate)")).unwrap_or_default();
-            println!(
-                "  pulse {}: centre {:.4} ps, FWHM {} fs, {:.3e} W/cm²{energy}, kick strength {:.3} ({}){ion}{}",
-                i + 1,
-                p["center_ps"].as_f64().unwrap_or(0.0),
-                p["fwhm_fs"],
-                p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
-                p["kick_strength"].as_f64().unwrap_or(0.0),
-                p["method"].as_str().unwrap_or(""),
-                polarization_text(&p["polarization"]) + &cut_text(p)
-            );
-        }
-    }
-    for (i, t) in s["two_colour"].as_array().into_iter().flatten().enumerate() {
-        println!(
-            "  two-colour pulse {}: centre {:.4} ps, FWHM {} fs, ω {:.3e} W/cm² + 2ω {:.3e} W/cm², phase {:.4} rad",
-            i + 1,
-            t["center_ps"].as_f64().unwrap_or(0.0),
-            t["fwhm_fs"],
-            t["fundamental_intensity_wcm2"].as_f64().unwrap_or(0.0),
-            t["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0),
-            t["phase_rad"].as_f64().unwrap_or(0.0)
-        );
-    }
-    for (i, t) in s["terahertz"].as_array().into_iter().flatten().enumerate() {
-        println!(
-            "  terahertz pulse {}: centre {:.4} ps, {} fs, peak field {:.1} kV/cm, {}",
-            i + 1,
-            t["center_ps"].as_f64().unwrap_or(0.0),
-            t["duration_fs"],
-            t["peak_field_kv_cm"].as_f64().unwrap_or(0.0),
-            t["waveform"].as_str().unwrap_or("?").replace('_', "-")
-        );
-    }
-    if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
-        let on = s["static_field"]["on_ps"].as_f64().map(|t| format!(" from {t} ps")).unwrap_or_else(|| " (entered adiabatically)".into());
-        let off = s["static_field"]["off_ps"].as_f64().map(|t| format!(" until {t} ps")).unwrap_or_default();
-        println!("  static field {e:.3} kV/cm{on}{off}");
-    }
-    println!("  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]));
-    println!("  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]));
-    if let Some(obj) = s["lab_axes"].as_object() {
-        for (name, v) in obj {
-            println!("  {:<37}{}", format!("{} after the last pulse", name.replace("peak_cos2_", "peak ⟨cos²⟩ ")), fmt_ext(v));
-        }
-    }
-    println!("  deepest anti-alignment ⟨cos²θ⟩      {}", fmt_ext(&s["min_cos2"]));
-    println!("  permanent alignment ⟨cos²θ⟩         {:.4}", s["permanent_cos2"].as_f64().unwrap_or(f64::NAN));
-    if let Some(o) = s.get("peak_orientation").filter(|o| !o.is_null()) {
-        println!(
-            "  peak orientation ⟨cosθ⟩ after the last pulse {:.4} at {:.3} ps (towards {}); permanent {:.4}",
-            o["cos"].as_f64().unwrap_or(0.0),
-            o["t_ps"].as_f64().unwrap_or(0.0),
-            o["sign"].as_str().unwrap_or("?"),
-            no_negative_zero(s["permanent_cos"].as_f64().unwrap_or(0.0), 4)
-        );
-    }
-    if let Some(fa) = s.get("focal_average").filter(|v| !v.is_null()) {
-        let along = match fa["settings"]["sample_length_um"].as_f64() {
-            Some(l) => format!(" (also along the beam over {l} µm)"),
-            None => String::new(),
-        };
-        println!("  focal-volume average{along}: peak ⟨cos²θ⟩ {}, peak ⟨cos²θ_2D⟩ {}", fmt_ext(&fa["peak_cos2"]), fmt_ext(&fa["peak_cos2_2d"]));
-    }
-    if s["molecule"]["rotor"] == "asymmetric top" {
-        println!("  revival period (estimate, (B+C)/2)   {:.4} ps (an asymmetric top has no exact revivals)", s["revival_period_ps"].as_f64().unwrap_or(0.0));
-    } else {
-        println!("  revival period                      {:.4} ps", s["revival_period_ps"].as_f64().unwrap_or(0.0));
-    }
-    println!(
-        "  {} initial states (discarded population {:.1e}); basis up to J = {} (edge population {:.1e}); {:.3} s",
-        s["thermal"]["initial_states"],
-        s["thermal"]["discarded_population"].as_f64().unwrap_or(0.0),
-        s["basis"]["max_j"],
-        s["basis"]["max_edge_population"].as_f64().unwrap_or(0.0),
-        s["run_time_s"].as_f64().unwrap_or(0.0)
-    );
-    let lasers = |key: &str| !s[key].as_array().map(|a| a.is_empty()).unwrap_or(true);
-    if lasers("pulses") || lasers("two_colour") || lasers("terahertz") {
-        println!("  {}", report::LASER_SAFETY);
-    }
 }
 
 /// The objective `kicktrain design` runs when no file is given.
@@ -655,114 +482,22 @@ fn run_design(
     monitor.bar.finish_and_clear();
     let summary = match staged {
         Some(o) => {
-            let summary = kicktrain::report::design::write_design(&obj, &result, o.path())?;
+            let summary = report::design::write_design(&obj, &result, o.path())?;
             o.commit()?;
             summary
         }
-        None => kicktrain::report::design::design_summary(&obj, &result),
+        None => report::design::design_summary(&obj, &result),
     };
     if json {
         println!("{}", serde_json::to_string_pretty(&summary).expect("json"));
     } else {
-        print_design(&summary);
+        print!("{}", report::text::design_text(&summary));
         if let Some(dir) = out {
             println!("wrote {}/design.json, summary.json, trace.csv, design.svg, history.csv, convergence.svg", dir.display());
             println!("replay: kicktrain simulate {}/design.json", dir.display());
         }
     }
     Ok(if result.interrupted { Finish::Partial } else { Finish::Done })
-}
-
-fn print_design(s: &serde_json::Value) {
-    let f = |v: &serde_json::Value| v.as_f64().map(|x| format!("{x:.5}")).unwrap_or_else(|| "—".into());
-    println!(
-        "{} at {} K — goal: {} of {} (window {} ps after the last pulse centre)",
-        s["molecule"].as_str().unwrap_or("?"),
-        s["temperature_k"],
-        s["goal"]["kind"].as_str().unwrap_or("?"),
-        s["observable"].as_str().unwrap_or("?"),
-        s["goal"].get("window_ps").map(|w| w.to_string()).unwrap_or_else(|| s["goal"]["at_ps"].to_string())
-    );
-    if s["interrupted"].as_bool() == Some(true) {
-        println!("  (search interrupted: best design found so far)");
-    }
-    if let Some(c) = s["search"]["confidence"].as_object() {
-        println!(
-            "  search: {} of {} independent starts reached this score (within {}; spread {}), effort {}, stopped by {}",
-            c["starts_agreeing"],
-            c["starts"],
-            c["agreement"],
-            f(&c["spread"]),
-            s["search"]["effort"].as_str().unwrap_or("?"),
-            c["stopped_by"].as_str().unwrap_or("?")
-        );
-    }
-    for w in s["warnings"].as_array().into_iter().flatten() {
-        println!("  warning: {}", w.as_str().unwrap_or(""));
-    }
-    if s["kick_model_score"].is_null() {
-        println!(
-            "  score {} at {} ps (full solver; pulses too long for the kick model, searched with the full solver throughout)",
-            f(&s["score"]),
-            f(&s["score_time_ps"])
-        );
-    } else {
-        println!(
-            "  score {} at {} ps (full solver); kick model {} (difference {})",
-            f(&s["score"]),
-            f(&s["score_time_ps"]),
-            f(&s["kick_model_score"]),
-            f(&s["full_minus_kick_model"])
-        );
-    }
-    if let Some(ps) = s["pulses"].as_array() {
-        for p in ps {
-            println!(
-                "  pulse {}: t = {:.4} ps, {:.4e} W/cm² ({:.0} % of ceiling), FWHM {:.1} fs, kick strength {:.3}{}",
-                p["pulse"],
-                p["center_ps"].as_f64().unwrap_or(0.0),
-                p["peak_intensity_wcm2"].as_f64().unwrap_or(0.0),
-                100.0 * p["fraction_of_ceiling"].as_f64().unwrap_or(0.0),
-                p["fwhm_fs"].as_f64().unwrap_or(0.0),
-                p["kick_strength"].as_f64().unwrap_or(0.0),
-                polarization_text(&p["polarization"]) + &cut_text(p)
-            );
-        }
-    }
-    if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
-        println!("  static field {e:.3} kV/cm (on throughout)");
-    }
-    if let Some(ps) = s["pulses"].as_array()
-        && let Some(p) = ps.first().filter(|p| p["kind"] == "two_colour")
-    {
-        println!(
-            "  two-colour: second-harmonic share {:.3}, phase {:.4} rad",
-            p["second_harmonic_intensity_wcm2"].as_f64().unwrap_or(0.0) / p["peak_intensity_wcm2"].as_f64().unwrap_or(1.0),
-            p["phase_rad"].as_f64().unwrap_or(0.0)
-        );
-    }
-    if let Some(t) = s["terahertz"].as_array().and_then(|a| a.first()) {
-        println!(
-            "  terahertz pulse at {:.4} ps, peak field {:.1} kV/cm",
-            t["center_ps"].as_f64().unwrap_or(0.0),
-            t["peak_field_kv_cm"].as_f64().unwrap_or(0.0)
-        );
-    }
-    println!("  best single pulse under the same ceiling: {} → gain {}", f(&s["single_pulse_baseline"]["score"]), f(&s["gain_over_single_pulse"]));
-    if let Some(pc) = s["per_pulse_count"].as_array()
-        && pc.len() > 1
-    {
-        let parts: Vec<String> = pc.iter().map(|c| format!("{}: {}", c["pulses"], f(&c["score"]))).collect();
-        println!("  score by pulse count: {}", parts.join(", "));
-    }
-    println!(
-        "  {} kick-model + {} full-solver evaluations in {:.1} s (seed {})",
-        s["evaluations"]["kick_model"],
-        s["evaluations"]["full_solver"],
-        s["run_time_s"].as_f64().unwrap_or(0.0),
-        s["seed"]
-    );
-    println!("  {}", report::LASER_SAFETY);
 }
 
 fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32, json: bool) -> Result<(), Error> {
@@ -775,141 +510,21 @@ fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f6
     }
     let r = kicktrain::pendular::pendular(&mol, intensity, static_kv_cm, temperature_k, j_max)?;
     if json {
-        let v = serde_json::json!({"molecule": mol.name, "intensity_wcm2": intensity, "static_kv_cm": static_kv_cm,
-            "temperature_k": temperature_k, "result": r, "laser_safety": report::LASER_SAFETY});
-        println!("{}", serde_json::to_string_pretty(&v).expect("json"));
-        return Ok(());
-    }
-    println!(
-        "{} in {:.3e} W/cm² and {} kV/cm: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}",
-        mol.name,
-        intensity,
-        static_kv_cm,
-        no_negative_zero(r.laser_strength_b, 3),
-        no_negative_zero(r.static_strength_b, 3)
-    );
-    println!("{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩");
-    for s in r.states.iter().filter(|s| s.j <= j_max) {
-        println!(
-            "{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}",
-            s.j,
-            s.m,
-            no_negative_zero(s.energy_cm, 6),
-            no_negative_zero(s.energy_b, 5),
-            s.cos2,
-            no_negative_zero(s.cos, 5)
-        );
-    }
-    println!("thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, no_negative_zero(r.thermal_cos, 5));
-    println!("(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)");
-    if intensity > 0.0 {
-        println!("{}", report::LASER_SAFETY);
+        println!("{}", serde_json::to_string_pretty(&report::text::pendular_json(&mol.name, intensity, static_kv_cm, temperature_k, &r)).expect("json"));
+    } else {
+        print!("{}", report::text::pendular_text(&mol.name, intensity, static_kv_cm, temperature_k, j_max, &r));
     }
     Ok(())
 }
 
 fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str, molecule: Option<&str>, json: bool) -> Result<(), Error> {
-    use kicktrain::field::{Pulse, PulseShape};
-    use kicktrain::optics::{ionization, peak_intensity_wcm2, peak_power_w};
-    focus.validate("focus")?;
-    let shape = PulseShape::parse(shape).ok_or_else(|| Error::input("shape", format!("expected {}, got \"{shape}\"", PulseShape::NAMES)))?;
-    let p = Pulse { center_ps: 0.0, fwhm_fs, peak_intensity_wcm2: 1.0, shape, rise_fs: None, cut_fs: None, polarization: Default::default() };
-    p.validate("pulse")?;
-    // The molecules whose ionization the intensity is compared with: the named one, or every library entry
-    // that lists an ionization energy.
-    let molecules: Vec<kicktrain::molecule::Molecule> = match molecule {
-        Some(name) => {
-            let m = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
-            if m.ionization_energy_ev.is_none() {
-                return Err(Error::input(
-                    "molecule",
-                    format!("{} has no ionization energy in the library; name another molecule or leave --molecule out", m.name),
-                ));
-            }
-            vec![m]
-        }
-        None => kicktrain::molecule::library()
-            .iter()
-            .map(|e| e.molecule())
-            .chain(kicktrain::molecule::top_library().iter().map(|e| e.molecule()))
-            .filter(|m| m.ionization_energy_ev.is_some())
-            .collect(),
-    };
-    let power = peak_power_w(focus.energy_mj, p.envelope_area_ps());
-    let w0 = focus.waist_m();
-    let i0 = peak_intensity_wcm2(power, w0);
-    let field = kicktrain::units::peak_field_v_per_m(i0);
-    let fluence = 2.0 * focus.energy_mj * 1e-3 / (std::f64::consts::PI * (w0 * 100.0).powi(2));
-    // The intensity at which one pulse of this shape and duration ionizes 10 % of each molecule (ADK).
-    let pulse_at = |i: f64| Pulse { peak_intensity_wcm2: i, ..p.clone() };
-    let ceilings: Vec<(String, f64)> = molecules
-        .iter()
-        .map(|m| (m.name.clone(), ionization::intensity_for_fraction(pulse_at, m.ionization_energy_ev.unwrap_or(f64::INFINITY), IONIZED_WARNING)))
-        .collect();
-    let warning = ionization_warning(i0, &ceilings);
+    let r = kicktrain::optics::focus_report(&focus, fwhm_fs, shape, molecule)?;
     if json {
-        let v = serde_json::json!({
-            "energy_mj": focus.energy_mj, "fwhm_fs": fwhm_fs, "shape": shape,
-            "peak_power_w": power, "waist_um": w0 * 1e6, "rayleigh_range_mm": focus.rayleigh_range_mm(),
-            "peak_intensity_wcm2": i0, "peak_field_v_per_m": field, "peak_fluence_j_per_cm2": fluence,
-            "ionization": {
-                "fraction": IONIZED_WARNING,
-                "method": "ADK tunnelling estimate for one pulse of this shape and duration (order of magnitude)",
-                "intensity_wcm2_by_molecule": ceilings.iter().map(|(n, c)| (n.clone(), serde_json::json!(c))).collect::<serde_json::Map<_, _>>(),
-            },
-            "warnings": warning.iter().collect::<Vec<_>>(),
-            "laser_safety": report::LASER_SAFETY,
-        });
-        println!("{}", serde_json::to_string_pretty(&v).expect("json"));
-        return Ok(());
-    }
-    println!("pulse energy        {} mJ in {fwhm_fs} fs ({shape:?})", focus.energy_mj);
-    println!("peak power          {power:.4e} W");
-    println!("focal waist w0      {:.3} µm (1/e² intensity radius)", w0 * 1e6);
-    if let Some(z) = focus.rayleigh_range_mm() {
-        println!("Rayleigh range      {z:.4} mm");
-    }
-    println!("peak intensity      {i0:.4e} W/cm² (on axis, at the focus)");
-    println!("peak field          {field:.4e} V/m");
-    println!("peak fluence        {fluence:.4e} J/cm²");
-    if let Some(w) = warning {
-        println!("warning: {w}");
-    }
-    println!("{}", report::LASER_SAFETY);
-    Ok(())
-}
-
-/// Fraction ionized per pulse (ADK estimate) above which `focus` warns.
-const IONIZED_WARNING: f64 = 0.1;
-
-/// A warning when intensity `i0` ionizes at least [`IONIZED_WARNING`] of some of the molecules compared.
-fn ionization_warning(i0: f64, ceilings: &[(String, f64)]) -> Option<String> {
-    let over: Vec<&(String, f64)> = ceilings.iter().filter(|(_, c)| i0 > *c).collect();
-    if over.is_empty() {
-        return None;
-    }
-    let pct = IONIZED_WARNING * 100.0;
-    if over.len() == 1 && ceilings.len() == 1 {
-        let (n, c) = &ceilings[0];
-        return Some(format!(
-            "{i0:.2e} W/cm² is above {c:.2e} W/cm², where one such pulse ionizes {pct:.0} % of {n} (ADK estimate): molecules do not survive to be aligned"
-        ));
-    }
-    let highest = ceilings.iter().max_by(|a, b| a.1.total_cmp(&b.1)).expect("not empty");
-    if over.len() == ceilings.len() {
-        Some(format!(
-            "{i0:.2e} W/cm² is above the intensity where one such pulse ionizes {pct:.0} % of every library molecule (ADK estimate; highest {:.2e} W/cm² for {}): molecules do not survive to be aligned",
-            highest.1, highest.0
-        ))
+        println!("{}", serde_json::to_string_pretty(&report::text::focus_json(&r)).expect("json"));
     } else {
-        let names: Vec<&str> = over.iter().map(|(n, _)| n.as_str()).collect();
-        Some(format!(
-            "{i0:.2e} W/cm² ionizes {pct:.0} % or more of {} of the {} library molecules per pulse (ADK estimate): {}",
-            over.len(),
-            ceilings.len(),
-            names.join(", ")
-        ))
+        print!("{}", report::text::focus_text(&r));
     }
+    Ok(())
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -926,8 +541,7 @@ fn run_scan(
     out: Option<&Path>,
     quiet: bool,
 ) -> Result<Finish, Error> {
-    use kicktrain::report::svg;
-    use kicktrain::scan::{Axis, Metric, scan};
+    use kicktrain::scan::{Axis, scan};
     let text = read_text(path)?;
     let mut base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
     if ALLOW_LONG.load(Ordering::SeqCst)
@@ -956,146 +570,56 @@ fn run_scan(
     bar.set_style(indicatif::ProgressStyle::with_template("scan [{bar:30}] {pos}/{len} (ETA {eta})").expect("template").progress_chars("=> "));
     let t0 = std::time::Instant::now();
     let r = scan(&base, &xa, ya.as_ref(), &|| bar.inc(1), &STOP)?;
-    let finished = r.finished();
-    if finished == 0 {
+    if r.finished() == 0 {
         return Err(Error::Interrupted);
     }
-    let partial = r.partial().then(|| format!("partial: stopped by a signal after {finished} of {total} points"));
+    let partial = report::scan::scan_partial(&r);
     bar.finish_and_clear();
-    let label = match r.metric {
-        Metric::Goal => "goal score",
-        Metric::PeakCos2 => "peak ⟨cos²θ⟩ after the last pulse",
-    };
-    let mut best = (f64::NEG_INFINITY, 0, 0);
-    for (iy, row) in r.values.iter().enumerate() {
-        for (ix, v) in row.iter().enumerate() {
-            if *v > best.0 && r.done[iy][ix] {
-                best = (*v, ix, iy);
-            }
-        }
-    }
     if let Some(p) = &partial {
         println!("{p}");
     }
-    println!(
-        "{} points in {:.2} s; {label}: best {:.5} at {} = {}{}",
-        finished,
-        t0.elapsed().as_secs_f64(),
-        best.0,
-        xa.path,
-        xa.values[best.1],
-        ya.as_ref().map(|a| format!(", {} = {}", a.path, a.values[best.2])).unwrap_or_default()
-    );
-    if let Some(o) = staged {
-        let dir = o.path();
-        let mut csv = format!("{}{},value\n", xa.path, ya.as_ref().map(|a| format!(",{}", a.path)).unwrap_or_default());
-        for (iy, row) in r.values.iter().enumerate() {
-            for (ix, v) in row.iter().enumerate().filter(|(ix, _)| r.done[iy][*ix]) {
-                match &ya {
-                    Some(a) => csv.push_str(&format!("{},{},{:.10}\n", xa.values[ix], a.values[iy], v)),
-                    None => csv.push_str(&format!("{},{:.10}\n", xa.values[ix], v)),
-                }
-            }
-        }
-        report::write_file(dir, "scan.csv", &csv)?;
-        // A scanned intensity, energy or field puts the laser-safety caution on the plot.
-        let states_laser = |p: &str| ["intensity", "_wcm2", "energy_mj", "_kv_cm", "field"].iter().any(|k| p.contains(k));
-        let caution = (states_laser(&xa.path) || ya.as_ref().is_some_and(|a| states_laser(&a.path)))
-            .then(|| "Laser safety: class 4 lasers; follow your local laser safety officer and IEC 60825-1 / ANSI Z136.1.".to_string());
-        let caution = match (&partial, caution) {
-            (Some(p), Some(c)) => Some(format!("{p}; {c}")),
-            (Some(p), None) => Some(p.clone()),
-            (None, c) => c,
-        };
-        let svg_text = match &ya {
-            Some(a) => {
-                let mut h = svg::Heatmap::new(format!("Scan of {label}"), xa.label(), a.label(), label, xa.values.clone(), a.values.clone(), r.values.clone());
-                h.subtitle = caution.clone();
-                h.to_svg()
-            }
-            None => {
-                let mut p = svg::LinePlot::new(format!("Scan of {label}"), xa.label(), label);
-                p.subtitle = caution.clone();
-                p.series.push(svg::Series {
-                    label: String::new(),
-                    x: xa.values.clone(),
-                    y: r.values[0].clone(),
-                    color: svg::ALIGNMENT.into(),
-                    dashed: false,
-                    width: 1.8,
-                });
-                p.to_svg()
-            }
-        };
-        report::write_file(dir, "scan.svg", &svg_text)?;
-        if let Some(p) = &partial {
-            report::write_file(dir, "PARTIAL.txt", &format!("{p}; scan.csv holds the finished points, scan.svg leaves the others blank.\n"))?;
-        }
-        o.commit()?;
-        println!(
-            "wrote {}/scan.csv, scan.svg{}",
-            out.map(|d| d.display().to_string()).unwrap_or_default(),
-            if partial.is_some() { ", PARTIAL.txt" } else { "" }
-        );
-    }
-    println!("{}", report::LASER_SAFETY);
-    Ok(if partial.is_some() { Finish::Partial } else { Finish::Done })
+    print!("{}", report::scan::scan_summary(&r, t0.elapsed().as_secs_f64()));
+    let outputs = || vec![("scan.csv", report::scan::scan_csv(&r)), ("scan.svg", report::scan::scan_svg(&r, partial.as_deref()))];
+    write_and_finish(staged, out, outputs, partial.as_deref().map(report::scan::scan_partial_note))
 }
 
 fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<Finish, Error> {
-    use kicktrain::report::svg;
     let scenario = read_scenario(path)?;
     let staged = prepare_out(out, "tolerance")?;
     GRACEFUL.store(true, Ordering::SeqCst);
     let t0 = std::time::Instant::now();
     let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed, &STOP)?;
-    let partial = (r.samples.len() < r.requested).then(|| format!("partial: stopped by a signal after {} of {} samples", r.samples.len(), r.requested));
+    let partial = report::scan::tolerance_partial(&r);
     if let Some(p) = &partial {
         println!("{p}");
     }
     let goal = scenario.goal.expect("checked by tolerance()");
-    println!(
-        "{} of {}: nominal {:.5}; with jitter {} fs, energy noise {} %, phase noise {} rad ({} samples, seed {seed}):",
-        goal.kind_name(),
-        goal.observable.name(),
-        r.nominal,
-        noise.jitter_fs,
-        noise.energy_percent,
-        noise.phase_rad,
-        r.samples.len()
-    );
-    println!("  mean {:.5}, spread (rms) {:.5}, worst decile {:.5}; {:.2} s", r.mean, r.spread, r.worst_decile, t0.elapsed().as_secs_f64());
-    if let Some(o) = staged {
-        let dir = o.path();
-        let mut csv = String::from("sample,score\n");
-        for (i, v) in r.sample_index.iter().zip(&r.samples) {
-            csv.push_str(&format!("{i},{v:.10}\n"));
-        }
-        report::write_file(dir, "tolerance.csv", &csv)?;
-        let mut h = svg::Histogram::new(
-            format!("Score under jitter {} fs, energy noise {} %", noise.jitter_fs, noise.energy_percent),
-            format!("{} {}", goal.kind_name(), goal.observable.name()),
-            r.samples.clone(),
-            0,
-        );
-        h.markers.push(svg::Marker { x0: r.nominal, x1: r.nominal, label: "nominal".into(), color: svg::PULSE.into() });
-        h.markers.push(svg::Marker { x0: r.worst_decile, x1: r.worst_decile, label: "worst decile".into(), color: svg::NEUTRAL.into() });
-        report::write_file(dir, "tolerance.svg", &h.to_svg())?;
-        if let Some(p) = &partial {
-            report::write_file(dir, "PARTIAL.txt", &format!("{p}; tolerance.csv and tolerance.svg cover the finished samples.\n"))?;
-        }
-        o.commit()?;
-        println!(
-            "wrote {}/tolerance.csv, tolerance.svg{}",
-            out.map(|d| d.display().to_string()).unwrap_or_default(),
-            if partial.is_some() { ", PARTIAL.txt" } else { "" }
-        );
-    }
-    println!("{}", report::LASER_SAFETY);
-    Ok(if partial.is_some() { Finish::Partial } else { Finish::Done })
+    print!("{}", report::scan::tolerance_summary(&goal, noise, seed, &r, t0.elapsed().as_secs_f64()));
+    let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), ("tolerance.svg", report::scan::tolerance_svg(&goal, noise, &r))];
+    write_and_finish(staged, out, outputs, partial.as_deref().map(report::scan::tolerance_partial_note))
 }
 
-/// `v`, or +0 when it would print as −0 with `decimals` decimals (rounding noise around zero).
-fn no_negative_zero(v: f64, decimals: i32) -> f64 {
-    if v.abs() < 0.5 * 10f64.powi(-decimals) { 0.0 } else { v }
+/// The end of a scan or tolerance run: write the `outputs` (name, contents) into the prepared folder, then
+/// PARTIAL.txt holding `partial_note` when the run was stopped; commit it and say so; print the laser-safety caution.
+fn write_and_finish(
+    staged: Option<OutputDir>,
+    out: Option<&Path>,
+    outputs: impl FnOnce() -> Vec<(&'static str, String)>,
+    partial_note: Option<String>,
+) -> Result<Finish, Error> {
+    if let Some(o) = staged {
+        let files = outputs();
+        for (name, contents) in &files {
+            report::write_file(o.path(), name, contents)?;
+        }
+        if let Some(note) = &partial_note {
+            report::write_file(o.path(), "PARTIAL.txt", note)?;
+        }
+        o.commit()?;
+        let names: Vec<&str> = files.iter().map(|(name, _)| *name).collect();
+        let partial_file = if partial_note.is_some() { ", PARTIAL.txt" } else { "" };
+        println!("wrote {}/{}{partial_file}", out.map(|d| d.display().to_string()).unwrap_or_default(), names.join(", "));
+    }
+    println!("{}", report::LASER_SAFETY);
+    Ok(if partial_note.is_some() { Finish::Partial } else { Finish::Done })
 }

@@ -3,6 +3,9 @@
 
 pub mod focal;
 pub mod ionization;
+pub mod report;
+
+pub use report::{FocusReport, focus_report};
 
 use crate::error::{Error, Result, require_positive};
 use serde::{Deserialize, Serialize};

@@ -2,7 +2,9 @@
 
 pub mod design;
 pub mod output;
+pub mod scan;
 pub mod svg;
+pub mod text;
 
 use crate::error::{Error, Result};
 use crate::observe::{Extremum, Trace};
