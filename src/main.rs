@@ -285,7 +285,7 @@ fn main() -> ExitCode {
     }
 }
 
-/// Exit code: the output could not be read or written (nothing written).
+/// Exit code: the output could not be written (nothing written).
 const EXIT_IO: u8 = 3;
 /// Exit code: stopped by a signal; the result so far was reported and written, marked partial.
 const EXIT_PARTIAL: u8 = 4;
