@@ -40,6 +40,7 @@ fn read_scenario(path: &Path) -> Result<Scenario, Error> {
     let mut scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
     if ALLOW_LONG.load(Ordering::SeqCst) {
         scenario.solver.max_steps = f64::INFINITY;
+        scenario.solver.max_states = Some(f64::INFINITY);
     }
     Ok(scenario)
 }
@@ -550,6 +551,7 @@ fn run_scan(
         let solver = obj.entry("solver").or_insert_with(|| serde_json::json!({}));
         if let Some(sv) = solver.as_object_mut() {
             sv.insert("max_steps".into(), serde_json::json!(1e12));
+            sv.insert("max_states".into(), serde_json::json!(1e12));
         }
     }
     let xa = Axis::linear(x, from, to, steps)?;

@@ -90,7 +90,16 @@ pub struct SolverSettings {
     /// Most finite-pulse time steps one run may take (each step costs a few basis-sized products per
     /// block); a run that would take more is refused before it starts. Infinite: no limit.
     pub max_steps: f64,
+    /// Most initial states a run may carry (None: [`DEFAULT_MAX_STATES_LINEAR`] for linear molecules,
+    /// [`DEFAULT_MAX_STATES_TOP`] for tops); a larger thermal ensemble is refused before any propagation.
+    pub max_states: Option<f64>,
 }
+
+/// Default of [`SolverSettings::max_states`] for linear molecules (CS2 at 300 K: 15,753 states, 11 s).
+pub const DEFAULT_MAX_STATES_LINEAR: f64 = 1e5;
+/// Default of [`SolverSettings::max_states`] for tops (SO2 at 20 K: 5,743 states, 38 s; tops cost far
+/// more per state than linear molecules).
+pub const DEFAULT_MAX_STATES_TOP: f64 = 2e4;
 
 /// Default of [`SolverSettings::max_steps`]: a few minutes of work for a room-temperature linear
 /// molecule or a cold heavy one (a 10 ns pulse on OCS at 1 K takes about 1e4 steps and 11 s).
@@ -107,6 +116,7 @@ impl Default for SolverSettings {
             kick_terahertz_as_finite: false,
             kick_nodes: 1,
             max_steps: DEFAULT_MAX_STEPS,
+            max_states: None,
         }
     }
 }
@@ -364,6 +374,9 @@ impl Scenario {
         solver.insert("edge_tolerance".into(), json!(self.solver.edge_tolerance));
         if self.solver.max_steps != DEFAULT_MAX_STEPS && self.solver.max_steps.is_finite() {
             solver.insert("max_steps".into(), json!(self.solver.max_steps));
+        }
+        if let Some(n) = self.solver.max_states.filter(|n| n.is_finite()) {
+            solver.insert("max_states".into(), json!(n));
         }
         if self.solver.both_parities {
             solver.insert("both_parities".into(), json!(true));
@@ -720,11 +733,17 @@ fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
         edge_tolerance: f.opt_f64("edge_tolerance", "population fraction")?.unwrap_or(d.edge_tolerance),
         both_parities: f.opt_bool("both_parities")?.unwrap_or(false),
         max_steps: f.opt_f64("max_steps", "time steps")?.unwrap_or(d.max_steps),
+        max_states: f.opt_f64("max_states", "initial states")?,
         ..d
     };
     f.finish()?;
     if !(s.max_steps >= 1.0 && s.max_steps <= 1e12) {
         return Err(Error::input(join(path, "max_steps"), format!("expected 1 to 1e12 time steps, got {}", s.max_steps)));
+    }
+    if let Some(n) = s.max_states
+        && !(n >= 1.0 && n <= 1e12)
+    {
+        return Err(Error::input(join(path, "max_states"), format!("expected 1 to 1e12 initial states, got {n}")));
     }
     Ok(s)
 }

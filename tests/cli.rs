@@ -1313,3 +1313,18 @@ fn a_generated_corpus_of_hostile_values_never_panics_and_fails_cleanly() {
     }
     assert!(failures > runs / 2, "{failures} of {runs} hostile inputs refused");
 }
+
+#[test]
+fn a_thermal_ensemble_above_the_state_limit_is_refused_naming_the_temperature() {
+    // Checks: SO2 at 50 K holds ~22,600 initial states (above the tops' default of 2e4; the run took
+    // minutes before): refused at once naming temperature_k; a raised solver.max_states is accepted.
+    let mut v = cheap_scenario();
+    v["molecule"] = json!("SO2");
+    v["temperature_k"] = json!(50);
+    let (r, sb) = simulate_value("states", &v);
+    assert_field_error(&r, &sb.out(), "temperature_k");
+    assert!(r.stderr.contains("max_states") && r.elapsed < Duration::from_secs(10), "{:?} {}", r.elapsed, r.stderr);
+    v["temperature_k"] = json!(2);
+    v["solver"] = json!({"max_states": 10});
+    simulate_fails_on("states-low", &v, "temperature_k");
+}

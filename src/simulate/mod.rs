@@ -223,6 +223,7 @@ impl Solver {
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
         if let Some(t) = &molecule.top {
             let mut top = top::TopSolver::new(t, temperature_k, settings)?;
+            check_states(top.ensemble.state_count(), settings.max_states.unwrap_or(crate::scenario::DEFAULT_MAX_STATES_TOP), temperature_k)?;
             let progress = Arc::new(RunProgress::default());
             top.progress = progress.clone();
             let ensemble =
@@ -239,6 +240,7 @@ impl Solver {
             });
         }
         let ensemble = ThermalEnsemble::new(molecule, temperature_k, settings.thermal_tolerance)?;
+        check_states(ensemble.state_count(), settings.max_states.unwrap_or(crate::scenario::DEFAULT_MAX_STATES_LINEAR), temperature_k)?;
         Ok(Solver {
             molecule: molecule.clone(),
             ensemble,
@@ -884,6 +886,20 @@ fn sum_polar(outcomes: Vec<PolarOutcome>, n: usize) -> ([Vec<f64>; POLAR_OBSERVA
 }
 
 /// One step of the schedule with both parities.
+/// Refuse an ensemble of more than `limit` initial states (each is propagated), naming the temperature.
+fn check_states(states: usize, limit: f64, temperature_k: f64) -> Result<()> {
+    if states as f64 <= limit {
+        return Ok(());
+    }
+    Err(Error::input(
+        "temperature_k",
+        format!(
+            "at {temperature_k} K the thermal ensemble holds {states} initial states, above solver.max_states = {limit:.0e}; \
+             lower the temperature, or raise solver.max_states (or pass --allow-long) to go on"
+        ),
+    ))
+}
+
 /// (start, end, step) of every finite-pulse interval of a schedule.
 fn finite_spans(events: &[Event]) -> Vec<(f64, f64, f64)> {
     events.iter().filter_map(|e| if let Event::Finite { start_ps, end_ps, step_ps, .. } = e { Some((*start_ps, *end_ps, *step_ps)) } else { None }).collect()
