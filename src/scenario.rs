@@ -741,7 +741,7 @@ fn parse_solver(v: &Value, path: &str) -> Result<SolverSettings> {
         return Err(Error::input(join(path, "max_steps"), format!("expected 1 to 1e12 time steps, got {}", s.max_steps)));
     }
     if let Some(n) = s.max_states
-        && !(n >= 1.0 && n <= 1e12)
+        && !(1.0..=1e12).contains(&n)
     {
         return Err(Error::input(join(path, "max_states"), format!("expected 1 to 1e12 initial states, got {n}")));
     }
