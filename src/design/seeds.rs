@@ -7,7 +7,7 @@
 //! (2003)), and for a rigid rotor the alignment recurs at fractional revivals, multiples of T_rev/4
 //! with T_rev = 1/(2Bc).
 
-use super::{DesignSpace, Objective, Observable};
+use super::{DesignSpace, Objective, Observable, Slot};
 use crate::field::FieldModel;
 use crate::goal::GoalKind;
 use crate::simulate::Solver;
@@ -74,13 +74,13 @@ struct Layout {
 }
 
 fn layout(space: &DesignSpace) -> Layout {
-    let names = space.parameter_names();
+    let slots = space.slots();
     let n = space.pulses.len();
-    let find = |what: String| names.iter().position(|x| *x == what);
+    let find = |want: Slot| slots.iter().position(|s| *s == want);
     Layout {
-        delay: (0..n).map(|k| if k == 0 { None } else { find(format!("pulse {} delay (ps)", k + 1)) }).collect(),
-        intensity: (0..n).map(|k| find(format!("pulse {} peak intensity (W/cm²)", k + 1))).collect(),
-        dims: names.len(),
+        delay: (0..n).map(|k| if k == 0 { None } else { find(Slot::Delay(k)) }).collect(),
+        intensity: (0..n).map(|k| find(Slot::Intensity(k))).collect(),
+        dims: slots.len(),
     }
 }
 
@@ -221,4 +221,48 @@ pub fn seed_pool(obj: &Objective, space: &DesignSpace, solver: &Solver, previous
         }
     }
     pool
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scenario::{Method, SolverSettings};
+
+    #[test]
+    fn seeds_sit_at_fractional_revivals_of_the_rotor() {
+        // Independent value: the field-free alignment of a rigid rotor recurs at multiples of T_rev/4 with
+        // T_rev = 1/(2Bc) (textbook; e.g. Stapelfeldt & Seideman, Rev. Mod. Phys. 75, 543 (2003)). For N2
+        // (B = 1.98958 cm⁻¹: T_rev = 8.3827 ps) every revival seed's delay is such a multiple within the
+        // bounds, and the greedy seeds put the second pulse at an alignment peak, within 0.35 ps of one
+        // (the peak sits just after the revival centre; half a revival width).
+        let text = r#"{"molecule": "N2", "temperature_k": 300,
+            "pulses": {"count": 3, "fwhm_fs": 50, "delay_ps": {"min": 0.5, "max": 10.0}, "peak_intensity_wcm2": {"min": 0, "max": 5e13}},
+            "max_peak_intensity_wcm2": 5e13, "goal": {"kind": "peak", "window_ps": [0.05, 8.8], "step_fs": 20}}"#;
+        let obj = Objective::from_json_str(text, "test").unwrap();
+        let t_rev = 1.0 / (2.0 * 1.98958 * 2.99792458e10) * 1e12;
+        assert!((revival_period_ps(&obj) - t_rev).abs() < 1e-9);
+        let solver = Solver::new(obj.molecule(), 300.0, SolverSettings { method: Method::Kick, ..obj.solver_settings() }).unwrap();
+        let space = &obj.space;
+        let rest = vec![0.5; space.dims()];
+        let pool = seed_pool(&obj, space, &solver, None, &rest);
+        let lay = layout(space);
+        let delay_of = |u: &[f64], k: usize| space.field(u).pulses[k].center_ps - space.field(u).pulses[k - 1].center_ps;
+        let quarter = t_rev / 4.0;
+        // Quarter revivals inside 0.5–10 ps: 1 … 4 (2.10, 4.19, 6.29, 8.38 ps).
+        assert_eq!(pool.revivals.len(), 4);
+        for u in &pool.revivals {
+            for k in 1..3 {
+                let m = delay_of(u, k) / quarter;
+                assert!((m - m.round()).abs() < 1e-6, "delay {} is not a multiple of T_rev/4", delay_of(u, k));
+            }
+        }
+        assert!(!pool.greedy.is_empty() && pool.extended.is_empty());
+        for u in &pool.greedy {
+            let d = delay_of(u, 1);
+            let off = d - (d / quarter).round() * quarter;
+            assert!(off.abs() < 0.35, "greedy delay {d} ps is {off} ps from a fractional revival");
+            assert!(lay.intensity.iter().flatten().all(|&i| u[i] > 0.0));
+        }
+        assert_eq!(pool.all().len(), pool.len());
+    }
 }

@@ -262,20 +262,27 @@ impl Solver {
         self
     }
 
+    /// The path [`Solver::run`] takes for `field` (the one place that decides it; the step estimate follows it).
+    fn path(&self, field: &FieldModel) -> RunPath {
+        if !field.is_symmetric_about_z() {
+            return RunPath::AllM;
+        }
+        match &self.top {
+            Some(t) if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric => RunPath::PolarTop,
+            Some(_) => RunPath::Top,
+            None if field.is_polar() || self.settings.both_parities => RunPath::Polar,
+            None => RunPath::Linear,
+        }
+    }
+
     /// The finite-pulse time steps a run of `field` takes on the path `run` chooses (kicks cost none):
     /// the total and the interval that needs the most, as (steps, start, end, step) in ps.
     pub fn time_steps(&self, field: &FieldModel) -> (f64, Option<(f64, f64, f64, f64)>) {
-        let spans: Vec<(f64, f64, f64)> = if let Some(t) = &self.top
-            && field.is_symmetric_about_z()
-            && !(field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric)
-        {
-            finite_spans(&t.schedule(field))
-        } else if let Some(t) = &self.top {
-            if field.is_symmetric_about_z() { polar_spans(&self.figure_axis_view(t).polar_schedule(field).0) } else { finite_spans(&t.schedule(field)) }
-        } else if field.is_symmetric_about_z() && (field.is_polar() || self.settings.both_parities) {
-            polar_spans(&self.polar_schedule(field).0)
-        } else {
-            finite_spans(&self.schedule(field))
+        let spans: Vec<(f64, f64, f64)> = match (self.path(field), &self.top) {
+            (RunPath::PolarTop, Some(t)) => polar_spans(&self.figure_axis_view(t).polar_schedule(field).0),
+            (RunPath::Top | RunPath::AllM, Some(t)) => finite_spans(&t.schedule(field)),
+            (RunPath::Polar, _) => polar_spans(&self.polar_schedule(field).0),
+            _ => finite_spans(&self.schedule(field)),
         };
         let mut total = 0.0;
         let mut worst: Option<(f64, f64, f64, f64)> = None;
@@ -579,17 +586,12 @@ impl Solver {
             return Err(Error::input("window", "sample times must be ascending"));
         }
         self.check_time_steps(field)?;
-        if !field.is_symmetric_about_z() {
-            return self.run_lab_frame(field, times_ps, with_2d);
-        }
-        if let Some(t) = &self.top {
-            if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric {
-                return self.figure_axis_view(t).run_polar_top(t, field, times_ps, ALL_POLAR);
-            }
-            return t.run(field, times_ps, with_2d);
-        }
-        if field.is_polar() || self.settings.both_parities {
-            return self.run_polar(field, times_ps, ALL_POLAR);
+        match (self.path(field), &self.top) {
+            (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
+            (RunPath::PolarTop, Some(t)) => return self.figure_axis_view(t).run_polar_top(t, field, times_ps, ALL_POLAR),
+            (RunPath::Top, Some(t)) => return t.run(field, times_ps, with_2d),
+            (RunPath::Polar, _) => return self.run_polar(field, times_ps, ALL_POLAR),
+            _ => {}
         }
         self.check_strength(field)?;
         let events = self.schedule(field);
@@ -898,6 +900,21 @@ fn check_states(states: usize, limit: f64, temperature_k: f64) -> Result<()> {
              lower the temperature, or raise solver.max_states (or pass --allow-long) to go on"
         ),
     ))
+}
+
+/// Which solver path a run takes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum RunPath {
+    /// Every M in one basis (a field not symmetric about Z).
+    AllM,
+    /// A symmetric top in an orienting field, through its figure-axis view.
+    PolarTop,
+    /// A top in a field symmetric about Z that does not orient it.
+    Top,
+    /// A linear molecule in one block per |M| holding both parities.
+    Polar,
+    /// A linear molecule in (|M|, parity) blocks.
+    Linear,
 }
 
 /// (start, end, step) of every finite-pulse interval of a schedule.
