@@ -14,18 +14,31 @@ pub fn available_memory_bytes() -> Option<f64> {
     Some(kb * 1024.0)
 }
 
-/// Refuse a run whose estimated memory `bytes` exceeds [`MEMORY_SHARE`] of the available memory; the
-/// one-line error names `key`, the input that drives the estimate, and `what` the memory holds.
+/// Environment variable that caps the memory one run may plan to use, in GB (for a shared node or a
+/// batch job's memory request); without it the cap is [`MEMORY_SHARE`] of the available memory.
+pub const MEMORY_CAP_VAR: &str = "KICKTRAIN_MAX_MEMORY_GB";
+
+/// Refuse a run whose estimated memory `bytes` exceeds the cap (the variable [`MEMORY_CAP_VAR`], else
+/// [`MEMORY_SHARE`] of the available memory); the one-line error names `key`, the input that drives
+/// the estimate, and `what` the memory holds.
 pub fn check_memory(bytes: f64, key: &str, what: &str) -> Result<()> {
-    check_memory_against(bytes, available_memory_bytes(), key, what)
+    let cap = match std::env::var(MEMORY_CAP_VAR) {
+        Ok(v) => match v.trim().parse::<f64>() {
+            Ok(gb) if gb.is_finite() && gb > 0.0 => Some(gb * 1e9),
+            _ => return Err(Error::input(MEMORY_CAP_VAR, format!("expected a positive number of GB, got {v:?}"))),
+        },
+        Err(_) => None,
+    };
+    check_memory_against(bytes, available_memory_bytes(), cap, key, what)
 }
 
-fn check_memory_against(bytes: f64, available: Option<f64>, key: &str, what: &str) -> Result<()> {
-    match available {
-        Some(avail) if bytes > MEMORY_SHARE * avail => Err(Error::input(
-            key,
-            format!("{what} would need about {:.1} GB, more than half of the {:.1} GB this machine has available", bytes / 1e9, avail / 1e9),
-        )),
+fn check_memory_against(bytes: f64, available: Option<f64>, cap: Option<f64>, key: &str, what: &str) -> Result<()> {
+    let need = format!("{what} would need about {:.2} GB", bytes / 1e9);
+    match (cap, available) {
+        (Some(cap), _) if bytes > cap => Err(Error::input(key, format!("{need}, more than the {:.2} GB {MEMORY_CAP_VAR} allows", cap / 1e9))),
+        (None, Some(avail)) if bytes > MEMORY_SHARE * avail => {
+            Err(Error::input(key, format!("{need}, more than half of the {:.1} GB this machine has available", avail / 1e9)))
+        }
         _ => Ok(()),
     }
 }
@@ -42,10 +55,13 @@ mod tests {
 
     #[test]
     fn refuses_only_above_half_of_what_is_available() {
-        assert!(check_memory_against(0.4e9, Some(1e9), "window.step_fs", "the trace").is_ok());
-        let e = check_memory_against(0.6e9, Some(1e9), "window.step_fs", "the trace").unwrap_err().to_string();
-        assert!(e.starts_with("window.step_fs: the trace would need about 0.6 GB"), "{e}");
-        assert!(check_memory_against(1e15, None, "k", "x").is_ok(), "unknown memory: no refusal");
+        assert!(check_memory_against(0.4e9, Some(1e9), None, "window.step_fs", "the trace").is_ok());
+        let e = check_memory_against(0.6e9, Some(1e9), None, "window.step_fs", "the trace").unwrap_err().to_string();
+        assert!(e.starts_with("window.step_fs: the trace would need about 0.60 GB"), "{e}");
+        assert!(check_memory_against(1e15, None, None, "k", "x").is_ok(), "unknown memory: no refusal");
+        // A cap set by the user applies whatever the machine has.
+        assert!(check_memory_against(0.3e9, Some(1e12), Some(0.2e9), "pulses", "x").unwrap_err().to_string().contains(MEMORY_CAP_VAR));
+        assert!(check_memory_against(0.1e9, None, Some(0.2e9), "pulses", "x").is_ok());
         assert_eq!(trace_bytes(1000, 10, 2), 480_000.0);
     }
 }

@@ -55,12 +55,18 @@ struct Run {
 /// Run the binary with `args`, capturing stdout/stderr through files (no pipe deadlock on large output)
 /// and killing it if it runs longer than `limit`.
 fn run_with_limit(args: &[&str], limit: Duration) -> Run {
+    run_with_env(args, &[], limit)
+}
+
+/// `run_with_limit` with extra environment variables.
+fn run_with_env(args: &[&str], env: &[(&str, &str)], limit: Duration) -> Run {
     let scratch = Sandbox::new("io");
     let so = scratch.dir.join("stdout");
     let se = scratch.dir.join("stderr");
     let start = Instant::now();
     let mut child = Command::new(BIN)
         .args(args)
+        .envs(env.iter().copied())
         .stdin(Stdio::null())
         .stdout(std::fs::File::create(&so).expect("stdout file"))
         .stderr(std::fs::File::create(&se).expect("stderr file"))
@@ -1312,6 +1318,24 @@ fn a_generated_corpus_of_hostile_values_never_panics_and_fails_cleanly() {
         }
     }
     assert!(failures > runs / 2, "{failures} of {runs} hostile inputs refused");
+}
+
+#[test]
+fn an_all_m_basis_above_the_memory_cap_is_refused_before_any_work() {
+    // Checks: the three-axis SO2 example builds all-M blocks up to J = 36 of about 8,400 states (about
+    // 0.1 GB of operators a worker; estimate checked against the built operators in lab_frame's tests).
+    // Capped at 0.02 GB it is refused at once naming the pulses; a malformed cap names the variable.
+    let input = Path::new(concat!(env!("CARGO_MANIFEST_DIR"), "/examples/scenarios/sulfur-dioxide-three-axis.json"));
+    for (cap, key) in [("0.02", "pulses"), ("-1", "KICKTRAIN_MAX_MEMORY_GB"), ("lots", "KICKTRAIN_MAX_MEMORY_GB")] {
+        let sb = Sandbox::new("memcap");
+        let out = sb.out();
+        let r = run_with_env(&["simulate", s(input), "--out", s(&out)], &[("KICKTRAIN_MAX_MEMORY_GB", cap)], Duration::from_secs(60));
+        assert_field_error(&r, &out, key);
+        assert!(r.elapsed < Duration::from_secs(10), "{:?}", r.elapsed);
+        if key == "pulses" {
+            assert!(r.stderr.contains("all-M basis up to J = 36") && r.stderr.contains("GB"), "{}", r.stderr);
+        }
+    }
 }
 
 #[test]

@@ -863,6 +863,13 @@ fn sample_plan(events: &[Event], times: &[f64]) -> (Vec<Option<(usize, usize)>>,
     (gaps, ti)
 }
 
+/// Estimated memory of the operators of an all-M block of `size` states and of the columns one worker
+/// propagates through it, bytes: about 11 kB of operators a state (measured by `LabOps::bytes` for an
+/// asymmetric top at J = 36; linear rotors need less) and [`CHUNK`] columns with three work copies.
+fn lab_ops_bytes(size: usize) -> f64 {
+    size as f64 * (12e3 + (CHUNK * 16 * 3) as f64)
+}
+
 /// One initial state: (M combination index, J, level index within J, population).
 type Column = (usize, i64, usize, f64);
 
@@ -907,6 +914,31 @@ impl LabSolver {
         let t = Arc::new(DetectorTable::new(&ks, j_max, axis));
         tables.insert(class, t.clone());
         Some(t)
+    }
+
+    /// Number of states in the all-M `block` (counted from its slices; the operators are not built).
+    fn block_size(&self, block: LabBlock) -> usize {
+        let class = &self.rotor.classes[block.class];
+        TopBlockBasis::new(&self.rotor.frame, TopBlock { m: 0, sym: class.sym, j_max: block.j_max })
+            .j_ranges
+            .iter()
+            .filter(|&&(j, _, _)| class.j_parity.is_none_or(|p| j % 2 == p))
+            .map(|&(j, _, nk)| nk * block_mus(j, block.s, block.m_parity).len())
+            .sum()
+    }
+
+    /// Refuse a run whose largest all-M operators, one set per worker thread with the columns each
+    /// propagates, would not fit in [`crate::resources::MEMORY_SHARE`] of the available memory; the
+    /// error names what drives the basis: the pulses (their reach) or the temperature (the thermal top).
+    fn check_memory(&self, chunks: &[(LabBlock, Vec<Column>)], reach: i64) -> Result<()> {
+        let Some((block, cols)) = chunks.iter().max_by_key(|c| c.0.j_max) else {
+            return Ok(());
+        };
+        let size = self.block_size(*block);
+        let bytes = lab_ops_bytes(size) * rayon::current_num_threads().max(1) as f64;
+        let j_top = cols.last().map(|c| c.1).unwrap_or(0);
+        let key = if reach >= j_top { "pulses" } else { "temperature_k" };
+        crate::resources::check_memory(bytes, key, &format!("the all-M basis up to J = {} ({size} states a block)", block.j_max))
     }
 
     /// Where the time of the last run went.
@@ -986,6 +1018,7 @@ impl LabSolver {
                 }
             }
         }
+        self.check_memory(&chunks, reach)?;
         let started = std::time::Instant::now();
         let mut timing = LabTiming::default();
         let (plan, final_from) = sample_plan(events, times_ps);
@@ -1307,6 +1340,36 @@ mod tests {
         }
         assert!(v.im.abs() < 1e-13);
         v.re
+    }
+
+    #[test]
+    fn memory_estimate_covers_the_operators_it_stands_for() {
+        // The count of states is checked against a closed form: the all-M functions |J K M⟩ up to J number
+        // Σ (2J+1)² = (J+1)(2J+1)(2J+3)/3, split over four D2 classes, two C2(Y) signs and two M parities
+        // (exact counting, common practice); the byte estimate against what the operators really hold.
+        let top = Top::rigid(0.19, 0.025, 0.022, [20.0, 12.0, 9.0]);
+        let ts = TopSolver::new(&top, 0.5, SolverSettings::default()).unwrap();
+        let lab = LabSolver::new(LabRotor::from_top(&ts), SolverSettings::default());
+        let j = 16i64;
+        let mut total = 0;
+        for class in 0..lab.rotor.classes.len() {
+            for s in [1, -1] {
+                for m_parity in [Some(0), Some(1)] {
+                    let block = LabBlock { class, s, m_parity, j_max: j };
+                    let size = lab.block_size(block);
+                    total += size;
+                    if class == 0 && s == 1 && m_parity == Some(0) {
+                        let ops = LabOps::new(&lab.rotor, block);
+                        assert_eq!(ops.size, size);
+                        let _ = ops.observables();
+                        let held = ops.bytes() as f64;
+                        let est = lab_ops_bytes(size);
+                        assert!(est >= held && est < 4.0 * held, "estimate {est:.3e} B, operators {held:.3e} B");
+                    }
+                }
+            }
+        }
+        assert_eq!(total as i64, (j + 1) * (2 * j + 1) * (2 * j + 3) / 3);
     }
 
     #[test]
