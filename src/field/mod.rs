@@ -675,6 +675,17 @@ impl FieldModel {
         self.pulses.iter().map(|p| k * p.peak_intensity_wcm2 * p.envelope(t_ps)).sum()
     }
 
+    /// [`FieldModel::alignment_rate`] of the laser pulses `pulses` (indices) only.
+    pub fn alignment_rate_of(&self, pulses: &[usize], t_ps: f64, delta_alpha_a3: f64) -> f64 {
+        let k = coupling_rad_per_ps_per_a3_wcm2() * delta_alpha_a3;
+        pulses.iter().map(|&i| k * self.pulses[i].peak_intensity_wcm2 * self.pulses[i].envelope(t_ps)).sum()
+    }
+
+    /// Times where the envelopes of the laser pulses `pulses` (indices) are not smooth.
+    pub fn breakpoints_of(&self, pulses: &[usize]) -> Vec<f64> {
+        pulses.iter().flat_map(|&i| self.pulses[i].breakpoints_ps()).collect()
+    }
+
     /// Intervals where the field is on, sorted in time; overlapping supports are merged.
     /// Pulses of zero intensity are left out.
     pub fn active_intervals(&self) -> Vec<ActiveInterval> {

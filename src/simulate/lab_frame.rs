@@ -19,6 +19,7 @@
 
 mod detector;
 
+use super::driver::{ALL_M_STEP, Kernel, SampleCursor, grow_basis, walk};
 use super::{BlockReport, Event};
 use crate::basis::detector::{DetectorAxis, DetectorTable};
 use crate::basis::lab::{LabAxis, Polarization, body_square, lab_pair};
@@ -30,7 +31,7 @@ use crate::molecule::top::BodyAxis;
 use crate::numeric::{Strided, gemm_strided};
 use crate::observe::pairs::PairSums;
 use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
-use crate::propagate::{BlockState, FreePhases, propagate_finite};
+use crate::propagate::{BlockState, FreePhases};
 use crate::scenario::SolverSettings;
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
 use detector::{DetectorCoefficients, DetectorOps};
@@ -845,22 +846,133 @@ struct ChunkOutcome {
     edge: f64,
 }
 
+/// An all-M chunk of one level class: the initial states of one (class, C2 sign, M parity) block in
+/// pulses of any polarization (the nine direction-cosine averages and, when asked, ⟨cos²θ_2D⟩).
+struct LabKernel<'a> {
+    ops: &'a LabOps,
+    /// Populations of the chunk's initial states.
+    pops: Vec<f64>,
+    /// Weight of the level class (spin statistics).
+    g: f64,
+    /// θ table of the detector-plane operator (None: no ⟨cos²θ_2D⟩).
+    table: Option<&'a DetectorTable>,
+    field: &'a FieldModel,
+    /// Polarizability anisotropy, Å³.
+    da: f64,
+    settings: &'a SolverSettings,
+    /// States in the top J values of the basis.
+    edge_states: usize,
+    /// Per schedule element: the coupling of a finite interval whose pulses share one polarization.
+    single: Vec<Option<Arc<Csr>>>,
+    /// Thread-seconds spent on observables.
+    observe: std::cell::Cell<f64>,
+}
+
+impl LabKernel<'_> {
+    fn timed<T>(&self, f: impl FnOnce() -> T) -> T {
+        let t = std::time::Instant::now();
+        let out = f();
+        self.observe.set(self.observe.get() + t.elapsed().as_secs_f64());
+        out
+    }
+}
+
+impl Kernel for LabKernel<'_> {
+    type Item = Event;
+    type Stretch = (PairCoefficients, Option<DetectorCoefficients>);
+
+    fn observables(&self) -> usize {
+        10
+    }
+
+    fn omega(&self) -> &[f64] {
+        &self.ops.omega
+    }
+
+    fn edge(&self, state: &BlockState) -> f64 {
+        state.edge_population(self.edge_states)
+    }
+
+    fn sample(&self, st: &BlockState, out: &mut [f64]) {
+        // One change to the function basis serves the nine averages and ⟨cos²θ_2D⟩.
+        let (ops, pops) = (self.ops, &self.pops);
+        let (nine, two_d) = self.timed(|| {
+            ops.in_functions(st, |f, cols| {
+                (ops.expect_in(f, cols, st.k, pops), self.table.map(|t| ops.expect_detector_in(ops.detector(), t, f, cols, st.k, pops)).unwrap_or(0.0))
+            })
+        });
+        for (i, x) in out.iter_mut().enumerate() {
+            *x = self.g * if i < 9 { nine[i] } else { two_d };
+        }
+    }
+
+    fn stretch(&self, st: &BlockState) -> Self::Stretch {
+        self.timed(|| (self.ops.coefficients(st, &self.pops), self.table.map(|t| self.ops.detector_coefficients(self.ops.detector(), t, st, &self.pops))))
+    }
+
+    fn free(&self, st: &mut BlockState, _index: usize, dt: f64) {
+        st.free_with(&FreePhases::from_omega(&self.ops.omega, dt));
+    }
+
+    fn instant(&self, st: &mut BlockState, item: &Event) {
+        if let Event::Kick { pulse, .. } = item {
+            let p = &self.field.pulses[*pulse];
+            self.ops.kick(st, p.kick_strength(self.da), &self.ops.coupling_for(&p.polarization));
+        }
+    }
+
+    fn finite_kick(&self, index: usize, item: &Event, st: &mut BlockState, t: f64, h: f64) {
+        let Event::Finite { pulses, .. } = item else { return };
+        let rate_of = |i: usize| coupling_rad_per_ps_per_a3_wcm2() * self.da * self.field.pulses[i].peak_intensity_wcm2 * self.field.pulses[i].envelope(t);
+        let rates: Vec<f64> = pulses.iter().map(|&i| rate_of(i)).collect();
+        let total: f64 = rates.iter().sum();
+        if total == 0.0 {
+            return;
+        }
+        match &self.single[index] {
+            Some(a) => self.ops.kick(st, h * total, a),
+            None => {
+                let mut w = [0.0; 3];
+                for (&i, r) in pulses.iter().zip(&rates) {
+                    let p = self.field.pulses[i].polarization;
+                    let cw = Polarization { angle_rad: p.angle_deg.to_radians(), ellipticity: p.ellipticity }.coupling_weights();
+                    for (x, c) in w.iter_mut().zip([cw[0].2, cw[1].2, cw[2].2]) {
+                        *x += c * r / total;
+                    }
+                }
+                self.ops.kick(st, h * total, &self.ops.coupling.combine(&w));
+            }
+        }
+    }
+
+    fn breaks(&self, item: &Event) -> Vec<f64> {
+        match item {
+            Event::Finite { pulses, .. } => self.field.breakpoints_of(pulses),
+            Event::Kick { .. } => vec![],
+        }
+    }
+
+    fn step(&self, step_ps: f64) -> f64 {
+        ALL_M_STEP.in_block(self.settings, step_ps, self.ops.fastest)
+    }
+}
+
 /// Which samples each stretch takes: per event, the field-free samples before it (first, end), and the
 /// first sample after the last event. Samples inside a finite interval (its ends included) are taken
 /// during the propagation; a sample at a kick's time comes after the kick.
 fn sample_plan(events: &[Event], times: &[f64]) -> (Vec<Option<(usize, usize)>>, usize) {
-    let mut ti = 0usize;
+    let mut cursor = SampleCursor::new(times);
     let mut gaps = vec![];
     for ev in events {
         let (s, e) = ev.span();
-        let end = ti + times[ti..].partition_point(|t| *t < s);
-        gaps.push((end > ti).then_some((ti, end)));
-        ti = end;
+        let gap = cursor.before(s);
+        gaps.push((!gap.is_empty()).then_some((gap.start, gap.end)));
         if matches!(ev, Event::Finite { .. }) {
-            ti += times[ti..].partition_point(|t| *t <= e);
+            cursor.at(s);
+            cursor.inside(e);
         }
     }
-    (gaps, ti)
+    (gaps, cursor.position())
 }
 
 /// Estimated memory of the operators of an all-M block of `size` states and of the columns one worker
@@ -1130,24 +1242,25 @@ impl LabSolver {
         t_first: f64,
         with_2d: bool,
     ) -> Result<ChunkOutcome> {
-        let mut block = block;
         let (mut retries, mut retry_s) = (0, 0.0);
-        loop {
-            let started = std::time::Instant::now();
-            let ops = self.ops(block);
-            let table = if with_2d { self.detector_table(block.class, block.j_max) } else { None };
-            if let Some(o) = self.try_chunk(&ops, cols, field, events, times, t_first, table.as_deref()) {
-                return Ok(ChunkOutcome { retries, retry_s, ..o });
-            }
-            retries += 1;
-            retry_s += started.elapsed().as_secs_f64();
-            if block.j_max >= MAX_LAB_BASIS_J {
-                return Err(Error::Numerical(format!(
-                    "all-M block {block:?}: the basis would need J > {MAX_LAB_BASIS_J}; lower the intensities or the temperature"
-                )));
-            }
-            block.j_max = (block.j_max + (block.j_max / 4).max(4)).min(MAX_LAB_BASIS_J);
-        }
+        let out = grow_basis(
+            block.j_max as usize,
+            MAX_LAB_BASIS_J as usize,
+            |j_max| {
+                let started = std::time::Instant::now();
+                let block = LabBlock { j_max: j_max as i64, ..block };
+                let ops = self.ops(block);
+                let table = if with_2d { self.detector_table(block.class, block.j_max) } else { None };
+                let out = self.try_chunk(&ops, cols, field, events, times, t_first, table.as_deref());
+                if out.is_none() {
+                    retries += 1;
+                    retry_s += started.elapsed().as_secs_f64();
+                }
+                Ok(out)
+            },
+            || Error::Numerical(format!("all-M block {block:?}: the basis would need J > {MAX_LAB_BASIS_J}; lower the intensities or the temperature")),
+        )?;
+        Ok(ChunkOutcome { retries, retry_s, ..out })
     }
 
     #[allow(clippy::too_many_arguments)]
@@ -1168,131 +1281,54 @@ impl LabSolver {
                 sl.start + mu * sl.nk + i
             })
             .collect();
-        let pops: Vec<f64> = cols.iter().map(|c| c.3).collect();
         let chunk_started = std::time::Instant::now();
-        let observe = std::cell::Cell::new(0.0f64);
-        let timed = |f: &mut dyn FnMut()| {
-            let t = std::time::Instant::now();
-            f();
-            observe.set(observe.get() + t.elapsed().as_secs_f64());
-        };
-        let class = &self.rotor.classes[ops.block.class];
-        let g = class.weight;
         let da = self.rotor.delta_alpha_a3;
-        let mut state = BlockState::new(ops.size, &start, t_first);
-        let mut values = vec![[0.0; 10]; times.len()];
-        let mut gaps = vec![];
-        // The nine direction-cosine averages and ⟨cos²θ_2D⟩ (when asked) of the states, times the class weight.
-        // One change to the function basis serves both.
-        let sample = |st: &BlockState| -> [f64; 10] {
-            let (nine, two_d) = ops.in_functions(st, |f, cols| {
-                (ops.expect_in(f, cols, st.k, &pops), table.map(|t| ops.expect_detector_in(ops.detector(), t, f, cols, st.k, &pops)).unwrap_or(0.0))
-            });
-            std::array::from_fn(|i| g * if i < 9 { nine[i] } else { two_d })
-        };
-        let coefficients = |st: &BlockState| (ops.coefficients(st, &pops), table.map(|t| ops.detector_coefficients(ops.detector(), t, st, &pops)));
-        let (plan, _) = sample_plan(events, times);
-        let mut ti = 0usize;
-        let mut edge: f64 = 0.0;
-        let edge_states = ops.edge_states();
-        let rate_of = |i: usize, t: f64| coupling_rad_per_ps_per_a3_wcm2() * da * field.pulses[i].peak_intensity_wcm2 * field.pulses[i].envelope(t);
-        for (ev, gap) in events.iter().zip(&plan) {
-            let (s, e) = ev.span();
-            if let Some((_, end)) = gap {
-                timed(&mut || gaps.push(coefficients(&state)));
-                ti = *end;
-            }
-            let dt = s - state.t_ps;
-            if dt != 0.0 {
-                state.free_with(&FreePhases::from_omega(&ops.omega, dt));
-            }
-            state.t_ps = s;
-            match ev {
-                Event::Kick { pulse, .. } => {
-                    let p = &field.pulses[*pulse];
-                    ops.kick(&mut state, p.kick_strength(da), &ops.coupling_for(&p.polarization));
-                }
-                Event::Finite { pulses, step_ps, .. } => {
-                    while ti < times.len() && times[ti] == s {
-                        timed(&mut || values[ti] = sample(&state));
-                        ti += 1;
-                    }
-                    let inside = times[ti..].partition_point(|t| *t <= e);
-                    let stops: Vec<f64> = times[ti..ti + inside].iter().copied().filter(|t| *t < e).collect();
-                    let at_end = inside > stops.len();
-                    let breaks: Vec<f64> = pulses.iter().flat_map(|&i| field.pulses[i].breakpoints_ps()).collect();
-                    // Measured on SO2 at 1 K (two 300 fs pulses at 5e12 W/cm², elliptical and crossed): steps of
-                    // 3/fastest (56 fs) stay within 1.9e-7 of 10 fs steps in every trace, 1.5/fastest within 1.3e-8
-                    // at twice the cost; 2e-7 is the accuracy the tops' default step keeps too.
-                    let step = if self.settings.step_fs.is_some() { *step_ps } else { step_ps.min(3.0 / ops.fastest.max(1e-30)) };
+        // Per finite interval: its coupling when every pulse in it has one polarization.
+        let single: Vec<Option<Arc<Csr>>> = events
+            .iter()
+            .map(|ev| match ev {
+                Event::Finite { pulses, .. } => {
                     let pols: Vec<PulsePolarization> = pulses.iter().map(|&i| field.pulses[i].polarization).collect();
-                    let single = pols.iter().all(|p| *p == pols[0]).then(|| ops.coupling_for(&pols[0]));
-                    let base = ti;
-                    // A chunk whose edge fills up at a sample inside the pulse starts again in a larger basis:
-                    // skip the rest of its kicks.
-                    let overflow = std::cell::Cell::new(false);
-                    let mut kick = |st: &mut BlockState, t: f64, h: f64| {
-                        if overflow.get() {
-                            return;
-                        }
-                        let rates: Vec<f64> = pulses.iter().map(|&i| rate_of(i, t)).collect();
-                        let total: f64 = rates.iter().sum();
-                        if total == 0.0 {
-                            return;
-                        }
-                        match &single {
-                            Some(a) => ops.kick(st, h * total, a),
-                            None => {
-                                let mut w = [0.0; 3];
-                                for (p, r) in pols.iter().zip(&rates) {
-                                    let cw = Polarization { angle_rad: p.angle_deg.to_radians(), ellipticity: p.ellipticity }.coupling_weights();
-                                    for (x, c) in w.iter_mut().zip([cw[0].2, cw[1].2, cw[2].2]) {
-                                        *x += c * r / total;
-                                    }
-                                }
-                                ops.kick(st, h * total, &ops.coupling.combine(&w));
-                            }
-                        }
-                    };
-                    propagate_finite(&mut state, &ops.omega, &mut kick, e, step, &stops, &breaks, |i, st| {
-                        if overflow.get() || st.edge_population(edge_states) > self.settings.edge_tolerance {
-                            overflow.set(true);
-                            return;
-                        }
-                        timed(&mut || values[base + i] = sample(st));
-                    });
-                    if overflow.get() {
-                        return None;
-                    }
-                    ti += stops.len();
-                    if at_end {
-                        timed(&mut || values[ti] = sample(&state));
-                        ti += 1;
-                    }
+                    pols.iter().all(|p| *p == pols[0]).then(|| ops.coupling_for(&pols[0]))
                 }
-            }
-            edge = edge.max(state.edge_population(edge_states));
-            if edge > self.settings.edge_tolerance {
-                return None;
-            }
-        }
-        let mut final_coeffs = (vec![], None);
-        timed(&mut || final_coeffs = coefficients(&state));
+                Event::Kick { .. } => None,
+            })
+            .collect();
+        let kernel = LabKernel {
+            ops,
+            pops: cols.iter().map(|c| c.3).collect(),
+            g: self.rotor.classes[ops.block.class].weight,
+            table,
+            field,
+            da,
+            settings: &self.settings,
+            edge_states: ops.edge_states(),
+            single,
+            observe: std::cell::Cell::new(0.0),
+        };
+        let w = walk(&kernel, BlockState::new(ops.size, &start, t_first), events, times, self.settings.edge_tolerance)?;
+        let values: Vec<[f64; 10]> = match w.values.as_slice() {
+            [] => vec![],
+            v => (0..times.len()).map(|i| std::array::from_fn(|o| v[o][i])).collect(),
+        };
+        let gaps = w.stretches.into_iter().map(|s| s.2).collect();
+        let final_coeffs = kernel.stretch(&w.state);
+        let observe = kernel.observe.get();
         let total = chunk_started.elapsed().as_secs_f64();
         Some(ChunkOutcome {
-            propagate_s: total - observe.get(),
+            propagate_s: total - observe,
             retries: 0,
             retry_s: 0.0,
-            observe_s: observe.get(),
+            observe_s: observe,
             class: ops.block.class,
-            weight: g,
+            weight: kernel.g,
             values,
             gaps,
             final_coeffs,
             block: ops.block,
             j_max: ops.block.j_max,
             size: ops.size,
-            edge,
+            edge: w.edge,
         })
     }
 }

@@ -12,13 +12,15 @@ use crate::molecule::top::BodyAxis;
 use crate::observe::{BlockSums, DenseSums, FreeSums, LevelSums, Trace, score_goal};
 use crate::optics::focal::FocalAverage;
 use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
-use crate::propagate::{BlockOps, BlockState, FreePhases, propagate_finite};
+use crate::propagate::{BlockOps, BlockState, FreePhases};
 use crate::scenario::{Method, Scenario, SolverSettings};
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2};
+use driver::{Kernel, LINEAR_STEP, grow_basis};
 use nalgebra::DMatrix;
 use rayon::prelude::*;
 
 pub mod batch;
+pub(crate) mod driver;
 pub mod lab_frame;
 pub mod top;
 use serde::Serialize;
@@ -459,13 +461,7 @@ impl Solver {
             } else {
                 let shortest = iv.pulses.iter().map(|&i| field.pulses[i].time_scale_ps()).fold(f64::INFINITY, f64::min);
                 let peak_rate: f64 = iv.pulses.iter().map(|&i| field.pulses[i].peak_rate_rad_per_ps(da).abs()).sum();
-                // Default step: a fraction of the shortest envelope, of the fastest transition period
-                // near the basis top and of the inverse peak coupling. Measured on nitrogen at 300 K
-                // (50 fs, 5e13 W/cm²) this gives errors near 1e-7 in ⟨cos²θ⟩ (see the convergence tests).
-                let step_ps = match self.settings.step_fs {
-                    Some(fs) => fs / 1000.0,
-                    None => (shortest / 1.5).min(1.5 / d_omega).min(2.0 / peak_rate.max(1e-30)),
-                };
+                let step_ps = LINEAR_STEP.step_ps(&self.settings, shortest, d_omega, peak_rate);
                 events.push(Event::Finite { start_ps: iv.start_ps, end_ps: iv.end_ps, pulses: iv.pulses.clone(), step_ps });
             }
         }
@@ -680,22 +676,21 @@ impl Solver {
     ) -> Result<BlockOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
-        let mut size = Block::size_to_reach(bp.m, bp.parity, j_thermal + 2 * extra as u32);
-        loop {
-            let block = Block { m: bp.m, parity: bp.parity, size };
-            if block.j_max() > j_limit {
-                return Err(Error::Numerical(format!(
+        let first = Block::size_to_reach(bp.m, bp.parity, j_thermal + 2 * extra as u32);
+        // The largest block whose top J stays within j_limit (size_to_reach rounds down to the block's parity).
+        let cap = if (Block { m: bp.m, parity: bp.parity, size: 1 }).j_min() > j_limit { 0 } else { Block::size_to_reach(bp.m, bp.parity, j_limit) };
+        grow_basis(
+            first,
+            cap,
+            |size| self.try_block(&self.ops(bp.m, bp.parity, size, with_2d), bp, field, events, tables, times, with_2d),
+            || {
+                Error::Numerical(format!(
                     "block |M| = {}, {} J: the basis would need J > {j_limit}, beyond where the centrifugal-distortion formula holds; lower the intensities or the temperature",
                     bp.m,
                     if bp.parity == 0 { "even" } else { "odd" }
-                )));
-            }
-            let ops = self.ops(bp.m, bp.parity, size, with_2d);
-            match self.try_block(&ops, bp, field, events, tables, times, with_2d)? {
-                Some(o) => return Ok(o),
-                None => size += (size / 4).max(4),
-            }
-        }
+                ))
+            },
+        )
     }
 
     /// One attempt at a block with a fixed basis; None if the edge population exceeds the tolerance.
@@ -711,71 +706,115 @@ impl Solver {
         with_2d: bool,
     ) -> Result<Option<BlockOutcome>> {
         let block = ops.block;
-        let g = block.m_degeneracy();
         let start: Vec<usize> = bp.levels.iter().map(|l| ((l.0 - block.j_min()) / 2) as usize).collect();
-        let pops: Vec<f64> = bp.levels.iter().map(|l| l.1).collect();
         let t_first = events.first().map(|e| e.span().0).or(times.first().copied()).unwrap_or(0.0);
-        let mut state = BlockState::new(block.size, &start, t_first);
-        let mut values = vec![];
-        let mut gaps = vec![];
-        let mut ti = 0usize;
-        let mut edge: f64 = 0.0;
-        let da = self.molecule.delta_alpha_a3();
-        let eval_now = |st: &BlockState| -> (f64, f64) {
-            let a = st.expect_tridiagonal(&pops, &ops.cos2_diag, &ops.cos2_off);
-            let b = if with_2d { st.expect_dense(&pops, ops.abscos.as_ref().expect("abscos")) } else { 0.0 };
-            (g * a, g * b)
+        let kernel = LinearKernel {
+            ops,
+            pops: bp.levels.iter().map(|l| l.1).collect(),
+            g: block.m_degeneracy(),
+            with_2d,
+            tables,
+            field,
+            da: self.molecule.delta_alpha_a3(),
         };
-        for (ev, table) in events.iter().zip(tables) {
-            let (s, e) = ev.span();
-            let gap_end = ti + times[ti..].partition_point(|t| *t < s);
-            if gap_end > ti {
-                gaps.push((ti, gap_end, state.t_ps, BlockSums::from_state(ops, &state, &pops, with_2d)));
-                ti = gap_end;
-            }
-            let dt = s - state.t_ps;
-            if dt != 0.0 {
-                state.free_with(&FreePhases::from_table(ops, dt, table));
-            }
-            state.t_ps = s;
-            match ev {
-                Event::Kick { strength, .. } => state.kick(ops, *strength),
-                Event::Finite { pulses, step_ps, .. } => {
-                    if values.is_empty() {
-                        values = vec![(0.0, 0.0); times.len()];
-                    }
-                    while ti < times.len() && times[ti] == s {
-                        values[ti] = eval_now(&state);
-                        ti += 1;
-                    }
-                    let inside = times[ti..].partition_point(|t| *t < e);
-                    let stops = &times[ti..ti + inside];
-                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), static_field: None, ..Default::default() };
-                    let rate = |t: f64| sub.alignment_rate(t, da);
-                    let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
-                    let base = ti;
-                    let mut kick = |st: &mut BlockState, t: f64, h: f64| st.kick(ops, h * rate(t));
-                    propagate_finite(&mut state, &ops.omega, &mut kick, e, *step_ps, stops, &breaks, |i, st| values[base + i] = eval_now(st));
-                    ti += inside;
-                }
-            }
-            edge = edge.max(state.edge_population(2));
-            if edge > self.settings.edge_tolerance {
-                return Ok(None);
-            }
-        }
-        let final_sums = BlockSums::from_state(ops, &state, &pops, with_2d);
-        if ti < times.len() {
-            gaps.push((ti, times.len(), state.t_ps, final_sums.clone()));
+        let Some(w) = driver::walk(&kernel, BlockState::new(block.size, &start, t_first), events, times, self.settings.edge_tolerance) else {
+            return Ok(None);
+        };
+        let values = match w.values.as_slice() {
+            [] => vec![],
+            [a, b] => a.iter().zip(b).map(|(a, b)| (*a, *b)).collect(),
+            _ => unreachable!("two observables"),
+        };
+        let mut gaps: Vec<(usize, usize, f64, BlockSums)> = w.stretches.into_iter().map(|(r, t, sums)| (r.start, r.end, t, sums)).collect();
+        let final_sums = kernel.stretch(&w.state);
+        if !w.rest.is_empty() {
+            gaps.push((w.rest.start, w.rest.end, w.state.t_ps, final_sums.clone()));
         }
         let report = BlockReport {
             m: block.m,
             parity: if block.parity == 0 { "even" } else { "odd" }.to_string(),
             j_max: block.j_max(),
             size: block.size,
-            edge_population: edge,
+            edge_population: w.edge,
         };
         Ok(Some(BlockOutcome { values, gaps, final_sums, report }))
+    }
+}
+
+/// A linear molecule's block of one |M| and one parity of J in laser pulses (a tridiagonal cos²θ).
+struct LinearKernel<'a> {
+    ops: &'a BlockOps,
+    /// Populations of the block's initial states.
+    pops: Vec<f64>,
+    /// Degeneracy of the block (±M).
+    g: f64,
+    with_2d: bool,
+    /// Field-free phases by J before each event (shared by every block).
+    tables: &'a [Vec<(f64, f64)>],
+    field: &'a FieldModel,
+    /// Polarizability anisotropy, Å³.
+    da: f64,
+}
+
+impl driver::Kernel for LinearKernel<'_> {
+    type Item = Event;
+    type Stretch = BlockSums;
+
+    fn observables(&self) -> usize {
+        2
+    }
+
+    fn omega(&self) -> &[f64] {
+        &self.ops.omega
+    }
+
+    fn edge(&self, state: &BlockState) -> f64 {
+        state.edge_population(2)
+    }
+
+    fn sample(&self, st: &BlockState, out: &mut [f64]) {
+        out[0] = self.g * st.expect_tridiagonal(&self.pops, &self.ops.cos2_diag, &self.ops.cos2_off);
+        out[1] = if self.with_2d { self.g * st.expect_dense(&self.pops, self.ops.abscos.as_ref().expect("abscos")) } else { 0.0 };
+    }
+
+    fn stretch(&self, st: &BlockState) -> BlockSums {
+        BlockSums::from_state(self.ops, st, &self.pops, self.with_2d)
+    }
+
+    fn free(&self, st: &mut BlockState, index: usize, dt: f64) {
+        st.free_with(&FreePhases::from_table(self.ops, dt, &self.tables[index]));
+    }
+
+    fn instant(&self, st: &mut BlockState, item: &Event) {
+        if let Event::Kick { strength, .. } = item {
+            st.kick(self.ops, *strength);
+        }
+    }
+
+    fn finite_kick(&self, _index: usize, item: &Event, st: &mut BlockState, t: f64, h: f64) {
+        if let Event::Finite { pulses, .. } = item {
+            st.kick(self.ops, h * self.field.alignment_rate_of(pulses, t, self.da));
+        }
+    }
+
+    fn breaks(&self, item: &Event) -> Vec<f64> {
+        match item {
+            Event::Finite { pulses, .. } => self.field.breakpoints_of(pulses),
+            Event::Kick { .. } => vec![],
+        }
+    }
+}
+
+impl driver::Scheduled for Event {
+    fn span(&self) -> (f64, f64) {
+        Event::span(self)
+    }
+
+    fn finite_step(&self) -> Option<f64> {
+        match self {
+            Event::Finite { step_ps, .. } => Some(*step_ps),
+            Event::Kick { .. } => None,
+        }
     }
 }
 
@@ -996,17 +1035,13 @@ impl Solver {
                     items.push(PolarItem::Kick { t_ps: th.center_ps, theta: [theta1, theta2, 0.0] });
                 }
             } else {
-                // Step: a fraction of the shortest envelope, of the fastest transition near the basis
-                // top and of the inverse largest coupling rate in the interval.
+                // The largest coupling rate in the interval (every element, sampled densely).
                 let mut peak: f64 = 0.0;
                 for k in 0..=400 {
                     let r = field.rates(lo + (hi - lo) * k as f64 / 400.0, mol);
                     peak = peak.max(r.u1.abs()).max(r.u2.abs()).max(r.u3.abs());
                 }
-                let step_ps = match self.settings.step_fs {
-                    Some(fs) => fs / 1000.0,
-                    None => (shortest / 1.5).min(1.5 / d_omega).min(2.0 / peak.max(1e-30)),
-                };
+                let step_ps = LINEAR_STEP.step_ps(&self.settings, shortest, d_omega, peak);
                 items.push(PolarItem::Finite { start_ps: lo, end_ps: hi, step_ps });
                 if !lasers.is_empty() {
                     laser_events.push(Event::Finite { start_ps: lo, end_ps: hi, pulses: lasers, step_ps });
@@ -1079,31 +1114,25 @@ impl Solver {
     ) -> Result<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
-        let mut size = Block::size_to_reach(bp.m, BOTH_PARITIES, j_thermal + extra as u32);
-        loop {
-            let block = Block { m: bp.m, parity: BOTH_PARITIES, size };
-            if block.j_max() > j_limit {
-                return Err(Error::Numerical(format!(
-                    "block |M| = {}: the basis would need J > {j_limit}; lower the field strengths or the temperature",
-                    bp.m
-                )));
-            }
-            let ops = {
+        let first = Block::size_to_reach(bp.m, BOTH_PARITIES, j_thermal + extra as u32);
+        let cap = if bp.m > j_limit { 0 } else { Block::size_to_reach(bp.m, BOTH_PARITIES, j_limit) };
+        grow_basis(
+            first,
+            cap,
+            |size| {
                 let cached = self.polar_cache.lock().expect("cache lock").get(&(bp.m, size)).cloned();
-                match cached {
+                let ops = match cached {
                     Some(o) => o,
                     None => {
                         let o = Arc::new(PolarOps::new(bp.m, size, &self.molecule));
                         self.polar_cache.lock().expect("cache lock").insert((bp.m, size), o.clone());
                         o
                     }
-                }
-            };
-            if let Some(out) = self.try_polar_block(&ops, &bp.levels, field, items, times, t_first, wanted)? {
-                return Ok(out);
-            }
-            size += (size / 4).max(4);
-        }
+                };
+                self.try_polar_block(&ops, &bp.levels, field, items, times, t_first, wanted)
+            },
+            || Error::Numerical(format!("block |M| = {}: the basis would need J > {j_limit}; lower the field strengths or the temperature", bp.m)),
+        )
     }
 
     #[allow(clippy::type_complexity)]
@@ -1126,7 +1155,7 @@ impl Solver {
         let arrived_in = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.map(|o| o >= t_first).unwrap_or(true));
         let s0 = arrived_in.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
         let starts_dressed = s0 != 0.0;
-        let mut state = if starts_dressed {
+        let state = if starts_dressed {
             let e = ops.static_eigen(s0);
             let mut cols = DMatrix::zeros(ops.size(), index.len());
             for (c, &n) in index.iter().enumerate() {
@@ -1136,82 +1165,34 @@ impl Solver {
         } else {
             BlockState::new(ops.size(), &index, t_first)
         };
-        let mut values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
-        let mut ti = 0usize;
-        let mut edge: f64 = 0.0;
+        let switch_times: Vec<f64> = field.static_field.map(|s| s.on_ps.into_iter().chain(s.off_ps).collect()).unwrap_or_default();
+        let mut breaks: Vec<f64> = field.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
+        breaks.extend(field.two_colour.iter().flat_map(|t| t.envelope_pulse().breakpoints_ps()));
+        breaks.extend(switch_times.iter().copied());
         // Only the wanted observables: the others stay zero (and are dropped from the trace).
         let active: Vec<usize> = (0..POLAR_OBSERVABLES).filter(|&o| wanted[o]).collect();
-        let eval_now = |st: &BlockState| -> Vec<(usize, f64)> { active.iter().map(|&o| (o, g * st.expect_dense(&pops, &ops.observables[o]))).collect() };
-        // Field-free or static-field stretch from the state's time: sums in the eigenbasis of H0 − sX.
-        let gap_sums = |st: &BlockState, rate: f64| -> DenseSums {
-            let (re, im) = st.density(&pops);
-            let e = ops.static_eigen(rate);
-            let to_eig = |m: &DMatrix<f64>| &e.st * m * &e.s;
-            let obs: Vec<DMatrix<f64>> = active.iter().map(|&o| to_eig(&ops.observables[o])).collect();
-            DenseSums::new(&to_eig(&re), &to_eig(&im), &obs, &e.eps, st.t_ps)
+        let kernel = PolarKernel { solver: self, ops, pops: pops.clone(), g, field, active: active.clone(), breaks };
+        let Some(w) = driver::walk(&kernel, state, items, times, self.settings.edge_tolerance) else {
+            return Ok(None);
         };
-        let switch_times: Vec<f64> = field.static_field.map(|s| s.on_ps.into_iter().chain(s.off_ps).collect()).unwrap_or_default();
-        for item in items {
-            let (s, e) = item.span();
-            if matches!(item, PolarItem::Switch(_)) && s < state.t_ps {
-                // A switch inside a finite interval was already stepped onto there.
-                continue;
-            }
-            // Just after the state's time, so that a switch at exactly that time counts.
-            let rate_gap = self.static_rate(field, state.t_ps + 1e-9 * (1.0 + state.t_ps.abs()));
-            let gap_end = ti + times[ti..].partition_point(|t| *t < s);
-            if gap_end > ti {
-                let sums = gap_sums(&state, rate_gap);
-                sums.eval_series(&times[ti..gap_end], |i, vals| {
-                    for (&o, v) in active.iter().zip(vals) {
-                        values[o][ti + i] = g * v;
-                    }
-                });
-                ti = gap_end;
-            }
-            let dt = s - state.t_ps;
-            ops.evolve_static(&mut state, rate_gap, dt);
-            state.t_ps = s;
-            match item {
-                PolarItem::Switch(_) => {}
-                PolarItem::Kick { theta, .. } => ops.kick(&mut state, theta[0], theta[1], theta[2]),
-                PolarItem::Finite { step_ps, .. } => {
-                    while ti < times.len() && times[ti] == s {
-                        for (o, v) in eval_now(&state) {
-                            values[o][ti] = v;
-                        }
-                        ti += 1;
-                    }
-                    let inside = times[ti..].partition_point(|t| *t < e);
-                    let stops = &times[ti..ti + inside];
-                    let mut breaks: Vec<f64> = field.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
-                    breaks.extend(field.two_colour.iter().flat_map(|t| t.envelope_pulse().breakpoints_ps()));
-                    breaks.extend(switch_times.iter().copied());
-                    let mol = &self.molecule;
-                    let mut kick = |st: &mut BlockState, t: f64, h: f64| {
-                        let r = field.rates(t, mol);
-                        ops.kick(st, h * r.u1, h * r.u2, h * r.u3)
-                    };
-                    let base = ti;
-                    let step = *step_ps;
-                    propagate_finite(&mut state, &ops.omega, &mut kick, e, step, stops, &breaks, |i, st| {
-                        for (o, v) in eval_now(st) {
-                            values[o][base + i] = v;
-                        }
-                    });
-                    ti += inside;
-                }
-            }
-            edge = edge.max(state.edge_population(2));
-            if edge > self.settings.edge_tolerance {
-                return Ok(None);
-            }
+        let mut values = w.values;
+        if values.is_empty() {
+            values = vec![vec![0.0; times.len()]; POLAR_OBSERVABLES];
         }
+        for (range, _, sums) in &w.stretches {
+            sums.eval_series(&times[range.clone()], |i, vals| {
+                for (&o, v) in active.iter().zip(vals) {
+                    values[o][range.start + i] = g * v;
+                }
+            });
+        }
+        let (state, mut edge) = (w.state, w.edge);
         let rate_end = self.static_rate(field, state.t_ps);
-        let sums = gap_sums(&state, rate_end);
-        sums.eval_series(&times[ti..], |i, vals| {
+        let sums = kernel.sums_at(&state, rate_end);
+        let rest = w.rest;
+        sums.eval_series(&times[rest.clone()], |i, vals| {
             for (&o, v) in active.iter().zip(vals) {
-                values[o][ti + i] = g * v;
+                values[o][rest.start + i] = g * v;
             }
         });
         // Edge also after a long static-field stretch (dressed states reach higher J).
@@ -1233,6 +1214,102 @@ impl Solver {
         }
         let report = BlockReport { m: ops.block.m, parity: ops.label.clone(), j_max: ops.j_last(), size: ops.size(), edge_population: edge };
         Ok(Some((values, perm, report)))
+    }
+}
+
+/// A polar block of one |M| holding every J (or a symmetric top's (K, M) block) in fields that break
+/// the parity of J: static, terahertz, two-colour and laser fields.
+struct PolarKernel<'a> {
+    solver: &'a Solver,
+    ops: &'a PolarOps,
+    /// Populations of the block's initial states.
+    pops: Vec<f64>,
+    /// Degeneracy of the block.
+    g: f64,
+    field: &'a FieldModel,
+    /// The observables asked for (indices below `POLAR_OBSERVABLES`).
+    active: Vec<usize>,
+    /// Kinks of every envelope and the static-field switches.
+    breaks: Vec<f64>,
+}
+
+impl PolarKernel<'_> {
+    /// The static-field rate just after the state's time (so that a switch at exactly that time counts).
+    fn rate_after(&self, st: &BlockState) -> f64 {
+        self.solver.static_rate(self.field, st.t_ps + 1e-9 * (1.0 + st.t_ps.abs()))
+    }
+
+    /// Field-free or static-field stretch from the state's time: sums in the eigenbasis of H0 − sX.
+    fn sums_at(&self, st: &BlockState, rate: f64) -> DenseSums {
+        let (re, im) = st.density(&self.pops);
+        let e = self.ops.static_eigen(rate);
+        let to_eig = |m: &DMatrix<f64>| &e.st * m * &e.s;
+        let obs: Vec<DMatrix<f64>> = self.active.iter().map(|&o| to_eig(&self.ops.observables[o])).collect();
+        DenseSums::new(&to_eig(&re), &to_eig(&im), &obs, &e.eps, st.t_ps)
+    }
+}
+
+impl driver::Kernel for PolarKernel<'_> {
+    type Item = PolarItem;
+    type Stretch = DenseSums;
+
+    fn observables(&self) -> usize {
+        POLAR_OBSERVABLES
+    }
+
+    fn omega(&self) -> &[f64] {
+        &self.ops.omega
+    }
+
+    fn edge(&self, state: &BlockState) -> f64 {
+        state.edge_population(2)
+    }
+
+    fn sample(&self, st: &BlockState, out: &mut [f64]) {
+        for &o in &self.active {
+            out[o] = self.g * st.expect_dense(&self.pops, &self.ops.observables[o]);
+        }
+    }
+
+    fn stretch(&self, st: &BlockState) -> DenseSums {
+        self.sums_at(st, self.rate_after(st))
+    }
+
+    fn free(&self, st: &mut BlockState, _index: usize, dt: f64) {
+        let rate = self.rate_after(st);
+        self.ops.evolve_static(st, rate, dt);
+    }
+
+    fn instant(&self, st: &mut BlockState, item: &PolarItem) {
+        if let PolarItem::Kick { theta, .. } = item {
+            self.ops.kick(st, theta[0], theta[1], theta[2]);
+        }
+    }
+
+    fn finite_kick(&self, _index: usize, _item: &PolarItem, st: &mut BlockState, t: f64, h: f64) {
+        let r = self.field.rates(t, &self.solver.molecule);
+        self.ops.kick(st, h * r.u1, h * r.u2, h * r.u3);
+    }
+
+    fn breaks(&self, _item: &PolarItem) -> Vec<f64> {
+        self.breaks.clone()
+    }
+}
+
+impl driver::Scheduled for PolarItem {
+    fn span(&self) -> (f64, f64) {
+        PolarItem::span(self)
+    }
+
+    fn finite_step(&self) -> Option<f64> {
+        match self {
+            PolarItem::Finite { step_ps, .. } => Some(*step_ps),
+            _ => None,
+        }
+    }
+
+    fn is_switch(&self) -> bool {
+        matches!(self, PolarItem::Switch(_))
     }
 }
 

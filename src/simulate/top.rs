@@ -5,6 +5,7 @@
 //! makes a kick exp(iθA) exact. Finite pulses use the same fourth-order splitting as linear molecules.
 //! After the last pulse the blocks' coherences are merged by pairs of field-free levels.
 
+use super::driver::{Kernel, TOP_STEP, grow_basis, walk};
 use super::{BlockReport, Event, RunResult};
 use crate::basis::top::{AngularOperator, Banded, TopBlock, TopBlockBasis, TopFrame, TopSym};
 use crate::ensemble::top::{TopBlockPopulation, TopEnsemble};
@@ -14,9 +15,9 @@ use crate::molecule::top::{BodyAxis, Top};
 use crate::numeric::{Strided, gemm_strided};
 use crate::observe::pairs::PairSums;
 use crate::observe::{FreeSums, Trace};
+use crate::propagate::BlockState;
 use crate::propagate::polar::PolarOps;
 use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
-use crate::propagate::{BlockState, propagate_finite};
 use crate::scenario::{Method, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
 use rayon::prelude::*;
@@ -309,13 +310,8 @@ impl TopSolver {
             for iv in field.active_intervals() {
                 let shortest = iv.pulses.iter().map(|&i| field.pulses[i].time_scale_ps()).fold(f64::INFINITY, f64::min);
                 let peak: f64 = iv.pulses.iter().map(|&i| field.pulses[i].peak_rate_rad_per_ps(da).abs()).sum();
-                let step_ps = match self.settings.step_fs {
-                    Some(fs) => fs / 1000.0,
-                    // Measured on an asymmetric top (P ≈ 47, 1 ps pulse): at 0.3 K steps of 2/peak (46 fs), 100 fs
-                    // and 200 fs differ by 1.9e-7 and 3.3e-6 in every trace; at 1 K, 5/peak differs from 3/peak
-                    // by at most 2.0e-7 in every trace (0–400 ps) at 0.6 of the cost.
-                    None => (shortest / 1.5).min(5.0 / peak.max(1e-30)),
-                };
+                // The fastest transition is known block by block (see try_block).
+                let step_ps = TOP_STEP.step_ps(&self.settings, shortest, 0.0, peak);
                 events.push(Event::Finite { start_ps: iv.start_ps, end_ps: iv.end_ps, pulses: iv.pulses.clone(), step_ps });
             }
         }
@@ -426,20 +422,17 @@ impl TopSolver {
         reach: i64,
     ) -> Result<TopOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(0);
-        let mut j_max = (j_thermal + reach).min(MAX_TOP_BASIS_J);
-        loop {
-            let ops = self.ops(TopBlock { m: bp.m, sym: bp.sym, j_max }, with_2d);
-            if let Some(o) = self.try_block(ops, bp, field, events, times, t_first)? {
-                return Ok(o);
-            }
-            if j_max >= MAX_TOP_BASIS_J {
-                return Err(Error::Numerical(format!(
+        grow_basis(
+            (j_thermal + reach) as usize,
+            MAX_TOP_BASIS_J as usize,
+            |j_max| self.try_block(self.ops(TopBlock { m: bp.m, sym: bp.sym, j_max: j_max as i64 }, with_2d), bp, field, events, times, t_first),
+            || {
+                Error::Numerical(format!(
                     "block M = {}, {:?}: the basis would need J > {MAX_TOP_BASIS_J}; lower the intensities or the temperature",
                     bp.m, bp.sym
-                )));
-            }
-            j_max = (j_max + (j_max / 4).max(4)).min(MAX_TOP_BASIS_J);
-        }
+                ))
+            },
+        )
     }
 
     fn try_block(
@@ -460,62 +453,25 @@ impl TopSolver {
                 r.1 + idx
             })
             .collect();
-        let pops: Vec<f64> = bp.levels.iter().map(|l| l.2).collect();
         let g = bp.weight;
-        let da = self.top.delta_alpha_a3();
-        let mut state = BlockState::new(b.size(), &start, t_first);
-        let nobs = ops.observables.len();
-        let mut values = vec![vec![0.0; times.len()]; nobs];
-        let mut gaps = vec![];
-        let mut ti = 0usize;
-        let mut edge: f64 = 0.0;
-        let edge_states = ops.edge_states();
-        for ev in events {
-            let (s, e) = ev.span();
-            let gap_end = ti + times[ti..].partition_point(|t| *t < s);
-            if gap_end > ti {
-                gaps.push((ti, gap_end, state.t_ps, block_pairs(&state, &pops, &ops.observables)));
-                ti = gap_end;
-            }
-            let dt = s - state.t_ps;
-            if dt != 0.0 {
-                state.free_with(&crate::propagate::FreePhases::from_omega(&ops.omega, dt));
-            }
-            state.t_ps = s;
-            match ev {
-                Event::Kick { strength, .. } => ops.kick(&mut state, *strength),
-                Event::Finite { pulses, step_ps, .. } => {
-                    let eval_now = |st: &BlockState| -> Vec<f64> { ops.observables.iter().map(|o| g * expect_banded(st, &pops, o)).collect() };
-                    while ti < times.len() && times[ti] == s {
-                        for (o, v) in eval_now(&state).into_iter().enumerate() {
-                            values[o][ti] = v;
-                        }
-                        ti += 1;
-                    }
-                    let inside = times[ti..].partition_point(|t| *t < e);
-                    let stops = &times[ti..ti + inside];
-                    let sub = FieldModel { pulses: pulses.iter().map(|&i| field.pulses[i].clone()).collect(), ..Default::default() };
-                    let breaks: Vec<f64> = sub.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
-                    let step = if self.settings.step_fs.is_some() { *step_ps } else { step_ps.min(1.5 / ops.fastest.max(1e-30)) };
-                    let base = ti;
-                    let mut kick = |st: &mut BlockState, t: f64, h: f64| ops.kick(st, h * sub.alignment_rate(t, da));
-                    propagate_finite(&mut state, &ops.omega, &mut kick, e, step, stops, &breaks, |i, st| {
-                        for (o, v) in eval_now(st).into_iter().enumerate() {
-                            values[o][base + i] = v;
-                        }
-                    });
-                    ti += inside;
-                }
-            }
-            edge = edge.max(state.edge_population(edge_states));
-            if edge > self.settings.edge_tolerance {
-                return Ok(None);
-            }
+        let kernel = TopKernel {
+            ops: &ops,
+            pops: bp.levels.iter().map(|l| l.2).collect(),
+            g,
+            field,
+            da: self.top.delta_alpha_a3(),
+            settings: &self.settings,
+            edge_states: ops.edge_states(),
+        };
+        let Some(w) = walk(&kernel, BlockState::new(b.size(), &start, t_first), events, times, self.settings.edge_tolerance) else {
+            return Ok(None);
+        };
+        let mut gaps: Vec<_> = w.stretches.into_iter().map(|(r, t, pairs)| (r.start, r.end, t, pairs)).collect();
+        let final_pairs = (w.state.t_ps, kernel.stretch(&w.state));
+        if !w.rest.is_empty() {
+            gaps.push((w.rest.start, w.rest.end, final_pairs.0, final_pairs.1.clone()));
         }
-        let final_pairs = (state.t_ps, block_pairs(&state, &pops, &ops.observables));
-        if ti < times.len() {
-            gaps.push((ti, times.len(), final_pairs.0, final_pairs.1.clone()));
-        }
+        let (values, edge) = (w.values, w.edge);
         let label = match bp.sym {
             TopSym::K(k) => format!("K={k}"),
             TopSym::Wang { .. } => {
@@ -526,6 +482,75 @@ impl TopSolver {
         };
         let report = BlockReport { m: bp.m as u32, parity: label, j_max: ops.basis.block.j_max as u32, size: ops.basis.size(), edge_population: edge };
         Ok(Some(TopOutcome { values, gaps, final_pairs, ops, report, weight: g }))
+    }
+}
+
+/// A top's block of one M and one symmetry class in laser pulses (banded direction-cosine operators).
+struct TopKernel<'a> {
+    ops: &'a TopOps,
+    /// Populations of the block's initial states.
+    pops: Vec<f64>,
+    /// Weight of the block (degeneracy and spin statistics).
+    g: f64,
+    field: &'a FieldModel,
+    /// Polarizability anisotropy α_max − α_min, Å³.
+    da: f64,
+    settings: &'a SolverSettings,
+    /// Eigenstates in the top two J values of the basis.
+    edge_states: usize,
+}
+
+impl Kernel for TopKernel<'_> {
+    type Item = Event;
+    type Stretch = BlockPairs;
+
+    fn observables(&self) -> usize {
+        self.ops.observables.len()
+    }
+
+    fn omega(&self) -> &[f64] {
+        &self.ops.omega
+    }
+
+    fn edge(&self, state: &BlockState) -> f64 {
+        state.edge_population(self.edge_states)
+    }
+
+    fn sample(&self, st: &BlockState, out: &mut [f64]) {
+        for (x, o) in out.iter_mut().zip(&self.ops.observables) {
+            *x = self.g * expect_banded(st, &self.pops, o);
+        }
+    }
+
+    fn stretch(&self, st: &BlockState) -> BlockPairs {
+        block_pairs(st, &self.pops, &self.ops.observables)
+    }
+
+    fn free(&self, st: &mut BlockState, _index: usize, dt: f64) {
+        st.free_with(&crate::propagate::FreePhases::from_omega(&self.ops.omega, dt));
+    }
+
+    fn instant(&self, st: &mut BlockState, item: &Event) {
+        if let Event::Kick { strength, .. } = item {
+            self.ops.kick(st, *strength);
+        }
+    }
+
+    fn finite_kick(&self, _index: usize, item: &Event, st: &mut BlockState, t: f64, h: f64) {
+        if let Event::Finite { pulses, .. } = item {
+            self.ops.kick(st, h * self.field.alignment_rate_of(pulses, t, self.da));
+        }
+    }
+
+    fn breaks(&self, item: &Event) -> Vec<f64> {
+        match item {
+            Event::Finite { pulses, .. } => self.field.breakpoints_of(pulses),
+            Event::Kick { .. } => vec![],
+        }
+    }
+
+    fn step(&self, step_ps: f64) -> f64 {
+        TOP_STEP.in_block(self.settings, step_ps, self.ops.fastest)
     }
 }
 
@@ -585,20 +610,19 @@ impl super::Solver {
         let outcomes: Vec<super::PolarOutcome> = blocks
             .par_iter()
             .map(|(k, m, w, levels)| {
-                let j_thermal = levels.last().map(|l| l.0 as i64).unwrap_or(0);
-                let mut j_max = (j_thermal + extra as i64).min(MAX_TOP_BASIS_J);
-                loop {
-                    let ops = symmetric_top_polar_ops(top, &frame, *k, *m, j_max, *w);
-                    if let Some(out) = self.try_polar_block(&ops, levels, field, &items, times, t_first, wanted)? {
-                        return Ok(out);
-                    }
-                    if j_max >= MAX_TOP_BASIS_J {
-                        return Err(Error::Numerical(format!(
+                let j_thermal = levels.last().map(|l| l.0 as usize).unwrap_or(0);
+                grow_basis(
+                    j_thermal + extra,
+                    MAX_TOP_BASIS_J as usize,
+                    |j_max| {
+                        self.try_polar_block(&symmetric_top_polar_ops(top, &frame, *k, *m, j_max as i64, *w), levels, field, &items, times, t_first, wanted)
+                    },
+                    || {
+                        Error::Numerical(format!(
                             "block K = {k}, M = {m}: the basis would need J > {MAX_TOP_BASIS_J}; lower the field strengths or the temperature"
-                        )));
-                    }
-                    j_max = (j_max + (j_max / 4).max(4)).min(MAX_TOP_BASIS_J);
-                }
+                        ))
+                    },
+                )
             })
             .collect::<Result<Vec<_>>>()?;
         let (values, permanent, reports) = super::sum_polar(outcomes, times.len());
