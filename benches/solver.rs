@@ -35,7 +35,7 @@ fn peer_job() {
         let solver = Solver::new(&mol, 300.0, SolverSettings::default()).unwrap();
         let r = solver.run(&field, &times, true).unwrap();
         runs.push(t0.elapsed().as_secs_f64());
-        last = Some((r, solver.ensemble.state_count()));
+        last = Some((r, solver.initial_states()));
     }
     let (r, states) = last.unwrap();
     let ms = median(runs) * 1e3;

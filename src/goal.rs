@@ -20,6 +20,11 @@ pub enum Observable {
 }
 
 impl Observable {
+    /// True if the observable needs ⟨cos²θ_2D⟩ computed (the one rule every run for a goal follows).
+    pub fn needs_cos2_2d(&self) -> bool {
+        *self == Observable::Cos2TwoD
+    }
+
     /// Name as written in files and CSV columns.
     pub fn name(&self) -> &'static str {
         match self {

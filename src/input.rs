@@ -121,3 +121,19 @@ pub fn as_f64(v: &Value, path: &str, unit: &str) -> Result<f64> {
 pub fn parse_json(text: &str, file: &str) -> Result<Value> {
     serde_json::from_str(text).map_err(|e| Error::input(file, format!("not valid JSON: {e}")))
 }
+
+/// Largest input file read (scenarios and objectives are a few kB).
+pub const MAX_INPUT_BYTES: u64 = 16 << 20;
+
+/// Read an input file of at most [`MAX_INPUT_BYTES`] as UTF-8 text (never echoing its contents).
+pub fn read_text_file(path: &std::path::Path) -> Result<String> {
+    use std::io::Read;
+    let field = path.display().to_string();
+    let file = std::fs::File::open(path).map_err(|e| Error::input(&field, format!("cannot read the file: {e}")))?;
+    let mut bytes = vec![];
+    file.take(MAX_INPUT_BYTES + 1).read_to_end(&mut bytes).map_err(|e| Error::input(&field, format!("cannot read the file: {e}")))?;
+    if bytes.len() as u64 > MAX_INPUT_BYTES {
+        return Err(Error::input(&field, format!("expected an input file of at most {} MiB", MAX_INPUT_BYTES >> 20)));
+    }
+    String::from_utf8(bytes).map_err(|e| Error::input(&field, format!("expected UTF-8 text (invalid byte at offset {})", e.utf8_error().valid_up_to())))
+}

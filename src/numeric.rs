@@ -163,6 +163,54 @@ fn reduced_sin_cos(x: f64) -> (f64, f64) {
     (sin, cos)
 }
 
+/// Local maximum of sense·f near t0 by Newton steps on f' (`d(t)` gives f, f', f''), staying inside
+/// [lo, hi]; returns (t, sense·f(t)), or None if the function is not concave along the way, a step
+/// leaves the bracket or 12 steps do not converge to 1e-10 ps.
+pub fn newton_max(d: impl Fn(f64) -> (f64, f64, f64), sense: f64, t0: f64, lo: f64, hi: f64) -> Option<(f64, f64)> {
+    let mut t = t0;
+    for _ in 0..12 {
+        let (_, d1, d2) = d(t);
+        let (g1, g2) = (sense * d1, sense * d2);
+        if g2 >= 0.0 || !g1.is_finite() {
+            return None;
+        }
+        let step = -g1 / g2;
+        t += step;
+        if !(lo..=hi).contains(&t) {
+            return None;
+        }
+        if step.abs() < 1e-10 {
+            return Some((t, sense * d(t).0));
+        }
+    }
+    None
+}
+
+/// Maximum of a unimodal-ish f on [a, b] by golden-section search to tolerance `tol` (same unit as t).
+pub fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (f64, f64) {
+    let g = 0.5 * (5f64.sqrt() - 1.0);
+    let mut c = b - g * (b - a);
+    let mut d = a + g * (b - a);
+    let (mut fc, mut fd) = (f(c), f(d));
+    while (b - a).abs() > tol {
+        if fc > fd {
+            b = d;
+            d = c;
+            fd = fc;
+            c = b - g * (b - a);
+            fc = f(c);
+        } else {
+            a = c;
+            c = d;
+            fc = fd;
+            d = a + g * (b - a);
+            fd = f(d);
+        }
+    }
+    let t = 0.5 * (a + b);
+    (t, f(t))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

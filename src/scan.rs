@@ -1,8 +1,8 @@
 //! Parameter scans: the same scenario evaluated over a 1D or 2D grid of any numeric field of the
 //! scenario file (for example `pulses[1].center_ps` × `pulses[1].peak_intensity_wcm2`), in parallel.
 
+use crate::design::score::score_goal;
 use crate::error::{Error, Result};
-use crate::observe::score_goal;
 use crate::scenario::Scenario;
 use crate::simulate::Solver;
 use rayon::prelude::*;

@@ -1,9 +1,9 @@
 //! Tolerances: Monte Carlo over timing jitter, pulse-energy noise and two-colour phase noise, scored
 //! with the scenario's goal at the nominal probe times.
 
+use crate::design::score::score_goal;
 use crate::error::{Error, Result};
 use crate::goal::Observable;
-use crate::observe::score_goal;
 use crate::scenario::Scenario;
 use crate::simulate::Solver;
 use rand::{Rng, SeedableRng};

@@ -4,7 +4,6 @@
 use kicktrain::design::search::{Silent, design, evaluate, evaluate_kick_many};
 use kicktrain::design::{Bounds, DesignSpace, Objective, PulseBounds};
 use kicktrain::field::PulseShape;
-use kicktrain::simulate::simulate;
 use rand::{Rng, SeedableRng};
 
 /// A cheap two-pulse problem: CO2 at 10 K, 30 fs pulses (nearly impulsive for CO2), peak ⟨cos²θ⟩.
@@ -24,10 +23,10 @@ fn objective(text: &str) -> Objective {
 /// 1e-9, and return the replayed scenario.
 fn replays_exactly(obj: &Objective, r: &kicktrain::design::search::DesignResult, tag: &str) -> kicktrain::scenario::Scenario {
     let dir = std::env::temp_dir().join(format!("kicktrain-{tag}-{}", std::process::id()));
-    kicktrain::report::design::write_design(obj, r, &dir).unwrap();
+    kicktrain::report::design::write_design(obj, r, &kicktrain::design::score::replay(obj, r).unwrap(), &dir).unwrap();
     let text = std::fs::read_to_string(dir.join("design.json")).unwrap();
     let scenario = kicktrain::scenario::Scenario::from_json_str(&text, "design.json").unwrap();
-    let replay = simulate(&scenario).unwrap().goal_score.unwrap();
+    let replay = kicktrain::design::score::simulate_scored(&scenario, Default::default()).unwrap().goal_score.unwrap();
     assert!((replay.value - r.best.full.value).abs() < 1e-9, "{tag}: replay {} vs {}", replay.value, r.best.full.value);
     std::fs::remove_dir_all(&dir).ok();
     scenario

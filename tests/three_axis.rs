@@ -121,8 +121,8 @@ fn three_axis_goal_agrees_between_the_symmetric_formula_and_the_all_m_path() {
     // For a field symmetric about Z, ⟨Φ_Xb²⟩ = (1 − ⟨Φ_Zb²⟩)/2 (cylindrical symmetry, exact): the
     // M-conserving path scores the three-axis goal through that formula, the all-M path computes ⟨Φ_Xb²⟩
     // directly. Series and refined peak scores must agree.
+    use kicktrain::design::score::score_goal;
     use kicktrain::goal::{Goal, GoalKind, Observable};
-    use kicktrain::observe::score_goal;
     let top = asymmetric();
     let field = FieldModel::pulses(vec![pulse(0.0, 500.0, 3e11, 0.0, 0.0)]);
     let goal = Goal { kind: GoalKind::Peak, observable: Observable::ThreeAxis, window_ps: (0.5, 12.0), step_fs: 250.0 };

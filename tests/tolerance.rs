@@ -13,7 +13,7 @@ const DESIGN: &str = r#"{"molecule": "N2", "temperature_k": 300,
 fn zero_noise_gives_the_nominal_score_exactly_and_noise_is_reproducible() {
     let s = Scenario::from_json_str(DESIGN, "x").unwrap();
     let quiet = tolerance(&s, Noise { jitter_fs: 0.0, energy_percent: 0.0, phase_rad: 0.0 }, 8, 1, &AtomicBool::new(false)).unwrap();
-    let nominal = kicktrain::simulate::simulate(&s).unwrap().goal_score.unwrap().value;
+    let nominal = kicktrain::design::score::simulate_scored(&s, Default::default()).unwrap().goal_score.unwrap().value;
     assert_eq!(quiet.nominal.to_bits(), nominal.to_bits());
     assert!(quiet.samples.iter().all(|v| v.to_bits() == nominal.to_bits()));
     assert!(quiet.spread < 1e-15, "{}", quiet.spread);

@@ -4,6 +4,7 @@
 //! The physics does not know it is being optimized: the search sees a vector in the unit cube, the
 //! design space turns it into a `FieldModel`, the solver propagates it and the goal scores it.
 
+pub mod score;
 pub mod search;
 pub mod seeds;
 

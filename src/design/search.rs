@@ -190,7 +190,7 @@ impl<'a> Evaluator<'a> {
             kick,
             split,
             full,
-            with_2d: obj.goal.observable == super::Observable::Cos2TwoD,
+            with_2d: obj.goal.observable.needs_cos2_2d(),
             kick_count: AtomicUsize::new(0),
             full_count: AtomicUsize::new(0),
             best: Mutex::new([None, None]),
@@ -251,15 +251,8 @@ impl<'a> Evaluator<'a> {
     fn compute(&self, field: &FieldModel, model: Model) -> Result<Score> {
         let goal = &self.obj.goal;
         let t_last = field.last_center_ps();
-        let times = goal.times(t_last);
         let solver = self.solver(model)?;
-        let one = |f: &FieldModel| -> Result<Score> {
-            let run = match &self.obj.base.focal_average {
-                None => solver.run_for_goal(f, &times, goal.observable)?,
-                Some(avg) => solver.run_focal(f, &times, self.with_2d, avg)?,
-            };
-            Ok(crate::observe::score_goal(goal, &run.trace, &run.final_sums, t_last))
-        };
+        let one = |f: &FieldModel| super::score::score_run(solver, f, goal, t_last, self.obj.base.focal_average.as_ref());
         match (&self.obj.robust, model) {
             // Robust design: the mean over fixed error samples (common random numbers), probe at nominal times.
             (Some((noise, n)), Model::Full) => {
@@ -338,7 +331,7 @@ impl<'a> Evaluator<'a> {
                                 trace.cos2_2d[k] = b;
                             }
                         });
-                        Some(crate::observe::score_goal(goal, &trace, &FreeSums::Levels(total), t_last))
+                        Some(super::score::score_goal(goal, &trace, &FreeSums::Levels(total), t_last))
                     }
                     _ => None,
                 };

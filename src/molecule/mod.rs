@@ -53,6 +53,19 @@ fn is_zero(x: &f64) -> bool {
     *x == 0.0
 }
 
+/// The kind of rotor, which decides what the field-free Hamiltonian conserves: J and M always; K
+/// (the projection on the figure axis) for linear molecules (K = 0) and symmetric tops; only the D2
+/// symmetry of the inertia ellipsoid for asymmetric tops.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RotorKind {
+    /// A linear molecule.
+    Linear,
+    /// A prolate or oblate symmetric top.
+    SymmetricTop,
+    /// An asymmetric top.
+    AsymmetricTop,
+}
+
 /// Largest rotational quantum number any basis may reach (beyond it the run is refused, not truncated).
 pub const MAX_BASIS_J: u32 = 600;
 
@@ -108,6 +121,15 @@ impl Molecule {
     /// True for symmetric and asymmetric tops.
     pub fn is_top(&self) -> bool {
         self.top.is_some()
+    }
+
+    /// Linear molecule, symmetric top (prolate or oblate) or asymmetric top.
+    pub fn kind(&self) -> RotorKind {
+        match &self.top {
+            None => RotorKind::Linear,
+            Some(t) if t.kind() == top::TopKind::Asymmetric => RotorKind::AsymmetricTop,
+            Some(_) => RotorKind::SymmetricTop,
+        }
     }
 
     /// True if the molecule has a permanent dipole moment.

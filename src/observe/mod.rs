@@ -3,7 +3,6 @@
 
 pub mod pairs;
 
-use crate::goal::{Goal, GoalKind, Observable, Score};
 use crate::numeric::{advance_and_project, sin_cos, sin_cos_slice};
 use crate::propagate::{BlockOps, BlockState};
 use pairs::PairSums;
@@ -635,126 +634,6 @@ impl Trace {
     }
 }
 
-/// Score a goal from a trace sampled at `goal.times(t_last)` and the ensemble's coherence sums after
-/// the last pulse. Peaks and minima found on the grid are refined by golden-section search on the
-/// exact field-free expression where it applies; means use the exact time average when the window is
-/// field-free.
-pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> Score {
-    let series = match goal.observable {
-        Observable::Cos2 => &trace.cos2,
-        Observable::Cos2TwoD => &trace.cos2_2d,
-        Observable::Cos => &trace.cos,
-        Observable::ThreeAxis => &trace.three_axis,
-    };
-    if series.is_empty() {
-        // ⟨cosθ⟩ without any orienting field: zero by symmetry.
-        return Score { value: 0.0, t_ps: trace.times_ps.first().copied() };
-    }
-    let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
-    // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
-    let field_free = match goal.observable {
-        Observable::Cos => f64::INFINITY,
-        // The minimum of two averages has no exact mean from the sums: means use the samples.
-        Observable::ThreeAxis if goal.kind == GoalKind::Mean => f64::INFINITY,
-        Observable::ThreeAxis if !after.carries_three_axis() => f64::INFINITY,
-        _ => after.t0_ps(),
-    };
-    match goal.kind {
-        GoalKind::ValueAt(_) => Score { value: series[0], t_ps: Some(trace.times_ps[0]) },
-        GoalKind::Mean => {
-            let (a, b) = (t_last + goal.window_ps.0, t_last + goal.window_ps.1);
-            if a >= field_free {
-                Score { value: pick(after.mean_over(a, b)), t_ps: None }
-            } else {
-                // Trapezoid over the samples (the window starts during a pulse).
-                let n = series.len();
-                let mut s = 0.0;
-                for i in 1..n {
-                    s += 0.5 * (series[i] + series[i - 1]) * (trace.times_ps[i] - trace.times_ps[i - 1]);
-                }
-                Score { value: s / (trace.times_ps[n - 1] - trace.times_ps[0]), t_ps: None }
-            }
-        }
-        GoalKind::Peak | GoalKind::Minimum => {
-            let sense = goal.sense();
-            let mut best = 0;
-            for i in 0..series.len() {
-                if sense * series[i] > sense * series[best] {
-                    best = i;
-                }
-            }
-            let t_best = trace.times_ps[best];
-            let dt = if series.len() > 1 { trace.times_ps[1] - trace.times_ps[0] } else { 0.0 };
-            let lo = (t_best - dt).max(trace.times_ps[0]);
-            let hi = (t_best + dt).min(*trace.times_ps.last().expect("samples"));
-            let mut score = Score { value: series[best], t_ps: Some(t_best) };
-            if dt > 0.0 && lo >= field_free {
-                let f =
-                    |t: f64| sense * if goal.observable == Observable::ThreeAxis { after.eval_three_axis(t).unwrap_or(f64::NAN) } else { pick(after.eval(t)) };
-                // ⟨cos²θ⟩ of a linear molecule: Newton steps on the exact derivatives (a few passes);
-                // elsewhere, or if Newton leaves the bracket, golden-section search.
-                let newton = match (after, goal.observable) {
-                    (FreeSums::Levels(l), Observable::Cos2) => newton_max(|t| l.cos2_derivatives(t), sense, t_best, lo, hi),
-                    _ => None,
-                };
-                let (t_opt, v) = newton.unwrap_or_else(|| golden_max(f, lo, hi, 1e-5));
-                if v > sense * score.value {
-                    score = Score { value: sense * v, t_ps: Some(t_opt) };
-                }
-            }
-            score
-        }
-    }
-}
-
-/// Local maximum of sense·f near t0 by Newton steps on f' (`d(t)` gives f, f', f''), staying inside
-/// [lo, hi]; returns (t, sense·f(t)), or None if the function is not concave along the way, a step
-/// leaves the bracket or 12 steps do not converge to 1e-10 ps.
-fn newton_max(d: impl Fn(f64) -> (f64, f64, f64), sense: f64, t0: f64, lo: f64, hi: f64) -> Option<(f64, f64)> {
-    let mut t = t0;
-    for _ in 0..12 {
-        let (_, d1, d2) = d(t);
-        let (g1, g2) = (sense * d1, sense * d2);
-        if g2 >= 0.0 || !g1.is_finite() {
-            return None;
-        }
-        let step = -g1 / g2;
-        t += step;
-        if !(lo..=hi).contains(&t) {
-            return None;
-        }
-        if step.abs() < 1e-10 {
-            return Some((t, sense * d(t).0));
-        }
-    }
-    None
-}
-
-/// Maximum of a unimodal-ish f on [a, b] by golden-section search to tolerance `tol` (same unit as t).
-fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (f64, f64) {
-    let g = 0.5 * (5f64.sqrt() - 1.0);
-    let mut c = b - g * (b - a);
-    let mut d = a + g * (b - a);
-    let (mut fc, mut fd) = (f(c), f(d));
-    while (b - a).abs() > tol {
-        if fc > fd {
-            b = d;
-            d = c;
-            fd = fc;
-            c = b - g * (b - a);
-            fc = f(c);
-        } else {
-            a = c;
-            c = d;
-            fc = fd;
-            d = a + g * (b - a);
-            fd = f(d);
-        }
-    }
-    let t = 0.5 * (a + b);
-    (t, f(t))
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -863,13 +742,13 @@ mod tests {
         // Bracket the largest value on a grid, then compare the two refinements.
         let grid: Vec<f64> = (0..400).map(|i| 1.5 + 0.02 * i as f64).collect();
         let best = grid.iter().copied().fold(grid[0], |a, t| if closed_form(&s, t) > closed_form(&s, a) { t } else { a });
-        let (tn, vn) = newton_max(|t| s.cos2_derivatives(t), 1.0, best, best - 0.02, best + 0.02).expect("concave near the peak");
-        let (tg, vg) = golden_max(|t| closed_form(&s, t), best - 0.02, best + 0.02, 1e-9);
+        let (tn, vn) = crate::numeric::newton_max(|t| s.cos2_derivatives(t), 1.0, best, best - 0.02, best + 0.02).expect("concave near the peak");
+        let (tg, vg) = crate::numeric::golden_max(|t| closed_form(&s, t), best - 0.02, best + 0.02, 1e-9);
         assert!((tn - tg).abs() < 1e-6 && (vn - vg).abs() < 1e-12, "newton ({tn}, {vn}) vs golden ({tg}, {vg})");
         assert!(vn >= closed_form(&s, best));
         // A minimum is found with sense −1.
         let worst = grid.iter().copied().fold(grid[0], |a, t| if closed_form(&s, t) < closed_form(&s, a) { t } else { a });
-        let (_, vm) = newton_max(|t| s.cos2_derivatives(t), -1.0, worst, worst - 0.02, worst + 0.02).expect("convex near the dip");
+        let (_, vm) = crate::numeric::newton_max(|t| s.cos2_derivatives(t), -1.0, worst, worst - 0.02, worst + 0.02).expect("convex near the dip");
         assert!(-vm <= closed_form(&s, worst));
     }
 }

@@ -1,11 +1,11 @@
 //! Reports of a design search: the replayable design, its summary, traces, history and plots.
 
 use super::{LASER_SAFETY, num, svg, trace_csv, write_file};
+use crate::design::score::Replay;
 use crate::design::search::{COUNT_GAIN_THRESHOLD, Candidate, Confidence, DesignResult, STARTS_THAT_MUST_AGREE};
 use crate::design::{Objective, fluence_jcm2};
 use crate::error::Result;
 use crate::field::FieldModel;
-use crate::simulate::{Simulation, simulate};
 use serde_json::{Value, json};
 use std::path::Path;
 
@@ -176,22 +176,10 @@ pub fn convergence_plot(obj: &Objective, r: &DesignResult) -> svg::LinePlot {
     plot
 }
 
-/// Replay the design and the baseline through `simulate`, then write design.json, summary.json,
-/// trace.csv, design.svg, history.csv and convergence.svg into `dir`. Returns the summary.
-pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Value> {
-    let mut scenario = obj.scenario_for(&r.best.field);
-    scenario.goal = Some(obj.goal);
-    // Put the time of the optimum on the output grid so the trace shows the reported value.
-    if let Some(t) = r.best.full.t_ps {
-        let step = scenario.window.step_fs / 1000.0;
-        let k = ((t - scenario.window.start_ps) / step).ceil();
-        scenario.window.start_ps = t - k * step;
-    }
-    let sim: Simulation = simulate(&scenario)?;
-    let mut base_scenario = scenario.clone();
-    base_scenario.field = r.baseline.field.clone();
-    base_scenario.goal = None;
-    let base: Simulation = simulate(&base_scenario)?;
+/// Write design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg of the design
+/// `r` into `dir`, with the traces of its replay (see `design::score::replay`). Returns the summary.
+pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Path) -> Result<Value> {
+    let (scenario, sim, base) = (&replay.scenario, &replay.design, &replay.baseline);
     let mut summary = design_summary(obj, r);
     summary["replay_score"] = match sim.goal_score {
         Some(s) => num(s.value),
@@ -210,14 +198,15 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
         .map(|(n, s)| (n, s.as_slice()))
         .collect();
     write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
-    let mut plot = super::alignment_plot(&scenario, &sim.result.trace, "Optimized pulse train");
+    let mut plot = super::alignment_plot(scenario, &sim.result.trace, "Optimized pulse train");
     plot.y_label = "alignment".into();
     let obs = obj.goal.observable;
-    let (base_series, label) = match obs {
-        crate::goal::Observable::Cos2 => (&base.result.trace.cos2, "best single pulse ⟨cos²θ⟩"),
-        crate::goal::Observable::Cos2TwoD => (&base.result.trace.cos2_2d, "best single pulse ⟨cos²θ_2D⟩"),
-        crate::goal::Observable::Cos => (&base.result.trace.cos, "best single pulse ⟨cosθ⟩"),
-        crate::goal::Observable::ThreeAxis => (&base.result.trace.three_axis, "single pulse, three-axis"),
+    let base_series = crate::design::score::series(obs, &base.result.trace).to_vec();
+    let label = match obs {
+        crate::goal::Observable::Cos2 => "best single pulse ⟨cos²θ⟩",
+        crate::goal::Observable::Cos2TwoD => "best single pulse ⟨cos²θ_2D⟩",
+        crate::goal::Observable::Cos => "best single pulse ⟨cosθ⟩",
+        crate::goal::Observable::ThreeAxis => "single pulse, three-axis",
     };
     if obs == crate::goal::Observable::ThreeAxis {
         plot.series.push(svg::Series {
@@ -232,7 +221,7 @@ pub fn write_design(obj: &Objective, r: &DesignResult, dir: &Path) -> Result<Val
     plot.series.push(svg::Series {
         label: label.into(),
         x: base.result.trace.times_ps.clone(),
-        y: base_series.clone(),
+        y: base_series,
         color: svg::NEUTRAL.into(),
         dashed: true,
         width: 1.2,

@@ -48,7 +48,7 @@ impl Solver {
     /// True if `field` can run through [`Solver::kick_batch`]: a linear molecule, the kick method, laser
     /// pulses only (no static, two-colour or terahertz field), all polarized along Z, and at least one pulse.
     pub fn batchable(&self, field: &FieldModel) -> bool {
-        self.top.is_none()
+        self.ensemble().is_some()
             && self.settings.method == Method::Kick
             && !self.settings.both_parities
             && !field.is_polar()
@@ -125,7 +125,8 @@ impl Solver {
             .collect();
         let j_limit = self.molecule.max_physical_j();
         // Field-free phases between kicks by J, per train and step (the same for every block).
-        let j_count = (self.ensemble.j_max + 2 * extra as u32 + 2).min(j_limit) as usize + 1;
+        let ensemble = self.linear();
+        let j_count = (ensemble.j_max + 2 * extra as u32 + 2).min(j_limit) as usize + 1;
         let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.molecule.energy_cm(j))).collect();
         // Per train and step: cos and sin of −ω_J dt, stored as [even J | odd J] so that a block's
         // levels (one parity, consecutive) are one contiguous run.
@@ -144,8 +145,7 @@ impl Solver {
                     .collect()
             })
             .collect();
-        let per_block: Vec<Vec<Option<BlockSums>>> = self
-            .ensemble
+        let per_block: Vec<Vec<Option<BlockSums>>> = ensemble
             .blocks
             .par_iter()
             .map(|bp| {
@@ -162,7 +162,7 @@ impl Solver {
             (0..fields.len())
                 .map(|t| {
                     let mut sums = LevelSums::new(omega.clone(), kicks[t][steps - 1].0, with_2d);
-                    for (bp, b) in self.ensemble.blocks.iter().zip(&per_block) {
+                    for (bp, b) in ensemble.blocks.iter().zip(&per_block) {
                         sums.add(if bp.m > 0 { 2.0 } else { 1.0 }, b[t].as_ref()?);
                     }
                     Some(sums)

@@ -7,9 +7,9 @@ use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::goal::{Observable, Score};
-use crate::molecule::Molecule;
 use crate::molecule::top::BodyAxis;
-use crate::observe::{BlockSums, DenseSums, FreeSums, LevelSums, Trace, score_goal};
+use crate::molecule::{Molecule, RotorKind};
+use crate::observe::{BlockSums, DenseSums, FreeSums, LevelSums, Trace};
 use crate::optics::focal::FocalAverage;
 use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
 use crate::propagate::{BlockOps, BlockState, FreePhases};
@@ -160,19 +160,29 @@ type OpsKey = (u32, u32, usize, bool);
 pub struct Solver {
     /// The molecule.
     pub molecule: Molecule,
-    /// The initial thermal ensemble.
-    pub ensemble: ThermalEnsemble,
+    /// What is propagated: a linear molecule's ensemble, a top, or a top's figure axis.
+    rotor: Rotor,
     /// Numerical settings.
     pub settings: SolverSettings,
     cache: Mutex<HashMap<OpsKey, Arc<BlockOps>>>,
     /// Operators of the both-parity blocks, keyed by (|M|, size), built once.
     polar_cache: Mutex<HashMap<(u32, usize), Arc<PolarOps>>>,
-    /// The solver for symmetric and asymmetric tops (None for linear molecules, whose ensemble is `ensemble`).
-    pub top: Option<top::TopSolver>,
     /// The all-M solver for fields not symmetric about Z, built on first use.
     lab: std::sync::OnceLock<lab_frame::LabSolver>,
     /// Blocks started and finished by this solver's runs (for a progress display).
     pub progress: Arc<RunProgress>,
+}
+
+/// What a [`Solver`] propagates.
+enum Rotor {
+    /// A linear molecule: its thermal ensemble in (|M|, parity of J) blocks.
+    Linear(ThermalEnsemble),
+    /// A symmetric or asymmetric top: its own ensemble, operators and kernels.
+    Top(Box<top::TopSolver>),
+    /// The figure axis of a symmetric top seen as a linear rotor (B, α∥, α⊥ and the dipole of that
+    /// axis; thermal levels up to `j_max`): the schedule of the top's runs in orienting fields, whose
+    /// (K, M) blocks come from the top itself.
+    FigureAxis { j_max: u32 },
 }
 
 /// Counts of the independent pieces of work (symmetry blocks, chunks of initial states) that runs have
@@ -228,15 +238,12 @@ impl Solver {
             check_states(top.ensemble.state_count(), settings.max_states.unwrap_or(crate::scenario::DEFAULT_MAX_STATES_TOP), temperature_k)?;
             let progress = Arc::new(RunProgress::default());
             top.progress = progress.clone();
-            let ensemble =
-                ThermalEnsemble { temperature_k, j_max: top.ensemble.j_max as u32, discarded_population: 0.0, partition_function: 0.0, blocks: vec![] };
             return Ok(Solver {
                 molecule: molecule.clone(),
-                ensemble,
+                rotor: Rotor::Top(Box::new(top)),
                 settings,
                 cache: Mutex::new(HashMap::new()),
                 polar_cache: Mutex::new(HashMap::new()),
-                top: Some(top),
                 lab: Default::default(),
                 progress,
             });
@@ -245,19 +252,48 @@ impl Solver {
         check_states(ensemble.state_count(), settings.max_states.unwrap_or(crate::scenario::DEFAULT_MAX_STATES_LINEAR), temperature_k)?;
         Ok(Solver {
             molecule: molecule.clone(),
-            ensemble,
+            rotor: Rotor::Linear(ensemble),
             settings,
             cache: Mutex::new(HashMap::new()),
             polar_cache: Mutex::new(HashMap::new()),
-            top: None,
             lab: Default::default(),
             progress: Arc::new(RunProgress::default()),
         })
     }
 
+    /// The thermal ensemble of a linear molecule (None for tops).
+    pub fn ensemble(&self) -> Option<&ThermalEnsemble> {
+        match &self.rotor {
+            Rotor::Linear(e) => Some(e),
+            _ => None,
+        }
+    }
+
+    /// The linear ensemble, on the paths that only linear molecules take (`Solver::path` sends tops elsewhere).
+    fn linear(&self) -> &ThermalEnsemble {
+        self.ensemble().expect("a linear-molecule path on a linear molecule")
+    }
+
+    /// The top solver (None for linear molecules).
+    pub fn top(&self) -> Option<&top::TopSolver> {
+        match &self.rotor {
+            Rotor::Top(t) => Some(t),
+            _ => None,
+        }
+    }
+
+    /// Highest J of the thermal ensemble.
+    fn thermal_j_max(&self) -> u32 {
+        match &self.rotor {
+            Rotor::Linear(e) => e.j_max,
+            Rotor::Top(t) => t.ensemble.j_max as u32,
+            Rotor::FigureAxis { j_max } => *j_max,
+        }
+    }
+
     /// This solver reporting its work to `progress` (shared with its top and all-M solvers).
     pub fn with_progress(mut self, progress: Arc<RunProgress>) -> Solver {
-        if let Some(t) = &mut self.top {
+        if let Rotor::Top(t) = &mut self.rotor {
             t.progress = progress.clone();
         }
         self.progress = progress;
@@ -269,18 +305,18 @@ impl Solver {
         if !field.is_symmetric_about_z() {
             return RunPath::AllM;
         }
-        match &self.top {
-            Some(t) if field.is_polar() && t.top.kind() != crate::molecule::top::TopKind::Asymmetric => RunPath::PolarTop,
-            Some(_) => RunPath::Top,
-            None if field.is_polar() || self.settings.both_parities => RunPath::Polar,
-            None => RunPath::Linear,
+        match self.molecule.kind() {
+            RotorKind::SymmetricTop if field.is_polar() => RunPath::PolarTop,
+            RotorKind::SymmetricTop | RotorKind::AsymmetricTop => RunPath::Top,
+            RotorKind::Linear if field.is_polar() || self.settings.both_parities => RunPath::Polar,
+            RotorKind::Linear => RunPath::Linear,
         }
     }
 
     /// The finite-pulse time steps a run of `field` takes on the path `run` chooses (kicks cost none):
     /// the total and the interval that needs the most, as (steps, start, end, step) in ps.
     pub fn time_steps(&self, field: &FieldModel) -> (f64, Option<(f64, f64, f64, f64)>) {
-        let spans: Vec<(f64, f64, f64)> = match (self.path(field), &self.top) {
+        let spans: Vec<(f64, f64, f64)> = match (self.path(field), self.top()) {
             (RunPath::PolarTop, Some(t)) => polar_spans(&self.figure_axis_view(t).polar_schedule(field).0),
             (RunPath::Top | RunPath::AllM, Some(t)) => finite_spans(&t.schedule(field)),
             (RunPath::Polar, _) => polar_spans(&self.polar_schedule(field).0),
@@ -342,20 +378,12 @@ impl Solver {
         let mut m = Molecule::linear(&self.molecule.name, t.top.b_cm, 0.0, t.top.alpha(fig), t.top.alpha(across), [1.0, 1.0]);
         m.dipole_debye = self.molecule.dipole_debye;
         m.ionization_energy_ev = self.molecule.ionization_energy_ev;
-        let ensemble = ThermalEnsemble {
-            temperature_k: self.ensemble.temperature_k,
-            j_max: self.ensemble.j_max,
-            discarded_population: 0.0,
-            partition_function: 0.0,
-            blocks: vec![],
-        };
         Solver {
             molecule: m,
-            ensemble,
+            rotor: Rotor::FigureAxis { j_max: t.ensemble.j_max as u32 },
             settings: self.settings,
             cache: Mutex::new(HashMap::new()),
             polar_cache: Mutex::new(HashMap::new()),
-            top: None,
             lab: Default::default(),
             progress: self.progress.clone(),
         }
@@ -363,17 +391,29 @@ impl Solver {
 
     /// Population left out of the thermal ensemble by its truncation.
     pub fn discarded_population(&self) -> f64 {
-        self.top.as_ref().map(|t| t.ensemble.discarded_population).unwrap_or(self.ensemble.discarded_population)
+        match &self.rotor {
+            Rotor::Linear(e) => e.discarded_population,
+            Rotor::Top(t) => t.ensemble.discarded_population,
+            Rotor::FigureAxis { .. } => 0.0,
+        }
     }
 
     /// Rotational partition function of the thermal ensemble, summed to convergence.
     pub fn partition_function(&self) -> f64 {
-        self.top.as_ref().map(|t| t.ensemble.partition_function).unwrap_or(self.ensemble.partition_function)
+        match &self.rotor {
+            Rotor::Linear(e) => e.partition_function,
+            Rotor::Top(t) => t.ensemble.partition_function,
+            Rotor::FigureAxis { .. } => 0.0,
+        }
     }
 
     /// Number of initially populated sublevels.
     pub fn initial_states(&self) -> usize {
-        self.top.as_ref().map(|t| t.ensemble.state_count()).unwrap_or_else(|| self.ensemble.state_count())
+        match &self.rotor {
+            Rotor::Linear(e) => e.state_count(),
+            Rotor::Top(t) => t.ensemble.state_count(),
+            Rotor::FigureAxis { .. } => 0,
+        }
     }
 
     /// Operators of a block, built once and cached.
@@ -389,7 +429,7 @@ impl Solver {
 
     /// Highest J the basis may need to start with (thermal top plus room for the kicks).
     fn reference_j(&self, field: &FieldModel) -> u32 {
-        self.ensemble.j_max + 2 * self.extra_levels(field) as u32
+        self.thermal_j_max() + 2 * self.extra_levels(field) as u32
     }
 
     /// How far (in J) a pulse can push the rotor: its kick strength P for a short pulse, but for a long
@@ -423,7 +463,7 @@ impl Solver {
     /// Refuse fields whose total kick strength no basis up to `MAX_BASIS_J` could hold.
     fn check_strength(&self, field: &FieldModel) -> Result<()> {
         let total = self.total_strength(field);
-        let room = self.molecule.max_physical_j().saturating_sub(self.ensemble.j_max) as f64;
+        let room = self.molecule.max_physical_j().saturating_sub(self.thermal_j_max()) as f64;
         if !total.is_finite() || total > room {
             return Err(Error::input(
                 "pulses",
@@ -488,7 +528,7 @@ impl Solver {
                 "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses; expected polarization along Z (angle_deg 0, ellipticity 0)",
             ));
         }
-        let (events, reach) = match &self.top {
+        let (events, reach) = match self.top() {
             // Every M of every J is in one basis (cost ∝ J³): start tighter than the M-conserving path
             // (1.2 P + 8 instead of 1.35 P + 10); the edge check grows the basis where a chunk needs more.
             // Measured: P + 6 made a third of the chunks of a 1 ps, P = 11.6 pulse start again.
@@ -502,9 +542,9 @@ impl Solver {
             }
         };
         let lab = self.lab.get_or_init(|| {
-            let rotor = match &self.top {
+            let rotor = match self.top() {
                 Some(t) => lab_frame::LabRotor::from_top(t),
-                None => lab_frame::LabRotor::from_linear(&self.molecule, &self.ensemble),
+                None => lab_frame::LabRotor::from_linear(&self.molecule, self.linear()),
             };
             let mut lab = lab_frame::LabSolver::new(rotor, self.settings);
             lab.progress = self.progress.clone();
@@ -523,7 +563,7 @@ impl Solver {
                 lab_axes.push((format!("cos2_{lab_name}{name}"), run.values[f][pos].clone()));
             }
         }
-        let (align_pos, second_pos) = match &self.top {
+        let (align_pos, second_pos) = match self.top() {
             Some(t) => (frame.position(t.top.alignment_axis), Some(frame.position(t.top.second_axis()))),
             None => (0, None),
         };
@@ -562,14 +602,14 @@ impl Solver {
     /// break the parity of J compute only ⟨cos²θ⟩ and the goal's observable at the samples (the other
     /// series of the trace stay empty), which is what a search needs.
     pub fn run_for_goal(&self, field: &FieldModel, times_ps: &[f64], observable: Observable) -> Result<RunResult> {
-        let with_2d = observable == Observable::Cos2TwoD;
+        let with_2d = observable.needs_cos2_2d();
         let parity_breaking = field.is_polar() || self.settings.both_parities;
         if !parity_breaking || !field.is_symmetric_about_z() || times_ps.windows(2).any(|w| w[1] < w[0]) {
             return self.run(field, times_ps, with_2d);
         }
         let wanted = [true, with_2d, observable == Observable::Cos, false];
-        match &self.top {
-            Some(t) if t.top.kind() != crate::molecule::top::TopKind::Asymmetric => self.figure_axis_view(t).run_polar_top(t, field, times_ps, wanted),
+        match self.top() {
+            Some(t) if self.molecule.kind() == RotorKind::SymmetricTop => self.figure_axis_view(t).run_polar_top(t, field, times_ps, wanted),
             Some(t) => t.run(field, times_ps, with_2d),
             None => self.run_polar(field, times_ps, wanted),
         }
@@ -582,7 +622,7 @@ impl Solver {
             return Err(Error::input("window", "sample times must be ascending"));
         }
         self.check_time_steps(field)?;
-        match (self.path(field), &self.top) {
+        match (self.path(field), self.top()) {
             (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
             (RunPath::PolarTop, Some(t)) => return self.figure_axis_view(t).run_polar_top(t, field, times_ps, ALL_POLAR),
             (RunPath::Top, Some(t)) => return t.run(field, times_ps, with_2d),
@@ -593,7 +633,7 @@ impl Solver {
         let events = self.schedule(field);
         let extra = self.extra_levels(field);
         // Field-free phases before each event are the same for every block: tabulate them once by J.
-        let j_table = (self.ensemble.j_max + 2 * extra as u32 + 16).min(self.molecule.max_physical_j()) as usize;
+        let j_table = (self.thermal_j_max() + 2 * extra as u32 + 16).min(self.molecule.max_physical_j()) as usize;
         let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
         let mut t_prev = t_first;
         let tables: Vec<Vec<(f64, f64)>> = events
@@ -610,8 +650,9 @@ impl Solver {
             })
             .collect();
         let outcomes: Vec<BlockOutcome> = {
-            self.progress.plan(self.ensemble.blocks.len());
-            self.ensemble
+            let ensemble = self.linear();
+            self.progress.plan(ensemble.blocks.len());
+            ensemble
                 .blocks
                 .par_iter()
                 .map(|bp| {
@@ -886,7 +927,7 @@ impl Solver {
         }
         let mut r = out.expect("at least two quadrature points");
         // The three-axis goal of the average is the smaller of the two averaged values (not a mean of minima).
-        if let Some(t) = &self.top {
+        if let Some(t) = self.top() {
             r.trace.three_axis = three_axis_of_averages(&t.top, &r.trace);
         }
         r.permanent_cos2 = perm;
@@ -1071,7 +1112,7 @@ impl Solver {
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
         let extra = self.polar_extra(field, &items);
-        let pops = self.ensemble.merged_by_m();
+        let pops = self.linear().merged_by_m();
         let outcomes: Vec<PolarOutcome> = {
             self.progress.plan(pops.len());
             pops.par_iter()
@@ -1326,7 +1367,8 @@ pub struct Simulation {
     pub partition_function: f64,
     /// Initially populated |J M⟩ sublevels.
     pub initial_states: usize,
-    /// The scenario's goal scored on this run (None without a goal); on the focal average when one is set.
+    /// The scenario's goal scored on this run, on the focal average when one is set; filled by
+    /// `design::score::simulate_scored` (None from [`simulate`], which runs the physics only).
     pub goal_score: Option<Score>,
     /// The run averaged over the focal volume (None without `focal_average`).
     pub averaged: Option<RunResult>,
@@ -1341,8 +1383,16 @@ pub fn simulate(scenario: &Scenario) -> Result<Simulation> {
 
 /// [`simulate`], counting the blocks of its runs in `progress` as they finish (for a progress bar).
 pub fn simulate_with_progress(scenario: &Scenario, progress: Arc<RunProgress>) -> Result<Simulation> {
-    scenario.validate()?;
     let t0 = std::time::Instant::now();
+    let solver = solver_for(scenario, progress)?;
+    let sim = simulate_with(scenario, &solver)?;
+    Ok(Simulation { run_time_s: t0.elapsed().as_secs_f64(), ..sim })
+}
+
+/// The solver of a validated `scenario` (its thermal ensemble built, its trace's memory checked),
+/// reporting its work to `progress`.
+pub fn solver_for(scenario: &Scenario, progress: Arc<RunProgress>) -> Result<Solver> {
+    scenario.validate()?;
     // The trace (up to 16 columns, twice with a focal average) and its CSV text, before any work.
     let samples = ((scenario.window.stop_ps - scenario.window.start_ps) * 1000.0 / scenario.window.step_fs).floor() as usize + 1;
     crate::resources::check_memory(
@@ -1350,30 +1400,22 @@ pub fn simulate_with_progress(scenario: &Scenario, progress: Arc<RunProgress>) -
         "window.step_fs",
         &format!("a trace of {samples} samples"),
     )?;
-    let solver = Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?.with_progress(progress);
+    Ok(Solver::new(&scenario.molecule, scenario.temperature_k, scenario.solver)?.with_progress(progress))
+}
+
+/// Run `scenario` on `solver` (made by [`solver_for`]): the trace over the window and, with a focal
+/// average, the averaged trace. The goal is not scored here (see `design::score::simulate_scored`).
+pub fn simulate_with(scenario: &Scenario, solver: &Solver) -> Result<Simulation> {
+    let t0 = std::time::Instant::now();
     let times = scenario.window.times_ps();
     let result = solver.run(&scenario.field, &times, true)?;
     let averaged = match &scenario.focal_average {
         None => None,
         Some(avg) => Some(solver.run_focal(&scenario.field, &times, true, avg)?),
     };
-    let goal_score = match &scenario.goal {
-        None => None,
-        Some(goal) => {
-            // Scored exactly as the designer scores it: the goal's own sample grid and refinement.
-            let t_last = scenario.last_pulse_center_ps();
-            let goal_times = goal.times(t_last);
-            let with_2d = matches!(goal.observable, Observable::Cos2TwoD | Observable::Cos);
-            let run = match &scenario.focal_average {
-                None => solver.run(&scenario.field, &goal_times, with_2d)?,
-                Some(avg) => solver.run_focal(&scenario.field, &goal_times, with_2d, avg)?,
-            };
-            Some(score_goal(goal, &run.trace, &run.final_sums, t_last))
-        }
-    };
     Ok(Simulation {
         averaged,
-        goal_score,
+        goal_score: None,
         scenario: scenario.clone(),
         result,
         discarded_population: solver.discarded_population(),

@@ -1,0 +1,210 @@
+//! The command line: commands, options and their help texts (clap).
+
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+
+#[derive(Parser)]
+#[command(
+    name = "kicktrain",
+    version,
+    about = "Design and simulate laser pulse trains that align gas-phase molecules.",
+    after_help = "Examples:\n  kicktrain molecules\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n  kicktrain design --out best\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20\n\n\
+Exit codes: 0 done; 1 numerical limit (the run could not reach its accuracy); 2 bad input (one line naming the field);\n\
+3 output could not be read or written; 4 stopped by SIGINT/SIGTERM, result so far written and marked partial\n\
+(design, scan, tolerance); 130 stopped before anything could be written. --out folders appear whole or not at all.\n\n\
+Lasers that align molecules are class 4: follow your laser safety officer and IEC 60825-1 / ANSI Z136.1."
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+    /// Go on with runs whose estimated number of finite-pulse time steps exceeds solver.max_steps.
+    #[arg(long, global = true)]
+    pub allow_long: bool,
+}
+
+#[derive(Subcommand)]
+pub enum Command {
+    /// List the built-in molecules with their constants and sources.
+    #[command(after_help = "Example:\n  kicktrain molecules\n  kicktrain molecules --json > molecules.json")]
+    Molecules {
+        /// Print the table as JSON (with every source).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Search pulse timings and intensities for the best field-free alignment under the ceilings.
+    #[command(after_help = "Examples:\n  kicktrain design                      # built-in example (two pulses, N2 at 300 K)\n  \
+kicktrain design objectives/two-pulse-room-temperature.json --out best\n  \
+kicktrain simulate best/design.json --out check   # replays the design\n\n\
+--out DIR writes design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg.\n\
+The search runs independent starts until three agree (see summary.json search.confidence) and warns when\n\
+they do not; --effort thorough searches harder, --time-limit S bounds the time.\n\
+Ctrl-C or SIGTERM stops the search and still reports (and writes) the best design found so far, exit code 4;\n\
+a second signal quits at once (exit 130) and writes nothing.")]
+    Design {
+        /// Objective file (JSON); the built-in two-pulse example when omitted.
+        objective: Option<PathBuf>,
+        /// Output folder.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Seed for the search (overrides the file's search.seed).
+        #[arg(long)]
+        seed: Option<u64>,
+        /// Effort: quick, normal or thorough (overrides the file's search.effort).
+        #[arg(long)]
+        effort: Option<String>,
+        /// No new independent start after this many seconds (overrides search.time_limit_s).
+        #[arg(long, value_name = "S")]
+        time_limit: Option<f64>,
+        /// No progress bar.
+        #[arg(long)]
+        quiet: bool,
+        /// Print the summary as JSON to standard output.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Field-dressed (pendular) states in a constant laser intensity and static field: the adiabatic limit.
+    #[command(allow_negative_numbers = true)]
+    #[command(after_help = "Example:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n\n\
+Energies exclude the isotropic shift −¼α⊥E0², common to all states.")]
+    Pendular {
+        /// Library molecule name.
+        molecule: String,
+        /// Cycle-averaged laser intensity, W/cm².
+        #[arg(long, default_value_t = 0.0)]
+        intensity_wcm2: f64,
+        /// Static field along the laser polarization, kV/cm.
+        #[arg(long, default_value_t = 0.0)]
+        static_kv_cm: f64,
+        /// Temperature for the thermal adiabatic averages, K.
+        #[arg(long, default_value_t = 1.0)]
+        temperature_k: f64,
+        /// List states connecting to field-free J up to this value.
+        #[arg(long, default_value_t = 3)]
+        j_max: u32,
+        /// Print JSON instead of a table.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Convert pulse energy, duration and focusing to peak power, waist, Rayleigh range and intensity.
+    #[command(allow_negative_numbers = true)]
+    #[command(after_help = "Examples:\n  kicktrain focus --energy-mj 2 --fwhm-fs 40 --waist-um 30\n  \
+kicktrain focus --energy-mj 2 --fwhm-fs 40 --beam-radius-mm 5 --wavelength-nm 800 --focal-length-mm 300 --m2 1.2\n\n\
+Gaussian beam: I0 = 2P/(πw0²), w0 = M²λf/(πw_in); peak power from the envelope area (0.9394 E/τ for Gaussian pulses).")]
+    Focus {
+        /// Pulse energy, mJ.
+        #[arg(long)]
+        energy_mj: f64,
+        /// Intensity FWHM, fs.
+        #[arg(long)]
+        fwhm_fs: f64,
+        /// Temporal shape: gaussian, sech2 or flat_top.
+        #[arg(long, default_value = "gaussian")]
+        shape: String,
+        /// 1/e² intensity radius at the focus, µm.
+        #[arg(long)]
+        waist_um: Option<f64>,
+        /// 1/e² intensity radius of the collimated beam on the lens, mm.
+        #[arg(long)]
+        beam_radius_mm: Option<f64>,
+        /// Wavelength, nm.
+        #[arg(long)]
+        wavelength_nm: Option<f64>,
+        /// Focal length, mm.
+        #[arg(long)]
+        focal_length_mm: Option<f64>,
+        /// Beam quality factor M².
+        #[arg(long, default_value_t = 1.0)]
+        m2: f64,
+        /// Compare the intensity with this library molecule's ionization estimate (default: every library molecule).
+        #[arg(long)]
+        molecule: Option<String>,
+        /// Print the results as JSON (keys carry their units).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Scan one or two numeric fields of a scenario (for example delay × intensity), in parallel.
+    #[command(allow_negative_numbers = true)]
+    #[command(
+        after_help = "Examples:\n  kicktrain scan examples/scenarios/nitrogen-one-pulse.json --x pulses[0].peak_intensity_wcm2 --from 1e13 --to 8e13 --steps 15 --out scan1\n  \
+kicktrain scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 --y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --out scan2\n\n\
+Reports the scenario's goal if it has one, else the peak ⟨cos²θ⟩ after the last pulse. Writes scan.csv and scan.svg (a line or a heatmap).\n\n\
+Cost: every point is a whole run with the scenario's solver. With the default solver a 40 × 40 two-pulse scan of N2 at 300 K\n\
+takes about a minute on two cores; with \"solver\": {\"method\": \"kick\"} (each pulse replaced by its impulsive kick) under a\n\
+second. Use the kick model for first looks when every pulse is much shorter than the rotational period (about 100 fs or less\n\
+for N2, whose period is 8.4 ps), then check the interesting region with the default solver."
+    )]
+    Scan {
+        /// Scenario file (JSON).
+        scenario: PathBuf,
+        /// Path of the first scanned field, e.g. pulses[1].center_ps.
+        #[arg(long)]
+        x: String,
+        /// First value of x.
+        #[arg(long)]
+        from: f64,
+        /// Last value of x.
+        #[arg(long)]
+        to: f64,
+        /// Number of x values.
+        #[arg(long, default_value_t = 21)]
+        steps: usize,
+        /// Path of the second scanned field (2D scan).
+        #[arg(long)]
+        y: Option<String>,
+        /// First value of y.
+        #[arg(long)]
+        y_from: Option<f64>,
+        /// Last value of y.
+        #[arg(long)]
+        y_to: Option<f64>,
+        /// Number of y values.
+        #[arg(long, default_value_t = 21)]
+        y_steps: usize,
+        /// Output folder for scan.csv and scan.svg.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// No progress bar.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Monte Carlo tolerance of a design (a scenario with a goal) to timing jitter and energy or phase noise.
+    #[command(allow_negative_numbers = true)]
+    #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
+Jitter moves every pulse after the first; the probe stays at the nominal times. Writes tolerance.csv and tolerance.svg.")]
+    Tolerance {
+        /// Scenario with a goal (e.g. a design.json).
+        scenario: PathBuf,
+        /// RMS timing jitter of each pulse after the first, fs.
+        #[arg(long, default_value_t = 0.0)]
+        jitter_fs: f64,
+        /// RMS pulse-energy noise, percent.
+        #[arg(long, default_value_t = 0.0)]
+        energy_noise_percent: f64,
+        /// RMS two-colour phase noise, rad.
+        #[arg(long, default_value_t = 0.0)]
+        phase_noise_rad: f64,
+        /// Number of Monte Carlo samples.
+        #[arg(long, default_value_t = 200)]
+        samples: usize,
+        /// Seed of the random draws.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Output folder for tolerance.csv and tolerance.svg.
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
+    /// Simulate one scenario file: alignment trace, summary and plot.
+    #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
+The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
+--out DIR writes summary.json, trace.csv (t_ps,cos2,cos2_2d, plus cos,cos3 with orienting fields) and alignment.svg.")]
+    Simulate {
+        /// Scenario file (JSON).
+        scenario: PathBuf,
+        /// Output folder for summary.json, trace.csv and alignment.svg.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Also print the summary as JSON to standard output.
+        #[arg(long)]
+        json: bool,
+    },
+}

@@ -1,0 +1,319 @@
+//! What each command does: read the input, call the library, show progress, print what `report`
+//! formats and write the files it returns.
+
+use super::signals::{Finish, GRACEFUL, STOP};
+use kicktrain::design::Objective;
+use kicktrain::design::score::{replay, simulate_scored};
+use kicktrain::design::search::{Monitor, design};
+use kicktrain::error::Error;
+use kicktrain::input::read_text_file;
+use kicktrain::report;
+use kicktrain::report::output::OutputDir;
+use kicktrain::scenario::Scenario;
+use std::path::Path;
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+
+/// Set from --allow-long: lift every scenario's solver.max_steps.
+pub static ALLOW_LONG: AtomicBool = AtomicBool::new(false);
+
+/// Read a scenario file; --allow-long lifts its step limit.
+pub fn read_scenario(path: &Path) -> Result<Scenario, Error> {
+    let text = read_text_file(path)?;
+    let mut scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
+    if ALLOW_LONG.load(Ordering::SeqCst) {
+        scenario.solver.max_steps = f64::INFINITY;
+        scenario.solver.max_states = Some(f64::INFINITY);
+    }
+    Ok(scenario)
+}
+
+/// Prepare the output folder before any work, so that an output that cannot be written fails at once.
+fn prepare_out(out: Option<&Path>, command: &str) -> Result<Option<OutputDir>, Error> {
+    out.map(|d| OutputDir::prepare(d, command)).transpose()
+}
+
+/// `kicktrain molecules`: the built-in library as a table or JSON.
+pub fn molecules(json: bool) -> Result<(), Error> {
+    if json {
+        println!("{}", serde_json::to_string_pretty(&report::text::molecules_json()).expect("json"));
+    } else {
+        print!("{}", report::text::molecules_table());
+    }
+    Ok(())
+}
+
+/// `kicktrain simulate`: one scenario, with a progress bar on a terminal.
+pub fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), Error> {
+    let scenario = read_scenario(path)?;
+    let staged = prepare_out(out, "simulate")?;
+    // On a terminal, a bar of the symmetry blocks (or chunks of initial states) finished; the total grows
+    // as the runs of the command (trace, focal average, goal) plan their blocks.
+    let progress = std::sync::Arc::new(kicktrain::simulate::RunProgress::default());
+    let sim = if std::io::IsTerminal::is_terminal(&std::io::stderr()) && !json {
+        let bar = indicatif::ProgressBar::new(0);
+        bar.set_style(
+            indicatif::ProgressStyle::with_template("simulating {msg} [{bar:30}] {pos}/{len} blocks ({elapsed}, ETA {eta})")
+                .expect("template")
+                .progress_chars("=> "),
+        );
+        bar.set_message(format!("{} at {} K", scenario.molecule.name, scenario.temperature_k));
+        std::thread::scope(|scope| {
+            let run = scope.spawn(|| simulate_scored(&scenario, progress.clone()));
+            while !run.is_finished() {
+                let (done, planned) = progress.counts();
+                bar.set_length(planned);
+                bar.set_position(done);
+                std::thread::sleep(std::time::Duration::from_millis(100));
+            }
+            bar.finish_and_clear();
+            run.join().unwrap_or_else(|_| Err(Error::Numerical("the simulation thread failed".into())))
+        })
+    } else {
+        simulate_scored(&scenario, progress)
+    };
+    let sim = sim?;
+    let summary = match staged {
+        Some(o) => {
+            let summary = report::write_simulation(&sim, o.path())?;
+            o.commit()?;
+            summary
+        }
+        None => report::simulation_summary(&sim),
+    };
+    if json {
+        println!("{}", serde_json::to_string_pretty(&summary).expect("json"));
+    } else {
+        print!("{}", report::text::simulation_text(&summary));
+        if let Some(dir) = out {
+            println!("wrote {}/summary.json, trace.csv, alignment.svg", dir.display());
+        }
+    }
+    Ok(())
+}
+
+/// The objective `kicktrain design` runs when no file is given.
+const DEFAULT_OBJECTIVE: &str = include_str!("../../objectives/two-pulse-room-temperature.json");
+
+/// Progress bar and Ctrl-C flag for a design search.
+struct Progress {
+    bar: indicatif::ProgressBar,
+    stop: &'static AtomicBool,
+    stage_start: AtomicUsize,
+}
+
+impl Monitor for Progress {
+    fn stage(&self, name: &str, planned: usize) {
+        self.stage_start.store(usize::MAX, Ordering::Relaxed);
+        self.bar.set_length(planned.max(1) as u64);
+        self.bar.set_position(0);
+        self.bar.reset_eta();
+        self.bar.set_prefix(name.to_string());
+    }
+    fn evaluated(&self, evaluations: usize, best: Option<f64>) {
+        let start = self.stage_start.load(Ordering::Relaxed);
+        let start = if start == usize::MAX {
+            self.stage_start.store(evaluations - 1, Ordering::Relaxed);
+            evaluations - 1
+        } else {
+            start
+        };
+        let done = (evaluations - start) as u64;
+        if done > self.bar.length().unwrap_or(0) {
+            self.bar.set_length(done);
+        }
+        self.bar.set_position(done);
+        if let Some(b) = best {
+            self.bar.set_message(format!("best {b:.5} | {evaluations} evaluations"));
+        }
+    }
+    fn interrupted(&self) -> bool {
+        self.stop.load(Ordering::Relaxed)
+    }
+}
+
+/// `kicktrain design`: the search with a progress bar; a signal stops it with the best design so far.
+pub fn run_design(
+    path: Option<&Path>,
+    out: Option<&Path>,
+    seed: Option<u64>,
+    effort: Option<&str>,
+    time_limit: Option<f64>,
+    quiet: bool,
+    json: bool,
+) -> Result<Finish, Error> {
+    let (text, name) = match path {
+        Some(p) => (read_text_file(p)?, p.display().to_string()),
+        None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
+    };
+    let mut obj = Objective::from_json_str(&text, &name)?;
+    if let Some(s) = seed {
+        obj.search.seed = s;
+    }
+    if let Some(e) = effort {
+        obj.search.effort =
+            kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
+    }
+    if let Some(t) = time_limit {
+        if !(t > 0.0 && t <= 1e7) {
+            return Err(Error::input("--time-limit", format!("expected a time above 0 and at most 1e7 s, got {t}")));
+        }
+        obj.search.time_limit_s = Some(t);
+    }
+    let staged = prepare_out(out, "design")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
+    let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(1) };
+    bar.set_style(indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})").expect("template").progress_chars("=> "));
+    if !quiet {
+        eprintln!("designing: {} ({} pulse(s){}, seed {})", name, obj.space.pulses.len(), if obj.variable_count { " at most" } else { "" }, obj.search.seed);
+    }
+    let monitor = Progress { bar, stop: &STOP, stage_start: AtomicUsize::new(usize::MAX) };
+    let result = design(&obj, &monitor)?;
+    monitor.bar.finish_and_clear();
+    let summary = match staged {
+        Some(o) => {
+            let summary = report::design::write_design(&obj, &result, &replay(&obj, &result)?, o.path())?;
+            o.commit()?;
+            summary
+        }
+        None => report::design::design_summary(&obj, &result),
+    };
+    if json {
+        println!("{}", serde_json::to_string_pretty(&summary).expect("json"));
+    } else {
+        print!("{}", report::text::design_text(&summary));
+        if let Some(dir) = out {
+            println!("wrote {}/design.json, summary.json, trace.csv, design.svg, history.csv, convergence.svg", dir.display());
+            println!("replay: kicktrain simulate {}/design.json", dir.display());
+        }
+    }
+    Ok(if result.interrupted { Finish::Partial } else { Finish::Done })
+}
+
+/// `kicktrain pendular`: dressed states of a linear molecule in constant fields.
+pub fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32, json: bool) -> Result<(), Error> {
+    let mol = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
+    if !temperature_k.is_finite() || !(0.0..=5000.0).contains(&temperature_k) {
+        return Err(Error::input("temperature_k", format!("expected 0 to 5000 K, got {temperature_k}")));
+    }
+    if j_max > 40 {
+        return Err(Error::input("j_max", format!("expected at most 40 for a listing, got {j_max}")));
+    }
+    let r = kicktrain::pendular::pendular(&mol, intensity, static_kv_cm, temperature_k, j_max)?;
+    if json {
+        println!("{}", serde_json::to_string_pretty(&report::text::pendular_json(&mol.name, intensity, static_kv_cm, temperature_k, &r)).expect("json"));
+    } else {
+        print!("{}", report::text::pendular_text(&mol.name, intensity, static_kv_cm, temperature_k, j_max, &r));
+    }
+    Ok(())
+}
+
+/// `kicktrain focus`: peak intensity and fluence from pulse energy and focusing.
+pub fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str, molecule: Option<&str>, json: bool) -> Result<(), Error> {
+    let r = kicktrain::optics::focus_report(&focus, fwhm_fs, shape, molecule)?;
+    if json {
+        println!("{}", serde_json::to_string_pretty(&report::text::focus_json(&r)).expect("json"));
+    } else {
+        print!("{}", report::text::focus_text(&r));
+    }
+    Ok(())
+}
+
+/// `kicktrain scan`: a 1D or 2D grid over scenario fields.
+#[allow(clippy::too_many_arguments)]
+pub fn run_scan(
+    path: &Path,
+    x: &str,
+    from: f64,
+    to: f64,
+    steps: usize,
+    y: Option<&str>,
+    y_from: Option<f64>,
+    y_to: Option<f64>,
+    y_steps: usize,
+    out: Option<&Path>,
+    quiet: bool,
+) -> Result<Finish, Error> {
+    use kicktrain::scan::{Axis, scan};
+    let text = read_text_file(path)?;
+    let mut base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
+    if ALLOW_LONG.load(Ordering::SeqCst)
+        && let Some(obj) = base.as_object_mut()
+    {
+        let solver = obj.entry("solver").or_insert_with(|| serde_json::json!({}));
+        if let Some(sv) = solver.as_object_mut() {
+            sv.insert("max_steps".into(), serde_json::json!(1e12));
+            sv.insert("max_states".into(), serde_json::json!(1e12));
+        }
+    }
+    let xa = Axis::linear(x, from, to, steps)?;
+    let ya = match y {
+        None => None,
+        Some(p) => {
+            let (a, b) = (
+                y_from.ok_or_else(|| Error::input("y-from", "missing; a 2D scan needs --y-from and --y-to"))?,
+                y_to.ok_or_else(|| Error::input("y-to", "missing; a 2D scan needs --y-from and --y-to"))?,
+            );
+            Some(Axis::linear(p, a, b, y_steps)?)
+        }
+    };
+    let total = steps * ya.as_ref().map(|a| a.values.len()).unwrap_or(1);
+    let staged = prepare_out(out, "scan")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
+    let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(total as u64) };
+    bar.set_style(indicatif::ProgressStyle::with_template("scan [{bar:30}] {pos}/{len} (ETA {eta})").expect("template").progress_chars("=> "));
+    let t0 = std::time::Instant::now();
+    let r = scan(&base, &xa, ya.as_ref(), &|| bar.inc(1), &STOP)?;
+    if r.finished() == 0 {
+        return Err(Error::Interrupted);
+    }
+    let partial = report::scan::scan_partial(&r);
+    bar.finish_and_clear();
+    if let Some(p) = &partial {
+        println!("{p}");
+    }
+    print!("{}", report::scan::scan_summary(&r, t0.elapsed().as_secs_f64()));
+    let outputs = || vec![("scan.csv", report::scan::scan_csv(&r)), ("scan.svg", report::scan::scan_svg(&r, partial.as_deref()))];
+    write_and_finish(staged, out, outputs, partial.as_deref().map(report::scan::scan_partial_note))
+}
+
+/// `kicktrain tolerance`: Monte Carlo over timing, energy and phase noise.
+pub fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<Finish, Error> {
+    let scenario = read_scenario(path)?;
+    let staged = prepare_out(out, "tolerance")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
+    let t0 = std::time::Instant::now();
+    let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed, &STOP)?;
+    let partial = report::scan::tolerance_partial(&r);
+    if let Some(p) = &partial {
+        println!("{p}");
+    }
+    let goal = scenario.goal.expect("checked by tolerance()");
+    print!("{}", report::scan::tolerance_summary(&goal, noise, seed, &r, t0.elapsed().as_secs_f64()));
+    let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), ("tolerance.svg", report::scan::tolerance_svg(&goal, noise, &r))];
+    write_and_finish(staged, out, outputs, partial.as_deref().map(report::scan::tolerance_partial_note))
+}
+
+/// The end of a scan or tolerance run: write the `outputs` (name, contents) into the prepared folder, then
+/// PARTIAL.txt holding `partial_note` when the run was stopped; commit it and say so; print the laser-safety caution.
+fn write_and_finish(
+    staged: Option<OutputDir>,
+    out: Option<&Path>,
+    outputs: impl FnOnce() -> Vec<(&'static str, String)>,
+    partial_note: Option<String>,
+) -> Result<Finish, Error> {
+    if let Some(o) = staged {
+        let files = outputs();
+        for (name, contents) in &files {
+            report::write_file(o.path(), name, contents)?;
+        }
+        if let Some(note) = &partial_note {
+            report::write_file(o.path(), "PARTIAL.txt", note)?;
+        }
+        o.commit()?;
+        let names: Vec<&str> = files.iter().map(|(name, _)| *name).collect();
+        let partial_file = if partial_note.is_some() { ", PARTIAL.txt" } else { "" };
+        println!("wrote {}/{}{partial_file}", out.map(|d| d.display().to_string()).unwrap_or_default(), names.join(", "));
+    }
+    println!("{}", report::LASER_SAFETY);
+    Ok(if partial_note.is_some() { Finish::Partial } else { Finish::Done })
+}
