@@ -199,7 +199,7 @@ fn three_axis() {
             let r = solver.run(&field, &times, with_2d).unwrap();
             let secs = t0.elapsed().as_secs_f64();
             let tm = solver.lab_timing().unwrap_or_default();
-            let col = |n: &str| r.trace.lab_axes.iter().find(|c| c.0 == n).map(|c| c.1.iter().cloned().fold(0.0, f64::max)).unwrap_or(f64::NAN);
+            let col = |n: &str| r.trace.lab_axes.iter().find(|c| c.name == n).map(|c| c.values.iter().cloned().fold(0.0, f64::max)).unwrap_or(f64::NAN);
             let j = r.blocks.iter().map(|b| b.j_max).max().unwrap_or(0);
             let size = r.blocks.iter().map(|b| b.size).max().unwrap_or(0);
             println!(

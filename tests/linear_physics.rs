@@ -188,7 +188,7 @@ fn odd_weight_zero_never_populates_odd_j_and_quarter_revivals_follow_spin_statis
     let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 2e13)], static_field: None, ..Default::default() };
     let solver = Solver::new(&co2, 30.0, settings(Method::Auto)).unwrap();
     let r = solver.run(&field, &times, false).unwrap();
-    assert!(r.blocks.iter().all(|b| b.parity == "even"), "odd-J blocks appeared");
+    assert!(r.blocks.iter().all(|b| b.parity.to_string() == "even"), "odd-J blocks appeared");
     assert!(solver.ensemble().expect("linear").blocks.iter().all(|b| b.levels.iter().all(|(j, _)| j % 2 == 0)));
     let swing = |y: &[f64]| y.iter().cloned().fold(f64::MIN, f64::max) - y.iter().cloned().fold(f64::MAX, f64::min);
     let even_only = swing(&r.trace.cos2);

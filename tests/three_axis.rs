@@ -18,7 +18,7 @@ fn pulse(center_ps: f64, fwhm_fs: f64, intensity: f64, angle_deg: f64, elliptici
 }
 
 fn column<'a>(t: &'a Trace, name: &str) -> &'a [f64] {
-    &t.lab_axes.iter().find(|c| c.0 == name).unwrap_or_else(|| panic!("no column {name}")).1
+    &t.lab_axes.iter().find(|c| c.name == name).unwrap_or_else(|| panic!("no column {name}")).values
 }
 
 fn max_diff(a: &[f64], b: &[f64]) -> f64 {
@@ -95,8 +95,8 @@ fn direction_cosines_are_isotropic_without_a_field_and_sum_to_one_at_all_times()
     let top = asymmetric();
     let solver = Solver::new(&top, 0.15, SolverSettings { method: Method::Finite, ..Default::default() }).unwrap();
     let none = solver.run_lab_frame(&FieldModel::default(), &times, true).unwrap().trace;
-    for (name, series) in &none.lab_axes {
-        assert!(series.iter().all(|v| (v - 1.0 / 3.0).abs() < 1e-12), "{name} without a field");
+    for s in &none.lab_axes {
+        assert!(s.values.iter().all(|v| (v - 1.0 / 3.0).abs() < 1e-12), "{} without a field", s.name);
     }
     // Isotropic ⟨cos²θ_2D⟩ = 1/2 (exact) with the full φ-dependent operator.
     assert_eq!(none.cos2_2d.len(), times.len());
@@ -199,12 +199,12 @@ fn focal_averages_of_polarized_pulses_weight_every_column_and_take_the_goal_from
         let mut f = field.clone();
         f.pulses[0].peak_intensity_wcm2 *= u;
         let r = solver.run(&f, &times, false).unwrap().trace;
-        for (acc, (_, s)) in direct.iter_mut().zip(&r.lab_axes) {
-            acc.iter_mut().zip(s).for_each(|(a, b)| *a += w * b);
+        for (acc, s) in direct.iter_mut().zip(&r.lab_axes) {
+            acc.iter_mut().zip(&s.values).for_each(|(a, b)| *a += w * b);
         }
     }
-    for ((name, got), want) in averaged.lab_axes.iter().zip(&direct) {
-        assert!(max_diff(got, want) < 1e-12, "{name}");
+    for (got, want) in averaged.lab_axes.iter().zip(&direct) {
+        assert!(max_diff(&got.values, want) < 1e-12, "{}", got.name);
     }
     let want: Vec<f64> = column(&averaged, "cos2_Za").iter().zip(column(&averaged, "cos2_Xb")).map(|(a, b)| a.min(*b)).collect();
     assert!(max_diff(&averaged.three_axis, &want) < 1e-15);

@@ -199,5 +199,5 @@ fn reversing_the_static_field_reverses_a_symmetric_tops_orientation() {
         seen = seen.max(up.trace.cos[i].abs());
     }
     assert!(seen > 1e-3, "some orientation: {seen}");
-    assert!(up.blocks.iter().any(|b| b.parity.contains("K=1, M=-")), "signed-M blocks for K ≠ 0");
+    assert!(up.blocks.iter().any(|b| b.parity.to_string().contains("K=1, M=-")), "signed-M blocks for K ≠ 0");
 }

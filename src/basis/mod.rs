@@ -25,6 +25,78 @@ pub struct Block {
     pub size: usize,
 }
 
+/// The symmetry that labels a block (or an all-M chunk) of a run in reports.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum BlockSymmetry {
+    /// A linear molecule's block of one parity of J (0 even, 1 odd).
+    JParity(u32),
+    /// Every J (fields that break the parity of J).
+    EveryJ,
+    /// A symmetric top's block of fixed K.
+    K(i64),
+    /// A symmetric top's block of fixed K and signed M (orienting fields).
+    KM(i64, i64),
+    /// An asymmetric top's Wang block: the parities of Ka and Kc (0 even, 1 odd).
+    KaKc(i64, i64),
+    /// A block of one parity of K (0 even, 1 odd).
+    KParity(i64),
+    /// An all-M chunk: its level class, its sign under the two-fold rotation about Y, and the parity of
+    /// M when the fields conserve it.
+    AllM {
+        /// The level class.
+        class: Box<BlockSymmetry>,
+        /// +1 or −1.
+        c2y: i64,
+        /// 0 even, 1 odd; None when M parity is not conserved.
+        m_parity: Option<i64>,
+    },
+}
+
+impl BlockSymmetry {
+    /// The label of a top's symmetry class `sym` in `frame`.
+    pub fn of_top_class(sym: top::TopSym, frame: &top::TopFrame) -> BlockSymmetry {
+        match sym {
+            top::TopSym::K(k) => BlockSymmetry::K(k),
+            top::TopSym::Wang { .. } => {
+                let (a, c) = sym.ka_kc_parity(frame).expect("a Wang class has Ka and Kc parities");
+                BlockSymmetry::KaKc(a as i64, c as i64)
+            }
+            top::TopSym::KParity(p) => BlockSymmetry::KParity(p),
+        }
+    }
+}
+
+impl std::fmt::Display for BlockSymmetry {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let parity = |p: i64| ["even", "odd"][p.rem_euclid(2) as usize];
+        match self {
+            BlockSymmetry::JParity(p) => write!(f, "{}", parity(*p as i64)),
+            BlockSymmetry::EveryJ => write!(f, "both"),
+            BlockSymmetry::K(k) => write!(f, "K={k}"),
+            BlockSymmetry::KM(k, m) => write!(f, "K={k}, M={m}"),
+            BlockSymmetry::KaKc(a, c) => write!(f, "Ka {}, Kc {}", parity(*a), parity(*c)),
+            BlockSymmetry::KParity(p) => write!(f, "K {}", parity(*p)),
+            BlockSymmetry::AllM { class, c2y, m_parity } => {
+                match class.as_ref() {
+                    BlockSymmetry::JParity(p) => write!(f, "J {}", parity(*p as i64))?,
+                    other => write!(f, "{other}")?,
+                }
+                write!(f, ", C2(Y) {c2y:+}")?;
+                match m_parity {
+                    Some(p) => write!(f, ", M {}", parity(*p)),
+                    None => Ok(()),
+                }
+            }
+        }
+    }
+}
+
+impl serde::Serialize for BlockSymmetry {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        s.collect_str(self)
+    }
+}
+
 /// `Block::parity` value of a block that holds every J (parity not conserved).
 pub const BOTH_PARITIES: u32 = 2;
 

@@ -12,20 +12,46 @@ use pairs::PairSums;
 pub enum FreeSums {
     /// Linear molecules: merged by J (t0 = ∞ marks runs scored on their samples alone).
     Levels(LevelSums),
-    /// Tops: merged by pairs of field-free levels; `cos2` and `abs` index the alignment axis's
-    /// ⟨cos²θ⟩ and ⟨cos²θ_2D⟩ among the observables.
+    /// Tops and all-M runs: merged by pairs of field-free levels; `parts` says which of the sums'
+    /// observables is which.
     Pairs {
         /// The sums.
         sums: PairSums,
-        /// Index of the alignment axis's ⟨cos²θ⟩.
-        cos2: usize,
-        /// Index of its ⟨cos²θ_2D⟩, when built.
-        abs: Option<usize>,
-        /// Indices of the three-axis goal's two averages (alignment axis with Z, second axis with X);
-        /// with `true` the second index is the second axis with Z, and its X average is (1 − ⟨·⟩)/2
-        /// (fields symmetric about Z).
-        three_axis: Option<(usize, usize, bool)>,
+        /// Where each goal observable sits among the sums' parts.
+        parts: PairParts,
     },
+}
+
+/// Where the goal observables sit among the parts of a run's [`PairSums`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PairParts {
+    /// ⟨cos²θ⟩ of the alignment axis with Z.
+    pub cos2: usize,
+    /// ⟨cos²θ_2D⟩ of the alignment axis, when computed.
+    pub cos2_2d: Option<usize>,
+    /// The three-axis goal's two averages, when the sums carry them.
+    pub three_axis: Option<ThreeAxisParts>,
+}
+
+/// The two averages of the three-axis goal, min(⟨cos²⟩ of the alignment axis with Z, ⟨cos²⟩ of the
+/// second axis with X).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ThreeAxisParts {
+    /// ⟨cos²⟩ of the alignment axis with Z.
+    pub along_z: usize,
+    /// The second axis: its ⟨cos²⟩ with X, or with Z when `second_from_z`.
+    pub second: usize,
+    /// True for runs symmetric about Z, which hold the second axis's ⟨cos²⟩ with Z only: its average
+    /// with X is then (1 − ⟨cos²⟩ with Z)/2.
+    pub second_from_z: bool,
+}
+
+impl ThreeAxisParts {
+    /// The goal's value from the parts' values `v`.
+    pub fn value(&self, v: &[f64]) -> f64 {
+        let second = if self.second_from_z { 0.5 * (1.0 - v[self.second]) } else { v[self.second] };
+        v[self.along_z].min(second)
+    }
 }
 
 impl FreeSums {
@@ -41,26 +67,22 @@ impl FreeSums {
     pub fn eval(&self, t_ps: f64) -> (f64, f64) {
         match self {
             FreeSums::Levels(l) => l.eval(t_ps),
-            FreeSums::Pairs { sums, cos2, abs, .. } => {
+            FreeSums::Pairs { sums, parts } => {
                 let v = sums.eval(t_ps);
-                (v[*cos2], abs.map(|i| v[i]).unwrap_or(0.0))
+                (v[parts.cos2], parts.cos2_2d.map(|i| v[i]).unwrap_or(0.0))
             }
         }
     }
 
     /// True when the sums carry the three-axis goal's two averages.
     pub fn carries_three_axis(&self) -> bool {
-        matches!(self, FreeSums::Pairs { three_axis: Some(_), .. })
+        matches!(self, FreeSums::Pairs { parts: PairParts { three_axis: Some(_), .. }, .. })
     }
 
     /// The three-axis goal's value at time t (ps), when the sums carry it.
     pub fn eval_three_axis(&self, t_ps: f64) -> Option<f64> {
         match self {
-            FreeSums::Pairs { sums, three_axis: Some((i, j, symmetric)), .. } => {
-                let v = sums.eval(t_ps);
-                let second = if *symmetric { 0.5 * (1.0 - v[*j]) } else { v[*j] };
-                Some(v[*i].min(second))
-            }
+            FreeSums::Pairs { sums, parts: PairParts { three_axis: Some(three), .. } } => Some(three.value(&sums.eval(t_ps))),
             _ => None,
         }
     }
@@ -69,9 +91,9 @@ impl FreeSums {
     pub fn mean_over(&self, a_ps: f64, b_ps: f64) -> (f64, f64) {
         match self {
             FreeSums::Levels(l) => l.mean_over(a_ps, b_ps),
-            FreeSums::Pairs { sums, cos2, abs, .. } => {
+            FreeSums::Pairs { sums, parts } => {
                 let v = sums.mean_over(a_ps, b_ps);
-                (v[*cos2], abs.map(|i| v[i]).unwrap_or(0.0))
+                (v[parts.cos2], parts.cos2_2d.map(|i| v[i]).unwrap_or(0.0))
             }
         }
     }
@@ -602,9 +624,29 @@ pub struct Trace {
     /// Tops: the three-axis goal's series, min(⟨cos²⟩ of the alignment axis with Z, ⟨cos²⟩ of the second
     /// most polarizable axis with X); empty for linear molecules.
     pub three_axis: Vec<f64>,
-    /// Fields not symmetric about Z: ⟨cos²⟩ of each body axis with each lab axis, named `cos2_<lab><body>`
-    /// (e.g. `cos2_Xb`; `cos2_X` for the axis of a linear molecule); empty otherwise.
-    pub lab_axes: Vec<(String, Vec<f64>)>,
+    /// Fields not symmetric about Z: ⟨cos²⟩ of each body axis with each lab axis; empty otherwise.
+    pub lab_axes: Vec<LabAxisSeries>,
+}
+
+/// ⟨cos²⟩ of one body axis with one lab axis at each sample.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LabAxisSeries {
+    /// The lab axis.
+    pub lab: crate::basis::lab::LabAxis,
+    /// The body axis (None: the axis of a linear molecule).
+    pub body: Option<crate::molecule::top::BodyAxis>,
+    /// Column name `cos2_<lab><body>`, e.g. `cos2_Xb` (`cos2_X` for a linear molecule).
+    pub name: String,
+    /// The values.
+    pub values: Vec<f64>,
+}
+
+impl LabAxisSeries {
+    /// The series of `body` with `lab`, named for its column.
+    pub fn new(lab: crate::basis::lab::LabAxis, body: Option<crate::molecule::top::BodyAxis>, values: Vec<f64>) -> LabAxisSeries {
+        let name = format!("cos2_{}{}", ["X", "Y", "Z"][lab as usize], body.map(|b| b.letter()).unwrap_or(""));
+        LabAxisSeries { lab, body, name, values }
+    }
 }
 
 /// Location of an extremum of a sampled series.
@@ -617,6 +659,11 @@ pub struct Extremum {
 }
 
 impl Trace {
+    /// ⟨cos²⟩ of `body` with `lab` (None when the run did not compute it).
+    pub fn lab_axis(&self, lab: crate::basis::lab::LabAxis, body: Option<crate::molecule::top::BodyAxis>) -> Option<&[f64]> {
+        self.lab_axes.iter().find(|s| s.lab == lab && s.body == body).map(|s| s.values.as_slice())
+    }
+
     /// Largest value of `series` at times ≥ `from_ps` (None if no sample qualifies).
     pub fn max_after(&self, series: &[f64], from_ps: f64) -> Option<Extremum> {
         self.times_ps.iter().zip(series).filter(|(t, _)| **t >= from_ps).fold(None, |best: Option<Extremum>, (t, v)| match best {

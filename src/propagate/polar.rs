@@ -34,7 +34,7 @@ pub struct PolarOps {
     /// How many identical blocks this one stands for (±M, ±K).
     pub degeneracy: f64,
     /// Label for reports ("both" for linear molecules; K and M for symmetric tops).
-    pub label: String,
+    pub label: crate::basis::BlockSymmetry,
     statics: Mutex<HashMap<u64, Arc<StaticEigen>>>,
 }
 
@@ -57,12 +57,19 @@ impl PolarOps {
         let block = Block { m, parity: BOTH_PARITIES, size };
         let cos = block.matrix_of(|x| x, 1);
         let observables = [block.matrix_of(|x| x * x, 2), block.matrix_of(f64::abs, 1), cos, block.matrix_of(|x| x * x * x, 3)];
-        PolarOps::from_parts(block, block.j_min(), block.m_degeneracy(), "both".into(), block.frequencies(mol), observables)
+        PolarOps::from_parts(block, block.j_min(), block.m_degeneracy(), crate::basis::BlockSymmetry::EveryJ, block.frequencies(mol), observables)
     }
 
     /// A block from its parts: first J, degeneracy, report label, field-free frequencies (rad/ps) and the
     /// matrices of cos²θ, |cosθ|, cosθ and cos³θ (the third one defines the grid of the representation).
-    pub fn from_parts(block: Block, j_first: u32, degeneracy: f64, label: String, omega: Vec<f64>, observables: [DMatrix<f64>; POLAR_OBSERVABLES]) -> PolarOps {
+    pub fn from_parts(
+        block: Block,
+        j_first: u32,
+        degeneracy: f64,
+        label: crate::basis::BlockSymmetry,
+        omega: Vec<f64>,
+        observables: [DMatrix<f64>; POLAR_OBSERVABLES],
+    ) -> PolarOps {
         let eig = SymmetricEigen::new(observables[2].clone());
         PolarOps {
             block,

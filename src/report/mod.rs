@@ -107,7 +107,7 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
                 "peak_cos2_c": extremum(tr.max_after(&tr.cos2_c, after))})
         },
         "lab_axes": if tr.lab_axes.is_empty() { Value::Null } else {
-            Value::Object(tr.lab_axes.iter().map(|(name, series)| (format!("peak_{name}"), extremum(tr.max_after(series, after)))).collect())
+            Value::Object(tr.lab_axes.iter().map(|s| (format!("peak_{}", s.name), extremum(tr.max_after(&s.values, after)))).collect())
         },
         "temperature_k": s.temperature_k,
         "pulses": pulses,
@@ -172,8 +172,8 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     if !trace.three_axis.is_empty() {
         cols.push(("three_axis", &trace.three_axis));
     }
-    for (name, series) in &trace.lab_axes {
-        cols.push((name.as_str(), series.as_slice()));
+    for s in &trace.lab_axes {
+        cols.push((s.name.as_str(), s.values.as_slice()));
     }
     cols.extend_from_slice(extra);
     // Every column has one value per sample; a column that does not (an observable not computed) is left out.
@@ -242,12 +242,11 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     }
     if let Some(t) = &scenario.molecule.top {
         // Pulses polarized away from Z: the second axis with X, the partner of a three-axis goal.
-        let name = format!("cos2_X{}", t.second_axis().letter());
-        if let Some((_, series)) = trace.lab_axes.iter().find(|c| c.0 == name) {
+        if let Some(series) = trace.lab_axis(crate::basis::lab::LabAxis::X, Some(t.second_axis())) {
             plot.series.push(svg::Series {
                 label: format!("⟨cos²⟩ ({} axis with X)", t.second_axis().letter()),
                 x: trace.times_ps.clone(),
-                y: series.clone(),
+                y: series.to_vec(),
                 color: svg::TEAL.into(),
                 dashed: false,
                 width: 1.4,

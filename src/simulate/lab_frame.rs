@@ -21,6 +21,7 @@ mod detector;
 
 use super::driver::{ALL_M_STEP, Kernel, SampleCursor, grow_basis, walk};
 use super::{BlockReport, Event};
+use crate::basis::BlockSymmetry;
 use crate::basis::detector::{DetectorAxis, DetectorTable};
 use crate::basis::lab::{LabAxis, Polarization, body_square, lab_pair};
 use crate::basis::top::{BasisFunction, TopBlock, TopBlockBasis, TopFrame, TopSym};
@@ -902,7 +903,7 @@ impl Kernel for LabKernel<'_> {
             })
         });
         for (i, x) in out.iter_mut().enumerate() {
-            *x = self.g * if i < 9 { nine[i] } else { two_d };
+            *x = self.g * if i < TWO_D_PART { nine[i] } else { two_d };
         }
     }
 
@@ -981,6 +982,15 @@ fn sample_plan(events: &[Event], times: &[f64]) -> (Vec<Option<(usize, usize)>>,
 fn lab_ops_bytes(size: usize) -> f64 {
     size as f64 * (12e3 + (CHUNK * 16 * 3) as f64)
 }
+
+/// Part of an all-M sample (and of its pair sums) holding ⟨Φ_Fg²⟩, the squared direction cosine of lab
+/// axis F (0 X, 1 Y, 2 Z) with the body axis at frame position g.
+pub fn direction_part(lab: usize, position: usize) -> usize {
+    3 * lab + position
+}
+
+/// Part of an all-M sample (and of its pair sums) holding ⟨cos²θ_2D⟩, after the nine direction cosines.
+pub const TWO_D_PART: usize = 9;
 
 /// One initial state: (M combination index, J, level index within J, population).
 type Column = (usize, i64, usize, f64);
@@ -1169,20 +1179,12 @@ impl LabSolver {
                 final_coeffs.add(o.class, o.weight, o.final_coeffs.0, o.final_coeffs.1);
                 let r = reports.entry((o.block.class, o.block.s, o.block.m_parity)).or_insert_with(|| {
                     let c = &self.rotor.classes[o.block.class];
-                    let sym = match c.sym {
-                        TopSym::K(_) if self.rotor.linear => format!("J {}", ["even", "odd"][c.j_parity.unwrap_or(0) as usize]),
-                        TopSym::K(k) => format!("K={k}"),
-                        TopSym::Wang { .. } => {
-                            let (a, cc) = c.sym.ka_kc_parity(&self.rotor.frame).expect("Wang class");
-                            format!("Ka {}, Kc {}", ["even", "odd"][a as usize], ["even", "odd"][cc as usize])
-                        }
-                        TopSym::KParity(p) => format!("K {}", ["even", "odd"][p as usize]),
+                    let class = match c.sym {
+                        TopSym::K(_) if self.rotor.linear => BlockSymmetry::JParity(c.j_parity.unwrap_or(0) as u32),
+                        sym => BlockSymmetry::of_top_class(sym, &self.rotor.frame),
                     };
-                    let mp = match o.block.m_parity {
-                        Some(p) => format!(", M {}", ["even", "odd"][p as usize]),
-                        None => String::new(),
-                    };
-                    BlockReport { m: 0, parity: format!("{sym}, C2(Y) {:+}{mp}", o.block.s), j_max: 0, size: 0, edge_population: 0.0 }
+                    let parity = BlockSymmetry::AllM { class: Box::new(class), c2y: o.block.s, m_parity: o.block.m_parity };
+                    BlockReport { m: 0, parity, j_max: 0, size: 0, edge_population: 0.0 }
                 });
                 r.j_max = r.j_max.max(o.j_max as u32);
                 r.size = r.size.max(o.size);
@@ -1222,10 +1224,10 @@ impl LabSolver {
         let mut out: [[Vec<f64>; 3]; 3] = Default::default();
         for (f, row) in out.iter_mut().enumerate() {
             for (g, series) in row.iter_mut().enumerate() {
-                *series = values.iter().map(|v| v[3 * f + g]).collect();
+                *series = values.iter().map(|v| v[direction_part(f, g)]).collect();
             }
         }
-        let cos2_2d = if with_2d { values.iter().map(|v| v[9]).collect() } else { vec![] };
+        let cos2_2d = if with_2d { values.iter().map(|v| v[TWO_D_PART]).collect() } else { vec![] };
         let mut blocks: Vec<_> = reports.into_iter().collect();
         blocks.sort_by_key(|b| (b.0.0, -b.0.1, b.0.2));
         Ok(LabRun { values: out, cos2_2d, final_sums, blocks: blocks.into_iter().map(|b| b.1).collect() })

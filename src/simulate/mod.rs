@@ -2,14 +2,15 @@
 //! schedule (kicks or finite-pulse intervals), runs every (|M|, parity) block in parallel, grows each
 //! block's basis until the edge population is below tolerance, and sums the blocks' contributions.
 
-use crate::basis::{BOTH_PARITIES, Block};
+use crate::basis::lab::LabAxis;
+use crate::basis::{BOTH_PARITIES, Block, BlockSymmetry};
 use crate::ensemble::{BlockPopulation, ThermalEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::goal::{Observable, Score};
 use crate::molecule::top::BodyAxis;
 use crate::molecule::{Molecule, RotorKind};
-use crate::observe::{BlockSums, DenseSums, FreeSums, LevelSums, Trace};
+use crate::observe::{BlockSums, DenseSums, FreeSums, LabAxisSeries, LevelSums, PairParts, ThreeAxisParts, Trace};
 use crate::optics::focal::FocalAverage;
 use crate::propagate::polar::{POLAR_OBSERVABLES, PolarOps};
 use crate::propagate::{BlockOps, BlockState, FreePhases};
@@ -67,9 +68,9 @@ impl Event {
 pub struct BlockReport {
     /// |M|.
     pub m: u32,
-    /// Symmetry of the block: parity of J ("even", "odd", "both") for linear molecules; K or the
-    /// (Ka, Kc) parities for tops.
-    pub parity: String,
+    /// Symmetry of the block (written as "even", "odd", "both" for linear molecules; K or the (Ka, Kc)
+    /// parities for tops).
+    pub parity: BlockSymmetry,
     /// Highest J in the basis.
     pub j_max: u32,
     /// Number of basis states.
@@ -124,9 +125,8 @@ fn three_axis_of_averages(top: &crate::molecule::top::Top, trace: &Trace) -> Vec
     };
     let z = by_axis(top.alignment_axis);
     let second = top.second_axis();
-    let name = format!("cos2_X{}", second.letter());
-    match trace.lab_axes.iter().find(|c| c.0 == name) {
-        Some((_, x)) => z.iter().zip(x).map(|(a, b)| a.min(*b)).collect(),
+    match trace.lab_axis(crate::basis::lab::LabAxis::X, Some(second)) {
+        Some(x) => z.iter().zip(x).map(|(a, b)| a.min(*b)).collect(),
         None => z.iter().zip(by_axis(second)).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect(),
     }
 }
@@ -552,15 +552,14 @@ impl Solver {
         });
         let run = lab.run(field, &events, reach, times_ps, with_2d)?;
         let frame = &lab.rotor.frame;
-        let (names, positions): (Vec<&str>, Vec<usize>) = if lab.rotor.linear {
-            (vec![""], vec![0])
-        } else {
-            (vec!["a", "b", "c"], [BodyAxis::A, BodyAxis::B, BodyAxis::C].iter().map(|&a| frame.position(a)).collect())
-        };
+        // (body axis, its frame position): the axis of a linear molecule sits at position 0.
+        let axes: Vec<(Option<BodyAxis>, usize)> =
+            if lab.rotor.linear { vec![(None, 0)] } else { [BodyAxis::A, BodyAxis::B, BodyAxis::C].iter().map(|&a| (Some(a), frame.position(a))).collect() };
+        let positions: Vec<usize> = axes.iter().map(|a| a.1).collect();
         let mut lab_axes = vec![];
-        for (f, lab_name) in ["X", "Y", "Z"].iter().enumerate() {
-            for (name, &pos) in names.iter().zip(&positions) {
-                lab_axes.push((format!("cos2_{lab_name}{name}"), run.values[f][pos].clone()));
+        for (f, lab_axis) in [LabAxis::X, LabAxis::Y, LabAxis::Z].into_iter().enumerate() {
+            for &(body, pos) in &axes {
+                lab_axes.push(LabAxisSeries::new(lab_axis, body, run.values[f][pos].clone()));
             }
         }
         let (align_pos, second_pos) = match self.top() {
@@ -584,16 +583,19 @@ impl Solver {
             ..Default::default()
         };
         let statics = run.final_sums.statics();
-        let align = 6 + align_pos;
-        // Part 9 of the sums is ⟨cos²θ_2D⟩ when it was computed.
-        let abs = (statics.len() > 9).then_some(9);
+        let z_align = lab_frame::direction_part(2, align_pos);
+        let parts = PairParts {
+            cos2: z_align,
+            cos2_2d: (statics.len() > lab_frame::TWO_D_PART).then_some(lab_frame::TWO_D_PART),
+            three_axis: second_pos.map(|s| ThreeAxisParts { along_z: z_align, second: lab_frame::direction_part(0, s), second_from_z: false }),
+        };
         Ok(RunResult {
             trace,
-            permanent_cos2: statics[align],
-            permanent_cos2_2d: abs.map(|i| statics[i]).unwrap_or(0.0),
+            permanent_cos2: statics[parts.cos2],
+            permanent_cos2_2d: parts.cos2_2d.map(|i| statics[i]).unwrap_or(0.0),
             blocks: run.blocks,
             events,
-            final_sums: FreeSums::Pairs { sums: run.final_sums, cos2: align, abs, three_axis: second_pos.map(|s| (align, s, false)) },
+            final_sums: FreeSums::Pairs { sums: run.final_sums, parts },
             permanent_cos: None,
         })
     }
@@ -771,13 +773,7 @@ impl Solver {
         if !w.rest.is_empty() {
             gaps.push((w.rest.start, w.rest.end, w.state.t_ps, final_sums.clone()));
         }
-        let report = BlockReport {
-            m: block.m,
-            parity: if block.parity == 0 { "even" } else { "odd" }.to_string(),
-            j_max: block.j_max(),
-            size: block.size,
-            edge_population: w.edge,
-        };
+        let report = BlockReport { m: block.m, parity: BlockSymmetry::JParity(block.parity), j_max: block.j_max(), size: block.size, edge_population: w.edge };
         Ok(Some(BlockOutcome { values, gaps, final_sums, report }))
     }
 }
@@ -896,8 +892,8 @@ impl Solver {
                     for series in [&mut t.cos2, &mut t.cos2_2d, &mut t.cos, &mut t.cos3, &mut t.cos2_a, &mut t.cos2_b, &mut t.cos2_c] {
                         series.iter_mut().for_each(|v| *v *= w);
                     }
-                    for (_, series) in t.lab_axes.iter_mut() {
-                        series.iter_mut().for_each(|v| *v *= w);
+                    for series in t.lab_axes.iter_mut() {
+                        series.values.iter_mut().for_each(|v| *v *= w);
                     }
                     out = Some(first);
                 }
@@ -914,8 +910,8 @@ impl Solver {
                     for (a, b) in pairs {
                         a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
                     }
-                    for ((_, a), (_, b)) in acc.trace.lab_axes.iter_mut().zip(&r.trace.lab_axes) {
-                        a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
+                    for (a, b) in acc.trace.lab_axes.iter_mut().zip(&r.trace.lab_axes) {
+                        a.values.iter_mut().zip(&b.values).for_each(|(x, y)| *x += w * y);
                     }
                     for (a, b) in acc.blocks.iter_mut().zip(&r.blocks) {
                         if b.j_max > a.j_max {

@@ -14,7 +14,7 @@ use crate::field::FieldModel;
 use crate::molecule::top::{BodyAxis, Top};
 use crate::numeric::{Strided, gemm_strided};
 use crate::observe::pairs::PairSums;
-use crate::observe::{FreeSums, Trace};
+use crate::observe::{FreeSums, PairParts, ThreeAxisParts, Trace};
 use crate::propagate::BlockState;
 use crate::propagate::polar::PolarOps;
 use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
@@ -387,6 +387,9 @@ impl TopSolver {
         let statics = final_sums.statics();
         let align = self.top.alignment_axis.index();
         let second = self.top.second_axis().index();
+        // Parts of the sums: ⟨cos²⟩ of the body axes a, b, c with Z, then ⟨cos²θ_2D⟩ when built.
+        let parts =
+            PairParts { cos2: align, cos2_2d: with_2d.then_some(AXES), three_axis: Some(ThreeAxisParts { along_z: align, second, second_from_z: true }) };
         // Symmetric about Z: ⟨Φ_Xg²⟩ = (1 − ⟨Φ_Zg²⟩)/2.
         let three_axis = values[align].iter().zip(&values[second]).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect();
         let trace = Trace {
@@ -401,11 +404,11 @@ impl TopSolver {
         };
         Ok(RunResult {
             trace,
-            permanent_cos2: statics[align],
-            permanent_cos2_2d: if with_2d { statics[AXES] } else { 0.0 },
+            permanent_cos2: statics[parts.cos2],
+            permanent_cos2_2d: parts.cos2_2d.map(|i| statics[i]).unwrap_or(0.0),
             blocks: reports,
             events,
-            final_sums: FreeSums::Pairs { sums: final_sums, cos2: align, abs: with_2d.then_some(AXES), three_axis: Some((align, second, true)) },
+            final_sums: FreeSums::Pairs { sums: final_sums, parts },
             permanent_cos: None,
         })
     }
@@ -472,14 +475,7 @@ impl TopSolver {
             gaps.push((w.rest.start, w.rest.end, final_pairs.0, final_pairs.1.clone()));
         }
         let (values, edge) = (w.values, w.edge);
-        let label = match bp.sym {
-            TopSym::K(k) => format!("K={k}"),
-            TopSym::Wang { .. } => {
-                let (a, c) = bp.sym.ka_kc_parity(&self.frame).expect("Wang block");
-                format!("Ka {}, Kc {}", ["even", "odd"][a as usize], ["even", "odd"][c as usize])
-            }
-            TopSym::KParity(p) => format!("K {}", ["even", "odd"][p as usize]),
-        };
+        let label = crate::basis::BlockSymmetry::of_top_class(bp.sym, &self.frame);
         let report = BlockReport { m: bp.m as u32, parity: label, j_max: ops.basis.block.j_max as u32, size: ops.basis.size(), edge_population: edge };
         Ok(Some(TopOutcome { values, gaps, final_pairs, ops, report, weight: g }))
     }
@@ -573,7 +569,7 @@ fn symmetric_top_polar_ops(top: &Top, frame: &TopFrame, k: i64, m: i64, j_max: i
     let omega = basis.energies_cm.iter().map(|e| cm_to_rad_per_ps(*e)).collect();
     let j_first = basis.j(0) as u32;
     let block = crate::basis::Block { m: m.unsigned_abs() as u32, parity: crate::basis::BOTH_PARITIES, size: n };
-    PolarOps::from_parts(block, j_first, degeneracy, format!("K={k}, M={m}"), omega, observables)
+    PolarOps::from_parts(block, j_first, degeneracy, crate::basis::BlockSymmetry::KM(k, m), omega, observables)
 }
 
 impl super::Solver {
