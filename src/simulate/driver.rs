@@ -295,6 +295,83 @@ mod tests {
         assert_eq!(c.rest(), 6..6);
     }
 
+    /// A finite interval [0, `end`] with steps of at most `step` (ps).
+    struct Interval {
+        end: f64,
+        step: f64,
+    }
+
+    impl Scheduled for Interval {
+        fn span(&self) -> (f64, f64) {
+            (0.0, self.end)
+        }
+        fn finite_step(&self) -> Option<f64> {
+            Some(self.step)
+        }
+    }
+
+    /// Three levels without field-free motion; the pulse rotates level 0 into level 2 (the edge) by
+    /// π/2 over the first half of the interval and back over the second: the population sits at the
+    /// edge at mid-pulse and is back in level 0 at the end (exact: a rotation in one plane).
+    struct Swing {
+        end: f64,
+    }
+
+    impl Kernel for Swing {
+        type Item = Interval;
+        type Stretch = f64;
+        fn observables(&self) -> usize {
+            1
+        }
+        fn omega(&self) -> &[f64] {
+            &[0.0, 0.0, 0.0]
+        }
+        fn edge(&self, st: &BlockState) -> f64 {
+            st.psi[(2, 0)].powi(2) + st.psi[(2, 1)].powi(2)
+        }
+        fn sample(&self, st: &BlockState, out: &mut [f64]) {
+            out[0] = self.edge(st);
+        }
+        fn stretch(&self, st: &BlockState) -> f64 {
+            self.edge(st)
+        }
+        fn free(&self, _st: &mut BlockState, _index: usize, _dt: f64) {}
+        fn instant(&self, _st: &mut BlockState, _item: &Interval) {}
+        fn finite_kick(&self, _index: usize, _item: &Interval, st: &mut BlockState, t: f64, h: f64) {
+            let rate = std::f64::consts::PI / self.end * if t < 0.5 * self.end { 1.0 } else { -1.0 };
+            let (s, c) = (h * rate).sin_cos();
+            for col in 0..2 {
+                let (a, b) = (st.psi[(0, col)], st.psi[(2, col)]);
+                st.psi[(0, col)] = c * a - s * b;
+                st.psi[(2, col)] = s * a + c * b;
+            }
+        }
+        fn breaks(&self, _item: &Interval) -> Vec<f64> {
+            vec![0.5 * self.end]
+        }
+    }
+
+    #[test]
+    fn the_walk_watches_the_edge_inside_a_pulse_and_keeps_end_samples_for_the_stretch_after() {
+        // Exact reference: a rotation by π/2 and back (common practice: a two-level rotation), so the
+        // edge holds all the population at mid-pulse and none at the end.
+        let kernel = Swing { end: 1.0 };
+        let items = [Interval { end: 1.0, step: 0.05 }];
+        let start = || BlockState::new(3, &[0], 0.0);
+        // A sample at mid-pulse sees the edge full: the walk asks for a larger basis.
+        assert!(walk(&kernel, start(), &items, &[0.25, 0.5], 1e-8).is_none());
+        // Samples only at and after the end: the pulse is walked through, the edge after it is empty,
+        // and the sample at the end belongs to the stretch after the pulse.
+        let w = walk(&kernel, start(), &items, &[1.0, 2.0], 1e-8).expect("edge empty after the pulse");
+        assert!(w.edge < 1e-24, "{}", w.edge);
+        assert_eq!(w.rest, 0..2);
+        assert!(w.stretches.is_empty());
+        assert!((w.state.psi[(0, 0)].abs() - 1.0).abs() < 1e-12);
+        // A sample inside before the edge fills is taken there: sin²(π/4) = 1/2 at a quarter of the pulse.
+        let w = walk(&kernel, start(), &items, &[0.25], 0.6).expect("edge at most 1/2 at the sample");
+        assert!((w.values[0][0] - 0.5).abs() < 1e-12, "{}", w.values[0][0]);
+    }
+
     #[test]
     fn step_rule_takes_the_finest_bound_and_a_user_step_wins() {
         let mut s = SolverSettings::default();

@@ -959,8 +959,9 @@ impl Kernel for LabKernel<'_> {
 }
 
 /// Which samples each stretch takes: per event, the field-free samples before it (first, end), and the
-/// first sample after the last event. Samples inside a finite interval (its ends included) are taken
-/// during the propagation; a sample at a kick's time comes after the kick.
+/// first sample after the last event, walked as [`super::driver::walk`] walks them: samples inside a
+/// finite interval (its start included, its end not) are taken during the propagation; a sample at a
+/// kick's time comes after the kick.
 fn sample_plan(events: &[Event], times: &[f64]) -> (Vec<Option<(usize, usize)>>, usize) {
     let mut cursor = SampleCursor::new(times);
     let mut gaps = vec![];
