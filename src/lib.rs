@@ -27,6 +27,7 @@ pub mod observe;
 pub mod optics;
 pub mod pendular;
 pub mod propagate;
+pub mod quadrature;
 pub mod report;
 pub mod resources;
 pub mod scan;

@@ -9,8 +9,8 @@
 //! weight H(θ) = −(1 − |cosθ|)/(1 + |cosθ|), the exact average of e^{2iψ}e^{−2iφ'} over χ.
 //! States change from Z to Y quantization by one (2J+1)-square matrix per J that acts on M alone.
 
-use super::legendre::gauss_legendre;
 use super::wigner::small_d_series;
+use crate::quadrature::gauss_legendre;
 use nalgebra::DMatrix;
 use rayon::prelude::*;
 

@@ -181,8 +181,8 @@ pub fn factored_operator(lab: &[[Complex64; 5]; 3], body: &[[Complex64; 5]; 3]) 
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::basis::legendre::gauss_legendre;
     use crate::basis::wigner::small_d_explicit;
+    use crate::quadrature::gauss_legendre;
     use std::f64::consts::PI;
 
     /// The rotation matrix R(φ, θ, χ) = R_z(φ) R_y(θ) R_z(χ) (z-y-z Euler angles, active): column g is
@@ -362,7 +362,7 @@ pub fn detector_plane_cos2(bra: (i64, i64, i64), ket: (i64, i64, i64), nodes: us
     if kp != k {
         return Complex64::new(0.0, 0.0);
     }
-    let (x, w) = super::legendre::gauss_legendre(nodes, -1.0, 1.0);
+    let (x, w) = crate::quadrature::gauss_legendre(nodes, -1.0, 1.0);
     let n_psi = 2 * nodes;
     // ∫dχ ψ*_bra ψ_ket = 2π · sqrt((2J+1)(2J'+1))/(8π²) · e^{i(M' − M)φ}·… with ψ = sqrt((2J+1)/8π²) e^{iMφ} d^J_MK(θ) e^{iKχ}.
     let norm = 2.0 * PI * (((2 * j + 1) * (2 * jp + 1)) as f64).sqrt() / (8.0 * PI * PI);

@@ -146,7 +146,7 @@ impl Block {
         let nq = (j_max + extra_degree / 2 + 2) as usize;
         let mut out = DMatrix::zeros(n, n);
         for (lo, hi) in [(-1.0, 0.0), (0.0, 1.0)] {
-            let (x, w) = legendre::gauss_legendre(nq, lo, hi);
+            let (x, w) = crate::quadrature::gauss_legendre(nq, lo, hi);
             let mut phi = DMatrix::zeros(n, nq);
             let mut scaled = DMatrix::zeros(n, nq);
             for q in 0..nq {
@@ -194,7 +194,7 @@ impl Block {
         let j_max = self.j_max();
         // Integrand x Θ_J Θ_J' has degree ≤ 2 j_max + 1: n_q ≥ j_max + 1 points are exact.
         let nq = j_max as usize + 2;
-        let (x, w) = legendre::gauss_legendre(nq, 0.0, 1.0);
+        let (x, w) = crate::quadrature::gauss_legendre(nq, 0.0, 1.0);
         let mut phi = DMatrix::zeros(n, nq);
         for q in 0..nq {
             let th = legendre::theta_normalized(self.m, j_max, x[q]);
@@ -234,8 +234,9 @@ pub fn cos_up1(j: u32, m: u32) -> f64 {
 
 #[cfg(test)]
 mod tests {
-    use super::legendre::{gauss_legendre, theta_normalized};
+    use super::legendre::theta_normalized;
     use super::*;
+    use crate::quadrature::gauss_legendre;
 
     /// Matrix element ⟨J M|f(x)|J' M⟩ by direct Gauss–Legendre quadrature of normalized spherical harmonics.
     fn quad(j: u32, jp: u32, m: u32, f: impl Fn(f64) -> f64, nq: usize) -> f64 {

@@ -408,7 +408,7 @@ impl TopBlockBasis {
         let nq = (j_max + 24) as usize;
         let mut nodes = vec![];
         for (lo, hi) in [(0.0, std::f64::consts::FRAC_PI_2), (std::f64::consts::FRAC_PI_2, std::f64::consts::PI)] {
-            let (x, w) = super::legendre::gauss_legendre(nq, lo, hi);
+            let (x, w) = crate::quadrature::gauss_legendre(nq, lo, hi);
             for q in 0..nq {
                 let th: f64 = x[q];
                 let g = if position == 0 { th.cos().abs() } else { th.sin() };
@@ -560,8 +560,8 @@ pub fn sorted_eigen(h: DMatrix<f64>) -> (Vec<f64>, DMatrix<f64>) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::basis::legendre::gauss_legendre;
     use crate::basis::wigner::small_d_explicit;
+    use crate::quadrature::gauss_legendre;
     use std::f64::consts::PI;
 
     fn top(a: f64, b: f64, c: f64) -> Top {

@@ -1,8 +1,8 @@
 //! Pulse shapes and the field model: trains of linearly polarized, non-resonant laser pulses
 //! (polarization along the lab Z axis), described by their cycle-averaged intensity envelopes.
 
-use crate::basis::legendre::simpson;
 use crate::error::{Error, Result, require_finite, require_positive};
+use crate::quadrature::simpson;
 use crate::units::{FS_PER_PS, coupling_rad_per_ps_per_a3_wcm2};
 use serde::{Deserialize, Serialize};
 
@@ -318,7 +318,7 @@ impl Pulse {
             return vec![(self.kick_time_ps(), 1.0)];
         }
         let (a, b) = self.support_ps();
-        let (ts, ws) = crate::basis::legendre::simpson_grid(a, b, 4000);
+        let (ts, ws) = crate::quadrature::simpson_grid(a, b, 4000);
         let w: Vec<f64> = ts.iter().zip(&ws).map(|(&t, &c)| c * self.envelope(t)).collect();
         let m0: f64 = w.iter().sum();
         let centre = self.kick_time_ps();

@@ -19,8 +19,8 @@
 //! Polynomials: Computation and Approximation", 2004, §2.2), so an axial average costs as many runs as a
 //! transverse one and is exact for polynomials in u up to degree 2·points − 1.
 
-use crate::basis::legendre::gauss_legendre;
 use crate::error::{Error, Result, require_positive};
+use crate::quadrature::gauss_legendre;
 use nalgebra::{DMatrix, SymmetricEigen};
 use serde::{Deserialize, Serialize};
 

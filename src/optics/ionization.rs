@@ -4,8 +4,8 @@
 //! (MO-ADK, Tong, Zhao & Lin, Phys. Rev. A 66, 033402 (2002)) is not included, so treat the numbers as
 //! an order-of-magnitude ceiling, not a prediction.
 
-use crate::basis::legendre::simpson;
 use crate::field::Pulse;
+use crate::quadrature::simpson;
 use crate::units::peak_field_v_per_m;
 
 /// Atomic unit of electric field, V/m.

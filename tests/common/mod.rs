@@ -6,7 +6,8 @@ use kicktrain::units::cm_to_rad_per_ps;
 /// ⟨g(cosθ)⟩(t) of a J = 0 rotor after the kick exp(i f(cosθ)) at t = 0, built by quadrature of
 /// Legendre functions (independent of the solver's representation).
 pub fn ground_state_kick(mol: &Molecule, f: impl Fn(f64) -> f64, g: impl Fn(f64) -> f64, times: &[f64]) -> Vec<f64> {
-    use kicktrain::basis::legendre::{gauss_legendre, theta_normalized};
+    use kicktrain::basis::legendre::theta_normalized;
+    use kicktrain::quadrature::gauss_legendre;
     let j_top = 120u32;
     let (x, w) = gauss_legendre(250, -1.0, 1.0);
     let th: Vec<Vec<f64>> = x.iter().map(|&xi| theta_normalized(0, j_top, xi)).collect();
