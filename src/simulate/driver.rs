@@ -367,6 +367,9 @@ mod tests {
         assert_eq!(w.rest, 0..2);
         assert!(w.stretches.is_empty());
         assert!((w.state.psi[(0, 0)].abs() - 1.0).abs() < 1e-12);
+        // An empty schedule: every sample belongs to the stretch after it, from the initial state.
+        let w = walk(&kernel, start(), &[], &[0.0, 3.0], 1e-8).expect("nothing to walk");
+        assert_eq!((w.rest, w.values.len(), w.edge), (0..2, 0, 0.0));
         // A sample inside before the edge fills is taken there: sin²(π/4) = 1/2 at a quarter of the pulse.
         let w = walk(&kernel, start(), &items, &[0.25], 0.6).expect("edge at most 1/2 at the sample");
         assert!((w.values[0][0] - 0.5).abs() < 1e-12, "{}", w.values[0][0]);

@@ -54,6 +54,14 @@ pub enum Event {
 }
 
 impl Event {
+    /// Times inside a finite interval where the envelopes of its pulses in `field` are not smooth (none for a kick).
+    pub fn breaks(&self, field: &FieldModel) -> Vec<f64> {
+        match self {
+            Event::Finite { pulses, .. } => field.breakpoints_of(pulses),
+            Event::Kick { .. } => vec![],
+        }
+    }
+
     /// (start, end) in ps; equal for a kick.
     pub fn span(&self) -> (f64, f64) {
         match self {
@@ -835,10 +843,7 @@ impl driver::Kernel for LinearKernel<'_> {
     }
 
     fn breaks(&self, item: &Event) -> Vec<f64> {
-        match item {
-            Event::Finite { pulses, .. } => self.field.breakpoints_of(pulses),
-            Event::Kick { .. } => vec![],
-        }
+        item.breaks(self.field)
     }
 }
 

@@ -539,10 +539,7 @@ impl Kernel for TopKernel<'_> {
     }
 
     fn breaks(&self, item: &Event) -> Vec<f64> {
-        match item {
-            Event::Finite { pulses, .. } => self.field.breakpoints_of(pulses),
-            Event::Kick { .. } => vec![],
-        }
+        item.breaks(self.field)
     }
 
     fn step(&self, step_ps: f64) -> f64 {
