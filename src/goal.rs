@@ -1,16 +1,16 @@
 //! Goals: what a design should achieve (peak, value at a time, mean, minimum of an alignment
 //! observable in a window after the last pulse). Data and parsing only; scoring lives in `observe`.
 
-use crate::error::{Error, Result, require_positive};
-use crate::input::{Fields, as_f64, join};
-use serde_json::{Value, json};
+use serde::{Deserialize, Serialize};
 
 /// Which alignment observable a goal uses.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
 pub enum Observable {
     /// ⟨cos²θ⟩.
     Cos2,
     /// ⟨cos²θ_2D⟩, the projection onto a detector plane containing Z.
+    #[serde(rename = "cos2_2d")]
     Cos2TwoD,
     /// ⟨cosθ⟩, the orientation (needs a field that breaks head–tail symmetry).
     Cos,
@@ -101,70 +101,3 @@ impl Goal {
     }
 }
 
-impl Goal {
-    /// The goal as JSON, readable by `parse_goal`.
-    pub fn to_value(&self) -> Value {
-        let mut v = json!({"kind": self.kind_name(), "observable": self.observable.name(), "step_fs": self.step_fs});
-        match self.kind {
-            GoalKind::ValueAt(t) => v["at_ps"] = json!(t),
-            _ => v["window_ps"] = json!([self.window_ps.0, self.window_ps.1]),
-        }
-        v
-    }
-}
-
-/// Read a goal object found at `path`.
-pub fn parse_goal(v: &Value, path: &str) -> Result<Goal> {
-    let mut f = Fields::new(v, path)?;
-    let kind_s = f.opt_str("kind", "\"peak\", \"value_at\", \"mean\" or \"minimum\"")?.unwrap_or("peak");
-    let observable = match f.opt_str("observable", "\"cos2\", \"cos2_2d\", \"cos\" or \"three_axis\"")?.unwrap_or("cos2") {
-        "cos2" => Observable::Cos2,
-        "cos2_2d" => Observable::Cos2TwoD,
-        "cos" => Observable::Cos,
-        "three_axis" => Observable::ThreeAxis,
-        other => {
-            return Err(Error::input(join(path, "observable"), format!("expected \"cos2\", \"cos2_2d\", \"cos\" or \"three_axis\", got \"{other}\"")));
-        }
-    };
-    let at = f.opt_f64("at_ps", "ps after the last pulse centre")?;
-    let window = match f.opt_value("window_ps") {
-        None => None,
-        Some(Value::Array(a)) if a.len() == 2 => {
-            let p = join(path, "window_ps");
-            Some((as_f64(&a[0], &format!("{p}[0]"), "ps")?, as_f64(&a[1], &format!("{p}[1]"), "ps")?))
-        }
-        Some(other) => return Err(Error::input(join(path, "window_ps"), format!("expected [start_ps, stop_ps] after the last pulse centre, got {other}"))),
-    };
-    let step_fs = f.opt_f64("step_fs", "fs")?.unwrap_or(10.0);
-    f.finish()?;
-    require_positive(&join(path, "step_fs"), step_fs, "fs")?;
-    let kind = match kind_s {
-        "peak" => GoalKind::Peak,
-        "mean" => GoalKind::Mean,
-        "minimum" => GoalKind::Minimum,
-        "value_at" => GoalKind::ValueAt(
-            at.ok_or_else(|| Error::input(join(path, "at_ps"), "missing; expected the time (ps) after the last pulse centre for kind \"value_at\""))?,
-        ),
-        other => return Err(Error::input(join(path, "kind"), format!("expected \"peak\", \"value_at\", \"mean\" or \"minimum\", got \"{other}\""))),
-    };
-    let window_ps = match (kind, window) {
-        (GoalKind::ValueAt(t), _) => (t, t),
-        (_, Some(w)) => w,
-        (_, None) => return Err(Error::input(join(path, "window_ps"), "missing; expected [start_ps, stop_ps] after the last pulse centre")),
-    };
-    if !matches!(kind, GoalKind::ValueAt(_)) {
-        if window_ps.1 <= window_ps.0 {
-            return Err(Error::input(join(path, "window_ps"), format!("expected stop > start, got [{}, {}]", window_ps.0, window_ps.1)));
-        }
-        if (window_ps.1 - window_ps.0) * 1000.0 / step_fs > 20_000.0 {
-            return Err(Error::input(join(path, "step_fs"), "the goal window would hold more than 20000 samples; expected a larger step_fs"));
-        }
-    }
-    if window_ps.0 < 0.0 {
-        return Err(Error::input(
-            join(path, if matches!(kind, GoalKind::ValueAt(_)) { "at_ps" } else { "window_ps" }),
-            "expected times ≥ 0 after the last pulse centre",
-        ));
-    }
-    Ok(Goal { kind, observable, window_ps, step_fs })
-}

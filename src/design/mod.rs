@@ -12,8 +12,7 @@ pub use crate::goal::{Goal, GoalKind, Observable, Score};
 
 use crate::error::{Error, Result, require_non_negative, require_positive};
 use crate::field::{FieldModel, Pulse, PulseShape};
-use crate::goal::parse_goal;
-use crate::input::{Fields, as_f64, join, parse_json, type_name};
+use crate::input::{join, parse_json};
 use crate::molecule::Molecule;
 use crate::scenario::{MoleculeSource, Scenario, SolverSettings, Window};
 use serde_json::Value;
@@ -426,10 +425,12 @@ pub fn fluence_jcm2(p: &Pulse) -> f64 {
 
 /// How hard the search tries: the size of each swarm, how many independent starts it may run and how
 /// long each polish lasts. Every level stops early once three starts agree.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
 pub enum Effort {
     /// Small swarms, two to four starts: a first look.
     Quick,
+    #[default]
     /// The default: sized so that 1–4 pulse designs of linear molecules reach the best known design.
     Normal,
     /// Larger swarms, up to sixteen starts.
@@ -606,98 +607,17 @@ impl Objective {
 
     /// Read an objective from a parsed JSON value.
     pub fn from_value(v: &Value) -> Result<Objective> {
-        let mut f = Fields::new(v, "")?;
-        let description = f.opt_str("description", "a string")?.map(str::to_string);
-        let mv = f.req_value("molecule", "a library name or an object with b_cm, alpha_parallel_a3, ...")?;
-        let temperature_k = f.req_f64("temperature_k", "K")?;
-        let solver_v = f.opt_value("solver");
-        let pulses_v = f.req_value("pulses", "an object with count or max_count and the bounds of each pulse")?;
-        let ceiling = f.req_f64("max_peak_intensity_wcm2", "W/cm²")?;
-        let budget = f.opt_f64("max_total_fluence_jcm2", "J/cm²")?;
-        let min_sep = f.opt_f64("min_separation_ps", "ps")?.unwrap_or(0.0);
-        let ion_limit = f.opt_f64("max_ionized_fraction", "fraction of molecules ionized per pulse")?;
-        let static_v = f.opt_value("static_field_kv_cm");
-        let focal_v = f.opt_value("focal_average");
-        let thz_v = f.opt_value("terahertz");
-        let goal_v = f.req_value("goal", "an object with kind, observable and window_ps")?;
-        let search_v = f.opt_value("search");
-        let robust_v = f.opt_value("robust");
-        f.finish()?;
+        crate::input::objective_file::objective(v)
+    }
 
-        // The base scenario reuses the scenario reader for molecule, temperature and solver settings.
-        let mut base_json = serde_json::json!({"molecule": mv, "temperature_k": temperature_k, "window": {"start_ps": 0.0, "stop_ps": 1.0, "step_fs": 10.0}});
-        if let Some(s) = solver_v {
-            base_json["solver"] = s.clone();
-        }
-        if let Some(a) = focal_v {
-            base_json["focal_average"] = a.clone();
-        }
-        let base = Scenario::from_value(&base_json, "")?;
-        let (mut space, variable_count) = parse_pulses(pulses_v, "pulses", ceiling, budget, min_sep)?;
-        if let Some(limit) = ion_limit {
-            apply_ionization_limit(&mut space, &base.molecule, limit)?;
-        }
-        if let Some(v) = static_v {
-            let b = parse_bounds(v, "static_field_kv_cm", "kV/cm")?;
-            if b.min.abs().max(b.max.abs()) > 1e4 {
-                return Err(Error::input("static_field_kv_cm", "expected at most 1e4 kV/cm in magnitude"));
-            }
-            space.static_field_kv_cm = Some(b);
-        }
-        if let Some(v) = thz_v {
-            let mut g = Fields::new(v, "terahertz")?;
-            let delay_ps = parse_bounds(g.req_value("delay_ps", "ps after the last laser pulse centre, a number or {min, max}")?, "terahertz.delay_ps", "ps")?;
-            let peak_field_kv_cm = parse_bounds(g.req_value("peak_field_kv_cm", "kV/cm, a number or {min, max}")?, "terahertz.peak_field_kv_cm", "kV/cm")?;
-            let duration_fs = g.req_f64("duration_fs", "fs")?;
-            let waveform = match g.opt_str("waveform", "\"single_cycle\" or \"half_cycle\"")? {
-                None | Some("single_cycle") => crate::field::TerahertzWaveform::SingleCycle,
-                Some("half_cycle") => crate::field::TerahertzWaveform::HalfCycle,
-                Some(other) => return Err(Error::input("terahertz.waveform", format!("expected \"single_cycle\" or \"half_cycle\", got \"{other}\""))),
-            };
-            g.finish()?;
-            if delay_ps.min.abs().max(delay_ps.max.abs()) > 1e5 {
-                return Err(Error::input("terahertz.delay_ps", "expected delays within ±1e5 ps"));
-            }
-            space.terahertz = Some(TerahertzBounds { delay_ps, peak_field_kv_cm, duration_fs, waveform });
-        }
-        space.validate("")?;
-        let goal = parse_goal(goal_v, "goal")?;
-        let search = match search_v {
-            None => SearchSettings::default(),
-            Some(s) => parse_search(s, "search")?,
-        };
+    /// Check what no single part of the objective can check alone: the goal against the fields, and
+    /// that the longest, strongest design fits the basis and replays as a scenario.
+    pub fn validate(&self) -> Result<()> {
+        let (obj, goal) = (self, &self.goal);
         if goal.window_ps.1 > 1e5 {
             let key = if matches!(goal.kind, GoalKind::ValueAt(_)) { "goal.at_ps" } else { "goal.window_ps" };
             return Err(Error::input(key, format!("expected goal times up to 1e5 ps after the last pulse, got {:e} ps", goal.window_ps.1)));
         }
-        let robust = match robust_v {
-            None => None,
-            Some(v) => {
-                let mut g = Fields::new(v, "robust")?;
-                let noise = crate::tolerance::Noise {
-                    jitter_fs: g.opt_f64("jitter_fs", "fs rms")?.unwrap_or(0.0),
-                    energy_percent: g.opt_f64("energy_noise_percent", "% rms")?.unwrap_or(0.0),
-                    phase_rad: g.opt_f64("phase_noise_rad", "rad rms")?.unwrap_or(0.0),
-                };
-                let samples = g.opt_usize("samples", "Monte Carlo samples")?.unwrap_or(16);
-                g.finish()?;
-                for (name, x) in
-                    [("robust.jitter_fs", noise.jitter_fs), ("robust.energy_noise_percent", noise.energy_percent), ("robust.phase_noise_rad", noise.phase_rad)]
-                {
-                    if x < 0.0 {
-                        return Err(Error::input(name, format!("expected an rms value ≥ 0, got {x}")));
-                    }
-                }
-                if noise.energy_percent > 50.0 {
-                    return Err(Error::input("robust.energy_noise_percent", "expected at most 50 %"));
-                }
-                if !(2..=1000).contains(&samples) {
-                    return Err(Error::input("robust.samples", format!("expected 2 to 1000 samples, got {samples}")));
-                }
-                Some((noise, samples))
-            }
-        };
-        let obj = Objective { description, base, space, variable_count, goal, search, robust };
         if goal.observable == Observable::Cos && obj.space.static_field_kv_cm.is_none() && obj.space.two_colour.is_none() && obj.space.terahertz.is_none() {
             return Err(Error::input("goal.observable", "⟨cosθ⟩ needs an orienting field: give static_field_kv_cm, pulses.two_colour or terahertz"));
         }
@@ -747,7 +667,7 @@ impl Objective {
             Error::Input { field, message } => Error::input("goal", format!("the design would not replay as a scenario ({field}: {message})")),
             other => other,
         })?;
-        Ok(obj)
+        Ok(())
     }
 
     /// Whether the kick (impulsive) model screens candidates before the full solver: only when every
@@ -806,7 +726,7 @@ impl Objective {
 
 /// Lower every pulse's intensity bound so that the ADK estimate of the fraction ionized per pulse stays
 /// below `limit` (judged at the longest allowed duration, the worst case).
-fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -> Result<()> {
+pub(crate) fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -> Result<()> {
     if !(limit > 0.0 && limit < 1.0) {
         return Err(Error::input("max_ionized_fraction", format!("expected a fraction between 0 and 1, got {limit}")));
     }
@@ -842,204 +762,3 @@ fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, limit: f64) -
     Ok(())
 }
 
-fn parse_bounds(v: &Value, path: &str, unit: &str) -> Result<Bounds> {
-    match v {
-        Value::Number(_) => {
-            let x = as_f64(v, path, unit)?;
-            Ok(Bounds::fixed(x))
-        }
-        Value::Object(_) => {
-            let mut f = Fields::new(v, path)?;
-            let b = Bounds { min: f.req_f64("min", unit)?, max: f.req_f64("max", unit)? };
-            f.finish()?;
-            if b.max < b.min {
-                return Err(Error::input(join(path, "max"), format!("expected max ≥ min = {} ({unit}), got {}", b.min, b.max)));
-            }
-            Ok(b)
-        }
-        other => Err(Error::input(path, format!("expected a number or {{\"min\": .., \"max\": ..}} ({unit}), got {}", type_name(other)))),
-    }
-}
-
-fn parse_pulses(v: &Value, path: &str, ceiling: f64, budget: Option<f64>, min_sep: f64) -> Result<(DesignSpace, bool)> {
-    let mut f = Fields::new(v, path)?;
-    let count = f.opt_usize("count", "the number of pulses")?;
-    let max_count = f.opt_usize("max_count", "the largest number of pulses")?;
-    let (n, variable) = match (count, max_count) {
-        (Some(c), None) => (c, false),
-        (None, Some(m)) => (m, true),
-        (Some(_), Some(_)) => return Err(Error::input(join(path, "max_count"), "give either count or max_count, not both")),
-        (None, None) => return Err(Error::input(join(path, "count"), "missing; expected count (fixed number of pulses) or max_count (up to N)")),
-    };
-    if n == 0 || n > 12 {
-        return Err(Error::input(join(path, if variable { "max_count" } else { "count" }), format!("expected 1 to 12 pulses, got {n}")));
-    }
-    let shape = match f.opt_str("shape", PulseShape::NAMES)? {
-        None => PulseShape::Gaussian,
-        Some(s) => PulseShape::parse(s).ok_or_else(|| Error::input(join(path, "shape"), format!("expected {}, got \"{s}\"", PulseShape::NAMES)))?,
-    };
-    let rise_fs = f.opt_f64("rise_fs", "fs")?;
-    let cut_fs = match f.opt_value("cut_fs") {
-        Some(v) => parse_bounds(v, &join(path, "cut_fs"), "fs")?,
-        None => Bounds::fixed(0.0),
-    };
-    let fwhm = parse_bounds(f.req_value("fwhm_fs", "a duration in fs or {min, max}")?, &join(path, "fwhm_fs"), "fs")?;
-    let delay = match f.opt_value("delay_ps") {
-        Some(d) => parse_bounds(d, &join(path, "delay_ps"), "ps")?,
-        None if n > 1 => return Err(Error::input(join(path, "delay_ps"), "missing; expected {\"min\": .., \"max\": ..} in ps between consecutive pulses")),
-        None => Bounds::fixed(0.0),
-    };
-    let inten = match f.opt_value("peak_intensity_wcm2") {
-        Some(i) => parse_bounds(i, &join(path, "peak_intensity_wcm2"), "W/cm²")?,
-        None => Bounds { min: 0.0, max: ceiling },
-    };
-    let (angle_deg, ellipticity) = match f.opt_value("polarization") {
-        Some(v) => parse_polarization_bounds(v, &join(path, "polarization"))?,
-        None => (Bounds::fixed(0.0), Bounds::fixed(0.0)),
-    };
-    let mut pulses = vec![PulseBounds { delay_ps: delay, peak_intensity_wcm2: inten, fwhm_fs: fwhm, angle_deg, ellipticity, cut_fs }; n];
-    let two_colour = match f.opt_value("two_colour") {
-        None => None,
-        Some(v) => {
-            let p = join(path, "two_colour");
-            let mut g = Fields::new(v, &p)?;
-            let ratio = parse_bounds(g.req_value("second_harmonic_ratio", "a ratio or {min, max}")?, &join(&p, "second_harmonic_ratio"), "intensity ratio")?;
-            let phase_rad = match g.opt_value("phase_rad") {
-                Some(x) => parse_bounds(x, &join(&p, "phase_rad"), "rad")?,
-                None => Bounds { min: 0.0, max: 2.0 * std::f64::consts::PI },
-            };
-            g.finish()?;
-            if ratio.min < 0.0 || ratio.max > 10.0 {
-                return Err(Error::input(join(&p, "second_harmonic_ratio"), format!("expected ratios from 0 to 10, got [{}, {}]", ratio.min, ratio.max)));
-            }
-            Some(TwoColourBounds { ratio, phase_rad })
-        }
-    };
-    if let Some(each) = f.opt_value("each") {
-        let items =
-            each.as_array().ok_or_else(|| Error::input(join(path, "each"), format!("expected an array of per-pulse bounds, got {}", type_name(each))))?;
-        if items.len() > n {
-            return Err(Error::input(join(path, "each"), format!("expected at most {n} entries (one per pulse), got {}", items.len())));
-        }
-        for (k, item) in items.iter().enumerate() {
-            let pp = format!("{}[{k}]", join(path, "each"));
-            let mut g = Fields::new(item, &pp)?;
-            if let Some(d) = g.opt_value("delay_ps") {
-                if k == 0 {
-                    return Err(Error::input(join(&pp, "delay_ps"), "the first pulse defines t = 0 and has no delay"));
-                }
-                pulses[k].delay_ps = parse_bounds(d, &join(&pp, "delay_ps"), "ps")?;
-            }
-            if let Some(i) = g.opt_value("peak_intensity_wcm2") {
-                pulses[k].peak_intensity_wcm2 = parse_bounds(i, &join(&pp, "peak_intensity_wcm2"), "W/cm²")?;
-            }
-            if let Some(w) = g.opt_value("fwhm_fs") {
-                pulses[k].fwhm_fs = parse_bounds(w, &join(&pp, "fwhm_fs"), "fs")?;
-            }
-            if let Some(v) = g.opt_value("polarization") {
-                (pulses[k].angle_deg, pulses[k].ellipticity) = parse_polarization_bounds(v, &join(&pp, "polarization"))?;
-            }
-            if let Some(c) = g.opt_value("cut_fs") {
-                pulses[k].cut_fs = parse_bounds(c, &join(&pp, "cut_fs"), "fs")?;
-            }
-            g.finish()?;
-        }
-    }
-    f.finish()?;
-    let space = DesignSpace {
-        shape,
-        rise_fs,
-        pulses,
-        max_peak_intensity_wcm2: ceiling,
-        max_total_fluence_jcm2: budget,
-        min_separation_ps: min_sep,
-        static_field_kv_cm: None,
-        two_colour,
-        terahertz: None,
-    };
-    // Check each pulse shape through the pulse validator at the corners of its bounds (rise vs FWHM,
-    // switch-off within ±2 FWHM of the peak and only for truncated pulses). Errors name the template
-    // (`pulses.cut_fs`) or the pulse's entry under `each`.
-    for (k, p) in space.pulses.iter().enumerate() {
-        let at = if p.cut_fs != cut_fs { format!("{}[{k}]", join(path, "each")) } else { path.to_string() };
-        for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
-            for c in [p.cut_fs.min, p.cut_fs.max] {
-                let cut = (c != 0.0 || !p.cut_fs.is_fixed()).then_some(c);
-                let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape, rise_fs, cut_fs: cut, polarization: Default::default() };
-                pulse.validate(&at)?;
-            }
-        }
-    }
-    Ok((space, variable))
-}
-
-/// Bounds of a pulse's polarization: {"angle_deg": deg or {min, max}, "ellipticity": ratio or {min, max}}.
-fn parse_polarization_bounds(v: &Value, path: &str) -> Result<(Bounds, Bounds)> {
-    let mut f = Fields::new(v, path)?;
-    let angle = match f.opt_value("angle_deg") {
-        Some(a) => parse_bounds(a, &join(path, "angle_deg"), "degrees")?,
-        None => Bounds::fixed(0.0),
-    };
-    let ell = match f.opt_value("ellipticity") {
-        Some(e) => parse_bounds(e, &join(path, "ellipticity"), "minor-to-major field ratio")?,
-        None => Bounds::fixed(0.0),
-    };
-    f.finish()?;
-    if !angle.min.is_finite() || !angle.max.is_finite() || angle.max - angle.min > 360.0 {
-        return Err(Error::input(join(path, "angle_deg"), format!("expected finite angles spanning at most 360 degrees, got [{}, {}]", angle.min, angle.max)));
-    }
-    if !(0.0..=1.0).contains(&ell.min) || !(0.0..=1.0).contains(&ell.max) {
-        return Err(Error::input(join(path, "ellipticity"), format!("expected minor-to-major field ratios between 0 and 1, got [{}, {}]", ell.min, ell.max)));
-    }
-    Ok((angle, ell))
-}
-
-fn parse_search(v: &Value, path: &str) -> Result<SearchSettings> {
-    let mut f = Fields::new(v, path)?;
-    let d = SearchSettings::default();
-    let effort = match f.opt_str("effort", "\"quick\", \"normal\" or \"thorough\"")? {
-        None => Effort::Normal,
-        Some(name) => {
-            Effort::parse(name).ok_or_else(|| Error::input(join(path, "effort"), format!("expected \"quick\", \"normal\" or \"thorough\", got \"{name}\"")))?
-        }
-    };
-    let s = SearchSettings {
-        seed: f.opt_usize("seed", "a seed")?.map(|x| x as u64).unwrap_or(d.seed),
-        effort,
-        swarm_size: f.opt_usize("swarm_size", "particles")?,
-        iterations: f.opt_usize("iterations", "swarm iterations")?,
-        starts: f.opt_usize("starts", "independent starts")?,
-        max_starts: f.opt_usize("max_starts", "independent starts")?,
-        refine_candidates: f.opt_usize("refine_candidates", "candidates")?,
-        refine_iterations: f.opt_usize("refine_iterations", "iterations")?,
-        agreement: f.opt_f64("agreement", "units of the observable")?.unwrap_or(d.agreement),
-        time_limit_s: f.opt_f64("time_limit_s", "s")?,
-    };
-    f.finish()?;
-    for (name, val, lo, hi) in [
-        ("swarm_size", s.swarm_size, 2, 10_000),
-        ("iterations", s.iterations, 1, 100_000),
-        ("starts", s.starts, 1, 100),
-        ("max_starts", s.max_starts, 1, 100),
-        ("refine_candidates", s.refine_candidates, 1, 100),
-        ("refine_iterations", s.refine_iterations, 0, 100_000),
-    ] {
-        if let Some(val) = val
-            && (val < lo || val > hi)
-        {
-            return Err(Error::input(join(path, name), format!("expected a whole number from {lo} to {hi}, got {val}")));
-        }
-    }
-    if !(s.agreement > 0.0 && s.agreement <= 0.1) {
-        return Err(Error::input(
-            join(path, "agreement"),
-            format!("expected a tolerance above 0 and at most 0.1 (units of the observable), got {}", s.agreement),
-        ));
-    }
-    if let Some(t) = s.time_limit_s
-        && !(t > 0.0 && t <= 1e7)
-    {
-        return Err(Error::input(join(path, "time_limit_s"), format!("expected a time above 0 and at most 1e7 s, got {t}")));
-    }
-    Ok(s)
-}

@@ -369,6 +369,7 @@ impl Pulse {
 
 /// A static (DC) electric field along the laser polarization axis Z, switched on and off suddenly.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct StaticField {
     /// Field strength, kV/cm (a negative value points along −Z).
     pub strength_kv_cm: f64,
@@ -483,6 +484,7 @@ pub enum TerahertzWaveform {
 
 /// A single- or half-cycle terahertz pulse polarized along Z (not cycle-averaged: it acts on the dipole).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct TerahertzPulse {
     /// Centre, ps.
     pub center_ps: f64,

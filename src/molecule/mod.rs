@@ -8,7 +8,7 @@ mod top_library;
 pub use library::{LibraryEntry, Sourced, library};
 pub use top_library::{TopEntry, top_library};
 
-use crate::error::{Error, Result, require_non_negative, require_positive};
+use crate::error::{Error, Result, edit_distance, require_non_negative, require_positive};
 use serde::{Deserialize, Serialize};
 
 /// A linear molecule as the solver sees it.
@@ -232,22 +232,6 @@ impl Molecule {
             if suggestions.is_empty() { "run `kicktrain molecules` for the list".to_string() } else { format!("did you mean {}?", suggestions.join(", ")) };
         Err(Error::input(field, format!("unknown molecule '{name}'; {hint}")))
     }
-}
-
-/// Levenshtein distance between two strings (for name suggestions).
-fn edit_distance(a: &str, b: &str) -> usize {
-    let a: Vec<char> = a.chars().collect();
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for i in 1..=a.len() {
-        let mut cur = vec![i; b.len() + 1];
-        for j in 1..=b.len() {
-            let sub = prev[j - 1] + usize::from(a[i - 1] != b[j - 1]);
-            cur[j] = sub.min(prev[j] + 1).min(cur[j - 1] + 1);
-        }
-        prev = cur;
-    }
-    prev[b.len()]
 }
 
 #[cfg(test)]

@@ -87,7 +87,7 @@ pub fn design_summary(obj: &Objective, r: &DesignResult) -> Value {
         "description": obj.description,
         "molecule": obj.molecule().name,
         "temperature_k": obj.base.temperature_k,
-        "goal": g.to_value(),
+        "goal": serde_json::to_value(crate::input::scenario_file::GoalFile::from_goal(g)).expect("a goal serializes"),
         "observable": g.observable.name(),
         "score": num(best.full.value),
         "score_time_ps": best.full.t_ps,
