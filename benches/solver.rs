@@ -44,7 +44,7 @@ fn peer_job() {
     let mut worst: f64 = 0.0;
     for (i, line) in text.lines().filter(|l| !l.starts_with('#')).skip(1).enumerate() {
         let v: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
-        worst = worst.max((v[1] - r.trace.cos2[i]).abs()).max((v[2] - r.trace.cos2_2d[i]).abs());
+        worst = worst.max((v[1] - r.trace.cos2[i]).abs()).max((v[2] - r.trace.cos2_2d().unwrap()[i]).abs());
     }
     println!("linear solver, N2 300 K, 50 fs at 5e13 W/cm², 590 samples ({states} initial states)");
     println!("  kicktrain median of 21 runs: {ms:.1} ms; max |difference| from the reference trace: {worst:.1e}");
@@ -109,8 +109,8 @@ fn nanosecond_mixed_field() {
         "  one run: {:.1} s; at the peak ⟨cos²θ⟩ = {:.4}, ⟨cosθ⟩ = {:.4}; after the pulse ⟨cosθ⟩ = {:.4}",
         t0.elapsed().as_secs_f64(),
         r.trace.cos2[0],
-        r.trace.cos[0],
-        r.trace.cos[1]
+        r.trace.cos().unwrap()[0],
+        r.trace.cos().unwrap()[1]
     );
 }
 
@@ -214,7 +214,7 @@ fn three_axis() {
                 col("cos2_Za"),
                 col("cos2_Xb"),
                 col("cos2_Yc"),
-                if with_2d { format!(", ⟨cos²θ_2D⟩ {:.4}", r.trace.cos2_2d.iter().cloned().fold(0.0, f64::max)) } else { String::new() }
+                if with_2d { format!(", ⟨cos²θ_2D⟩ {:.4}", r.trace.cos2_2d().unwrap().iter().cloned().fold(0.0, f64::max)) } else { String::new() }
             );
         }
     }

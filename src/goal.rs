@@ -1,6 +1,8 @@
 //! Goals: what a design should achieve (peak, value at a time, mean, minimum of an alignment
 //! observable in a window after the last pulse). Data and parsing only; scoring lives in `observe`.
 
+use crate::error::{Error, Result};
+use crate::molecule::{Molecule, RotorKind};
 use serde::{Deserialize, Serialize};
 
 /// Which alignment observable a goal uses.
@@ -101,3 +103,14 @@ impl Goal {
     }
 }
 
+impl Goal {
+    /// Check that `molecule` has what the goal's observable reads (a three-axis goal needs a top);
+    /// errors name `{path}.observable`.
+    pub fn check_rotor(&self, molecule: &Molecule, path: &str) -> Result<()> {
+        if self.observable == Observable::ThreeAxis && molecule.kind() == RotorKind::Linear {
+            let at = if path.is_empty() { "observable".to_string() } else { format!("{path}.observable") };
+            return Err(Error::input(at, format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", molecule.name)));
+        }
+        Ok(())
+    }
+}

@@ -216,6 +216,12 @@ impl Scenario {
         for (i, tc) in self.field.two_colour.iter().enumerate() {
             let p = format!("{}[{i}]", join(path, "two_colour"));
             tc.validate(&p)?;
+            if self.molecule.kind() == crate::molecule::RotorKind::AsymmetricTop {
+                return Err(Error::input(
+                    p,
+                    format!("{} is an asymmetric top: a two-colour pulse would need its full hyperpolarizability tensor, which kicktrain does not take yet", self.molecule.name),
+                ));
+            }
             for (name, v) in [("beta_parallel_au", self.molecule.beta_parallel_au), ("beta_perpendicular_au", self.molecule.beta_perpendicular_au)] {
                 if v.is_none() {
                     return Err(Error::input(
@@ -237,14 +243,8 @@ impl Scenario {
                 ));
             }
         }
-        if let Some(g) = &self.goal
-            && g.observable == crate::goal::Observable::ThreeAxis
-            && self.molecule.top.is_none()
-        {
-            return Err(Error::input(
-                join(path, "goal.observable"),
-                format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", self.molecule.name),
-            ));
+        if let Some(g) = &self.goal {
+            g.check_rotor(&self.molecule, &join(path, "goal"))?;
         }
         if let Some(g) = &self.goal
             && g.observable == crate::goal::Observable::Cos

@@ -259,9 +259,9 @@ fn worst_difference(case: &str, columns: &[&str]) -> f64 {
         let col = r.columns.iter().position(|c| c == name).unwrap_or_else(|| panic!("{case}: no column {name}"));
         let ours = match *name {
             "cos2" => &tr.cos2,
-            "cos2_a" => &tr.cos2_a,
-            "cos2_b" => &tr.cos2_b,
-            "cos2_c" => &tr.cos2_c,
+            "cos2_a" => &tr.body_axes.as_ref().unwrap().a,
+            "cos2_b" => &tr.body_axes.as_ref().unwrap().b,
+            "cos2_c" => &tr.body_axes.as_ref().unwrap().c,
             _ => unreachable!(),
         };
         for (row, v) in r.rows.iter().zip(ours) {

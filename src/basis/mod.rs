@@ -40,6 +40,8 @@ pub enum BlockSymmetry {
     KaKc(i64, i64),
     /// A block of one parity of K (0 even, 1 odd).
     KParity(i64),
+    /// An M = 0 block of one parity of K and one sign under the reflection through a plane containing Z.
+    KParityReflection(i64, i64),
     /// An all-M chunk: its level class, its sign under the two-fold rotation about Y, and the parity of
     /// M when the fields conserve it.
     AllM {
@@ -62,6 +64,7 @@ impl BlockSymmetry {
                 BlockSymmetry::KaKc(a as i64, c as i64)
             }
             top::TopSym::KParity(p) => BlockSymmetry::KParity(p),
+            top::TopSym::Reflection { k_parity, sigma } => BlockSymmetry::KParityReflection(k_parity, sigma),
         }
     }
 }
@@ -76,6 +79,7 @@ impl std::fmt::Display for BlockSymmetry {
             BlockSymmetry::KM(k, m) => write!(f, "K={k}, M={m}"),
             BlockSymmetry::KaKc(a, c) => write!(f, "Ka {}, Kc {}", parity(*a), parity(*c)),
             BlockSymmetry::KParity(p) => write!(f, "K {}", parity(*p)),
+            BlockSymmetry::KParityReflection(p, sigma) => write!(f, "K {}, reflection {}", parity(*p), if *sigma > 0 { "+1" } else { "-1" }),
             BlockSymmetry::AllM { class, c2y, m_parity } => {
                 match class.as_ref() {
                     BlockSymmetry::JParity(p) => write!(f, "J {}", parity(*p as i64))?,

@@ -150,6 +150,16 @@ pub enum TopSym {
     },
     /// Asymmetric top with a dipole coupling along z: parity of K only.
     KParity(i64),
+    /// M = 0 with a dipole coupling along z: parity of K and the eigenvalue σ = ±1 of the reflection
+    /// through a lab plane containing Z, σ|J K 0⟩ = (−1)^K |J −K 0⟩ (it keeps the fields along Z and
+    /// turns the dipole operator cosθ into itself). Functions: (|J k⟩ + s|J −k⟩)/√2 with s = σ(−1)^k,
+    /// and |J 0⟩ in σ = +1.
+    Reflection {
+        /// Parity of K.
+        k_parity: i64,
+        /// Eigenvalue ±1 of the reflection.
+        sigma: i64,
+    },
 }
 
 impl TopSym {
@@ -233,6 +243,13 @@ impl TopBlock {
                     .collect()
             }
             TopSym::KParity(par) => (-j..=j).filter(|k| k.rem_euclid(2) == par).map(|k| BasisFunction { j, k, s: 0 }).collect(),
+            TopSym::Reflection { k_parity, sigma } => {
+                let s = sigma * if k_parity == 0 { 1 } else { -1 };
+                (0..=j)
+                    .filter(|k| k % 2 == k_parity)
+                    .filter_map(|k| if k == 0 { (sigma == 1).then_some(BasisFunction { j, k: 0, s: 0 }) } else { Some(BasisFunction { j, k, s }) })
+                    .collect()
+            }
         }
     }
 

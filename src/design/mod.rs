@@ -621,12 +621,7 @@ impl Objective {
         if goal.observable == Observable::Cos && obj.space.static_field_kv_cm.is_none() && obj.space.two_colour.is_none() && obj.space.terahertz.is_none() {
             return Err(Error::input("goal.observable", "⟨cosθ⟩ needs an orienting field: give static_field_kv_cm, pulses.two_colour or terahertz"));
         }
-        if goal.observable == Observable::ThreeAxis && obj.molecule().top.is_none() {
-            return Err(Error::input(
-                "goal.observable",
-                format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", obj.molecule().name),
-            ));
-        }
+        goal.check_rotor(obj.molecule(), "goal")?;
         let along_z = |p: &PulseBounds| {
             p.angle_deg.is_fixed()
                 && p.ellipticity.is_fixed()

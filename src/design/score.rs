@@ -12,13 +12,13 @@ use crate::scenario::Scenario;
 use crate::simulate::{RunProgress, Simulation, Solver};
 use std::sync::Arc;
 
-/// The series of `trace` that `observable` reads (empty when the run did not compute it).
-pub fn series(observable: Observable, trace: &Trace) -> &[f64] {
+/// The series of `trace` that `observable` reads (None when the run did not compute it).
+pub fn series(observable: Observable, trace: &Trace) -> Option<&[f64]> {
     match observable {
-        Observable::Cos2 => &trace.cos2,
-        Observable::Cos2TwoD => &trace.cos2_2d,
-        Observable::Cos => &trace.cos,
-        Observable::ThreeAxis => &trace.three_axis,
+        Observable::Cos2 => Some(&trace.cos2),
+        Observable::Cos2TwoD => trace.cos2_2d(),
+        Observable::Cos => trace.cos(),
+        Observable::ThreeAxis => trace.three_axis(),
     }
 }
 
@@ -27,11 +27,10 @@ pub fn series(observable: Observable, trace: &Trace) -> &[f64] {
 /// exact field-free expression where it applies; means use the exact time average when the window is
 /// field-free.
 pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> Score {
-    let series = series(goal.observable, trace);
-    if series.is_empty() {
-        // ⟨cosθ⟩ without any orienting field: zero by symmetry.
+    let Some(series) = series(goal.observable, trace).filter(|s| !s.is_empty()) else {
+        // No samples, or ⟨cosθ⟩ of a run without any orienting field: zero by symmetry.
         return Score { value: 0.0, t_ps: trace.times_ps.first().copied() };
-    }
+    };
     let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
     // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
     let field_free = match goal.observable {

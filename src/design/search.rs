@@ -321,16 +321,12 @@ impl<'a> Evaluator<'a> {
                         for (p, &(_, w)) in ps.iter().zip(&nodes).skip(1) {
                             total.add_scaled(w, p);
                         }
-                        let mut trace = Trace { times_ps: times.clone(), cos2: vec![0.0; times.len()], ..Default::default() };
-                        if self.with_2d {
-                            trace.cos2_2d = vec![0.0; times.len()];
-                        }
+                        let (mut cos2, mut cos2_2d) = (vec![0.0; times.len()], vec![0.0; times.len()]);
                         total.eval_series(&times, |k, (a, b)| {
-                            trace.cos2[k] = a;
-                            if self.with_2d {
-                                trace.cos2_2d[k] = b;
-                            }
+                            cos2[k] = a;
+                            cos2_2d[k] = b;
                         });
+                        let trace = Trace { times_ps: times.clone(), cos2, cos2_2d: self.with_2d.then_some(cos2_2d), ..Default::default() };
                         Some(super::score::score_goal(goal, &trace, &FreeSums::Levels(total), t_last))
                     }
                     _ => None,

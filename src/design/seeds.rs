@@ -167,7 +167,7 @@ pub fn seed_pool(obj: &Objective, space: &DesignSpace, solver: &Solver, previous
         let times: Vec<f64> = (0..=m).map(|i| t_last + b.min + (b.max - b.min) * i as f64 / m as f64).collect();
         match solver.run(&field, &times, obs == Observable::Cos2TwoD) {
             Ok(run) => {
-                let series = if obs == Observable::Cos2TwoD { &run.trace.cos2_2d } else { &run.trace.cos2 };
+                let series = if obs == Observable::Cos2TwoD { run.trace.cos2_2d().unwrap_or_default() } else { &run.trace.cos2 };
                 best_peaks(&times, series, sense, count, 0.02 * (b.max - b.min).max(1e-3)).into_iter().map(|t| t - t_last).collect()
             }
             Err(_) => vec![],

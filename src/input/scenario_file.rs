@@ -106,6 +106,12 @@ struct TopFile {
     spin_weights_by_ka_kc: Option<Vec<f64>>,
     #[serde(skip_serializing_if = "Option::is_none")]
     ionization_energy_ev: Option<f64>,
+    /// Hyperpolarizability along the figure axis of a symmetric top (atomic units, Taylor convention).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    beta_parallel_au: Option<f64>,
+    /// Hyperpolarizability across the figure axis.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    beta_perpendicular_au: Option<f64>,
 }
 
 fn is_zero(x: &f64) -> bool {
@@ -363,7 +369,10 @@ impl TopFile {
             (None, None) => TopSpinWeights::Equal,
         };
         let top = Top { dipole_axis, alignment_axis, spin_weights, ..probe };
-        Ok(Molecule::from_top(self.name.as_deref().unwrap_or("custom top"), top, self.dipole_debye, self.ionization_energy_ev))
+        let mut m = Molecule::from_top(self.name.as_deref().unwrap_or("custom top"), top, self.dipole_debye, self.ionization_energy_ev);
+        m.beta_parallel_au = self.beta_parallel_au;
+        m.beta_perpendicular_au = self.beta_perpendicular_au;
+        Ok(m)
     }
 
     fn from_top(m: &Molecule, t: &Top) -> TopFile {
@@ -388,6 +397,8 @@ impl TopFile {
             spin_weights_by_k: by_k,
             spin_weights_by_ka_kc: by_class,
             ionization_energy_ev: m.ionization_energy_ev,
+            beta_parallel_au: m.beta_parallel_au,
+            beta_perpendicular_au: m.beta_perpendicular_au,
         }
     }
 }

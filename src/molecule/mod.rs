@@ -205,6 +205,14 @@ impl Molecule {
                 if b.abs() > 1e5 {
                     return Err(Error::input(format!("{path}.{name}"), format!("expected |β| ≤ 1e5 atomic units (Taylor convention), got {b:e}")));
                 }
+                // β∥ and β⊥ are taken along and across a symmetry axis: a linear molecule's or a symmetric
+                // top's figure axis. An asymmetric top needs the full tensor, which kicktrain does not take.
+                if self.kind() == RotorKind::AsymmetricTop {
+                    return Err(Error::input(
+                        format!("{path}.{name}"),
+                        format!("{} is an asymmetric top; β∥ and β⊥ are taken only for linear molecules and symmetric tops (along the figure axis)", self.name),
+                    ));
+                }
             }
         }
         Ok(())

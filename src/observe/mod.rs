@@ -602,30 +602,57 @@ fn phase_product(ar: f64, ai: f64, br: f64, bi: f64) -> (f64, f64) {
     (ar * br + ai * bi, ai * br - ar * bi)
 }
 
-/// A sampled trace of alignment observables.
+/// A sampled trace of alignment observables. Every column a run may or may not compute is an
+/// `Option`: `None` means "not computed for this run", never an empty or zero-filled series.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Trace {
     /// Sample times, ps.
     pub times_ps: Vec<f64>,
-    /// ⟨cos²θ⟩ at each time.
+    /// ⟨cos²θ⟩ of the alignment axis at each time.
     pub cos2: Vec<f64>,
-    /// ⟨cos²θ_2D⟩ (= ⟨|cosθ|⟩ for an ensemble symmetric about Z) at each time; empty if not computed.
-    pub cos2_2d: Vec<f64>,
-    /// ⟨cosθ⟩ (orientation) at each time; empty when no field breaks head–tail symmetry.
-    pub cos: Vec<f64>,
-    /// ⟨cos³θ⟩ at each time; empty when no field breaks head–tail symmetry.
-    pub cos3: Vec<f64>,
-    /// Tops: ⟨cos²θ⟩ of the body a axis with Z at each time; empty for linear molecules.
-    pub cos2_a: Vec<f64>,
-    /// Tops: ⟨cos²θ⟩ of the body b axis with Z; empty for linear molecules.
-    pub cos2_b: Vec<f64>,
-    /// Tops: ⟨cos²θ⟩ of the body c axis with Z; empty for linear molecules.
-    pub cos2_c: Vec<f64>,
-    /// Tops: the three-axis goal's series, min(⟨cos²⟩ of the alignment axis with Z, ⟨cos²⟩ of the second
-    /// most polarizable axis with X); empty for linear molecules.
-    pub three_axis: Vec<f64>,
-    /// Fields not symmetric about Z: ⟨cos²⟩ of each body axis with each lab axis; empty otherwise.
+    /// ⟨cos²θ_2D⟩ (= ⟨|cosθ|⟩ for an ensemble symmetric about Z) at each time, when a goal, a focal
+    /// average or the caller asked for it.
+    pub cos2_2d: Option<Vec<f64>>,
+    /// ⟨cosθ⟩ and ⟨cos³θ⟩, when a field breaks head–tail symmetry.
+    pub orientation: Option<Orientation>,
+    /// ⟨cos²⟩ of each body axis with Z and the three-axis series, for tops.
+    pub body_axes: Option<BodyAxes>,
+    /// ⟨cos²⟩ of each body axis with each lab axis, when the field is not symmetric about Z (empty otherwise).
     pub lab_axes: Vec<LabAxisSeries>,
+}
+
+/// Orientation columns of a trace.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Orientation {
+    /// ⟨cosθ⟩ (of the dipole axis for tops) at each time.
+    pub cos: Vec<f64>,
+    /// ⟨cos³θ⟩ at each time (None when a search asked for ⟨cosθ⟩ alone).
+    pub cos3: Option<Vec<f64>>,
+}
+
+/// Body-axis columns of a top's trace.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct BodyAxes {
+    /// ⟨cos²⟩ of the body a axis with Z.
+    pub a: Vec<f64>,
+    /// ⟨cos²⟩ of the body b axis with Z.
+    pub b: Vec<f64>,
+    /// ⟨cos²⟩ of the body c axis with Z.
+    pub c: Vec<f64>,
+    /// The three-axis goal's series, min(⟨cos²⟩ of the alignment axis with Z, ⟨cos²⟩ of the second most
+    /// polarizable axis with X).
+    pub three_axis: Vec<f64>,
+}
+
+impl BodyAxes {
+    /// ⟨cos²⟩ of `axis` with Z.
+    pub fn axis(&self, axis: crate::molecule::top::BodyAxis) -> &[f64] {
+        match axis {
+            crate::molecule::top::BodyAxis::A => &self.a,
+            crate::molecule::top::BodyAxis::B => &self.b,
+            crate::molecule::top::BodyAxis::C => &self.c,
+        }
+    }
 }
 
 /// ⟨cos²⟩ of one body axis with one lab axis at each sample.
@@ -659,6 +686,75 @@ pub struct Extremum {
 }
 
 impl Trace {
+    /// ⟨cos²θ_2D⟩, if computed.
+    pub fn cos2_2d(&self) -> Option<&[f64]> {
+        self.cos2_2d.as_deref()
+    }
+
+    /// ⟨cosθ⟩, if a field oriented the molecule.
+    pub fn cos(&self) -> Option<&[f64]> {
+        self.orientation.as_ref().map(|o| o.cos.as_slice())
+    }
+
+    /// ⟨cos³θ⟩, if a field oriented the molecule.
+    pub fn cos3(&self) -> Option<&[f64]> {
+        self.orientation.as_ref().and_then(|o| o.cos3.as_deref())
+    }
+
+    /// ⟨cos²⟩ of a top's body axis with Z (None for linear molecules).
+    pub fn body_axis(&self, axis: crate::molecule::top::BodyAxis) -> Option<&[f64]> {
+        self.body_axes.as_ref().map(|b| b.axis(axis))
+    }
+
+    /// The three-axis series of a top (None for linear molecules).
+    pub fn three_axis(&self) -> Option<&[f64]> {
+        self.body_axes.as_ref().map(|b| b.three_axis.as_slice())
+    }
+
+    /// Every sampled series but the times, mutably (for weighted sums of traces).
+    fn series_mut(&mut self) -> Vec<&mut Vec<f64>> {
+        let mut out = vec![&mut self.cos2];
+        out.extend(self.cos2_2d.as_mut());
+        if let Some(o) = self.orientation.as_mut() {
+            out.push(&mut o.cos);
+            out.extend(o.cos3.as_mut());
+        }
+        if let Some(b) = self.body_axes.as_mut() {
+            out.extend([&mut b.a, &mut b.b, &mut b.c, &mut b.three_axis]);
+        }
+        out.extend(self.lab_axes.iter_mut().map(|s| &mut s.values));
+        out
+    }
+
+    /// Multiply every series by `w`.
+    pub fn scale(&mut self, w: f64) {
+        for series in self.series_mut() {
+            series.iter_mut().for_each(|v| *v *= w);
+        }
+    }
+
+    /// Every sampled series but the times, in the order of [`Trace::series_mut`].
+    fn series(&self) -> Vec<&Vec<f64>> {
+        let mut out = vec![&self.cos2];
+        out.extend(self.cos2_2d.as_ref());
+        if let Some(o) = self.orientation.as_ref() {
+            out.push(&o.cos);
+            out.extend(o.cos3.as_ref());
+        }
+        if let Some(b) = self.body_axes.as_ref() {
+            out.extend([&b.a, &b.b, &b.c, &b.three_axis]);
+        }
+        out.extend(self.lab_axes.iter().map(|s| &s.values));
+        out
+    }
+
+    /// Add `w` times `other` (a trace of the same kind of run on the same times) to every series.
+    pub fn add_scaled(&mut self, w: f64, other: &Trace) {
+        for (a, b) in self.series_mut().into_iter().zip(other.series()) {
+            a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
+        }
+    }
+
     /// ⟨cos²⟩ of `body` with `lab` (None when the run did not compute it).
     pub fn lab_axis(&self, lab: crate::basis::lab::LabAxis, body: Option<crate::molecule::top::BodyAxis>) -> Option<&[f64]> {
         self.lab_axes.iter().find(|s| s.lab == lab && s.body == body).map(|s| s.values.as_slice())

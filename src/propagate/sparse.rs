@@ -45,6 +45,20 @@ impl Csr {
         Csr { n, row_ptr, col, val }
     }
 
+    /// Σ c_i A_i of matrices stored on one pattern (the same rows and columns, as built from the same
+    /// triplet positions); panics when the patterns differ.
+    pub fn combination(parts: &[(&Csr, f64)]) -> Csr {
+        let (first, _) = parts[0];
+        let mut val = vec![0.0; first.val.len()];
+        for (m, c) in parts {
+            assert!(m.row_ptr == first.row_ptr && m.col == first.col, "Csr::combination: the matrices do not share one pattern");
+            for (v, x) in val.iter_mut().zip(&m.val) {
+                *v += c * x;
+            }
+        }
+        Csr { n: first.n, row_ptr: first.row_ptr.clone(), col: first.col.clone(), val }
+    }
+
     /// The matrix as a dense one (for checks).
     pub fn to_dense(&self) -> DMatrix<f64> {
         let mut m = DMatrix::zeros(self.n, self.n);

@@ -192,16 +192,15 @@ pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Pa
     write_file(dir, "design.json", &(serde_json::to_string_pretty(&replay).expect("json") + "\n"))?;
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
     let bt = &base.result.trace;
-    let extra: Vec<(&str, &[f64])> = [("baseline_cos2", &bt.cos2), ("baseline_cos2_2d", &bt.cos2_2d), ("baseline_three_axis", &bt.three_axis)]
+    let extra: Vec<(&str, &[f64])> = [("baseline_cos2", Some(bt.cos2.as_slice())), ("baseline_cos2_2d", bt.cos2_2d()), ("baseline_three_axis", bt.three_axis())]
         .into_iter()
-        .filter(|(_, s)| !s.is_empty())
-        .map(|(n, s)| (n, s.as_slice()))
+        .filter_map(|(n, s)| s.filter(|s| !s.is_empty()).map(|s| (n, s)))
         .collect();
     write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
     let mut plot = super::alignment_plot(scenario, &sim.result.trace, "Optimized pulse train");
     plot.y_label = "alignment".into();
     let obs = obj.goal.observable;
-    let base_series = crate::design::score::series(obs, &base.result.trace).to_vec();
+    let base_series = crate::design::score::series(obs, &base.result.trace).unwrap_or_default().to_vec();
     let label = match obs {
         crate::goal::Observable::Cos2 => "best single pulse ⟨cos²θ⟩",
         crate::goal::Observable::Cos2TwoD => "best single pulse ⟨cos²θ_2D⟩",
@@ -212,7 +211,7 @@ pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Pa
         plot.series.push(svg::Series {
             label: "three-axis goal".into(),
             x: sim.result.trace.times_ps.clone(),
-            y: sim.result.trace.three_axis.clone(),
+            y: sim.result.trace.three_axis().unwrap_or_default().to_vec(),
             color: svg::VIOLET.into(),
             dashed: false,
             width: 1.8,

@@ -102,9 +102,10 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
                 "polarizability_a3": {"a": t.polarizability_a3[0], "b": t.polarizability_a3[1], "c": t.polarizability_a3[2]},
                 "delta_alpha_a3": da, "alignment_axis": t.alignment_axis.letter(), "spin_weights": t.spin_weights}),
         },
-        "body_axes": if tr.cos2_a.is_empty() { Value::Null } else {
-            json!({"peak_cos2_a": extremum(tr.max_after(&tr.cos2_a, after)), "peak_cos2_b": extremum(tr.max_after(&tr.cos2_b, after)),
-                "peak_cos2_c": extremum(tr.max_after(&tr.cos2_c, after))})
+        "body_axes": match &tr.body_axes {
+            None => Value::Null,
+            Some(b) => json!({"peak_cos2_a": extremum(tr.max_after(&b.a, after)), "peak_cos2_b": extremum(tr.max_after(&b.b, after)),
+                "peak_cos2_c": extremum(tr.max_after(&b.c, after))}),
         },
         "lab_axes": if tr.lab_axes.is_empty() { Value::Null } else {
             Value::Object(tr.lab_axes.iter().map(|s| (format!("peak_{}", s.name), extremum(tr.max_after(&s.values, after)))).collect())
@@ -113,16 +114,15 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         "pulses": pulses,
         "after_last_pulse_from_ps": if after.is_finite() { json!(after) } else { Value::Null },
         "peak_cos2": extremum(tr.max_after(&tr.cos2, after)),
-        "peak_cos2_2d": extremum(tr.max_after(&tr.cos2_2d, after)),
+        "peak_cos2_2d": extremum(tr.cos2_2d().and_then(|c| tr.max_after(c, after))),
         "min_cos2": extremum(tr.min_after(&tr.cos2, after)),
-        "min_cos2_2d": extremum(tr.min_after(&tr.cos2_2d, after)),
+        "min_cos2_2d": extremum(tr.cos2_2d().and_then(|c| tr.min_after(c, after))),
         "static_field": s.field.static_field,
         "two_colour": s.field.two_colour,
         "terahertz": s.field.terahertz,
-        "peak_orientation": if tr.cos.is_empty() { Value::Null } else {
-            let hi = tr.max_after(&tr.cos, after);
-            let lo = tr.min_after(&tr.cos, after);
-            match (hi, lo) {
+        "peak_orientation": match tr.cos() {
+            None => Value::Null,
+            Some(cos) => match (tr.max_after(cos, after), tr.min_after(cos, after)) {
                 (Some(h), Some(l)) => {
                     let e = if h.value.abs() >= l.value.abs() { h } else { l };
                     json!({"cos": e.value, "t_ps": e.t_ps, "sign": if e.value >= 0.0 { "+Z" } else { "-Z" }})
@@ -134,7 +134,7 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         "focal_average": match (&s.focal_average, &sim.averaged) {
             (Some(a), Some(av)) => {
                 let t = &av.trace;
-                json!({"settings": a, "peak_cos2": extremum(t.max_after(&t.cos2, after)), "peak_cos2_2d": extremum(t.max_after(&t.cos2_2d, after)),
+                json!({"settings": a, "peak_cos2": extremum(t.max_after(&t.cos2, after)), "peak_cos2_2d": extremum(t.cos2_2d().and_then(|c| t.max_after(c, after))),
                     "min_cos2": extremum(t.min_after(&t.cos2, after)), "permanent_cos2": num(av.permanent_cos2)})
             }
             _ => Value::Null,
@@ -160,17 +160,15 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
 /// The trace as CSV text with columns `t_ps,cos2,cos2_2d` (and any extra named columns).
 pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     let mut cols: Vec<(&str, &[f64])> = vec![];
-    if !trace.cos2_a.is_empty() {
-        cols.push(("cos2_a", &trace.cos2_a));
-        cols.push(("cos2_b", &trace.cos2_b));
-        cols.push(("cos2_c", &trace.cos2_c));
+    if let Some(b) = &trace.body_axes {
+        cols.extend([("cos2_a", b.a.as_slice()), ("cos2_b", &b.b), ("cos2_c", &b.c)]);
     }
-    if !trace.cos.is_empty() {
-        cols.push(("cos", &trace.cos));
-        cols.push(("cos3", &trace.cos3));
+    if let Some(o) = &trace.orientation {
+        cols.push(("cos", o.cos.as_slice()));
+        cols.extend(o.cos3.as_deref().map(|c| ("cos3", c)));
     }
-    if !trace.three_axis.is_empty() {
-        cols.push(("three_axis", &trace.three_axis));
+    if let Some(b) = &trace.body_axes {
+        cols.push(("three_axis", &b.three_axis));
     }
     for s in &trace.lab_axes {
         cols.push((s.name.as_str(), s.values.as_slice()));
@@ -180,8 +178,8 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     cols.retain(|(_, c)| c.len() == trace.times_ps.len());
     let extra = &cols[..];
     let mut out = String::from("t_ps,cos2");
-    let has_2d = trace.cos2_2d.len() == trace.times_ps.len() && !trace.cos2_2d.is_empty();
-    if has_2d {
+    let cos2_2d = trace.cos2_2d().filter(|c| c.len() == trace.times_ps.len() && !c.is_empty());
+    if cos2_2d.is_some() {
         out.push_str(",cos2_2d");
     }
     for (name, _) in extra {
@@ -191,8 +189,8 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     out.push('\n');
     for i in 0..trace.times_ps.len() {
         out.push_str(&format!("{:.6},{:.10}", trace.times_ps[i], trace.cos2[i]));
-        if has_2d {
-            out.push_str(&format!(",{:.10}", trace.cos2_2d[i]));
+        if let Some(c) = cos2_2d {
+            out.push_str(&format!(",{:.10}", c[i]));
         }
         for (_, col) in extra {
             out.push_str(&format!(",{:.10}", col[i]));
@@ -225,10 +223,10 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         dashed: false,
         width: 1.6,
     });
-    if let Some(t) = &scenario.molecule.top {
+    if let (Some(t), Some(b)) = (&scenario.molecule.top, &trace.body_axes) {
         // The other two body axes, dashed (their sum with the alignment axis is 1).
-        for (i, (series, color)) in [(&trace.cos2_a, svg::AXIS_A), (&trace.cos2_b, svg::NEUTRAL), (&trace.cos2_c, svg::NEUTRAL_LIGHT)].into_iter().enumerate() {
-            if i != t.alignment_axis.index() && !series.is_empty() {
+        for (i, (series, color)) in [(&b.a, svg::AXIS_A), (&b.b, svg::NEUTRAL), (&b.c, svg::NEUTRAL_LIGHT)].into_iter().enumerate() {
+            if i != t.alignment_axis.index() {
                 plot.series.push(svg::Series {
                     label: format!("⟨cos²θ⟩ ({} axis{with_z})", ["a", "b", "c"][i]),
                     x: trace.times_ps.clone(),
@@ -253,21 +251,21 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
             });
         }
     }
-    if !trace.cos2_2d.is_empty() {
+    if let Some(c) = trace.cos2_2d() {
         plot.series.push(svg::Series {
             label: "⟨cos²θ_2D⟩".into(),
             x: trace.times_ps.clone(),
-            y: trace.cos2_2d.clone(),
+            y: c.to_vec(),
             color: svg::PROJECTED.into(),
             dashed: false,
             width: 1.6,
         });
     }
-    if !trace.cos.is_empty() {
+    if let Some(cos) = trace.cos() {
         plot.series.push(svg::Series {
             label: "⟨cosθ⟩".into(),
             x: trace.times_ps.clone(),
-            y: trace.cos.clone(),
+            y: cos.to_vec(),
             color: svg::ORIENTATION.into(),
             dashed: false,
             width: 1.6,
@@ -293,7 +291,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         plot.markers.push(svg::Marker { x0: (p.center_ps - h).min(x1), x1, label: format!("pulse {}", i + 1), color: svg::PULSE.into() });
     }
     plot.hlines.push(svg::HLine { y: 1.0 / 3.0, label: "isotropic 1/3".into(), color: svg::ALIGNMENT.into() });
-    if !trace.cos2_2d.is_empty() {
+    if trace.cos2_2d.is_some() {
         plot.hlines.push(svg::HLine { y: 0.5, label: "isotropic 2D 1/2".into(), color: svg::PROJECTED.into() });
     }
     plot
@@ -313,10 +311,8 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
     let mut extra: Vec<(&str, &[f64])> = vec![];
     if let Some(av) = &sim.averaged {
         extra.push(("cos2_avg", &av.trace.cos2));
-        extra.push(("cos2_2d_avg", &av.trace.cos2_2d));
-        if !av.trace.cos.is_empty() {
-            extra.push(("cos_avg", &av.trace.cos));
-        }
+        extra.extend(av.trace.cos2_2d().map(|c| ("cos2_2d_avg", c)));
+        extra.extend(av.trace.cos().map(|c| ("cos_avg", c)));
     }
     write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
     let title = sim.scenario.description.clone().unwrap_or_else(|| "Field-free alignment".to_string());
@@ -333,7 +329,7 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
         plot.series.push(svg::Series {
             label: "⟨cos²θ_2D⟩ focal average".into(),
             x: av.trace.times_ps.clone(),
-            y: av.trace.cos2_2d.clone(),
+            y: av.trace.cos2_2d().unwrap_or_default().to_vec(),
             color: svg::PROJECTED.into(),
             dashed: true,
             width: 1.4,

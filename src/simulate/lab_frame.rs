@@ -804,8 +804,8 @@ impl Coefficients {
 pub struct LabRun {
     /// ⟨Φ_Fg²⟩(t): [lab axis X, Y, Z][frame position z, x, y] per sample time.
     pub values: [[Vec<f64>; 3]; 3],
-    /// ⟨cos²θ_2D⟩ of the alignment axis per sample time (empty when not computed).
-    pub cos2_2d: Vec<f64>,
+    /// ⟨cos²θ_2D⟩ of the alignment axis per sample time (None when not computed).
+    pub cos2_2d: Option<Vec<f64>>,
     /// Coherence sums after the last event (parts 3F + frame position; part 9 ⟨cos²θ_2D⟩ when computed).
     pub final_sums: PairSums,
     /// One report per block (largest basis and edge population over its chunks).
@@ -1225,7 +1225,7 @@ impl LabSolver {
                 *series = values.iter().map(|v| v[direction_part(f, g)]).collect();
             }
         }
-        let cos2_2d = if with_2d { values.iter().map(|v| v[TWO_D_PART]).collect() } else { vec![] };
+        let cos2_2d = with_2d.then(|| values.iter().map(|v| v[TWO_D_PART]).collect());
         let mut blocks: Vec<_> = reports.into_iter().collect();
         blocks.sort_by_key(|b| (b.0.0, -b.0.1, b.0.2));
         Ok(LabRun { values: out, cos2_2d, final_sums, blocks: blocks.into_iter().map(|b| b.1).collect() })

@@ -21,8 +21,10 @@ use nalgebra::DMatrix;
 use rayon::prelude::*;
 
 pub mod batch;
+pub mod coupling;
 pub(crate) mod driver;
 pub mod lab_frame;
+pub mod oriented_top;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -125,12 +127,8 @@ impl RunResult {
 
 /// The three-axis series min(⟨cos²⟩ alignment axis with Z, ⟨cos²⟩ second axis with X) from a top's
 /// trace: the X column when pulses were polarized away from Z, else (1 − ⟨cos²⟩ with Z)/2 (symmetric about Z).
-fn three_axis_of_averages(top: &crate::molecule::top::Top, trace: &Trace) -> Vec<f64> {
-    let by_axis = |a: BodyAxis| match a {
-        BodyAxis::A => &trace.cos2_a,
-        BodyAxis::B => &trace.cos2_b,
-        BodyAxis::C => &trace.cos2_c,
-    };
+fn three_axis_of_averages(top: &crate::molecule::top::Top, axes: &crate::observe::BodyAxes, trace: &Trace) -> Vec<f64> {
+    let by_axis = |a: BodyAxis| axes.axis(a);
     let z = by_axis(top.alignment_axis);
     let second = top.second_axis();
     match trace.lab_axis(crate::basis::lab::LabAxis::X, Some(second)) {
@@ -151,14 +149,9 @@ pub(crate) fn pulse_kicks(p: &crate::field::Pulse, index: usize, da: f64, nodes:
 const ALL_POLAR: [bool; POLAR_OBSERVABLES] = [true; POLAR_OBSERVABLES];
 
 /// The polar series of a run, with the ones not computed left empty.
-fn polar_series(values: [Vec<f64>; POLAR_OBSERVABLES], wanted: [bool; POLAR_OBSERVABLES]) -> [Vec<f64>; POLAR_OBSERVABLES] {
-    let mut out = values;
-    for (v, w) in out.iter_mut().zip(wanted) {
-        if !w {
-            v.clear();
-        }
-    }
-    out
+fn polar_series(values: [Vec<f64>; POLAR_OBSERVABLES], wanted: [bool; POLAR_OBSERVABLES]) -> (Vec<f64>, Option<Vec<f64>>, Option<crate::observe::Orientation>) {
+    let [cos2, cos2_2d, cos, cos3] = values;
+    (cos2, wanted[1].then_some(cos2_2d), wanted[2].then_some(crate::observe::Orientation { cos, cos3: wanted[3].then_some(cos3) }))
 }
 
 /// Key of cached block operators: (|M|, parity, size, with ⟨cos²θ_2D⟩).
@@ -177,6 +170,8 @@ pub struct Solver {
     polar_cache: Mutex<HashMap<(u32, usize), Arc<PolarOps>>>,
     /// The all-M solver for fields not symmetric about Z, built on first use.
     lab: std::sync::OnceLock<lab_frame::LabSolver>,
+    /// The solver for an asymmetric top in orienting fields (its own frame and blocks), built on first use.
+    oriented: std::sync::OnceLock<Result<oriented_top::OrientedTopSolver>>,
     /// Blocks started and finished by this solver's runs (for a progress display).
     pub progress: Arc<RunProgress>,
 }
@@ -253,6 +248,7 @@ impl Solver {
                 cache: Mutex::new(HashMap::new()),
                 polar_cache: Mutex::new(HashMap::new()),
                 lab: Default::default(),
+                oriented: Default::default(),
                 progress,
             });
         }
@@ -265,6 +261,7 @@ impl Solver {
             cache: Mutex::new(HashMap::new()),
             polar_cache: Mutex::new(HashMap::new()),
             lab: Default::default(),
+            oriented: Default::default(),
             progress: Arc::new(RunProgress::default()),
         })
     }
@@ -288,6 +285,17 @@ impl Solver {
             Rotor::Top(t) => Some(t),
             _ => None,
         }
+    }
+
+    /// The solver for a top in orienting fields along Z, built on first use.
+    fn oriented(&self) -> Result<&oriented_top::OrientedTopSolver> {
+        let built = self.oriented.get_or_init(|| {
+            let t = self.top().ok_or_else(|| Error::Numerical("the oriented-top path needs a top".into()))?;
+            let mut o = oriented_top::OrientedTopSolver::new(&self.molecule, t.ensemble.temperature_k, self.settings)?;
+            o.progress = self.progress.clone();
+            Ok(o)
+        });
+        built.as_ref().map_err(Clone::clone)
     }
 
     /// Highest J of the thermal ensemble.
@@ -315,6 +323,7 @@ impl Solver {
         }
         match self.molecule.kind() {
             RotorKind::SymmetricTop if field.is_polar() => RunPath::PolarTop,
+            RotorKind::AsymmetricTop if field.is_polar() => RunPath::OrientedTop,
             RotorKind::SymmetricTop | RotorKind::AsymmetricTop => RunPath::Top,
             RotorKind::Linear if field.is_polar() || self.settings.both_parities => RunPath::Polar,
             RotorKind::Linear => RunPath::Linear,
@@ -327,6 +336,11 @@ impl Solver {
         let spans: Vec<(f64, f64, f64)> = match (self.path(field), self.top()) {
             (RunPath::PolarTop, Some(t)) => polar_spans(&self.figure_axis_view(t).polar_schedule(field).0),
             (RunPath::Top | RunPath::AllM, Some(t)) => finite_spans(&t.schedule(field)),
+            (RunPath::OrientedTop, _) => {
+                let (a, b) = field.all_intervals().iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), s| (a.min(s.0), b.max(s.1)));
+                let (a, b) = if a.is_finite() { (a, b) } else { (0.0, 0.0) };
+                self.oriented().map(|o| finite_spans(&o.schedule(field, a, b))).unwrap_or_default()
+            }
             (RunPath::Polar, _) => polar_spans(&self.polar_schedule(field).0),
             _ => finite_spans(&self.schedule(field)),
         };
@@ -386,6 +400,9 @@ impl Solver {
         let mut m = Molecule::linear(&self.molecule.name, t.top.b_cm, 0.0, t.top.alpha(fig), t.top.alpha(across), [1.0, 1.0]);
         m.dipole_debye = self.molecule.dipole_debye;
         m.ionization_energy_ev = self.molecule.ionization_energy_ev;
+        // β∥ and β⊥ of a symmetric top are given along and across its figure axis.
+        m.beta_parallel_au = self.molecule.beta_parallel_au;
+        m.beta_perpendicular_au = self.molecule.beta_perpendicular_au;
         Solver {
             molecule: m,
             rotor: Rotor::FigureAxis { j_max: t.ensemble.j_max as u32 },
@@ -393,6 +410,7 @@ impl Solver {
             cache: Mutex::new(HashMap::new()),
             polar_cache: Mutex::new(HashMap::new()),
             lab: Default::default(),
+            oriented: Default::default(),
             progress: self.progress.clone(),
         }
     }
@@ -574,21 +592,19 @@ impl Solver {
             Some(t) => (frame.position(t.top.alignment_axis), Some(frame.position(t.top.second_axis()))),
             None => (0, None),
         };
-        let three_axis = match second_pos {
-            Some(s) => run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
-            None => vec![],
-        };
-        let body = |i: usize| if lab.rotor.linear { vec![] } else { run.values[2][positions[i]].clone() };
+        let body_axes = second_pos.filter(|_| !lab.rotor.linear).map(|s| crate::observe::BodyAxes {
+            a: run.values[2][positions[0]].clone(),
+            b: run.values[2][positions[1]].clone(),
+            c: run.values[2][positions[2]].clone(),
+            three_axis: run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
+        });
         let trace = Trace {
             times_ps: times_ps.to_vec(),
             cos2: run.values[2][align_pos].clone(),
-            cos2_a: body(0),
-            cos2_b: body(1),
-            cos2_c: body(2),
-            three_axis,
+            body_axes,
             lab_axes,
             cos2_2d: run.cos2_2d,
-            ..Default::default()
+            orientation: None,
         };
         let statics = run.final_sums.statics();
         let z_align = lab_frame::direction_part(2, align_pos);
@@ -620,7 +636,7 @@ impl Solver {
         let wanted = [true, with_2d, observable == Observable::Cos, false];
         match self.top() {
             Some(t) if self.molecule.kind() == RotorKind::SymmetricTop => self.figure_axis_view(t).run_polar_top(t, field, times_ps, wanted),
-            Some(t) => t.run(field, times_ps, with_2d),
+            Some(_) => self.oriented()?.run(field, times_ps, with_2d),
             None => self.run_polar(field, times_ps, wanted),
         }
     }
@@ -635,6 +651,7 @@ impl Solver {
         match (self.path(field), self.top()) {
             (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
             (RunPath::PolarTop, Some(t)) => return self.figure_axis_view(t).run_polar_top(t, field, times_ps, ALL_POLAR),
+            (RunPath::OrientedTop, _) => return self.oriented()?.run(field, times_ps, with_2d),
             (RunPath::Top, Some(t)) => return t.run(field, times_ps, with_2d),
             (RunPath::Polar, _) => return self.run_polar(field, times_ps, ALL_POLAR),
             _ => {}
@@ -702,7 +719,7 @@ impl Solver {
         let t_end = events.last().map(|e| e.span().1).or(times_ps.first().copied()).unwrap_or(0.0);
         let final_sums = merge(t_end, &|o: &BlockOutcome| &o.final_sums);
         let blocks = outcomes.into_iter().map(|o| o.report).collect();
-        let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: if with_2d { c2d } else { vec![] }, ..Default::default() };
+        let trace = Trace { times_ps: times_ps.to_vec(), cos2, cos2_2d: with_2d.then_some(c2d), ..Default::default() };
         Ok(RunResult {
             trace,
             permanent_cos2: final_sums.cos2_static,
@@ -893,31 +910,11 @@ impl Solver {
             match &mut out {
                 None => {
                     let mut first = r;
-                    let t = &mut first.trace;
-                    for series in [&mut t.cos2, &mut t.cos2_2d, &mut t.cos, &mut t.cos3, &mut t.cos2_a, &mut t.cos2_b, &mut t.cos2_c] {
-                        series.iter_mut().for_each(|v| *v *= w);
-                    }
-                    for series in t.lab_axes.iter_mut() {
-                        series.values.iter_mut().for_each(|v| *v *= w);
-                    }
+                    first.trace.scale(w);
                     out = Some(first);
                 }
                 Some(acc) => {
-                    let pairs = [
-                        (&mut acc.trace.cos2, &r.trace.cos2),
-                        (&mut acc.trace.cos2_2d, &r.trace.cos2_2d),
-                        (&mut acc.trace.cos, &r.trace.cos),
-                        (&mut acc.trace.cos3, &r.trace.cos3),
-                        (&mut acc.trace.cos2_a, &r.trace.cos2_a),
-                        (&mut acc.trace.cos2_b, &r.trace.cos2_b),
-                        (&mut acc.trace.cos2_c, &r.trace.cos2_c),
-                    ];
-                    for (a, b) in pairs {
-                        a.iter_mut().zip(b).for_each(|(x, y)| *x += w * y);
-                    }
-                    for (a, b) in acc.trace.lab_axes.iter_mut().zip(&r.trace.lab_axes) {
-                        a.values.iter_mut().zip(&b.values).for_each(|(x, y)| *x += w * y);
-                    }
+                    acc.trace.add_scaled(w, &r.trace);
                     for (a, b) in acc.blocks.iter_mut().zip(&r.blocks) {
                         if b.j_max > a.j_max {
                             *a = b.clone();
@@ -928,8 +925,9 @@ impl Solver {
         }
         let mut r = out.expect("at least two quadrature points");
         // The three-axis goal of the average is the smaller of the two averaged values (not a mean of minima).
-        if let Some(t) = self.top() {
-            r.trace.three_axis = three_axis_of_averages(&t.top, &r.trace);
+        if let (Some(top), Some(axes)) = (&self.molecule.top, &r.trace.body_axes) {
+            let three_axis = three_axis_of_averages(top, axes, &r.trace);
+            r.trace.body_axes.as_mut().expect("checked above").three_axis = three_axis;
         }
         r.permanent_cos2 = perm;
         r.permanent_cos2_2d = perm2d;
@@ -992,6 +990,8 @@ enum RunPath {
     PolarTop,
     /// A top in a field symmetric about Z that does not orient it.
     Top,
+    /// An asymmetric top in an orienting field along Z.
+    OrientedTop,
     /// A linear molecule in one block per |M| holding both parities.
     Polar,
     /// A linear molecule in (|M|, parity) blocks.
@@ -1080,7 +1080,7 @@ impl Solver {
                 // The largest coupling rate in the interval (every element, sampled densely).
                 let mut peak: f64 = 0.0;
                 for k in 0..=400 {
-                    let r = field.rates(lo + (hi - lo) * k as f64 / 400.0, mol);
+                    let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, mol);
                     peak = peak.max(r.u1.abs()).max(r.u2.abs()).max(r.u3.abs());
                 }
                 let step_ps = LINEAR_STEP.step_ps(&self.settings, shortest, d_omega, peak);
@@ -1118,15 +1118,15 @@ impl Solver {
             self.progress.plan(pops.len());
             pops.par_iter()
                 .map(|bp| {
-                    let r = self.run_polar_block(bp, field, &items, times, t_first, extra, wanted);
+                    let r = self.run_polar_block(bp, &PolarRun { field, items: &items, times, t_first, wanted }, extra);
                     self.progress.finish_one();
                     r
                 })
                 .collect::<Result<Vec<_>>>()?
         };
         let (values, permanent, blocks) = sum_polar(outcomes, times.len());
-        let [cos2, cos2_2d, cos, cos3] = polar_series(values, wanted);
-        let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, cos, cos3, ..Default::default() };
+        let (cos2, cos2_2d, orientation) = polar_series(values, wanted);
+        let trace = Trace { times_ps: times.to_vec(), cos2, cos2_2d, orientation, ..Default::default() };
         // Coherence sums by J do not apply in a static field: goals are scored on the samples alone.
         let mut final_sums = LevelSums::new(vec![], f64::INFINITY, false);
         final_sums.cos2_static = permanent[0];
@@ -1144,16 +1144,7 @@ impl Solver {
 
     /// One |M| block with both parities: returns per-observable contributions, time averages after the
     /// last item, and the report. Grows the basis until the edge population is below tolerance.
-    fn run_polar_block(
-        &self,
-        bp: &BlockPopulation,
-        field: &FieldModel,
-        items: &[PolarItem],
-        times: &[f64],
-        t_first: f64,
-        extra: usize,
-        wanted: [bool; POLAR_OBSERVABLES],
-    ) -> Result<(Vec<Vec<f64>>, Vec<f64>, BlockReport)> {
+    fn run_polar_block(&self, bp: &BlockPopulation, run: &PolarRun, extra: usize) -> Result<PolarOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
         let first = Block::size_to_reach(bp.m, BOTH_PARITIES, j_thermal + extra as u32);
@@ -1171,23 +1162,14 @@ impl Solver {
                         o
                     }
                 };
-                self.try_polar_block(&ops, &bp.levels, field, items, times, t_first, wanted)
+                self.try_polar_block(&ops, &bp.levels, run)
             },
             || Error::Numerical(format!("block |M| = {}: the basis would need J > {j_limit}; lower the field strengths or the temperature", bp.m)),
         )
     }
 
-    #[allow(clippy::type_complexity)]
-    fn try_polar_block(
-        &self,
-        ops: &PolarOps,
-        levels: &[(u32, f64)],
-        field: &FieldModel,
-        items: &[PolarItem],
-        times: &[f64],
-        t_first: f64,
-        wanted: [bool; POLAR_OBSERVABLES],
-    ) -> Result<Option<(Vec<Vec<f64>>, Vec<f64>, BlockReport)>> {
+    fn try_polar_block(&self, ops: &PolarOps, levels: &[(u32, f64)], run: &PolarRun) -> Result<Option<PolarOutcome>> {
+        let PolarRun { field, items, times, t_first, wanted } = *run;
         let g = ops.degeneracy;
         let pops: Vec<f64> = levels.iter().map(|l| l.1).collect();
         let index: Vec<usize> = levels.iter().map(|l| (l.0 - ops.j_first) as usize).collect();
@@ -1257,6 +1239,17 @@ impl Solver {
         let report = BlockReport { m: ops.block.m, parity: ops.label.clone(), j_max: ops.j_last(), size: ops.size(), edge_population: edge };
         Ok(Some((values, perm, report)))
     }
+}
+
+/// What every polar block of one run shares: the field, its schedule, the sample times, the start of
+/// the propagation and which observables are wanted.
+#[derive(Clone, Copy)]
+pub(crate) struct PolarRun<'a> {
+    field: &'a FieldModel,
+    items: &'a [PolarItem],
+    times: &'a [f64],
+    t_first: f64,
+    wanted: [bool; POLAR_OBSERVABLES],
 }
 
 /// A polar block of one |M| holding every J (or a symmetric top's (K, M) block) in fields that break
@@ -1329,7 +1322,7 @@ impl driver::Kernel for PolarKernel<'_> {
     }
 
     fn finite_kick(&self, _index: usize, _item: &PolarItem, st: &mut BlockState, t: f64, h: f64) {
-        let r = self.field.rates(t, &self.solver.molecule);
+        let r = coupling::rates(self.field, t, &self.solver.molecule);
         self.ops.kick(st, h * r.u1, h * r.u2, h * r.u3);
     }
 

@@ -28,7 +28,7 @@ use std::sync::{Arc, Mutex};
 pub const MAX_TOP_BASIS_J: i64 = 160;
 
 /// Number of body-axis alignment observables (⟨cos²θ⟩ of the a, b and c axes).
-const AXES: usize = 3;
+pub(super) const AXES: usize = 3;
 
 /// Operators of one top block. States are kept in the field-free eigenbasis (free evolution is exact
 /// phases); the coupling is applied in the function basis, where it is sparse.
@@ -80,26 +80,7 @@ impl TopOps {
 
     /// Exact kick exp(iθA) on all states (eigenbasis in and out), through the function basis.
     pub fn kick(&self, state: &mut BlockState, theta: f64) {
-        if theta == 0.0 {
-            return;
-        }
-        let (n, cols) = state.psi.shape();
-        with_scratch(n * cols, |f| {
-            // f = (V ψ)ᵀ per J range: the function-basis states, transposed (cols × n) for the sparse
-            // products, computed and undone by strided products without copies.
-            for (r, &(_, s, len)) in self.basis.j_ranges.iter().enumerate() {
-                let v = Strided { data: self.basis.vectors[r].as_slice(), offset: 0, shape: (len, len), strides: (1, len) };
-                let vt = Strided { strides: (len, 1), ..v };
-                let psi_rows_t = Strided { data: state.psi.as_slice(), offset: s, shape: (cols, len), strides: (n, 1) };
-                gemm_strided(psi_rows_t, vt, f, s * cols, (1, cols));
-            }
-            chebyshev_kick_transposed(&self.coupling, theta, f, cols);
-            for (r, &(_, s, len)) in self.basis.j_ranges.iter().enumerate() {
-                let vt = Strided { data: self.basis.vectors[r].as_slice(), offset: 0, shape: (len, len), strides: (len, 1) };
-                let f_rows = Strided { data: f, offset: s * cols, shape: (len, cols), strides: (cols, 1) };
-                gemm_strided(vt, f_rows, state.psi.as_mut_slice(), s, (1, n));
-            }
-        });
+        kick_through_functions(&self.basis, &self.coupling, state, theta);
     }
 
     /// Approximate memory held by the operators, bytes.
@@ -116,8 +97,33 @@ impl TopOps {
     }
 }
 
+/// Exact kick exp(iθC) of a coupling C (function basis, spectrum in [0, 1]) on all states of a block
+/// (eigenbasis in and out).
+pub(super) fn kick_through_functions(basis: &TopBlockBasis, coupling: &Csr, state: &mut BlockState, theta: f64) {
+    if theta == 0.0 {
+        return;
+    }
+    let (n, cols) = state.psi.shape();
+    with_scratch(n * cols, |f| {
+        // f = (V ψ)ᵀ per J range: the function-basis states, transposed (cols × n) for the sparse
+        // products, computed and undone by strided products without copies.
+        for (r, &(_, s, len)) in basis.j_ranges.iter().enumerate() {
+            let v = Strided { data: basis.vectors[r].as_slice(), offset: 0, shape: (len, len), strides: (1, len) };
+            let vt = Strided { strides: (len, 1), ..v };
+            let psi_rows_t = Strided { data: state.psi.as_slice(), offset: s, shape: (cols, len), strides: (n, 1) };
+            gemm_strided(psi_rows_t, vt, f, s * cols, (1, cols));
+        }
+        chebyshev_kick_transposed(coupling, theta, f, cols);
+        for (r, &(_, s, len)) in basis.j_ranges.iter().enumerate() {
+            let vt = Strided { data: basis.vectors[r].as_slice(), offset: 0, shape: (len, len), strides: (len, 1) };
+            let f_rows = Strided { data: f, offset: s * cols, shape: (len, cols), strides: (cols, 1) };
+            gemm_strided(vt, f_rows, state.psi.as_mut_slice(), s, (1, n));
+        }
+    });
+}
+
 /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis), one matrix product per stored block.
-fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
+pub(super) fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
     let k = state.k;
     // States are ordered by J: rows above the last one holding any amplitude (|ψ|² > 1e-26, so that the
     // neglected terms stay below 1e-13) need not enter the products.
@@ -141,7 +147,7 @@ fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
 
 /// A block's coherence coefficients ρ_ab O_ba (a < b) per observable, and the diagonal sums.
 #[derive(Clone)]
-struct BlockPairs {
+pub(super) struct BlockPairs {
     diag: Vec<f64>,
     pairs: Vec<Vec<crate::observe::pairs::StatePair>>,
 }
@@ -150,7 +156,7 @@ struct BlockPairs {
 const PAIR_TRIM: f64 = 1e-16;
 
 /// Coefficients of `state` for the banded observables (eigenbasis).
-fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> BlockPairs {
+pub(super) fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> BlockPairs {
     let n = state.psi.nrows();
     let k = state.k;
     let mut w = state.psi.clone();
@@ -213,6 +219,37 @@ fn polar_field_key(field: &FieldModel) -> &'static str {
     }
 }
 
+/// Total kick strength P (rad) of the laser pulses for the top's anisotropy Δα = α_max − α_min (each
+/// capped at the reach of an adiabatic pulse).
+fn laser_strengths(top: &Top, field: &FieldModel) -> f64 {
+    let da = top.delta_alpha_a3();
+    let b = cm_to_rad_per_ps(top.c_cm);
+    field
+        .pulses
+        .iter()
+        .map(|p| {
+            let adiabatic = 1.5 * (p.peak_rate_rad_per_ps(da).abs() / b).sqrt() + 3.0;
+            p.kick_strength(da).abs().min(adiabatic)
+        })
+        .sum()
+}
+
+/// Room (in J) above the thermal levels (up to `j_thermal`) that the laser pulses of `field` need;
+/// refuses fields that would need a basis beyond `MAX_TOP_BASIS_J`.
+pub(super) fn laser_reach(top: &Top, j_thermal: i64, field: &FieldModel) -> Result<i64> {
+    let total = laser_strengths(top, field);
+    let reach = (1.35 * total).ceil() as i64 + 10;
+    if !total.is_finite() || j_thermal + reach > MAX_TOP_BASIS_J {
+        return Err(Error::input(
+            "pulses",
+            format!(
+                "total kick strength P = {total:.3e} would drive the top beyond J = {MAX_TOP_BASIS_J}, the largest basis kicktrain uses for tops; expected weaker pulses or a lower temperature"
+            ),
+        ));
+    }
+    Ok(reach)
+}
+
 /// Operators cached across runs stay below this many bytes (the rest are rebuilt when needed).
 const OPS_CACHE_BYTES: usize = 2 << 30;
 
@@ -231,16 +268,103 @@ pub struct TopSolver {
 }
 
 /// What one block returns before the blocks are merged.
-struct TopOutcome {
-    values: Vec<Vec<f64>>,
+pub(super) struct TopOutcome {
+    pub values: Vec<Vec<f64>>,
     /// (first sample, end sample, time, coherences) of each field-free stretch with samples.
-    gaps: Vec<(usize, usize, f64, BlockPairs)>,
-    /// Time and coherences after the last event.
-    final_pairs: (f64, BlockPairs),
-    ops: Arc<TopOps>,
-    report: BlockReport,
+    pub gaps: Vec<(usize, usize, f64, BlockPairs)>,
+    /// Time and coherences after the last event (None when the field is still on then).
+    pub final_pairs: Option<(f64, BlockPairs)>,
+    /// The block's symmetry and its (J, first index, count) ranges: with J and the index within J they
+    /// name each field-free level.
+    pub sym: TopSym,
+    pub j_ranges: Vec<(i64, usize, usize)>,
+    /// Field-free angular frequencies of the levels, rad/ps.
+    pub omega: Vec<f64>,
+    pub report: BlockReport,
     /// How many identical blocks this one stands for.
-    weight: f64,
+    pub weight: f64,
+    /// Time averages of the observables while a static field stays on after the last sample (the
+    /// dressed-state diagonal); None when the field is off at the end.
+    pub dressed_statics: Option<Vec<f64>>,
+}
+
+/// The merge of top blocks' outcomes, in block order: sampled values summed, coherences merged by pairs
+/// of field-free levels (so memory holds the merged sums, not every block's coefficients).
+pub(super) struct TopAssembly {
+    values: Vec<Vec<f64>>,
+    ids: HashMap<(TopSym, i64, usize), u32>,
+    gap_sums: Vec<(usize, usize, PairSums)>,
+    final_sums: Option<PairSums>,
+    /// Σ weight × dressed time averages of blocks that end in a static field.
+    dressed: Option<Vec<f64>>,
+    reports: Vec<BlockReport>,
+    nobs: usize,
+}
+
+impl TopAssembly {
+    pub fn new(nobs: usize, samples: usize) -> TopAssembly {
+        TopAssembly { values: vec![vec![0.0; samples]; nobs], ids: HashMap::new(), gap_sums: vec![], final_sums: None, dressed: None, reports: vec![], nobs }
+    }
+
+    pub fn add(&mut self, o: TopOutcome) {
+        for (acc, v) in self.values.iter_mut().zip(&o.values) {
+            for (a, b) in acc.iter_mut().zip(v) {
+                *a += b;
+            }
+        }
+        // Level labels shared by all blocks: (symmetry, J, index within J) → id, in block order.
+        let mut lid = vec![0u32; o.omega.len()];
+        for &(j, start, n) in &o.j_ranges {
+            for i in 0..n {
+                let next = self.ids.len() as u32;
+                lid[start + i] = *self.ids.entry((o.sym, j, i)).or_insert(next);
+            }
+        }
+        let nobs = self.nobs;
+        if self.gap_sums.is_empty() {
+            self.gap_sums = o.gaps.iter().map(|&(from, to, t0, _)| (from, to, PairSums::new(nobs, t0))).collect();
+        }
+        for ((_, _, sums), (_, _, _, p)) in self.gap_sums.iter_mut().zip(&o.gaps) {
+            sums.add_pairs(o.weight, &p.diag, &p.pairs, &lid, &o.omega);
+        }
+        if let Some((t, p)) = &o.final_pairs {
+            let fin = self.final_sums.get_or_insert_with(|| PairSums::new(nobs, *t));
+            fin.add_pairs(o.weight, &p.diag, &p.pairs, &lid, &o.omega);
+        }
+        if let Some(d) = &o.dressed_statics {
+            let acc = self.dressed.get_or_insert_with(|| vec![0.0; d.len()]);
+            acc.iter_mut().zip(d).for_each(|(a, x)| *a += o.weight * x);
+        }
+        self.reports.push(o.report);
+    }
+
+    /// The sampled values (field-free stretches evaluated from the merged sums), the sums after the last
+    /// event (empty with t0 = ∞ when the field is still on then: goals use the samples), the time
+    /// averages after the last event, and the block reports.
+    pub fn finish(self, times_ps: &[f64], t_first: f64) -> (Vec<Vec<f64>>, PairSums, Vec<f64>, Vec<BlockReport>) {
+        let mut values = self.values;
+        for (from, to, sums) in &self.gap_sums {
+            sums.eval_series(&times_ps[*from..*to], |i, v| {
+                for (acc, x) in values.iter_mut().zip(v) {
+                    acc[from + i] += x;
+                }
+            });
+        }
+        let (final_sums, statics) = match (self.final_sums, self.dressed) {
+            (Some(s), None) => {
+                let st = s.statics();
+                (s, st)
+            }
+            (None, Some(d)) => (PairSums::new(self.nobs, f64::INFINITY), d),
+            (None, None) => {
+                let s = PairSums::new(self.nobs, t_first);
+                let st = s.statics();
+                (s, st)
+            }
+            (Some(_), Some(_)) => unreachable!("every block of a run ends in the same field"),
+        };
+        (values, final_sums, statics, self.reports)
+    }
 }
 
 impl TopSolver {
@@ -268,34 +392,15 @@ impl TopSolver {
         o
     }
 
-    /// Kick strength P (rad) of each pulse for the top's anisotropy Δα = α_max − α_min.
+    /// Kick strength P (rad) of the pulses for the top's anisotropy Δα = α_max − α_min.
     pub(super) fn strengths(&self, field: &FieldModel) -> f64 {
-        let da = self.top.delta_alpha_a3();
-        let b = cm_to_rad_per_ps(self.top.c_cm);
-        field
-            .pulses
-            .iter()
-            .map(|p| {
-                let adiabatic = 1.5 * (p.peak_rate_rad_per_ps(da).abs() / b).sqrt() + 3.0;
-                p.kick_strength(da).abs().min(adiabatic)
-            })
-            .sum()
+        laser_strengths(&self.top, field)
     }
 
     /// Room (in J) above the thermal levels that the pulses of `field` need; refuses fields that would
     /// need a basis beyond `MAX_TOP_BASIS_J`.
     pub(super) fn reach(&self, field: &FieldModel) -> Result<i64> {
-        let total = self.strengths(field);
-        let reach = (1.35 * total).ceil() as i64 + 10;
-        if !total.is_finite() || self.ensemble.j_max + reach > MAX_TOP_BASIS_J {
-            return Err(Error::input(
-                "pulses",
-                format!(
-                    "total kick strength P = {total:.3e} would drive the top beyond J = {MAX_TOP_BASIS_J}, the largest basis kicktrain uses for tops; expected weaker pulses or a lower temperature"
-                ),
-            ));
-        }
-        Ok(reach)
+        laser_reach(&self.top, self.ensemble.j_max, field)
     }
 
     /// Kicks (kick model) or finite intervals with their default steps, in time order.
@@ -331,14 +436,10 @@ impl TopSolver {
         let events = self.schedule(field);
         let t_first = events.first().map(|e| e.span().0).or(times_ps.first().copied()).unwrap_or(0.0);
         let nobs = AXES + usize::from(with_2d);
-        let mut values = vec![vec![0.0; times_ps.len()]; nobs];
         // Blocks run in parallel in groups (eight per thread, enough to balance the threads); each group's
         // coherences merge into the running sums in block order and are then dropped, so memory holds one
         // group's coefficients, not every block's, and the sums do not depend on thread timing.
-        let mut ids: HashMap<(TopSym, i64, usize), u32> = HashMap::new();
-        let mut gap_sums: Vec<(usize, usize, PairSums)> = vec![];
-        let mut final_sums: Option<PairSums> = None;
-        let mut reports = vec![];
+        let mut assembly = TopAssembly::new(nobs, times_ps.len());
         let group = 8 * rayon::current_num_threads().max(1);
         self.progress.plan(self.ensemble.blocks.len());
         for blocks in self.ensemble.blocks.chunks(group) {
@@ -351,40 +452,10 @@ impl TopSolver {
                 })
                 .collect::<Result<Vec<_>>>()?;
             for o in outcomes {
-                for (acc, v) in values.iter_mut().zip(&o.values) {
-                    for (a, b) in acc.iter_mut().zip(v) {
-                        *a += b;
-                    }
-                }
-                // Level labels shared by all blocks: (symmetry, J, index within J) → id, in block order.
-                let b = &o.ops.basis;
-                let mut lid = vec![0u32; b.size()];
-                for &(j, start, n) in &b.j_ranges {
-                    for i in 0..n {
-                        let next = ids.len() as u32;
-                        lid[start + i] = *ids.entry((b.block.sym, j, i)).or_insert(next);
-                    }
-                }
-                if gap_sums.is_empty() {
-                    gap_sums = o.gaps.iter().map(|&(from, to, t0, _)| (from, to, PairSums::new(nobs, t0))).collect();
-                }
-                for ((_, _, sums), (_, _, _, p)) in gap_sums.iter_mut().zip(&o.gaps) {
-                    sums.add_pairs(o.weight, &p.diag, &p.pairs, &lid, &o.ops.omega);
-                }
-                let fin = final_sums.get_or_insert_with(|| PairSums::new(nobs, o.final_pairs.0));
-                fin.add_pairs(o.weight, &o.final_pairs.1.diag, &o.final_pairs.1.pairs, &lid, &o.ops.omega);
-                reports.push(o.report);
+                assembly.add(o);
             }
         }
-        for (from, to, sums) in &gap_sums {
-            sums.eval_series(&times_ps[*from..*to], |i, v| {
-                for (acc, x) in values.iter_mut().zip(v) {
-                    acc[from + i] += x;
-                }
-            });
-        }
-        let final_sums = final_sums.unwrap_or_else(|| PairSums::new(nobs, t_first));
-        let statics = final_sums.statics();
+        let (values, final_sums, statics, reports) = assembly.finish(times_ps, t_first);
         let align = self.top.alignment_axis.index();
         let second = self.top.second_axis().index();
         // Parts of the sums: ⟨cos²⟩ of the body axes a, b, c with Z, then ⟨cos²θ_2D⟩ when built.
@@ -393,13 +464,10 @@ impl TopSolver {
         // Symmetric about Z: ⟨Φ_Xg²⟩ = (1 − ⟨Φ_Zg²⟩)/2.
         let three_axis = values[align].iter().zip(&values[second]).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect();
         let trace = Trace {
-            three_axis,
             times_ps: times_ps.to_vec(),
             cos2: values[align].clone(),
-            cos2_2d: if with_2d { values[AXES].clone() } else { vec![] },
-            cos2_a: values[0].clone(),
-            cos2_b: values[1].clone(),
-            cos2_c: values[2].clone(),
+            cos2_2d: with_2d.then(|| values[AXES].clone()),
+            body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis }),
             ..Default::default()
         };
         Ok(RunResult {
@@ -477,7 +545,17 @@ impl TopSolver {
         let (values, edge) = (w.values, w.edge);
         let label = crate::basis::BlockSymmetry::of_top_class(bp.sym, &self.frame);
         let report = BlockReport { m: bp.m as u32, parity: label, j_max: ops.basis.block.j_max as u32, size: ops.basis.size(), edge_population: edge };
-        Ok(Some(TopOutcome { values, gaps, final_pairs, ops, report, weight: g }))
+        Ok(Some(TopOutcome {
+            values,
+            gaps,
+            final_pairs: Some(final_pairs),
+            sym: ops.basis.block.sym,
+            j_ranges: ops.basis.j_ranges.clone(),
+            omega: ops.omega.clone(),
+            report,
+            weight: g,
+            dressed_statics: None,
+        }))
     }
 }
 
@@ -586,6 +664,7 @@ impl super::Solver {
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
         let extra = self.polar_extra(field, &items);
+        let run = super::PolarRun { field, items: &items, times, t_first, wanted };
         // (K, M) blocks: ±M differ once K ≠ 0 (the Stark shift −μE K M / J(J+1)); (K, M) and (−K, −M) agree.
         // (K, M, weight, thermal levels (J, population)) of each block.
         type PolarBlock = (i64, i64, f64, Vec<(u32, f64)>);
@@ -608,7 +687,7 @@ impl super::Solver {
                     j_thermal + extra,
                     MAX_TOP_BASIS_J as usize,
                     |j_max| {
-                        self.try_polar_block(&symmetric_top_polar_ops(top, &frame, *k, *m, j_max as i64, *w), levels, field, &items, times, t_first, wanted)
+                        self.try_polar_block(&symmetric_top_polar_ops(top, &frame, *k, *m, j_max as i64, *w), levels, &run)
                     },
                     || {
                         Error::Numerical(format!(
@@ -619,22 +698,21 @@ impl super::Solver {
             })
             .collect::<Result<Vec<_>>>()?;
         let (values, permanent, reports) = super::sum_polar(outcomes, times.len());
-        let [fig2, abs_align, cos, cos3] = super::polar_series(values, wanted);
+        let (fig2, abs_align, orientation) = super::polar_series(values, wanted);
         // Fixed-K states have ⟨Φ_Zx²⟩ = ⟨Φ_Zy²⟩ = (1 − ⟨cos²θ⟩)/2 (sin²θ cos2χ changes K by 2).
         let across: Vec<f64> = fig2.iter().map(|c| 0.5 * (1.0 - c)).collect();
         let fig = frame.axes[0].index();
         let axis = |i: usize| if i == fig { fig2.clone() } else { across.clone() };
         let align = top.alignment_axis.index();
         let perm_align = if align == fig { permanent[0] } else { 0.5 * (1.0 - permanent[0]) };
+        // Symmetric about Z: ⟨Φ_Xg²⟩ = (1 − ⟨Φ_Zg²⟩)/2 for the second axis too.
+        let three_axis = axis(align).iter().zip(axis(top.second_axis().index())).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect();
         let trace = Trace {
             times_ps: times.to_vec(),
             cos2: axis(align),
             cos2_2d: abs_align,
-            cos,
-            cos3,
-            cos2_a: axis(0),
-            cos2_b: axis(1),
-            cos2_c: axis(2),
+            orientation,
+            body_axes: Some(crate::observe::BodyAxes { a: axis(0), b: axis(1), c: axis(2), three_axis }),
             ..Default::default()
         };
         let mut sums = crate::observe::LevelSums::new(vec![], f64::INFINITY, false);

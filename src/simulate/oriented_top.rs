@@ -1,0 +1,667 @@
+//! Tops in fields that orient them: static fields and terahertz pulses acting on the permanent dipole,
+//! with laser pulses, all along Z (M is conserved). Used for asymmetric tops, with the dipole along
+//! any principal axis; symmetric tops take the same path in the tests (their own path, one ladder per
+//! (K, M), is faster).
+//!
+//! The quantization frame puts the dipole axis along z, so the coupling −μE(t) Φ_Zz − ¼E²Σ α_i Φ_Zi²
+//! keeps two exact symmetries besides M: the two-fold rotation about the dipole axis (parity of K) and,
+//! at M = 0, the reflection σ through a lab plane containing Z, σ|J K 0⟩ = (−1)^K |J −K 0⟩. Each block
+//! is one class of these: (M > 0, K parity) — the block of −M is its mirror image and is counted twice —
+//! and (M = 0, K parity, σ). Levels of one class never cross as a field grows (von Neumann–Wigner), so a
+//! static field on from the start was met adiabatically: the n-th lowest field-free level of a block
+//! correlates with its n-th lowest dressed state.
+//!
+//! States live in the field-free eigenbasis. Every step of a field interval is a fourth-order splitting of
+//! free phases and a kick exp(i h (u₂ A + u₁ D)) by Chebyshev series in the function basis, where A is
+//! the laser coupling of `TopOps` (spectrum in [0, 1]) and D = Φ_Zz (spectrum in [−1, 1]). A static field
+//! makes its whole span one such interval; after it is switched off, stretches are field-free and are
+//! sampled from coherences merged by pairs of levels as for tops in laser pulses alone.
+
+use super::driver::{Kernel, ORIENTED_STEP, grow_basis, walk};
+use super::top::{AXES, BlockPairs, TopAssembly, TopOutcome, block_pairs, expect_banded, kick_through_functions, laser_reach};
+use super::{BlockReport, Event, RunResult, coupling};
+use crate::basis::top::{AngularOperator, Banded, TopBlock, TopBlockBasis, TopFrame, TopSym, sorted_eigen};
+use crate::basis::BlockSymmetry;
+use crate::ensemble::top::TopEnsemble;
+use crate::error::{Error, Result};
+use crate::field::FieldModel;
+use crate::molecule::Molecule;
+use crate::molecule::top::{BodyAxis, Top};
+use crate::observe::{FreeSums, PairParts, ThreeAxisParts, Trace};
+use crate::propagate::BlockState;
+use crate::propagate::sparse::Csr;
+use crate::scenario::SolverSettings;
+use crate::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
+use nalgebra::DMatrix;
+use rayon::prelude::*;
+use std::collections::BTreeMap;
+use std::sync::Arc;
+
+/// Largest J a block may reach (as for tops in laser pulses).
+const MAX_J: i64 = super::top::MAX_TOP_BASIS_J;
+
+/// Observables after the three body axes: ⟨cosθ⟩ and ⟨cos³θ⟩ of the dipole axis.
+const COS: usize = AXES;
+const COS3: usize = AXES + 1;
+/// ⟨cos²θ_2D⟩ of the alignment axis, when built.
+const TWO_D: usize = AXES + 2;
+
+/// Operators of one block on one shared sparsity pattern.
+struct OrientedOps {
+    basis: TopBlockBasis,
+    omega: Vec<f64>,
+    /// Laser coupling A = Σ (α_i − α_min) Φ_Zi² / Δα (function basis).
+    laser: Csr,
+    /// Dipole coupling D = Φ_Zz (function basis).
+    dipole: Csr,
+    /// The identity on the same pattern.
+    identity: Csr,
+    /// Φ_Zz between eigenstates (dense), for dressed states.
+    dipole_eigen: DMatrix<f64>,
+    /// Φ_Za², Φ_Zb², Φ_Zc², Φ_Zz, Φ_Zz³, then |Φ_Z,align| when built for 2D (eigenbasis).
+    observables: Vec<Banded>,
+    /// Largest angular frequency of a transition either coupling drives, rad/ps.
+    fastest: f64,
+    /// The last dressed decomposition (rate, energies, vectors): a static field needs it at the start
+    /// and again at the end.
+    dressed_cache: std::sync::Mutex<Option<(f64, Dressed)>>,
+}
+
+/// Dressed energies (ascending) and eigenvectors (columns, eigenbasis) of one block at one field.
+type Dressed = Arc<(Vec<f64>, DMatrix<f64>)>;
+
+/// What every block of one run shares.
+#[derive(Clone, Copy)]
+struct OrientedRun<'a> {
+    field: &'a FieldModel,
+    events: &'a [Event],
+    times: &'a [f64],
+    t_first: f64,
+    /// Dipole rate (rad/ps) of a static field on from the start (0: the run starts field-free).
+    s0: f64,
+}
+
+impl OrientedOps {
+    fn new(top: &Top, frame: &TopFrame, block: TopBlock, with_2d: bool) -> OrientedOps {
+        let basis = TopBlockBasis::new(frame, block);
+        let omega: Vec<f64> = basis.energies_cm.iter().map(|e| cm_to_rad_per_ps(*e)).collect();
+        let axes: Vec<AngularOperator> = (0..AXES).map(|i| AngularOperator::cos2_position(frame.position(BodyAxis::from_index(i)))).collect();
+        let da = top.delta_alpha_a3();
+        let a_min = top.polarizability_a3.iter().cloned().fold(f64::MAX, f64::min);
+        let mut a_op = AngularOperator { identity: 0.0, terms: vec![] };
+        for (i, o) in axes.iter().enumerate() {
+            let w = (top.polarizability_a3[i] - a_min) / da;
+            a_op.identity += w * o.identity;
+            a_op.terms.extend(o.terms.iter().map(|&(r, q, c)| (r, q, w * c)));
+        }
+        let cos = AngularOperator::cos_z();
+        // cos³θ = (3/5) P₁(cosθ) + (2/5) P₃(cosθ), and D^l₀₀* = P_l(cosθ).
+        let cos3 = AngularOperator { identity: 0.0, terms: vec![(1, 0, 0.6), (3, 0, 0.4)] };
+        let n = basis.size();
+        let (ta, td) = (basis.function_triplets(&a_op), basis.function_triplets(&cos));
+        // One pattern for the three matrices, so that a step's combination is one pass over the values.
+        let positions: Vec<(usize, usize)> = ta.iter().chain(&td).map(|t| (t.0, t.1)).chain((0..n).map(|i| (i, i))).collect();
+        let on_pattern = |own: &[(usize, usize, f64)]| {
+            let mut t: Vec<(usize, usize, f64)> = positions.iter().map(|&(r, c)| (r, c, 0.0)).collect();
+            t.extend_from_slice(own);
+            Csr::from_triplets(n, t)
+        };
+        let laser = on_pattern(&ta);
+        let dipole = on_pattern(&td);
+        let identity = on_pattern(&(0..n).map(|i| (i, i, 1.0)).collect::<Vec<_>>());
+        let mut fastest: f64 = 0.0;
+        for op in [&a_op, &cos] {
+            for (r0, c0, blk) in &basis.operator_banded(op).blocks {
+                for c in 0..blk.ncols() {
+                    for r in 0..blk.nrows() {
+                        if blk[(r, c)].abs() > 1e-3 {
+                            fastest = fastest.max((omega[r0 + r] - omega[c0 + c]).abs());
+                        }
+                    }
+                }
+            }
+        }
+        let mut observables: Vec<Banded> = axes.iter().map(|o| basis.operator_banded(o)).collect();
+        observables.push(basis.operator_banded(&cos));
+        observables.push(basis.operator_banded(&cos3));
+        if with_2d {
+            observables.push(Banded::dense(basis.abs_direction_cosine(frame.position(top.alignment_axis))));
+        }
+        let dipole_eigen = basis.operator(&cos);
+        OrientedOps { basis, omega, laser, dipole, identity, dipole_eigen, observables, fastest, dressed_cache: Default::default() }
+    }
+
+    /// Exact kick exp(i(θ_A A + θ_D D)) (up to a global phase): the generator is shifted and scaled to a
+    /// spectrum in [0, 1] for the Chebyshev series.
+    fn kick(&self, state: &mut BlockState, theta_a: f64, theta_d: f64) {
+        let lo = theta_a.min(0.0) - theta_d.abs();
+        let hi = theta_a.max(0.0) + theta_d.abs();
+        let width = hi - lo;
+        if width == 0.0 {
+            return;
+        }
+        let b = Csr::combination(&[(&self.laser, theta_a / width), (&self.dipole, theta_d / width), (&self.identity, -lo / width)]);
+        kick_through_functions(&self.basis, &b, state, width);
+    }
+
+    /// Dressed states of H0 − s Φ_Zz (s in rad/ps): energies ascending and eigenvectors (eigenbasis).
+    fn dressed(&self, s: f64) -> Dressed {
+        if let Some((rate, d)) = self.dressed_cache.lock().expect("dressed cache").as_ref()
+            && *rate == s
+        {
+            return d.clone();
+        }
+        let n = self.omega.len();
+        let h = DMatrix::from_fn(n, n, |r, c| if r == c { self.omega[r] } else { 0.0 } - s * self.dipole_eigen[(r, c)]);
+        let d = Arc::new(sorted_eigen(h));
+        *self.dressed_cache.lock().expect("dressed cache") = Some((s, d.clone()));
+        d
+    }
+
+    /// Number of eigenstates in the top two J values of the basis.
+    fn edge_states(&self) -> usize {
+        self.basis.j_ranges.iter().rev().take(2).map(|x| x.2).sum()
+    }
+}
+
+/// A thermal level of the ensemble as primitive amplitudes {K → c} at one J, with its population.
+#[derive(Clone)]
+struct Start {
+    j: i64,
+    amplitudes: Vec<(i64, f64)>,
+    population: f64,
+}
+
+/// One block to run: its class, how many identical blocks it stands for, and its thermal levels.
+struct OrientedBlock {
+    m: i64,
+    sym: TopSym,
+    weight: f64,
+    starts: Vec<Start>,
+}
+
+/// Solver for a top in orienting fields along Z (frame: dipole axis along z).
+pub struct OrientedTopSolver {
+    top: Top,
+    molecule: Molecule,
+    frame: TopFrame,
+    blocks: Vec<OrientedBlock>,
+    thermal_j_max: i64,
+    settings: SolverSettings,
+    pub(super) progress: Arc<super::RunProgress>,
+}
+
+impl OrientedTopSolver {
+    /// A solver for `molecule` (a top) at `temperature_k`.
+    pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<OrientedTopSolver> {
+        let top = molecule.top.clone().ok_or_else(|| Error::Numerical("the oriented-top path needs a top".into()))?;
+        let frame = TopFrame::new(&top, true);
+        let ensemble = TopEnsemble::new(&top, &frame, temperature_k, settings.thermal_tolerance)?;
+        let blocks = oriented_blocks(&frame, &ensemble);
+        Ok(OrientedTopSolver { top, molecule: molecule.clone(), frame, blocks, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
+    }
+
+    /// Dipole coupling rate μE/ħ (rad/ps) of the static field at t.
+    fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
+        field.static_field.map(|s| dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
+    }
+
+    /// Finite intervals covering every field element and the span of the static field, from `t_first`
+    /// to the last sample (the static field then stays on past it), with their default steps.
+    pub(super) fn schedule(&self, field: &FieldModel, t_first: f64, t_last: f64) -> Vec<Event> {
+        let mut spans: Vec<(f64, f64)> = field.all_intervals().iter().map(|&(a, b, _)| (a, b)).collect();
+        if let Some(sf) = field.static_field.filter(|s| s.strength_kv_cm != 0.0) {
+            let on = sf.on_ps.unwrap_or(t_first).max(t_first);
+            let off = sf.off_ps.unwrap_or(f64::INFINITY).min(t_last);
+            if off > on {
+                spans.push((on, off));
+            }
+        }
+        spans.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let mut merged: Vec<(f64, f64)> = vec![];
+        for (a, b) in spans {
+            match merged.last_mut() {
+                Some(last) if a <= last.1 => last.1 = last.1.max(b),
+                _ => merged.push((a, b)),
+            }
+        }
+        let overlaps = |(a, b): (f64, f64), lo: f64, hi: f64| a <= hi && b >= lo;
+        merged
+            .into_iter()
+            .map(|(lo, hi)| {
+                let pulses: Vec<usize> =
+                    (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
+                let shortest = pulses
+                    .iter()
+                    .map(|&i| field.pulses[i].time_scale_ps())
+                    .chain(field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)).map(|t| t.rms_duration_ps()))
+                    .fold(f64::INFINITY, f64::min);
+                let mut peak: f64 = 0.0;
+                for k in 0..=400 {
+                    let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.molecule);
+                    peak = peak.max(r.u1.abs() + r.u2.abs());
+                }
+                let step_ps = ORIENTED_STEP.step_ps(&self.settings, shortest, 0.0, peak);
+                Event::Finite { start_ps: lo, end_ps: hi, pulses, step_ps }
+            })
+            .collect()
+    }
+
+    /// Room (in J) above the thermal levels: the laser kicks, the static-field mixing (about
+    /// sqrt(μE/C) levels) and the terahertz field areas.
+    fn reach(&self, field: &FieldModel) -> Result<i64> {
+        let lasers = if field.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) { laser_reach(&self.top, self.thermal_j_max, field)? } else { 0 };
+        let c_rate = cm_to_rad_per_ps(self.top.c_cm);
+        let s_max = field.static_field.map(|s| dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        let thz: f64 = field.terahertz.iter().map(|t| dipole_rate_rad_per_ps(self.molecule.dipole_debye, t.field_areas().0).abs()).sum();
+        Ok(lasers + (2.0 * (s_max / c_rate).sqrt()).ceil() as i64 + (1.5 * thz).ceil() as i64 + 4)
+    }
+
+    /// Run `field` and sample the observables at `times_ps` (ascending).
+    pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
+        if !field.two_colour.is_empty() {
+            return Err(Error::input("two_colour", "two-colour pulses on asymmetric tops need a hyperpolarizability tensor, which kicktrain does not take yet"));
+        }
+        let reach = self.reach(field)?;
+        let first_element = field.all_intervals().first().map(|s| s.0);
+        let t_first = first_element.into_iter().chain(times_ps.first().copied()).fold(f64::INFINITY, f64::min);
+        let t_first = if t_first.is_finite() { t_first } else { 0.0 };
+        let last_element = field.all_intervals().iter().map(|s| s.1).fold(t_first, f64::max);
+        // The static field stays on past the last sample: the interval ends just after it.
+        let t_last = times_ps.last().copied().unwrap_or(t_first).max(last_element) + 1e-6;
+        let events = self.schedule(field, t_first, t_last);
+        let steps: f64 = events.iter().map(|e| if let Event::Finite { start_ps, end_ps, step_ps, .. } = e { ((end_ps - start_ps) / step_ps).ceil() } else { 0.0 }).sum();
+        if steps > self.settings.max_steps {
+            return Err(Error::input(
+                if self.settings.step_fs.is_some() { "solver.step_fs" } else { "window.stop_ps" },
+                format!(
+                    "the static field and pulses need about {steps:.2e} time steps here, more than solver.max_steps = {:.0e}; expected a shorter window, a larger step or a higher max_steps (with --allow-long)",
+                    self.settings.max_steps
+                ),
+            ));
+        }
+        let s0 = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.is_none_or(|o| o >= t_first)).map(|s| dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
+        let nobs = TWO_D + usize::from(with_2d);
+        let plan = OrientedRun { field, events: &events, times: times_ps, t_first, s0 };
+        let mut assembly = TopAssembly::new(nobs, times_ps.len());
+        self.progress.plan(self.blocks.len());
+        let group = 8 * rayon::current_num_threads().max(1);
+        for blocks in self.blocks.chunks(group) {
+            let outcomes: Vec<TopOutcome> = blocks
+                .par_iter()
+                .map(|b| {
+                    let r = grow_basis(
+                        (b.starts.iter().map(|s| s.j).max().unwrap_or(0) + reach) as usize,
+                        MAX_J as usize,
+                        |j_max| {
+                            let ops = OrientedOps::new(&self.top, &self.frame, TopBlock { m: b.m, sym: b.sym, j_max: j_max as i64 }, with_2d);
+                            self.try_block(&ops, b, &plan)
+                        },
+                        || Error::Numerical(format!("block M = {}, {:?}: the basis would need J > {MAX_J}; lower the field strengths or the temperature", b.m, b.sym)),
+                    );
+                    self.progress.finish_one();
+                    r
+                })
+                .collect::<Result<Vec<_>>>()?;
+            for o in outcomes {
+                assembly.add(o);
+            }
+        }
+        let (values, final_sums, statics, reports) = assembly.finish(times_ps, t_first);
+        let align = self.top.alignment_axis.index();
+        let second = self.top.second_axis().index();
+        let parts = PairParts { cos2: align, cos2_2d: with_2d.then_some(TWO_D), three_axis: Some(ThreeAxisParts { along_z: align, second, second_from_z: true }) };
+        // Symmetric about Z: ⟨Φ_Xg²⟩ = (1 − ⟨Φ_Zg²⟩)/2.
+        let three_axis = values[align].iter().zip(&values[second]).map(|(a, b)| a.min(0.5 * (1.0 - b))).collect();
+        let trace = Trace {
+            times_ps: times_ps.to_vec(),
+            cos2: values[align].clone(),
+            cos2_2d: with_2d.then(|| values[TWO_D].clone()),
+            orientation: Some(crate::observe::Orientation { cos: values[COS].clone(), cos3: Some(values[COS3].clone()) }),
+            body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis }),
+            lab_axes: vec![],
+        };
+        Ok(RunResult {
+            trace,
+            permanent_cos2: statics[align],
+            permanent_cos2_2d: if with_2d { statics[TWO_D] } else { 0.0 },
+            blocks: reports,
+            events,
+            final_sums: FreeSums::Pairs { sums: final_sums, parts },
+            permanent_cos: Some(statics[COS]),
+        })
+    }
+
+    fn try_block(&self, ops: &OrientedOps, b: &OrientedBlock, plan: &OrientedRun) -> Result<Option<TopOutcome>> {
+        let OrientedRun { field, events, times, t_first, s0 } = *plan;
+        let basis = &ops.basis;
+        let n = basis.size();
+        // Thermal density in the block's eigenbasis: ρ = Σ p |start⟩⟨start|. Levels are non-degenerate
+        // within a class or degenerate with equal populations, so ρ is diagonal there: p_n = ρ_nn.
+        let mut p = vec![0.0; n];
+        for s in &b.starts {
+            let Some(&(_, start, len)) = basis.j_ranges.iter().find(|r| r.0 == s.j) else { continue };
+            let r = basis.j_ranges.iter().position(|r| r.0 == s.j).expect("found above");
+            let f: Vec<f64> = (0..len)
+                .map(|i| {
+                    let (comps, nc) = basis.functions[start + i].components();
+                    comps[..nc].iter().map(|&(k, c)| c * s.amplitudes.iter().find(|a| a.0 == k).map(|a| a.1).unwrap_or(0.0)).sum()
+                })
+                .collect();
+            let v = &basis.vectors[r];
+            for e in 0..len {
+                let c: f64 = (0..len).map(|i| v[(i, e)] * f[i]).sum();
+                p[start + e] += s.population * c * c;
+            }
+        }
+        let levels: Vec<usize> = (0..n).filter(|&i| p[i] > 1e-300).collect();
+        if levels.is_empty() {
+            return Ok(Some(self.empty_outcome(ops, b, times.len())));
+        }
+        let pops: Vec<f64> = levels.iter().map(|&i| p[i]).collect();
+        let state = if s0 != 0.0 {
+            // The n-th lowest field-free level of the class becomes its n-th lowest dressed state.
+            let mut order: Vec<usize> = (0..n).collect();
+            order.sort_by(|&x, &y| ops.omega[x].total_cmp(&ops.omega[y]).then(x.cmp(&y)));
+            let mut rank = vec![0; n];
+            for (r, &i) in order.iter().enumerate() {
+                rank[i] = r;
+            }
+            let dressed = ops.dressed(s0);
+            let vecs = &dressed.1;
+            let mut cols = DMatrix::zeros(n, levels.len());
+            for (c, &i) in levels.iter().enumerate() {
+                cols.set_column(c, &vecs.column(rank[i]));
+            }
+            BlockState::from_columns(&cols, t_first)
+        } else {
+            BlockState::new(n, &levels, t_first)
+        };
+        let kernel = OrientedKernel { solver: self, ops, pops: pops.clone(), g: b.weight, field, edge_states: ops.edge_states() };
+        let Some(w) = walk(&kernel, state, events, times, self.settings.edge_tolerance) else {
+            return Ok(None);
+        };
+        let t_end = w.state.t_ps;
+        let s_end = self.static_rate(field, t_end);
+        let mut gaps: Vec<_> = w.stretches.into_iter().map(|(r, t, pairs)| (r.start, r.end, t, pairs)).collect();
+        let (final_pairs, dressed_statics) = if s_end == 0.0 {
+            let fin = (t_end, kernel.stretch(&w.state));
+            if !w.rest.is_empty() {
+                gaps.push((w.rest.start, w.rest.end, fin.0, fin.1.clone()));
+            }
+            (Some(fin), None)
+        } else {
+            (None, Some(dressed_averages(ops, &w.state, &pops, s_end)))
+        };
+        let report = BlockReport {
+            m: b.m as u32,
+            parity: BlockSymmetry::of_top_class(b.sym, &self.frame),
+            j_max: basis.block.j_max as u32,
+            size: n,
+            edge_population: w.edge,
+        };
+        Ok(Some(TopOutcome {
+            values: w.values,
+            gaps,
+            final_pairs,
+            sym: b.sym,
+            j_ranges: basis.j_ranges.clone(),
+            omega: ops.omega.clone(),
+            report,
+            weight: b.weight,
+            dressed_statics,
+        }))
+    }
+
+    /// The outcome of a block without population (all its levels have zero spin weight).
+    fn empty_outcome(&self, ops: &OrientedOps, b: &OrientedBlock, samples: usize) -> TopOutcome {
+        let nobs = ops.observables.len();
+        TopOutcome {
+            values: vec![vec![0.0; samples]; nobs],
+            gaps: vec![],
+            final_pairs: None,
+            sym: b.sym,
+            j_ranges: ops.basis.j_ranges.clone(),
+            omega: ops.omega.clone(),
+            report: BlockReport { m: b.m as u32, parity: BlockSymmetry::of_top_class(b.sym, &self.frame), j_max: ops.basis.block.j_max as u32, size: ops.basis.size(), edge_population: 0.0 },
+            weight: 0.0,
+            dressed_statics: None,
+        }
+    }
+}
+
+/// Time averages of the observables of a block left in a static field (rate `s` rad/ps): the diagonal
+/// of the density matrix in the dressed states times the observables' dressed diagonal (coherences
+/// between dressed states average out), per unit block weight.
+fn dressed_averages(ops: &OrientedOps, state: &BlockState, pops: &[f64], s: f64) -> Vec<f64> {
+    let dressed = ops.dressed(s);
+    let vecs = &dressed.1;
+    let k = state.k;
+    let re = vecs.transpose() * state.psi.columns(0, k);
+    let im = vecs.transpose() * state.psi.columns(k, k);
+    let n = vecs.ncols();
+    let q: Vec<f64> = (0..n).map(|i| (0..k).map(|c| pops[c] * (re[(i, c)].powi(2) + im[(i, c)].powi(2))).sum()).collect();
+    ops.observables
+        .iter()
+        .map(|o| {
+            let d = o.to_dense();
+            let od = vecs.transpose() * d * vecs;
+            (0..n).map(|i| q[i] * od[(i, i)]).sum()
+        })
+        .collect()
+}
+
+/// The blocks of a run and their thermal levels, from the ensemble of the frame with the dipole along z
+/// (Wang classes of asymmetric tops, fixed K of symmetric tops): every level, written as primitive
+/// amplitudes, goes to the blocks of its M and K parity (at M = 0, to the reflection class or classes
+/// it has a part in).
+fn oriented_blocks(frame: &TopFrame, ensemble: &TopEnsemble) -> Vec<OrientedBlock> {
+    let mut map: BTreeMap<(i64, i64, i64), OrientedBlock> = BTreeMap::new();
+    for bp in &ensemble.blocks {
+        let source = TopBlockBasis::new(frame, TopBlock { m: bp.m, sym: bp.sym, j_max: bp.levels.last().map(|l| l.0).unwrap_or(0) });
+        for &(j, idx, pop) in &bp.levels {
+            let (r, &(_, start, len)) = source.j_ranges.iter().enumerate().find(|(_, r)| r.0 == j).expect("thermal level inside its block");
+            let v = &source.vectors[r];
+            let mut amps: Vec<(i64, f64)> = vec![];
+            for i in 0..len {
+                let (comps, nc) = source.functions[start + i].components();
+                for &(k, c) in &comps[..nc] {
+                    amps.push((k, c * v[(i, idx)]));
+                }
+            }
+            // A symmetric top's K > 0 level stands for ±K (the ensemble counts it twice).
+            let mut columns = vec![amps.clone()];
+            if let TopSym::K(k) = bp.sym
+                && k > 0
+            {
+                columns = vec![vec![(k, 1.0)], vec![(-k, 1.0)]];
+            }
+            let k_parity = amps.first().map(|a| a.0.rem_euclid(2)).unwrap_or(0);
+            let targets: Vec<(TopSym, f64)> = if bp.m > 0 {
+                vec![(TopSym::KParity(k_parity), 2.0)]
+            } else {
+                [1, -1].iter().map(|&sigma| (TopSym::Reflection { k_parity, sigma }, 1.0)).collect()
+            };
+            for (sym, weight) in targets {
+                let target = TopBlock { m: bp.m, sym, j_max: j };
+                let funcs = target.functions_of_j(j);
+                for col in &columns {
+                    // Keep only the part of the level inside this class (all of it, or none, except for
+                    // a symmetric top's |±K⟩, which splits evenly between σ = ±1).
+                    let norm2: f64 = funcs
+                        .iter()
+                        .map(|f| {
+                            let (comps, nc) = f.components();
+                            comps[..nc].iter().map(|&(k, c)| c * col.iter().filter(|a| a.0 == k).map(|a| a.1).sum::<f64>()).sum::<f64>().powi(2)
+                        })
+                        .sum();
+                    if norm2 < 1e-12 {
+                        continue;
+                    }
+                    let key = (bp.m, sym_key(sym).0, sym_key(sym).1);
+                    let entry = map.entry(key).or_insert_with(|| OrientedBlock { m: bp.m, sym, weight, starts: vec![] });
+                    entry.starts.push(Start { j, amplitudes: col.clone(), population: pop });
+                }
+            }
+        }
+    }
+    map.into_values().collect()
+}
+
+/// (K parity, σ or 0) of a block class, for ordering.
+fn sym_key(sym: TopSym) -> (i64, i64) {
+    match sym {
+        TopSym::KParity(p) => (p, 0),
+        TopSym::Reflection { k_parity, sigma } => (k_parity, sigma),
+        _ => (-1, 0),
+    }
+}
+
+/// One block of a top in orienting fields.
+struct OrientedKernel<'a> {
+    solver: &'a OrientedTopSolver,
+    ops: &'a OrientedOps,
+    pops: Vec<f64>,
+    g: f64,
+    field: &'a FieldModel,
+    edge_states: usize,
+}
+
+impl Kernel for OrientedKernel<'_> {
+    type Item = Event;
+    type Stretch = BlockPairs;
+
+    fn observables(&self) -> usize {
+        self.ops.observables.len()
+    }
+
+    fn omega(&self) -> &[f64] {
+        &self.ops.omega
+    }
+
+    fn edge(&self, state: &BlockState) -> f64 {
+        state.edge_population(self.edge_states)
+    }
+
+    fn sample(&self, st: &BlockState, out: &mut [f64]) {
+        for (x, o) in out.iter_mut().zip(&self.ops.observables) {
+            *x = self.g * expect_banded(st, &self.pops, o);
+        }
+    }
+
+    fn stretch(&self, st: &BlockState) -> BlockPairs {
+        block_pairs(st, &self.pops, &self.ops.observables)
+    }
+
+    fn free(&self, st: &mut BlockState, _index: usize, dt: f64) {
+        st.free_with(&crate::propagate::FreePhases::from_omega(&self.ops.omega, dt));
+    }
+
+    fn instant(&self, _st: &mut BlockState, _item: &Event) {}
+
+    fn finite_kick(&self, _index: usize, _item: &Event, st: &mut BlockState, t: f64, h: f64) {
+        let r = coupling::rates(self.field, t, &self.solver.molecule);
+        self.ops.kick(st, h * r.u2, h * r.u1);
+    }
+
+    fn breaks(&self, item: &Event) -> Vec<f64> {
+        let mut b = item.breaks(self.field);
+        if let Some(sf) = self.field.static_field {
+            b.extend(sf.on_ps.into_iter().chain(sf.off_ps));
+        }
+        b
+    }
+
+    fn step(&self, step_ps: f64) -> f64 {
+        ORIENTED_STEP.in_block(&self.solver.settings, step_ps, self.ops.fastest)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn top(a: f64, b: f64, c: f64) -> Top {
+        let mut t = Top::rigid(a, b, c, [9.0, 6.0, 4.5]);
+        t.dipole_axis = BodyAxis::A;
+        t
+    }
+
+    #[test]
+    fn first_order_stark_shift_of_a_symmetric_top() {
+        // A symmetric top's |J K M⟩ shifts by −μE K M / [J(J+1)] to first order (Townes & Schawlow,
+        // "Microwave Spectroscopy" (1955), eq. 10-4). Prolate top A = 2.5, B = C = 0.3 cm⁻¹, M = 1, odd K:
+        // the J = 1, K = ±1 pair splits by ∓s/2, J = 2, K = ±1 by ∓s/6 (s = μE/ħ), up to terms in s².
+        let t = top(2.5, 0.3, 0.3);
+        let frame = TopFrame::new(&t, true);
+        let ops = OrientedOps::new(&t, &frame, TopBlock { m: 1, sym: TopSym::KParity(1), j_max: 8 }, false);
+        let s = 1e-5;
+        let dressed = ops.dressed(s);
+        let e0 = |j: f64, k: f64| cm_to_rad_per_ps(0.3 * j * (j + 1.0) + (2.5 - 0.3) * k * k);
+        for (j, want) in [(1.0, 0.5), (2.0, 1.0 / 6.0)] {
+            for sign in [1.0, -1.0] {
+                let target = e0(j, 1.0) - sign * want * s;
+                let closest = dressed.0.iter().map(|e| (e - target).abs()).fold(f64::INFINITY, f64::min);
+                assert!(closest < 1e-3 * s, "J = {j}: no dressed level at {target} (closest off by {closest})");
+            }
+        }
+    }
+
+    #[test]
+    fn the_reflection_classes_split_the_m_zero_block_exactly() {
+        // σ|J K 0⟩ = (−1)^K |J −K 0⟩ commutes with H0 and the dipole coupling, so the dressed spectrum of
+        // the K-parity block at M = 0 is the union of the spectra of its σ = +1 and σ = −1 classes. With
+        // the other sign convention the classes would couple and the spectra would differ.
+        let t = top(0.6, 0.2, 0.15);
+        let frame = TopFrame::new(&t, true);
+        for kp in [0, 1] {
+            let whole = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::KParity(kp), j_max: 6 }, false);
+            let mut parts: Vec<f64> = [1, -1]
+                .iter()
+                .flat_map(|&sigma| OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: kp, sigma }, j_max: 6 }, false).dressed(0.8).0.clone())
+                .collect();
+            parts.sort_by(f64::total_cmp);
+            let all = whole.dressed(0.8).0.clone();
+            assert_eq!(all.len(), parts.len());
+            let worst = all.iter().zip(&parts).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+            assert!(worst < 1e-10, "K parity {kp}: spectra differ by {worst}");
+        }
+    }
+
+    /// Thermal ⟨Φ_Zz⟩ of the dressed states that the field-free levels of each class correlate with, the
+    /// n-th lowest level of a class going to its n-th lowest dressed state (equal spin weights).
+    fn adiabatic_cos(classes: &[&OrientedOps], s: f64, kt_rad: f64) -> f64 {
+        let (mut num, mut den) = (0.0, 0.0);
+        for ops in classes {
+            let mut free = ops.omega.clone();
+            free.sort_by(f64::total_cmp);
+            let dressed = ops.dressed(s);
+            let d = &ops.dipole_eigen;
+            for (r, e) in free.iter().enumerate() {
+                let p = (-(e - free[0]) / kt_rad).exp();
+                let v = dressed.1.column(r);
+                num += p * (v.transpose() * d * v)[(0, 0)];
+                den += p;
+            }
+        }
+        num / den
+    }
+
+    #[test]
+    fn ranking_within_m_alone_gives_another_thermal_average_than_within_the_exact_classes() {
+        // At M = 0 the reflection σ is an exact symmetry: its two classes cross freely as the field grows.
+        // Ranking the levels of the whole K-parity block by energy (as if M and K parity were the only
+        // symmetries) correlates some levels with the wrong dressed states; the thermal averages differ.
+        // The solver's blocks are the σ classes, so it ranks within them.
+        let t = top(0.6, 0.2, 0.15);
+        let frame = TopFrame::new(&t, true);
+        let s = cm_to_rad_per_ps(1.5);
+        let kt = cm_to_rad_per_ps(0.8);
+        let whole = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::KParity(0), j_max: 14 }, false);
+        let plus = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: 0, sigma: 1 }, j_max: 14 }, false);
+        let minus = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: 0, sigma: -1 }, j_max: 14 }, false);
+        let within_m = adiabatic_cos(&[&whole], s, kt);
+        let within_classes = adiabatic_cos(&[&plus, &minus], s, kt);
+        assert!((within_m - within_classes).abs() > 1e-3, "⟨cos⟩ ranked within M {within_m} vs within the classes {within_classes}");
+    }
+}
