@@ -429,7 +429,7 @@ impl TopSolver {
         if field.is_polar() {
             return Err(Error::input(
                 polar_field_key(field),
-                "orienting fields on asymmetric tops are not supported yet; linear molecules and symmetric tops take them",
+                "this path takes laser pulses only; orienting fields on tops go through the oriented-top path (simulate::oriented_top)",
             ));
         }
         let reach = self.reach(field)?;
@@ -656,7 +656,7 @@ impl super::Solver {
         if top.kind() == crate::molecule::top::TopKind::Asymmetric {
             return Err(Error::input(
                 polar_field_key(field),
-                "orienting fields on asymmetric tops are not supported yet; symmetric tops and linear molecules take them",
+                "the figure-axis path is for symmetric tops; asymmetric tops in orienting fields go through the oriented-top path (simulate::oriented_top)",
             ));
         }
         let frame = TopFrame::new(top, true);
