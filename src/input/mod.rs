@@ -55,7 +55,7 @@ fn explain(at: &str, message: &str) -> Error {
     }
     if let Some(rest) = message.strip_prefix("unknown field ") {
         let mut names = ticked(rest);
-        let given = names.remove(0);
+        let given = if names.is_empty() { String::new() } else { names.remove(0) };
         names.sort();
         let near = names.iter().map(|n| (crate::error::edit_distance(&given, n), n)).filter(|(d, _)| *d <= 2).min();
         let hint = near.map(|(_, n)| format!(" (did you mean {n}?)")).unwrap_or_default();
@@ -63,7 +63,9 @@ fn explain(at: &str, message: &str) -> Error {
     }
     if let Some(rest) = message.strip_prefix("unknown variant ") {
         let names = ticked(rest);
-        return Error::input(place(at), format!("expected {}, got \"{}\"", one_of(names[1..].iter().map(String::as_str)), names[0]));
+        if let Some((given, accepted)) = names.split_first() {
+            return Error::input(place(at), format!("expected {}, got \"{given}\"", one_of(accepted.iter().map(String::as_str))));
+        }
     }
     if let Some(rest) = message.strip_prefix("invalid length ") {
         let (n, expected) = rest.split_once(", expected ").unwrap_or((rest, "another length"));

@@ -45,18 +45,17 @@ impl Csr {
         Csr { n, row_ptr, col, val }
     }
 
-    /// Σ c_i A_i of matrices stored on one pattern (the same rows and columns, as built from the same
-    /// triplet positions); panics when the patterns differ.
-    pub fn combination(parts: &[(&Csr, f64)]) -> Csr {
-        let (first, _) = parts[0];
-        let mut val = vec![0.0; first.val.len()];
+    /// Overwrite the values with Σ c_i A_i of matrices stored on this matrix's pattern (the same rows and
+    /// columns, as built from the same triplet positions; checked in debug builds).
+    pub fn set_combination(&mut self, parts: &[(&Csr, f64)]) {
+        self.val.iter_mut().for_each(|v| *v = 0.0);
         for (m, c) in parts {
-            assert!(m.row_ptr == first.row_ptr && m.col == first.col, "Csr::combination: the matrices do not share one pattern");
-            for (v, x) in val.iter_mut().zip(&m.val) {
+            debug_assert!(m.row_ptr == self.row_ptr && m.col == self.col, "Csr::set_combination: the matrices do not share one pattern");
+            assert_eq!(m.val.len(), self.val.len(), "Csr::set_combination: the matrices do not share one pattern");
+            for (v, x) in self.val.iter_mut().zip(&m.val) {
                 *v += c * x;
             }
         }
-        Csr { n: first.n, row_ptr: first.row_ptr.clone(), col: first.col.clone(), val }
     }
 
     /// The matrix as a dense one (for checks).
@@ -263,6 +262,26 @@ pub fn chebyshev_kick_transposed(a: &Csr, theta: f64, xt: &mut [f64], cols: usiz
 mod tests {
     use super::*;
     use nalgebra::SymmetricEigen;
+
+    #[test]
+    fn a_combination_on_one_pattern_is_the_dense_sum() {
+        // Matrices built on one set of positions (zeros included) share a pattern; the combination
+        // written in place equals the sum of their dense forms (direct arithmetic).
+        let positions = [(0, 0), (0, 2), (1, 1), (2, 0), (2, 2)];
+        let with = |own: &[(usize, usize, f64)]| {
+            let mut t: Vec<(usize, usize, f64)> = positions.iter().map(|&(r, c)| (r, c, 0.0)).collect();
+            t.extend_from_slice(own);
+            Csr::from_triplets(3, t)
+        };
+        let a = with(&[(0, 2, 1.5), (2, 0, 1.5), (1, 1, -2.0)]);
+        let b = with(&[(0, 0, 0.5), (2, 2, 3.0)]);
+        let mut c = with(&[]);
+        c.set_combination(&[(&a, 2.0), (&b, -1.0)]);
+        let want = a.to_dense() * 2.0 - b.to_dense();
+        assert!((c.to_dense() - want).abs().max() < 1e-15);
+        c.set_combination(&[(&b, 1.0)]);
+        assert!((c.to_dense() - b.to_dense()).abs().max() < 1e-15, "values are overwritten, not accumulated");
+    }
 
     #[test]
     fn bessel_values_match_tables() {

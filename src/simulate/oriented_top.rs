@@ -18,7 +18,7 @@
 //! sampled from coherences merged by pairs of levels as for tops in laser pulses alone.
 
 use super::driver::{Kernel, ORIENTED_STEP, grow_basis, walk};
-use super::top::{AXES, BlockPairs, TopAssembly, TopOutcome, block_pairs, expect_banded, kick_through_functions, laser_reach};
+use super::top::{AXES, BlockPairs, TopAssembly, TopBlockView, TopOutcome, kick_through_functions, laser_reach};
 use super::{BlockReport, Event, RunResult, coupling};
 use crate::basis::top::{AngularOperator, Banded, TopBlock, TopBlockBasis, TopFrame, TopSym, sorted_eigen};
 use crate::basis::BlockSymmetry;
@@ -34,6 +34,7 @@ use crate::scenario::SolverSettings;
 use crate::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
 use nalgebra::DMatrix;
 use rayon::prelude::*;
+use std::cell::RefCell;
 use std::collections::BTreeMap;
 use std::sync::Arc;
 
@@ -132,16 +133,16 @@ impl OrientedOps {
     }
 
     /// Exact kick exp(i(θ_A A + θ_D D)) (up to a global phase): the generator is shifted and scaled to a
-    /// spectrum in [0, 1] for the Chebyshev series.
-    fn kick(&self, state: &mut BlockState, theta_a: f64, theta_d: f64) {
+    /// spectrum in [0, 1] for the Chebyshev series, written into `combined` (a matrix on the same pattern).
+    fn kick(&self, state: &mut BlockState, theta_a: f64, theta_d: f64, combined: &mut Csr) {
         let lo = theta_a.min(0.0) - theta_d.abs();
         let hi = theta_a.max(0.0) + theta_d.abs();
         let width = hi - lo;
         if width == 0.0 {
             return;
         }
-        let b = Csr::combination(&[(&self.laser, theta_a / width), (&self.dipole, theta_d / width), (&self.identity, -lo / width)]);
-        kick_through_functions(&self.basis, &b, state, width);
+        combined.set_combination(&[(&self.laser, theta_a / width), (&self.dipole, theta_d / width), (&self.identity, -lo / width)]);
+        kick_through_functions(&self.basis, combined, state, width);
     }
 
     /// Dressed states of H0 − s Φ_Zz (s in rad/ps): energies ascending and eigenvectors (eigenbasis).
@@ -263,10 +264,11 @@ impl OrientedTopSolver {
             return Err(Error::input("two_colour", "two-colour pulses on asymmetric tops need a hyperpolarizability tensor, which kicktrain does not take yet"));
         }
         let reach = self.reach(field)?;
-        let first_element = field.all_intervals().first().map(|s| s.0);
+        let elements = field.all_intervals();
+        let first_element = elements.first().map(|s| s.0);
         let t_first = first_element.into_iter().chain(times_ps.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
-        let last_element = field.all_intervals().iter().map(|s| s.1).fold(t_first, f64::max);
+        let last_element = elements.iter().map(|s| s.1).fold(t_first, f64::max);
         // The static field stays on past the last sample: the interval ends just after it.
         let t_last = times_ps.last().copied().unwrap_or(t_first).max(last_element) + 1e-6;
         let events = self.schedule(field, t_first, t_last);
@@ -340,8 +342,8 @@ impl OrientedTopSolver {
         // within a class or degenerate with equal populations, so ρ is diagonal there: p_n = ρ_nn.
         let mut p = vec![0.0; n];
         for s in &b.starts {
-            let Some(&(_, start, len)) = basis.j_ranges.iter().find(|r| r.0 == s.j) else { continue };
-            let r = basis.j_ranges.iter().position(|r| r.0 == s.j).expect("found above");
+            let Some(r) = basis.j_ranges.iter().position(|r| r.0 == s.j) else { continue };
+            let (_, start, len) = basis.j_ranges[r];
             let f: Vec<f64> = (0..len)
                 .map(|i| {
                     let (comps, nc) = basis.functions[start + i].components();
@@ -377,7 +379,13 @@ impl OrientedTopSolver {
         } else {
             BlockState::new(n, &levels, t_first)
         };
-        let kernel = OrientedKernel { solver: self, ops, pops: pops.clone(), g: b.weight, field, edge_states: ops.edge_states() };
+        let kernel = OrientedKernel {
+            solver: self,
+            ops,
+            view: TopBlockView::new(&ops.omega, &ops.observables, pops.clone(), b.weight, ops.edge_states()),
+            field,
+            combined: RefCell::new(ops.identity.clone()),
+        };
         let Some(w) = walk(&kernel, state, events, times, self.settings.edge_tolerance) else {
             return Ok(None);
         };
@@ -444,9 +452,9 @@ fn dressed_averages(ops: &OrientedOps, state: &BlockState, pops: &[f64], s: f64)
     ops.observables
         .iter()
         .map(|o| {
-            let d = o.to_dense();
-            let od = vecs.transpose() * d * vecs;
-            (0..n).map(|i| q[i] * od[(i, i)]).sum()
+            // Only the diagonal of Sᵀ O S is needed: (O S)_i · S_i.
+            let os = o.to_dense() * vecs;
+            (0..n).map(|i| q[i] * vecs.column(i).dot(&os.column(i))).sum()
         })
         .collect()
 }
@@ -521,10 +529,10 @@ fn sym_key(sym: TopSym) -> (i64, i64) {
 struct OrientedKernel<'a> {
     solver: &'a OrientedTopSolver,
     ops: &'a OrientedOps,
-    pops: Vec<f64>,
-    g: f64,
+    view: TopBlockView<'a>,
     field: &'a FieldModel,
-    edge_states: usize,
+    /// The step's combined coupling, rewritten in place (one pattern with A, D and the identity).
+    combined: RefCell<Csr>,
 }
 
 impl Kernel for OrientedKernel<'_> {
@@ -532,36 +540,34 @@ impl Kernel for OrientedKernel<'_> {
     type Stretch = BlockPairs;
 
     fn observables(&self) -> usize {
-        self.ops.observables.len()
+        self.view.observables()
     }
 
     fn omega(&self) -> &[f64] {
-        &self.ops.omega
+        self.view.omega()
     }
 
     fn edge(&self, state: &BlockState) -> f64 {
-        state.edge_population(self.edge_states)
+        self.view.edge(state)
     }
 
     fn sample(&self, st: &BlockState, out: &mut [f64]) {
-        for (x, o) in out.iter_mut().zip(&self.ops.observables) {
-            *x = self.g * expect_banded(st, &self.pops, o);
-        }
+        self.view.sample(st, out)
     }
 
     fn stretch(&self, st: &BlockState) -> BlockPairs {
-        block_pairs(st, &self.pops, &self.ops.observables)
+        self.view.stretch(st)
     }
 
     fn free(&self, st: &mut BlockState, _index: usize, dt: f64) {
-        st.free_with(&crate::propagate::FreePhases::from_omega(&self.ops.omega, dt));
+        self.view.free(st, dt)
     }
 
     fn instant(&self, _st: &mut BlockState, _item: &Event) {}
 
     fn finite_kick(&self, _index: usize, _item: &Event, st: &mut BlockState, t: f64, h: f64) {
         let r = coupling::rates(self.field, t, &self.solver.molecule);
-        self.ops.kick(st, h * r.u2, h * r.u1);
+        self.ops.kick(st, h * r.u2, h * r.u1, &mut self.combined.borrow_mut());
     }
 
     fn breaks(&self, item: &Event) -> Vec<f64> {

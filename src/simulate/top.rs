@@ -123,7 +123,7 @@ pub(super) fn kick_through_functions(basis: &TopBlockBasis, coupling: &Csr, stat
 }
 
 /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis), one matrix product per stored block.
-pub(super) fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
+fn expect_banded(state: &BlockState, pops: &[f64], o: &Banded) -> f64 {
     let k = state.k;
     // States are ordered by J: rows above the last one holding any amplitude (|ψ|² > 1e-26, so that the
     // neglected terms stay below 1e-13) need not enter the products.
@@ -156,7 +156,7 @@ pub(super) struct BlockPairs {
 const PAIR_TRIM: f64 = 1e-16;
 
 /// Coefficients of `state` for the banded observables (eigenbasis).
-pub(super) fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> BlockPairs {
+fn block_pairs(state: &BlockState, pops: &[f64], observables: &[Banded]) -> BlockPairs {
     let n = state.psi.nrows();
     let k = state.k;
     let mut w = state.psi.clone();
@@ -527,12 +527,10 @@ impl TopSolver {
         let g = bp.weight;
         let kernel = TopKernel {
             ops: &ops,
-            pops: bp.levels.iter().map(|l| l.2).collect(),
-            g,
+            view: TopBlockView::new(&ops.omega, &ops.observables, bp.levels.iter().map(|l| l.2).collect(), g, ops.edge_states()),
             field,
             da: self.top.delta_alpha_a3(),
             settings: &self.settings,
-            edge_states: ops.edge_states(),
         };
         let Some(w) = walk(&kernel, BlockState::new(b.size(), &start, t_first), events, times, self.settings.edge_tolerance) else {
             return Ok(None);
@@ -559,19 +557,59 @@ impl TopSolver {
     }
 }
 
-/// A top's block of one M and one symmetry class in laser pulses (banded direction-cosine operators).
-struct TopKernel<'a> {
-    ops: &'a TopOps,
+/// What every top block's kernel does the same way, in the field-free eigenbasis: free phases, the edge
+/// population, samples of banded observables and the coherences of a field-free stretch.
+pub(super) struct TopBlockView<'a> {
+    omega: &'a [f64],
+    observables: &'a [Banded],
     /// Populations of the block's initial states.
     pops: Vec<f64>,
     /// Weight of the block (degeneracy and spin statistics).
     g: f64,
+    /// Eigenstates in the top two J values of the basis.
+    edge_states: usize,
+}
+
+impl<'a> TopBlockView<'a> {
+    pub fn new(omega: &'a [f64], observables: &'a [Banded], pops: Vec<f64>, g: f64, edge_states: usize) -> TopBlockView<'a> {
+        TopBlockView { omega, observables, pops, g, edge_states }
+    }
+
+    pub fn observables(&self) -> usize {
+        self.observables.len()
+    }
+
+    pub fn omega(&self) -> &[f64] {
+        self.omega
+    }
+
+    pub fn edge(&self, state: &BlockState) -> f64 {
+        state.edge_population(self.edge_states)
+    }
+
+    pub fn sample(&self, st: &BlockState, out: &mut [f64]) {
+        for (x, o) in out.iter_mut().zip(self.observables) {
+            *x = self.g * expect_banded(st, &self.pops, o);
+        }
+    }
+
+    pub fn stretch(&self, st: &BlockState) -> BlockPairs {
+        block_pairs(st, &self.pops, self.observables)
+    }
+
+    pub fn free(&self, st: &mut BlockState, dt: f64) {
+        st.free_with(&crate::propagate::FreePhases::from_omega(self.omega, dt));
+    }
+}
+
+/// A top's block of one M and one symmetry class in laser pulses (banded direction-cosine operators).
+struct TopKernel<'a> {
+    ops: &'a TopOps,
+    view: TopBlockView<'a>,
     field: &'a FieldModel,
     /// Polarizability anisotropy α_max − α_min, Å³.
     da: f64,
     settings: &'a SolverSettings,
-    /// Eigenstates in the top two J values of the basis.
-    edge_states: usize,
 }
 
 impl Kernel for TopKernel<'_> {
@@ -579,29 +617,27 @@ impl Kernel for TopKernel<'_> {
     type Stretch = BlockPairs;
 
     fn observables(&self) -> usize {
-        self.ops.observables.len()
+        self.view.observables()
     }
 
     fn omega(&self) -> &[f64] {
-        &self.ops.omega
+        self.view.omega()
     }
 
     fn edge(&self, state: &BlockState) -> f64 {
-        state.edge_population(self.edge_states)
+        self.view.edge(state)
     }
 
     fn sample(&self, st: &BlockState, out: &mut [f64]) {
-        for (x, o) in out.iter_mut().zip(&self.ops.observables) {
-            *x = self.g * expect_banded(st, &self.pops, o);
-        }
+        self.view.sample(st, out)
     }
 
     fn stretch(&self, st: &BlockState) -> BlockPairs {
-        block_pairs(st, &self.pops, &self.ops.observables)
+        self.view.stretch(st)
     }
 
     fn free(&self, st: &mut BlockState, _index: usize, dt: f64) {
-        st.free_with(&crate::propagate::FreePhases::from_omega(&self.ops.omega, dt));
+        self.view.free(st, dt)
     }
 
     fn instant(&self, st: &mut BlockState, item: &Event) {
