@@ -3,8 +3,57 @@
 //! dipole, polarizability anisotropy and hyperpolarizability. The solver's polar kernels read them.
 
 use crate::field::FieldModel;
+use crate::molecule::{Molecule, RotorKind};
 use crate::units::coupling_rad_per_ps_per_a3_wcm2;
-use crate::molecule::Molecule;
+
+/// The molecular axis that fields symmetric about Z act on through cosθ, cos²θ and cos³θ, with the
+/// constants of that coupling: a linear molecule's axis; a symmetric top's figure axis (K is conserved,
+/// so only that axis's angle to Z enters, and its J ladder is that of the constant B perpendicular to it,
+/// the K-dependent part being constant in a block); an asymmetric top's dipole axis (whose oriented path
+/// scales the polarizability operator by the largest anisotropy).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CoupledAxis {
+    /// Rotational constant of the axis's J ladder, cm⁻¹.
+    pub b_cm: f64,
+    /// Quartic distortion constant of that ladder, cm⁻¹ (0 for tops).
+    pub d_cm: f64,
+    /// Polarizability anisotropy along minus across the axis (signed), Å³.
+    pub delta_alpha_a3: f64,
+    /// Dipole along the axis, debye.
+    pub dipole_debye: f64,
+    /// β∥ along the axis, atomic units (0 if not known).
+    pub beta_parallel_au: f64,
+    /// β⊥ across the axis, atomic units (0 if not known).
+    pub beta_perpendicular_au: f64,
+}
+
+impl CoupledAxis {
+    /// The axis the fields couple to on `molecule`.
+    pub fn of(molecule: &Molecule) -> CoupledAxis {
+        let mut axis = CoupledAxis {
+            b_cm: molecule.b_cm,
+            d_cm: molecule.d_cm,
+            delta_alpha_a3: molecule.delta_alpha_a3(),
+            dipole_debye: molecule.dipole_debye,
+            beta_parallel_au: molecule.beta_parallel_au.unwrap_or(0.0),
+            beta_perpendicular_au: molecule.beta_perpendicular_au.unwrap_or(0.0),
+        };
+        if let (RotorKind::SymmetricTop, Some(t)) = (molecule.kind(), &molecule.top) {
+            let frame = t.frame(true);
+            axis.b_cm = t.b_cm;
+            axis.d_cm = 0.0;
+            // β∥ and β⊥ of a symmetric top are given along and across its figure axis.
+            axis.delta_alpha_a3 = t.alpha(frame[0]) - t.alpha(frame[1]);
+        }
+        axis
+    }
+
+    /// Energy of level J of the axis's ladder, cm⁻¹: B J(J+1) − D J²(J+1)².
+    pub fn energy_cm(&self, j: u32) -> f64 {
+        let x = (j as f64) * (j as f64 + 1.0);
+        self.b_cm * x - self.d_cm * x * x
+    }
+}
 
 /// Coupling rates (rad/ps) of all fields at one time: H = H0 − u1 cosθ − u2 cos²θ − u3 cos³θ.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -17,12 +66,12 @@ pub struct Rates {
     pub u3: f64,
 }
 
-/// All coupling rates at time t (ps) for a molecule: static and terahertz fields on the dipole,
+/// All coupling rates at time t (ps) on an axis: static and terahertz fields on the dipole,
 /// cycle-averaged laser and two-colour terms on the polarizability and hyperpolarizability, and the
 /// non-averaged −½Δα E² term of terahertz fields.
-pub fn rates(field: &FieldModel, t_ps: f64, mol: &Molecule) -> Rates {
+pub fn rates(field: &FieldModel, t_ps: f64, mol: &CoupledAxis) -> Rates {
     use crate::units::{BETA_AU, EPSILON_0, HBAR, dipole_rate_rad_per_ps, peak_field_v_per_m};
-    let da = mol.delta_alpha_a3();
+    let da = mol.delta_alpha_a3;
     let mut r = Rates { u2: field.alignment_rate(t_ps, da), ..Default::default() };
     if let Some(sf) = &field.static_field {
         r.u1 += dipole_rate_rad_per_ps(mol.dipole_debye, sf.strength_at(t_ps));
@@ -38,7 +87,7 @@ pub fn rates(field: &FieldModel, t_ps: f64, mol: &Molecule) -> Rates {
         let e1 = peak_field_v_per_m(tc.fundamental_intensity_wcm2);
         let e2 = peak_field_v_per_m(tc.second_harmonic_intensity_wcm2);
         let g = 0.125 * e1 * e1 * e2 * f.powf(1.5) * tc.phase_rad.cos() * BETA_AU / HBAR * 1e-12;
-        let (bp, bt) = (mol.beta_parallel_au.unwrap_or(0.0), mol.beta_perpendicular_au.unwrap_or(0.0));
+        let (bp, bt) = (mol.beta_parallel_au, mol.beta_perpendicular_au);
         r.u3 += g * (bp - 3.0 * bt);
         r.u1 += g * 3.0 * bt;
     }

@@ -161,8 +161,10 @@ type OpsKey = (u32, u32, usize, bool);
 pub struct Solver {
     /// The molecule.
     pub molecule: Molecule,
-    /// What is propagated: a linear molecule's ensemble, a top, or a top's figure axis.
+    /// What is propagated: a linear molecule's ensemble or a top.
     rotor: Rotor,
+    /// The axis fields symmetric about Z couple to, with the constants of that coupling.
+    axis: coupling::CoupledAxis,
     /// Numerical settings.
     pub settings: SolverSettings,
     cache: Mutex<HashMap<OpsKey, Arc<BlockOps>>>,
@@ -182,10 +184,6 @@ enum Rotor {
     Linear(ThermalEnsemble),
     /// A symmetric or asymmetric top: its own ensemble, operators and kernels.
     Top(Box<top::TopSolver>),
-    /// The figure axis of a symmetric top seen as a linear rotor (B, α∥, α⊥ and the dipole of that
-    /// axis; thermal levels up to `j_max`): the schedule of the top's runs in orienting fields, whose
-    /// (K, M) blocks come from the top itself.
-    FigureAxis { j_max: u32 },
 }
 
 /// Counts of the independent pieces of work (symmetry blocks, chunks of initial states) that runs have
@@ -244,6 +242,7 @@ impl Solver {
             return Ok(Solver {
                 molecule: molecule.clone(),
                 rotor: Rotor::Top(Box::new(top)),
+                axis: coupling::CoupledAxis::of(molecule),
                 settings,
                 cache: Mutex::new(HashMap::new()),
                 polar_cache: Mutex::new(HashMap::new()),
@@ -257,6 +256,7 @@ impl Solver {
         Ok(Solver {
             molecule: molecule.clone(),
             rotor: Rotor::Linear(ensemble),
+            axis: coupling::CoupledAxis::of(molecule),
             settings,
             cache: Mutex::new(HashMap::new()),
             polar_cache: Mutex::new(HashMap::new()),
@@ -303,7 +303,6 @@ impl Solver {
         match &self.rotor {
             Rotor::Linear(e) => e.j_max,
             Rotor::Top(t) => t.ensemble.j_max as u32,
-            Rotor::FigureAxis { j_max } => *j_max,
         }
     }
 
@@ -334,14 +333,13 @@ impl Solver {
     /// the total and the interval that needs the most, as (steps, start, end, step) in ps.
     pub fn time_steps(&self, field: &FieldModel) -> (f64, Option<(f64, f64, f64, f64)>) {
         let spans: Vec<(f64, f64, f64)> = match (self.path(field), self.top()) {
-            (RunPath::PolarTop, Some(t)) => polar_spans(&self.figure_axis_view(t).polar_schedule(field).0),
             (RunPath::Top | RunPath::AllM, Some(t)) => finite_spans(&t.schedule(field)),
             (RunPath::OrientedTop, _) => {
                 let (a, b) = field.all_intervals().iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), s| (a.min(s.0), b.max(s.1)));
                 let (a, b) = if a.is_finite() { (a, b) } else { (0.0, 0.0) };
                 self.oriented().map(|o| finite_spans(&o.schedule(field, a, b))).unwrap_or_default()
             }
-            (RunPath::Polar, _) => polar_spans(&self.polar_schedule(field).0),
+            (RunPath::Polar | RunPath::PolarTop, _) => polar_spans(&self.polar_schedule(field).0),
             _ => finite_spans(&self.schedule(field)),
         };
         let mut total = 0.0;
@@ -392,35 +390,11 @@ impl Solver {
         ))
     }
 
-    /// A linear-molecule view of a symmetric top along its figure axis (B, α∥ − α⊥ with sign, dipole), used
-    /// to build schedules and coupling rates for the polar path.
-    fn figure_axis_view(&self, t: &top::TopSolver) -> Solver {
-        let fig = t.frame.axes[0];
-        let across = t.frame.axes[1];
-        let mut m = Molecule::linear(&self.molecule.name, t.top.b_cm, 0.0, t.top.alpha(fig), t.top.alpha(across), [1.0, 1.0]);
-        m.dipole_debye = self.molecule.dipole_debye;
-        m.ionization_energy_ev = self.molecule.ionization_energy_ev;
-        // β∥ and β⊥ of a symmetric top are given along and across its figure axis.
-        m.beta_parallel_au = self.molecule.beta_parallel_au;
-        m.beta_perpendicular_au = self.molecule.beta_perpendicular_au;
-        Solver {
-            molecule: m,
-            rotor: Rotor::FigureAxis { j_max: t.ensemble.j_max as u32 },
-            settings: self.settings,
-            cache: Mutex::new(HashMap::new()),
-            polar_cache: Mutex::new(HashMap::new()),
-            lab: Default::default(),
-            oriented: Default::default(),
-            progress: self.progress.clone(),
-        }
-    }
-
     /// Population left out of the thermal ensemble by its truncation.
     pub fn discarded_population(&self) -> f64 {
         match &self.rotor {
             Rotor::Linear(e) => e.discarded_population,
             Rotor::Top(t) => t.ensemble.discarded_population,
-            Rotor::FigureAxis { .. } => 0.0,
         }
     }
 
@@ -429,7 +403,6 @@ impl Solver {
         match &self.rotor {
             Rotor::Linear(e) => e.partition_function,
             Rotor::Top(t) => t.ensemble.partition_function,
-            Rotor::FigureAxis { .. } => 0.0,
         }
     }
 
@@ -438,7 +411,6 @@ impl Solver {
         match &self.rotor {
             Rotor::Linear(e) => e.state_count(),
             Rotor::Top(t) => t.ensemble.state_count(),
-            Rotor::FigureAxis { .. } => 0,
         }
     }
 
@@ -635,7 +607,7 @@ impl Solver {
         }
         let wanted = [true, with_2d, observable == Observable::Cos, false];
         match self.top() {
-            Some(t) if self.molecule.kind() == RotorKind::SymmetricTop => self.figure_axis_view(t).run_polar_top(t, field, times_ps, wanted),
+            Some(t) if self.molecule.kind() == RotorKind::SymmetricTop => self.run_polar_top(t, field, times_ps, wanted),
             Some(_) => self.oriented()?.run(field, times_ps, with_2d),
             None => self.run_polar(field, times_ps, wanted),
         }
@@ -650,7 +622,7 @@ impl Solver {
         self.check_time_steps(field)?;
         match (self.path(field), self.top()) {
             (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
-            (RunPath::PolarTop, Some(t)) => return self.figure_axis_view(t).run_polar_top(t, field, times_ps, ALL_POLAR),
+            (RunPath::PolarTop, Some(t)) => return self.run_polar_top(t, field, times_ps, ALL_POLAR),
             (RunPath::OrientedTop, _) => return self.oriented()?.run(field, times_ps, with_2d),
             (RunPath::Top, Some(t)) => return t.run(field, times_ps, with_2d),
             (RunPath::Polar, _) => return self.run_polar(field, times_ps, ALL_POLAR),
@@ -986,7 +958,7 @@ fn check_states(states: usize, limit: f64, temperature_k: f64) -> Result<()> {
 enum RunPath {
     /// Every M in one basis (a field not symmetric about Z).
     AllM,
-    /// A symmetric top in an orienting field, through its figure-axis view.
+    /// A symmetric top in an orienting field: (K, M) blocks holding every J, coupled through the figure axis.
     PolarTop,
     /// A top in a field symmetric about Z that does not orient it.
     Top,
@@ -1030,16 +1002,16 @@ impl PolarItem {
 impl Solver {
     /// Static dipole coupling rate μE/ħ (rad/ps) at time t (ps).
     fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
-        field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
+        field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
     }
 
     /// The schedule with both parities: kicks or finite intervals for every time-dependent element
     /// (laser, two-colour, terahertz), plus static-field switches; and the laser events for reports.
     fn polar_schedule(&self, field: &FieldModel) -> (Vec<PolarItem>, Vec<Event>) {
         use crate::units::{BETA_AU, EPSILON_0, HBAR, dipole_rate_rad_per_ps, peak_field_v_per_m};
-        let mol = &self.molecule;
-        let da = mol.delta_alpha_a3();
-        let j_ref = self.reference_j(field).min(mol.max_physical_j()).max(2);
+        let mol = &self.axis;
+        let da = mol.delta_alpha_a3;
+        let j_ref = self.reference_j(field).min(self.molecule.max_physical_j()).max(2);
         let d_omega = cm_to_rad_per_ps(mol.energy_cm(j_ref) - mol.energy_cm(j_ref - 1)).abs();
         let overlaps = |(a, b): (f64, f64), lo: f64, hi: f64| a <= hi && b >= lo;
         let mut items = vec![];
@@ -1067,7 +1039,7 @@ impl Solver {
                     let e1 = peak_field_v_per_m(tc.fundamental_intensity_wcm2);
                     let e2 = peak_field_v_per_m(tc.second_harmonic_intensity_wcm2);
                     let g = 0.125 * e1 * e1 * e2 * tc.phase_rad.cos() * BETA_AU / HBAR * 1e-12 * tc.three_halves_area_ps();
-                    let (bp, bt) = (mol.beta_parallel_au.unwrap_or(0.0), mol.beta_perpendicular_au.unwrap_or(0.0));
+                    let (bp, bt) = (mol.beta_parallel_au, mol.beta_perpendicular_au);
                     items.push(PolarItem::Kick { t_ps: tc.center_ps, theta: [g * 3.0 * bt, theta2, g * (bp - 3.0 * bt)] });
                 }
                 for th in field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)) {
@@ -1100,8 +1072,8 @@ impl Solver {
     /// Levels to add above a polar block's thermal top: room for the laser kicks, the static-field mixing
     /// (about sqrt(μE/B) levels) and the dipole kicks of `items`.
     fn polar_extra(&self, field: &FieldModel, items: &[PolarItem]) -> usize {
-        let b_rate = cm_to_rad_per_ps(self.molecule.b_cm);
-        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        let b_rate = cm_to_rad_per_ps(self.axis.b_cm);
+        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
         let dipole_kicks: f64 = items.iter().map(|i| if let PolarItem::Kick { theta, .. } = i { theta[0].abs() + theta[2].abs() } else { 0.0 }).sum();
         2 * self.extra_levels(field) + (4.0 * (s_max / b_rate).sqrt()).ceil() as usize + (1.5 * dipole_kicks).ceil() as usize + 4
     }
@@ -1177,7 +1149,7 @@ impl Solver {
         // correlate with the thermal field-free levels (same energy order within the block).
         // The field the molecules arrived in: on from the start (no on_ps) and not yet switched off.
         let arrived_in = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.map(|o| o >= t_first).unwrap_or(true));
-        let s0 = arrived_in.map(|s| crate::units::dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
+        let s0 = arrived_in.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
         let starts_dressed = s0 != 0.0;
         let state = if starts_dressed {
             let e = ops.static_eigen(s0);
@@ -1322,7 +1294,7 @@ impl driver::Kernel for PolarKernel<'_> {
     }
 
     fn finite_kick(&self, _index: usize, _item: &PolarItem, st: &mut BlockState, t: f64, h: f64) {
-        let r = coupling::rates(self.field, t, &self.solver.molecule);
+        let r = coupling::rates(self.field, t, &self.solver.axis);
         self.ops.kick(st, h * r.u1, h * r.u2, h * r.u3);
     }
 

@@ -184,7 +184,8 @@ struct OrientedBlock {
 /// Solver for a top in orienting fields along Z (frame: dipole axis along z).
 pub struct OrientedTopSolver {
     top: Top,
-    molecule: Molecule,
+    /// The dipole axis and the constants of its coupling to the fields.
+    axis: super::coupling::CoupledAxis,
     frame: TopFrame,
     blocks: Vec<OrientedBlock>,
     thermal_j_max: i64,
@@ -199,12 +200,12 @@ impl OrientedTopSolver {
         let frame = TopFrame::new(&top, true);
         let ensemble = TopEnsemble::new(&top, &frame, temperature_k, settings.thermal_tolerance)?;
         let blocks = oriented_blocks(&frame, &ensemble);
-        Ok(OrientedTopSolver { top, molecule: molecule.clone(), frame, blocks, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
+        Ok(OrientedTopSolver { top, axis: super::coupling::CoupledAxis::of(molecule), frame, blocks, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
     }
 
     /// Dipole coupling rate μE/ħ (rad/ps) of the static field at t.
     fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
-        field.static_field.map(|s| dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
+        field.static_field.map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
     }
 
     /// Finite intervals covering every field element and the span of the static field, from `t_first`
@@ -239,7 +240,7 @@ impl OrientedTopSolver {
                     .fold(f64::INFINITY, f64::min);
                 let mut peak: f64 = 0.0;
                 for k in 0..=400 {
-                    let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.molecule);
+                    let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.axis);
                     peak = peak.max(r.u1.abs() + r.u2.abs());
                 }
                 let step_ps = ORIENTED_STEP.step_ps(&self.settings, shortest, 0.0, peak);
@@ -253,8 +254,8 @@ impl OrientedTopSolver {
     fn reach(&self, field: &FieldModel) -> Result<i64> {
         let lasers = if field.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) { laser_reach(&self.top, self.thermal_j_max, field)? } else { 0 };
         let c_rate = cm_to_rad_per_ps(self.top.c_cm);
-        let s_max = field.static_field.map(|s| dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
-        let thz: f64 = field.terahertz.iter().map(|t| dipole_rate_rad_per_ps(self.molecule.dipole_debye, t.field_areas().0).abs()).sum();
+        let s_max = field.static_field.map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        let thz: f64 = field.terahertz.iter().map(|t| dipole_rate_rad_per_ps(self.axis.dipole_debye, t.field_areas().0).abs()).sum();
         Ok(lasers + (2.0 * (s_max / c_rate).sqrt()).ceil() as i64 + (1.5 * thz).ceil() as i64 + 4)
     }
 
@@ -282,7 +283,7 @@ impl OrientedTopSolver {
                 ),
             ));
         }
-        let s0 = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.is_none_or(|o| o >= t_first)).map(|s| dipole_rate_rad_per_ps(self.molecule.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
+        let s0 = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.is_none_or(|o| o >= t_first)).map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
         let nobs = TWO_D + usize::from(with_2d);
         let plan = OrientedRun { field, events: &events, times: times_ps, t_first, s0 };
         let mut assembly = TopAssembly::new(nobs, times_ps.len());
@@ -566,7 +567,7 @@ impl Kernel for OrientedKernel<'_> {
     fn instant(&self, _st: &mut BlockState, _item: &Event) {}
 
     fn finite_kick(&self, _index: usize, _item: &Event, st: &mut BlockState, t: f64, h: f64) {
-        let r = coupling::rates(self.field, t, &self.solver.molecule);
+        let r = coupling::rates(self.field, t, &self.solver.axis);
         self.ops.kick(st, h * r.u2, h * r.u1, &mut self.combined.borrow_mut());
     }
 

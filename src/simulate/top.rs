@@ -685,8 +685,8 @@ fn symmetric_top_polar_ops(top: &Top, frame: &TopFrame, k: i64, m: i64, j_max: i
 
 impl super::Solver {
     /// Symmetric tops in static, terahertz (and laser) fields: one block per (K, M) holding every J, run
-    /// through the polar schedule of linear molecules. `self` is the figure-axis view of the top (α∥ and
-    /// α⊥ along and across the figure axis, the dipole along it).
+    /// through the polar schedule, whose couplings are those of the figure axis (`Solver::axis`: α∥ and
+    /// α⊥ along and across it, the dipole along it).
     pub(super) fn run_polar_top(&self, solver: &TopSolver, field: &FieldModel, times: &[f64], wanted: [bool; super::POLAR_OBSERVABLES]) -> Result<RunResult> {
         let top = &solver.top;
         if top.kind() == crate::molecule::top::TopKind::Asymmetric {
