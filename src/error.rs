@@ -98,4 +98,3 @@ pub fn edit_distance(a: &str, b: &str) -> usize {
     }
     prev[b.len()]
 }
-

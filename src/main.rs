@@ -35,9 +35,7 @@ fn main() -> ExitCode {
             json,
         )
         .map(|()| Finish::Done),
-        Command::Scan { scenario, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } => {
-            commands::run_scan(&scenario, &x, from, to, steps, y.as_deref(), y_from, y_to, y_steps, out.as_deref(), quiet)
-        }
+        Command::Scan(args) => commands::run_scan(&args),
         Command::Tolerance { scenario, jitter_fs, energy_noise_percent, phase_noise_rad, samples, seed, out } => commands::run_tolerance(
             &scenario,
             kicktrain::tolerance::Noise { jitter_fs, energy_percent: energy_noise_percent, phase_rad: phase_noise_rad },

@@ -1,4 +1,7 @@
-//! Small numerical kernels shared by the hot loops.
+//! Small numerical kernels shared by the hot loops, and the dense linear algebra the bases share
+//! (`sorted_eigen`, `Banded` storage).
+
+use nalgebra::{DMatrix, SymmetricEigen};
 
 /// π/2 split for Cody–Waite reduction: the first 33 bits (so that k·P1 is exact for |k| < 2²⁰) ...
 const PIO2_HI: f64 = 1.570_796_326_734_125_6;
@@ -209,6 +212,65 @@ pub fn golden_max(f: impl Fn(f64) -> f64, mut a: f64, mut b: f64, tol: f64) -> (
     }
     let t = 0.5 * (a + b);
     (t, f(t))
+}
+
+/// A symmetric matrix (between eigenstates, say) stored as dense sub-blocks (row start, column start, block);
+/// both (a, b) and (b, a) blocks are present.
+#[derive(Debug, Clone)]
+pub struct Banded {
+    /// Dimension of the full matrix.
+    pub size: usize,
+    /// (first row, first column, values) of each stored block.
+    pub blocks: Vec<(usize, usize, DMatrix<f64>)>,
+}
+
+impl Banded {
+    /// A dense matrix as one block.
+    pub fn dense(m: DMatrix<f64>) -> Banded {
+        Banded { size: m.nrows(), blocks: vec![(0, 0, m)] }
+    }
+
+    /// The full dense matrix.
+    pub fn to_dense(&self) -> DMatrix<f64> {
+        let mut out = DMatrix::zeros(self.size, self.size);
+        for (r, c, b) in &self.blocks {
+            out.view_mut((*r, *c), b.shape()).copy_from(b);
+        }
+        out
+    }
+
+    /// Element (r, c) (zero outside the stored blocks).
+    pub fn get(&self, r: usize, c: usize) -> f64 {
+        for (r0, c0, b) in &self.blocks {
+            if r >= *r0 && r < r0 + b.nrows() && c >= *c0 && c < c0 + b.ncols() {
+                return b[(r - r0, c - c0)];
+            }
+        }
+        0.0
+    }
+}
+
+/// Eigenvalues ascending and eigenvectors with deterministic signs (largest-magnitude component positive).
+pub fn sorted_eigen(h: DMatrix<f64>) -> (Vec<f64>, DMatrix<f64>) {
+    let n = h.nrows();
+    let eig = SymmetricEigen::new(h);
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&a, &b| eig.eigenvalues[a].total_cmp(&eig.eigenvalues[b]));
+    let mut vecs = DMatrix::zeros(n, n);
+    for (c, &i) in order.iter().enumerate() {
+        let col = eig.eigenvectors.column(i);
+        let mut big = 0usize;
+        for r in 0..n {
+            if col[r].abs() > col[big].abs() + 1e-12 {
+                big = r;
+            }
+        }
+        let sign = if col[big] < 0.0 { -1.0 } else { 1.0 };
+        for r in 0..n {
+            vecs[(r, c)] = sign * col[r];
+        }
+    }
+    (order.iter().map(|&i| eig.eigenvalues[i]).collect(), vecs)
 }
 
 #[cfg(test)]

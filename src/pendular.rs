@@ -1,11 +1,13 @@
 //! The adiabatic (pendular) limit: field-dressed eigenstates of H0 − U0 cos²θ − μE cosθ for a
 //! constant laser intensity and static field, each labelled by the field-free level it connects to
-//! adiabatically, and thermal averages over them.
+//! adiabatically, and thermal averages over them. Linear molecules here; tops through the blocks of
+//! their oriented path (`simulate::oriented_top::top_pendular`), which rank levels within every exact
+//! symmetry class.
 
 use crate::basis::{BOTH_PARITIES, Block};
 use crate::ensemble::ThermalEnsemble;
 use crate::error::{Error, Result};
-use crate::molecule::Molecule;
+use crate::molecule::{LinearRotor, Molecule};
 use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2, dipole_rate_rad_per_ps};
 use nalgebra::SymmetricEigen;
 use serde::Serialize;
@@ -25,6 +27,9 @@ pub struct DressedState {
     pub cos2: f64,
     /// ⟨cosθ⟩ of the state.
     pub cos: f64,
+    /// A top's field-free level: "J Ka Kc" (asymmetric) or "J K" (symmetric); absent for linear molecules.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub level: Option<String>,
 }
 
 /// Dressed states and thermal averages at one field strength.
@@ -44,7 +49,7 @@ pub struct PendularResult {
 
 /// Dressed states of one |M| block (both parities of J) with `size` basis states, in rad/ps and
 /// sorted by energy; returns (eigen-frequencies, eigenvectors, block).
-fn dressed_block(mol: &Molecule, m: u32, size: usize, u0: f64, s: f64) -> (Vec<f64>, nalgebra::DMatrix<f64>, Block) {
+fn dressed_block(mol: &LinearRotor, m: u32, size: usize, u0: f64, s: f64) -> (Vec<f64>, nalgebra::DMatrix<f64>, Block) {
     let block = Block { m, parity: BOTH_PARITIES, size };
     let omega = block.frequencies(mol);
     let c2 = block.matrix_of(|x| x * x, 2);
@@ -66,12 +71,6 @@ fn dressed_block(mol: &Molecule, m: u32, size: usize, u0: f64, s: f64) -> (Vec<f
 /// Without a static field the parity of J is conserved and states are labelled within each parity;
 /// the basis is enlarged until the reported energies change by less than 1e-10 B.
 pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32) -> Result<PendularResult> {
-    if mol.is_top() {
-        return Err(Error::input(
-            "molecule",
-            format!("pendular states are computed for linear molecules only so far; {} is a symmetric or asymmetric top", mol.name),
-        ));
-    }
     if !intensity_wcm2.is_finite() || !(0.0..=1e15).contains(&intensity_wcm2) {
         return Err(Error::input("intensity_wcm2", format!("expected 0 to 1e15 W/cm², got {intensity_wcm2}")));
     }
@@ -81,9 +80,12 @@ pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
     if static_kv_cm != 0.0 && !mol.is_polar() {
         return Err(Error::input("molecule.dipole_debye", format!("a static field needs a polar molecule; {} has no permanent dipole", mol.name)));
     }
+    let Some(lin) = mol.as_linear() else {
+        return top_pendular(mol, intensity_wcm2, static_kv_cm, temperature_k);
+    };
     let ensemble = ThermalEnsemble::new(mol, temperature_k, 1e-8)?;
     let j_top = j_max.max(ensemble.j_max);
-    let b = cm_to_rad_per_ps(mol.b_cm);
+    let b = cm_to_rad_per_ps(lin.b_cm);
     let u0 = coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * intensity_wcm2;
     let s = dipole_rate_rad_per_ps(mol.dipole_debye, static_kv_cm);
     let mut states = vec![];
@@ -93,8 +95,8 @@ pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
         let wanted = (j_top - m + 1) as usize;
         let mut size = wanted + 20 + (3.0 * ((u0 + s.abs()) / b).sqrt()).ceil() as usize;
         let (vals, vecs, block) = loop {
-            let a = dressed_block(mol, m, size, u0, s);
-            let c = dressed_block(mol, m, size + 10, u0, s);
+            let a = dressed_block(lin, m, size, u0, s);
+            let c = dressed_block(lin, m, size + 10, u0, s);
             let worst = (0..wanted).map(|i| (a.0[i] - c.0[i]).abs()).fold(0.0, f64::max);
             if worst < 1e-10 * b {
                 break c;
@@ -133,7 +135,7 @@ pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
             let cos2 = (v.transpose() * &c2 * &v)[(0, 0)];
             let cos = (v.transpose() * &c1 * &v)[(0, 0)];
             let e = vals[i] / cm_to_rad_per_ps(1.0);
-            states.push(DressedState { j: labels[i], m, energy_cm: e, energy_b: e / mol.b_cm, cos2, cos });
+            states.push(DressedState { j: labels[i], m, energy_cm: e, energy_b: e / lin.b_cm, cos2, cos, level: None });
             // Thermal weight of the field-free level (J, M), both signs of M.
             let g = if m == 0 { 1.0 } else { 2.0 };
             let p = ensemble.blocks.iter().filter(|bp| bp.m == m).flat_map(|bp| bp.levels.iter()).find(|l| l.0 == labels[i]).map(|l| l.1).unwrap_or(0.0);
@@ -143,6 +145,34 @@ pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
     }
     states.sort_by(|a, b| (a.m, a.energy_cm).partial_cmp(&(b.m, b.energy_cm)).expect("finite energies"));
     Ok(PendularResult { states, thermal_cos2: t_cos2, thermal_cos: t_cos, laser_strength_b: u0 / b, static_strength_b: s / b })
+}
+
+/// Pendular states of a symmetric or asymmetric top: the dressed states of its populated field-free
+/// levels (⟨cos²θ⟩ of the alignment axis, ⟨cosθ⟩ of the dipole axis).
+fn top_pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64) -> Result<PendularResult> {
+    let r = crate::simulate::oriented_top::top_pendular(mol, intensity_wcm2, static_kv_cm, temperature_k)?;
+    let b = mol.revival_b_cm();
+    let states = r
+        .states
+        .iter()
+        .map(|d| DressedState {
+            j: d.j as u32,
+            m: d.m as u32,
+            energy_cm: d.energy_cm,
+            energy_b: d.energy_cm / b,
+            cos2: d.cos2,
+            cos: d.cos,
+            level: Some(d.label.clone()),
+        })
+        .collect();
+    let per_cm = cm_to_rad_per_ps(1.0);
+    Ok(PendularResult {
+        states,
+        thermal_cos2: r.thermal_cos2,
+        thermal_cos: r.thermal_cos,
+        laser_strength_b: coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * intensity_wcm2 / per_cm / b,
+        static_strength_b: dipole_rate_rad_per_ps(mol.dipole_debye, static_kv_cm) / per_cm / b,
+    })
 }
 
 fn first_with_parity(m: u32, parity: u32) -> u32 {

@@ -219,7 +219,10 @@ impl Scenario {
             if self.molecule.kind() == crate::molecule::RotorKind::AsymmetricTop {
                 return Err(Error::input(
                     p,
-                    format!("{} is an asymmetric top: a two-colour pulse would need its full hyperpolarizability tensor, which kicktrain does not take yet", self.molecule.name),
+                    format!(
+                        "{} is an asymmetric top: a two-colour pulse would need its full hyperpolarizability tensor, which kicktrain does not take yet",
+                        self.molecule.name
+                    ),
                 ));
             }
             for (name, v) in [("beta_parallel_au", self.molecule.beta_parallel_au), ("beta_perpendicular_au", self.molecule.beta_perpendicular_au)] {

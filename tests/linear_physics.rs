@@ -9,7 +9,7 @@ use common::ground_state_kick;
 use kicktrain::basis::Block;
 use kicktrain::field::{FieldModel, Pulse, PulseShape};
 use kicktrain::molecule::Molecule;
-use kicktrain::propagate::{BlockOps, BlockState, propagate_finite, propagate_rk4_reference};
+use kicktrain::propagate::{BlockOps, BlockState, FiniteSpan, propagate_finite, propagate_rk4_reference};
 use kicktrain::scenario::{Method, SolverSettings};
 use kicktrain::simulate::Solver;
 use kicktrain::units::revival_period_ps;
@@ -94,7 +94,7 @@ fn revival_period_recovered_from_trace() {
     // Distortion shifts it slightly; the tolerance (0.3 %, our choice) covers that at 20 K.
     for name in ["N2", "CO2"] {
         let mol = lib(name);
-        let t_rev = revival_period_ps(mol.b_cm);
+        let t_rev = revival_period_ps(mol.as_linear().unwrap().b_cm);
         let times = grid(0.5 * t_rev, 2.5 * t_rev, t_rev / 4000.0);
         let solver = Solver::new(&mol, 20.0, settings(Method::Kick)).unwrap();
         let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 30.0, 3e13)], static_field: None, ..Default::default() };
@@ -111,7 +111,7 @@ fn finite_pulse_matches_runge_kutta_reference_and_conserves_norm() {
     // Slow RK4 in the interaction picture (tiny fixed step) is the reference for the splitting solver.
     let mol = lib("N2");
     for (m, parity) in [(0u32, 0u32), (3, 1)] {
-        let ops = BlockOps::new(Block { m, parity, size: 24 }, &mol, false);
+        let ops = BlockOps::new(Block { m, parity, size: 24 }, mol.as_linear().unwrap(), false);
         let start: Vec<usize> = (0..6).collect();
         let pulse = Pulse::gaussian(0.0, 60.0, 6e13);
         let field = FieldModel { pulses: vec![pulse.clone()], static_field: None, ..Default::default() };
@@ -122,7 +122,7 @@ fn finite_pulse_matches_runge_kutta_reference_and_conserves_norm() {
         let run = |step: f64| {
             let mut st = BlockState::new(ops.size(), &start, t0);
             let mut kick = |st: &mut BlockState, t: f64, h: f64| st.kick(&ops, h * rate(t));
-            propagate_finite(&mut st, &ops.omega, &mut kick, t1, step, &[], &[], |_, _| {});
+            propagate_finite(&mut st, &ops.omega, &mut kick, FiniteSpan { end_ps: t1, max_step_ps: step, stops: &[], breaks: &[] }, |_, _| {});
             for n in st.norms() {
                 assert!((n - 1.0).abs() < 1e-12, "norm {n}");
             }
@@ -182,8 +182,8 @@ fn odd_weight_zero_never_populates_odd_j_and_quarter_revivals_follow_spin_statis
     // T_rev/4 the J, J+2 coherences pick up the phase e^{-iπ(J+3/2)}, opposite for even and odd J; common
     // practice). The thresholds 0.05 and 0.2 are our choice.
     let co2 = lib("CO2");
-    assert_eq!(co2.spin_weights, [1.0, 0.0]);
-    let t_rev = revival_period_ps(co2.b_cm);
+    assert_eq!(co2.as_linear().unwrap().spin_weights, [1.0, 0.0]);
+    let t_rev = revival_period_ps(co2.as_linear().unwrap().b_cm);
     let times = grid(0.2 * t_rev, 0.3 * t_rev, t_rev / 2000.0);
     let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 50.0, 2e13)], static_field: None, ..Default::default() };
     let solver = Solver::new(&co2, 30.0, settings(Method::Auto)).unwrap();
@@ -193,7 +193,7 @@ fn odd_weight_zero_never_populates_odd_j_and_quarter_revivals_follow_spin_statis
     let swing = |y: &[f64]| y.iter().cloned().fold(f64::MIN, f64::max) - y.iter().cloned().fold(f64::MAX, f64::min);
     let even_only = swing(&r.trace.cos2);
     let mut equal = co2.clone();
-    equal.spin_weights = [1.0, 1.0];
+    equal.as_linear_mut().unwrap().spin_weights = [1.0, 1.0];
     let r2 = Solver::new(&equal, 30.0, settings(Method::Auto)).unwrap().run(&field, &times, false).unwrap();
     let mixed = swing(&r2.trace.cos2);
     assert!(even_only > 0.05, "quarter revival swing with even J only: {even_only}");

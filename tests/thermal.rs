@@ -26,6 +26,7 @@ fn linear(name: &str) -> Molecule {
 /// to J = 250, far past where any term counts at these temperatures and below each molecule's
 /// distortion turnover).
 fn direct_sum(m: &Molecule, temperature_k: f64, j_top: u32) -> (f64, f64) {
+    let m = m.as_linear().unwrap();
     let kt = kt_in_cm(temperature_k);
     let gmax = m.spin_weights[0].max(m.spin_weights[1]);
     let energy = |j: u32| {
@@ -110,9 +111,9 @@ fn library_co2_at_100_k_and_o2_at_300_k_report_a_truthful_truncation() {
         assert!((solver.discarded_population() - above).abs() < 1e-14 + 1e-9 * above, "{name}: {} vs {above}", solver.discarded_population());
         assert!(solver.discarded_population() <= 1e-7 && solver.discarded_population() > 0.0);
         // Every kept level has the allowed parity, and the kept range reaches past the Boltzmann peak.
-        let allowed = if m.spin_weights[0] > 0.0 { 0 } else { 1 };
+        let allowed = if m.as_linear().unwrap().spin_weights[0] > 0.0 { 0 } else { 1 };
         assert!(e.blocks.iter().all(|b| b.parity == allowed && !b.levels.is_empty()));
-        let j_peak = (kt_in_cm(t) / (2.0 * m.b_cm)).sqrt();
+        let j_peak = (kt_in_cm(t) / (2.0 * m.as_linear().unwrap().b_cm)).sqrt();
         assert!(e.j_max as f64 > 3.0 * j_peak, "{name}: J_max {} vs peak {j_peak:.1}", e.j_max);
     }
 }
@@ -151,7 +152,7 @@ fn no_block_is_empty_and_none_is_dropped() {
             }
         }
         for j in 0..=e.j_max {
-            let allowed = m.spin_weights[(j % 2) as usize] > 0.0;
+            let allowed = m.as_linear().unwrap().spin_weights[(j % 2) as usize] > 0.0;
             assert_eq!(count[j as usize], if allowed { 2 * j as usize + 1 } else { 0 }, "{name} J = {j}");
         }
     }

@@ -1,6 +1,8 @@
 //! Symmetric and asymmetric tops through the full solver, checked against exact properties and the
 //! independent linear-molecule solver.
 
+use kicktrain::molecule::Molecule;
+use kicktrain::molecule::top::BodyAxis;
 use kicktrain::scenario::Scenario;
 use kicktrain::simulate::simulate;
 
@@ -193,7 +195,8 @@ fn symmetric_top_in_a_two_colour_pulse_from_its_ground_state_equals_the_linear_r
     let lin_mol = r#"{"name": "linear twin", "b_cm": 0.3, "alpha_parallel_a3": 6.0, "alpha_perpendicular_a3": 3.5, "dipole_debye": 1.5"#.to_string() + beta;
     let pulse = r#"{"center_ps": 0.0, "fwhm_fs": 100, "peak_intensity_wcm2": 1e10}"#;
     let window = r#"{"start_ps": -1.0, "stop_ps": 30.0, "step_fs": 100}"#;
-    let two_colour = r#", "two_colour": [{"center_ps": 0.5, "fwhm_fs": 400, "fundamental_intensity_wcm2": 4e13, "second_harmonic_ratio": 0.25, "phase_rad": 0.0}]"#;
+    let two_colour =
+        r#", "two_colour": [{"center_ps": 0.5, "fwhm_fs": 400, "fundamental_intensity_wcm2": 4e13, "second_harmonic_ratio": 0.25, "phase_rad": 0.0}]"#;
     let top = simulate(&scenario(&top_mol, 0.0, pulse, window, two_colour)).unwrap().result;
     let lin = simulate(&scenario(&lin_mol, 0.0, pulse, window, two_colour)).unwrap().result;
     let mut worst: f64 = 0.0;
@@ -316,7 +319,13 @@ fn thermal_orientation_of_an_asymmetric_top_approaches_langevin_debye() {
     let window = r#"{"start_ps": 0.0, "stop_ps": 0.5, "step_fs": 250}"#;
     let mut deviation = vec![];
     for t in [40.0, 60.0] {
-        let s = scenario(LIGHT, t, r#"{"center_ps": 0.0, "fwhm_fs": 100, "peak_intensity_wcm2": 0}"#, window, &format!(r#", "static_field": {{"strength_kv_cm": {kv}}}"#));
+        let s = scenario(
+            LIGHT,
+            t,
+            r#"{"center_ps": 0.0, "fwhm_fs": 100, "peak_intensity_wcm2": 0}"#,
+            window,
+            &format!(r#", "static_field": {{"strength_kv_cm": {kv}}}"#),
+        );
         let r = simulate(&s).unwrap().result;
         let kt = kicktrain::units::kt_in_cm(t);
         let x = 2.0 * 0.016_792_0 * kv / kt;
@@ -329,4 +338,62 @@ fn thermal_orientation_of_an_asymmetric_top_approaches_langevin_debye() {
     }
     let ratio = deviation[1] / deviation[0];
     assert!((ratio / (40.0 / 60.0) - 1.0).abs() < 0.25, "deviations {deviation:?} should scale as 1/T");
+}
+
+#[test]
+fn pendular_states_of_tops_without_fields_are_isotropic() {
+    // Without fields every dressed state is a field-free level, whose M sublevels together are isotropic:
+    // the thermal ⟨cos²θ⟩ of any axis is 1/3 and ⟨cosθ⟩ is 0 (exact; the kept ensemble sums to 1 − the
+    // discarded population, below 1e-8).
+    for name in ["SO2", "CH3F"] {
+        let mol = Molecule::from_library(name, "molecule").unwrap();
+        let r = kicktrain::pendular::pendular(&mol, 0.0, 0.0, 5.0, 3).unwrap();
+        assert!((r.thermal_cos2 - 1.0 / 3.0).abs() < 1e-7, "{name}: ⟨cos²θ⟩ = {}", r.thermal_cos2);
+        assert!(r.thermal_cos.abs() < 1e-12, "{name}: ⟨cosθ⟩ = {}", r.thermal_cos);
+        assert!(r.states.iter().all(|s| s.level.is_some()), "{name}: every top level is named");
+    }
+}
+
+#[test]
+fn the_ground_state_of_a_symmetric_top_in_fields_is_that_of_its_figure_axis() {
+    // K is conserved in fields along Z, and the K = 0 ladder of a symmetric top, B J(J+1) with the cosθ and
+    // cos²θ couplings of the figure axis (and the distortion D_J), is the linear-rotor problem (exact). At T = 0 only J = K = 0 is
+    // populated, so the top's pendular ground state equals that of a linear molecule with B, α∥ − α⊥ and μ
+    // of the figure axis (the linear pendular states are checked against the spheroidal eigenvalues in
+    // tests/orientation.rs).
+    let mol = Molecule::from_library("CH3F", "molecule").unwrap();
+    let t = mol.as_top().unwrap().clone();
+    let mut axis = Molecule::linear("figure axis", t.b_cm, t.d_j_cm, t.alpha(BodyAxis::A), t.alpha(BodyAxis::B), [1.0, 1.0]);
+    axis.dipole_debye = mol.dipole_debye;
+    for (i, e) in [(2e11, 20.0), (1e12, 0.0), (0.0, 60.0), (5e11, -30.0)] {
+        let top = kicktrain::pendular::pendular(&mol, i, e, 0.0, 0).unwrap();
+        let lin = kicktrain::pendular::pendular(&axis, i, e, 0.0, 0).unwrap();
+        assert!((top.thermal_cos2 - lin.thermal_cos2).abs() < 1e-8, "{i} W/cm², {e} kV/cm: ⟨cos²θ⟩ {} vs {}", top.thermal_cos2, lin.thermal_cos2);
+        assert!((top.thermal_cos - lin.thermal_cos).abs() < 1e-8, "{i} W/cm², {e} kV/cm: ⟨cosθ⟩ {} vs {}", top.thermal_cos, lin.thermal_cos);
+    }
+}
+
+#[test]
+fn a_slow_pulse_on_a_polar_asymmetric_top_reaches_the_pendular_averages_at_its_peak() {
+    // SO2 (dipole along b) held in 10 kV/cm, then a Gaussian pulse of 5e10 W/cm² much longer than the
+    // rotational period: by the adiabatic theorem the state follows the dressed state of the same rank in
+    // its symmetry class, so the time-dependent ⟨cos²θ⟩ and ⟨cosθ⟩ at the peak approach the pendular values,
+    // closer for the slower pulse.
+    let mol = Molecule::from_library("SO2", "molecule").unwrap();
+    let adiabatic = kicktrain::pendular::pendular(&mol, 5e10, 10.0, 0.0, 2).unwrap();
+    let mut errors = vec![];
+    for fwhm_ps in [30.0, 60.0] {
+        let s = scenario(
+            r#""SO2""#,
+            0.0,
+            &format!(r#"{{"center_ps": 0, "fwhm_fs": {}, "peak_intensity_wcm2": 5e10}}"#, fwhm_ps * 1e3),
+            r#"{"start_ps": 0, "stop_ps": 0.5, "step_fs": 500}"#,
+            r#", "static_field": {"strength_kv_cm": 10}"#,
+        );
+        let r = simulate(&s).unwrap().result;
+        let cos = r.trace.cos().unwrap()[0];
+        errors.push(((r.trace.cos2[0] - adiabatic.thermal_cos2).abs(), (cos - adiabatic.thermal_cos).abs()));
+    }
+    assert!(errors[1].0 < errors[0].0 && errors[1].0 < 3e-3, "⟨cos²θ⟩ errors {errors:?} against {}", adiabatic.thermal_cos2);
+    assert!(errors[1].1 < 3e-3, "⟨cosθ⟩ errors {errors:?} against {}", adiabatic.thermal_cos);
 }

@@ -9,7 +9,7 @@ pub mod legendre;
 pub mod top;
 pub mod wigner;
 
-use crate::molecule::Molecule;
+use crate::molecule::LinearRotor;
 use crate::units::cm_to_rad_per_ps;
 use nalgebra::DMatrix;
 
@@ -137,7 +137,7 @@ impl Block {
     }
 
     /// Field-free angular frequencies ω_n = E_J / ħ in rad/ps.
-    pub fn frequencies(&self, mol: &Molecule) -> Vec<f64> {
+    pub fn frequencies(&self, mol: &LinearRotor) -> Vec<f64> {
         (0..self.size).map(|n| cm_to_rad_per_ps(mol.energy_cm(self.j(n)))).collect()
     }
 

@@ -1,6 +1,6 @@
 //! The command line: commands, options and their help texts (clap).
 
-use clap::{Parser, Subcommand};
+use clap::{Args, Parser, Subcommand};
 use std::path::PathBuf;
 
 #[derive(Parser)]
@@ -133,40 +133,7 @@ takes about a minute on two cores; with \"solver\": {\"method\": \"kick\"} (each
 second. Use the kick model for first looks when every pulse is much shorter than the rotational period (about 100 fs or less\n\
 for N2, whose period is 8.4 ps), then check the interesting region with the default solver."
     )]
-    Scan {
-        /// Scenario file (JSON).
-        scenario: PathBuf,
-        /// Path of the first scanned field, e.g. pulses[1].center_ps.
-        #[arg(long)]
-        x: String,
-        /// First value of x.
-        #[arg(long)]
-        from: f64,
-        /// Last value of x.
-        #[arg(long)]
-        to: f64,
-        /// Number of x values.
-        #[arg(long, default_value_t = 21)]
-        steps: usize,
-        /// Path of the second scanned field (2D scan).
-        #[arg(long)]
-        y: Option<String>,
-        /// First value of y.
-        #[arg(long)]
-        y_from: Option<f64>,
-        /// Last value of y.
-        #[arg(long)]
-        y_to: Option<f64>,
-        /// Number of y values.
-        #[arg(long, default_value_t = 21)]
-        y_steps: usize,
-        /// Output folder for scan.csv and scan.svg.
-        #[arg(long)]
-        out: Option<PathBuf>,
-        /// No progress bar.
-        #[arg(long)]
-        quiet: bool,
-    },
+    Scan(ScanArgs),
     /// Monte Carlo tolerance of a design (a scenario with a goal) to timing jitter and energy or phase noise.
     #[command(allow_negative_numbers = true)]
     #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
@@ -207,4 +174,41 @@ The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses
         #[arg(long)]
         json: bool,
     },
+}
+
+/// The options of `kicktrain scan`.
+#[derive(Args, Debug)]
+pub struct ScanArgs {
+    /// Scenario file (JSON).
+    pub scenario: PathBuf,
+    /// Path of the first scanned field, e.g. pulses[1].center_ps.
+    #[arg(long)]
+    pub x: String,
+    /// First value of x.
+    #[arg(long)]
+    pub from: f64,
+    /// Last value of x.
+    #[arg(long)]
+    pub to: f64,
+    /// Number of x values.
+    #[arg(long, default_value_t = 21)]
+    pub steps: usize,
+    /// Path of the second scanned field (2D scan).
+    #[arg(long)]
+    pub y: Option<String>,
+    /// First value of y.
+    #[arg(long)]
+    pub y_from: Option<f64>,
+    /// Last value of y.
+    #[arg(long)]
+    pub y_to: Option<f64>,
+    /// Number of y values.
+    #[arg(long, default_value_t = 21)]
+    pub y_steps: usize,
+    /// Output folder for scan.csv and scan.svg.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
 }

@@ -219,21 +219,11 @@ pub fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str, mol
 }
 
 /// `kicktrain scan`: a 1D or 2D grid over scenario fields.
-#[allow(clippy::too_many_arguments)]
-pub fn run_scan(
-    path: &Path,
-    x: &str,
-    from: f64,
-    to: f64,
-    steps: usize,
-    y: Option<&str>,
-    y_from: Option<f64>,
-    y_to: Option<f64>,
-    y_steps: usize,
-    out: Option<&Path>,
-    quiet: bool,
-) -> Result<Finish, Error> {
+pub fn run_scan(args: &super::args::ScanArgs) -> Result<Finish, Error> {
     use kicktrain::scan::{Axis, scan};
+    let super::args::ScanArgs { scenario: path, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } = args;
+    let (from, to, steps, y_from, y_to, y_steps, quiet) = (*from, *to, *steps, *y_from, *y_to, *y_steps, *quiet);
+    let (y, out) = (y.as_deref(), out.as_deref());
     let text = read_text_file(path)?;
     let mut base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
     if ALLOW_LONG.load(Ordering::SeqCst)

@@ -671,7 +671,7 @@ impl Objective {
     /// adiabatic regime, are searched with the full solver throughout.
     pub fn kick_screening(&self) -> bool {
         let m = self.molecule();
-        let fastest_cm = m.top.as_ref().map(|t| t.a_cm).unwrap_or(m.b_cm);
+        let fastest_cm = m.as_top().map(|t| t.a_cm).unwrap_or(m.revival_b_cm());
         let period_ps = crate::units::revival_period_ps(fastest_cm);
         let longest = self.space.field(&vec![1.0; self.space.dims()]);
         let widest = longest.pulses.iter().map(|p| p.fwhm_ps()).chain(longest.two_colour.iter().map(|t| t.fwhm_fs / 1000.0)).fold(0.0, f64::max);
@@ -756,4 +756,3 @@ pub(crate) fn apply_ionization_limit(space: &mut DesignSpace, mol: &Molecule, li
     space.max_peak_intensity_wcm2 = space.max_peak_intensity_wcm2.min(largest_cap);
     Ok(())
 }
-

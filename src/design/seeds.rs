@@ -52,18 +52,7 @@ impl SeedPool {
 /// tumbling motion), 1/((B + C)c) for asymmetric tops (the mean of the two smaller constants).
 pub fn revival_period_ps(obj: &Objective) -> f64 {
     let m = obj.molecule();
-    let b = match &m.top {
-        None => m.b_cm,
-        Some(t) => {
-            use crate::molecule::top::TopKind;
-            match t.kind() {
-                TopKind::Prolate => t.b_cm,
-                TopKind::Oblate => t.b_cm,
-                TopKind::Asymmetric => 0.5 * (t.b_cm + t.c_cm),
-            }
-        }
-    };
-    crate::units::revival_period_ps(b)
+    crate::units::revival_period_ps(m.revival_b_cm())
 }
 
 /// Slot indices of the delays and intensities in the unit-cube vector (None where fixed).

@@ -48,7 +48,10 @@ pub struct ThermalEnsemble {
 impl ThermalEnsemble {
     /// Boltzmann ensemble at `temperature_k`, keeping J levels until the left-out population is below
     /// `tolerance`; the kept populations are renormalized to sum to 1. T = 0 gives the lowest allowed level.
-    pub fn new(mol: &Molecule, temperature_k: f64, tolerance: f64) -> Result<ThermalEnsemble> {
+    pub fn new(molecule: &Molecule, temperature_k: f64, tolerance: f64) -> Result<ThermalEnsemble> {
+        let mol = molecule
+            .as_linear()
+            .ok_or_else(|| crate::error::Error::input("molecule", format!("{} is a top; its thermal ensemble is a TopEnsemble", molecule.name)))?;
         // Spin weights are relative: normalize to the larger one so sums cannot overflow.
         let wmax = mol.spin_weights[0].max(mol.spin_weights[1]);
         let weight = |j: u32| mol.spin_weights[(j % 2) as usize] / wmax;
@@ -173,7 +176,7 @@ mod tests {
         let b0 = e.blocks.iter().find(|b| b.m == 0 && b.parity == 0).unwrap();
         let r = b0.levels[1].1 / b0.levels[0].1;
         let mol = n2();
-        let want = (-(mol.energy_cm(2)) / crate::units::kt_in_cm(300.0)).exp();
+        let want = (-(mol.as_linear().unwrap().energy_cm(2)) / crate::units::kt_in_cm(300.0)).exp();
         assert!((r / want - 1.0).abs() < 1e-12);
     }
 
@@ -186,7 +189,7 @@ mod tests {
         // rotational levels of the ground state exist: G. Herzberg, "Molecular Spectra and Molecular Structure
         // I: Spectra of Diatomic Molecules" (1950)) starts in J = 1, three sublevels (M = −1, 0, 1).
         let mut o = n2();
-        o.spin_weights = [0.0, 1.0];
+        o.as_linear_mut().unwrap().spin_weights = [0.0, 1.0];
         let e = ThermalEnsemble::new(&o, 0.0, 1e-7).unwrap();
         assert_eq!(e.state_count(), 3);
         assert!(e.blocks.iter().all(|b| b.parity == 1));

@@ -207,7 +207,7 @@ mod tests {
 
     fn ensemble(name: &str, t: f64) -> (TopEnsemble, TopFrame) {
         let m = Molecule::from_library(name, "molecule").unwrap();
-        let top = m.top.unwrap();
+        let top = m.as_top().unwrap().clone();
         let frame = TopFrame::new(&top, false);
         (TopEnsemble::new(&top, &frame, t, 1e-7).unwrap(), frame)
     }

@@ -99,12 +99,12 @@ fn explain(at: &str, message: &str) -> Error {
             (None, "f64") => format!("a number{unit}"),
             (None, other) if other.starts_with("a number or") => format!("{other}{unit}"),
             (None, expected) => match expected {
-            "usize" | "u64" | "u32" => "a whole number ≥ 0".to_string(),
-            "a boolean" => "true or false".to_string(),
-            "a borrowed string" | "a string" => "a string".to_string(),
-            other if other.starts_with("struct ") || other == "a map" => "an object { ... }".to_string(),
-            "a sequence" => "an array".to_string(),
-            other => other.to_string(),
+                "usize" | "u64" | "u32" => "a whole number ≥ 0".to_string(),
+                "a boolean" => "true or false".to_string(),
+                "a borrowed string" | "a string" => "a string".to_string(),
+                other if other.starts_with("struct ") || other == "a map" => "an object { ... }".to_string(),
+                "a sequence" => "an array".to_string(),
+                other => other.to_string(),
             },
         };
         return Error::input(place(at), format!("expected {expected}, got {got}"));

@@ -194,7 +194,8 @@ pub fn objective(v: &Value) -> Result<Objective> {
     };
     base.validate()?;
     let pulses = file.pulses.as_ref().ok_or_else(|| missing("pulses", "an object with count or max_count and the bounds of each pulse"))?;
-    let (mut space, variable_count) = pulses.space("pulses", file.max_peak_intensity_wcm2, file.max_total_fluence_jcm2, file.min_separation_ps.unwrap_or(0.0))?;
+    let (mut space, variable_count) =
+        pulses.space("pulses", file.max_peak_intensity_wcm2, file.max_total_fluence_jcm2, file.min_separation_ps.unwrap_or(0.0))?;
     if let Some(limit) = file.max_ionized_fraction {
         crate::design::apply_ionization_limit(&mut space, &base.molecule, limit)?;
     }
@@ -207,7 +208,8 @@ pub fn objective(v: &Value) -> Result<Objective> {
     if let Some(t) = &file.terahertz {
         let delay_ps = bounds(t.delay_ps, "terahertz.delay_ps")?
             .ok_or_else(|| missing("terahertz.delay_ps", "ps after the last laser pulse centre, a number or {min, max}"))?;
-        let peak_field_kv_cm = bounds(t.peak_field_kv_cm, "terahertz.peak_field_kv_cm")?.ok_or_else(|| missing("terahertz.peak_field_kv_cm", "kV/cm, a number or {min, max}"))?;
+        let peak_field_kv_cm =
+            bounds(t.peak_field_kv_cm, "terahertz.peak_field_kv_cm")?.ok_or_else(|| missing("terahertz.peak_field_kv_cm", "kV/cm, a number or {min, max}"))?;
         if delay_ps.min.abs().max(delay_ps.max.abs()) > 1e5 {
             return Err(Error::input("terahertz.delay_ps", "expected delays within ±1e5 ps"));
         }
@@ -308,7 +310,15 @@ impl PulseSpaceFile {
             for w in [p.fwhm_fs.min, p.fwhm_fs.max] {
                 for c in [p.cut_fs.min, p.cut_fs.max] {
                     let cut = (c != 0.0 || !p.cut_fs.is_fixed()).then_some(c);
-                    let pulse = Pulse { center_ps: 0.0, fwhm_fs: w, peak_intensity_wcm2: 0.0, shape: self.shape, rise_fs: self.rise_fs, cut_fs: cut, polarization: Default::default() };
+                    let pulse = Pulse {
+                        center_ps: 0.0,
+                        fwhm_fs: w,
+                        peak_intensity_wcm2: 0.0,
+                        shape: self.shape,
+                        rise_fs: self.rise_fs,
+                        cut_fs: cut,
+                        polarization: Default::default(),
+                    };
                     pulse.validate(&at)?;
                 }
             }
@@ -323,10 +333,16 @@ impl PolarizationBoundsFile {
         let angle = bounds(self.angle_deg, &join(path, "angle_deg"))?.unwrap_or(Bounds::fixed(0.0));
         let ell = bounds(self.ellipticity, &join(path, "ellipticity"))?.unwrap_or(Bounds::fixed(0.0));
         if !angle.min.is_finite() || !angle.max.is_finite() || angle.max - angle.min > 360.0 {
-            return Err(Error::input(join(path, "angle_deg"), format!("expected finite angles spanning at most 360 degrees, got [{}, {}]", angle.min, angle.max)));
+            return Err(Error::input(
+                join(path, "angle_deg"),
+                format!("expected finite angles spanning at most 360 degrees, got [{}, {}]", angle.min, angle.max),
+            ));
         }
         if !(0.0..=1.0).contains(&ell.min) || !(0.0..=1.0).contains(&ell.max) {
-            return Err(Error::input(join(path, "ellipticity"), format!("expected minor-to-major field ratios between 0 and 1, got [{}, {}]", ell.min, ell.max)));
+            return Err(Error::input(
+                join(path, "ellipticity"),
+                format!("expected minor-to-major field ratios between 0 and 1, got [{}, {}]", ell.min, ell.max),
+            ));
         }
         Ok((angle, ell))
     }

@@ -5,8 +5,8 @@ use super::{join, read, type_name};
 use crate::error::{Error, Result, require_positive};
 use crate::field::{FieldModel, Pulse, PulsePolarization, PulseShape, StaticField, TerahertzPulse, TwoColourPulse};
 use crate::goal::{Goal, GoalKind, Observable};
-use crate::molecule::Molecule;
 use crate::molecule::top::{BodyAxis, Top, TopKind, TopSpinWeights};
+use crate::molecule::{LinearRotor, Molecule, Rotor};
 use crate::optics::focal::{FocalAverage, rayleigh_range_um};
 use crate::optics::{Focus, peak_intensity_wcm2, peak_power_w};
 use crate::scenario::{DEFAULT_MAX_STEPS, Method, MoleculeSource, Scenario, SolverSettings, Window};
@@ -55,7 +55,7 @@ pub struct ScenarioFile {
 }
 
 /// An inline linear molecule.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct LinearFile {
     name: Option<String>,
@@ -65,10 +65,13 @@ struct LinearFile {
     alpha_parallel_a3: f64,
     alpha_perpendicular_a3: f64,
     spin_weights: Option<[f64; 2]>,
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "is_zero")]
     dipole_debye: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
     beta_parallel_au: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     beta_perpendicular_au: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
     ionization_energy_ev: Option<f64>,
 }
 
@@ -226,10 +229,9 @@ pub struct GoalFile {
 pub fn scenario(v: &Value, path: &str) -> Result<Scenario> {
     let file: ScenarioFile = read(v, path)?;
     let at = |key: &str| join(path, key);
-    let mv = file
-        .molecule
-        .as_ref()
-        .ok_or_else(|| Error::input(at("molecule"), "missing; expected a library name (see `kicktrain molecules`) or an object with b_cm, alpha_parallel_a3, ..."))?;
+    let mv = file.molecule.as_ref().ok_or_else(|| {
+        Error::input(at("molecule"), "missing; expected a library name (see `kicktrain molecules`) or an object with b_cm, alpha_parallel_a3, ...")
+    })?;
     let (molecule, molecule_source) = molecule(mv, &at("molecule"))?;
     let mut pulses = vec![];
     let mut pulse_optics = vec![];
@@ -317,9 +319,9 @@ pub fn molecule(v: &Value, path: &str) -> Result<(Molecule, MoleculeSource)> {
 
 /// An inline molecule as the value [`molecule`] reads back.
 fn molecule_value(m: &Molecule) -> Value {
-    match &m.top {
-        Some(t) => serde_json::to_value(TopFile::from_top(m, t)).expect("a top serializes"),
-        None => serde_json::to_value(m).expect("a molecule serializes"),
+    match &m.rotor {
+        Rotor::Top(t) => serde_json::to_value(TopFile::from_top(m, t)).expect("a top serializes"),
+        Rotor::Linear(l) => serde_json::to_value(LinearFile::from_linear(m, l)).expect("a molecule serializes"),
     }
 }
 
@@ -327,16 +329,33 @@ impl LinearFile {
     fn molecule(self) -> Molecule {
         Molecule {
             name: self.name.unwrap_or_else(|| "custom".to_string()),
-            b_cm: self.b_cm,
-            d_cm: self.d_cm,
-            alpha_parallel_a3: self.alpha_parallel_a3,
-            alpha_perpendicular_a3: self.alpha_perpendicular_a3,
-            spin_weights: self.spin_weights.unwrap_or([1.0, 1.0]),
+            rotor: Rotor::Linear(LinearRotor {
+                b_cm: self.b_cm,
+                d_cm: self.d_cm,
+                alpha_parallel_a3: self.alpha_parallel_a3,
+                alpha_perpendicular_a3: self.alpha_perpendicular_a3,
+                spin_weights: self.spin_weights.unwrap_or([1.0, 1.0]),
+            }),
             dipole_debye: self.dipole_debye,
             beta_parallel_au: self.beta_parallel_au,
             beta_perpendicular_au: self.beta_perpendicular_au,
             ionization_energy_ev: self.ionization_energy_ev,
-            top: None,
+        }
+    }
+
+    /// The file form of a linear molecule, as written back.
+    fn from_linear(m: &Molecule, l: &LinearRotor) -> LinearFile {
+        LinearFile {
+            name: Some(m.name.clone()),
+            b_cm: l.b_cm,
+            d_cm: l.d_cm,
+            alpha_parallel_a3: l.alpha_parallel_a3,
+            alpha_perpendicular_a3: l.alpha_perpendicular_a3,
+            spin_weights: Some(l.spin_weights),
+            dipole_debye: m.dipole_debye,
+            beta_parallel_au: m.beta_parallel_au,
+            beta_perpendicular_au: m.beta_perpendicular_au,
+            ionization_energy_ev: m.ionization_energy_ev,
         }
     }
 }
@@ -344,7 +363,10 @@ impl LinearFile {
 impl TopFile {
     fn molecule(self, path: &str) -> Result<Molecule> {
         let p = self.polarizability_a3.ok_or_else(|| {
-            Error::input(join(path, "polarizability_a3"), "missing; expected an object {\"a\": …, \"b\": …, \"c\": …} of principal polarizability volumes in Å³")
+            Error::input(
+                join(path, "polarizability_a3"),
+                "missing; expected an object {\"a\": …, \"b\": …, \"c\": …} of principal polarizability volumes in Å³",
+            )
         })?;
         let polarizability_a3 = [p.a, p.b, p.c];
         let probe = Top { d_j_cm: self.d_j_cm, d_jk_cm: self.d_jk_cm, d_k_cm: self.d_k_cm, ..Top::rigid(self.a_cm, self.b_cm, self.c_cm, polarizability_a3) };
@@ -421,7 +443,12 @@ impl PulseFile {
         };
         let optics = match (self.peak_intensity_wcm2, self.energy_mj) {
             (Some(i), None) => {
-                let given = [("waist_um", self.waist_um), ("beam_radius_mm", self.beam_radius_mm), ("wavelength_nm", self.wavelength_nm), ("focal_length_mm", self.focal_length_mm)];
+                let given = [
+                    ("waist_um", self.waist_um),
+                    ("beam_radius_mm", self.beam_radius_mm),
+                    ("wavelength_nm", self.wavelength_nm),
+                    ("focal_length_mm", self.focal_length_mm),
+                ];
                 if let Some((key, _)) = given.iter().find(|(_, v)| v.is_some()) {
                     return Err(Error::input(join(path, key), "focusing keys go with the pulse energy (energy_mj), not with peak_intensity_wcm2"));
                 }

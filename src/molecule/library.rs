@@ -66,13 +66,14 @@ impl LibraryEntry {
     pub fn molecule(&self) -> Molecule {
         Molecule {
             name: self.name.to_string(),
-            b_cm: self.b_cm.value,
-            d_cm: self.d_cm.value,
-            alpha_parallel_a3: self.alpha_parallel_a3.value,
-            alpha_perpendicular_a3: self.alpha_perpendicular_a3.value,
-            spin_weights: self.spin_weights,
+            rotor: super::Rotor::Linear(super::LinearRotor {
+                b_cm: self.b_cm.value,
+                d_cm: self.d_cm.value,
+                alpha_parallel_a3: self.alpha_parallel_a3.value,
+                alpha_perpendicular_a3: self.alpha_perpendicular_a3.value,
+                spin_weights: self.spin_weights,
+            }),
             dipole_debye: self.dipole_debye.map(|d| d.value).unwrap_or(0.0),
-            top: None,
             beta_parallel_au: self.beta_parallel_au.map(|b| b.value),
             beta_perpendicular_au: self.beta_perpendicular_au.map(|b| b.value),
             ionization_energy_ev: self.ionization_energy_ev.map(|b| b.value),

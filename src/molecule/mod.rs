@@ -9,134 +9,52 @@ pub use library::{LibraryEntry, Sourced, library};
 pub use top_library::{TopEntry, top_library};
 
 use crate::error::{Error, Result, edit_distance, require_non_negative, require_positive};
-use serde::{Deserialize, Serialize};
 
-/// A linear molecule as the solver sees it.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(deny_unknown_fields)]
+/// A molecule as the solver sees it: its rotor (a linear molecule's constants or a top's) and what
+/// every kind of rotor may carry (dipole, hyperpolarizability, ionization energy).
+#[derive(Debug, Clone, PartialEq)]
 pub struct Molecule {
     /// Display name (library key or user label).
-    #[serde(default = "custom_name")]
     pub name: String,
+    /// The rotational constants and polarizabilities, by the kind of rotor.
+    pub rotor: Rotor,
+    /// Permanent dipole moment, debye (0 for non-polar molecules): along the axis of a linear molecule,
+    /// along `Top::dipole_axis` of a top.
+    pub dipole_debye: f64,
+    /// First hyperpolarizability β∥ = β_zzz in atomic units (Taylor convention), along the axis of a linear
+    /// molecule or the figure axis of a symmetric top, if known.
+    pub beta_parallel_au: Option<f64>,
+    /// First hyperpolarizability β⊥ = β_zxx in atomic units (Taylor convention), if known.
+    pub beta_perpendicular_au: Option<f64>,
+    /// First ionization energy, eV (for the tunnel-ionization estimate), if known.
+    pub ionization_energy_ev: Option<f64>,
+}
+
+/// The rotational constants and polarizabilities of a molecule, by the kind of rotor.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Rotor {
+    /// A linear molecule.
+    Linear(LinearRotor),
+    /// A symmetric or asymmetric top.
+    Top(top::Top),
+}
+
+/// The constants of a linear molecule.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LinearRotor {
     /// Rotational constant B in cm⁻¹.
     pub b_cm: f64,
     /// Quartic centrifugal distortion constant D in cm⁻¹ (E = B J(J+1) − D J²(J+1)²).
-    #[serde(default)]
     pub d_cm: f64,
     /// Polarizability volume parallel to the molecular axis, α∥ in Å³.
     pub alpha_parallel_a3: f64,
     /// Polarizability volume perpendicular to the molecular axis, α⊥ in Å³.
     pub alpha_perpendicular_a3: f64,
     /// Nuclear-spin statistical weights `[even_J, odd_J]` (relative, ≥ 0, not both zero).
-    #[serde(default = "equal_weights")]
     pub spin_weights: [f64; 2],
-    /// Permanent dipole moment along the molecular axis, debye (0 for non-polar molecules).
-    #[serde(default, skip_serializing_if = "is_zero")]
-    pub dipole_debye: f64,
-    /// First hyperpolarizability β∥ = β_zzz in atomic units (Taylor convention), if known.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub beta_parallel_au: Option<f64>,
-    /// First hyperpolarizability β⊥ = β_zxx in atomic units (Taylor convention), if known.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub beta_perpendicular_au: Option<f64>,
-    /// First ionization energy, eV (for the tunnel-ionization estimate), if known.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub ionization_energy_ev: Option<f64>,
-    /// Symmetric or asymmetric top constants; None for a linear molecule. For a top, `b_cm` holds the
-    /// constant that sets the revival time scale, `alpha_parallel_a3`/`alpha_perpendicular_a3` the largest
-    /// and smallest principal polarizabilities, and `dipole_debye` the dipole along `top.dipole_axis`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub top: Option<top::Top>,
 }
 
-fn is_zero(x: &f64) -> bool {
-    *x == 0.0
-}
-
-/// The kind of rotor, which decides what the field-free Hamiltonian conserves: J and M always; K
-/// (the projection on the figure axis) for linear molecules (K = 0) and symmetric tops; only the D2
-/// symmetry of the inertia ellipsoid for asymmetric tops.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum RotorKind {
-    /// A linear molecule.
-    Linear,
-    /// A prolate or oblate symmetric top.
-    SymmetricTop,
-    /// An asymmetric top.
-    AsymmetricTop,
-}
-
-/// Largest rotational quantum number any basis may reach (beyond it the run is refused, not truncated).
-pub const MAX_BASIS_J: u32 = 600;
-
-fn custom_name() -> String {
-    "custom".to_string()
-}
-
-fn equal_weights() -> [f64; 2] {
-    [1.0, 1.0]
-}
-
-impl Molecule {
-    /// A non-polar linear molecule from its rotational constants (cm⁻¹), polarizabilities (Å³) and spin weights.
-    pub fn linear(name: &str, b_cm: f64, d_cm: f64, alpha_parallel_a3: f64, alpha_perpendicular_a3: f64, spin_weights: [f64; 2]) -> Molecule {
-        Molecule {
-            name: name.to_string(),
-            b_cm,
-            d_cm,
-            alpha_parallel_a3,
-            alpha_perpendicular_a3,
-            spin_weights,
-            dipole_debye: 0.0,
-            beta_parallel_au: None,
-            beta_perpendicular_au: None,
-            ionization_energy_ev: None,
-            top: None,
-        }
-    }
-
-    /// A symmetric or asymmetric top: its constants, dipole (debye, along `top.dipole_axis`) and
-    /// ionization energy (eV). The linear-molecule fields are filled with the top's summary values.
-    pub fn from_top(name: &str, top: top::Top, dipole_debye: f64, ionization_energy_ev: Option<f64>) -> Molecule {
-        let p = top.polarizability_a3;
-        let b_cm = match top.kind() {
-            top::TopKind::Asymmetric => 0.5 * (top.b_cm + top.c_cm),
-            _ => top.b_cm,
-        };
-        Molecule {
-            name: name.to_string(),
-            b_cm,
-            d_cm: 0.0,
-            alpha_parallel_a3: p.iter().cloned().fold(f64::MIN, f64::max),
-            alpha_perpendicular_a3: p.iter().cloned().fold(f64::MAX, f64::min),
-            spin_weights: [1.0, 1.0],
-            dipole_debye,
-            beta_parallel_au: None,
-            beta_perpendicular_au: None,
-            ionization_energy_ev,
-            top: Some(top),
-        }
-    }
-
-    /// True for symmetric and asymmetric tops.
-    pub fn is_top(&self) -> bool {
-        self.top.is_some()
-    }
-
-    /// Linear molecule, symmetric top (prolate or oblate) or asymmetric top.
-    pub fn kind(&self) -> RotorKind {
-        match &self.top {
-            None => RotorKind::Linear,
-            Some(t) if t.kind() == top::TopKind::Asymmetric => RotorKind::AsymmetricTop,
-            Some(_) => RotorKind::SymmetricTop,
-        }
-    }
-
-    /// True if the molecule has a permanent dipole moment.
-    pub fn is_polar(&self) -> bool {
-        self.dipole_debye != 0.0
-    }
-
+impl LinearRotor {
     /// Polarizability anisotropy Δα = α∥ − α⊥ in Å³.
     pub fn delta_alpha_a3(&self) -> f64 {
         self.alpha_parallel_a3 - self.alpha_perpendicular_a3
@@ -161,10 +79,7 @@ impl Molecule {
     }
 
     /// Check every constant; errors name the field (prefixed by `path`) and the expected unit.
-    pub fn validate(&self, path: &str) -> Result<()> {
-        if let Some(t) = &self.top {
-            t.validate(path)?;
-        }
+    fn validate(&self, path: &str) -> Result<()> {
         require_positive(&format!("{path}.b_cm"), self.b_cm, "cm⁻¹")?;
         if !(1e-4..=100.0).contains(&self.b_cm) {
             return Err(Error::input(format!("{path}.b_cm"), format!("expected a rotational constant between 1e-4 and 100 cm⁻¹, got {}", self.b_cm)));
@@ -188,6 +103,122 @@ impl Molecule {
         }
         if e + o <= 0.0 {
             return Err(Error::input(format!("{path}.spin_weights"), "expected [even_J, odd_J] not both zero"));
+        }
+        Ok(())
+    }
+}
+
+/// The kind of rotor, which decides what the field-free Hamiltonian conserves: J and M always; K
+/// (the projection on the figure axis) for linear molecules (K = 0) and symmetric tops; only the D2
+/// symmetry of the inertia ellipsoid for asymmetric tops.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RotorKind {
+    /// A linear molecule.
+    Linear,
+    /// A prolate or oblate symmetric top.
+    SymmetricTop,
+    /// An asymmetric top.
+    AsymmetricTop,
+}
+
+/// Largest rotational quantum number any basis may reach (beyond it the run is refused, not truncated).
+pub const MAX_BASIS_J: u32 = 600;
+
+impl Molecule {
+    /// A non-polar linear molecule from its rotational constants (cm⁻¹), polarizabilities (Å³) and spin weights.
+    pub fn linear(name: &str, b_cm: f64, d_cm: f64, alpha_parallel_a3: f64, alpha_perpendicular_a3: f64, spin_weights: [f64; 2]) -> Molecule {
+        Molecule {
+            name: name.to_string(),
+            rotor: Rotor::Linear(LinearRotor { b_cm, d_cm, alpha_parallel_a3, alpha_perpendicular_a3, spin_weights }),
+            dipole_debye: 0.0,
+            beta_parallel_au: None,
+            beta_perpendicular_au: None,
+            ionization_energy_ev: None,
+        }
+    }
+
+    /// A symmetric or asymmetric top: its constants, dipole (debye, along `top.dipole_axis`) and
+    /// ionization energy (eV).
+    pub fn from_top(name: &str, top: top::Top, dipole_debye: f64, ionization_energy_ev: Option<f64>) -> Molecule {
+        Molecule { name: name.to_string(), rotor: Rotor::Top(top), dipole_debye, beta_parallel_au: None, beta_perpendicular_au: None, ionization_energy_ev }
+    }
+
+    /// The constants of a linear molecule (None for tops).
+    pub fn as_linear(&self) -> Option<&LinearRotor> {
+        match &self.rotor {
+            Rotor::Linear(l) => Some(l),
+            Rotor::Top(_) => None,
+        }
+    }
+
+    /// The constants of a linear molecule, to change (None for tops).
+    pub fn as_linear_mut(&mut self) -> Option<&mut LinearRotor> {
+        match &mut self.rotor {
+            Rotor::Linear(l) => Some(l),
+            Rotor::Top(_) => None,
+        }
+    }
+
+    /// The constants of a top (None for linear molecules).
+    pub fn as_top(&self) -> Option<&top::Top> {
+        match &self.rotor {
+            Rotor::Top(t) => Some(t),
+            Rotor::Linear(_) => None,
+        }
+    }
+
+    /// True for symmetric and asymmetric tops.
+    pub fn is_top(&self) -> bool {
+        self.as_top().is_some()
+    }
+
+    /// Linear molecule, symmetric top (prolate or oblate) or asymmetric top.
+    pub fn kind(&self) -> RotorKind {
+        match &self.rotor {
+            Rotor::Linear(_) => RotorKind::Linear,
+            Rotor::Top(t) if t.kind() == top::TopKind::Asymmetric => RotorKind::AsymmetricTop,
+            Rotor::Top(_) => RotorKind::SymmetricTop,
+        }
+    }
+
+    /// True if the molecule has a permanent dipole moment.
+    pub fn is_polar(&self) -> bool {
+        self.dipole_debye != 0.0
+    }
+
+    /// The rotational constant that sets the time scale of revivals, cm⁻¹: B of a linear molecule or of a
+    /// symmetric top (perpendicular to its figure axis), (B + C)/2 of an asymmetric top.
+    pub fn revival_b_cm(&self) -> f64 {
+        match &self.rotor {
+            Rotor::Linear(l) => l.b_cm,
+            Rotor::Top(t) if t.kind() == top::TopKind::Asymmetric => 0.5 * (t.b_cm + t.c_cm),
+            Rotor::Top(t) => t.b_cm,
+        }
+    }
+
+    /// Largest polarizability anisotropy, Å³: α∥ − α⊥ of a linear molecule, the largest minus the
+    /// smallest principal polarizability of a top.
+    pub fn delta_alpha_a3(&self) -> f64 {
+        match &self.rotor {
+            Rotor::Linear(l) => l.delta_alpha_a3(),
+            Rotor::Top(t) => t.delta_alpha_a3(),
+        }
+    }
+
+    /// Largest J the solver may use (see [`LinearRotor::max_physical_j`]; `MAX_BASIS_J` for tops, whose
+    /// own paths cap their bases).
+    pub fn max_physical_j(&self) -> u32 {
+        match &self.rotor {
+            Rotor::Linear(l) => l.max_physical_j(),
+            Rotor::Top(_) => MAX_BASIS_J,
+        }
+    }
+
+    /// Check every constant; errors name the field (prefixed by `path`) and the expected unit.
+    pub fn validate(&self, path: &str) -> Result<()> {
+        match &self.rotor {
+            Rotor::Linear(l) => l.validate(path)?,
+            Rotor::Top(t) => t.validate(path)?,
         }
         crate::error::require_finite(&format!("{path}.dipole_debye"), self.dipole_debye, "debye")?;
         if self.dipole_debye.abs() > 50.0 {

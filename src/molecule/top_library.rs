@@ -1,6 +1,7 @@
 //! Built-in symmetric and asymmetric tops. Every number carries its source; values recalled without a
 //! checked reference say "from memory". Polarizability tensors of polyatomic molecules were not found in
-//! a readable source: treat those components as estimates and give your own when they matter.
+//! a readable source: benzonitrile's and iodobenzene's come from our own computation
+//! (tools/polar_top_constants.md, about ±5 %); the others are estimates: give your own when they matter.
 
 use super::Molecule;
 use super::library::Sourced;
@@ -41,6 +42,10 @@ const MHZ: f64 = 1.0 / 29_979.245_8;
 const METHYL_HALIDES: &str =
     "W. J. Orville-Thomas, J. T. Cox and W. Gordy, millimeter-wave spectra and centrifugal stretching constants of the methyl halides (1954)";
 const C3V_SPIN: &str = "three equivalent I = 1/2 nuclei about the C3 axis: K = 3n states weigh twice the others (Herzberg, Molecular Spectra II; Bunker & Jensen, Molecular Symmetry and Spectroscopy; derived by character projection)";
+/// Principal polarizabilities from our own computation (tools/polar_top_constants.md).
+const COMPUTED_ALPHA: &str = "our computation: static CAM-B3LYP/aug-cc-pVDZ (aug-cc-pVDZ-PP on I) at a B3LYP/def2-SVP geometry, principal inertia axes (tools/polar_top_constants.md; about ±5 %)";
+/// Ground-state constants and dipole of benzonitrile.
+const BENZONITRILE: &str = "K. Wohlfart, M. Schnell, J.-U. Grabow, J. Küpper, \"Precise dipole moment and quadrupole coupling constants of benzonitrile\", J. Mol. Spectrosc. 247, 119 (2008) (arXiv:0709.2984)";
 const NO_DATA: &str = "from memory (no readable source found; estimate)";
 
 impl TopEntry {
@@ -164,11 +169,23 @@ pub fn top_library() -> Vec<TopEntry> {
             description: "near-prolate asymmetric top (κ ≈ −0.97), a heavy molecule with a large polarizability",
             constants_cm: [s(5669.0 * MHZ, "microwave spectra, from memory"), s(750.4 * MHZ, "from memory"), s(662.8 * MHZ, "from memory")],
             distortion_cm: [zero, zero],
-            polarizability_a3: [s(20.0, NO_DATA), s(15.0, NO_DATA), s(10.0, NO_DATA)],
-            dipole: Some((s(1.7, "from memory"), BodyAxis::A)),
+            polarizability_a3: [s(21.78, COMPUTED_ALPHA), s(15.15, COMPUTED_ALPHA), s(10.00, COMPUTED_ALPHA)],
+            dipole: Some((s(1.7, "from memory (our CAM-B3LYP/aug-cc-pVDZ-PP value: 1.74 D along a)"), BodyAxis::A)),
             spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
             spin_weights_source: "C2(a) exchanges two proton pairs: Ka even : Ka odd = 20 : 12 (derived by character projection)",
             ionization_energy_ev: Some(s(8.69, "NIST Chemistry WebBook, from memory")),
+        },
+        TopEntry {
+            name: "C6H5CN",
+            aliases: &["benzonitrile", "cyanobenzene"],
+            description: "near-prolate asymmetric top (κ ≈ −0.85), strongly polar along a: a molecule oriented in mixed fields",
+            constants_cm: [s(5655.2654 * MHZ, BENZONITRILE), s(1546.875864 * MHZ, BENZONITRILE), s(1214.40399 * MHZ, BENZONITRILE)],
+            distortion_cm: [zero, zero],
+            polarizability_a3: [s(18.18, COMPUTED_ALPHA), s(12.90, COMPUTED_ALPHA), s(7.49, COMPUTED_ALPHA)],
+            dipole: Some((s(4.5152, BENZONITRILE), BodyAxis::A)),
+            spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
+            spin_weights_source: "C2(a) exchanges two proton pairs (H2, H6 and H3, H5): Ka even : Ka odd = 10 : 6 (derived by character projection)",
+            ionization_energy_ev: Some(s(9.73, "from memory")),
         },
         TopEntry {
             name: "C10H8",
@@ -212,7 +229,7 @@ mod tests {
             for c in e.constants_cm.iter().chain(&e.polarizability_a3) {
                 assert!(!c.source.trim().is_empty(), "{}", e.name);
             }
-            let t = m.top.as_ref().unwrap();
+            let t = m.as_top().unwrap();
             kinds[match t.kind() {
                 TopKind::Prolate | TopKind::Oblate => 0,
                 TopKind::Asymmetric if t.kappa() < 0.0 => 1,

@@ -9,7 +9,7 @@ use crate::basis::Block;
 
 pub mod polar;
 pub mod sparse;
-use crate::molecule::Molecule;
+use crate::molecule::LinearRotor;
 use nalgebra::{DMatrix, SymmetricEigen};
 
 /// Precomputed operators of one block: frequencies, cos²θ, its eigendecomposition and |cosθ|.
@@ -35,7 +35,7 @@ pub struct BlockOps {
 
 impl BlockOps {
     /// Build the operators of `block` for `mol`; `with_abscos` also builds the |cosθ| matrix.
-    pub fn new(block: Block, mol: &Molecule, with_abscos: bool) -> BlockOps {
+    pub fn new(block: Block, mol: &LinearRotor, with_abscos: bool) -> BlockOps {
         let omega = block.frequencies(mol);
         let (d, e) = block.cos2_tridiagonal();
         let eig = SymmetricEigen::new(block.cos2_dense());
@@ -281,23 +281,33 @@ fn composition_weights() -> [f64; 5] {
     [p, p, 1.0 - 4.0 * p, p, p]
 }
 
-/// Propagate `state` from its current time to `t_end_ps` under H = H0 + V(t), with H0 diagonal
+/// The time grid of one finite interval: where it ends, the longest step, the sample times (sorted,
+/// strictly inside the interval) and the times where the field is not smooth.
+#[derive(Debug, Clone, Copy)]
+pub struct FiniteSpan<'a> {
+    /// End of the interval, ps.
+    pub end_ps: f64,
+    /// Longest step, ps.
+    pub max_step_ps: f64,
+    /// Sample times, sorted, strictly inside the interval (ps).
+    pub stops: &'a [f64],
+    /// Times where the field is not smooth (ps).
+    pub breaks: &'a [f64],
+}
+
+/// Propagate `state` from its current time to `span.end_ps` under H = H0 + V(t), with H0 diagonal
 /// (angular frequencies `omega`, rad/ps) and `kick(state, t, h)` applying exp(−i V(t) h) exactly (t the
-/// midpoint of a substep of length h), with steps no longer than `max_step_ps`. The step grid lands
-/// exactly on every time in `stops` (sorted, strictly inside the interval), where `at_stop(i, state)` is
-/// called with the index of the stop in `stops`, and on every time in `breaks` (where the field is not
-/// smooth), so that no step straddles a kink.
-#[allow(clippy::too_many_arguments)]
+/// midpoint of a substep of length h), with steps no longer than `span.max_step_ps`. The step grid lands
+/// exactly on every time in `span.stops`, where `at_stop(i, state)` is called with the index of the stop,
+/// and on every time in `span.breaks`, so that no step straddles a kink.
 pub fn propagate_finite(
     state: &mut BlockState,
     omega: &[f64],
     kick: &mut dyn FnMut(&mut BlockState, f64, f64),
-    t_end_ps: f64,
-    max_step_ps: f64,
-    stops: &[f64],
-    breaks: &[f64],
+    span: FiniteSpan,
     mut at_stop: impl FnMut(usize, &BlockState),
 ) {
+    let FiniteSpan { end_ps: t_end_ps, max_step_ps, stops, breaks } = span;
     let w = composition_weights();
     // Marks: (time, index of the stop or None for a break or the end), in time order.
     let mut marks: Vec<(f64, Option<usize>)> = stops.iter().enumerate().map(|(i, &t)| (t, Some(i))).collect();

@@ -5,7 +5,7 @@
 //! through the eigendecomposition of H0 − μE cosθ.
 
 use crate::basis::{BOTH_PARITIES, Block};
-use crate::molecule::Molecule;
+use crate::molecule::LinearRotor;
 use crate::propagate::BlockState;
 use nalgebra::{DMatrix, SymmetricEigen};
 use std::collections::HashMap;
@@ -53,7 +53,7 @@ pub struct StaticEigen {
 
 impl PolarOps {
     /// Build the operators of the |M| = m block with `size` states for `mol`.
-    pub fn new(m: u32, size: usize, mol: &Molecule) -> PolarOps {
+    pub fn new(m: u32, size: usize, mol: &LinearRotor) -> PolarOps {
         let block = Block { m, parity: BOTH_PARITIES, size };
         let cos = block.matrix_of(|x| x, 1);
         let observables = [block.matrix_of(|x| x * x, 2), block.matrix_of(f64::abs, 1), cos, block.matrix_of(|x| x * x * x, 3)];

@@ -192,10 +192,11 @@ pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Pa
     write_file(dir, "design.json", &(serde_json::to_string_pretty(&replay).expect("json") + "\n"))?;
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
     let bt = &base.result.trace;
-    let extra: Vec<(&str, &[f64])> = [("baseline_cos2", Some(bt.cos2.as_slice())), ("baseline_cos2_2d", bt.cos2_2d()), ("baseline_three_axis", bt.three_axis())]
-        .into_iter()
-        .filter_map(|(n, s)| s.filter(|s| !s.is_empty()).map(|s| (n, s)))
-        .collect();
+    let extra: Vec<(&str, &[f64])> =
+        [("baseline_cos2", Some(bt.cos2.as_slice())), ("baseline_cos2_2d", bt.cos2_2d()), ("baseline_three_axis", bt.three_axis())]
+            .into_iter()
+            .filter_map(|(n, s)| s.filter(|s| !s.is_empty()).map(|s| (n, s)))
+            .collect();
     write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
     let mut plot = super::alignment_plot(scenario, &sim.result.trace, "Optimized pulse train");
     plot.y_label = "alignment".into();

@@ -7,6 +7,7 @@ pub mod svg;
 pub mod text;
 
 use crate::error::{Error, Result};
+use crate::molecule::Rotor;
 use crate::observe::{Extremum, Trace};
 use crate::scenario::Scenario;
 use crate::simulate::{Event, Simulation};
@@ -91,10 +92,10 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
     json!({
         "kicktrain_version": env!("CARGO_PKG_VERSION"),
         "description": s.description,
-        "molecule": match &s.molecule.top {
-            None => json!({"name": s.molecule.name, "b_cm": s.molecule.b_cm, "d_cm": s.molecule.d_cm,
-                "delta_alpha_a3": da, "spin_weights_even_odd": s.molecule.spin_weights}),
-            Some(t) => json!({"name": s.molecule.name, "rotor": match t.kind() {
+        "molecule": match &s.molecule.rotor {
+            Rotor::Linear(l) => json!({"name": s.molecule.name, "b_cm": l.b_cm, "d_cm": l.d_cm,
+                "delta_alpha_a3": da, "spin_weights_even_odd": l.spin_weights}),
+            Rotor::Top(t) => json!({"name": s.molecule.name, "rotor": match t.kind() {
                     crate::molecule::top::TopKind::Prolate => "prolate symmetric top",
                     crate::molecule::top::TopKind::Oblate => "oblate symmetric top",
                     crate::molecule::top::TopKind::Asymmetric => "asymmetric top",
@@ -141,7 +142,7 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
         },
         "permanent_cos2": num(r.permanent_cos2),
         "permanent_cos2_2d": num(r.permanent_cos2_2d),
-        "revival_period_ps": revival_period_ps(s.molecule.b_cm),
+        "revival_period_ps": revival_period_ps(s.molecule.revival_b_cm()),
         "goal": match (&s.goal, &sim.goal_score) {
             (Some(g), Some(sc)) => json!({"kind": g.kind_name(), "observable": g.observable.name(), "value": num(sc.value),
                 "t_ps": sc.t_ps, "relative_to_last_pulse_center_ps": s.last_pulse_center_ps()}),
@@ -214,7 +215,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     plot.subtitle = Some(format!("{} at {} K; {}; shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, counts.join(", ")));
     // With pulses polarized away from Z the lab axis is named too.
     let with_z = if trace.lab_axes.is_empty() { "" } else { " with Z" };
-    let axis = scenario.molecule.top.as_ref().map(|t| format!(" ({} axis{with_z})", t.alignment_axis.letter())).unwrap_or_default();
+    let axis = scenario.molecule.as_top().map(|t| format!(" ({} axis{with_z})", t.alignment_axis.letter())).unwrap_or_default();
     plot.series.push(svg::Series {
         label: format!("⟨cos²θ⟩{axis}"),
         x: trace.times_ps.clone(),
@@ -223,7 +224,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         dashed: false,
         width: 1.6,
     });
-    if let (Some(t), Some(b)) = (&scenario.molecule.top, &trace.body_axes) {
+    if let (Some(t), Some(b)) = (scenario.molecule.as_top(), &trace.body_axes) {
         // The other two body axes, dashed (their sum with the alignment axis is 1).
         for (i, (series, color)) in [(&b.a, svg::AXIS_A), (&b.b, svg::NEUTRAL), (&b.c, svg::NEUTRAL_LIGHT)].into_iter().enumerate() {
             if i != t.alignment_axis.index() {
@@ -238,7 +239,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
             }
         }
     }
-    if let Some(t) = &scenario.molecule.top {
+    if let Some(t) = scenario.molecule.as_top() {
         // Pulses polarized away from Z: the second axis with X, the partner of a three-axis goal.
         if let Some(series) = trace.lab_axis(crate::basis::lab::LabAxis::X, Some(t.second_axis())) {
             plot.series.push(svg::Series {

@@ -481,6 +481,23 @@ impl std::fmt::Display for N {
     }
 }
 
+/// How a line is drawn: colour, width (px) and an optional dash pattern.
+#[derive(Clone, Copy)]
+struct Pen<'a> {
+    color: &'a str,
+    width: f64,
+    dash: Option<&'a str>,
+}
+
+/// How a text is set: size (px), anchor, colour and extra attributes.
+#[derive(Clone, Copy)]
+struct Font<'a> {
+    size: f64,
+    anchor: &'a str,
+    fill: &'a str,
+    extra: &'a str,
+}
+
 fn text_width(s: &str, size: f64) -> f64 {
     s.chars().map(|c| if c.is_ascii_uppercase() || c == 'm' || c == 'w' { 0.75 } else { 0.58 }).sum::<f64>() * size
 }
@@ -545,8 +562,8 @@ impl Svg {
         self.buf.push_str(s);
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn line(&mut self, x1: f64, y1: f64, x2: f64, y2: f64, stroke: &str, width: f64, dash: Option<&str>) {
+    fn line(&mut self, (x1, y1): (f64, f64), (x2, y2): (f64, f64), pen: Pen) {
+        let Pen { color: stroke, width, dash } = pen;
         let _ = write!(
             self.buf,
             "<line x1=\"{}\" y1=\"{}\" x2=\"{}\" y2=\"{}\" stroke=\"{}\" stroke-width=\"{}\"",
@@ -576,8 +593,8 @@ impl Svg {
         );
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn text(&mut self, x: f64, y: f64, size: f64, anchor: &str, fill: &str, extra: &str, content: &str) {
+    fn text(&mut self, (x, y): (f64, f64), font: Font, content: &str) {
+        let Font { size, anchor, fill, extra } = font;
         if content.is_empty() {
             return;
         }
@@ -744,10 +761,10 @@ fn draw_titles(svg: &mut Svg, f: &Frame, width: f64, title: &str, subtitle: Opti
     let cx = (f.left + 0.5 * f.w).clamp(0.35 * width, 0.65 * width);
     let avail = (2.0 * cx.min(width - cx) - 16.0).max(60.0);
     let max_t = (avail / (TITLE_FONT * 0.62)) as usize;
-    svg.text(cx, 28.0, TITLE_FONT, "middle", TEXT_COLOR, " font-weight=\"bold\"", &truncate(title.trim(), max_t));
+    svg.text((cx, 28.0), Font { size: TITLE_FONT, anchor: "middle", fill: TEXT_COLOR, extra: " font-weight=\"bold\"" }, &truncate(title.trim(), max_t));
     if let Some(sub) = subtitle {
         let max_s = (avail / (SUBTITLE_FONT * 0.58)) as usize;
-        svg.text(cx, 48.0, SUBTITLE_FONT, "middle", SUBTLE_COLOR, "", &truncate(sub.trim(), max_s));
+        svg.text((cx, 48.0), Font { size: SUBTITLE_FONT, anchor: "middle", fill: SUBTLE_COLOR, extra: "" }, &truncate(sub.trim(), max_s));
     }
 }
 
@@ -755,11 +772,11 @@ fn draw_grid(svg: &mut Svg, l: &Layout) {
     let f = &l.frame;
     for &t in &l.xt {
         let x = f.px(t);
-        svg.line(x, f.top, x, f.bottom(), GRID_COLOR, 0.8, None);
+        svg.line((x, f.top), (x, f.bottom()), Pen { color: GRID_COLOR, width: 0.8, dash: None });
     }
     for &t in &l.yt {
         let y = f.py(t);
-        svg.line(f.left, y, f.right(), y, GRID_COLOR, 0.8, None);
+        svg.line((f.left, y), (f.right(), y), Pen { color: GRID_COLOR, width: 0.8, dash: None });
     }
 }
 
@@ -768,20 +785,20 @@ fn draw_frame(svg: &mut Svg, l: &Layout, height: f64, x_label: &str, y_label: &s
     svg.rect(f.left, f.top, f.w, f.h, "none", &format!(" stroke=\"{AXIS_COLOR}\" stroke-width=\"1\""));
     for (&t, lab) in l.xt.iter().zip(&l.xl) {
         let x = f.px(t);
-        svg.line(x, f.bottom(), x, f.bottom() + 5.0, AXIS_COLOR, 1.0, None);
-        svg.text(x, f.bottom() + 19.0, TICK_FONT, "middle", TEXT_COLOR, "", lab);
+        svg.line((x, f.bottom()), (x, f.bottom() + 5.0), Pen { color: AXIS_COLOR, width: 1.0, dash: None });
+        svg.text((x, f.bottom() + 19.0), Font { size: TICK_FONT, anchor: "middle", fill: TEXT_COLOR, extra: "" }, lab);
     }
     for (&t, lab) in l.yt.iter().zip(&l.yl) {
         let y = f.py(t);
-        svg.line(f.left - 5.0, y, f.left, y, AXIS_COLOR, 1.0, None);
-        svg.text(f.left - 8.0, y + 4.0, TICK_FONT, "end", TEXT_COLOR, "", lab);
+        svg.line((f.left - 5.0, y), (f.left, y), Pen { color: AXIS_COLOR, width: 1.0, dash: None });
+        svg.text((f.left - 8.0, y + 4.0), Font { size: TICK_FONT, anchor: "end", fill: TEXT_COLOR, extra: "" }, lab);
     }
     let max_x = (f.w / (LABEL_FONT * 0.6)) as usize;
-    svg.text(f.left + 0.5 * f.w, height - 14.0, LABEL_FONT, "middle", TEXT_COLOR, "", &truncate(x_label.trim(), max_x));
+    svg.text((f.left + 0.5 * f.w, height - 14.0), Font { size: LABEL_FONT, anchor: "middle", fill: TEXT_COLOR, extra: "" }, &truncate(x_label.trim(), max_x));
     let cy = f.top + 0.5 * f.h;
     let max_y = (f.h / (LABEL_FONT * 0.6)) as usize;
     let rot = format!(" transform=\"rotate(-90 {} {})\"", N(20.0), N(cy));
-    svg.text(20.0, cy, LABEL_FONT, "middle", TEXT_COLOR, &rot, &truncate(y_label.trim(), max_y));
+    svg.text((20.0, cy), Font { size: LABEL_FONT, anchor: "middle", fill: TEXT_COLOR, extra: &rot }, &truncate(y_label.trim(), max_y));
 }
 
 /// Where each marker label goes: (marker index, row, centre x in pixels).
@@ -852,12 +869,12 @@ fn draw_marker_lines(svg: &mut Svg, markers: &[Marker], f: &Frame, rows: usize, 
             continue;
         }
         let x = f.px(m.x0);
-        svg.line(x, f.top, x, f.bottom(), or_default(&m.color, MARKER_DEFAULT), 1.0, Some("4 3"));
+        svg.line((x, f.top), (x, f.bottom()), Pen { color: or_default(&m.color, MARKER_DEFAULT), width: 1.0, dash: Some("4 3") });
     }
     for (i, row, cx) in place_marker_labels(markers, f, rows) {
         let m = &markers[i];
         let y = content_top + 10.0 + row as f64 * MARKER_ROW_H;
-        svg.text(cx, y, MARKER_FONT, "middle", or_default(&m.color, MARKER_DEFAULT), "", &truncate(m.label.trim(), 30));
+        svg.text((cx, y), Font { size: MARKER_FONT, anchor: "middle", fill: or_default(&m.color, MARKER_DEFAULT), extra: "" }, &truncate(m.label.trim(), 30));
     }
 }
 
@@ -1019,9 +1036,9 @@ impl LinePlot {
             }
             let y = f.py(h.y);
             let c = or_default(&h.color, MARKER_DEFAULT);
-            svg.line(f.left, y, f.right(), y, c, 1.0, Some("2 3"));
+            svg.line((f.left, y), (f.right(), y), Pen { color: c, width: 1.0, dash: Some("2 3") });
             let ty = if y - 5.0 < f.top + 10.0 { y + 13.0 } else { y - 5.0 };
-            svg.text(f.right() - 5.0, ty, 11.0, "end", c, "", &truncate(h.label.trim(), 40));
+            svg.text((f.right() - 5.0, ty), Font { size: 11.0, anchor: "end", fill: c, extra: "" }, &truncate(h.label.trim(), 40));
         }
 
         // Series.
@@ -1057,8 +1074,8 @@ impl LinePlot {
             for (i, lab) in legend.iter().enumerate() {
                 let y = ly + 18.0 + i as f64 * 20.0;
                 let dash = if self.series[i].dashed { Some(dash_for(widths[i])) } else { None };
-                svg.line(lx + 8.0, y - 4.0, lx + 34.0, y - 4.0, colors[i], widths[i].max(1.5), dash.as_deref());
-                svg.text(lx + 40.0, y, LEGEND_FONT, "start", TEXT_COLOR, "", lab);
+                svg.line((lx + 8.0, y - 4.0), (lx + 34.0, y - 4.0), Pen { color: colors[i], width: widths[i].max(1.5), dash: dash.as_deref() });
+                svg.text((lx + 40.0, y), Font { size: LEGEND_FONT, anchor: "start", fill: TEXT_COLOR, extra: "" }, lab);
             }
         }
         svg.finish()
@@ -1179,7 +1196,7 @@ impl Heatmap {
         svg.raw("<g shape-rendering=\"crispEdges\" stroke=\"none\">\n");
         if nrows == 0 || ncols == 0 {
             svg.rect(f.left, f.top, f.w, f.h, MISSING_COLOR, "");
-            svg.text(f.left + 0.5 * f.w, f.top + 0.5 * f.h, LABEL_FONT, "middle", SUBTLE_COLOR, "", "no data");
+            svg.text((f.left + 0.5 * f.w, f.top + 0.5 * f.h), Font { size: LABEL_FONT, anchor: "middle", fill: SUBTLE_COLOR, extra: "" }, "no data");
         }
         let color_of = |v: f64| if v.is_finite() { colormap_hex((v - zr.0) / (zr.1 - zr.0)) } else { MISSING_COLOR.to_string() };
         for r in 0..nrows {
@@ -1210,19 +1227,19 @@ impl Heatmap {
         let (zt, zl) = if bh < bar_h_guess * 0.9 { y_ticks(zr.0, zr.1, bh, false) } else { (zt, zl) };
         for (&t, l) in zt.iter().zip(&zl) {
             let y = bar.py(t);
-            svg.line(bx + bar_w, y, bx + bar_w + 5.0, y, AXIS_COLOR, 1.0, None);
-            svg.text(bx + bar_w + 8.0, y + 4.0, TICK_FONT, "start", TEXT_COLOR, "", l);
+            svg.line((bx + bar_w, y), (bx + bar_w + 5.0, y), Pen { color: AXIS_COLOR, width: 1.0, dash: None });
+            svg.text((bx + bar_w + 8.0, y + 4.0), Font { size: TICK_FONT, anchor: "start", fill: TEXT_COLOR, extra: "" }, l);
         }
         if any_missing {
             let sy = f.top + bh + 10.0;
             svg.rect(bx, sy, bar_w, 14.0, MISSING_COLOR, &format!(" stroke=\"{AXIS_COLOR}\" stroke-width=\"1\""));
-            svg.text(bx + bar_w + 8.0, sy + 11.0, 11.0, "start", TEXT_COLOR, "", "no data");
+            svg.text((bx + bar_w + 8.0, sy + 11.0), Font { size: 11.0, anchor: "start", fill: TEXT_COLOR, extra: "" }, "no data");
         }
         let zx = bx + bar_w + 8.0 + zw + 12.0 + LABEL_FONT - 2.0;
         let cy = f.top + 0.5 * bh;
         let rot = format!(" transform=\"rotate(-90 {} {})\"", N(zx), N(cy));
         let max_z = (bh / (LABEL_FONT * 0.6)) as usize;
-        svg.text(zx, cy, LABEL_FONT, "middle", TEXT_COLOR, &rot, &truncate(self.z_label.trim(), max_z));
+        svg.text((zx, cy), Font { size: LABEL_FONT, anchor: "middle", fill: TEXT_COLOR, extra: &rot }, &truncate(self.z_label.trim(), max_z));
         svg.finish()
     }
 }
@@ -1298,7 +1315,7 @@ impl Histogram {
         }
         svg.raw("</g>\n");
         if n_finite == 0 {
-            svg.text(f.left + 0.5 * f.w, f.top + 0.5 * f.h, LABEL_FONT, "middle", SUBTLE_COLOR, "", "no finite values");
+            svg.text((f.left + 0.5 * f.w, f.top + 0.5 * f.h), Font { size: LABEL_FONT, anchor: "middle", fill: SUBTLE_COLOR, extra: "" }, "no finite values");
         }
         draw_marker_lines(&mut svg, &self.markers, &f, spec.marker_rows, top0);
         draw_frame(&mut svg, &lay, height, &self.x_label, "count");

@@ -91,7 +91,7 @@ pub fn molecules_table() -> String {
         writeln!(o, "\n{:<6} {:>9} {:>9} {:>9} {:>6} {:>21}  description", "top", "A (cm⁻¹)", "B (cm⁻¹)", "C (cm⁻¹)", "κ", "α_a, α_b, α_c (Å³)")?;
         for e in top_library() {
             let m = e.molecule();
-            let t = m.top.as_ref().expect("top");
+            let Some(t) = m.as_top() else { continue };
             let p = t.polarizability_a3;
             writeln!(
                 o,
@@ -355,12 +355,16 @@ pub fn pendular_text(molecule: &str, intensity_wcm2: f64, static_kv_cm: f64, tem
             no_negative_zero(r.laser_strength_b, 3),
             no_negative_zero(r.static_strength_b, 3)
         )?;
-        writeln!(o, "{:>4} {:>4} {:>14} {:>12} {:>9} {:>9}", "J", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩")?;
+        // A top's levels are named "J Ka Kc" or "J K"; a linear molecule's by J.
+        let top = r.states.iter().any(|s| s.level.is_some());
+        let level_width = if top { 10 } else { 4 };
+        let first = if top { "level" } else { "J" };
+        writeln!(o, "{first:>level_width$} {:>4} {:>14} {:>12} {:>9} {:>9}", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩")?;
         for s in r.states.iter().filter(|s| s.j <= j_max) {
+            let name = s.level.clone().unwrap_or_else(|| s.j.to_string());
             writeln!(
                 o,
-                "{:>4} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}",
-                s.j,
+                "{name:>level_width$} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}",
                 s.m,
                 no_negative_zero(s.energy_cm, 6),
                 no_negative_zero(s.energy_b, 5),
@@ -369,7 +373,15 @@ pub fn pendular_text(molecule: &str, intensity_wcm2: f64, static_kv_cm: f64, tem
             )?;
         }
         writeln!(o, "thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, no_negative_zero(r.thermal_cos, 5))?;
-        writeln!(o, "(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)")?;
+        if top {
+            writeln!(
+                o,
+                "(level: the field-free level each state connects to adiabatically, ranked within its exact symmetry class; \
+                 populated levels only; ⟨cos²θ⟩ of the alignment axis, ⟨cosθ⟩ of the dipole axis; energies exclude the isotropic polarizability shift)"
+            )?;
+        } else {
+            writeln!(o, "(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)")?;
+        }
         if intensity_wcm2 > 0.0 {
             writeln!(o, "{LASER_SAFETY}")?;
         }

@@ -127,7 +127,7 @@ impl Solver {
         // Field-free phases between kicks by J, per train and step (the same for every block).
         let ensemble = self.linear();
         let j_count = (ensemble.j_max + 2 * extra as u32 + 2).min(j_limit) as usize + 1;
-        let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.molecule.energy_cm(j))).collect();
+        let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.linear_rotor().energy_cm(j))).collect();
         // Per train and step: cos and sin of −ω_J dt, stored as [even J | odd J] so that a block's
         // levels (one parity, consecutive) are one contiguous run.
         let half = j_count.div_ceil(2);
@@ -182,13 +182,12 @@ impl Solver {
                     buf.resize(len, 0.0);
                 }
             }
-            self.batch_block_in(block, levels, kicks, phases, with_2d, &mut a[..len], &mut b[..len])
+            self.batch_block_in(block, levels, kicks, phases, with_2d, (&mut a[..len], &mut b[..len]))
         })
     }
 
     /// `batch_block` with its buffers for ψ and for the eigenbasis products (each N × 2K × trains;
     /// their contents on entry do not matter).
-    #[allow(clippy::too_many_arguments)]
     fn batch_block_in(
         &self,
         block: Block,
@@ -196,8 +195,7 @@ impl Solver {
         kicks: &[Kicks],
         phases: &[Vec<FreeTable>],
         with_2d: bool,
-        psi_buf: &mut [f64],
-        work_buf: &mut [f64],
+        (psi_buf, work_buf): (&mut [f64], &mut [f64]),
     ) -> Vec<Option<BlockSums>> {
         let ops = self.ops(block.m, block.parity, block.size, with_2d);
         let n = block.size;

@@ -31,14 +31,14 @@ impl CoupledAxis {
     /// The axis the fields couple to on `molecule`.
     pub fn of(molecule: &Molecule) -> CoupledAxis {
         let mut axis = CoupledAxis {
-            b_cm: molecule.b_cm,
-            d_cm: molecule.d_cm,
+            b_cm: molecule.revival_b_cm(),
+            d_cm: molecule.as_linear().map(|l| l.d_cm).unwrap_or(0.0),
             delta_alpha_a3: molecule.delta_alpha_a3(),
             dipole_debye: molecule.dipole_debye,
             beta_parallel_au: molecule.beta_parallel_au.unwrap_or(0.0),
             beta_perpendicular_au: molecule.beta_perpendicular_au.unwrap_or(0.0),
         };
-        if let (RotorKind::SymmetricTop, Some(t)) = (molecule.kind(), &molecule.top) {
+        if let (RotorKind::SymmetricTop, Some(t)) = (molecule.kind(), molecule.as_top()) {
             let frame = t.frame(true);
             axis.b_cm = t.b_cm;
             axis.d_cm = 0.0;

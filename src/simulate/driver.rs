@@ -7,9 +7,26 @@
 //! they do with the schedule and the basis is decided here.
 
 use crate::error::{Error, Result};
-use crate::propagate::{BlockState, propagate_finite};
+use crate::propagate::{BlockState, FiniteSpan, propagate_finite};
 use crate::scenario::SolverSettings;
 use std::ops::Range;
+
+/// What every block of one run shares: the field, its schedule (kicks and finite intervals of the
+/// kernel's item type), the sample times and the time the propagation starts.
+pub(crate) struct Run<'a, I> {
+    pub field: &'a crate::field::FieldModel,
+    pub items: &'a [I],
+    pub times: &'a [f64],
+    pub t_first: f64,
+}
+
+impl<I> Clone for Run<'_, I> {
+    fn clone(&self) -> Self {
+        *self
+    }
+}
+
+impl<I> Copy for Run<'_, I> {}
 
 /// Run `attempt` with a basis of `first` units (the kernel's unit: states of a block, or its top J),
 /// growing it by a quarter (at least four units, never past `cap`) each time the attempt reports that
@@ -235,19 +252,25 @@ pub(crate) fn walk<K: Kernel>(kernel: &K, mut state: BlockState, items: &[K::Ite
                         kernel.finite_kick(index, item, st, t, h)
                     }
                 };
-                propagate_finite(&mut state, kernel.omega(), &mut kick, e, kernel.step(step_ps), stops, &breaks, |i, st| {
-                    if overflow.get() {
-                        return;
-                    }
-                    if kernel.edge(st) > tolerance {
-                        overflow.set(true);
-                        return;
-                    }
-                    kernel.sample(st, &mut scratch);
-                    for (o, v) in scratch.iter().enumerate() {
-                        values[o][base + i] = *v;
-                    }
-                });
+                propagate_finite(
+                    &mut state,
+                    kernel.omega(),
+                    &mut kick,
+                    FiniteSpan { end_ps: e, max_step_ps: kernel.step(step_ps), stops, breaks: &breaks },
+                    |i, st| {
+                        if overflow.get() {
+                            return;
+                        }
+                        if kernel.edge(st) > tolerance {
+                            overflow.set(true);
+                            return;
+                        }
+                        kernel.sample(st, &mut scratch);
+                        for (o, v) in scratch.iter().enumerate() {
+                            values[o][base + i] = *v;
+                        }
+                    },
+                );
                 if overflow.get() {
                     return None;
                 }

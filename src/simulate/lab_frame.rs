@@ -19,7 +19,7 @@
 
 mod detector;
 
-use super::driver::{ALL_M_STEP, Kernel, SampleCursor, grow_basis, walk};
+use super::driver::{ALL_M_STEP, Kernel, Run, SampleCursor, grow_basis, walk};
 use super::{BlockReport, Event};
 use crate::basis::BlockSymmetry;
 use crate::basis::detector::{DetectorAxis, DetectorTable};
@@ -132,7 +132,7 @@ impl LabRotor {
     }
 
     /// A linear molecule: K = 0 only, the molecular axis as frame z, parity of J as the body symmetry.
-    pub fn from_linear(mol: &crate::molecule::Molecule, ensemble: &crate::ensemble::ThermalEnsemble) -> LabRotor {
+    pub fn from_linear(mol: &crate::molecule::LinearRotor, ensemble: &crate::ensemble::ThermalEnsemble) -> LabRotor {
         let frame = TopFrame {
             axes: [BodyAxis::A, BodyAxis::B, BodyAxis::C],
             az: mol.b_cm,
@@ -1156,7 +1156,7 @@ impl LabSolver {
             let outcomes: Vec<ChunkOutcome> = batch
                 .par_iter()
                 .map(|(block, cols)| {
-                    let r = self.run_chunk(*block, cols, field, events, times_ps, t_first, with_2d);
+                    let r = self.run_chunk(*block, cols, &Run { field, items: events, times: times_ps, t_first }, with_2d);
                     self.progress.finish_one();
                     r
                 })
@@ -1231,17 +1231,7 @@ impl LabSolver {
         Ok(LabRun { values: out, cos2_2d, final_sums, blocks: blocks.into_iter().map(|b| b.1).collect() })
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn run_chunk(
-        &self,
-        block: LabBlock,
-        cols: &[Column],
-        field: &FieldModel,
-        events: &[Event],
-        times: &[f64],
-        t_first: f64,
-        with_2d: bool,
-    ) -> Result<ChunkOutcome> {
+    fn run_chunk(&self, block: LabBlock, cols: &[Column], run: &Run<Event>, with_2d: bool) -> Result<ChunkOutcome> {
         let (mut retries, mut retry_s) = (0, 0.0);
         let out = grow_basis(
             block.j_max as usize,
@@ -1251,7 +1241,7 @@ impl LabSolver {
                 let block = LabBlock { j_max: j_max as i64, ..block };
                 let ops = self.ops(block);
                 let table = if with_2d { self.detector_table(block.class, block.j_max) } else { None };
-                let out = self.try_chunk(&ops, cols, field, events, times, t_first, table.as_deref());
+                let out = self.try_chunk(&ops, cols, run, table.as_deref());
                 if out.is_none() {
                     retries += 1;
                     retry_s += started.elapsed().as_secs_f64();
@@ -1263,17 +1253,8 @@ impl LabSolver {
         Ok(ChunkOutcome { retries, retry_s, ..out })
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn try_chunk(
-        &self,
-        ops: &LabOps,
-        cols: &[Column],
-        field: &FieldModel,
-        events: &[Event],
-        times: &[f64],
-        t_first: f64,
-        table: Option<&DetectorTable>,
-    ) -> Option<ChunkOutcome> {
+    fn try_chunk(&self, ops: &LabOps, cols: &[Column], run: &Run<Event>, table: Option<&DetectorTable>) -> Option<ChunkOutcome> {
+        let Run { field, items: events, times, t_first } = *run;
         let start: Vec<usize> = cols
             .iter()
             .map(|&(mu, j, i, _)| {

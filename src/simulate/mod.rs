@@ -227,14 +227,14 @@ struct BlockOutcome {
 /// about 1.5 sqrt(U0/B) + 3 levels.
 pub fn reach_strength(molecule: &Molecule, pulse: &crate::field::Pulse) -> f64 {
     let da = molecule.delta_alpha_a3();
-    let adiabatic = 1.5 * (pulse.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(molecule.b_cm)).sqrt() + 3.0;
+    let adiabatic = 1.5 * (pulse.peak_rate_rad_per_ps(da).abs() / cm_to_rad_per_ps(molecule.revival_b_cm())).sqrt() + 3.0;
     pulse.kick_strength(da).abs().min(adiabatic)
 }
 
 impl Solver {
     /// A solver for `molecule` at `temperature_k` with `settings`.
     pub fn new(molecule: &Molecule, temperature_k: f64, settings: SolverSettings) -> Result<Solver> {
-        if let Some(t) = &molecule.top {
+        if let Some(t) = molecule.as_top() {
             let mut top = top::TopSolver::new(t, temperature_k, settings)?;
             check_states(top.ensemble.state_count(), settings.max_states.unwrap_or(crate::scenario::DEFAULT_MAX_STATES_TOP), temperature_k)?;
             let progress = Arc::new(RunProgress::default());
@@ -277,6 +277,11 @@ impl Solver {
     /// The linear ensemble, on the paths that only linear molecules take (`Solver::path` sends tops elsewhere).
     fn linear(&self) -> &ThermalEnsemble {
         self.ensemble().expect("a linear-molecule path on a linear molecule")
+    }
+
+    /// The constants of a linear molecule, on the paths that only linear molecules take.
+    fn linear_rotor(&self) -> &crate::molecule::LinearRotor {
+        self.molecule.as_linear().expect("a linear-molecule path on a linear molecule")
     }
 
     /// The top solver (None for linear molecules).
@@ -420,7 +425,7 @@ impl Solver {
         if let Some(o) = self.cache.lock().expect("cache lock").get(&key) {
             return o.clone();
         }
-        let o = Arc::new(BlockOps::new(Block { m, parity, size }, &self.molecule, with_2d));
+        let o = Arc::new(BlockOps::new(Block { m, parity, size }, self.linear_rotor(), with_2d));
         self.cache.lock().expect("cache lock").insert(key, o.clone());
         o
     }
@@ -480,7 +485,7 @@ impl Solver {
         let da = self.molecule.delta_alpha_a3();
         let j_ref = self.reference_j(field).min(self.molecule.max_physical_j()).max(2);
         // Fastest relevant transition J−2 → J near the top of the basis, rad/ps.
-        let d_omega = cm_to_rad_per_ps(self.molecule.energy_cm(j_ref) - self.molecule.energy_cm(j_ref - 2)).abs();
+        let d_omega = cm_to_rad_per_ps(self.linear_rotor().energy_cm(j_ref) - self.linear_rotor().energy_cm(j_ref - 2)).abs();
         let mut events = vec![];
         for iv in field.active_intervals() {
             let impulsive = match self.settings.method {
@@ -542,7 +547,7 @@ impl Solver {
         let lab = self.lab.get_or_init(|| {
             let rotor = match self.top() {
                 Some(t) => lab_frame::LabRotor::from_top(t),
-                None => lab_frame::LabRotor::from_linear(&self.molecule, self.linear()),
+                None => lab_frame::LabRotor::from_linear(self.linear_rotor(), self.linear()),
             };
             let mut lab = lab_frame::LabSolver::new(rotor, self.settings);
             lab.progress = self.progress.clone();
@@ -570,14 +575,7 @@ impl Solver {
             c: run.values[2][positions[2]].clone(),
             three_axis: run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
         });
-        let trace = Trace {
-            times_ps: times_ps.to_vec(),
-            cos2: run.values[2][align_pos].clone(),
-            body_axes,
-            lab_axes,
-            cos2_2d: run.cos2_2d,
-            orientation: None,
-        };
+        let trace = Trace { times_ps: times_ps.to_vec(), cos2: run.values[2][align_pos].clone(), body_axes, lab_axes, cos2_2d: run.cos2_2d, orientation: None };
         let statics = run.final_sums.statics();
         let z_align = lab_frame::direction_part(2, align_pos);
         let parts = PairParts {
@@ -642,7 +640,7 @@ impl Solver {
                 t_prev = ev.span().1;
                 (0..=j_table as u32)
                     .map(|j| {
-                        let (s, c) = (-cm_to_rad_per_ps(self.molecule.energy_cm(j)) * dt).sin_cos();
+                        let (s, c) = (-cm_to_rad_per_ps(self.linear_rotor().energy_cm(j)) * dt).sin_cos();
                         (c, s)
                     })
                     .collect()
@@ -655,7 +653,7 @@ impl Solver {
                 .blocks
                 .par_iter()
                 .map(|bp| {
-                    let r = self.run_block(bp, field, &events, &tables, times_ps, with_2d, extra);
+                    let r = self.run_block(bp, &driver::Run { field, items: &events, times: times_ps, t_first }, &tables, with_2d, extra);
                     self.progress.finish_one();
                     r
                 })
@@ -671,7 +669,7 @@ impl Solver {
         }
         // Merge the blocks' coherences by J and evaluate each field-free stretch once.
         let j_count = outcomes.iter().map(|o| o.report.j_max as usize + 1).max().unwrap_or(1);
-        let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.molecule.energy_cm(j))).collect();
+        let omega: Vec<f64> = (0..j_count as u32).map(|j| cm_to_rad_per_ps(self.linear_rotor().energy_cm(j))).collect();
         let merge = |t0: f64, pick: &dyn Fn(&BlockOutcome) -> &BlockSums| {
             let mut sums = LevelSums::new(omega.clone(), t0, with_2d);
             for o in &outcomes {
@@ -703,17 +701,7 @@ impl Solver {
         })
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn run_block(
-        &self,
-        bp: &BlockPopulation,
-        field: &FieldModel,
-        events: &[Event],
-        tables: &[Vec<(f64, f64)>],
-        times: &[f64],
-        with_2d: bool,
-        extra: usize,
-    ) -> Result<BlockOutcome> {
+    fn run_block(&self, bp: &BlockPopulation, run: &driver::Run<Event>, tables: &[Vec<(f64, f64)>], with_2d: bool, extra: usize) -> Result<BlockOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(bp.m);
         let j_limit = self.molecule.max_physical_j();
         let first = Block::size_to_reach(bp.m, bp.parity, j_thermal + 2 * extra as u32);
@@ -722,7 +710,7 @@ impl Solver {
         grow_basis(
             first,
             cap,
-            |size| self.try_block(&self.ops(bp.m, bp.parity, size, with_2d), bp, field, events, tables, times, with_2d),
+            |size| self.try_block(&self.ops(bp.m, bp.parity, size, with_2d), bp, run, tables, with_2d),
             || {
                 Error::Numerical(format!(
                     "block |M| = {}, {} J: the basis would need J > {j_limit}, beyond where the centrifugal-distortion formula holds; lower the intensities or the temperature",
@@ -734,20 +722,17 @@ impl Solver {
     }
 
     /// One attempt at a block with a fixed basis; None if the edge population exceeds the tolerance.
-    #[allow(clippy::too_many_arguments)]
     fn try_block(
         &self,
         ops: &BlockOps,
         bp: &BlockPopulation,
-        field: &FieldModel,
-        events: &[Event],
+        run: &driver::Run<Event>,
         tables: &[Vec<(f64, f64)>],
-        times: &[f64],
         with_2d: bool,
     ) -> Result<Option<BlockOutcome>> {
+        let driver::Run { field, items: events, times, t_first } = *run;
         let block = ops.block;
         let start: Vec<usize> = bp.levels.iter().map(|l| ((l.0 - block.j_min()) / 2) as usize).collect();
-        let t_first = events.first().map(|e| e.span().0).or(times.first().copied()).unwrap_or(0.0);
         let kernel = LinearKernel {
             ops,
             pops: bp.levels.iter().map(|l| l.1).collect(),
@@ -897,7 +882,7 @@ impl Solver {
         }
         let mut r = out.expect("at least two quadrature points");
         // The three-axis goal of the average is the smaller of the two averaged values (not a mean of minima).
-        if let (Some(top), Some(axes)) = (&self.molecule.top, &r.trace.body_axes) {
+        if let (Some(top), Some(axes)) = (self.molecule.as_top(), &r.trace.body_axes) {
             let three_axis = three_axis_of_averages(top, axes, &r.trace);
             r.trace.body_axes.as_mut().expect("checked above").three_axis = three_axis;
         }
@@ -1090,7 +1075,7 @@ impl Solver {
             self.progress.plan(pops.len());
             pops.par_iter()
                 .map(|bp| {
-                    let r = self.run_polar_block(bp, &PolarRun { field, items: &items, times, t_first, wanted }, extra);
+                    let r = self.run_polar_block(bp, &PolarRun { run: driver::Run { field, items: &items, times, t_first }, wanted }, extra);
                     self.progress.finish_one();
                     r
                 })
@@ -1129,7 +1114,7 @@ impl Solver {
                 let ops = match cached {
                     Some(o) => o,
                     None => {
-                        let o = Arc::new(PolarOps::new(bp.m, size, &self.molecule));
+                        let o = Arc::new(PolarOps::new(bp.m, size, self.linear_rotor()));
                         self.polar_cache.lock().expect("cache lock").insert((bp.m, size), o.clone());
                         o
                     }
@@ -1141,7 +1126,7 @@ impl Solver {
     }
 
     fn try_polar_block(&self, ops: &PolarOps, levels: &[(u32, f64)], run: &PolarRun) -> Result<Option<PolarOutcome>> {
-        let PolarRun { field, items, times, t_first, wanted } = *run;
+        let PolarRun { run: driver::Run { field, items, times, t_first }, wanted } = *run;
         let g = ops.degeneracy;
         let pops: Vec<f64> = levels.iter().map(|l| l.1).collect();
         let index: Vec<usize> = levels.iter().map(|l| (l.0 - ops.j_first) as usize).collect();
@@ -1217,10 +1202,7 @@ impl Solver {
 /// the propagation and which observables are wanted.
 #[derive(Clone, Copy)]
 pub(crate) struct PolarRun<'a> {
-    field: &'a FieldModel,
-    items: &'a [PolarItem],
-    times: &'a [f64],
-    t_first: f64,
+    run: driver::Run<'a, PolarItem>,
     wanted: [bool; POLAR_OBSERVABLES],
 }
 

@@ -5,13 +5,14 @@
 //! makes a kick exp(iθA) exact. Finite pulses use the same fourth-order splitting as linear molecules.
 //! After the last pulse the blocks' coherences are merged by pairs of field-free levels.
 
-use super::driver::{Kernel, TOP_STEP, grow_basis, walk};
+use super::driver::{Kernel, Run, TOP_STEP, grow_basis, walk};
 use super::{BlockReport, Event, RunResult};
-use crate::basis::top::{AngularOperator, Banded, TopBlock, TopBlockBasis, TopFrame, TopSym};
+use crate::basis::top::{AngularOperator, TopBlock, TopBlockBasis, TopFrame, TopSym};
 use crate::ensemble::top::{TopBlockPopulation, TopEnsemble};
 use crate::error::{Error, Result};
 use crate::field::FieldModel;
 use crate::molecule::top::{BodyAxis, Top};
+use crate::numeric::Banded;
 use crate::numeric::{Strided, gemm_strided};
 use crate::observe::pairs::PairSums;
 use crate::observe::{FreeSums, PairParts, ThreeAxisParts, Trace};
@@ -446,7 +447,7 @@ impl TopSolver {
             let outcomes: Vec<TopOutcome> = blocks
                 .par_iter()
                 .map(|bp| {
-                    let r = self.run_block(bp, field, &events, times_ps, t_first, with_2d, reach);
+                    let r = self.run_block(bp, &Run { field, items: &events, times: times_ps, t_first }, with_2d, reach);
                     self.progress.finish_one();
                     r
                 })
@@ -481,22 +482,12 @@ impl TopSolver {
         })
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn run_block(
-        &self,
-        bp: &TopBlockPopulation,
-        field: &FieldModel,
-        events: &[Event],
-        times: &[f64],
-        t_first: f64,
-        with_2d: bool,
-        reach: i64,
-    ) -> Result<TopOutcome> {
+    fn run_block(&self, bp: &TopBlockPopulation, run: &Run<Event>, with_2d: bool, reach: i64) -> Result<TopOutcome> {
         let j_thermal = bp.levels.last().map(|l| l.0).unwrap_or(0);
         grow_basis(
             (j_thermal + reach) as usize,
             MAX_TOP_BASIS_J as usize,
-            |j_max| self.try_block(self.ops(TopBlock { m: bp.m, sym: bp.sym, j_max: j_max as i64 }, with_2d), bp, field, events, times, t_first),
+            |j_max| self.try_block(self.ops(TopBlock { m: bp.m, sym: bp.sym, j_max: j_max as i64 }, with_2d), bp, run),
             || {
                 Error::Numerical(format!(
                     "block M = {}, {:?}: the basis would need J > {MAX_TOP_BASIS_J}; lower the intensities or the temperature",
@@ -506,15 +497,8 @@ impl TopSolver {
         )
     }
 
-    fn try_block(
-        &self,
-        ops: Arc<TopOps>,
-        bp: &TopBlockPopulation,
-        field: &FieldModel,
-        events: &[Event],
-        times: &[f64],
-        t_first: f64,
-    ) -> Result<Option<TopOutcome>> {
+    fn try_block(&self, ops: Arc<TopOps>, bp: &TopBlockPopulation, run: &Run<Event>) -> Result<Option<TopOutcome>> {
+        let Run { field, items: events, times, t_first } = *run;
         let b = &ops.basis;
         let start: Vec<usize> = bp
             .levels
@@ -700,7 +684,7 @@ impl super::Solver {
         let t_first = items.first().map(|e| e.span().0).into_iter().chain(times.first().copied()).fold(f64::INFINITY, f64::min);
         let t_first = if t_first.is_finite() { t_first } else { 0.0 };
         let extra = self.polar_extra(field, &items);
-        let run = super::PolarRun { field, items: &items, times, t_first, wanted };
+        let run = super::PolarRun { run: super::driver::Run { field, items: &items, times, t_first }, wanted };
         // (K, M) blocks: ±M differ once K ≠ 0 (the Stark shift −μE K M / J(J+1)); (K, M) and (−K, −M) agree.
         // (K, M, weight, thermal levels (J, population)) of each block.
         type PolarBlock = (i64, i64, f64, Vec<(u32, f64)>);
@@ -722,9 +706,7 @@ impl super::Solver {
                 grow_basis(
                     j_thermal + extra,
                     MAX_TOP_BASIS_J as usize,
-                    |j_max| {
-                        self.try_polar_block(&symmetric_top_polar_ops(top, &frame, *k, *m, j_max as i64, *w), levels, &run)
-                    },
+                    |j_max| self.try_polar_block(&symmetric_top_polar_ops(top, &frame, *k, *m, j_max as i64, *w), levels, &run),
                     || {
                         Error::Numerical(format!(
                             "block K = {k}, M = {m}: the basis would need J > {MAX_TOP_BASIS_J}; lower the field strengths or the temperature"

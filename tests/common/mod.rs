@@ -26,7 +26,7 @@ pub fn ground_state_kick(mol: &Molecule, f: impl Fn(f64) -> f64, g: impl Fn(f64)
             for (q, &xq) in x.iter().enumerate() {
                 let (mut re, mut im) = (0.0, 0.0);
                 for j in 0..=j_top as usize {
-                    let (s, co) = (-cm_to_rad_per_ps(mol.energy_cm(j as u32)) * t).sin_cos();
+                    let (s, co) = (-cm_to_rad_per_ps(mol.as_linear().unwrap().energy_cm(j as u32)) * t).sin_cos();
                     re += th[q][j] * (c[j].0 * co - c[j].1 * s);
                     im += th[q][j] * (c[j].0 * s + c[j].1 * co);
                 }
