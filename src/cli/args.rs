@@ -64,10 +64,13 @@ a second signal quits at once (exit 130) and writes nothing.")]
     },
     /// Field-dressed (pendular) states in a constant laser intensity and static field: the adiabatic limit.
     #[command(allow_negative_numbers = true)]
-    #[command(after_help = "Example:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n\n\
-Energies exclude the isotropic shift −¼α⊥E0², common to all states.")]
+    #[command(after_help = "Examples:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n  \
+kicktrain pendular SO2 --intensity-wcm2 1e11 --static-kv-cm 20 --temperature-k 0.5\n\n\
+Energies exclude the isotropic polarizability shift, common to all states. For a top the table lists the\n\
+thermally populated levels by name (\"J Ka Kc\" or \"J K\"), with ⟨cos²θ⟩ of the alignment axis and ⟨cosθ⟩\n\
+of the dipole axis; each connects to the field-free level of the same rank in its exact symmetry class.")]
     Pendular {
-        /// Library molecule name.
+        /// Library molecule name: a linear molecule or a top (`kicktrain molecules` lists them).
         molecule: String,
         /// Cycle-averaged laser intensity, W/cm².
         #[arg(long, default_value_t = 0.0)]
