@@ -471,15 +471,7 @@ fn oriented_blocks(frame: &TopFrame, ensemble: &TopEnsemble) -> Vec<OrientedBloc
     for bp in &ensemble.blocks {
         let source = TopBlockBasis::new(frame, TopBlock { m: bp.m, sym: bp.sym, j_max: bp.levels.last().map(|l| l.0).unwrap_or(0) });
         for &(j, idx, pop) in &bp.levels {
-            let (r, &(_, start, len)) = source.j_ranges.iter().enumerate().find(|(_, r)| r.0 == j).expect("thermal level inside its block");
-            let v = &source.vectors[r];
-            let mut amps: Vec<(i64, f64)> = vec![];
-            for i in 0..len {
-                let (comps, nc) = source.functions[start + i].components();
-                for &(k, c) in &comps[..nc] {
-                    amps.push((k, c * v[(i, idx)]));
-                }
-            }
+            let amps = level_amplitudes(&source, j, idx);
             // A symmetric top's K > 0 level stands for ±K (the ensemble counts it twice).
             let mut columns = vec![amps.clone()];
             if let TopSym::K(k) = bp.sym
@@ -553,6 +545,18 @@ fn laser_operator(top: &Top, frame: &TopFrame) -> AngularOperator {
         a_op.terms.extend(o.terms.iter().map(|&(r, q, c)| (r, q, w * c)));
     }
     a_op
+}
+
+/// The `idx`-th field-free level at J of a block as primitive amplitudes {K → c}.
+fn level_amplitudes(source: &TopBlockBasis, j: i64, idx: usize) -> Vec<(i64, f64)> {
+    let (r, &(_, start, len)) = source.j_ranges.iter().enumerate().find(|(_, r)| r.0 == j).expect("thermal level inside its block");
+    let v = &source.vectors[r];
+    let mut amps = vec![];
+    for i in 0..len {
+        let (comps, nc) = source.functions[start + i].components();
+        amps.extend(comps[..nc].iter().map(|&(k, c)| (k, c * v[(i, idx)])));
+    }
+    amps
 }
 
 /// (K parity, σ or 0) of a block class, for ordering.
@@ -764,20 +768,7 @@ fn class_blocks(frame: &TopFrame, ensemble: &TopEnsemble, split_k: bool) -> Vec<
     let mut out = vec![];
     for bp in &ensemble.blocks {
         let source = TopBlockBasis::new(frame, TopBlock { m: bp.m, sym: bp.sym, j_max: bp.levels.last().map(|l| l.0).unwrap_or(0) });
-        let starts: Vec<Start> = bp
-            .levels
-            .iter()
-            .map(|&(j, idx, pop)| {
-                let (r, &(_, start, len)) = source.j_ranges.iter().enumerate().find(|(_, r)| r.0 == j).expect("thermal level inside its block");
-                let v = &source.vectors[r];
-                let mut amplitudes = vec![];
-                for i in 0..len {
-                    let (comps, nc) = source.functions[start + i].components();
-                    amplitudes.extend(comps[..nc].iter().map(|&(k, c)| (k, c * v[(i, idx)])));
-                }
-                Start { j, amplitudes, population: pop }
-            })
-            .collect();
+        let starts: Vec<Start> = bp.levels.iter().map(|&(j, idx, pop)| Start { j, amplitudes: level_amplitudes(&source, j, idx), population: pop }).collect();
         match bp.sym {
             TopSym::K(k) if split_k && k > 0 && bp.m > 0 => {
                 let flipped = starts.iter().map(|st| Start { amplitudes: st.amplitudes.iter().map(|&(kk, c)| (-kk, c)).collect(), ..st.clone() }).collect();
