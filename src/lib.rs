@@ -21,6 +21,7 @@ pub mod error;
 pub mod field;
 pub mod goal;
 pub mod input;
+pub mod limits;
 pub mod molecule;
 pub mod numeric;
 pub mod observe;

@@ -36,6 +36,7 @@ fn main() -> ExitCode {
         )
         .map(|()| Finish::Done),
         Command::Scan(args) => commands::run_scan(&args),
+        Command::Limits(args) => commands::run_limits(&args),
         Command::Tolerance { scenario, jitter_fs, energy_noise_percent, phase_noise_rad, samples, seed, out } => commands::run_tolerance(
             &scenario,
             kicktrain::tolerance::Noise { jitter_fs, energy_percent: energy_noise_percent, phase_rad: phase_noise_rad },

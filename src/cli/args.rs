@@ -163,6 +163,14 @@ Jitter moves every pulse after the first; the probe stays at the nominal times. 
         #[arg(long)]
         out: Option<PathBuf>,
     },
+    /// Map the best train per pulse count and intensity ceiling (and temperature or duration), with a bound no train can pass.
+    #[command(after_help = "Example:\n  kicktrain limits objectives/two-pulse-room-temperature.json --max-count 4 --ceilings 2e13,4e13,6e13 --out lim\n  \
+kicktrain limits objectives/two-pulse-room-temperature.json --max-count 3 --ceilings 3e13,6e13 --temperatures 300,77 --waist-um 40 --out lim2\n\n\
+Each (temperature or duration, ceiling) runs one design search over 1..=N pulses, in parallel. Writes limits.csv (one row per\n\
+combination: score, pulses, how many independent starts agreed, run time) and limits.svg (score against the ceiling, one line per\n\
+count, the bound of the largest count dashed). With --waist-um (or --beam-radius-mm, --wavelength-nm and --focal-length-mm), the\n\
+ceilings are also given as pulse energies at that focus. Ctrl-C writes the combinations finished so far.")]
+    Limits(LimitsArgs),
     /// Simulate one scenario file: alignment trace, summary and plot.
     #[command(after_help = "Example:\n  kicktrain simulate examples/scenarios/nitrogen-one-pulse.json --out run1\n\n\
 The scenario is JSON: {\"molecule\": \"N2\", \"temperature_k\": 300,\n  \"pulses\": [{\"center_ps\": 0, \"fwhm_fs\": 50, \"peak_intensity_wcm2\": 5e13}],\n  \"window\": {\"start_ps\": 0.2, \"stop_ps\": 12, \"step_fs\": 20}}\n\
@@ -209,6 +217,52 @@ pub struct ScanArgs {
     #[arg(long, default_value_t = 21)]
     pub y_steps: usize,
     /// Output folder for scan.csv and scan.svg.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+}
+
+/// The options of `kicktrain limits`.
+#[derive(Args, Debug)]
+pub struct LimitsArgs {
+    /// Objective file (JSON): molecule, goal, pulse bounds and search settings.
+    pub objective: PathBuf,
+    /// Largest pulse count (every count from 1 up is designed); default: the objective's.
+    #[arg(long)]
+    pub max_count: Option<usize>,
+    /// Intensity ceilings per pulse, W/cm², comma-separated.
+    #[arg(long, value_delimiter = ',', required = true)]
+    pub ceilings: Vec<f64>,
+    /// Temperatures, K, comma-separated (default: the objective's); one panel each.
+    #[arg(long, value_delimiter = ',')]
+    pub temperatures: Vec<f64>,
+    /// Pulse durations (intensity FWHM), fs, comma-separated (default: the objective's bounds); one panel each.
+    #[arg(long, value_delimiter = ',')]
+    pub durations: Vec<f64>,
+    /// 1/e² intensity radius at the focus, µm: report each ceiling as a pulse energy (default: the objective's focal_average.pump_waist_um).
+    #[arg(long)]
+    pub waist_um: Option<f64>,
+    /// 1/e² radius of the collimated beam on the lens, mm (with --wavelength-nm and --focal-length-mm, instead of --waist-um).
+    #[arg(long)]
+    pub beam_radius_mm: Option<f64>,
+    /// Wavelength, nm.
+    #[arg(long)]
+    pub wavelength_nm: Option<f64>,
+    /// Focal length, mm.
+    #[arg(long)]
+    pub focal_length_mm: Option<f64>,
+    /// Beam quality factor M².
+    #[arg(long, default_value_t = 1.0)]
+    pub m2: f64,
+    /// Seed for the searches (overrides the file's search.seed).
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Effort: quick, normal or thorough (overrides the file's search.effort).
+    #[arg(long)]
+    pub effort: Option<String>,
+    /// Output folder for limits.csv and limits.svg.
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// No progress bar.

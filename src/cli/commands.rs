@@ -146,13 +146,7 @@ pub fn run_design(
         None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
     };
     let mut obj = Objective::from_json_str(&text, &name)?;
-    if let Some(s) = seed {
-        obj.search.seed = s;
-    }
-    if let Some(e) = effort {
-        obj.search.effort =
-            kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
-    }
+    apply_overrides(&mut obj, seed, effort)?;
     if let Some(t) = time_limit {
         if !(t > 0.0 && t <= 1e7) {
             return Err(Error::input("--time-limit", format!("expected a time above 0 and at most 1e7 s, got {t}")));
@@ -187,6 +181,87 @@ pub fn run_design(
         }
     }
     Ok(if result.interrupted { Finish::Partial } else { Finish::Done })
+}
+
+/// Progress bar and Ctrl-C flag of a limits map.
+struct MapProgress {
+    bar: indicatif::ProgressBar,
+}
+
+impl kicktrain::limits::LimitsMonitor for MapProgress {
+    fn combination_done(&self) {
+        self.bar.inc(1);
+    }
+    fn interrupted(&self) -> bool {
+        STOP.load(Ordering::Relaxed)
+    }
+}
+
+/// Read an objective file and apply the --seed and --effort overrides.
+fn read_objective(path: &Path, seed: Option<u64>, effort: Option<&str>) -> Result<Objective, Error> {
+    let mut obj = Objective::from_json_str(&read_text_file(path)?, &path.display().to_string())?;
+    apply_overrides(&mut obj, seed, effort)?;
+    Ok(obj)
+}
+
+/// The --seed and --effort overrides of an objective's search settings.
+fn apply_overrides(obj: &mut Objective, seed: Option<u64>, effort: Option<&str>) -> Result<(), Error> {
+    if let Some(s) = seed {
+        obj.search.seed = s;
+    }
+    if let Some(e) = effort {
+        obj.search.effort =
+            kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
+    }
+    Ok(())
+}
+
+/// `kicktrain limits`: designs over pulse counts × ceilings (× temperatures or durations) and the bound.
+pub fn run_limits(args: &super::args::LimitsArgs) -> Result<Finish, Error> {
+    use kicktrain::limits::{LimitsPlan, limits};
+    use kicktrain::report::limits::{EnergyScale, limits_csv, limits_partial, limits_partial_note, limits_svg, limits_text};
+    let obj = read_objective(&args.objective, args.seed, args.effort.as_deref())?;
+    let plan = LimitsPlan {
+        max_count: args.max_count.unwrap_or(obj.space.pulses.len()),
+        ceilings_wcm2: args.ceilings.clone(),
+        temperatures_k: args.temperatures.clone(),
+        durations_fs: args.durations.clone(),
+    };
+    kicktrain::limits::check_plan(&plan)?;
+    let optics_given = args.waist_um.is_some() || args.beam_radius_mm.is_some() || args.wavelength_nm.is_some() || args.focal_length_mm.is_some();
+    let energy = if optics_given {
+        let focus = kicktrain::optics::Focus {
+            energy_mj: 1.0,
+            waist_um: args.waist_um,
+            beam_radius_mm: args.beam_radius_mm,
+            wavelength_nm: args.wavelength_nm,
+            focal_length_mm: args.focal_length_mm,
+            m2: args.m2,
+        };
+        focus.validate("").map_err(|e| match e {
+            Error::Input { field, message } => Error::input(format!("--{}", field.trim_start_matches('.').replace('_', "-")), message),
+            other => other,
+        })?;
+        Some(EnergyScale { waist_um: focus.waist_m() * 1e6 })
+    } else {
+        obj.base.focal_average.as_ref().map(|f| EnergyScale { waist_um: f.pump_waist_um })
+    };
+    let staged = prepare_out(args.out.as_deref(), "limits")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
+    let planned = plan.max_count * plan.ceilings_wcm2.len() * plan.temperatures_k.len().max(1) * plan.durations_fs.len().max(1);
+    let bar = if args.quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(planned as u64) };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("limits [{bar:30}] {pos}/{len} combinations ({elapsed}, ETA {eta})").expect("template").progress_chars("=> "),
+    );
+    let map = limits(&obj, &plan, &MapProgress { bar: bar.clone() })?;
+    bar.finish_and_clear();
+    let partial = limits_partial(&map);
+    if let Some(p) = &partial {
+        println!("{p}");
+    }
+    print!("{}", limits_text(&map, energy));
+    let outputs = || vec![("limits.csv", limits_csv(&map, energy)), ("limits.svg", limits_svg(&map, energy, partial.as_deref()))];
+    write_and_finish(staged, args.out.as_deref(), outputs, partial.as_deref().map(limits_partial_note))
 }
 
 /// `kicktrain pendular`: dressed states of a linear molecule in constant fields.

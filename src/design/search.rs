@@ -35,6 +35,8 @@ pub trait Monitor: Sync {
     fn interrupted(&self) -> bool {
         false
     }
+    /// The search of `count` pulses finished (its design is final).
+    fn count_finished(&self, _count: usize) {}
 }
 
 /// A monitor that shows nothing and never interrupts.
@@ -706,10 +708,42 @@ fn search_space(
     Ok((Candidate { field, kick, full }, confidence))
 }
 
-/// Run the whole design: per pulse count (1..=N for "max_count", else N), plus the single-pulse baseline.
-pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
+/// The designs of every pulse count an objective asks for (1..=N for "max_count", else N), each count's
+/// search seeded with the previous count's design, without the single-pulse baseline.
+#[derive(Debug, Clone)]
+pub struct CountDesigns {
+    /// Best design per pulse count, in count order (fewer than asked for when interrupted).
+    pub per_count: Vec<Candidate>,
+    /// How sure the search is, per entry of `per_count`.
+    pub confidence: Vec<Confidence>,
+    /// True if the user stopped the search early.
+    pub interrupted: bool,
+    /// Kick-model and split-kick evaluations.
+    pub kick_evaluations: usize,
+    /// Full-solver evaluations.
+    pub full_evaluations: usize,
+    /// Wall-clock time, s.
+    pub run_time_s: f64,
+}
+
+/// The per-count searches of [`design`] alone (what a map over ceilings and counts needs).
+pub fn design_counts(obj: &Objective, monitor: &dyn Monitor) -> Result<CountDesigns> {
     let t0 = Instant::now();
     let ev = Evaluator::new(obj, monitor)?;
+    let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor, t0)?;
+    Ok(CountDesigns {
+        per_count,
+        confidence,
+        interrupted: interrupted || monitor.interrupted(),
+        kick_evaluations: ev.kick_count.load(Ordering::Relaxed),
+        full_evaluations: ev.full_count.load(Ordering::Relaxed),
+        run_time_s: t0.elapsed().as_secs_f64(),
+    })
+}
+
+/// One search per pulse count, in count order; an interrupted search keeps the counts finished (or, when
+/// none finished, the best train seen so far). Returns (designs, confidence, interrupted).
+fn count_searches(ev: &Evaluator, obj: &Objective, monitor: &dyn Monitor, t0: Instant) -> Result<(Vec<Candidate>, Vec<Confidence>, bool)> {
     let deadline = obj.search.time_limit_s.map(|s| t0 + std::time::Duration::from_secs_f64(s));
     let n = obj.space.pulses.len();
     let counts: Vec<usize> = if obj.variable_count { (1..=n).collect() } else { vec![n] };
@@ -721,10 +755,11 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
         let space = obj.space.truncated(c);
         let plan = obj.search.plan(space.dims(), full_screening);
         let label = if c == 1 { "1 pulse".to_string() } else { format!("{c} pulses") };
-        match search_space(&ev, &space, &label, obj.search.seed.wrapping_add(c as u64 * 7919), &plan, per_count.last().map(|p| &p.field), deadline) {
+        match search_space(ev, &space, &label, obj.search.seed.wrapping_add(c as u64 * 7919), &plan, per_count.last().map(|p| &p.field), deadline) {
             Ok((cand, conf)) => {
                 per_count.push(cand);
                 confidence.push(conf);
+                monitor.count_finished(c);
             }
             Err(Error::Interrupted) => {
                 interrupted = true;
@@ -754,6 +789,15 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
             warning: Some("the search was interrupted before its first start finished: this is the best train seen, not a converged design".into()),
         });
     }
+    Ok((per_count, confidence, interrupted))
+}
+
+/// Run the whole design: per pulse count (1..=N for "max_count", else N), plus the single-pulse baseline.
+pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
+    let t0 = Instant::now();
+    let ev = Evaluator::new(obj, monitor)?;
+    let full_screening = ev.kick.is_none();
+    let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor, t0)?;
     let sense = obj.goal.sense();
     // "Up to N": the fewest pulses whose score is within COUNT_GAIN_THRESHOLD of the best.
     let top = per_count.iter().map(|c| sense * c.full.value).fold(f64::NEG_INFINITY, f64::max);

@@ -1,6 +1,7 @@
 //! Reports: the summary (JSON), traces (CSV) and plots (SVG) written to an output folder.
 
 pub mod design;
+pub mod limits;
 pub mod output;
 pub mod scan;
 pub mod svg;

@@ -470,6 +470,27 @@ pub fn write_svg(path: &Path, svg: &str) -> std::io::Result<()> {
 }
 
 /// A coordinate or length for an attribute: two decimals, trailing zeros trimmed, never NaN.
+/// Several SVG documents made by this module, one under the other in one document (each keeps its own
+/// coordinates inside a nested `<svg>`; the width is the widest one's).
+pub fn stack_vertically(docs: &[String]) -> String {
+    let size = |doc: &str, key: &str| -> f64 {
+        let root = doc.find("<svg ").map(|i| &doc[i..]).unwrap_or("");
+        let end = root.find('>').unwrap_or(root.len());
+        let pat = format!(" {key}=\"");
+        root[..end].find(&pat).and_then(|i| root[i + pat.len()..end].split('"').next()).and_then(|v| v.parse().ok()).unwrap_or(0.0)
+    };
+    let width = docs.iter().map(|d| size(d, "width")).fold(0.0, f64::max);
+    let height: f64 = docs.iter().map(|d| size(d, "height")).sum();
+    let mut out = Svg::new(width.max(1.0), height.max(1.0));
+    let mut y = 0.0;
+    for d in docs {
+        let body = d.find("<svg ").map(|i| &d[i..]).unwrap_or("");
+        out.raw(&body.replacen("<svg ", &format!("<svg x=\"0\" y=\"{}\" ", N(y)), 1));
+        y += size(d, "height");
+    }
+    out.finish()
+}
+
 struct N(f64);
 
 impl std::fmt::Display for N {
