@@ -758,7 +758,7 @@ fn design_tiny_search_writes_a_replayable_design() {
 #[test]
 fn help_of_every_subcommand_has_an_example() {
     // Checks (common practice): `--help` of the program and of each subcommand exits 0 and shows an example.
-    for args in [vec!["--help"], vec!["molecules", "--help"], vec!["simulate", "--help"], vec!["design", "--help"]] {
+    for args in [vec!["--help"], vec!["molecules", "--help"], vec!["simulate", "--help"], vec!["design", "--help"], vec!["limits", "--help"]] {
         let r = run(&args);
         assert_eq!(r.code, Some(0), "{args:?}: {}", r.stderr);
         assert!(r.stdout.contains("Example"), "{args:?} help lacks an example:\n{}", r.stdout);
@@ -1351,4 +1351,73 @@ fn a_thermal_ensemble_above_the_state_limit_is_refused_naming_the_temperature() 
     v["temperature_k"] = json!(2);
     v["solver"] = json!({"max_states": 10});
     simulate_fails_on("states-low", &v, "temperature_k");
+}
+
+// ---------------------------------------------------------------------------------------------------
+// Limits maps (`kicktrain limits`)
+// ---------------------------------------------------------------------------------------------------
+
+const TWO_PULSES: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/objectives/two-pulse-room-temperature.json");
+
+#[test]
+fn limits_writes_its_table_csv_and_plot_with_energies_and_the_caution() {
+    // Checks: a small map finishes, prints the table with the bound and the laser-safety caution, and
+    // writes limits.csv (one row per combination, no NaN, energies at the focus) and limits.svg.
+    let sb = Sandbox::new("limits-ok");
+    let out = sb.out();
+    let r = run(&["limits", TWO_PULSES, "--max-count", "2", "--ceilings", "3e13", "--effort", "quick", "--waist-um", "40", "--out", s(&out), "--quiet"]);
+    assert_eq!(r.code, Some(0), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    assert!(r.stdout.contains("bound") && r.stdout.contains("class 4"), "{}", r.stdout);
+    assert!(r.stdout.contains("mJ"), "energies at the focus: {}", r.stdout);
+    let csv = std::fs::read_to_string(out.join("limits.csv")).unwrap();
+    assert!(!csv.to_ascii_lowercase().contains("nan"));
+    let lines: Vec<&str> = csv.lines().collect();
+    assert_eq!(lines.len(), 3, "{csv}");
+    assert!(lines[0].starts_with("temperature_k,fwhm_fs,ceiling_wcm2,pulse_energy_mj,count,score_peak_cos2"), "{}", lines[0]);
+    // 3e13 W/cm² at a 40 µm waist for a 50 fs Gaussian: E = I π w²/2 · τ sqrt(π/(4 ln 2)) = 0.0402 mJ.
+    let e: f64 = lines[1].split(',').nth(3).unwrap().parse().unwrap();
+    let expect = 3e13 * 1e4 * std::f64::consts::PI * (40e-6f64).powi(2) / 2.0 * 50e-15 * (std::f64::consts::PI / (4.0 * 2f64.ln())).sqrt() * 1e3;
+    assert!((e - expect).abs() < 1e-4, "{e} vs {expect}");
+    assert!(std::fs::read_to_string(out.join("limits.svg")).unwrap().contains("<svg"));
+}
+
+#[test]
+fn limits_bad_inputs_name_the_option_and_write_nothing() {
+    // Checks: each bad option value gives one line naming the option, exit 2, no folder.
+    let sb = Sandbox::new("limits-bad");
+    let one_pulse = sb.write(
+        "one.json",
+        &std::fs::read_to_string(TWO_PULSES).unwrap().replace("\"count\": 2", "\"count\": 1").replace("\"delay_ps\": {\"min\": 0.2, \"max\": 9.0},", ""),
+    );
+    let out = sb.out();
+    let cases: Vec<(Vec<&str>, &str)> = vec![
+        (vec!["limits", TWO_PULSES, "--ceilings", "-1e13"], "--ceilings"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "2e13,2e13"], "--ceilings"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "1e19"], "--ceilings"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "2e13", "--max-count", "0"], "--max-count"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "2e13", "--temperatures", "nan"], "--temperatures"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "2e13", "--durations", "0"], "--durations"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "2e13", "--waist-um", "-5"], "--waist-um"),
+        (vec!["limits", TWO_PULSES, "--ceilings", "2e13", "--effort", "huge"], "--effort"),
+        (vec!["limits", s(&one_pulse), "--ceilings", "2e13", "--max-count", "3"], "--max-count"),
+    ];
+    for (mut args, needle) in cases {
+        args.extend(["--out", s(&out), "--quiet"]);
+        let r = run(&args);
+        assert_field_error(&r, &out, needle);
+    }
+}
+
+#[test]
+fn a_limits_map_stopped_by_sigterm_keeps_what_it_finished_marked_partial() {
+    // Checks: SIGTERM stops the searches; the rows finished are written with PARTIAL.txt, exit 4.
+    let sb = Sandbox::new("sigterm-limits");
+    let out = sb.out();
+    let args = ["limits", TWO_PULSES, "--max-count", "5", "--ceilings", "2e13,6e13", "--out", s(&out), "--quiet"];
+    let r = run_and_signal(&args, &[(Duration::from_millis(4000), "TERM")]);
+    assert_eq!(r.code, Some(4), "stdout:\n{}\nstderr:\n{}", r.stdout, r.stderr);
+    let rows = std::fs::read_to_string(out.join("limits.csv")).unwrap().lines().count() - 1;
+    assert!(rows > 0 && rows < 10, "{rows} rows");
+    assert!(std::fs::read_to_string(out.join("PARTIAL.txt")).unwrap().contains("of 10 combinations finished"));
+    assert!(r.elapsed < Duration::from_secs(60), "stopped late: {:?}", r.elapsed);
 }

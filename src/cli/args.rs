@@ -164,6 +164,7 @@ Jitter moves every pulse after the first; the probe stays at the nominal times. 
         out: Option<PathBuf>,
     },
     /// Map the best train per pulse count and intensity ceiling (and temperature or duration), with a bound no train can pass.
+    #[command(allow_negative_numbers = true)]
     #[command(after_help = "Example:\n  kicktrain limits objectives/two-pulse-room-temperature.json --max-count 4 --ceilings 2e13,4e13,6e13 --out lim\n  \
 kicktrain limits objectives/two-pulse-room-temperature.json --max-count 3 --ceilings 3e13,6e13 --temperatures 300,77 --waist-um 40 --out lim2\n\n\
 Each (temperature or duration, ceiling) runs one design search over 1..=N pulses, in parallel. Writes limits.csv (one row per\n\

@@ -28,6 +28,21 @@ impl EnergyScale {
     }
 }
 
+/// A pulse energy in mJ with three significant digits ("0.0402 mJ", "2.10 mJ").
+fn energy_text(mj: f64) -> String {
+    if !(mj.is_finite() && mj > 0.0) {
+        return "—".into();
+    }
+    let decimals = (2 - mj.log10().floor() as i64).max(0) as usize;
+    format!("{mj:.decimals$} mJ")
+}
+
+/// A length without float noise ("50", "12.5").
+fn plain(x: f64) -> String {
+    let t = format!("{x:.4}");
+    t.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
 fn setting_label(s: &Setting) -> String {
     format!("{} K{}", s.temperature_k, s.fwhm_fs.map(|d| format!(", {d} fs pulses")).unwrap_or_default())
 }
@@ -110,7 +125,7 @@ pub fn limits_text(map: &LimitsMap, energy: Option<EnergyScale>) -> String {
         let _ = writeln!(out, "\n  {}", setting_label(s));
         let _ = write!(out, "  {:>12}", "ceiling");
         if energy.is_some() {
-            let _ = write!(out, " {:>9}", "energy");
+            let _ = write!(out, " {:>10}", "energy");
         }
         for n in 1..=map.max_count {
             let _ = write!(out, " {:>8}", format!("{n} pulse{}", if n == 1 { "" } else { "s" }));
@@ -119,7 +134,7 @@ pub fn limits_text(map: &LimitsMap, energy: Option<EnergyScale>) -> String {
         for (ci, &c) in map.ceilings_wcm2.iter().enumerate() {
             let _ = write!(out, "  {:>12}", format!("{c:.2e}"));
             if let Some(e) = energy {
-                let _ = write!(out, " {:>9}", format!("{:.3} mJ", e.energy_mj(map, si, c)));
+                let _ = write!(out, " {:>10}", energy_text(e.energy_mj(map, si, c)));
             }
             for n in 1..=map.max_count {
                 let v = map.cell(si, ci, n).map(|x| format!("{:.4}{}", x.design.full.value, if x.confidence.warning.is_some() { "?" } else { "" }));
@@ -145,17 +160,22 @@ pub fn limits_text(map: &LimitsMap, energy: Option<EnergyScale>) -> String {
         let _ = writeln!(out, "  ?: fewer than three independent starts agreed on this design (see starts and agreeing_starts in limits.csv)");
     }
     if let Some(e) = energy {
-        let _ = writeln!(out, "  energy: per pulse for a {} µm focus (1/e² radius), on axis", e.waist_um);
+        let _ = writeln!(out, "  energy: per pulse for a {} µm focus (1/e² radius), on axis", plain(e.waist_um));
     }
     let _ = writeln!(out, "  {} combinations in {:.1} s", map.cells.len(), map.run_time_s);
     out
 }
 
-/// `limits.svg`: one panel per setting, the score against the ceiling, a line per pulse count and the
-/// bound of the largest count dashed.
+/// `limits.svg`: one panel per setting (one y range for all), the score against the ceiling, a line per
+/// pulse count and the bound of the largest count dashed, with the laser-safety caution.
 pub fn limits_svg(map: &LimitsMap, energy: Option<EnergyScale>, partial: Option<&str>) -> String {
     let goal = &map.objective.goal;
     let counts_color = |n: usize| if n == 1 { svg::INK } else { svg::PALETTE[(n - 2) % svg::PALETTE.len()] };
+    // One y range for every panel, so temperatures and durations compare at a glance.
+    let values = map.cells.iter().map(|c| c.design.full.value).chain(map.bounds.iter().filter(|b| b.count == map.max_count).map(|b| b.bound.value));
+    let (lo, hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    let pad = 0.04 * (hi - lo).max(0.05);
+    let y_range = (lo.is_finite() && hi.is_finite()).then_some((lo - pad, hi + pad));
     let mut panels = vec![];
     for (si, s) in map.settings.iter().enumerate() {
         let mut plot = svg::LinePlot::new(
@@ -165,12 +185,13 @@ pub fn limits_svg(map: &LimitsMap, energy: Option<EnergyScale>, partial: Option<
         );
         let top = map.ceilings_wcm2.len() - 1;
         let mut sub = vec![];
-        if energy.is_some() {
-            sub.push("vertical lines: pulse energy at your focus".to_string());
+        if let Some(e) = energy {
+            plot.x_label = format!("ceiling per pulse (W/cm²); top: energy at a {} µm focus", plain(e.waist_um));
         }
         if let Some(p) = partial {
             sub.push(p.to_string());
         }
+        sub.push(super::LASER_SAFETY_SHORT.to_string());
         plot.subtitle = (!sub.is_empty()).then(|| sub.join("; "));
         for n in 1..=map.max_count {
             let pts: Vec<(f64, f64)> =
@@ -179,7 +200,9 @@ pub fn limits_svg(map: &LimitsMap, energy: Option<EnergyScale>, partial: Option<
                 continue;
             }
             let gain = match (map.cell(si, top, n), map.cell(si, top, n.saturating_sub(1).max(1))) {
-                (Some(a), Some(b)) if n > 1 => format!(" (+{:.3})", goal.sense() * (a.design.full.value - b.design.full.value)),
+                (Some(a), Some(b)) if n > 1 => {
+                    format!(" ({:+.3} at {:.0e})", goal.sense() * (a.design.full.value - b.design.full.value), map.ceilings_wcm2[top])
+                }
                 _ => String::new(),
             };
             let label = if n == 1 { "1 pulse (baseline)".to_string() } else { format!("{n} pulses{gain}") };
@@ -201,10 +224,11 @@ pub fn limits_svg(map: &LimitsMap, energy: Option<EnergyScale>, partial: Option<
         }
         if let Some(e) = energy {
             for &c in &map.ceilings_wcm2 {
-                plot.markers.push(svg::Marker::line(c, format!("{:.2} mJ", e.energy_mj(map, si, c)), svg::NEUTRAL_LIGHT));
+                plot.markers.push(svg::Marker::line(c, energy_text(e.energy_mj(map, si, c)), svg::NEUTRAL_LIGHT));
             }
         }
         plot.height = 460.0;
+        plot.y_range = y_range;
         panels.push(plot.to_svg());
     }
     svg::stack_vertically(&panels)

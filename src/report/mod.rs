@@ -21,6 +21,9 @@ pub const LASER_SAFETY: &str = "Laser safety: pulses like these come from class 
 Follow your local laser safety officer and the applicable standards (IEC 60825-1, ANSI Z136.1); \
 these numbers are no substitute for a safety assessment.";
 
+/// The caution in one line, for plot subtitles.
+pub const LASER_SAFETY_SHORT: &str = "Laser safety: class 4; follow your laser safety officer, IEC 60825-1, ANSI Z136.1";
+
 fn extremum(e: Option<Extremum>) -> Value {
     match e {
         Some(e) if e.value.is_finite() => json!({"value": e.value, "t_ps": e.t_ps}),

@@ -75,8 +75,7 @@ pub fn scan_svg(r: &ScanResult, partial: Option<&str>) -> String {
     let label = metric_label(r.metric);
     // A scanned intensity, energy or field puts the laser-safety caution on the plot.
     let states_laser = |p: &str| ["intensity", "_wcm2", "energy_mj", "_kv_cm", "field"].iter().any(|k| p.contains(k));
-    let caution = (states_laser(&xa.path) || ya.as_ref().is_some_and(|a| states_laser(&a.path)))
-        .then(|| "Laser safety: class 4 lasers; follow your local laser safety officer and IEC 60825-1 / ANSI Z136.1.".to_string());
+    let caution = (states_laser(&xa.path) || ya.as_ref().is_some_and(|a| states_laser(&a.path))).then(|| super::LASER_SAFETY_SHORT.to_string());
     let caution = match (partial, caution) {
         (Some(p), Some(c)) => Some(format!("{p}; {c}")),
         (Some(p), None) => Some(p.to_string()),
