@@ -10,7 +10,9 @@
 //!
 //! KICKTRAIN_BENCH_JOBS picks jobs by number, e.g. `KICKTRAIN_BENCH_JOBS=2 cargo bench` for the
 //! designer's kick-model throughput alone. Job 6 times whole designs with the default search: the
-//! built-in objective and the three- and four-pulse N2 designs of `tests/best_designs.rs`.
+//! built-in objective and the three- and four-pulse N2 designs of `tests/best_designs.rs`. Job 7 (not
+//! run by default, about four minutes) times a `limits` map: N2 at 300 K, counts 1–5, ceilings 1e13,
+//! 2e13, 3e13, 5e13 and 8e13 W/cm², default search (KICKTRAIN_BENCH_LIMITS_EFFORT=quick for the quick one).
 
 use kicktrain::field::{FieldModel, Pulse, PulsePolarization};
 use kicktrain::molecule::Molecule;
@@ -140,6 +142,34 @@ fn main() {
     if wanted("6") {
         designs();
     }
+    if wanted("7") {
+        limits_map();
+    }
+}
+
+/// Job 7 (limits): a 5 × 5 map of the built-in objective (N2 at 300 K, 50 fs pulses), counts 1–5 and five
+/// ceilings, one run.
+fn limits_map() {
+    use kicktrain::design::{Effort, Objective};
+    use kicktrain::limits::{LimitsPlan, Quiet, limits};
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/objectives/two-pulse-room-temperature.json")).unwrap();
+    let mut obj = Objective::from_json_str(&text, "two-pulse-room-temperature.json").unwrap();
+    if let Ok(e) = std::env::var("KICKTRAIN_BENCH_LIMITS_EFFORT") {
+        obj.search.effort = Effort::parse(&e).expect("quick, normal or thorough");
+    }
+    let plan = LimitsPlan { max_count: 5, ceilings_wcm2: vec![1e13, 2e13, 3e13, 5e13, 8e13], temperatures_k: vec![], durations_fs: vec![] };
+    let t0 = Instant::now();
+    let map = limits(&obj, &plan, &Quiet).unwrap();
+    let agreeing = map.cells.iter().filter(|c| c.confidence.warning.is_none()).count();
+    let top = map.cell(0, 4, 5).map(|c| c.design.full.value).unwrap_or(f64::NAN);
+    println!(
+        "limits map, N2 at 300 K, counts 1–5 × 5 ceilings ({} effort): {:.1} s on {} threads; {} of {} designs with three agreeing starts; 5 pulses at 8e13: {top:.5}",
+        obj.search.effort.name(),
+        t0.elapsed().as_secs_f64(),
+        rayon::current_num_threads(),
+        agreeing,
+        map.cells.len()
+    );
 }
 
 /// Job 6 (designer): whole designs with the default search, one run each (seed 1): the built-in
