@@ -142,28 +142,20 @@ enum Model {
     Full,
 }
 
-/// Scores trains with the three solvers and keeps the counts, the best point and the history.
-struct Evaluator<'a> {
-    obj: &'a Objective,
+/// The three solvers a search scores trains with, built once per molecule, temperature and solver
+/// settings; searches that share them (the ceilings of a limits map) share their cached operators.
+pub struct SearchSolvers {
     /// The kick model; None when the objective's pulses are too long for it.
     kick: Option<Solver>,
     /// The split-kick model (None with `kick`).
     split: Option<Solver>,
     full: Solver,
-    with_2d: bool,
-    kick_count: AtomicUsize,
-    full_count: AtomicUsize,
-    /// Best (value, train) seen by the screening models and by the full solver.
-    best: Mutex<[Option<(f64, FieldModel)>; 2]>,
-    /// Best value within the current stage (reset when a stage starts).
-    stage_best: Mutex<Option<f64>>,
-    history: Mutex<Vec<HistoryPoint>>,
-    stage: Mutex<String>,
-    monitor: &'a dyn Monitor,
 }
 
-impl<'a> Evaluator<'a> {
-    fn new(obj: &'a Objective, monitor: &'a dyn Monitor) -> Result<Evaluator<'a>> {
+impl SearchSolvers {
+    /// The solvers for `obj`: they depend on its molecule, temperature, solver settings and on whether
+    /// its longest pulse is short enough for the kick model, not on intensities or the goal.
+    pub fn new(obj: &Objective) -> Result<SearchSolvers> {
         let base = obj.solver_settings();
         // The kick models screen candidates: a looser thermal cut and basis edge (1e-4, 1e-6) keep their
         // scores within 2e-5 of the converged kick model on nitrogen at 300 K (four random pulses,
@@ -187,7 +179,35 @@ impl<'a> Evaluator<'a> {
         };
         let full_method = if base.method == Method::Kick { Method::Auto } else { base.method };
         let full = Solver::new(obj.molecule(), obj.base.temperature_k, SolverSettings { method: full_method, ..base })?;
-        Ok(Evaluator {
+        Ok(SearchSolvers { kick, split, full })
+    }
+}
+
+/// Scores trains with the three solvers and keeps the counts, the best point and the history.
+struct Evaluator<'a> {
+    obj: &'a Objective,
+    /// The kick model; None when the objective's pulses are too long for it.
+    kick: Option<&'a Solver>,
+    /// The split-kick model (None with `kick`).
+    split: Option<&'a Solver>,
+    full: &'a Solver,
+    with_2d: bool,
+    kick_count: AtomicUsize,
+    full_count: AtomicUsize,
+    /// Best (value, train) seen by the screening models and by the full solver.
+    best: Mutex<[Option<(f64, FieldModel)>; 2]>,
+    /// Best value within the current stage (reset when a stage starts).
+    stage_best: Mutex<Option<f64>>,
+    history: Mutex<Vec<HistoryPoint>>,
+    stage: Mutex<String>,
+    monitor: &'a dyn Monitor,
+}
+
+impl<'a> Evaluator<'a> {
+    fn new(obj: &'a Objective, solvers: &'a SearchSolvers, monitor: &'a dyn Monitor) -> Evaluator<'a> {
+        let SearchSolvers { kick, split, full } = solvers;
+        let (kick, split) = (kick.as_ref(), split.as_ref());
+        Evaluator {
             obj,
             kick,
             split,
@@ -200,16 +220,16 @@ impl<'a> Evaluator<'a> {
             history: Mutex::new(vec![]),
             stage: Mutex::new(String::new()),
             monitor,
-        })
+        }
     }
 
     /// The solver of a model, or an error naming the pulse duration when the pulses are too long for
     /// the kick models.
     fn solver(&self, model: Model) -> Result<&Solver> {
         let s = match model {
-            Model::Full => return Ok(&self.full),
-            Model::Kick => self.kick.as_ref(),
-            Model::SplitKick => self.split.as_ref(),
+            Model::Full => return Ok(self.full),
+            Model::Kick => self.kick,
+            Model::SplitKick => self.split,
         };
         s.ok_or_else(|| {
             Error::input(
@@ -726,10 +746,11 @@ pub struct CountDesigns {
     pub run_time_s: f64,
 }
 
-/// The per-count searches of [`design`] alone (what a map over ceilings and counts needs).
-pub fn design_counts(obj: &Objective, monitor: &dyn Monitor) -> Result<CountDesigns> {
+/// The per-count searches of [`design`] alone (what a map over ceilings and counts needs), scored with
+/// `solvers` (built by [`SearchSolvers::new`] for this objective or one differing only in intensities).
+pub fn design_counts(obj: &Objective, solvers: &SearchSolvers, monitor: &dyn Monitor) -> Result<CountDesigns> {
     let t0 = Instant::now();
-    let ev = Evaluator::new(obj, monitor)?;
+    let ev = Evaluator::new(obj, solvers, monitor);
     let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor, t0)?;
     Ok(CountDesigns {
         per_count,
@@ -795,7 +816,8 @@ fn count_searches(ev: &Evaluator, obj: &Objective, monitor: &dyn Monitor, t0: In
 /// Run the whole design: per pulse count (1..=N for "max_count", else N), plus the single-pulse baseline.
 pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let t0 = Instant::now();
-    let ev = Evaluator::new(obj, monitor)?;
+    let solvers = SearchSolvers::new(obj)?;
+    let ev = Evaluator::new(obj, &solvers, monitor);
     let full_screening = ev.kick.is_none();
     let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor, t0)?;
     let sense = obj.goal.sense();
@@ -843,25 +865,29 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
 
 /// Score one train with the kick model and the full solver (as the search would).
 pub fn evaluate(obj: &Objective, field: &FieldModel) -> Result<Candidate> {
-    let ev = Evaluator::new(obj, &Silent)?;
+    let solvers = SearchSolvers::new(obj)?;
+    let ev = Evaluator::new(obj, &solvers, &Silent);
     let kick = if ev.kick.is_some() { Some(ev.score(field, Model::Kick)?) } else { None };
     Ok(Candidate { kick, full: ev.score(field, Model::Full)?, field: field.clone() })
 }
 
 /// Kick-model score of one train (one evaluation as the search's first stage does it).
 pub fn evaluate_kick(obj: &Objective, field: &FieldModel) -> Result<Score> {
-    let ev = Evaluator::new(obj, &Silent)?;
+    let solvers = SearchSolvers::new(obj)?;
+    let ev = Evaluator::new(obj, &solvers, &Silent);
     ev.score(field, Model::Kick)
 }
 
 /// Split-kick score of one train (three sub-kicks per pulse, as the search's polish does it).
 pub fn evaluate_split_kick(obj: &Objective, field: &FieldModel) -> Result<Score> {
-    let ev = Evaluator::new(obj, &Silent)?;
+    let solvers = SearchSolvers::new(obj)?;
+    let ev = Evaluator::new(obj, &solvers, &Silent);
     ev.score(field, Model::SplitKick)
 }
 
 /// Kick-model scores of many trains with one shared solver, as one batch (used by benchmarks and scans).
 pub fn evaluate_kick_many(obj: &Objective, fields: &[FieldModel]) -> Result<Vec<Score>> {
-    let ev = Evaluator::new(obj, &Silent)?;
+    let solvers = SearchSolvers::new(obj)?;
+    let ev = Evaluator::new(obj, &solvers, &Silent);
     ev.score_kick_many(fields, Model::Kick)
 }

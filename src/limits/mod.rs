@@ -2,12 +2,13 @@
 //! temperature or pulse duration, with a bound no train under the same ceiling can pass.
 //!
 //! One design search per (setting, ceiling) runs the counts 1..=N in order, each count's search seeded
-//! with the previous count's design (as `design` does for "max_count"); the searches run in parallel and
-//! every number recorded is independent of thread timing, so a map equals the designs run one by one.
+//! with the previous count's design (as `design` does for "max_count"); the searches run in parallel,
+//! those of one setting share their solvers (and so the cached operators), and every number recorded is
+//! independent of thread timing, so a map equals the designs run one by one.
 
 pub mod bound;
 
-use crate::design::search::{Candidate, Confidence, Monitor, design_counts};
+use crate::design::search::{Candidate, Confidence, Monitor, SearchSolvers, design_counts};
 use crate::design::{Bounds, Objective};
 use crate::error::{Error, Result};
 use crate::goal::{GoalKind, Observable};
@@ -268,6 +269,9 @@ pub fn limits(obj: &Objective, plan: &LimitsPlan, monitor: &dyn LimitsMonitor) -
             }
         }
     }
+    // One set of solvers per setting: the ceilings of a panel share their operators.
+    let solvers: Vec<SearchSolvers> =
+        settings.iter().enumerate().map(|(si, _)| SearchSolvers::new(&jobs.iter().find(|j| j.0 == si).expect("a job per setting").2)).collect::<Result<_>>()?;
     let stop = AtomicBool::new(false);
     let outcomes: Vec<Result<Vec<LimitCell>>> = jobs
         .par_iter()
@@ -277,7 +281,7 @@ pub fn limits(obj: &Objective, plan: &LimitsPlan, monitor: &dyn LimitsMonitor) -
             }
             let jm = JobMonitor { map: monitor, stop: &stop, finished: Mutex::new(vec![]) };
             let started = Instant::now();
-            let r = match design_counts(o, &jm) {
+            let r = match design_counts(o, &solvers[*si], &jm) {
                 Ok(r) => r,
                 Err(Error::Interrupted) => return Ok(vec![]),
                 Err(e) => {
