@@ -138,7 +138,8 @@ pub fn check_plan(plan: &LimitsPlan) -> Result<()> {
     if !(1..=8).contains(&plan.max_count) {
         return Err(Error::input("--max-count", format!("expected 1 to 8 pulses, got {}", plan.max_count)));
     }
-    let list = |name: &str, v: &[f64], lo: f64, hi: f64, unit: &str, required: bool| -> Result<()> {
+    // (option, values, lowest allowed, whether the lowest value itself is allowed, highest, unit, required)
+    let list = |name: &str, v: &[f64], lo: f64, lo_allowed: bool, hi: f64, unit: &str, required: bool| -> Result<()> {
         if required && v.is_empty() {
             return Err(Error::input(name, format!("missing; expected a comma-separated list in {unit}")));
         }
@@ -146,8 +147,11 @@ pub fn check_plan(plan: &LimitsPlan) -> Result<()> {
             return Err(Error::input(name, format!("expected at most 20 values, got {}", v.len())));
         }
         for &x in v {
-            if !x.is_finite() || x <= lo || x > hi {
-                return Err(Error::input(name, format!("expected values above {lo} and at most {hi:e} {unit}, got {x}")));
+            let low = if lo_allowed { x < lo } else { x <= lo };
+            if !x.is_finite() || low || x > hi {
+                let top = if hi >= 1e6 { format!("{hi:e}") } else { format!("{hi}") };
+                let range = if lo_allowed { format!("from {lo} to {top}") } else { format!("above {lo} and at most {top}") };
+                return Err(Error::input(name, format!("expected values {range} {unit}, got {x}")));
             }
         }
         let mut s = v.to_vec();
@@ -157,9 +161,9 @@ pub fn check_plan(plan: &LimitsPlan) -> Result<()> {
         }
         Ok(())
     };
-    list("--ceilings", &plan.ceilings_wcm2, 0.0, 1e17, "W/cm²", true)?;
-    list("--temperatures", &plan.temperatures_k, -1e-300, 5000.0, "K", false)?;
-    list("--durations", &plan.durations_fs, 0.0, 1e7, "fs", false)?;
+    list("--ceilings", &plan.ceilings_wcm2, 0.0, false, 1e17, "W/cm²", true)?;
+    list("--temperatures", &plan.temperatures_k, 0.0, true, 5000.0, "K", false)?;
+    list("--durations", &plan.durations_fs, 0.0, false, 1e7, "fs", false)?;
     Ok(())
 }
 
