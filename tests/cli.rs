@@ -1374,7 +1374,8 @@ fn limits_writes_its_table_csv_and_plot_with_energies_and_the_caution() {
     let lines: Vec<&str> = csv.lines().collect();
     assert_eq!(lines.len(), 3, "{csv}");
     assert!(lines[0].starts_with("temperature_k,fwhm_fs,ceiling_wcm2,pulse_energy_mj,count,score_peak_cos2"), "{}", lines[0]);
-    // 3e13 W/cm² at a 40 µm waist for a 50 fs Gaussian: E = I π w²/2 · τ sqrt(π/(4 ln 2)) = 0.0402 mJ.
+    // 3e13 W/cm² at a 40 µm waist for a 50 fs Gaussian: E = I π w²/2 · τ sqrt(π/(4 ln 2)) = 0.0402 mJ
+    // (peak intensity of a Gaussian beam and area of a Gaussian pulse: common practice).
     let e: f64 = lines[1].split(',').nth(3).unwrap().parse().unwrap();
     let expect = 3e13 * 1e4 * std::f64::consts::PI * (40e-6f64).powi(2) / 2.0 * 50e-15 * (std::f64::consts::PI / (4.0 * 2f64.ln())).sqrt() * 1e3;
     assert!((e - expect).abs() < 1e-4, "{e} vs {expect}");
