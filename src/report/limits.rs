@@ -143,6 +143,7 @@ pub fn limits_text(map: &LimitsMap, energy: Option<EnergyScale>) -> String {
             let b = map.bound(si, ci, map.max_count).map(|b| format!("{:.4}", b.value)).unwrap_or_else(|| "—".into());
             let dr = match diminishing_returns(map, si, ci, WORTH_ANOTHER_PULSE) {
                 Some(n) => format!("after {n} (pulse {} adds < {WORTH_ANOTHER_PULSE})", n + 1),
+                None if map.max_count == 1 => "—".into(),
                 None => "not within this map".into(),
             };
             let _ = writeln!(out, " {b:>8}  {dr}");
@@ -162,7 +163,8 @@ pub fn limits_text(map: &LimitsMap, energy: Option<EnergyScale>) -> String {
     if let Some(e) = energy {
         let _ = writeln!(out, "  energy: per pulse for a {} µm focus (1/e² radius), on axis", plain(e.waist_um));
     }
-    let _ = writeln!(out, "  {} combinations in {:.1} s", map.cells.len(), map.run_time_s);
+    let n = map.cells.len();
+    let _ = writeln!(out, "  {n} combination{} in {:.1} s", if n == 1 { "" } else { "s" }, map.run_time_s);
     out
 }
 
