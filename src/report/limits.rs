@@ -86,7 +86,12 @@ pub fn limits_csv(map: &LimitsMap, energy: Option<EnergyScale>) -> String {
             s.temperature_k,
             s.fwhm_fs.map(|d| d.to_string()).unwrap_or_default(),
             c.ceiling_wcm2,
-            energy.map(|e| format!("{:.4},", e.energy_mj(map, c.setting, c.ceiling_wcm2))).unwrap_or_default(),
+            energy
+                .map(|e| {
+                    let mj = e.energy_mj(map, c.setting, c.ceiling_wcm2);
+                    if mj.is_finite() { format!("{mj:.4},") } else { ",".to_string() }
+                })
+                .unwrap_or_default(),
             c.count,
             c.design.full.value,
             c.design.full.t_ps.map(|t| format!("{t:.4}")).unwrap_or_default(),
