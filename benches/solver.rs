@@ -100,7 +100,7 @@ fn nanosecond_mixed_field() {
     let mol = Molecule::from_library("OCS", "bench").unwrap();
     let field = FieldModel {
         pulses: vec![Pulse::gaussian(0.0, 10_000_000.0, 5e11)],
-        static_field: Some(StaticField { strength_kv_cm: 10.0, on_ps: None, off_ps: None }),
+        static_field: Some(StaticField { strength_kv_cm: 10.0, angle_deg: 0.0, on_ps: None, off_ps: None }),
         ..Default::default()
     };
     let t0 = Instant::now();

@@ -212,6 +212,22 @@ impl Scenario {
                     format!("a static field needs a polar molecule, but {} has no permanent dipole (give dipole_debye)", self.molecule.name),
                 ));
             }
+            let polarized = self.field.pulses.iter().any(|p| !p.polarization.is_along_z());
+            if (sf.is_tilted() || (polarized && sf.strength_kv_cm != 0.0)) && self.molecule.as_top().is_some() {
+                return Err(Error::input(
+                    join(path, if sf.is_tilted() { "static_field.angle_deg" } else { "pulses.polarization" }),
+                    format!(
+                        "{} is a top: a static field at an angle to Z, or with pulses polarized away from Z, is available for linear molecules only so far; expected angle_deg 0 (or 180) and pulses along Z",
+                        self.molecule.name
+                    ),
+                ));
+            }
+            if (sf.is_tilted() || (polarized && sf.strength_kv_cm != 0.0)) && (!self.field.two_colour.is_empty() || !self.field.terahertz.is_empty()) {
+                return Err(Error::input(
+                    join(path, if sf.is_tilted() { "static_field.angle_deg" } else { "pulses.polarization" }),
+                    "a static field at an angle to Z, or with pulses polarized away from Z, cannot yet be combined with two-colour or terahertz pulses",
+                ));
+            }
         }
         for (i, tc) in self.field.two_colour.iter().enumerate() {
             let p = format!("{}[{i}]", join(path, "two_colour"));

@@ -943,6 +943,23 @@ fn scenario_bad_polarization_and_three_axis_goal_on_a_linear_molecule() {
     simulate_fails_on("three-axis-linear", &v, "goal.observable");
 }
 
+#[test]
+fn scenario_bad_static_field_angle() {
+    // Checks: an angle that is not a number or lies outside ±360°, and a top in a tilted static field (not
+    // modelled yet), fail with exit code 2 and a one-line error naming static_field.angle_deg; nothing is
+    // written.
+    let mut v = good_scenario();
+    v["molecule"] = json!("OCS");
+    v["temperature_k"] = json!(1.0);
+    v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": "tilted"});
+    simulate_fails_on("angle-text", &v, "static_field.angle_deg");
+    v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": 1000});
+    simulate_fails_on("angle-range", &v, "static_field.angle_deg");
+    v["molecule"] = json!("SO2");
+    v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": 30});
+    simulate_fails_on("angle-top", &v, "static_field.angle_deg");
+}
+
 #[cfg(unix)]
 #[test]
 fn a_reader_that_stops_early_ends_the_program_quietly() {

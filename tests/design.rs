@@ -64,6 +64,7 @@ fn constraints_hold_for_every_point_of_random_spaces() {
             max_total_fluence_jcm2: budget,
             min_separation_ps: min_sep,
             static_field_kv_cm: None,
+            static_field_angle_deg: None,
             two_colour: None,
             terahertz: None,
         };

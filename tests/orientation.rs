@@ -49,7 +49,7 @@ fn reversing_the_static_field_reverses_orientation_exactly() {
     let run = |kv: f64| {
         let field = FieldModel {
             pulses: vec![Pulse::gaussian(0.0, 500.0, 3e12)],
-            static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }),
+            static_field: Some(StaticField { strength_kv_cm: kv, angle_deg: 0.0, on_ps: None, off_ps: None }),
             ..Default::default()
         };
         Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&field, &times, false).unwrap().trace
@@ -94,7 +94,7 @@ fn thermal_orientation_in_a_static_field_follows_langevin_debye() {
     let mol = lib("OCS");
     let t = 50.0;
     let kv = 100.0;
-    let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, on_ps: None, off_ps: None }), ..Default::default() };
+    let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, angle_deg: 0.0, on_ps: None, off_ps: None }), ..Default::default() };
     let r = Solver::new(&mol, t, SolverSettings::default()).unwrap().run(&field, &[0.0, 5.0], false).unwrap();
     // 1 D·kV/cm = 0.016 792 0 cm⁻¹, written out independently of the library's conversion: 1 D = 1e-21/c C·m =
     // 3.335 640 95e-30 C·m, so μE/(hc) = 3.335 640 95e-25 J / (6.626 070 15e-34 J s × 2.997 924 58e10 cm/s)
@@ -246,14 +246,14 @@ fn static_field_switches_inside_a_pulse_and_at_the_first_event() {
     // equals that of an always-on field; (b) two sudden switches inside one pulse interval give the
     // same result whether the samples fall inside or outside the pulse (no step runs backwards).
     let mol = lib("OCS");
-    let on = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, on_ps: None, off_ps: None }), ..Default::default() };
-    let off_at_first = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, on_ps: None, off_ps: Some(0.0) }), ..Default::default() };
+    let on = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, angle_deg: 0.0, on_ps: None, off_ps: None }), ..Default::default() };
+    let off_at_first = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, angle_deg: 0.0, on_ps: None, off_ps: Some(0.0) }), ..Default::default() };
     let a = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&on, &[0.0], false).unwrap().trace.cos().unwrap()[0];
     let b = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&off_at_first, &[-1.0], false).unwrap().trace.cos().unwrap()[0];
     assert!(a > 0.05 && (a - b).abs() < 1e-10, "always on {a}, off at first event {b}");
     let inside = FieldModel {
         pulses: vec![Pulse::gaussian(0.0, 2000.0, 1e11)],
-        static_field: Some(StaticField { strength_kv_cm: 30.0, on_ps: Some(-1.0), off_ps: Some(1.0) }),
+        static_field: Some(StaticField { strength_kv_cm: 30.0, angle_deg: 0.0, on_ps: Some(-1.0), off_ps: Some(1.0) }),
         ..Default::default()
     };
     let solver = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap();
@@ -274,7 +274,7 @@ fn nanosecond_pulse_in_a_static_field_reaches_the_adiabatic_thermal_values() {
     let adiabatic = pendular(&mol, 5e11, 10.0, 1.0, 8).unwrap();
     let field = FieldModel {
         pulses: vec![Pulse::gaussian(0.0, 1_000_000.0, 5e11)],
-        static_field: Some(StaticField { strength_kv_cm: 10.0, on_ps: None, off_ps: None }),
+        static_field: Some(StaticField { strength_kv_cm: 10.0, angle_deg: 0.0, on_ps: None, off_ps: None }),
         ..Default::default()
     };
     let r = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&field, &[0.0], false).unwrap().trace;

@@ -42,6 +42,9 @@ pub enum BlockSymmetry {
     KParity(i64),
     /// An M = 0 block of one parity of K and one sign under the reflection through a plane containing Z.
     KParityReflection(i64, i64),
+    /// A block of every J and M with one sign under the reflection through the XZ plane (fields in
+    /// that plane that are not symmetric about one axis: a tilted static field).
+    ReflectionXZ(i64),
     /// An all-M chunk: its level class, its sign under the two-fold rotation about Y, and the parity of
     /// M when the fields conserve it.
     AllM {
@@ -80,6 +83,7 @@ impl std::fmt::Display for BlockSymmetry {
             BlockSymmetry::KaKc(a, c) => write!(f, "Ka {}, Kc {}", parity(*a), parity(*c)),
             BlockSymmetry::KParity(p) => write!(f, "K {}", parity(*p)),
             BlockSymmetry::KParityReflection(p, sigma) => write!(f, "K {}, reflection {}", parity(*p), if *sigma > 0 { "+1" } else { "-1" }),
+            BlockSymmetry::ReflectionXZ(sigma) => write!(f, "every J and M, reflection XZ {sigma:+}"),
             BlockSymmetry::AllM { class, c2y, m_parity } => {
                 match class.as_ref() {
                     BlockSymmetry::JParity(p) => write!(f, "J {}", parity(*p as i64))?,

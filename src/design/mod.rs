@@ -83,8 +83,10 @@ pub struct DesignSpace {
     pub max_total_fluence_jcm2: Option<f64>,
     /// Smallest allowed delay between consecutive pulse centres, ps.
     pub min_separation_ps: f64,
-    /// Static field along Z for the whole run (kV/cm), fixed or searched; None for no static field.
+    /// Static field for the whole run (kV/cm), fixed or searched; None for no static field.
     pub static_field_kv_cm: Option<Bounds>,
+    /// Angle of the static field from Z towards X (degrees), fixed or searched; None for along Z.
+    pub static_field_angle_deg: Option<Bounds>,
     /// When set, every pulse is a two-colour (ω + 2ω) pulse: its intensity is the sum of both colours.
     pub two_colour: Option<TwoColourBounds>,
     /// An optional terahertz pulse after the last laser pulse.
@@ -123,6 +125,7 @@ enum Slot {
     Ellipticity(usize),
     Cut(usize),
     Static,
+    StaticAngle,
     Ratio,
     Phase,
     ThzDelay,
@@ -166,6 +169,9 @@ impl DesignSpace {
         }
         if self.static_field_kv_cm.map(|b| !b.is_fixed()).unwrap_or(false) {
             s.push(Slot::Static);
+        }
+        if self.static_field_kv_cm.is_some() && self.static_field_angle_deg.map(|b| !b.is_fixed()).unwrap_or(false) {
+            s.push(Slot::StaticAngle);
         }
         if let Some(tc) = &self.two_colour {
             if !tc.ratio.is_fixed() {
@@ -221,6 +227,7 @@ impl DesignSpace {
                 Slot::Ellipticity(k) => format!("pulse {} ellipticity", k + 1),
                 Slot::Cut(k) => format!("pulse {} switch-off from the peak (fs)", k + 1),
                 Slot::Static => "static field (kV/cm)".to_string(),
+                Slot::StaticAngle => "static field angle from Z (deg)".to_string(),
                 Slot::Ratio => "second-harmonic ratio".to_string(),
                 Slot::Phase => "two-colour phase (rad)".to_string(),
                 Slot::ThzDelay => "terahertz delay (ps)".to_string(),
@@ -244,6 +251,7 @@ impl DesignSpace {
             *d = self.delay_bounds(k).min;
         }
         let mut static_kv = self.static_field_kv_cm.map(|b| b.min);
+        let mut static_angle = self.static_field_angle_deg.map(|b| b.min).unwrap_or(0.0);
         let mut ratio = self.two_colour.map(|t| t.ratio.min).unwrap_or(0.0);
         let mut phase = self.two_colour.map(|t| t.phase_rad.min).unwrap_or(0.0);
         let mut thz_delay = self.terahertz.map(|t| t.delay_ps.min).unwrap_or(0.0);
@@ -257,6 +265,7 @@ impl DesignSpace {
                 Slot::Ellipticity(k) => ellipticity[k] = self.pulses[k].ellipticity.at(x),
                 Slot::Cut(k) => cut[k] = self.pulses[k].cut_fs.at(x),
                 Slot::Static => static_kv = self.static_field_kv_cm.map(|b| b.at(x)),
+                Slot::StaticAngle => static_angle = self.static_field_angle_deg.map(|b| b.at(x)).unwrap_or(0.0),
                 Slot::Ratio => ratio = self.two_colour.expect("two-colour bounds").ratio.at(x),
                 Slot::Phase => phase = self.two_colour.expect("two-colour bounds").phase_rad.at(x),
                 Slot::ThzDelay => thz_delay = self.terahertz.expect("terahertz bounds").delay_ps.at(x),
@@ -282,7 +291,7 @@ impl DesignSpace {
         }
         let t_last = pulses.last().map(|p| p.center_ps).unwrap_or(0.0);
         let mut field = FieldModel { pulses, ..Default::default() };
-        field.static_field = static_kv.map(|e| crate::field::StaticField { strength_kv_cm: e, on_ps: None, off_ps: None });
+        field.static_field = static_kv.map(|e| crate::field::StaticField { strength_kv_cm: e, angle_deg: static_angle, on_ps: None, off_ps: None });
         if self.two_colour.is_some() {
             // The designed intensity is shared by the two colours: I1 = I/(1+r), I2 = r I/(1+r).
             field.two_colour = std::mem::take(&mut field.pulses)
@@ -628,10 +637,17 @@ impl Objective {
                 && crate::field::PulsePolarization { angle_deg: p.angle_deg.min, ellipticity: p.ellipticity.min }.is_along_z()
         };
         let polarized = !obj.space.pulses.iter().all(along_z);
-        if polarized && (obj.space.static_field_kv_cm.is_some() || obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
+        let tilted = obj.space.static_field_angle_deg.is_some_and(|b| !b.is_fixed() || b.min.to_radians().sin().abs() > 1e-12);
+        if (polarized || tilted) && (obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
             return Err(Error::input(
-                "pulses.polarization",
-                "pulses polarized away from Z cannot yet be combined with a static field, two-colour or terahertz pulses",
+                if polarized { "pulses.polarization" } else { "static_field_angle_deg" },
+                "pulses polarized away from Z or a tilted static field cannot yet be combined with two-colour or terahertz pulses",
+            ));
+        }
+        if (polarized || tilted) && obj.space.static_field_kv_cm.is_some() && obj.molecule().as_top().is_some() {
+            return Err(Error::input(
+                if polarized { "pulses.polarization" } else { "static_field_angle_deg" },
+                "a static field with pulses polarized away from Z, or a tilted static field, is available for linear molecules only so far",
             ));
         }
         // The longest design must replay as a valid scenario: check before any search starts.

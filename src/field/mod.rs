@@ -367,12 +367,15 @@ impl Pulse {
     }
 }
 
-/// A static (DC) electric field along the laser polarization axis Z, switched on and off suddenly.
+/// A static (DC) electric field in the XZ plane, along Z or at an angle to it, switched on and off suddenly.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct StaticField {
-    /// Field strength, kV/cm (a negative value points along −Z).
+    /// Field strength, kV/cm (a negative value points along −Z, or against the tilted direction).
     pub strength_kv_cm: f64,
+    /// Angle of the field from Z towards X, degrees (0: along Z, the laser's reference axis).
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub angle_deg: f64,
     /// Switch-on time, ps (None: on from the start).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub on_ps: Option<f64>,
@@ -385,6 +388,10 @@ impl StaticField {
     /// Check the element; errors name the field under `path`.
     pub fn validate(&self, path: &str) -> Result<()> {
         let e = require_finite(&format!("{path}.strength_kv_cm"), self.strength_kv_cm, "kV/cm")?;
+        let a = require_finite(&format!("{path}.angle_deg"), self.angle_deg, "degrees")?;
+        if a.abs() > 360.0 {
+            return Err(Error::input(format!("{path}.angle_deg"), format!("expected an angle from -360 to 360 degrees, got {a}")));
+        }
         if e.abs() > 1e4 {
             return Err(Error::input(format!("{path}.strength_kv_cm"), format!("expected at most 1e4 kV/cm (1 GV/m) for a static field, got {e}")));
         }
@@ -402,7 +409,22 @@ impl StaticField {
         Ok(())
     }
 
-    /// Field strength (kV/cm) at time t (ps).
+    /// True if the field is on at some time and points away from Z (not along ±Z).
+    pub fn is_tilted(&self) -> bool {
+        self.strength_kv_cm != 0.0 && self.angle_deg.to_radians().sin().abs() > 1e-12
+    }
+
+    /// Field strength along +Z, kV/cm, for a field that is not tilted (angle 0 or 180°).
+    pub fn along_z(&self) -> f64 {
+        self.strength_kv_cm * self.angle_deg.to_radians().cos().signum()
+    }
+
+    /// Field strength along +Z (kV/cm) at time t (ps), for a field that is not tilted.
+    pub fn along_z_at(&self, t_ps: f64) -> f64 {
+        self.strength_at(t_ps) * self.angle_deg.to_radians().cos().signum()
+    }
+
+    /// Field strength along its own direction (kV/cm) at time t (ps).
     pub fn strength_at(&self, t_ps: f64) -> f64 {
         let on = self.on_ps.map(|a| t_ps >= a).unwrap_or(true);
         let off = self.off_ps.map(|b| t_ps >= b).unwrap_or(false);
@@ -413,6 +435,10 @@ impl StaticField {
     pub fn rate_rad_per_ps(dipole_debye: f64, strength_kv_cm: f64) -> f64 {
         crate::units::dipole_rate_rad_per_ps(dipole_debye, strength_kv_cm)
     }
+}
+
+fn is_zero(x: &f64) -> bool {
+    *x == 0.0
 }
 
 /// A two-colour pulse: a fundamental at ω and its second harmonic at 2ω with relative phase φ,

@@ -25,6 +25,7 @@ pub struct ObjectiveFile {
     min_separation_ps: Option<f64>,
     max_ionized_fraction: Option<f64>,
     static_field_kv_cm: Option<BoundsFile>,
+    static_field_angle_deg: Option<BoundsFile>,
     focal_average: Option<FocalFile>,
     terahertz: Option<TerahertzSpaceFile>,
     goal: Option<GoalFile>,
@@ -205,6 +206,15 @@ pub fn objective(v: &Value) -> Result<Objective> {
         }
         space.static_field_kv_cm = Some(b);
     }
+    if let Some(b) = bounds(file.static_field_angle_deg, "static_field_angle_deg")? {
+        if space.static_field_kv_cm.is_none() {
+            return Err(Error::input("static_field_angle_deg", "an angle needs a static field: give static_field_kv_cm too"));
+        }
+        if b.min.abs().max(b.max.abs()) > 360.0 {
+            return Err(Error::input("static_field_angle_deg", "expected degrees from -360 to 360"));
+        }
+        space.static_field_angle_deg = Some(b);
+    }
     if let Some(t) = &file.terahertz {
         let delay_ps = bounds(t.delay_ps, "terahertz.delay_ps")?
             .ok_or_else(|| missing("terahertz.delay_ps", "ps after the last laser pulse centre, a number or {min, max}"))?;
@@ -299,6 +309,7 @@ impl PulseSpaceFile {
             max_total_fluence_jcm2: budget,
             min_separation_ps: min_sep,
             static_field_kv_cm: None,
+            static_field_angle_deg: None,
             two_colour,
             terahertz: None,
         };

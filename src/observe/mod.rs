@@ -619,6 +619,8 @@ pub struct Trace {
     pub body_axes: Option<BodyAxes>,
     /// ⟨cos²⟩ of each body axis with each lab axis, when the field is not symmetric about Z (empty otherwise).
     pub lab_axes: Vec<LabAxisSeries>,
+    /// ⟨cos⟩ of the dipole axis with each lab axis, when an orienting field is not along Z (empty otherwise).
+    pub lab_cos: Vec<LabAxisSeries>,
 }
 
 /// Orientation columns of a trace.
@@ -674,6 +676,12 @@ impl LabAxisSeries {
         let name = format!("cos2_{}{}", ["X", "Y", "Z"][lab as usize], body.map(|b| b.letter()).unwrap_or(""));
         LabAxisSeries { lab, body, name, values }
     }
+
+    /// The series ⟨cos⟩ of `body` with `lab`, named `cos_<lab><body>` (e.g. `cos_X`).
+    pub fn cosine(lab: crate::basis::lab::LabAxis, body: Option<crate::molecule::top::BodyAxis>, values: Vec<f64>) -> LabAxisSeries {
+        let name = format!("cos_{}{}", ["X", "Y", "Z"][lab as usize], body.map(|b| b.letter()).unwrap_or(""));
+        LabAxisSeries { lab, body, name, values }
+    }
 }
 
 /// Location of an extremum of a sampled series.
@@ -723,6 +731,7 @@ impl Trace {
             out.extend([&mut b.a, &mut b.b, &mut b.c, &mut b.three_axis]);
         }
         out.extend(self.lab_axes.iter_mut().map(|s| &mut s.values));
+        out.extend(self.lab_cos.iter_mut().map(|s| &mut s.values));
         out
     }
 
@@ -745,6 +754,7 @@ impl Trace {
             out.extend([&b.a, &b.b, &b.c, &b.three_axis]);
         }
         out.extend(self.lab_axes.iter().map(|s| &s.values));
+        out.extend(self.lab_cos.iter().map(|s| &s.values));
         out
     }
 

@@ -175,7 +175,7 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     if let Some(b) = &trace.body_axes {
         cols.push(("three_axis", &b.three_axis));
     }
-    for s in &trace.lab_axes {
+    for s in trace.lab_axes.iter().chain(&trace.lab_cos) {
         cols.push((s.name.as_str(), s.values.as_slice()));
     }
     cols.extend_from_slice(extra);
@@ -219,7 +219,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     plot.subtitle = Some(format!("{} at {} K; {}; shaded: pulse FWHM", scenario.molecule.name, scenario.temperature_k, counts.join(", ")));
     // With pulses polarized away from Z the lab axis is named too.
     let with_z = if trace.lab_axes.is_empty() { "" } else { " with Z" };
-    let axis = scenario.molecule.as_top().map(|t| format!(" ({} axis{with_z})", t.alignment_axis.letter())).unwrap_or_default();
+    let axis = scenario.molecule.as_top().map(|t| format!(" ({} axis{with_z})", t.alignment_axis.letter())).unwrap_or_else(|| with_z.to_string());
     plot.series.push(svg::Series {
         label: format!("⟨cos²θ⟩{axis}"),
         x: trace.times_ps.clone(),
@@ -268,18 +268,30 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     }
     if let Some(cos) = trace.cos() {
         plot.series.push(svg::Series {
-            label: "⟨cosθ⟩".into(),
+            label: format!("⟨cosθ⟩{with_z}"),
             x: trace.times_ps.clone(),
             y: cos.to_vec(),
             color: svg::ORIENTATION.into(),
             dashed: false,
             width: 1.6,
         });
+        // A field tilted towards X orients along X too (along Y nothing, by the reflection through XZ).
+        if let Some(x) = trace.lab_cos.iter().find(|s| s.lab == crate::basis::lab::LabAxis::X) {
+            plot.series.push(svg::Series {
+                label: "⟨cosθ⟩ with X".into(),
+                x: trace.times_ps.clone(),
+                y: x.values.clone(),
+                color: svg::ORIENTATION.into(),
+                dashed: true,
+                width: 1.4,
+            });
+        }
         plot.hlines.push(svg::HLine { y: 0.0, label: "no orientation".into(), color: svg::ORIENTATION.into() });
         plot.y_label = "alignment and orientation".into();
     }
     if let Some(sf) = &scenario.field.static_field {
-        plot.subtitle = Some(format!("{}; static field {} kV/cm", plot.subtitle.clone().unwrap_or_default(), sf.strength_kv_cm));
+        let angle = if sf.angle_deg != 0.0 { format!(" at {}° from Z", sf.angle_deg) } else { String::new() };
+        plot.subtitle = Some(format!("{}; static field {} kV/cm{angle}", plot.subtitle.clone().unwrap_or_default(), sf.strength_kv_cm));
     }
     for (i, tc) in scenario.field.two_colour.iter().enumerate() {
         let h = 0.5 * tc.fwhm_fs / 1000.0;

@@ -74,7 +74,7 @@ pub fn rates(field: &FieldModel, t_ps: f64, mol: &CoupledAxis) -> Rates {
     let da = mol.delta_alpha_a3;
     let mut r = Rates { u2: field.alignment_rate(t_ps, da), ..Default::default() };
     if let Some(sf) = &field.static_field {
-        r.u1 += dipole_rate_rad_per_ps(mol.dipole_debye, sf.strength_at(t_ps));
+        r.u1 += dipole_rate_rad_per_ps(mol.dipole_debye, sf.along_z_at(t_ps));
     }
     let kappa = coupling_rad_per_ps_per_a3_wcm2() * da;
     for tc in &field.two_colour {

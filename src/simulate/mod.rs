@@ -25,6 +25,7 @@ pub mod coupling;
 pub(crate) mod driver;
 pub mod lab_frame;
 pub mod oriented_top;
+mod tilted;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -172,6 +173,8 @@ pub struct Solver {
     polar_cache: Mutex<HashMap<(u32, usize), Arc<PolarOps>>>,
     /// The all-M solver for fields not symmetric about Z, built on first use.
     lab: std::sync::OnceLock<lab_frame::LabSolver>,
+    /// The solver for a linear molecule in a tilted static field (operators cached per block).
+    tilted: tilted::TiltedSolver,
     /// The solver for an asymmetric top in orienting fields (its own frame and blocks), built on first use.
     oriented: std::sync::OnceLock<Result<oriented_top::OrientedTopSolver>>,
     /// Blocks started and finished by this solver's runs (for a progress display).
@@ -247,6 +250,7 @@ impl Solver {
                 cache: Mutex::new(HashMap::new()),
                 polar_cache: Mutex::new(HashMap::new()),
                 lab: Default::default(),
+                tilted: tilted::TiltedSolver::new(),
                 oriented: Default::default(),
                 progress,
             });
@@ -261,6 +265,7 @@ impl Solver {
             cache: Mutex::new(HashMap::new()),
             polar_cache: Mutex::new(HashMap::new()),
             lab: Default::default(),
+            tilted: tilted::TiltedSolver::new(),
             oriented: Default::default(),
             progress: Arc::new(RunProgress::default()),
         })
@@ -322,8 +327,10 @@ impl Solver {
 
     /// The path [`Solver::run`] takes for `field` (the one place that decides it; the step estimate follows it).
     fn path(&self, field: &FieldModel) -> RunPath {
-        if !field.is_symmetric_about_z() {
-            return RunPath::AllM;
+        let tilted_static = field.static_field.is_some_and(|s| s.is_tilted());
+        let with_static = field.static_field.is_some_and(|s| s.strength_kv_cm != 0.0);
+        if !field.is_symmetric_about_z() || tilted_static {
+            return if with_static && self.molecule.kind() == RotorKind::Linear { RunPath::Tilted } else { RunPath::AllM };
         }
         match self.molecule.kind() {
             RotorKind::SymmetricTop if field.is_polar() => RunPath::PolarTop,
@@ -525,6 +532,12 @@ impl Solver {
         if times_ps.windows(2).any(|w| w[1] < w[0]) {
             return Err(Error::input("window", "sample times must be ascending"));
         }
+        if field.static_field.is_some_and(|s| s.is_tilted()) && self.top().is_some() {
+            return Err(Error::input(
+                "static_field.angle_deg",
+                "a static field at an angle to Z is available for linear molecules only so far; expected angle_deg 0 (or 180) for a top",
+            ));
+        }
         if field.is_polar() {
             return Err(Error::input(
                 "pulses",
@@ -575,7 +588,7 @@ impl Solver {
             c: run.values[2][positions[2]].clone(),
             three_axis: run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
         });
-        let trace = Trace { times_ps: times_ps.to_vec(), cos2: run.values[2][align_pos].clone(), body_axes, lab_axes, cos2_2d: run.cos2_2d, orientation: None };
+        let trace = Trace { times_ps: times_ps.to_vec(), cos2: run.values[2][align_pos].clone(), body_axes, lab_axes, cos2_2d: run.cos2_2d, ..Default::default() };
         let statics = run.final_sums.statics();
         let z_align = lab_frame::direction_part(2, align_pos);
         let parts = PairParts {
@@ -594,13 +607,45 @@ impl Solver {
         })
     }
 
+    /// Run a linear molecule in a static field together with fields in the XZ plane (a static field at
+    /// any angle, pulses of any polarization in that plane), sampling at `times_ps` (ascending). `run`
+    /// takes this path by itself when the static field is tilted or a pulse is not polarized along Z;
+    /// called directly it also runs fields all along Z (the same physics as the M-conserving path).
+    pub fn run_tilted(&self, field: &FieldModel, times_ps: &[f64]) -> Result<RunResult> {
+        if times_ps.windows(2).any(|w| w[1] < w[0]) {
+            return Err(Error::input("window", "sample times must be ascending"));
+        }
+        if self.top().is_some() {
+            return Err(Error::input("static_field.angle_deg", "a static field at an angle to Z is available for linear molecules only so far"));
+        }
+        self.check_strength(field)?;
+        let b_rate = cm_to_rad_per_ps(self.axis.b_cm);
+        let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
+        // Room for the laser pulses (every J counts here, and the cost grows about as J⁴: start tight and let
+        // the edge check grow the basis) and the static-field mixing (about sqrt(μE/B) levels). Measured on OCS
+        // at 1 K in 20 kV/cm at 45°: a 2 ps pulse at 2e12 W/cm² needs J = 41 (7 s; 0.9 P + 8 started at 51,
+        // 20 s); a sudden 300 fs pulse at 1e13 grows from 36 to 56 (34 s; 30 s from 0.9 P).
+        let reach = (0.6 * self.total_strength(field)).ceil() as i64 + 8 + (4.0 * (s_max / b_rate).sqrt()).ceil() as i64;
+        let input = tilted::TiltedInput {
+            mol: self.linear_rotor(),
+            ensemble: self.linear(),
+            dipole_debye: self.axis.dipole_debye,
+            delta_alpha_a3: self.axis.delta_alpha_a3,
+            settings: &self.settings,
+            events: self.schedule(field),
+            reach,
+            progress: &self.progress,
+        };
+        self.tilted.run(input, field, times_ps)
+    }
+
     /// Run the field model for scoring a goal on `observable`: as [`Solver::run`], except that fields that
     /// break the parity of J compute only ⟨cos²θ⟩ and the goal's observable at the samples (the other
     /// series of the trace stay empty), which is what a search needs.
     pub fn run_for_goal(&self, field: &FieldModel, times_ps: &[f64], observable: Observable) -> Result<RunResult> {
         let with_2d = observable.needs_cos2_2d();
         let parity_breaking = field.is_polar() || self.settings.both_parities;
-        if !parity_breaking || !field.is_symmetric_about_z() || times_ps.windows(2).any(|w| w[1] < w[0]) {
+        if !parity_breaking || matches!(self.path(field), RunPath::AllM | RunPath::Tilted) || times_ps.windows(2).any(|w| w[1] < w[0]) {
             return self.run(field, times_ps, with_2d);
         }
         let wanted = [true, with_2d, observable == Observable::Cos, false];
@@ -620,6 +665,7 @@ impl Solver {
         self.check_time_steps(field)?;
         match (self.path(field), self.top()) {
             (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
+            (RunPath::Tilted, _) => return self.run_tilted(field, times_ps),
             (RunPath::PolarTop, Some(t)) => return self.run_polar_top(t, field, times_ps, ALL_POLAR),
             (RunPath::OrientedTop, _) => return self.oriented()?.run(field, times_ps, with_2d),
             (RunPath::Top, Some(t)) => return t.run(field, times_ps, with_2d),
@@ -943,6 +989,9 @@ fn check_states(states: usize, limit: f64, temperature_k: f64) -> Result<()> {
 enum RunPath {
     /// Every M in one basis (a field not symmetric about Z).
     AllM,
+    /// A linear molecule in a static field with a field that is not symmetric about Z (a tilted static
+    /// field, or tilted or elliptical pulses): every J and M in two reflection blocks.
+    Tilted,
     /// A symmetric top in an orienting field: (K, M) blocks holding every J, coupled through the figure axis.
     PolarTop,
     /// A top in a field symmetric about Z that does not orient it.
@@ -987,7 +1036,7 @@ impl PolarItem {
 impl Solver {
     /// Static dipole coupling rate μE/ħ (rad/ps) at time t (ps).
     fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
-        field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
+        field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.along_z_at(t_ps))).unwrap_or(0.0)
     }
 
     /// The schedule with both parities: kicks or finite intervals for every time-dependent element
@@ -1134,7 +1183,7 @@ impl Solver {
         // correlate with the thermal field-free levels (same energy order within the block).
         // The field the molecules arrived in: on from the start (no on_ps) and not yet switched off.
         let arrived_in = field.static_field.filter(|s| s.on_ps.is_none() && s.off_ps.map(|o| o >= t_first).unwrap_or(true));
-        let s0 = arrived_in.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
+        let s0 = arrived_in.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.along_z())).unwrap_or(0.0);
         let starts_dressed = s0 != 0.0;
         let state = if starts_dressed {
             let e = ops.static_eigen(s0);

@@ -204,7 +204,7 @@ impl OrientedTopSolver {
 
     /// Dipole coupling rate μE/ħ (rad/ps) of the static field at t.
     fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
-        field.static_field.map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
+        field.static_field.map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.along_z_at(t_ps))).unwrap_or(0.0)
     }
 
     /// Finite intervals covering every field element and the span of the static field, from `t_first`
@@ -289,7 +289,7 @@ impl OrientedTopSolver {
         let s0 = field
             .static_field
             .filter(|s| s.on_ps.is_none() && s.off_ps.is_none_or(|o| o >= t_first))
-            .map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm))
+            .map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.along_z()))
             .unwrap_or(0.0);
         let nobs = TWO_D + usize::from(with_2d);
         let plan = OrientedRun { run: super::driver::Run { field, items: &events, times: times_ps, t_first }, s0 };
@@ -335,7 +335,7 @@ impl OrientedTopSolver {
             cos2_2d: with_2d.then(|| values[TWO_D].clone()),
             orientation: Some(crate::observe::Orientation { cos: values[COS].clone(), cos3: Some(values[COS3].clone()) }),
             body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis }),
-            lab_axes: vec![],
+            ..Default::default()
         };
         Ok(RunResult {
             trace,
