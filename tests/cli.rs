@@ -491,6 +491,22 @@ fn design_fails_on(tag: &str, v: &Value, field: &str) -> Run {
 }
 
 #[test]
+fn objective_bad_static_field_angle() {
+    // Checks: a searched static-field angle without a static field, one outside ±360°, and a tilted field
+    // on a top (not modelled yet) fail with exit code 2 naming static_field_angle_deg; nothing is written.
+    let mut v = good_objective();
+    v["molecule"] = json!("OCS");
+    v["static_field_angle_deg"] = json!({"min": 0, "max": 90});
+    design_fails_on("angle-without-field", &v, "static_field_angle_deg");
+    v["static_field_kv_cm"] = json!(10);
+    v["static_field_angle_deg"] = json!({"min": 0, "max": 900});
+    design_fails_on("angle-range", &v, "static_field_angle_deg");
+    v["molecule"] = json!("SO2");
+    v["static_field_angle_deg"] = json!(30);
+    design_fails_on("angle-top", &v, "static_field_angle_deg");
+}
+
+#[test]
 fn objective_base_for_bad_cases_is_itself_valid() {
     // Checks that failures below come from the one change made, not from a broken base.
     kicktrain::design::Objective::from_json_str(&good_objective().to_string(), "base").expect("base objective parses");

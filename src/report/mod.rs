@@ -290,7 +290,7 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         plot.y_label = "alignment and orientation".into();
     }
     if let Some(sf) = &scenario.field.static_field {
-        let angle = if sf.angle_deg != 0.0 { format!(" at {}° from Z", sf.angle_deg) } else { String::new() };
+        let angle = if sf.angle_deg != 0.0 { format!(" at {:.1}° from Z", sf.angle_deg) } else { String::new() };
         plot.subtitle = Some(format!("{}; static field {} kV/cm{angle}", plot.subtitle.clone().unwrap_or_default(), sf.strength_kv_cm));
     }
     for (i, tc) in scenario.field.two_colour.iter().enumerate() {

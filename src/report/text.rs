@@ -180,7 +180,7 @@ pub fn simulation_text(s: &Value) -> String {
         if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
             let on = s["static_field"]["on_ps"].as_f64().map(|t| format!(" from {t} ps")).unwrap_or_else(|| " (entered adiabatically)".into());
             let off = s["static_field"]["off_ps"].as_f64().map(|t| format!(" until {t} ps")).unwrap_or_default();
-            let angle = s["static_field"]["angle_deg"].as_f64().map(|a| format!(" at {a}° from Z")).unwrap_or_default();
+            let angle = s["static_field"]["angle_deg"].as_f64().map(|a| format!(" at {a:.1}° from Z towards X")).unwrap_or_default();
             writeln!(o, "  static field {e:.3} kV/cm{angle}{on}{off}")?;
         }
         writeln!(o, "  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]))?;
@@ -299,7 +299,7 @@ pub fn design_text(s: &Value) -> String {
             }
         }
         if let Some(e) = s["static_field"]["strength_kv_cm"].as_f64() {
-            let angle = s["static_field"]["angle_deg"].as_f64().map(|a| format!(" at {a}° from Z")).unwrap_or_default();
+            let angle = s["static_field"]["angle_deg"].as_f64().map(|a| format!(" at {a:.1}° from Z towards X")).unwrap_or_default();
             writeln!(o, "  static field {e:.3} kV/cm{angle} (on throughout)")?;
         }
         if let Some(ps) = s["pulses"].as_array()
