@@ -212,8 +212,7 @@ impl Scenario {
                     format!("a static field needs a polar molecule, but {} has no permanent dipole (give dipole_debye)", self.molecule.name),
                 ));
             }
-            let polarized = self.field.pulses.iter().any(|p| !p.polarization.is_along_z());
-            if (sf.is_tilted() || (polarized && sf.strength_kv_cm != 0.0)) && self.molecule.as_top().is_some() {
+            if self.field.static_without_axis() && self.molecule.as_top().is_some() {
                 return Err(Error::input(
                     join(path, if sf.is_tilted() { "static_field.angle_deg" } else { "pulses.polarization" }),
                     format!(
@@ -222,7 +221,7 @@ impl Scenario {
                     ),
                 ));
             }
-            if (sf.is_tilted() || (polarized && sf.strength_kv_cm != 0.0)) && (!self.field.two_colour.is_empty() || !self.field.terahertz.is_empty()) {
+            if self.field.static_without_axis() && (!self.field.two_colour.is_empty() || !self.field.terahertz.is_empty()) {
                 return Err(Error::input(
                     join(path, if sf.is_tilted() { "static_field.angle_deg" } else { "pulses.polarization" }),
                     "a static field at an angle to Z, or with pulses polarized away from Z, cannot yet be combined with two-colour or terahertz pulses",
@@ -264,6 +263,12 @@ impl Scenario {
         }
         if let Some(g) = &self.goal {
             g.check_rotor(&self.molecule, &join(path, "goal"))?;
+            if g.observable == crate::goal::Observable::Cos2TwoD && self.field.static_without_axis() {
+                return Err(Error::input(
+                    join(path, "goal.observable"),
+                    "⟨cos²θ_2D⟩ is not computed yet in a static field that is tilted or joined by pulses polarized away from Z; expected cos2 or cos",
+                ));
+            }
         }
         if let Some(g) = &self.goal
             && g.observable == crate::goal::Observable::Cos

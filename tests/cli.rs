@@ -974,6 +974,10 @@ fn scenario_bad_static_field_angle() {
     v["molecule"] = json!("SO2");
     v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": 30});
     simulate_fails_on("angle-top", &v, "static_field.angle_deg");
+    // ⟨cos²θ_2D⟩ is not computed on this path: a goal on it is refused rather than scored as zero.
+    v["molecule"] = json!("OCS");
+    v["goal"] = json!({"kind": "peak", "observable": "cos2_2d", "window_ps": [0.1, 5.0], "step_fs": 50});
+    simulate_fails_on("angle-2d-goal", &v, "goal.observable");
 }
 
 #[cfg(unix)]

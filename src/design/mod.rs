@@ -644,6 +644,12 @@ impl Objective {
                 "pulses polarized away from Z or a tilted static field cannot yet be combined with two-colour or terahertz pulses",
             ));
         }
+        if (polarized || tilted) && obj.space.static_field_kv_cm.is_some() && goal.observable.needs_cos2_2d() {
+            return Err(Error::input(
+                "goal.observable",
+                "⟨cos²θ_2D⟩ is not computed yet in a static field that is tilted or joined by pulses polarized away from Z; expected cos2 or cos",
+            ));
+        }
         if (polarized || tilted) && obj.space.static_field_kv_cm.is_some() && obj.molecule().as_top().is_some() {
             return Err(Error::input(
                 if polarized { "pulses.polarization" } else { "static_field_angle_deg" },

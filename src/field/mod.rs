@@ -615,6 +615,12 @@ impl FieldModel {
         self.pulses.iter().all(|p| p.peak_intensity_wcm2 == 0.0 || p.polarization.is_along_z())
     }
 
+    /// True if a static field is on together with fields that leave no axis of symmetry: the static field
+    /// tilted from Z, or a pulse polarized away from Z.
+    pub fn static_without_axis(&self) -> bool {
+        self.static_field.is_some_and(|s| s.strength_kv_cm != 0.0 && (s.is_tilted() || !self.is_symmetric_about_z()))
+    }
+
     /// True if some field element breaks head–tail symmetry (static field, two-colour or terahertz pulse).
     pub fn is_polar(&self) -> bool {
         self.static_field.map(|s| s.strength_kv_cm != 0.0).unwrap_or(false) || !self.two_colour.is_empty() || !self.terahertz.is_empty()

@@ -327,10 +327,11 @@ impl Solver {
 
     /// The path [`Solver::run`] takes for `field` (the one place that decides it; the step estimate follows it).
     fn path(&self, field: &FieldModel) -> RunPath {
-        let tilted_static = field.static_field.is_some_and(|s| s.is_tilted());
-        let with_static = field.static_field.is_some_and(|s| s.strength_kv_cm != 0.0);
-        if !field.is_symmetric_about_z() || tilted_static {
-            return if with_static && self.molecule.kind() == RotorKind::Linear { RunPath::Tilted } else { RunPath::AllM };
+        if field.static_without_axis() && self.molecule.kind() == RotorKind::Linear {
+            return RunPath::Tilted;
+        }
+        if !field.is_symmetric_about_z() || field.static_field.is_some_and(|s| s.is_tilted()) {
+            return RunPath::AllM;
         }
         match self.molecule.kind() {
             RotorKind::SymmetricTop if field.is_polar() => RunPath::PolarTop,
