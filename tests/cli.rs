@@ -960,6 +960,35 @@ fn scenario_bad_polarization_and_three_axis_goal_on_a_linear_molecule() {
 }
 
 #[test]
+fn a_tilted_static_field_writes_the_orientation_with_every_lab_axis() {
+    // Checks: with the static field at 45° the trace carries cos_X, cos_Y, cos_Z (and cos2_X, cos2_Y), the
+    // summary the strongest orientation with each axis, and the screen names the angle. Exact facts: ⟨cosθ_Y⟩
+    // = 0 (reflection through XZ) and, before the pulse, ⟨cosθ_X⟩ = ⟨cosθ_Z⟩ (the dressed ensemble points
+    // along the field at 45°) — common practice, symmetry.
+    let v = json!({
+        "molecule": "OCS", "temperature_k": 0.5,
+        "static_field": {"strength_kv_cm": 20, "angle_deg": 45},
+        "pulses": [{"center_ps": 0.0, "fwhm_fs": 500, "peak_intensity_wcm2": 1e12}],
+        "window": {"start_ps": -3.0, "stop_ps": 10.0, "step_fs": 500}
+    });
+    let (r, sb) = simulate_value("tilted", &v);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(r.stdout.contains("at 45.0° from Z towards X") && r.stdout.contains("strongest ⟨cosθ⟩ X"), "{}", r.stdout);
+    let trace = std::fs::read_to_string(sb.out().join("trace.csv")).unwrap();
+    let header: Vec<&str> = trace.lines().next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap_or_else(|| panic!("no {name} in {header:?}"));
+    let first: Vec<f64> = trace.lines().nth(1).unwrap().split(',').map(|x| x.parse().unwrap()).collect();
+    assert!((first[col("cos_X")] - first[col("cos_Z")]).abs() < 1e-9 && first[col("cos_Z")] > 0.05, "{first:?}");
+    for line in trace.lines().skip(1) {
+        let row: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
+        assert_eq!(row[col("cos_Y")], 0.0);
+        assert!(row[col("cos2_X")] > 0.0 && row[col("cos2_Y")] > 0.0, "{row:?}");
+    }
+    let summary: Value = serde_json::from_str(&std::fs::read_to_string(sb.out().join("summary.json")).unwrap()).unwrap();
+    assert!(summary["lab_orientation"]["strongest_cos_X"]["value"].is_number(), "{}", summary["lab_orientation"]);
+}
+
+#[test]
 fn scenario_bad_static_field_angle() {
     // Checks: an angle that is not a number or lies outside ±360°, and a top in a tilted static field (not
     // modelled yet), fail with exit code 2 and a one-line error naming static_field.angle_deg; nothing is

@@ -112,6 +112,16 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
             Some(b) => json!({"peak_cos2_a": extremum(tr.max_after(&b.a, after)), "peak_cos2_b": extremum(tr.max_after(&b.b, after)),
                 "peak_cos2_c": extremum(tr.max_after(&b.c, after))}),
         },
+        // The strongest orientation with each lab axis after the last pulse, either way along the axis.
+        "lab_orientation": if tr.lab_cos.is_empty() { Value::Null } else {
+            Value::Object(tr.lab_cos.iter().map(|s| {
+                let e = match (tr.max_after(&s.values, after), tr.min_after(&s.values, after)) {
+                    (Some(h), Some(l)) => Some(if h.value.abs() >= l.value.abs() { h } else { l }),
+                    _ => None,
+                };
+                (format!("strongest_{}", s.name), extremum(e))
+            }).collect())
+        },
         "lab_axes": if tr.lab_axes.is_empty() { Value::Null } else {
             Value::Object(tr.lab_axes.iter().map(|s| (format!("peak_{}", s.name), extremum(tr.max_after(&s.values, after)))).collect())
         },

@@ -184,10 +184,18 @@ pub fn simulation_text(s: &Value) -> String {
             writeln!(o, "  static field {e:.3} kV/cm{angle}{on}{off}")?;
         }
         writeln!(o, "  peak ⟨cos²θ⟩ after the last pulse    {}", fmt_ext(&s["peak_cos2"]))?;
-        writeln!(o, "  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]))?;
+        // A run that does not compute ⟨cos²θ_2D⟩ (a tilted static field) says nothing about it.
+        if !s["peak_cos2_2d"].is_null() || s["peak_cos2"].is_null() {
+            writeln!(o, "  peak ⟨cos²θ_2D⟩ after the last pulse {}", fmt_ext(&s["peak_cos2_2d"]))?;
+        }
         if let Some(obj) = s["lab_axes"].as_object() {
             for (name, v) in obj {
                 writeln!(o, "  {:<37}{}", format!("{} after the last pulse", name.replace("peak_cos2_", "peak ⟨cos²⟩ ")), fmt_ext(v))?;
+            }
+        }
+        if let Some(obj) = s["lab_orientation"].as_object() {
+            for (name, v) in obj.iter().filter(|(n, _)| !n.ends_with("_Y")) {
+                writeln!(o, "  {:<37}{}", format!("{} after last pulse", name.replace("strongest_cos_", "strongest ⟨cosθ⟩ ")), fmt_ext(v))?;
             }
         }
         writeln!(o, "  deepest anti-alignment ⟨cos²θ⟩      {}", fmt_ext(&s["min_cos2"]))?;
