@@ -159,7 +159,7 @@ pub(crate) struct TiltedOps {
     fastest: f64,
     /// States in the top two J values.
     edge_states: usize,
-    /// The last eigendecomposition of H0 − s S: (rate bits, angle bits) → (ε ascending, vectors, transpose).
+    /// Eigendecompositions of H0 − s S by (rate bits, angle bits), a few kept.
     statics: Mutex<HashMap<(u64, u64), Arc<StaticEigen>>>,
 }
 
@@ -518,10 +518,12 @@ impl TiltedSolver {
                 chunks.push((sigma, part.to_vec()));
             }
         }
-        if j_thermal + input.reach > MAX_TILTED_J {
+        // Never beyond the distortion turnover of the energy ladder, nor the largest basis this path allows.
+        let cap = MAX_TILTED_J.min(input.mol.max_physical_j() as i64);
+        if j_thermal + input.reach > cap {
             return Err(Error::input(
                 "static_field.strength_kv_cm",
-                format!("the fields and temperature would need the tilted-field basis beyond J = {MAX_TILTED_J}; expected weaker fields or a lower temperature"),
+                format!("the fields and temperature would need the tilted-field basis beyond J = {cap}; expected weaker fields or a lower temperature"),
             ));
         }
         let top = j_thermal + input.reach;
@@ -539,12 +541,12 @@ impl TiltedSolver {
                 let first = cols.last().map(|c| c.1).unwrap_or(0) + input.reach;
                 let r = grow_basis(
                     first as usize,
-                    MAX_TILTED_J as usize,
+                    cap as usize,
                     |j_max| {
                         let ops = self.ops(input.mol, *sigma, j_max as i64);
                         Ok(try_chunk(&ops, input.mol, cols, &run, &items, times, t_first, s0, &breaks))
                     },
-                    || Error::Numerical(format!("tilted static field: the basis would need J > {MAX_TILTED_J}; lower the field strengths or the temperature")),
+                    || Error::Numerical(format!("tilted static field: the basis would need J > {cap}; lower the field strengths or the temperature")),
                 );
                 input.progress.finish_one();
                 r
