@@ -1005,6 +1005,10 @@ fn scenario_bad_static_field_angle() {
     simulate_fails_on("angle-top", &v, "static_field.angle_deg");
     // ⟨cos²θ_2D⟩ is not computed on this path: a goal on it is refused rather than scored as zero.
     v["molecule"] = json!("OCS");
+    // A pulse too strong for the largest basis of this path (P ≈ 78 at J ≤ 80) is refused before any work.
+    let mut strong = v.clone();
+    strong["pulses"] = json!([{"center_ps": 0.0, "fwhm_fs": 100, "peak_intensity_wcm2": 9e13}]);
+    simulate_fails_on("angle-strong-pulse", &strong, "pulses");
     v["goal"] = json!({"kind": "peak", "observable": "cos2_2d", "window_ps": [0.1, 5.0], "step_fs": 50});
     simulate_fails_on("angle-2d-goal", &v, "goal.observable");
 }

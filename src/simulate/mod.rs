@@ -620,13 +620,27 @@ impl Solver {
             return Err(Error::input("static_field.angle_deg", "a static field at an angle to Z is available for linear molecules only so far"));
         }
         self.check_strength(field)?;
+        // A kick of strength P spreads the states over about P values of J: refuse what the largest basis of
+        // this path cannot hold before any work (the edge check would find it only after growing there).
+        let cap = tilted::MAX_TILTED_J.min(self.linear_rotor().max_physical_j() as i64) as f64;
+        let strength = self.total_strength(field);
+        if self.thermal_j_max() as f64 + strength > cap {
+            return Err(Error::input(
+                "pulses",
+                format!(
+                    "total kick strength P = {strength:.1} would drive the rotor beyond J = {cap}, the largest basis of the tilted-field path (every J and M); expected weaker pulses (ΣP below about {:.0})",
+                    cap - self.thermal_j_max() as f64
+                ),
+            ));
+        }
         let b_rate = cm_to_rad_per_ps(self.axis.b_cm);
         let s_max = field.static_field.map(|s| crate::units::dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
         // Room for the laser pulses (every J counts here, and the cost grows about as J⁴: start tight and let
         // the edge check grow the basis) and the static-field mixing (about sqrt(μE/B) levels). Measured on OCS
         // at 1 K in 20 kV/cm at 45°: a 2 ps pulse at 2e12 W/cm² needs J = 41 (7 s; 0.9 P + 8 started at 51,
         // 20 s); a sudden 300 fs pulse at 1e13 grows from 36 to 56 (34 s; 30 s from 0.9 P).
-        let reach = (0.6 * self.total_strength(field)).ceil() as i64 + 8 + (4.0 * (s_max / b_rate).sqrt()).ceil() as i64;
+        let (laser_reach, static_reach) = ((0.6 * self.total_strength(field)).ceil() as i64 + 8, (4.0 * (s_max / b_rate).sqrt()).ceil() as i64);
+        let reach = laser_reach + static_reach;
         let input = tilted::TiltedInput {
             mol: self.linear_rotor(),
             ensemble: self.linear(),
@@ -635,6 +649,7 @@ impl Solver {
             settings: &self.settings,
             events: self.schedule(field),
             reach,
+            reach_key: if static_reach > laser_reach { "static_field.strength_kv_cm" } else { "pulses" },
             progress: &self.progress,
         };
         self.tilted.run(input, field, times_ps)

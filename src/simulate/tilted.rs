@@ -477,6 +477,8 @@ pub(crate) struct TiltedInput<'a> {
     pub events: Vec<Event>,
     /// J values of room above the thermal top for the pulses and the static field.
     pub reach: i64,
+    /// The input that drives `reach` most (named when the basis would be too large).
+    pub reach_key: &'static str,
     pub progress: &'a super::RunProgress,
 }
 
@@ -522,7 +524,7 @@ impl TiltedSolver {
         let cap = MAX_TILTED_J.min(input.mol.max_physical_j() as i64);
         if j_thermal + input.reach > cap {
             return Err(Error::input(
-                "static_field.strength_kv_cm",
+                input.reach_key,
                 format!("the fields and temperature would need the tilted-field basis beyond J = {cap}; expected weaker fields or a lower temperature"),
             ));
         }
