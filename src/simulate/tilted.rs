@@ -153,8 +153,6 @@ pub(crate) struct TiltedOps {
     parts: Vec<Csr>,
     /// The observables (see `COS2_X` …) as dense matrices.
     observables: Vec<DMatrix<f64>>,
-    /// cosθ_Z and cosθ_X, dense (for the static Hamiltonian).
-    dipole: [DMatrix<f64>; 2],
     /// Largest angular frequency of a transition the couplings drive, rad/ps.
     fastest: f64,
     /// States in the top two J values.
@@ -218,9 +216,8 @@ impl TiltedOps {
             }
         }
         let observables = vec![dense(&pieces[XX], n), dense(&pieces[ZZ], n), dense(&pieces[DIP_X], n), dense(&pieces[DIP_Z], n), dense(&truncate(&zzz, n), n)];
-        let dipole = [dense(&pieces[DIP_Z], n), dense(&pieces[DIP_X], n)];
         let edge_states = states.iter().filter(|s| s.0 >= j_max - 1).count();
-        TiltedOps { sigma, j_max, states, omega, parts, observables, dipole, fastest, edge_states, statics: Mutex::new(HashMap::new()) }
+        TiltedOps { sigma, j_max, states, omega, parts, observables, fastest, edge_states, statics: Mutex::new(HashMap::new()) }
     }
 
     fn size(&self) -> usize {
@@ -240,7 +237,7 @@ impl TiltedOps {
             return e.clone();
         }
         let (sn, cs) = angle_rad.sin_cos();
-        let mut h = (&self.dipole[0] * cs + &self.dipole[1] * sn) * -rate;
+        let mut h = (&self.observables[COS_Z] * cs + &self.observables[COS_X] * sn) * -rate;
         for i in 0..self.size() {
             h[(i, i)] += self.omega[i];
         }
