@@ -24,8 +24,8 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Molecules { json } => commands::molecules(json).map(|()| Finish::Done),
         Command::Simulate { scenario, out, json } => commands::run_simulate(&scenario, out.as_deref(), json).map(|()| Finish::Done),
-        Command::Pendular { molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json } => {
-            commands::run_pendular(&molecule, intensity_wcm2, static_kv_cm, temperature_k, j_max, json).map(|()| Finish::Done)
+        Command::Pendular { molecule, intensity_wcm2, static_kv_cm, static_angle_deg, temperature_k, j_max, json } => {
+            commands::run_pendular(&molecule, intensity_wcm2, static_kv_cm, static_angle_deg, temperature_k, j_max, json).map(|()| Finish::Done)
         }
         Command::Focus { energy_mj, fwhm_fs, shape, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2, molecule, json } => commands::run_focus(
             kicktrain::optics::Focus { energy_mj, waist_um, beam_radius_mm, wavelength_nm, focal_length_mm, m2 },

@@ -1049,6 +1049,28 @@ fn pendular_prints_no_negative_zero() {
 }
 
 #[test]
+fn pendular_with_the_static_field_at_an_angle() {
+    // The table and the JSON carry ⟨cosθ_X⟩ and name the angle; a bad angle or a top at an angle is one
+    // line naming `static_angle_deg`, exit 2 (the values themselves are checked in tests/tilted_pendular.rs).
+    let r = run(&["pendular", "OCS", "--intensity-wcm2", "1e11", "--static-kv-cm", "20", "--static-angle-deg", "45"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    assert!(r.stdout.contains("at 45.0° from Z towards X") && r.stdout.contains("⟨cosθ_X⟩") && r.stdout.contains("|M_f|"), "{}", r.stdout);
+    assert!(r.stdout.contains("Laser safety"), "{}", r.stdout);
+    let r = run(&["pendular", "OCS", "--intensity-wcm2", "1e11", "--static-kv-cm", "20", "--static-angle-deg", "45", "--json"]);
+    let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
+    let x = v["result"]["thermal_cos_x"].as_f64().expect("thermal_cos_x");
+    assert!(x > 0.0 && x < 1.0 && v["result"]["static_angle_deg"].as_f64() == Some(45.0), "{}", r.stdout);
+    let nowhere = std::env::temp_dir().join("kicktrain-pendular-angle-never-written");
+    for args in [
+        vec!["pendular", "OCS", "--static-kv-cm", "20", "--static-angle-deg", "400"],
+        vec!["pendular", "OCS", "--static-kv-cm", "20", "--static-angle-deg", "nan"],
+        vec!["pendular", "C6H5CN", "--static-kv-cm", "5", "--static-angle-deg", "30"],
+    ] {
+        assert_field_error(&run(&args), &nowhere, "static_angle_deg");
+    }
+}
+
+#[test]
 fn focus_json_and_the_ionization_warning() {
     // Checks: `focus --json` prints JSON with unit-suffixed keys and the laser-safety caution; 2 mJ in 40 fs
     // focused to 5 µm (I0 = 2P/(πw0²) ≈ 1.2e17 W/cm², Siegman "Lasers" ch. 17) warns that every library

@@ -94,7 +94,8 @@ fn thermal_orientation_in_a_static_field_follows_langevin_debye() {
     let mol = lib("OCS");
     let t = 50.0;
     let kv = 100.0;
-    let field = FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, angle_deg: 0.0, on_ps: None, off_ps: None }), ..Default::default() };
+    let field =
+        FieldModel { pulses: vec![], static_field: Some(StaticField { strength_kv_cm: kv, angle_deg: 0.0, on_ps: None, off_ps: None }), ..Default::default() };
     let r = Solver::new(&mol, t, SolverSettings::default()).unwrap().run(&field, &[0.0, 5.0], false).unwrap();
     // 1 D·kV/cm = 0.016 792 0 cm⁻¹, written out independently of the library's conversion: 1 D = 1e-21/c C·m =
     // 3.335 640 95e-30 C·m, so μE/(hc) = 3.335 640 95e-25 J / (6.626 070 15e-34 J s × 2.997 924 58e10 cm/s)
@@ -247,7 +248,8 @@ fn static_field_switches_inside_a_pulse_and_at_the_first_event() {
     // same result whether the samples fall inside or outside the pulse (no step runs backwards).
     let mol = lib("OCS");
     let on = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, angle_deg: 0.0, on_ps: None, off_ps: None }), ..Default::default() };
-    let off_at_first = FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, angle_deg: 0.0, on_ps: None, off_ps: Some(0.0) }), ..Default::default() };
+    let off_at_first =
+        FieldModel { static_field: Some(StaticField { strength_kv_cm: 30.0, angle_deg: 0.0, on_ps: None, off_ps: Some(0.0) }), ..Default::default() };
     let a = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&on, &[0.0], false).unwrap().trace.cos().unwrap()[0];
     let b = Solver::new(&mol, 1.0, SolverSettings::default()).unwrap().run(&off_at_first, &[-1.0], false).unwrap().trace.cos().unwrap()[0];
     assert!(a > 0.05 && (a - b).abs() < 1e-10, "always on {a}, off at first event {b}");

@@ -65,19 +65,26 @@ a second signal quits at once (exit 130) and writes nothing.")]
     /// Field-dressed (pendular) states in a constant laser intensity and static field: the adiabatic limit.
     #[command(allow_negative_numbers = true)]
     #[command(after_help = "Examples:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n  \
-kicktrain pendular SO2 --intensity-wcm2 1e11 --static-kv-cm 20 --temperature-k 0.5\n\n\
+kicktrain pendular SO2 --intensity-wcm2 1e11 --static-kv-cm 20 --temperature-k 0.5\n  \
+kicktrain pendular OCS --intensity-wcm2 1e11 --static-kv-cm 20 --static-angle-deg 45 --temperature-k 1\n\n\
 Energies exclude the isotropic polarizability shift, common to all states. For a top the table lists the\n\
 thermally populated levels by name (\"J Ka Kc\" or \"J K\"), with ⟨cos²θ⟩ of the alignment axis and ⟨cosθ⟩\n\
-of the dipole axis; each connects to the field-free level of the same rank in its exact symmetry class.")]
+of the dipole axis; each connects to the field-free level of the same rank in its exact symmetry class.\n\
+With the static field at an angle (linear molecules), |M_f| is about the static field's axis and σ the\n\
+state's class under the reflection through XZ; levels are followed through the static field first, then\n\
+the laser.")]
     Pendular {
         /// Library molecule name: a linear molecule or a top (`kicktrain molecules` lists them).
         molecule: String,
         /// Cycle-averaged laser intensity, W/cm².
         #[arg(long, default_value_t = 0.0)]
         intensity_wcm2: f64,
-        /// Static field along the laser polarization, kV/cm.
+        /// Static field strength, kV/cm.
         #[arg(long, default_value_t = 0.0)]
         static_kv_cm: f64,
+        /// Angle of the static field from the laser polarization (Z) towards X, degrees (0: along Z).
+        #[arg(long, default_value_t = 0.0)]
+        static_angle_deg: f64,
         /// Temperature for the thermal adiabatic averages, K.
         #[arg(long, default_value_t = 1.0)]
         temperature_k: f64,

@@ -264,8 +264,8 @@ pub fn run_limits(args: &super::args::LimitsArgs) -> Result<Finish, Error> {
     write_and_finish(staged, args.out.as_deref(), outputs, partial.as_deref().map(limits_partial_note))
 }
 
-/// `kicktrain pendular`: dressed states of a linear molecule in constant fields.
-pub fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32, json: bool) -> Result<(), Error> {
+/// `kicktrain pendular`: dressed states of a molecule in constant fields.
+pub fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, angle_deg: f64, temperature_k: f64, j_max: u32, json: bool) -> Result<(), Error> {
     let mol = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
     if !temperature_k.is_finite() || !(0.0..=5000.0).contains(&temperature_k) {
         return Err(Error::input("temperature_k", format!("expected 0 to 5000 K, got {temperature_k}")));
@@ -273,7 +273,7 @@ pub fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, temperature_k
     if j_max > 40 {
         return Err(Error::input("j_max", format!("expected at most 40 for a listing, got {j_max}")));
     }
-    let r = kicktrain::pendular::pendular(&mol, intensity, static_kv_cm, temperature_k, j_max)?;
+    let r = kicktrain::pendular::pendular_at_angle(&mol, intensity, static_kv_cm, angle_deg, temperature_k, j_max)?;
     if json {
         println!("{}", serde_json::to_string_pretty(&report::text::pendular_json(&mol.name, intensity, static_kv_cm, temperature_k, &r)).expect("json"));
     } else {

@@ -356,9 +356,10 @@ pub fn pendular_json(molecule: &str, intensity_wcm2: f64, static_kv_cm: f64, tem
 /// The table of dressed states up to field-free J = `j_max` that `kicktrain pendular` prints.
 pub fn pendular_text(molecule: &str, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32, r: &PendularResult) -> String {
     lines(|o| {
+        let angle = r.static_angle_deg.map(|a| format!(" at {a:.1}° from Z towards X")).unwrap_or_default();
         writeln!(
             o,
-            "{} in {:.3e} W/cm² and {} kV/cm: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}",
+            "{} in {:.3e} W/cm² and {} kV/cm{angle}: laser strength ΔαE0²/4B = {:.3}, dipole strength μE/B = {:.3}",
             molecule,
             intensity_wcm2,
             static_kv_cm,
@@ -367,27 +368,71 @@ pub fn pendular_text(molecule: &str, intensity_wcm2: f64, static_kv_cm: f64, tem
         )?;
         // A top's levels are named "J Ka Kc" or "J K"; a linear molecule's by J.
         let top = r.states.iter().any(|s| s.level.is_some());
+        let tilted = r.thermal_cos_x.is_some();
         let level_width = if top { 10 } else { 4 };
         let first = if top { "level" } else { "J" };
-        writeln!(o, "{first:>level_width$} {:>4} {:>14} {:>12} {:>9} {:>9}", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩")?;
-        for s in r.states.iter().filter(|s| s.j <= j_max) {
-            let name = s.level.clone().unwrap_or_else(|| s.j.to_string());
+        if tilted {
             writeln!(
                 o,
-                "{name:>level_width$} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}",
-                s.m,
-                no_negative_zero(s.energy_cm, 6),
-                no_negative_zero(s.energy_b, 5),
-                s.cos2,
-                no_negative_zero(s.cos, 5)
+                "{first:>level_width$} {:>5} {:>3} {:>14} {:>12} {:>9} {:>9} {:>9}",
+                "|M_f|", "σ", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩", "⟨cosθ_X⟩"
             )?;
+        } else {
+            writeln!(o, "{first:>level_width$} {:>4} {:>14} {:>12} {:>9} {:>9}", "|M|", "energy (cm⁻¹)", "energy (B)", "⟨cos²θ⟩", "⟨cosθ⟩")?;
         }
-        writeln!(o, "thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}", r.thermal_cos2, no_negative_zero(r.thermal_cos, 5))?;
+        for s in r.states.iter().filter(|s| s.j <= j_max) {
+            let name = s.level.clone().unwrap_or_else(|| s.j.to_string());
+            if tilted {
+                writeln!(
+                    o,
+                    "{name:>level_width$} {:>5} {:>3} {:>14.6} {:>12.5} {:>9.5} {:>9.5} {:>9.5}",
+                    s.m,
+                    if s.reflection == Some(-1) { "−" } else { "+" },
+                    no_negative_zero(s.energy_cm, 6),
+                    no_negative_zero(s.energy_b, 5),
+                    s.cos2,
+                    no_negative_zero(s.cos, 5),
+                    no_negative_zero(s.cos_x.unwrap_or(0.0), 5)
+                )?;
+            } else {
+                writeln!(
+                    o,
+                    "{name:>level_width$} {:>4} {:>14.6} {:>12.5} {:>9.5} {:>9.5}",
+                    s.m,
+                    no_negative_zero(s.energy_cm, 6),
+                    no_negative_zero(s.energy_b, 5),
+                    s.cos2,
+                    no_negative_zero(s.cos, 5)
+                )?;
+            }
+        }
+        match r.thermal_cos_x {
+            Some(x) => writeln!(
+                o,
+                "thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}, ⟨cosθ_X⟩ = {:.5}",
+                r.thermal_cos2,
+                no_negative_zero(r.thermal_cos, 5),
+                no_negative_zero(x, 5)
+            )?,
+            None => writeln!(
+                o,
+                "thermal adiabatic averages at {temperature_k} K: ⟨cos²θ⟩ = {:.5}, ⟨cosθ⟩ = {:.5}",
+                r.thermal_cos2,
+                no_negative_zero(r.thermal_cos, 5)
+            )?,
+        }
         if top {
             writeln!(
                 o,
                 "(level: the field-free level each state connects to adiabatically, ranked within its exact symmetry class; \
                  populated levels only; ⟨cos²θ⟩ of the alignment axis, ⟨cosθ⟩ of the dipole axis; energies exclude the isotropic polarizability shift)"
+            )?;
+        } else if tilted {
+            writeln!(
+                o,
+                "(J, |M_f|: the field-free level each state connects to when the static field comes on first and the laser after it; \
+                 σ: its class under the reflection through XZ; θ measured from Z, the laser polarization, θ_X from X; \
+                 energies exclude the isotropic −¼α⊥E0² shift)"
             )?;
         } else {
             writeln!(o, "(J: the field-free level each state connects to adiabatically; energies exclude the isotropic −¼α⊥E0² shift)")?;

@@ -25,7 +25,7 @@ pub mod coupling;
 pub(crate) mod driver;
 pub mod lab_frame;
 pub mod oriented_top;
-mod tilted;
+pub(crate) mod tilted;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -589,7 +589,8 @@ impl Solver {
             c: run.values[2][positions[2]].clone(),
             three_axis: run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
         });
-        let trace = Trace { times_ps: times_ps.to_vec(), cos2: run.values[2][align_pos].clone(), body_axes, lab_axes, cos2_2d: run.cos2_2d, ..Default::default() };
+        let trace =
+            Trace { times_ps: times_ps.to_vec(), cos2: run.values[2][align_pos].clone(), body_axes, lab_axes, cos2_2d: run.cos2_2d, ..Default::default() };
         let statics = run.final_sums.statics();
         let z_align = lab_frame::direction_part(2, align_pos);
         let parts = PairParts {

@@ -79,7 +79,7 @@ fn combo(m: i64, sigma: i64) -> Vec<(i64, f64)> {
 }
 
 /// A real sparse matrix as rows of (column, value).
-type Rows = Vec<Vec<(usize, f64)>>;
+pub(crate) type Rows = Vec<Vec<(usize, f64)>>;
 
 /// ⟨J' M'|cosθ_F|J M⟩ between σ combinations (F = X or Z: real, σ-even).
 fn direction_rows(states: &[(i64, i64)], sigma: i64, lab: LabAxis) -> Rows {
@@ -168,9 +168,22 @@ struct StaticEigen {
     st: DMatrix<f64>,
 }
 
-impl TiltedOps {
-    fn new(mol: &crate::molecule::LinearRotor, sigma: i64, j_max: i64) -> TiltedOps {
-        // Products of direction cosines are exact when the intermediate states reach two J values higher.
+/// Sparse operators of one σ block up to a top J, exact in the truncated basis (products of direction
+/// cosines are taken through intermediate states two J values higher).
+pub(crate) struct SigmaOperators {
+    /// (J, M ≥ 0) of each state, J-major.
+    pub states: Vec<(i64, i64)>,
+    pub zz: Rows,
+    pub xx: Rows,
+    /// cosθ_X cosθ_Z + cosθ_Z cosθ_X.
+    pub xz: Rows,
+    pub z: Rows,
+    pub x: Rows,
+    pub zzz: Rows,
+}
+
+impl SigmaOperators {
+    pub fn new(sigma: i64, j_max: i64) -> SigmaOperators {
         let big = sigma_states(sigma, j_max + 2);
         let states = sigma_states(sigma, j_max);
         let n = states.len();
@@ -192,8 +205,30 @@ impl TiltedOps {
             })
             .collect();
         let zzz = product(&zz, &z);
+        SigmaOperators {
+            zz: truncate(&zz, n),
+            xx: truncate(&xx, n),
+            xz: truncate(&xz, n),
+            z: truncate(&z, n),
+            x: truncate(&x, n),
+            zzz: truncate(&zzz, n),
+            states,
+        }
+    }
+}
+
+/// Index of state (J, M ≥ 0) in a σ block: J-major, J(J+1)/2 states below J for σ = +1 (M = 0 … J′),
+/// J(J−1)/2 for σ = −1 (M = 1 … J′).
+pub(crate) fn sigma_index(sigma: i64, j: i64, m: i64) -> usize {
+    (if sigma > 0 { j * (j + 1) / 2 + m } else { j * (j - 1) / 2 + m - 1 }) as usize
+}
+
+impl TiltedOps {
+    fn new(mol: &crate::molecule::LinearRotor, sigma: i64, j_max: i64) -> TiltedOps {
+        let SigmaOperators { states, zz, xx, xz, z, x, zzz } = SigmaOperators::new(sigma, j_max);
+        let n = states.len();
         let id: Rows = (0..n).map(|i| vec![(i, 1.0)]).collect();
-        let pieces: Vec<Rows> = vec![truncate(&zz, n), truncate(&xx, n), truncate(&xz, n), truncate(&z, n), truncate(&x, n), id];
+        let pieces: Vec<Rows> = vec![zz, xx, xz, z, x, id];
         // One pattern for all parts, so that a step's combination is one pass over the values.
         let positions: Vec<(usize, usize)> = pieces.iter().flat_map(|p| p.iter().enumerate().flat_map(|(r, row)| row.iter().map(move |e| (r, e.0)))).collect();
         let parts: Vec<Csr> = pieces
@@ -215,19 +250,13 @@ impl TiltedOps {
                 }
             }
         }
-        let observables = vec![dense(&pieces[XX], n), dense(&pieces[ZZ], n), dense(&pieces[DIP_X], n), dense(&pieces[DIP_Z], n), dense(&truncate(&zzz, n), n)];
+        let observables = vec![dense(&pieces[XX], n), dense(&pieces[ZZ], n), dense(&pieces[DIP_X], n), dense(&pieces[DIP_Z], n), dense(&zzz, n)];
         let edge_states = states.iter().filter(|s| s.0 >= j_max - 1).count();
         TiltedOps { sigma, j_max, states, omega, parts, observables, fastest, edge_states, statics: Mutex::new(HashMap::new()) }
     }
 
     fn size(&self) -> usize {
         self.states.len()
-    }
-
-    /// Index of state (J, M ≥ 0): J-major, J(J+1)/2 states below J for σ = +1 (M = 0 … J′), J(J−1)/2 for
-    /// σ = −1 (M = 1 … J′).
-    fn index(&self, j: i64, m: i64) -> usize {
-        (if self.sigma > 0 { j * (j + 1) / 2 + m } else { j * (j - 1) / 2 + m - 1 }) as usize
     }
 
     /// Eigendecomposition of H0 − rate (cosα cosθ_Z + sinα cosθ_X), cached.
@@ -426,7 +455,7 @@ impl super::driver::Kernel for TiltedKernel<'_> {
 }
 
 /// One initial state: (M_f ≥ 0 about the static field, J, population of one sublevel).
-type Column = (i64, i64, f64);
+pub(crate) type Column = (i64, i64, f64);
 
 /// What one chunk returns: per observable the samples (weighted by population), the time averages after
 /// the last field change, and its basis report.
@@ -503,16 +532,14 @@ impl TiltedSolver {
         let s0 = arrived_in.map(|s| dipole_rate_rad_per_ps(input.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
         // Initial states: every thermal sublevel (J, M_f) as one column per σ (M_f = 0 in σ = +1 only).
         let levels: Vec<(i64, f64)> = {
-            let mut l: Vec<(i64, f64)> =
-                input.ensemble.blocks.iter().filter(|b| b.m == 0).flat_map(|b| b.levels.iter().map(|&(j, p)| (j as i64, p))).collect();
+            let mut l: Vec<(i64, f64)> = input.ensemble.blocks.iter().filter(|b| b.m == 0).flat_map(|b| b.levels.iter().map(|&(j, p)| (j as i64, p))).collect();
             l.sort_by_key(|x| x.0);
             l
         };
         let j_thermal = levels.last().map(|l| l.0).unwrap_or(0);
         let mut chunks: Vec<(i64, Vec<Column>)> = vec![];
         for sigma in [1i64, -1] {
-            let cols: Vec<Column> =
-                levels.iter().flat_map(|&(j, p)| (0..=j).filter(move |&m| m > 0 || sigma > 0).map(move |m| (m, j, p))).collect();
+            let cols: Vec<Column> = levels.iter().flat_map(|&(j, p)| (0..=j).filter(move |&m| m > 0 || sigma > 0).map(move |m| (m, j, p))).collect();
             for part in cols.chunks(CHUNK) {
                 chunks.push((sigma, part.to_vec()));
             }
@@ -614,10 +641,9 @@ impl TiltedSolver {
 
 /// The initial states of one chunk as real columns of the σ block: thermal sublevels, or, in a static
 /// field on from the start, the dressed states that correlate with them, rotated onto the field axis.
-fn initial_columns(ops: &TiltedOps, mol: &crate::molecule::LinearRotor, cols: &[Column], s0: f64, angle_rad: f64) -> DMatrix<f64> {
-    let n = ops.size();
+pub(crate) fn initial_columns(sigma: i64, j_max: i64, mol: &crate::molecule::LinearRotor, cols: &[Column], s0: f64, angle_rad: f64) -> DMatrix<f64> {
+    let n = sigma_index(sigma, j_max, j_max) + 1;
     let mut out = DMatrix::zeros(n, cols.len());
-    let j_max = ops.j_max;
     // d^J_{M M_f}(α) for every J, per (M, M_f) used.
     let mut d_cache: HashMap<(i64, i64), Vec<f64>> = HashMap::new();
     let mut d = |m: i64, mf: i64, j: i64| -> f64 { d_cache.entry((m, mf)).or_insert_with(|| small_d_series(m, mf, angle_rad, j_max))[j as usize] };
@@ -640,15 +666,15 @@ fn initial_columns(ops: &TiltedOps, mol: &crate::molecule::LinearRotor, cols: &[
             }
             // The σ combination of ±M_f along the field axis, rotated by α about Y and projected on the
             // σ combinations along Z.
-            let comps = combo(mf, ops.sigma);
-            for m in (0..=jp).filter(|&m| m > 0 || ops.sigma > 0) {
+            let comps = combo(mf, sigma);
+            for m in (0..=jp).filter(|&m| m > 0 || sigma > 0) {
                 let mut v = 0.0;
-                for (mm, cm) in combo(m, ops.sigma) {
+                for (mm, cm) in combo(m, sigma) {
                     for &(mfm, cf) in &comps {
                         v += cm * cf * d(mm, mfm, jp);
                     }
                 }
-                out[(ops.index(jp, m), c)] += a * v;
+                out[(sigma_index(sigma, jp, m), c)] += a * v;
             }
         }
     }
@@ -668,7 +694,7 @@ fn try_chunk(
     breaks: &[f64],
 ) -> Option<ChunkOutcome> {
     let pops: Vec<f64> = cols.iter().map(|c| c.2).collect();
-    let start = initial_columns(ops, mol, cols, s0, run.angle_rad);
+    let start = initial_columns(ops.sigma, ops.j_max, mol, cols, s0, run.angle_rad);
     let state = BlockState::from_columns(&start, t_first);
     let kernel = TiltedKernel { ops, run, pops: pops.clone(), breaks: breaks.to_vec(), combined: std::cell::RefCell::new(ops.parts[IDENTITY].clone()) };
     let w = walk(&kernel, state, items, times, run.settings.edge_tolerance)?;
@@ -734,7 +760,7 @@ mod tests {
         for sigma in [1i64, -1] {
             let ops = TiltedOps::new(lin, sigma, 5);
             for (i, &(j, m)) in ops.states.iter().enumerate() {
-                assert_eq!(ops.index(j, m), i);
+                assert_eq!(sigma_index(sigma, j, m), i);
             }
             assert_eq!(ops.size(), sigma_states(sigma, 5).len());
             let dense_parts: Vec<DMatrix<f64>> = ops.parts.iter().map(|p| p.to_dense()).collect();
@@ -752,7 +778,11 @@ mod tests {
                         el(&|p, q| x.element(p, q).re),
                     ];
                     for (part, w) in want.iter().enumerate() {
-                        assert!((dense_parts[part][(a, b)] - w).abs() < 1e-13, "σ {sigma} part {part} ({ja},{ma}) ({jb},{mb}): {} vs {w}", dense_parts[part][(a, b)]);
+                        assert!(
+                            (dense_parts[part][(a, b)] - w).abs() < 1e-13,
+                            "σ {sigma} part {part} ({ja},{ma}) ({jb},{mb}): {} vs {w}",
+                            dense_parts[part][(a, b)]
+                        );
                     }
                     if jb == ja + 1 && mb == ma {
                         let jf = ja as f64;
@@ -773,7 +803,7 @@ mod tests {
         let lin = mol.as_linear().unwrap();
         let alpha = 0.7f64;
         let ops = TiltedOps::new(lin, 1, 6);
-        let start = initial_columns(&ops, lin, &[(0, 1, 1.0), (1, 2, 1.0)], 0.0, alpha);
+        let start = initial_columns(1, 6, lin, &[(0, 1, 1.0), (1, 2, 1.0)], 0.0, alpha);
         for c in 0..2 {
             assert!((start.column(c).norm() - 1.0).abs() < 1e-13);
         }
