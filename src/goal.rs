@@ -16,6 +16,10 @@ pub enum Observable {
     Cos2TwoD,
     /// ⟨cosθ⟩, the orientation (needs a field that breaks head–tail symmetry).
     Cos,
+    /// ⟨cosθ⟩ with the lab X axis: orientation towards X, which a static field tilted from Z towards X
+    /// gives a linear molecule.
+    #[serde(rename = "cos_x")]
+    CosX,
     /// Three-axis alignment of a top: the smaller of ⟨cos²⟩ of the alignment axis with Z and of the
     /// second most polarizable axis with X.
     ThreeAxis,
@@ -33,6 +37,7 @@ impl Observable {
             Observable::Cos2 => "cos2",
             Observable::Cos2TwoD => "cos2_2d",
             Observable::Cos => "cos",
+            Observable::CosX => "cos_x",
             Observable::ThreeAxis => "three_axis",
         }
     }
@@ -104,12 +109,18 @@ impl Goal {
 }
 
 impl Goal {
-    /// Check that `molecule` has what the goal's observable reads (a three-axis goal needs a top);
-    /// errors name `{path}.observable`.
+    /// Check that `molecule` has what the goal's observable reads (a three-axis goal needs a top; ⟨cosθ_X⟩
+    /// is computed for linear molecules); errors name `{path}.observable`.
     pub fn check_rotor(&self, molecule: &Molecule, path: &str) -> Result<()> {
+        let at = || if path.is_empty() { "observable".to_string() } else { format!("{path}.observable") };
         if self.observable == Observable::ThreeAxis && molecule.kind() == RotorKind::Linear {
-            let at = if path.is_empty() { "observable".to_string() } else { format!("{path}.observable") };
-            return Err(Error::input(at, format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", molecule.name)));
+            return Err(Error::input(at(), format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", molecule.name)));
+        }
+        if self.observable == Observable::CosX && molecule.kind() != RotorKind::Linear {
+            return Err(Error::input(
+                at(),
+                format!("a cos_x goal is available for linear molecules only; {} is a top (expected cos, cos2 or three_axis)", molecule.name),
+            ));
         }
         Ok(())
     }

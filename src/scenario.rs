@@ -271,6 +271,15 @@ impl Scenario {
             }
         }
         if let Some(g) = &self.goal
+            && g.observable == crate::goal::Observable::CosX
+            && !self.field.static_field.is_some_and(|s| s.is_tilted())
+        {
+            return Err(Error::input(
+                join(path, "goal.observable"),
+                "⟨cosθ_X⟩ needs a static field tilted towards X (static_field.angle_deg not 0 or 180); otherwise it is zero",
+            ));
+        }
+        if let Some(g) = &self.goal
             && g.observable == crate::goal::Observable::Cos
             && !self.field.is_polar()
         {

@@ -504,6 +504,13 @@ fn objective_bad_static_field_angle() {
     v["molecule"] = json!("SO2");
     v["static_field_angle_deg"] = json!(30);
     design_fails_on("angle-top", &v, "static_field_angle_deg");
+    // A ⟨cosθ_X⟩ goal needs a static field that can tilt towards X.
+    v["molecule"] = json!("OCS");
+    v["goal"]["observable"] = json!("cos_x");
+    v["static_field_angle_deg"] = json!(0);
+    design_fails_on("cos-x-along-z", &v, "goal.observable");
+    v["static_field_angle_deg"] = json!(180);
+    design_fails_on("cos-x-reversed", &v, "goal.observable");
 }
 
 #[test]
@@ -1011,6 +1018,50 @@ fn scenario_bad_static_field_angle() {
     simulate_fails_on("angle-strong-pulse", &strong, "pulses");
     v["goal"] = json!({"kind": "peak", "observable": "cos2_2d", "window_ps": [0.1, 5.0], "step_fs": 50});
     simulate_fails_on("angle-2d-goal", &v, "goal.observable");
+    // ⟨cosθ_X⟩ is zero without a tilted field, and not computed for tops: refused, not scored as zero.
+    v["goal"] = json!({"kind": "peak", "observable": "cos_x", "window_ps": [0.1, 5.0], "step_fs": 50});
+    v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": 180});
+    simulate_fails_on("cos-x-along-z", &v, "goal.observable");
+    v["molecule"] = json!("SO2");
+    v["static_field"] = json!({"strength_kv_cm": 10});
+    simulate_fails_on("cos-x-top", &v, "goal.observable");
+}
+
+#[test]
+fn a_cos_x_goal_scores_the_orientation_along_x() {
+    // Check: the goal's value is the largest ⟨cosθ_X⟩ of the trace in the goal window (read back from
+    // trace.csv, direct arithmetic on the written samples), and a field tilted away from X (−45°) orients
+    // towards −X, so its peak is the reversed field's minimum (symmetry: reflection X → −X).
+    let goal_value = |angle: f64| {
+        let v = json!({
+            "molecule": "OCS", "temperature_k": 0.5,
+            "static_field": {"strength_kv_cm": 20, "angle_deg": angle},
+            "pulses": [{"center_ps": 0.0, "fwhm_fs": 500, "peak_intensity_wcm2": 1e12}],
+            "window": {"start_ps": -1.0, "stop_ps": 6.0, "step_fs": 100},
+            "goal": {"kind": "peak", "observable": "cos_x", "window_ps": [0.5, 5.0], "step_fs": 100}
+        });
+        let (r, sb) = simulate_value(&format!("cos-x-{angle}"), &v);
+        assert_eq!(r.code, Some(0), "{}", r.stderr);
+        let summary: Value = serde_json::from_str(&std::fs::read_to_string(sb.out().join("summary.json")).unwrap()).unwrap();
+        let trace = std::fs::read_to_string(sb.out().join("trace.csv")).unwrap();
+        let header: Vec<&str> = trace.lines().next().unwrap().split(',').collect();
+        let (ct, cx) = (header.iter().position(|h| *h == "t_ps").unwrap(), header.iter().position(|h| *h == "cos_X").unwrap());
+        let in_window: Vec<f64> = trace
+            .lines()
+            .skip(1)
+            .map(|l| l.split(',').map(|x| x.parse::<f64>().unwrap()).collect::<Vec<f64>>())
+            .filter(|row| row[ct] >= 0.5 - 1e-9 && row[ct] <= 5.0 + 1e-9)
+            .map(|row| row[cx])
+            .collect();
+        (summary["goal"]["value"].as_f64().unwrap_or_else(|| panic!("{}", summary["goal"])), in_window)
+    };
+    let (up, samples) = goal_value(45.0);
+    let top = samples.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+    assert!((up - top).abs() < 1e-6 && up > 0.02, "goal {up} vs largest sample {top}");
+    let (down, mirrored) = goal_value(-45.0);
+    assert!(samples.iter().zip(&mirrored).all(|(a, b)| (a + b).abs() < 1e-9), "reflection X → −X");
+    let least = samples.iter().cloned().fold(f64::INFINITY, f64::min);
+    assert!((down + least).abs() < 1e-6, "goal at −45° {down} vs −(least at 45°) {}", -least);
 }
 
 #[cfg(unix)]

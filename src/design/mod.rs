@@ -638,6 +638,12 @@ impl Objective {
         };
         let polarized = !obj.space.pulses.iter().all(along_z);
         let tilted = obj.space.static_field_angle_deg.is_some_and(|b| !b.is_fixed() || b.min.to_radians().sin().abs() > 1e-12);
+        if goal.observable == Observable::CosX && !(tilted && obj.space.static_field_kv_cm.is_some()) {
+            return Err(Error::input(
+                "goal.observable",
+                "⟨cosθ_X⟩ needs a static field tilted towards X: give static_field_kv_cm and a static_field_angle_deg that is not 0 or 180",
+            ));
+        }
         if (polarized || tilted) && (obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
             return Err(Error::input(
                 if polarized { "pulses.polarization" } else { "static_field_angle_deg" },

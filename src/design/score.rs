@@ -18,6 +18,7 @@ pub fn series(observable: Observable, trace: &Trace) -> Option<&[f64]> {
         Observable::Cos2 => Some(&trace.cos2),
         Observable::Cos2TwoD => trace.cos2_2d(),
         Observable::Cos => trace.cos(),
+        Observable::CosX => trace.lab_cos(crate::basis::lab::LabAxis::X),
         Observable::ThreeAxis => trace.three_axis(),
     }
 }
@@ -28,13 +29,13 @@ pub fn series(observable: Observable, trace: &Trace) -> Option<&[f64]> {
 /// field-free.
 pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> Score {
     let Some(series) = series(goal.observable, trace).filter(|s| !s.is_empty()) else {
-        // No samples, or ⟨cosθ⟩ of a run without any orienting field: zero by symmetry.
+        // No samples, or ⟨cosθ⟩ (⟨cosθ_X⟩) of a run without any field orienting along Z (X): zero by symmetry.
         return Score { value: 0.0, t_ps: trace.times_ps.first().copied() };
     };
     let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
     // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
     let field_free = match goal.observable {
-        Observable::Cos => f64::INFINITY,
+        Observable::Cos | Observable::CosX => f64::INFINITY,
         // The minimum of two averages has no exact mean from the sums: means use the samples.
         Observable::ThreeAxis if goal.kind == GoalKind::Mean => f64::INFINITY,
         Observable::ThreeAxis if !after.carries_three_axis() => f64::INFINITY,

@@ -765,6 +765,11 @@ impl Trace {
         }
     }
 
+    /// ⟨cosθ⟩ of a linear molecule's axis with `lab` (None when the run did not compute it).
+    pub fn lab_cos(&self, lab: crate::basis::lab::LabAxis) -> Option<&[f64]> {
+        self.lab_cos.iter().find(|s| s.lab == lab && s.body.is_none()).map(|s| s.values.as_slice())
+    }
+
     /// ⟨cos²⟩ of `body` with `lab` (None when the run did not compute it).
     pub fn lab_axis(&self, lab: crate::basis::lab::LabAxis, body: Option<crate::molecule::top::BodyAxis>) -> Option<&[f64]> {
         self.lab_axes.iter().find(|s| s.lab == lab && s.body == body).map(|s| s.values.as_slice())

@@ -206,6 +206,7 @@ pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Pa
         crate::goal::Observable::Cos2 => "best single pulse ⟨cos²θ⟩",
         crate::goal::Observable::Cos2TwoD => "best single pulse ⟨cos²θ_2D⟩",
         crate::goal::Observable::Cos => "best single pulse ⟨cosθ⟩",
+        crate::goal::Observable::CosX => "best single pulse ⟨cosθ_X⟩",
         crate::goal::Observable::ThreeAxis => "single pulse, three-axis",
     };
     if obs == crate::goal::Observable::ThreeAxis {
