@@ -232,13 +232,16 @@ impl Scenario {
             let p = format!("{}[{i}]", join(path, "two_colour"));
             tc.validate(&p)?;
             if self.molecule.kind() == crate::molecule::RotorKind::AsymmetricTop {
-                return Err(Error::input(
-                    p,
-                    format!(
-                        "{} is an asymmetric top: a two-colour pulse would need its full hyperpolarizability tensor, which kicktrain does not take yet",
-                        self.molecule.name
-                    ),
-                ));
+                if self.molecule.beta_by_axis_au.is_none() {
+                    return Err(Error::input(
+                        join(path, "molecule.beta_au"),
+                        format!(
+                            "a two-colour pulse needs the hyperpolarizability of {} (beta_au: β_dgg along a, b, c in atomic units, Taylor convention, d the dipole axis); give it in an inline molecule",
+                            self.molecule.name
+                        ),
+                    ));
+                }
+                continue;
             }
             for (name, v) in [("beta_parallel_au", self.molecule.beta_parallel_au), ("beta_perpendicular_au", self.molecule.beta_perpendicular_au)] {
                 if v.is_none() {

@@ -112,6 +112,46 @@ impl AngularOperator {
         }
     }
 
+    /// Φ_Zz³ = cos³θ = (3/5) D¹₀₀* + (2/5) D³₀₀* (cos³θ = (3/5) P₁ + (2/5) P₃).
+    pub fn cos3_z() -> AngularOperator {
+        AngularOperator { identity: 0.0, terms: vec![(1, 0, 0.6), (3, 0, 0.4)] }
+    }
+
+    /// The product of two such functions, by the Clebsch–Gordan series of rotation matrices
+    /// D^{j1}_{0q1}* D^{j2}_{0q2}* = Σ_L ⟨j1 0 j2 0|L 0⟩⟨j1 q1 j2 q2|L q1+q2⟩ D^L_{0,q1+q2}* (R. N. Zare,
+    /// Angular Momentum, eq. 3.115, conjugated).
+    pub fn times(&self, other: &AngularOperator) -> AngularOperator {
+        let cg = |j1: i64, m1: i64, j2: i64, m2: i64, j: i64, m: i64| -> f64 {
+            let phase = if (j1 - j2 + m).rem_euclid(2) == 0 { 1.0 } else { -1.0 };
+            phase * ((2 * j + 1) as f64).sqrt() * three_j(j1, j2, j, m1, m2, -m)
+        };
+        let mut identity = self.identity * other.identity;
+        let mut acc: std::collections::BTreeMap<(i64, i64), f64> = Default::default();
+        for &(r, q, c) in &other.terms {
+            *acc.entry((r, q)).or_insert(0.0) += self.identity * c;
+        }
+        for &(r, q, c) in &self.terms {
+            *acc.entry((r, q)).or_insert(0.0) += other.identity * c;
+        }
+        for &(r1, q1, c1) in &self.terms {
+            for &(r2, q2, c2) in &other.terms {
+                let q = q1 + q2;
+                for l in (r1 - r2).abs()..=(r1 + r2) {
+                    if q.abs() > l {
+                        continue;
+                    }
+                    let v = c1 * c2 * cg(r1, 0, r2, 0, l, 0) * cg(r1, q1, r2, q2, l, q);
+                    if l == 0 {
+                        identity += v;
+                    } else {
+                        *acc.entry((l, q)).or_insert(0.0) += v;
+                    }
+                }
+            }
+        }
+        AngularOperator { identity, terms: acc.into_iter().filter(|e| e.1.abs() > 1e-15).map(|((r, q), c)| (r, q, c)).collect() }
+    }
+
     /// Highest rank of the terms.
     pub fn rank(&self) -> i64 {
         self.terms.iter().map(|t| t.0).max().unwrap_or(0)
@@ -522,6 +562,30 @@ mod tests {
     use crate::basis::wigner::small_d_explicit;
     use crate::quadrature::gauss_legendre;
     use std::f64::consts::PI;
+
+    /// The function c₀ + Σ c d^r_{0q}(θ) e^{iqχ} (real part; the imaginary parts cancel for real operators).
+    fn value(op: &AngularOperator, th: f64, chi: f64) -> f64 {
+        op.identity + op.terms.iter().map(|&(r, q, c)| c * small_d_explicit(r, 0, q, th) * (q as f64 * chi).cos()).sum::<f64>()
+    }
+
+    #[test]
+    fn products_of_angular_operators_are_the_products_of_the_functions() {
+        // Reference: the functions themselves, Φ_Zz = cosθ, Φ_Zx² = sin²θ cos²χ, Φ_Zy² = sin²θ sin²χ
+        // (module doc), evaluated from Wigner's explicit d sum (Edmonds eq. 4.1.23) at scattered angles;
+        // the definitions of cos2_x etc. are checked on the same footing first.
+        let pts = [(0.3, 0.2), (1.1, 2.5), (2.0, -0.7), (2.9, 4.0)];
+        for (th, chi) in pts {
+            let (c, s) = (f64::cos(th), f64::sin(th));
+            assert!((value(&AngularOperator::cos2_x(), th, chi) - s * s * f64::cos(chi).powi(2)).abs() < 1e-13);
+            assert!((value(&AngularOperator::cos3_z(), th, chi) - c * c * c).abs() < 1e-13);
+            let cx = AngularOperator::cos_z().times(&AngularOperator::cos2_x());
+            assert!((value(&cx, th, chi) - c * s * s * f64::cos(chi).powi(2)).abs() < 1e-13, "{th} {chi}");
+            let cy = AngularOperator::cos2_y().times(&AngularOperator::cos_z());
+            assert!((value(&cy, th, chi) - c * s * s * f64::sin(chi).powi(2)).abs() < 1e-13);
+            let c3 = AngularOperator::cos_z().times(&AngularOperator::cos_z()).times(&AngularOperator::cos_z());
+            assert!((value(&c3, th, chi) - c * c * c).abs() < 1e-13);
+        }
+    }
 
     fn top(a: f64, b: f64, c: f64) -> Top {
         Top { alignment_axis: BodyAxis::A, dipole_axis: BodyAxis::A, ..Top::rigid(a, b, c, [20.0, 12.0, 9.0]) }

@@ -115,6 +115,9 @@ struct TopFile {
     /// Hyperpolarizability across the figure axis.
     #[serde(skip_serializing_if = "Option::is_none")]
     beta_perpendicular_au: Option<f64>,
+    /// Hyperpolarizability components β_dgg of an asymmetric top, d its dipole axis, g = a, b, c.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    beta_au: Option<Principal>,
 }
 
 fn is_zero(x: &f64) -> bool {
@@ -339,6 +342,7 @@ impl LinearFile {
             dipole_debye: self.dipole_debye,
             beta_parallel_au: self.beta_parallel_au,
             beta_perpendicular_au: self.beta_perpendicular_au,
+            beta_by_axis_au: None,
             ionization_energy_ev: self.ionization_energy_ev,
         }
     }
@@ -394,6 +398,7 @@ impl TopFile {
         let mut m = Molecule::from_top(self.name.as_deref().unwrap_or("custom top"), top, self.dipole_debye, self.ionization_energy_ev);
         m.beta_parallel_au = self.beta_parallel_au;
         m.beta_perpendicular_au = self.beta_perpendicular_au;
+        m.beta_by_axis_au = self.beta_au.map(|b| [b.a, b.b, b.c]);
         Ok(m)
     }
 
@@ -421,6 +426,7 @@ impl TopFile {
             ionization_energy_ev: m.ionization_energy_ev,
             beta_parallel_au: m.beta_parallel_au,
             beta_perpendicular_au: m.beta_perpendicular_au,
+            beta_au: m.beta_by_axis_au.map(|b| Principal { a: b[0], b: b[1], c: b[2] }),
         }
     }
 }

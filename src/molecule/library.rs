@@ -76,6 +76,7 @@ impl LibraryEntry {
             dipole_debye: self.dipole_debye.map(|d| d.value).unwrap_or(0.0),
             beta_parallel_au: self.beta_parallel_au.map(|b| b.value),
             beta_perpendicular_au: self.beta_perpendicular_au.map(|b| b.value),
+            beta_by_axis_au: None,
             ionization_energy_ev: self.ionization_energy_ev.map(|b| b.value),
         }
     }

@@ -26,6 +26,10 @@ pub struct Molecule {
     pub beta_parallel_au: Option<f64>,
     /// First hyperpolarizability β⊥ = β_zxx in atomic units (Taylor convention), if known.
     pub beta_perpendicular_au: Option<f64>,
+    /// An asymmetric top's first hyperpolarizability components β_dgg (atomic units, Taylor convention) for
+    /// g = a, b, c, with d its dipole axis (β_ddd is the entry of the dipole axis), if known: the components a
+    /// two-colour field along Z couples to when the dipole axis is a two-fold symmetry axis (C2v molecules).
+    pub beta_by_axis_au: Option<[f64; 3]>,
     /// First ionization energy, eV (for the tunnel-ionization estimate), if known.
     pub ionization_energy_ev: Option<f64>,
 }
@@ -133,6 +137,7 @@ impl Molecule {
             dipole_debye: 0.0,
             beta_parallel_au: None,
             beta_perpendicular_au: None,
+            beta_by_axis_au: None,
             ionization_energy_ev: None,
         }
     }
@@ -140,7 +145,28 @@ impl Molecule {
     /// A symmetric or asymmetric top: its constants, dipole (debye, along `top.dipole_axis`) and
     /// ionization energy (eV).
     pub fn from_top(name: &str, top: top::Top, dipole_debye: f64, ionization_energy_ev: Option<f64>) -> Molecule {
-        Molecule { name: name.to_string(), rotor: Rotor::Top(top), dipole_debye, beta_parallel_au: None, beta_perpendicular_au: None, ionization_energy_ev }
+        Molecule {
+            name: name.to_string(),
+            rotor: Rotor::Top(top),
+            dipole_debye,
+            beta_parallel_au: None,
+            beta_perpendicular_au: None,
+            beta_by_axis_au: None,
+            ionization_energy_ev,
+        }
+    }
+
+    /// A top's hyperpolarizability components β_dgg by body axis g = a, b, c (d the dipole axis): an
+    /// asymmetric top's own, or a symmetric top's β∥ on its figure axis and β⊥ on the two others.
+    pub fn top_beta_au(&self) -> Option<[f64; 3]> {
+        let t = self.as_top()?;
+        if self.kind() == RotorKind::SymmetricTop {
+            let (bp, bt) = (self.beta_parallel_au?, self.beta_perpendicular_au?);
+            let mut b = [bt; 3];
+            b[t.dipole_axis.index()] = bp;
+            return Some(b);
+        }
+        self.beta_by_axis_au
     }
 
     /// The constants of a linear molecule (None for tops).
@@ -241,9 +267,33 @@ impl Molecule {
                 if self.kind() == RotorKind::AsymmetricTop {
                     return Err(Error::input(
                         format!("{path}.{name}"),
-                        format!("{} is an asymmetric top; β∥ and β⊥ are taken only for linear molecules and symmetric tops (along the figure axis)", self.name),
+                        format!(
+                            "{} is an asymmetric top; β∥ and β⊥ are taken only for linear molecules and symmetric tops (along the figure axis); expected beta_au (β_dgg along a, b, c)",
+                            self.name
+                        ),
                     ));
                 }
+            }
+        }
+        if let Some(b) = self.beta_by_axis_au {
+            let at = format!("{path}.beta_au");
+            for (v, axis) in b.iter().zip(["a", "b", "c"]) {
+                crate::error::require_finite(&format!("{at}.{axis}"), *v, "atomic units")?;
+                if v.abs() > 1e5 {
+                    return Err(Error::input(format!("{at}.{axis}"), format!("expected |β| ≤ 1e5 atomic units (Taylor convention), got {v:e}")));
+                }
+            }
+            if self.kind() != RotorKind::AsymmetricTop {
+                return Err(Error::input(
+                    at,
+                    format!("beta_au is for asymmetric tops; give {} beta_parallel_au and beta_perpendicular_au (along and across its axis)", self.name),
+                ));
+            }
+            if self.dipole_debye == 0.0 {
+                return Err(Error::input(
+                    at,
+                    format!("the components β_dgg are taken along the dipole axis d, but {} has no dipole; expected dipole_debye and dipole_axis", self.name),
+                ));
             }
         }
         Ok(())

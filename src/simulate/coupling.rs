@@ -64,6 +64,9 @@ pub struct Rates {
     pub u2: f64,
     /// Coefficient of cos³θ (hyperpolarizability term).
     pub u3: f64,
+    /// Two-colour rate per atomic unit of hyperpolarizability, ⅛ E1² E2 cosφ (1 a.u.)/ħ: the coefficient of
+    /// −Σ β_ijk Φ_Zi Φ_Zj Φ_Zk (β in a.u.), which a top's kernel builds from its own tensor.
+    pub g3: f64,
 }
 
 /// All coupling rates at time t (ps) on an axis: static and terahertz fields on the dipole,
@@ -90,6 +93,7 @@ pub fn rates(field: &FieldModel, t_ps: f64, mol: &CoupledAxis) -> Rates {
         let (bp, bt) = (mol.beta_parallel_au, mol.beta_perpendicular_au);
         r.u3 += g * (bp - 3.0 * bt);
         r.u1 += g * 3.0 * bt;
+        r.g3 += g;
     }
     for th in &field.terahertz {
         let e_kv = th.field_kv_cm(t_ps);

@@ -56,6 +56,9 @@ struct OrientedOps {
     laser: Csr,
     /// Dipole coupling D = Φ_Zz (function basis).
     dipole: Csr,
+    /// Two-colour coupling T = Σ β_ijk Φ_Zi Φ_Zj Φ_Zk (β in atomic units; function basis) and the bound
+    /// Σ|coefficients| on its spectrum, when the molecule carries a hyperpolarizability tensor.
+    hyper: Option<(Csr, f64)>,
     /// The identity on the same pattern.
     identity: Csr,
     /// Φ_Zz between eigenstates (dense), for dressed states.
@@ -81,7 +84,7 @@ struct OrientedRun<'a> {
 }
 
 impl OrientedOps {
-    fn new(top: &Top, frame: &TopFrame, block: TopBlock, with_2d: bool) -> OrientedOps {
+    fn new(top: &Top, frame: &TopFrame, block: TopBlock, with_2d: bool, beta: Option<[f64; 3]>) -> OrientedOps {
         let basis = TopBlockBasis::new(frame, block);
         let omega: Vec<f64> = basis.energies_cm.iter().map(|e| cm_to_rad_per_ps(*e)).collect();
         let axes: Vec<AngularOperator> = (0..AXES).map(|i| AngularOperator::cos2_position(frame.position(BodyAxis::from_index(i)))).collect();
@@ -91,8 +94,10 @@ impl OrientedOps {
         let cos3 = AngularOperator { identity: 0.0, terms: vec![(1, 0, 0.6), (3, 0, 0.4)] };
         let n = basis.size();
         let (ta, td) = (basis.function_triplets(&a_op), basis.function_triplets(&cos));
-        // One pattern for the three matrices, so that a step's combination is one pass over the values.
-        let positions: Vec<(usize, usize)> = ta.iter().chain(&td).map(|t| (t.0, t.1)).chain((0..n).map(|i| (i, i))).collect();
+        let t_op = beta.map(|b| hyperpolarizability_operator(&b, frame, top.dipole_axis));
+        let tt = t_op.as_ref().map(|(op, _)| basis.function_triplets(op)).unwrap_or_default();
+        // One pattern for the matrices, so that a step's combination is one pass over the values.
+        let positions: Vec<(usize, usize)> = ta.iter().chain(&td).chain(&tt).map(|t| (t.0, t.1)).chain((0..n).map(|i| (i, i))).collect();
         let on_pattern = |own: &[(usize, usize, f64)]| {
             let mut t: Vec<(usize, usize, f64)> = positions.iter().map(|&(r, c)| (r, c, 0.0)).collect();
             t.extend_from_slice(own);
@@ -100,9 +105,10 @@ impl OrientedOps {
         };
         let laser = on_pattern(&ta);
         let dipole = on_pattern(&td);
+        let hyper = t_op.as_ref().map(|(_, bound)| (on_pattern(&tt), *bound));
         let identity = on_pattern(&(0..n).map(|i| (i, i, 1.0)).collect::<Vec<_>>());
         let mut fastest: f64 = 0.0;
-        for op in [&a_op, &cos] {
+        for op in [&a_op, &cos].into_iter().chain(t_op.as_ref().map(|t| &t.0)) {
             for (r0, c0, blk) in &basis.operator_banded(op).blocks {
                 for c in 0..blk.ncols() {
                     for r in 0..blk.nrows() {
@@ -120,19 +126,26 @@ impl OrientedOps {
             observables.push(Banded::dense(basis.abs_direction_cosine(frame.position(top.alignment_axis))));
         }
         let dipole_eigen = basis.operator(&cos);
-        OrientedOps { basis, omega, laser, dipole, identity, dipole_eigen, observables, fastest, dressed_cache: Default::default() }
+        OrientedOps { basis, omega, laser, dipole, hyper, identity, dipole_eigen, observables, fastest, dressed_cache: Default::default() }
     }
 
-    /// Exact kick exp(i(θ_A A + θ_D D)) (up to a global phase): the generator is shifted and scaled to a
-    /// spectrum in [0, 1] for the Chebyshev series, written into `combined` (a matrix on the same pattern).
-    fn kick(&self, state: &mut BlockState, theta_a: f64, theta_d: f64, combined: &mut Csr) {
-        let lo = theta_a.min(0.0) - theta_d.abs();
-        let hi = theta_a.max(0.0) + theta_d.abs();
+    /// Exact kick exp(i(θ_A A + θ_D D + θ_T T)) (up to a global phase): the generator is shifted and scaled to
+    /// a spectrum in [0, 1] for the Chebyshev series, written into `combined` (a matrix on the same pattern).
+    /// A compression of a function of the orientation has its spectrum inside the function's range, so
+    /// |T| ≤ Σ|coefficients| bounds the two-colour part.
+    fn kick(&self, state: &mut BlockState, theta_a: f64, theta_d: f64, theta_t: f64, combined: &mut Csr) {
+        let t_width = self.hyper.as_ref().map(|h| theta_t.abs() * h.1).unwrap_or(0.0);
+        let lo = theta_a.min(0.0) - theta_d.abs() - t_width;
+        let hi = theta_a.max(0.0) + theta_d.abs() + t_width;
         let width = hi - lo;
         if width == 0.0 {
             return;
         }
-        combined.set_combination(&[(&self.laser, theta_a / width), (&self.dipole, theta_d / width), (&self.identity, -lo / width)]);
+        let mut parts = vec![(&self.laser, theta_a / width), (&self.dipole, theta_d / width), (&self.identity, -lo / width)];
+        if let Some((t, _)) = &self.hyper {
+            parts.push((t, theta_t / width));
+        }
+        combined.set_combination(&parts);
         kick_through_functions(&self.basis, combined, state, width);
     }
 
@@ -175,8 +188,11 @@ struct OrientedBlock {
 /// Solver for a top in orienting fields along Z (frame: dipole axis along z).
 pub struct OrientedTopSolver {
     top: Top,
-    /// The dipole axis and the constants of its coupling to the fields.
+    /// The dipole axis and the constants of its coupling to the fields (β∥, β⊥ left at zero: the
+    /// two-colour coupling is the operator T built from `beta`).
     axis: super::coupling::CoupledAxis,
+    /// β_dgg by body axis (atomic units), when the molecule carries them.
+    beta: Option<[f64; 3]>,
     frame: TopFrame,
     blocks: Vec<OrientedBlock>,
     thermal_j_max: i64,
@@ -191,15 +207,10 @@ impl OrientedTopSolver {
         let frame = TopFrame::new(&top, true);
         let ensemble = TopEnsemble::new(&top, &frame, temperature_k, settings.thermal_tolerance)?;
         let blocks = oriented_blocks(&frame, &ensemble);
-        Ok(OrientedTopSolver {
-            top,
-            axis: super::coupling::CoupledAxis::of(molecule),
-            frame,
-            blocks,
-            thermal_j_max: ensemble.j_max,
-            settings,
-            progress: Default::default(),
-        })
+        let mut axis = super::coupling::CoupledAxis::of(molecule);
+        axis.beta_parallel_au = 0.0;
+        axis.beta_perpendicular_au = 0.0;
+        Ok(OrientedTopSolver { top, axis, beta: molecule.top_beta_au(), frame, blocks, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
     }
 
     /// Dipole coupling rate μE/ħ (rad/ps) of the static field at t.
@@ -238,9 +249,10 @@ impl OrientedTopSolver {
                     .chain(field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)).map(|t| t.rms_duration_ps()))
                     .fold(f64::INFINITY, f64::min);
                 let mut peak: f64 = 0.0;
+                let t_bound = self.beta.map(|b| b.iter().map(|x| x.abs()).sum::<f64>() * 3.0).unwrap_or(0.0);
                 for k in 0..=400 {
                     let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.axis);
-                    peak = peak.max(r.u1.abs() + r.u2.abs());
+                    peak = peak.max(r.u1.abs() + r.u2.abs() + r.g3.abs() * t_bound);
                 }
                 let step_ps = ORIENTED_STEP.step_ps(&self.settings, shortest, 0.0, peak);
                 Event::Finite { start_ps: lo, end_ps: hi, pulses, step_ps }
@@ -251,19 +263,38 @@ impl OrientedTopSolver {
     /// Room (in J) above the thermal levels: the laser kicks, the static-field mixing (about
     /// sqrt(μE/C) levels) and the terahertz field areas.
     fn reach(&self, field: &FieldModel) -> Result<i64> {
-        let lasers = if field.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) { laser_reach(&self.top, self.thermal_j_max, field)? } else { 0 };
+        // Two-colour pulses align through the polarizability of both colours as one laser pulse would.
+        let mut aligning = field.clone();
+        aligning.pulses.extend(
+            field
+                .two_colour
+                .iter()
+                .map(|t| crate::field::Pulse { peak_intensity_wcm2: t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2, ..t.envelope_pulse() }),
+        );
+        let lasers = if aligning.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) { laser_reach(&self.top, self.thermal_j_max, &aligning)? } else { 0 };
+        // The hyperpolarizability kicks: ∫ g3 dt times the bound on T, as the dipole kicks of terahertz pulses.
+        let t_bound = self.beta.map(|b| b.iter().map(|x| x.abs()).sum::<f64>() * 3.0).unwrap_or(0.0);
+        let hyper: f64 = field
+            .two_colour
+            .iter()
+            .map(|t| {
+                use crate::units::{BETA_AU, HBAR, peak_field_v_per_m};
+                let (e1, e2) = (peak_field_v_per_m(t.fundamental_intensity_wcm2), peak_field_v_per_m(t.second_harmonic_intensity_wcm2));
+                (0.125 * e1 * e1 * e2 * t.phase_rad.cos() * BETA_AU / HBAR * 1e-12 * t.three_halves_area_ps()).abs() * t_bound
+            })
+            .sum();
         let c_rate = cm_to_rad_per_ps(self.top.c_cm);
         let s_max = field.static_field.map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
         let thz: f64 = field.terahertz.iter().map(|t| dipole_rate_rad_per_ps(self.axis.dipole_debye, t.field_areas().0).abs()).sum();
-        Ok(lasers + (2.0 * (s_max / c_rate).sqrt()).ceil() as i64 + (1.5 * thz).ceil() as i64 + 4)
+        Ok(lasers + (2.0 * (s_max / c_rate).sqrt()).ceil() as i64 + (1.5 * (thz + hyper)).ceil() as i64 + 4)
     }
 
     /// Run `field` and sample the observables at `times_ps` (ascending).
     pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
-        if !field.two_colour.is_empty() {
+        if !field.two_colour.is_empty() && self.beta.is_none() {
             return Err(Error::input(
-                "two_colour",
-                "two-colour pulses on asymmetric tops need a hyperpolarizability tensor, which kicktrain does not take yet",
+                "molecule.beta_au",
+                "a two-colour pulse on a top needs its hyperpolarizability components (beta_au in an inline molecule)",
             ));
         }
         let reach = self.reach(field)?;
@@ -304,7 +335,7 @@ impl OrientedTopSolver {
                         (b.starts.iter().map(|s| s.j).max().unwrap_or(0) + reach) as usize,
                         MAX_J as usize,
                         |j_max| {
-                            let ops = OrientedOps::new(&self.top, &self.frame, TopBlock { m: b.m, sym: b.sym, j_max: j_max as i64 }, with_2d);
+                            let ops = OrientedOps::new(&self.top, &self.frame, TopBlock { m: b.m, sym: b.sym, j_max: j_max as i64 }, with_2d, self.beta);
                             self.try_block(&ops, b, &plan)
                         },
                         || {
@@ -534,6 +565,27 @@ fn block_populations(basis: &TopBlockBasis, starts: &[Start]) -> Vec<f64> {
 }
 
 /// The laser coupling A = Σ (α_i − α_min) Φ_Zi² / Δα of a top in `frame` (its rate is 2π Δα I/(cħ)).
+/// The two-colour coupling Σ β_ijk Φ_Zi Φ_Zj Φ_Zk of a top whose dipole axis d is a two-fold axis (C2v):
+/// with Kleinman symmetry only β_ddd and β_dgg = β_gdg = β_ggd survive, so it is
+/// β_ddd Φ_Zd³ + 3 Σ_{g≠d} β_dgg Φ_Zd Φ_Zg², in the frame whose z is the dipole axis; and Σ|coefficients|,
+/// a bound on its range (|Φ| ≤ 1). `beta` holds β_dgg by body axis g = a, b, c.
+fn hyperpolarizability_operator(beta: &[f64; 3], frame: &TopFrame, dipole: BodyAxis) -> (AngularOperator, f64) {
+    let mut op = AngularOperator { identity: 0.0, terms: vec![] };
+    let mut bound = 0.0;
+    for (i, &b) in beta.iter().enumerate() {
+        let g = BodyAxis::from_index(i);
+        let (term, w) = if g == dipole {
+            (AngularOperator::cos3_z(), 1.0)
+        } else {
+            (AngularOperator::cos_z().times(&AngularOperator::cos2_position(frame.position(g))), 3.0)
+        };
+        op.identity += w * b * term.identity;
+        op.terms.extend(term.terms.iter().map(|&(r, q, c)| (r, q, w * b * c)));
+        bound += (w * b).abs();
+    }
+    (op, bound)
+}
+
 fn laser_operator(top: &Top, frame: &TopFrame) -> AngularOperator {
     let da = top.delta_alpha_a3();
     let a_min = top.polarizability_a3.iter().cloned().fold(f64::MAX, f64::min);
@@ -610,7 +662,7 @@ impl Kernel for OrientedKernel<'_> {
 
     fn finite_kick(&self, _index: usize, _item: &Event, st: &mut BlockState, t: f64, h: f64) {
         let r = coupling::rates(self.field, t, &self.solver.axis);
-        self.ops.kick(st, h * r.u2, h * r.u1, &mut self.combined.borrow_mut());
+        self.ops.kick(st, h * r.u2, h * r.u1, h * r.g3, &mut self.combined.borrow_mut());
     }
 
     fn breaks(&self, item: &Event) -> Vec<f64> {
@@ -812,13 +864,37 @@ mod tests {
     }
 
     #[test]
+    fn the_two_colour_operator_is_the_hyperpolarizability_contracted_with_the_direction_cosines() {
+        // Reference: Σ_ijk β_ijk Φ_Zi Φ_Zj Φ_Zk written out for a C2v tensor with Kleinman symmetry
+        // (β_dgg = β_gdg = β_ggd, dipole axis d; common practice), with the direction cosines of the frame
+        // axes Φ_Zz = cosθ, Φ_Zx = −sinθ cosχ, Φ_Zy = sinθ sinχ (basis::top), evaluated at scattered angles
+        // against the operator's D-function expansion (Wigner's explicit d sum, Edmonds eq. 4.1.23). The
+        // dipole along b of a top whose frame puts a and c across it; β_daa ≠ β_dcc.
+        use crate::basis::wigner::small_d_explicit;
+        let mut t = Top::rigid(0.6, 0.2, 0.15, [9.0, 6.0, 4.5]);
+        t.dipole_axis = BodyAxis::B;
+        let frame = TopFrame::new(&t, true);
+        let beta = [50.0, 200.0, -30.0];
+        let (op, bound) = hyperpolarizability_operator(&beta, &frame, BodyAxis::B);
+        assert!((bound - (3.0 * 50.0 + 200.0 + 3.0 * 30.0)).abs() < 1e-12);
+        for (th, chi) in [(0.3f64, 0.2f64), (1.1, 2.5), (2.0, -0.7), (2.9, 4.0)] {
+            let value = op.identity + op.terms.iter().map(|&(r, q, c)| c * small_d_explicit(r, 0, q, th) * (q as f64 * chi).cos()).sum::<f64>();
+            let phi = [th.cos(), -th.sin() * chi.cos(), th.sin() * chi.sin()];
+            let cos_of = |g: BodyAxis| phi[frame.position(g)];
+            let d = cos_of(BodyAxis::B);
+            let want = beta[1] * d.powi(3) + 3.0 * beta[0] * d * cos_of(BodyAxis::A).powi(2) + 3.0 * beta[2] * d * cos_of(BodyAxis::C).powi(2);
+            assert!((value - want).abs() < 1e-12, "{th} {chi}: {value} vs {want}");
+        }
+    }
+
+    #[test]
     fn first_order_stark_shift_of_a_symmetric_top() {
         // A symmetric top's |J K M⟩ shifts by −μE K M / [J(J+1)] to first order (Townes & Schawlow,
         // "Microwave Spectroscopy" (1955), eq. 10-4). Prolate top A = 2.5, B = C = 0.3 cm⁻¹, M = 1, odd K:
         // the J = 1, K = ±1 pair splits by ∓s/2, J = 2, K = ±1 by ∓s/6 (s = μE/ħ), up to terms in s².
         let t = top(2.5, 0.3, 0.3);
         let frame = TopFrame::new(&t, true);
-        let ops = OrientedOps::new(&t, &frame, TopBlock { m: 1, sym: TopSym::KParity(1), j_max: 8 }, false);
+        let ops = OrientedOps::new(&t, &frame, TopBlock { m: 1, sym: TopSym::KParity(1), j_max: 8 }, false, None);
         let s = 1e-5;
         let dressed = ops.dressed(s);
         let e0 = |j: f64, k: f64| cm_to_rad_per_ps(0.3 * j * (j + 1.0) + (2.5 - 0.3) * k * k);
@@ -839,11 +915,14 @@ mod tests {
         let t = top(0.6, 0.2, 0.15);
         let frame = TopFrame::new(&t, true);
         for kp in [0, 1] {
-            let whole = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::KParity(kp), j_max: 6 }, false);
+            let whole = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::KParity(kp), j_max: 6 }, false, None);
             let mut parts: Vec<f64> = [1, -1]
                 .iter()
                 .flat_map(|&sigma| {
-                    OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: kp, sigma }, j_max: 6 }, false).dressed(0.8).0.clone()
+                    OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: kp, sigma }, j_max: 6 }, false, None)
+                        .dressed(0.8)
+                        .0
+                        .clone()
                 })
                 .collect();
             parts.sort_by(f64::total_cmp);
@@ -883,9 +962,9 @@ mod tests {
         let frame = TopFrame::new(&t, true);
         let s = cm_to_rad_per_ps(1.5);
         let kt = cm_to_rad_per_ps(0.8);
-        let whole = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::KParity(0), j_max: 14 }, false);
-        let plus = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: 0, sigma: 1 }, j_max: 14 }, false);
-        let minus = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: 0, sigma: -1 }, j_max: 14 }, false);
+        let whole = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::KParity(0), j_max: 14 }, false, None);
+        let plus = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: 0, sigma: 1 }, j_max: 14 }, false, None);
+        let minus = OrientedOps::new(&t, &frame, TopBlock { m: 0, sym: TopSym::Reflection { k_parity: 0, sigma: -1 }, j_max: 14 }, false, None);
         let within_m = adiabatic_cos(&[&whole], s, kt);
         let within_classes = adiabatic_cos(&[&plus, &minus], s, kt);
         assert!((within_m - within_classes).abs() > 1e-3, "⟨cos⟩ ranked within M {within_m} vs within the classes {within_classes}");
@@ -932,7 +1011,7 @@ mod tests {
                     vec![TopSym::KParity(0), TopSym::KParity(1)]
                 };
                 for sym in syms {
-                    let ops = OrientedOps::new(&t, &frame, TopBlock { m, sym, j_max: 4 }, false);
+                    let ops = OrientedOps::new(&t, &frame, TopBlock { m, sym, j_max: 4 }, false, None);
                     let n = ops.omega.len();
                     for &(j, first, count) in &ops.basis.j_ranges {
                         if j > 3 {
