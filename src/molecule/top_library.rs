@@ -30,6 +30,9 @@ pub struct TopEntry {
     pub spin_weights_source: &'static str,
     /// First ionization energy, eV.
     pub ionization_energy_ev: Option<Sourced>,
+    /// Hyperpolarizability components β_dgg (atomic units, Taylor convention) along a, b, c, d the dipole
+    /// axis (two-colour pulses), where computed.
+    pub beta_au: Option<[Sourced; 3]>,
 }
 
 const fn s(value: f64, source: &'static str) -> Sourced {
@@ -64,7 +67,9 @@ impl TopEntry {
             alignment_axis: Top::most_polarizable(&p),
             spin_weights: self.spin_weights.clone(),
         };
-        Molecule::from_top(self.name, top, self.dipole.map(|d| d.0.value).unwrap_or(0.0), self.ionization_energy_ev.map(|e| e.value))
+        let mut m = Molecule::from_top(self.name, top, self.dipole.map(|d| d.0.value).unwrap_or(0.0), self.ionization_energy_ev.map(|e| e.value));
+        m.beta_by_axis_au = self.beta_au.map(|b| [b[0].value, b[1].value, b[2].value]);
+        m
     }
 }
 
@@ -87,6 +92,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByK(vec![2.0, 1.0, 1.0]),
             spin_weights_source: C3V_SPIN,
             ionization_energy_ev: Some(s(12.47, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "CH3Cl",
@@ -99,6 +105,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByK(vec![2.0, 1.0, 1.0]),
             spin_weights_source: C3V_SPIN,
             ionization_energy_ev: Some(s(11.26, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "CHF3",
@@ -119,6 +126,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByK(vec![2.0, 1.0, 1.0]),
             spin_weights_source: "three equivalent ¹⁹F (I = 1/2) about the C3 axis, as for methyl halides (derived by character projection)",
             ionization_energy_ev: Some(s(13.86, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "SO2",
@@ -131,6 +139,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([1.0, 0.0, 0.0, 1.0]),
             spin_weights_source: "two ¹⁶O (I = 0) exchanged by C2(b): only Ka + Kc even levels exist (derived by character projection)",
             ionization_energy_ev: Some(s(12.35, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "C2H4",
@@ -143,6 +152,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([7.0, 3.0, 3.0, 3.0]),
             spin_weights_source: "four protons, D2 rotational subgroup: 7:3:3:3 (Herzberg, Molecular Spectra II; derived by character projection)",
             ionization_energy_ev: Some(s(10.51, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "H2O",
@@ -162,6 +172,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([1.0, 3.0, 3.0, 1.0]),
             spin_weights_source: "ortho (Ka + Kc odd) : para = 3 : 1 (Townes & Schawlow, Microwave Spectroscopy)",
             ionization_energy_ev: Some(s(12.621, "NIST Chemistry WebBook: 12.621 ± 0.002 eV")),
+            beta_au: None,
         },
         TopEntry {
             name: "C6H5I",
@@ -174,6 +185,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
             spin_weights_source: "C2(a) exchanges two proton pairs: Ka even : Ka odd = 20 : 12 (derived by character projection)",
             ionization_energy_ev: Some(s(8.69, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "C6H5CN",
@@ -186,6 +198,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
             spin_weights_source: "C2(a) exchanges two proton pairs (H2, H6 and H3, H5): Ka even : Ka odd = 10 : 6 (derived by character projection)",
             ionization_energy_ev: Some(s(9.73, "from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "C10H8",
@@ -198,6 +211,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([76.0, 60.0, 60.0, 60.0]),
             spin_weights_source: "eight protons, D2 rotational subgroup: 76:60:60:60 (derived by character projection)",
             ionization_energy_ev: Some(s(8.14, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
         TopEntry {
             name: "C5H5N",
@@ -210,6 +224,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
             spin_weights_source: "C2(a) exchanges two proton pairs: Ka even : Ka odd = 20 : 12 (derived by character projection, C2 taken along a: from memory)",
             ionization_energy_ev: Some(s(9.26, "NIST Chemistry WebBook, from memory")),
+            beta_au: None,
         },
     ]
 }

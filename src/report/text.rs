@@ -52,6 +52,7 @@ pub fn molecules_json() -> Value {
                 "dipole": e.dipole.map(|d| json!({"value_debye": d.0.value, "axis": d.1.letter(), "source": d.0.source})),
                 "spin_weights": {"value": e.spin_weights, "source": e.spin_weights_source},
                 "ionization_energy_ev": e.ionization_energy_ev.map(|d| sv(&d)),
+                "beta_au": e.beta_au.as_ref().map(|b| json!({"a": sv(&b[0]), "b": sv(&b[1]), "c": sv(&b[2])})),
             })
         })
         .collect();
