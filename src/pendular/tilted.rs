@@ -16,7 +16,13 @@
 //! freely). Those static-dressed states, rotated by α about Y onto the lab axes, are eigenstates of the
 //! full Hamiltonian at zero laser intensity and fall into the classes above; as the laser comes on, the
 //! n-th lowest of a class goes to the n-th lowest dressed state of that class. Ranking the field-free
-//! levels within σ directly would be wrong: the static field alone already reorders them across M_f.
+//! levels within σ directly is right only while the static field alone does not reorder levels of
+//! different J within σ (true in the cases tested, μE/B up to 3) and wrong at 90°, where it misses the
+//! second class.
+//!
+//! This is the strict adiabatic limit. Levels of one class meet in avoided crossings that can be
+//! extremely narrow (gaps down to 1e-18 cm⁻¹ for OCS at 1e12 W/cm²), which a real pulse passes
+//! diabatically; the time-dependent path gives what an experiment sees.
 //!
 //! The dressed states of a class are found as the lowest eigenpairs of its sparse Hamiltonian
 //! (`propagate::sparse::lowest_eigenpairs`); the basis grows until every reported number is converged.
