@@ -3,71 +3,85 @@
 Static electronic first hyperpolarizability components beta_zzz, beta_zbb,
 beta_zcc of the polar asymmetric tops benzonitrile (C6H5CN) and iodobenzene
 (C6H5I) of src/molecule/top_library.rs, by finite differences of the SCF
-dipole moment, at the level used for their stored polarizabilities.
+dipole moment, at the level, geometry and frame of their stored
+polarizabilities (tools/polar_top_constants.py). Discussion and results:
+tools/top_beta_finite_field.md.
 
 Not part of the build or the tests. Needs the same packages as
-tools/polar_top_constants.py (whose geometry, basis and frame it imports):
+tools/polar_top_constants.py, whose geometry, basis and frame code it imports:
     python3 -m venv /tmp/qc
     /tmp/qc/bin/pip install pyscf pyscf-properties geometric basis-set-exchange
-    /tmp/qc/bin/python tools/top_beta_finite_field.py            # checks + both molecules
-    /tmp/qc/bin/python tools/top_beta_finite_field.py --only benzonitrile
-    /tmp/qc/bin/python tools/top_beta_finite_field.py --no-check
-Run time on two cores (PySCF 2.14.0): water checks about 1 min, benzonitrile
-about 15 min, iodobenzene about 15 min (plus about 5 min each for the
-B3LYP/def2-SVP geometry if /tmp/polar_top_cache has none yet).
-Field energies and dipoles are cached as JSON in --cache (default
-/tmp/top_beta_cache), so an interrupted run resumes.
+    /tmp/qc/bin/python tools/top_beta_finite_field.py --only benzonitrile --no-check
+    /tmp/qc/bin/python tools/top_beta_finite_field.py --only iodobenzene --no-check --h 0.001,0.002
+    /tmp/qc/bin/python tools/top_beta_finite_field.py --only          # the water checks only
+  (no option: both molecules with steps 0.001, 0.002, 0.004, then the checks;
+   --sym NAME / --mixed NAME add the optional checks described below.)
+Run time (PySCF 2.14.0, two cores shared with other jobs, so roughly one
+core): one CAM-B3LYP SCF of benzonitrile (229 basis functions) takes
+1-4 min (25-35 cycles at the convergence below); benzonitrile with three steps
+(14 SCF) took about 40 min, iodobenzene with two steps (11 SCF) about
+30 min; the water checks about 5 min. Add about 5 min per molecule for the
+B3LYP/def2-SVP geometry when /tmp/polar_top_cache has none.
+Energies, dipoles (JSON) and densities (.npy) are cached in --cache (default
+/tmp/top_beta_cache), so an interrupted run resumes and a rerun only prints.
 
 Method
-  * Geometry: B3LYP/def2-SVP optimum of tools/polar_top_constants.py, taken
-    from its cache /tmp/polar_top_cache (or re-optimized by its run() with
-    the same start, optimizer and settings when the cache is missing).
+  * Geometry: B3LYP/def2-SVP optimum of tools/polar_top_constants.py, read
+    from its cache /tmp/polar_top_cache, or re-optimized by its run() (same
+    start, optimizer and settings) when the cache is missing. The optimized
+    geometry is C2v only to about 1e-4 A (mu_b ~ 1e-4 a.u.), which is why
+    the b fields are run with both signs.
   * Electronic structure: CAM-B3LYP, aug-cc-pVDZ on H, C, N and
     aug-cc-pVDZ-PP with its 28-electron pseudopotential on I, density fitting
-    with def2-universal-jkfit: the stored polarizabilities' level. Tighter
-    than that run: SCF conv_tol 1e-14, conv_tol_grad 1e-10, DFT grid level 4
-    (the stored alpha used PySCF's default level 3).
+    with def2-universal-jkfit, PySCF's default DFT grid (level 3): the level
+    of the stored polarizabilities. SCF convergence: conv_tol 1e-11 Hartree
+    and conv_tol_grad 1e-9 (dipole noise about 1e-9 a.u.).
   * Field: uniform static field F added to the one-electron Hamiltonian as
     h -> h + F . r (electrons have charge -1, so H = H0 - mu_op . F); the
     nuclear term -F . sum_A Z_A R_A is added to the energy (it only enters
     mu). Origin: centre of mass (coordinates are in the principal frame).
-  * Stencils (field step h along axis j, mu = SCF dipole in a.u.):
+    Every field point starts from the zero-field density plus the linear
+    response of the nearest cached point on the same axis (speed only).
+  * Stencils (field step h along axis j, mu = SCF dipole in a.u., z = a):
         beta_zjj(h)  = [mu_z(+h e_j) - 2 mu_z(0) + mu_z(-h e_j)] / h^2     O(h^2)
         alpha_jj(h)  = [mu_j(+h e_j) - mu_j(-h e_j)] / (2 h)              O(h^2)
         Richardson:  X_R(h) = [4 X(h) - X(2h)] / 3                          O(h^4)
-    with h = 0.001, 0.002, 0.004 a.u., so two Richardson values, R(0.001)
-    and R(0.002); their difference is the finite-field error estimate.
-    C2v symmetry makes mu_z even and mu_j odd in F_j for j = b, c, so only
-    +F_b and +F_c fields are run; one -F_b and one -F_c point (0.004 a.u.)
-    verify that symmetry numerically.
+    The value quoted is R at the smallest step; its error estimate is
+    |R(h) - R(2h)| when three steps ran, else the Richardson shift
+    |R(h) - X(h)|.
+    For j = c (normal to the molecular plane, which holds to 1e-14 A) the
+    plane's mirror symmetry makes mu_z even and mu_c odd in F_c, so only +F_c
+    runs and mu(-F_c) is taken from it (--sym checks this).
     Independent stencils from the same runs:
         beta_zzz from energies, -[E(2h) - 2E(h) + 2E(-h) - E(-2h)] / (2h^3);
-        beta_bzb = d2 mu_b / dF_b dF_z from two mixed fields (F_b, +-F_z),
-          [mu_b(h, h) - mu_b(h, -h)] / (2 h^2) with h = 0.002, which equals
-          beta_zbb for the static tensor (permutation symmetry); the same
-          for c.
+        (--mixed) beta_jzj = d2 mu_j / dF_j dF_z from the fields (h e_j +- h e_z),
+          [mu_j(h, h) - mu_j(h, -h)] / (2 h^2), h = 0.002, equal to beta_zjj
+          for the static tensor (permutation symmetry).
   * Frame: principal inertia axes a, b, c of polar_top_constants.py (the
-    most abundant isotopes; a the C2 axis, b in plane, c out of plane).
-    There +a points from the centre of mass towards the substituent head atom
-    (N, I). The results are then given with +z along the computed dipole mu0
-    (from the negative towards the positive end of the charge distribution):
-    beta_zjj = sign(mu_a) * beta_ajj (odd in z, even in b and c).
+    most abundant isotopes; a the C2 axis, b in plane, c out of plane), with
+    +a from the centre of mass towards the substituent head atom (N, I) as
+    there. The results are given with +z along the computed dipole mu0, i.e.
+    from the negative towards the positive end of the charge distribution:
+    beta_zjj = sign(mu_a) * beta_ajj (odd in z, even in b and c). For both
+    molecules mu_a < 0: +z points from the head atom (N, I) into the ring.
   * Convention: Taylor series, atomic units,
         mu(F) = mu0 + alpha F + 1/2 beta F F + ...,
         E(F)  = E0 - mu0 F - 1/2 alpha F F - 1/6 beta F F F - ...
     beta_par = (1/5) sum_j (beta_zjj + beta_jzj + beta_jjz)
              = (3/5) (beta_zzz + beta_zbb + beta_zcc) for the static tensor.
 
-Checks (--check, on by default), water, z along its C2 axis with +z along the
-dipole (from O towards the H atoms), molecule in the xz plane:
-  1. RHF/aug-cc-pVDZ (density fitting, the same field code): finite-field
-     mu, alpha, beta_zzz, beta_zxx, beta_zyy against PySCF's analytic
-     coupled-perturbed HF values (pyscf.prop.polarizability.rhf); sign and
-     stencil check.
-  2. CAM-B3LYP/aug-cc-pVDZ (the production code path): beta_zzz, beta_zxx
-     from the dipole stencils against the energy stencils
-     -d3E/dF_z^3 and -d3E/dF_z dF_x^2 (the analytic module lacks the XC
-     kernel derivative needed for a DFT beta, so no analytic value there).
+Checks (skipped with --no-check; each on water, z along its C2
+axis with +z along the dipole, from O towards the H atoms, molecule in the
+xz plane; test geometry r(OH) 0.9572 A, HOH 104.52 deg):
+  1. RHF/aug-cc-pVDZ (density fitting, the same field code and stencils):
+     finite-field mu, alpha, beta_zzz, beta_zxx, beta_zyy against PySCF's
+     analytic coupled-perturbed HF values (pyscf.prop.polarizability.rhf),
+     and the energy stencil for beta_zzz: stencil, sign and convention check.
+  2. CAM-B3LYP/aug-cc-pVDZ, grid level 4: beta_zzz and beta_zxx from the
+     dipole stencils against the energy stencils -d3E/dF_z^3 and
+     -d3E/dF_z dF_x^2 (the analytic module lacks the XC kernel derivative
+     needed for a DFT beta, so there is no analytic DFT value).
+  3. CAM-B3LYP water beta on grid levels 3 and 4 (grid sensitivity).
 """
 import argparse
 import json
@@ -401,7 +415,8 @@ def report_top(name, o):
         # error: spread of the two Richardson values, or the Richardson shift when there is one
         err = abs(R[0] - R[1]) if len(R) > 1 else abs(R[0] - vals[0])
         best[lab] = (R[0], err)
-        print("   beta_z%s%s%s %9.4f" % (lab, lab, "".join("%10.4f" % x for x in vals + R), err))
+        jj = "zz" if lab == "a" else lab + lab
+        print("   beta_z%s%s %9.4f" % (jj, "".join("%10.4f" % x for x in vals + R), err))
     eb = {float(k): v for k, v in o["energy_beta_aaa"].items()}
     ks = sorted(eb)
     line = "  ".join("h=%g %.4f" % (k, s * eb[k]) for k in ks)
@@ -432,6 +447,34 @@ def check_grid(cache):
     return vals
 
 
+
+# CCSD(T)/aug-cc-pVDZ values of tools/beta_finite_field.md (Taylor, a.u., frames of beta_finite_field.py)
+CCSDT_AVDZ = {"OCS": (-40.38, -44.04), "N2O": (59.79, 6.47)}
+
+
+def check_functional(cache):
+    """CAM-B3LYP/aug-cc-pVDZ beta of OCS and N2O (same code, steps 0.002 and
+    0.004, Richardson) against the project's CCSD(T)/aug-cc-pVDZ values: a
+    calibration of the functional for beta."""
+    import beta_finite_field as bff
+
+    print("\n== check 4: CAM-B3LYP/aug-cc-pVDZ against CCSD(T)/aug-cc-pVDZ (tools/beta_finite_field.md)", flush=True)
+    out = {}
+    for name, (czzz, czxx) in CCSDT_AVDZ.items():
+        mol = bff.build_mol(name, "aug-cc-pvdz")
+        mol.max_memory = 6000
+        run = FieldSCF(mol, "camb3lyp", os.path.join(cache, "calib_%s.json" % name))
+        hs = (0.002, 0.004)
+        dz = axis_derivatives(run, 2, hs)
+        dx = axis_derivatives(run, 0, hs, both_signs=False)  # linear molecule: mu_z even, mu_x odd in F_x
+        bzzz = rich(dz[0.002]["beta_zjj"], dz[0.004]["beta_zjj"])
+        bzxx = rich(dx[0.002]["beta_zjj"], dx[0.004]["beta_zjj"])
+        mu = run.point(np.zeros(3))[1][2]
+        out[name] = (mu, bzzz, bzxx)
+        print("   %-4s mu_z %+.4f  beta_zzz %8.3f (CCSD(T) %7.2f, ratio %.2f)  beta_zxx %8.3f (CCSD(T) %7.2f, ratio %.2f)"
+              % (name, mu, bzzz, czzz, bzzz / czzz, bzxx, czxx, bzxx / czxx))
+    return out
+
 def main():
     p = argparse.ArgumentParser()
     p.add_argument("--only", nargs="*", default=["benzonitrile", "iodobenzene"])
@@ -454,6 +497,7 @@ def main():
         check_hf(a.cache)
         check_dft(a.cache)
         check_grid(a.cache)
+        check_functional(a.cache)
 
 
 if __name__ == "__main__":

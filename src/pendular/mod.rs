@@ -76,16 +76,7 @@ pub fn pendular_at_angle(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64,
         let sign = if alpha.cos() < 0.0 { -1.0 } else { 1.0 };
         return pendular(mol, intensity_wcm2, sign * static_kv_cm, temperature_k, j_max);
     }
-    // The same checks as along Z, before the tilted work.
-    if !intensity_wcm2.is_finite() || !(0.0..=1e15).contains(&intensity_wcm2) {
-        return Err(Error::input("intensity_wcm2", format!("expected 0 to 1e15 W/cm², got {intensity_wcm2}")));
-    }
-    if !static_kv_cm.is_finite() || static_kv_cm.abs() > 1e4 {
-        return Err(Error::input("static_kv_cm", format!("expected at most 1e4 kV/cm in magnitude, got {static_kv_cm}")));
-    }
-    if !mol.is_polar() {
-        return Err(Error::input("molecule.dipole_debye", format!("a static field needs a polar molecule; {} has no permanent dipole", mol.name)));
-    }
+    check_fields(mol, intensity_wcm2, static_kv_cm)?;
     let Some(lin) = mol.as_linear() else {
         return Err(Error::input(
             "static_angle_deg",
@@ -98,6 +89,20 @@ pub fn pendular_at_angle(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64,
     let u0 = coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * intensity_wcm2;
     let s = dipole_rate_rad_per_ps(mol.dipole_debye, static_kv_cm);
     tilted::tilted_pendular(mol, lin, u0, s, alpha, temperature_k, j_max)
+}
+
+/// The field inputs of a pendular computation, checked once for every geometry.
+fn check_fields(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64) -> Result<()> {
+    if !intensity_wcm2.is_finite() || !(0.0..=1e15).contains(&intensity_wcm2) {
+        return Err(Error::input("intensity_wcm2", format!("expected 0 to 1e15 W/cm², got {intensity_wcm2}")));
+    }
+    if !static_kv_cm.is_finite() || static_kv_cm.abs() > 1e4 {
+        return Err(Error::input("static_kv_cm", format!("expected at most 1e4 kV/cm in magnitude, got {static_kv_cm}")));
+    }
+    if static_kv_cm != 0.0 && !mol.is_polar() {
+        return Err(Error::input("molecule.dipole_debye", format!("a static field needs a polar molecule; {} has no permanent dipole", mol.name)));
+    }
+    Ok(())
 }
 
 /// Dressed states of one |M| block (both parities of J) with `size` basis states, in rad/ps and
@@ -124,15 +129,7 @@ fn dressed_block(mol: &LinearRotor, m: u32, size: usize, u0: f64, s: f64) -> (Ve
 /// Without a static field the parity of J is conserved and states are labelled within each parity;
 /// the basis is enlarged until the reported energies change by less than 1e-10 B.
 pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64, j_max: u32) -> Result<PendularResult> {
-    if !intensity_wcm2.is_finite() || !(0.0..=1e15).contains(&intensity_wcm2) {
-        return Err(Error::input("intensity_wcm2", format!("expected 0 to 1e15 W/cm², got {intensity_wcm2}")));
-    }
-    if !static_kv_cm.is_finite() || static_kv_cm.abs() > 1e4 {
-        return Err(Error::input("static_kv_cm", format!("expected at most 1e4 kV/cm in magnitude, got {static_kv_cm}")));
-    }
-    if static_kv_cm != 0.0 && !mol.is_polar() {
-        return Err(Error::input("molecule.dipole_debye", format!("a static field needs a polar molecule; {} has no permanent dipole", mol.name)));
-    }
+    check_fields(mol, intensity_wcm2, static_kv_cm)?;
     let Some(lin) = mol.as_linear() else {
         return top_pendular(mol, intensity_wcm2, static_kv_cm, temperature_k);
     };

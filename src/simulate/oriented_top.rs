@@ -213,6 +213,11 @@ impl OrientedTopSolver {
         Ok(OrientedTopSolver { top, axis, beta: molecule.top_beta_au(), frame, blocks, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
     }
 
+    /// The bound on the two-colour operator T (per unit rate), 0 without a hyperpolarizability.
+    fn two_colour_bound(&self) -> f64 {
+        self.beta.map(|b| hyperpolarizability_operator(&b, &self.frame, self.top.dipole_axis).1).unwrap_or(0.0)
+    }
+
     /// Dipole coupling rate μE/ħ (rad/ps) of the static field at t.
     fn static_rate(&self, field: &FieldModel, t_ps: f64) -> f64 {
         field.static_field.map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.along_z_at(t_ps))).unwrap_or(0.0)
@@ -249,7 +254,7 @@ impl OrientedTopSolver {
                     .chain(field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)).map(|t| t.rms_duration_ps()))
                     .fold(f64::INFINITY, f64::min);
                 let mut peak: f64 = 0.0;
-                let t_bound = self.beta.map(|b| b.iter().map(|x| x.abs()).sum::<f64>() * 3.0).unwrap_or(0.0);
+                let t_bound = self.two_colour_bound();
                 for k in 0..=400 {
                     let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.axis);
                     peak = peak.max(r.u1.abs() + r.u2.abs() + r.g3.abs() * t_bound);
@@ -273,7 +278,7 @@ impl OrientedTopSolver {
         );
         let lasers = if aligning.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) { laser_reach(&self.top, self.thermal_j_max, &aligning)? } else { 0 };
         // The hyperpolarizability kicks: ∫ g3 dt times the bound on T, as the dipole kicks of terahertz pulses.
-        let t_bound = self.beta.map(|b| b.iter().map(|x| x.abs()).sum::<f64>() * 3.0).unwrap_or(0.0);
+        let t_bound = self.two_colour_bound();
         let hyper: f64 = field
             .two_colour
             .iter()
