@@ -346,6 +346,20 @@ mod tests {
     }
 
     #[test]
+    fn library_tops_with_hyperpolarizabilities_are_polar_asymmetric_and_valid() {
+        // β_dgg is taken along the dipole axis of an asymmetric top (the input rules); benzonitrile's and
+        // iodobenzene's come from tools/top_beta_finite_field.md, whose vector parts (3/5)Σβ_dgg are −7.14 and
+        // 75.40 a.u. (that note's table).
+        for (name, vector) in [("C6H5CN", -7.14), ("C6H5I", 75.40)] {
+            let m = Molecule::from_library(name, "molecule").unwrap();
+            let b = m.top_beta_au().expect("β_dgg");
+            assert!(m.kind() == RotorKind::AsymmetricTop && m.dipole_debye > 0.0, "{name}");
+            m.validate("molecule").unwrap();
+            assert!((0.6 * b.iter().sum::<f64>() - vector).abs() < 0.01, "{name}: {b:?}");
+        }
+    }
+
+    #[test]
     fn polar_molecules_of_the_library_carry_hyperpolarizabilities() {
         // Two-colour orientation needs β∥, β⊥ for the polar molecules (CO, OCS, N2O, HCl at least).
         for name in ["CO", "OCS", "N2O", "HCl"] {

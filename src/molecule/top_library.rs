@@ -2,6 +2,8 @@
 //! checked reference say "from memory". Polarizability tensors of polyatomic molecules were not found in
 //! a readable source: benzonitrile's and iodobenzene's come from our own computation
 //! (tools/polar_top_constants.md, about ±5 %); the others are estimates: give your own when they matter.
+//! Their hyperpolarizability components β_dgg are our own computation too (tools/top_beta_finite_field.md,
+//! about ±20 %).
 
 use super::Molecule;
 use super::library::Sourced;
@@ -49,6 +51,8 @@ const C3V_SPIN: &str = "three equivalent I = 1/2 nuclei about the C3 axis: K = 3
 const COMPUTED_ALPHA: &str = "our computation: static CAM-B3LYP/aug-cc-pVDZ (aug-cc-pVDZ-PP on I) at a B3LYP/def2-SVP geometry, principal inertia axes (tools/polar_top_constants.md; about ±5 %)";
 /// Ground-state constants and dipole of benzonitrile.
 const BENZONITRILE: &str = "K. Wohlfart, M. Schnell, J.-U. Grabow, J. Küpper, \"Precise dipole moment and quadrupole coupling constants of benzonitrile\", J. Mol. Spectrosc. 247, 119 (2008) (arXiv:0709.2984)";
+const BETA_BENZONITRILE: &str = "β_aaa, β_abb, β_acc (β_dgg, d = a along the dipole, from N into the ring): static electronic values, CAM-B3LYP/aug-cc-pVDZ finite-field dipoles (fields 0.001/0.002/0.004 a.u., Richardson, finite-field error ±0.01) at the B3LYP/def2-SVP geometry, computed for kicktrain with PySCF 2.14.0 by tools/top_beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability of water to 1.5e-3 a.u.); Taylor convention; method and basis uncertainty about ±20 % (CAM-B3LYP is 3–9 % below CCSD(T) for OCS and N2O in the same basis); no published value found";
+const BETA_IODOBENZENE: &str = "β_aaa, β_abb, β_acc (β_dgg, d = a along the dipole, from I into the ring): static electronic values, CAM-B3LYP/aug-cc-pVDZ (aug-cc-pVDZ-PP with its 28-electron pseudopotential on I) finite-field dipoles (fields 0.001/0.002 a.u., finite-field error ±0.03) at the B3LYP/def2-SVP geometry, computed for kicktrain with PySCF 2.14.0 by tools/top_beta_finite_field.py (stencils and sign checked against PySCF's analytic HF hyperpolarizability of water to 1.5e-3 a.u.); Taylor convention; method and basis uncertainty about ±20 %; no published value found";
 const NO_DATA: &str = "from memory (no readable source found; estimate)";
 
 impl TopEntry {
@@ -185,7 +189,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
             spin_weights_source: "C2(a) exchanges two proton pairs: Ka even : Ka odd = 20 : 12 (derived by character projection)",
             ionization_energy_ev: Some(s(8.69, "NIST Chemistry WebBook, from memory")),
-            beta_au: None,
+            beta_au: Some([s(41.58, BETA_IODOBENZENE), s(40.48, BETA_IODOBENZENE), s(43.61, BETA_IODOBENZENE)]),
         },
         TopEntry {
             name: "C6H5CN",
@@ -198,7 +202,7 @@ pub fn top_library() -> Vec<TopEntry> {
             spin_weights: TopSpinWeights::ByKaKc([20.0, 20.0, 12.0, 12.0]),
             spin_weights_source: "C2(a) exchanges two proton pairs (H2, H6 and H3, H5): Ka even : Ka odd = 10 : 6 (derived by character projection)",
             ionization_energy_ev: Some(s(9.73, "from memory")),
-            beta_au: None,
+            beta_au: Some([s(53.13, BETA_BENZONITRILE), s(-25.66, BETA_BENZONITRILE), s(-39.37, BETA_BENZONITRILE)]),
         },
         TopEntry {
             name: "C10H8",
