@@ -276,7 +276,15 @@ impl OrientedTopSolver {
                 .iter()
                 .map(|t| crate::field::Pulse { peak_intensity_wcm2: t.fundamental_intensity_wcm2 + t.second_harmonic_intensity_wcm2, ..t.envelope_pulse() }),
         );
-        let lasers = if aligning.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) { laser_reach(&self.top, self.thermal_j_max, &aligning)? } else { 0 };
+        let lasers = if aligning.pulses.iter().any(|p| p.peak_intensity_wcm2 > 0.0) {
+            laser_reach(&self.top, self.thermal_j_max, &aligning).map_err(|e| match e {
+                // Name the input that drives the basis when a two-colour pulse takes part.
+                Error::Input { message, .. } if !field.two_colour.is_empty() => Error::input("two_colour", message),
+                other => other,
+            })?
+        } else {
+            0
+        };
         // The hyperpolarizability kicks: ∫ g3 dt times the bound on T, as the dipole kicks of terahertz pulses.
         let t_bound = self.two_colour_bound();
         let hyper: f64 = field
