@@ -27,10 +27,11 @@
 //! The dressed states of a class are found as the lowest eigenpairs of its sparse Hamiltonian
 //! (`propagate::sparse::lowest_eigenpairs`); the basis grows until every reported number is converged.
 
-use super::{DressedState, PendularResult, dressed_block};
+use super::{DressedState, PendularResult};
 use crate::ensemble::ThermalEnsemble;
 use crate::error::{Error, Result};
 use crate::molecule::{LinearRotor, Molecule};
+use crate::propagate::polar::PolarOps;
 use crate::propagate::sparse::{Csr, lowest_eigenpairs};
 use crate::simulate::tilted::{Rows, SigmaOperators, initial_columns};
 use crate::units::cm_to_rad_per_ps;
@@ -66,8 +67,9 @@ fn solve(lin: &LinearRotor, u0: f64, s: f64, alpha: f64, j_top: i64, j_basis: i6
         // Stage one: static-dressed levels, (M_f, J, energy), ranked within each |M_f| block.
         let mut candidates: Vec<(i64, i64, f64)> = vec![];
         for mf in (if sigma > 0 { 0 } else { 1 })..=j_basis {
-            let (vals, _, _) = dressed_block(lin, mf as u32, (j_basis - mf + 1) as usize, 0.0, s);
-            candidates.extend(vals.iter().enumerate().map(|(r, &e)| (mf, mf + r as i64, e)));
+            // The same decomposition `initial_columns` rotates, so ranks and rotated states agree by construction.
+            let e = PolarOps::new(mf as u32, (j_basis - mf + 1) as usize, lin).static_eigen(s);
+            candidates.extend(e.eps.iter().enumerate().map(|(r, &e)| (mf, mf + r as i64, e)));
         }
         // Only levels up to the highest wanted one decide the ranks of the wanted ones.
         let e_max = candidates.iter().filter(|c| c.1 <= j_top).map(|c| c.2).fold(f64::NEG_INFINITY, f64::max);
