@@ -110,17 +110,11 @@ impl Goal {
 
 impl Goal {
     /// Check that `molecule` has what the goal's observable reads (a three-axis goal needs a top; ⟨cosθ_X⟩
-    /// is computed for linear molecules); errors name `{path}.observable`.
+    /// of the dipole axis is computed wherever the static field is tilted); errors name `{path}.observable`.
     pub fn check_rotor(&self, molecule: &Molecule, path: &str) -> Result<()> {
         let at = || if path.is_empty() { "observable".to_string() } else { format!("{path}.observable") };
         if self.observable == Observable::ThreeAxis && molecule.kind() == RotorKind::Linear {
             return Err(Error::input(at(), format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", molecule.name)));
-        }
-        if self.observable == Observable::CosX && molecule.kind() != RotorKind::Linear {
-            return Err(Error::input(
-                at(),
-                format!("a cos_x goal is available for linear molecules only; {} is a top (expected cos, cos2 or three_axis)", molecule.name),
-            ));
         }
         Ok(())
     }

@@ -212,15 +212,6 @@ impl Scenario {
                     format!("a static field needs a polar molecule, but {} has no permanent dipole (give dipole_debye)", self.molecule.name),
                 ));
             }
-            if self.field.static_without_axis() && self.molecule.as_top().is_some() {
-                return Err(Error::input(
-                    join(path, if sf.is_tilted() { "static_field.angle_deg" } else { "pulses.polarization" }),
-                    format!(
-                        "{} is a top: a static field at an angle to Z, or with pulses polarized away from Z, is available for linear molecules only so far; expected angle_deg 0 (or 180) and pulses along Z",
-                        self.molecule.name
-                    ),
-                ));
-            }
             if self.field.static_without_axis() && (!self.field.two_colour.is_empty() || !self.field.terahertz.is_empty()) {
                 return Err(Error::input(
                     join(path, if sf.is_tilted() { "static_field.angle_deg" } else { "pulses.polarization" }),

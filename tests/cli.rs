@@ -997,9 +997,9 @@ fn a_tilted_static_field_writes_the_orientation_with_every_lab_axis() {
 
 #[test]
 fn scenario_bad_static_field_angle() {
-    // Checks: an angle that is not a number or lies outside ±360°, and a top in a tilted static field (not
-    // modelled yet), fail with exit code 2 and a one-line error naming static_field.angle_deg; nothing is
-    // written.
+    // Checks: an angle that is not a number or lies outside ±360°, and a top in a tilted static field with
+    // a terahertz pulse (not modelled yet), fail with exit code 2 and a one-line error naming
+    // static_field.angle_deg; nothing is written.
     let mut v = good_scenario();
     v["molecule"] = json!("OCS");
     v["temperature_k"] = json!(1.0);
@@ -1009,7 +1009,9 @@ fn scenario_bad_static_field_angle() {
     simulate_fails_on("angle-range", &v, "static_field.angle_deg");
     v["molecule"] = json!("SO2");
     v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": 30});
-    simulate_fails_on("angle-top", &v, "static_field.angle_deg");
+    let mut thz = v.clone();
+    thz["terahertz"] = json!([{"center_ps": 0.0, "duration_fs": 500, "peak_field_kv_cm": 100}]);
+    simulate_fails_on("angle-top-terahertz", &thz, "static_field.angle_deg");
     // ⟨cos²θ_2D⟩ is not computed on this path: a goal on it is refused rather than scored as zero.
     v["molecule"] = json!("OCS");
     // A pulse too strong for the largest basis of this path (P ≈ 78 at J ≤ 80) is refused before any work.
@@ -1018,7 +1020,7 @@ fn scenario_bad_static_field_angle() {
     simulate_fails_on("angle-strong-pulse", &strong, "pulses");
     v["goal"] = json!({"kind": "peak", "observable": "cos2_2d", "window_ps": [0.1, 5.0], "step_fs": 50});
     simulate_fails_on("angle-2d-goal", &v, "goal.observable");
-    // ⟨cosθ_X⟩ is zero without a tilted field, and not computed for tops: refused, not scored as zero.
+    // ⟨cosθ_X⟩ is zero without a tilted field, for tops as for linear molecules: refused, not scored as zero.
     v["goal"] = json!({"kind": "peak", "observable": "cos_x", "window_ps": [0.1, 5.0], "step_fs": 50});
     v["static_field"] = json!({"strength_kv_cm": 10, "angle_deg": 180});
     simulate_fails_on("cos-x-along-z", &v, "goal.observable");

@@ -45,6 +45,15 @@ pub enum BlockSymmetry {
     /// A block of every J and M with one sign under the reflection through the XZ plane (fields in
     /// that plane that are not symmetric about one axis: a tilted static field).
     ReflectionXZ(i64),
+    /// A top's block of every J and M with one class of K (a parity, or ±K of a symmetric top) and one
+    /// sign under the reflection through the XZ plane combined with the body reflection that keeps the
+    /// dipole axis (a tilted static field).
+    KReflectionXZ {
+        /// The class of K.
+        class: Box<BlockSymmetry>,
+        /// +1 or −1.
+        sigma: i64,
+    },
     /// An all-M chunk: its level class, its sign under the two-fold rotation about Y, and the parity of
     /// M when the fields conserve it.
     AllM {
@@ -84,6 +93,7 @@ impl std::fmt::Display for BlockSymmetry {
             BlockSymmetry::KParity(p) => write!(f, "K {}", parity(*p)),
             BlockSymmetry::KParityReflection(p, sigma) => write!(f, "K {}, reflection {}", parity(*p), if *sigma > 0 { "+1" } else { "-1" }),
             BlockSymmetry::ReflectionXZ(sigma) => write!(f, "every J and M, reflection XZ {sigma:+}"),
+            BlockSymmetry::KReflectionXZ { class, sigma } => write!(f, "{class}, every J and M, reflection XZ {sigma:+}"),
             BlockSymmetry::AllM { class, c2y, m_parity } => {
                 match class.as_ref() {
                     BlockSymmetry::JParity(p) => write!(f, "J {}", parity(*p as i64))?,

@@ -73,6 +73,27 @@ impl Csr {
     pub fn nnz(&self) -> usize {
         self.val.len()
     }
+
+    /// x_cᵀ A x_c for every column c of states stored transposed (`xt` is `cols` × n column-major:
+    /// column r holds row r of every state).
+    pub fn quadratic_forms_t(&self, xt: &[f64], cols: usize) -> Vec<f64> {
+        assert_eq!(xt.len(), self.n * cols, "Csr::quadratic_forms_t: states and operator differ in size");
+        let mut out = vec![0.0; cols];
+        let mut y = vec![0.0; cols];
+        for r in 0..self.n {
+            y.iter_mut().for_each(|v| *v = 0.0);
+            for p in self.row_ptr[r]..self.row_ptr[r + 1] {
+                let (v, c) = (self.val[p], self.col[p]);
+                for (yv, xv) in y.iter_mut().zip(&xt[c * cols..(c + 1) * cols]) {
+                    *yv += v * xv;
+                }
+            }
+            for ((o, yv), xv) in out.iter_mut().zip(&y).zip(&xt[r * cols..(r + 1) * cols]) {
+                *o += yv * xv;
+            }
+        }
+        out
+    }
 }
 
 crate::numeric::wide_simd! {

@@ -195,20 +195,26 @@ pub fn simulation_text(s: &Value) -> String {
             }
         }
         if let Some(obj) = s["lab_orientation"].as_object() {
-            for (name, v) in obj.iter().filter(|(n, _)| !n.ends_with("_Y")) {
+            for (name, v) in obj.iter().filter(|(n, _)| !n.contains("cos_Y")) {
                 writeln!(o, "  {:<37}{}", format!("{} after last pulse", name.replace("strongest_cos_", "strongest ⟨cosθ⟩ ")), fmt_ext(v))?;
             }
         }
         writeln!(o, "  deepest anti-alignment ⟨cos²θ⟩      {}", fmt_ext(&s["min_cos2"]))?;
-        writeln!(o, "  permanent alignment ⟨cos²θ⟩         {:.4}", s["permanent_cos2"].as_f64().unwrap_or(f64::NAN))?;
+        match s["permanent_cos2"].as_f64() {
+            Some(v) => writeln!(o, "  permanent alignment ⟨cos²θ⟩         {v:.4}")?,
+            None => writeln!(o, "  permanent alignment ⟨cos²θ⟩         not computed (a tilted static field stays on)")?,
+        }
         if let Some(p) = s.get("peak_orientation").filter(|p| !p.is_null()) {
             writeln!(
                 o,
-                "  peak orientation ⟨cosθ⟩ after the last pulse {:.4} at {:.3} ps (towards {}); permanent {:.4}",
+                "  peak orientation ⟨cosθ⟩ after the last pulse {:.4} at {:.3} ps (towards {}); permanent {}",
                 p["cos"].as_f64().unwrap_or(0.0),
                 p["t_ps"].as_f64().unwrap_or(0.0),
                 p["sign"].as_str().unwrap_or("?"),
-                no_negative_zero(s["permanent_cos"].as_f64().unwrap_or(0.0), 4)
+                match s["permanent_cos"].as_f64() {
+                    Some(v) => format!("{:.4}", no_negative_zero(v, 4)),
+                    None => "not computed".to_string(),
+                }
             )?;
         }
         if let Some(fa) = s.get("focal_average").filter(|v| !v.is_null()) {

@@ -26,6 +26,7 @@ pub(crate) mod driver;
 pub mod lab_frame;
 pub mod oriented_top;
 pub(crate) mod tilted;
+pub(crate) mod tilted_top;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -175,6 +176,8 @@ pub struct Solver {
     lab: std::sync::OnceLock<lab_frame::LabSolver>,
     /// The solver for a linear molecule in a tilted static field (operators cached per block).
     tilted: tilted::TiltedSolver,
+    /// Operators of tops in a tilted static field, cached per class and top J.
+    tilted_top: tilted_top::TiltedTopCache,
     /// The solver for an asymmetric top in orienting fields (its own frame and blocks), built on first use.
     oriented: std::sync::OnceLock<Result<oriented_top::OrientedTopSolver>>,
     /// Blocks started and finished by this solver's runs (for a progress display).
@@ -251,6 +254,7 @@ impl Solver {
                 polar_cache: Mutex::new(HashMap::new()),
                 lab: Default::default(),
                 tilted: tilted::TiltedSolver::new(),
+                tilted_top: Default::default(),
                 oriented: Default::default(),
                 progress,
             });
@@ -266,6 +270,7 @@ impl Solver {
             polar_cache: Mutex::new(HashMap::new()),
             lab: Default::default(),
             tilted: tilted::TiltedSolver::new(),
+            tilted_top: Default::default(),
             oriented: Default::default(),
             progress: Arc::new(RunProgress::default()),
         })
@@ -327,8 +332,8 @@ impl Solver {
 
     /// The path [`Solver::run`] takes for `field` (the one place that decides it; the step estimate follows it).
     fn path(&self, field: &FieldModel) -> RunPath {
-        if field.static_without_axis() && self.molecule.kind() == RotorKind::Linear {
-            return RunPath::Tilted;
+        if field.static_without_axis() {
+            return if self.molecule.kind() == RotorKind::Linear { RunPath::Tilted } else { RunPath::TiltedTop };
         }
         if !field.is_symmetric_about_z() || field.static_field.is_some_and(|s| s.is_tilted()) {
             return RunPath::AllM;
@@ -347,7 +352,7 @@ impl Solver {
     pub fn time_steps(&self, field: &FieldModel) -> (f64, Option<(f64, f64, f64, f64)>) {
         let spans: Vec<(f64, f64, f64)> = match (self.path(field), self.top()) {
             (RunPath::Top | RunPath::AllM, Some(t)) => finite_spans(&t.schedule(field)),
-            (RunPath::OrientedTop, _) => {
+            (RunPath::OrientedTop | RunPath::TiltedTop, _) => {
                 let (a, b) = field.all_intervals().iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), s| (a.min(s.0), b.max(s.1)));
                 let (a, b) = if a.is_finite() { (a, b) } else { (0.0, 0.0) };
                 self.oriented().map(|o| finite_spans(&o.schedule(field, a, b))).unwrap_or_default()
@@ -618,7 +623,8 @@ impl Solver {
             return Err(Error::input("window", "sample times must be ascending"));
         }
         if self.top().is_some() {
-            return Err(Error::input("static_field.angle_deg", "a static field at an angle to Z is available for linear molecules only so far"));
+            self.check_time_steps(field)?;
+            return tilted_top::run(self.oriented()?, &self.tilted_top, field, times_ps, &self.progress);
         }
         self.check_strength(field)?;
         // A kick of strength P spreads the states over about P values of J: refuse what the largest basis of
@@ -662,7 +668,7 @@ impl Solver {
     pub fn run_for_goal(&self, field: &FieldModel, times_ps: &[f64], observable: Observable) -> Result<RunResult> {
         let with_2d = observable.needs_cos2_2d();
         let parity_breaking = field.is_polar() || self.settings.both_parities;
-        if !parity_breaking || matches!(self.path(field), RunPath::AllM | RunPath::Tilted) || times_ps.windows(2).any(|w| w[1] < w[0]) {
+        if !parity_breaking || matches!(self.path(field), RunPath::AllM | RunPath::Tilted | RunPath::TiltedTop) || times_ps.windows(2).any(|w| w[1] < w[0]) {
             return self.run(field, times_ps, with_2d);
         }
         let wanted = [true, with_2d, observable == Observable::Cos, false];
@@ -682,7 +688,7 @@ impl Solver {
         self.check_time_steps(field)?;
         match (self.path(field), self.top()) {
             (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
-            (RunPath::Tilted, _) => return self.run_tilted(field, times_ps),
+            (RunPath::Tilted | RunPath::TiltedTop, _) => return self.run_tilted(field, times_ps),
             (RunPath::PolarTop, Some(t)) => return self.run_polar_top(t, field, times_ps, ALL_POLAR),
             (RunPath::OrientedTop, _) => return self.oriented()?.run(field, times_ps, with_2d),
             (RunPath::Top, Some(t)) => return t.run(field, times_ps, with_2d),
@@ -1009,6 +1015,9 @@ enum RunPath {
     /// A linear molecule in a static field with a field that is not symmetric about Z (a tilted static
     /// field, or tilted or elliptical pulses): every J and M in two reflection blocks.
     Tilted,
+    /// A top in a static field with a field that is not symmetric about Z: every J and M in blocks of
+    /// one class of K and one sign under the reflection through XZ combined with a body reflection.
+    TiltedTop,
     /// A symmetric top in an orienting field: (K, M) blocks holding every J, coupled through the figure axis.
     PolarTop,
     /// A top in a field symmetric about Z that does not orient it.

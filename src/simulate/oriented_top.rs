@@ -195,6 +195,9 @@ pub struct OrientedTopSolver {
     beta: Option<[f64; 3]>,
     frame: TopFrame,
     blocks: Vec<OrientedBlock>,
+    /// The blocks in which a symmetric top's levels are dressed by a static field: one K each, since K is
+    /// conserved and levels of different K cross freely (None for asymmetric tops: `blocks`).
+    dressing: Option<Vec<OrientedBlock>>,
     thermal_j_max: i64,
     settings: SolverSettings,
     pub(super) progress: Arc<super::RunProgress>,
@@ -210,7 +213,8 @@ impl OrientedTopSolver {
         let mut axis = super::coupling::CoupledAxis::of(molecule);
         axis.beta_parallel_au = 0.0;
         axis.beta_perpendicular_au = 0.0;
-        Ok(OrientedTopSolver { top, axis, beta: molecule.top_beta_au(), frame, blocks, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
+        let dressing = frame.symmetric.then(|| class_blocks(&frame, &ensemble, true));
+        Ok(OrientedTopSolver { top, axis, beta: molecule.top_beta_au(), frame, blocks, dressing, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
     }
 
     /// The bound on the two-colour operator T (per unit rate), 0 without a hyperpolarizability.
@@ -267,7 +271,7 @@ impl OrientedTopSolver {
 
     /// Room (in J) above the thermal levels: the laser kicks, the static-field mixing (about
     /// sqrt(μE/C) levels) and the terahertz field areas.
-    fn reach(&self, field: &FieldModel) -> Result<i64> {
+    pub(super) fn reach(&self, field: &FieldModel) -> Result<i64> {
         // Two-colour pulses align through the polarizability of both colours as one laser pulse would.
         let mut aligning = field.clone();
         aligning.pulses.extend(
@@ -302,15 +306,10 @@ impl OrientedTopSolver {
         Ok(lasers + (2.0 * (s_max / c_rate).sqrt()).ceil() as i64 + (1.5 * (thz + hyper)).ceil() as i64 + 4)
     }
 
-    /// Run `field` and sample the observables at `times_ps` (ascending).
-    pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
-        if !field.two_colour.is_empty() && self.beta.is_none() {
-            return Err(Error::input(
-                "molecule.beta_au",
-                "a two-colour pulse on a top needs its hyperpolarizability components (beta_au in an inline molecule)",
-            ));
-        }
-        let reach = self.reach(field)?;
+    /// The schedule of a run sampled at `times_ps` and the time it starts: one finite interval over each
+    /// stretch where the static field or a pulse is on (the static field stays on past the last sample,
+    /// so the interval ends just after it); refuses more steps than `solver.max_steps`.
+    pub(super) fn plan(&self, field: &FieldModel, times_ps: &[f64]) -> Result<(Vec<Event>, f64)> {
         let elements = field.all_intervals();
         let first_element = elements.first().map(|s| s.0);
         let t_first = first_element.into_iter().chain(times_ps.first().copied()).fold(f64::INFINITY, f64::min);
@@ -330,6 +329,19 @@ impl OrientedTopSolver {
                 ),
             ));
         }
+        Ok((events, t_first))
+    }
+
+    /// Run `field` and sample the observables at `times_ps` (ascending).
+    pub fn run(&self, field: &FieldModel, times_ps: &[f64], with_2d: bool) -> Result<RunResult> {
+        if !field.two_colour.is_empty() && self.beta.is_none() {
+            return Err(Error::input(
+                "molecule.beta_au",
+                "a two-colour pulse on a top needs its hyperpolarizability components (beta_au in an inline molecule)",
+            ));
+        }
+        let reach = self.reach(field)?;
+        let (events, t_first) = self.plan(field, times_ps)?;
         let s0 = field
             .static_field
             .filter(|s| s.on_ps.is_none() && s.off_ps.is_none_or(|o| o >= t_first))
@@ -483,6 +495,115 @@ impl OrientedTopSolver {
             dressed_statics: None,
         }
     }
+}
+
+/// A thermal level after the static field it arrived in, as primitive amplitudes {(J, K) → c} at M = `m`
+/// of the frame with the dipole along z and the field along Z; `population` includes the number of
+/// identical blocks the level's block stands for (2 for M > 0: the mirror level at −M).
+pub(super) struct DressedStart {
+    pub m: i64,
+    pub amplitudes: Vec<((i64, i64), f64)>,
+    pub population: f64,
+}
+
+impl OrientedTopSolver {
+    /// The frame (dipole along z) of this solver.
+    pub(super) fn frame(&self) -> &TopFrame {
+        &self.frame
+    }
+
+    /// The top's constants.
+    pub(super) fn top(&self) -> &Top {
+        &self.top
+    }
+
+    /// The solver settings.
+    pub(super) fn settings(&self) -> &SolverSettings {
+        &self.settings
+    }
+
+    /// The dipole axis and its coupling constants.
+    pub(super) fn axis(&self) -> &super::coupling::CoupledAxis {
+        &self.axis
+    }
+
+    /// Every thermal level of the ensemble dressed by a static field along Z of dipole rate `s0` (rad/ps;
+    /// 0: field-free levels) by adiabatic correlation within its class — M, the parity of K (K itself for
+    /// a symmetric top) and at M = 0 the reflection (the n-th lowest field-free level of a block becomes
+    /// its n-th lowest dressed state), each block's basis grown until the dressed
+    /// states hold less than the edge tolerance in their top two J values.
+    pub(super) fn dressed_starts(&self, s0: f64) -> Result<Vec<DressedStart>> {
+        let c_rate = cm_to_rad_per_ps(self.top.c_cm);
+        let room = (2.0 * (s0.abs() / c_rate).sqrt()).ceil() as i64 + 4;
+        let per_block: Vec<Vec<DressedStart>> = self
+            .dressing
+            .as_ref()
+            .unwrap_or(&self.blocks)
+            .par_iter()
+            .map(|b| {
+                let first = b.starts.iter().map(|s| s.j).max().unwrap_or(0) + room;
+                grow_basis(
+                    first as usize,
+                    MAX_J as usize,
+                    |j_max| {
+                        let ops = OrientedOps::new(&self.top, &self.frame, TopBlock { m: b.m, sym: b.sym, j_max: j_max as i64 }, false, None);
+                        Ok(dressed_block_starts(&ops, b, s0, self.settings.edge_tolerance))
+                    },
+                    || Error::Numerical(format!("block M = {}, {:?}: the static-field dressed states would need J > {MAX_J}", b.m, b.sym)),
+                )
+            })
+            .collect::<Result<_>>()?;
+        Ok(per_block.into_iter().flatten().collect())
+    }
+}
+
+/// The dressed (or, for `s0` = 0, field-free) thermal levels of one block, None when a dressed state
+/// reaches the basis edge.
+fn dressed_block_starts(ops: &OrientedOps, b: &OrientedBlock, s0: f64, tolerance: f64) -> Option<Vec<DressedStart>> {
+    let basis = &ops.basis;
+    let n = basis.size();
+    let p = block_populations(basis, &b.starts);
+    let levels: Vec<usize> = (0..n).filter(|&i| p[i] > 1e-300).collect();
+    let mut cols = DMatrix::zeros(n, levels.len());
+    if s0 != 0.0 {
+        let mut order: Vec<usize> = (0..n).collect();
+        order.sort_by(|&x, &y| ops.omega[x].total_cmp(&ops.omega[y]).then(x.cmp(&y)));
+        let mut rank = vec![0; n];
+        for (r, &i) in order.iter().enumerate() {
+            rank[i] = r;
+        }
+        let dressed = ops.dressed(s0);
+        for (c, &i) in levels.iter().enumerate() {
+            cols.set_column(c, &dressed.1.column(rank[i]));
+        }
+    } else {
+        for (c, &i) in levels.iter().enumerate() {
+            cols[(i, c)] = 1.0;
+        }
+    }
+    let edge = ops.edge_states();
+    for c in 0..levels.len() {
+        if (n - edge..n).map(|r| cols[(r, c)].powi(2)).sum::<f64>() > tolerance {
+            return None;
+        }
+    }
+    let mut out = vec![];
+    for (c, &i) in levels.iter().enumerate() {
+        let mut amps: Vec<((i64, i64), f64)> = vec![];
+        for (r, &(j, start, len)) in basis.j_ranges.iter().enumerate() {
+            let v = &basis.vectors[r];
+            for f in 0..len {
+                let a: f64 = (0..len).map(|e| v[(f, e)] * cols[(start + e, c)]).sum();
+                if a == 0.0 {
+                    continue;
+                }
+                let (comps, nc) = basis.functions[start + f].components();
+                amps.extend(comps[..nc].iter().map(|&(k, w)| ((j, k), w * a)));
+            }
+        }
+        out.push(DressedStart { m: b.m, amplitudes: amps, population: p[i] * b.weight });
+    }
+    Some(out)
 }
 
 /// Time averages of the observables of a block left in a static field (rate `s` rad/ps): the diagonal

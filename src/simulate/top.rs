@@ -21,6 +21,7 @@ use crate::propagate::polar::PolarOps;
 use crate::propagate::sparse::{Csr, chebyshev_kick_transposed, with_scratch};
 use crate::scenario::{Method, SolverSettings};
 use crate::units::cm_to_rad_per_ps;
+use nalgebra::DMatrix;
 use rayon::prelude::*;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex};
@@ -101,26 +102,39 @@ impl TopOps {
 /// Exact kick exp(iθC) of a coupling C (function basis, spectrum in [0, 1]) on all states of a block
 /// (eigenbasis in and out).
 pub(super) fn kick_through_functions(basis: &TopBlockBasis, coupling: &Csr, state: &mut BlockState, theta: f64) {
+    let groups: Vec<(usize, usize, &DMatrix<f64>)> = basis.j_ranges.iter().zip(&basis.vectors).map(|(&(_, s, len), v)| (s, len, v)).collect();
+    kick_through_groups(&groups, coupling, state, theta);
+}
+
+/// As [`kick_through_functions`] for a basis cut into groups (first index, length, eigenvectors as
+/// columns in the group's functions) of any kind.
+pub(super) fn kick_through_groups(groups: &[(usize, usize, &DMatrix<f64>)], coupling: &Csr, state: &mut BlockState, theta: f64) {
     if theta == 0.0 {
         return;
     }
     let (n, cols) = state.psi.shape();
     with_scratch(n * cols, |f| {
-        // f = (V ψ)ᵀ per J range: the function-basis states, transposed (cols × n) for the sparse
-        // products, computed and undone by strided products without copies.
-        for (r, &(_, s, len)) in basis.j_ranges.iter().enumerate() {
-            let v = Strided { data: basis.vectors[r].as_slice(), offset: 0, shape: (len, len), strides: (1, len) };
-            let vt = Strided { strides: (len, 1), ..v };
-            let psi_rows_t = Strided { data: state.psi.as_slice(), offset: s, shape: (cols, len), strides: (n, 1) };
-            gemm_strided(psi_rows_t, vt, f, s * cols, (1, cols));
-        }
+        to_functions_t(groups, &state.psi, f);
         chebyshev_kick_transposed(coupling, theta, f, cols);
-        for (r, &(_, s, len)) in basis.j_ranges.iter().enumerate() {
-            let vt = Strided { data: basis.vectors[r].as_slice(), offset: 0, shape: (len, len), strides: (len, 1) };
+        // Undo: ψ = Vᵀ f per group.
+        for &(s, len, v) in groups {
+            let vt = Strided { data: v.as_slice(), offset: 0, shape: (len, len), strides: (len, 1) };
             let f_rows = Strided { data: f, offset: s * cols, shape: (len, cols), strides: (cols, 1) };
             gemm_strided(vt, f_rows, state.psi.as_mut_slice(), s, (1, n));
         }
     });
+}
+
+/// f = (V ψ)ᵀ per group: the function-basis states, transposed (columns × n) for sparse products,
+/// computed by strided products without copies.
+pub(super) fn to_functions_t(groups: &[(usize, usize, &DMatrix<f64>)], psi: &DMatrix<f64>, f: &mut [f64]) {
+    let (n, cols) = psi.shape();
+    for &(s, len, v) in groups {
+        let v = Strided { data: v.as_slice(), offset: 0, shape: (len, len), strides: (1, len) };
+        let vt = Strided { strides: (len, 1), ..v };
+        let psi_rows_t = Strided { data: psi.as_slice(), offset: s, shape: (cols, len), strides: (n, 1) };
+        gemm_strided(psi_rows_t, vt, f, s * cols, (1, cols));
+    }
 }
 
 /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for a banded O (eigenbasis), one matrix product per stored block.
@@ -222,7 +236,7 @@ fn polar_field_key(field: &FieldModel) -> &'static str {
 
 /// Total kick strength P (rad) of the laser pulses for the top's anisotropy Δα = α_max − α_min (each
 /// capped at the reach of an adiabatic pulse).
-fn laser_strengths(top: &Top, field: &FieldModel) -> f64 {
+pub(super) fn laser_strengths(top: &Top, field: &FieldModel) -> f64 {
     let da = top.delta_alpha_a3();
     let b = cm_to_rad_per_ps(top.c_cm);
     field
