@@ -414,24 +414,7 @@ impl OrientedTopSolver {
             return Ok(Some(self.empty_outcome(ops, b, times.len())));
         }
         let pops: Vec<f64> = levels.iter().map(|&i| p[i]).collect();
-        let state = if s0 != 0.0 {
-            // The n-th lowest field-free level of the class becomes its n-th lowest dressed state.
-            let mut order: Vec<usize> = (0..n).collect();
-            order.sort_by(|&x, &y| ops.omega[x].total_cmp(&ops.omega[y]).then(x.cmp(&y)));
-            let mut rank = vec![0; n];
-            for (r, &i) in order.iter().enumerate() {
-                rank[i] = r;
-            }
-            let dressed = ops.dressed(s0);
-            let vecs = &dressed.1;
-            let mut cols = DMatrix::zeros(n, levels.len());
-            for (c, &i) in levels.iter().enumerate() {
-                cols.set_column(c, &vecs.column(rank[i]));
-            }
-            BlockState::from_columns(&cols, t_first)
-        } else {
-            BlockState::new(n, &levels, t_first)
-        };
+        let state = if s0 != 0.0 { BlockState::from_columns(&dressed_columns(ops, &levels, s0), t_first) } else { BlockState::new(n, &levels, t_first) };
         let kernel = OrientedKernel {
             solver: self,
             ops,
@@ -517,6 +500,11 @@ impl OrientedTopSolver {
         &self.top
     }
 
+    /// Highest J of the thermal ensemble.
+    pub(super) fn thermal_j_max(&self) -> i64 {
+        self.thermal_j_max
+    }
+
     /// The solver settings.
     pub(super) fn settings(&self) -> &SolverSettings {
         &self.settings
@@ -557,6 +545,24 @@ impl OrientedTopSolver {
     }
 }
 
+/// The dressed states (columns, eigenbasis) of H0 − s0 Φ_Zz that the field-free `levels` of a block
+/// correlate with: the n-th lowest field-free level of the class becomes its n-th lowest dressed state.
+fn dressed_columns(ops: &OrientedOps, levels: &[usize], s0: f64) -> DMatrix<f64> {
+    let n = ops.omega.len();
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&x, &y| ops.omega[x].total_cmp(&ops.omega[y]).then(x.cmp(&y)));
+    let mut rank = vec![0; n];
+    for (r, &i) in order.iter().enumerate() {
+        rank[i] = r;
+    }
+    let dressed = ops.dressed(s0);
+    let mut cols = DMatrix::zeros(n, levels.len());
+    for (c, &i) in levels.iter().enumerate() {
+        cols.set_column(c, &dressed.1.column(rank[i]));
+    }
+    cols
+}
+
 /// The dressed (or, for `s0` = 0, field-free) thermal levels of one block, None when a dressed state
 /// reaches the basis edge.
 fn dressed_block_starts(ops: &OrientedOps, b: &OrientedBlock, s0: f64, tolerance: f64) -> Option<Vec<DressedStart>> {
@@ -564,23 +570,15 @@ fn dressed_block_starts(ops: &OrientedOps, b: &OrientedBlock, s0: f64, tolerance
     let n = basis.size();
     let p = block_populations(basis, &b.starts);
     let levels: Vec<usize> = (0..n).filter(|&i| p[i] > 1e-300).collect();
-    let mut cols = DMatrix::zeros(n, levels.len());
-    if s0 != 0.0 {
-        let mut order: Vec<usize> = (0..n).collect();
-        order.sort_by(|&x, &y| ops.omega[x].total_cmp(&ops.omega[y]).then(x.cmp(&y)));
-        let mut rank = vec![0; n];
-        for (r, &i) in order.iter().enumerate() {
-            rank[i] = r;
-        }
-        let dressed = ops.dressed(s0);
-        for (c, &i) in levels.iter().enumerate() {
-            cols.set_column(c, &dressed.1.column(rank[i]));
-        }
+    let cols = if s0 != 0.0 {
+        dressed_columns(ops, &levels, s0)
     } else {
-        for (c, &i) in levels.iter().enumerate() {
-            cols[(i, c)] = 1.0;
+        let mut c = DMatrix::zeros(n, levels.len());
+        for (k, &i) in levels.iter().enumerate() {
+            c[(i, k)] = 1.0;
         }
-    }
+        c
+    };
     let edge = ops.edge_states();
     for c in 0..levels.len() {
         if (n - edge..n).map(|r| cols[(r, c)].powi(2)).sum::<f64>() > tolerance {

@@ -318,9 +318,25 @@ impl TiltedOps {
 }
 
 /// The laser weights (ZZ, XX, XZ + ZX) of a polarization (spectrum of the coupling in [0, 1]).
-fn laser_weights(p: &PulsePolarization) -> [f64; 3] {
+pub(crate) fn laser_weights(p: &PulsePolarization) -> [f64; 3] {
     let w = Polarization { angle_rad: p.angle_deg.to_radians(), ellipticity: p.ellipticity }.coupling_weights();
     [w[0].2, w[1].2, w[2].2]
+}
+
+/// The laser angles of a substep `h` at `t` (ps) of the pulses `pulses` of `field` on an anisotropy Δα:
+/// the weights (ZZ, XX, XZ + ZX) and their total (the spectrum of the coupling lies in [0, total]).
+pub(crate) fn laser_angles(field: &FieldModel, pulses: &[usize], delta_alpha_a3: f64, t: f64, h: f64) -> ([f64; 3], f64) {
+    let mut laser = [0.0; 3];
+    let mut total = 0.0;
+    for &i in pulses {
+        let p = &field.pulses[i];
+        let r = coupling_rad_per_ps_per_a3_wcm2() * delta_alpha_a3 * p.peak_intensity_wcm2 * p.envelope(t);
+        total += h * r;
+        for (x, w) in laser.iter_mut().zip(laser_weights(&p.polarization)) {
+            *x += h * r * w;
+        }
+    }
+    (laser, total)
 }
 
 /// One element of the schedule: a laser event or a static-field switch.
@@ -428,17 +444,7 @@ impl super::driver::Kernel for TiltedKernel<'_> {
 
     fn finite_kick(&self, _index: usize, item: &TiltedItem, st: &mut BlockState, t: f64, h: f64) {
         let TiltedItem::Laser(Event::Finite { pulses, .. }) = item else { return };
-        let field = self.run.field;
-        let mut laser = [0.0; 3];
-        let mut total = 0.0;
-        for &i in pulses {
-            let p = &field.pulses[i];
-            let r = coupling_rad_per_ps_per_a3_wcm2() * self.run.delta_alpha_a3 * p.peak_intensity_wcm2 * p.envelope(t);
-            total += h * r;
-            for (x, w) in laser.iter_mut().zip(laser_weights(&p.polarization)) {
-                *x += h * r * w;
-            }
-        }
+        let (laser, total) = laser_angles(self.run.field, pulses, self.run.delta_alpha_a3, t, h);
         let theta_s = h * self.run.static_rate(t);
         self.ops.kick(st, laser, total, theta_s, self.run.angle_rad, &mut self.combined.borrow_mut());
     }

@@ -26,23 +26,24 @@
 //! are taken from the propagated states; a field-free stretch (the static field switched off) is sampled
 //! by free phases from the state at its start.
 
-use super::driver::{Kernel, ORIENTED_STEP, grow_basis, walk};
+use super::driver::{Kernel, TILTED_TOP_STEP, grow_basis, walk};
 use super::oriented_top::{DressedStart, OrientedTopSolver};
+use super::tilted::{laser_angles, laser_weights};
 use super::top::{kick_through_groups, to_functions_t};
 use super::{BlockReport, Event, RunResult};
 use crate::basis::BlockSymmetry;
-use crate::basis::lab::{LabAxis, LabOperator, Polarization, body_square, factored_operator, lab_pair};
+use crate::basis::lab::{LabAxis, LabOperator, body_square, factored_operator, lab_pair};
 use crate::basis::top::TopFrame;
 use crate::basis::wigner::small_d_series;
 use crate::error::{Error, Result};
-use crate::field::{FieldModel, PulsePolarization};
+use crate::field::FieldModel;
 use crate::molecule::top::{BodyAxis, Top};
 use crate::numeric::sorted_eigen;
 use crate::observe::{BodyAxes, LabAxisSeries, LevelSums, Orientation, Trace};
 use crate::propagate::sparse::{Csr, with_scratch};
 use crate::propagate::{BlockState, FreePhases};
 use crate::scenario::SolverSettings;
-use crate::units::{cm_to_rad_per_ps, coupling_rad_per_ps_per_a3_wcm2, dipole_rate_rad_per_ps};
+use crate::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
 use nalgebra::DMatrix;
 use rayon::prelude::*;
 use std::collections::HashMap;
@@ -384,12 +385,6 @@ impl TiltedTopOps {
     }
 }
 
-/// The laser weights (ZZ, XX, XZ + ZX) of a polarization (spectrum of the coupling in [0, 1]).
-fn laser_weights(p: &PulsePolarization) -> [f64; 3] {
-    let w = Polarization { angle_rad: p.angle_deg.to_radians(), ellipticity: p.ellipticity }.coupling_weights();
-    [w[0].2, w[1].2, w[2].2]
-}
-
 /// What the chunks of one run share.
 struct TiltedTopRun<'a> {
     field: &'a FieldModel,
@@ -451,17 +446,7 @@ impl Kernel for TiltedTopKernel<'_> {
 
     fn finite_kick(&self, _index: usize, item: &Event, st: &mut BlockState, t: f64, h: f64) {
         let Event::Finite { pulses, .. } = item else { return };
-        let field = self.run.field;
-        let mut laser = [0.0; 3];
-        let mut total = 0.0;
-        for &i in pulses {
-            let p = &field.pulses[i];
-            let r = coupling_rad_per_ps_per_a3_wcm2() * self.run.delta_alpha_a3 * p.peak_intensity_wcm2 * p.envelope(t);
-            total += h * r;
-            for (x, w) in laser.iter_mut().zip(laser_weights(&p.polarization)) {
-                *x += h * r * w;
-            }
-        }
+        let (laser, total) = laser_angles(self.run.field, pulses, self.run.delta_alpha_a3, t, h);
         let theta_s = h * self.run.static_rate(t);
         self.ops.kick(st, laser, total, theta_s, self.run.angle_rad, &mut self.combined.borrow_mut());
     }
@@ -472,8 +457,8 @@ impl Kernel for TiltedTopKernel<'_> {
 
     fn step(&self, step_ps: f64) -> f64 {
         let s_max = self.run.field.static_field.map(|s| dipole_rate_rad_per_ps(self.run.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
-        let step = ORIENTED_STEP.in_block(self.run.settings, step_ps, self.ops.fastest);
-        if self.run.settings.step_fs.is_some() || s_max == 0.0 { step } else { step.min(ORIENTED_STEP.coupling / s_max) }
+        let step = TILTED_TOP_STEP.in_block(self.run.settings, step_ps, self.ops.fastest);
+        if self.run.settings.step_fs.is_some() || s_max == 0.0 { step } else { step.min(TILTED_TOP_STEP.coupling / s_max) }
     }
 }
 
@@ -581,9 +566,20 @@ pub(super) fn run(solver: &OrientedTopSolver, cache: &TiltedTopCache, field: &Fi
     // Room above the thermal levels: every M of every J is in one basis (cost ∝ J⁴ with the steps), so
     // start tight as the all-M chunks do and let the edge check grow the basis; the static-field mixing
     // is already in the dressed states.
-    solver.reach(field)?;
-    let reach = (1.2 * super::top::laser_strengths(top, field)).ceil() as i64 + 6;
+    solver.reach(field)?; // its refusals of fields no top basis holds
+    let reach = (0.8 * super::top::laser_strengths(top, field)).ceil() as i64 + 6;
     let (events, t_first) = solver.plan(field, times)?;
+    let cap = MAX_TILTED_TOP_J;
+    let refuse = || {
+        Error::input(
+            if field.pulses.is_empty() { "static_field.strength_kv_cm" } else { "pulses" },
+            format!("the fields and temperature would need the tilted-field basis of a top beyond J = {cap}; expected weaker fields or a lower temperature"),
+        )
+    };
+    // The thermal levels alone (before the static field mixes them) must leave room for the pulses.
+    if solver.thermal_j_max() + reach > cap {
+        return Err(refuse());
+    }
     let angle_rad = field.static_field.map(|s| s.angle_deg.to_radians()).unwrap_or(0.0);
     let switches: Vec<f64> = field.static_field.map(|s| s.on_ps.into_iter().chain(s.off_ps).collect()).unwrap_or_default();
     let mut breaks: Vec<f64> = field.pulses.iter().flat_map(|p| p.breakpoints_ps()).collect();
@@ -608,13 +604,9 @@ pub(super) fn run(solver: &OrientedTopSolver, cache: &TiltedTopCache, field: &Fi
             rest = tail;
         }
     }
-    let cap = MAX_TILTED_TOP_J;
     let j_thermal = chunks.iter().flat_map(|c| c.1.iter().map(|x| x.j_top)).max().unwrap_or(0);
     if j_thermal + reach > cap {
-        return Err(Error::input(
-            if field.pulses.is_empty() { "static_field.strength_kv_cm" } else { "pulses" },
-            format!("the fields and temperature would need the tilted-field basis of a top beyond J = {cap}; expected weaker fields or a lower temperature"),
-        ));
+        return Err(refuse());
     }
     let largest = {
         let j = (j_thermal + reach) as f64;
