@@ -656,12 +656,6 @@ impl Objective {
                 "⟨cos²θ_2D⟩ is not computed yet in a static field that is tilted or joined by pulses polarized away from Z; expected cos2 or cos",
             ));
         }
-        if (polarized || tilted) && obj.space.static_field_kv_cm.is_some() && obj.molecule().as_top().is_some() {
-            return Err(Error::input(
-                if polarized { "pulses.polarization" } else { "static_field_angle_deg" },
-                "a static field with pulses polarized away from Z, or a tilted static field, is available for linear molecules only so far",
-            ));
-        }
         // The longest design must replay as a valid scenario: check before any search starts.
         let longest = obj.space.field(&vec![1.0; obj.space.dims()]);
         // The strongest design must fit the largest basis the solver allows: its kick strength when the

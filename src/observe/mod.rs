@@ -765,9 +765,11 @@ impl Trace {
         }
     }
 
-    /// ⟨cosθ⟩ of a linear molecule's axis with `lab` (None when the run did not compute it).
+    /// ⟨cosθ⟩ of a linear molecule's axis, or of a top's dipole axis, with `lab` (None when the run did not
+    /// compute it).
     pub fn lab_cos(&self, lab: crate::basis::lab::LabAxis) -> Option<&[f64]> {
-        self.lab_cos.iter().find(|s| s.lab == lab && s.body.is_none()).map(|s| s.values.as_slice())
+        // One oriented axis per run: the molecular axis, or a top's dipole axis.
+        self.lab_cos.iter().find(|s| s.lab == lab).map(|s| s.values.as_slice())
     }
 
     /// ⟨cos²⟩ of `body` with `lab` (None when the run did not compute it).
