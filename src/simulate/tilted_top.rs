@@ -610,8 +610,9 @@ pub(super) fn run(solver: &OrientedTopSolver, cache: &TiltedTopCache, field: &Fi
     }
     let largest = {
         let j = (j_thermal + reach) as f64;
-        // States of one class up to J: about (J + 1)³ (2/3) / 4 for one parity of K.
-        (j + 1.0).powi(3) * if frame.symmetric { 1.0 } else { 2.0 / 3.0 } / 2.0
+        // States of one class up to J: Σ (2J + 1)²/4 ≈ (J + 1)³/3 for one parity of K, Σ (2J + 1) ≈ (J + 1)²
+        // for ±K of a symmetric top.
+        if frame.symmetric { (j + 1.0).powi(2) } else { (j + 1.0).powi(3) / 3.0 }
     };
     // Coupling parts and observables (about 17 stored matrices of ~70 elements a row) per cached class.
     crate::resources::check_memory(
