@@ -5,11 +5,9 @@ use kicktrain::molecule::Molecule;
 use kicktrain::optics::focal::FocalAverage;
 use kicktrain::scenario::{Scenario, SolverSettings};
 use kicktrain::simulate::{Solver, simulate};
-
-fn grid(start: f64, stop: f64, step: f64) -> Vec<f64> {
-    let n = ((stop - start) / step).round() as usize;
-    (0..=n).map(|i| start + i as f64 * step).collect()
-}
+#[path = "common/series.rs"]
+mod series;
+use series::grid;
 
 #[test]
 fn a_uniform_pump_leaves_the_trace_unchanged() {

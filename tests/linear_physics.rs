@@ -13,22 +13,16 @@ use kicktrain::propagate::{BlockOps, BlockState, FiniteSpan, propagate_finite, p
 use kicktrain::scenario::{Method, SolverSettings};
 use kicktrain::simulate::Solver;
 use kicktrain::units::revival_period_ps;
+#[path = "common/series.rs"]
+mod series;
+use series::{grid, max_diff};
 
 fn lib(name: &str) -> Molecule {
     Molecule::from_library(name, "molecule").unwrap()
 }
 
-fn grid(start: f64, stop: f64, step_ps: f64) -> Vec<f64> {
-    let n = ((stop - start) / step_ps).round() as usize;
-    (0..=n).map(|i| start + i as f64 * step_ps).collect()
-}
-
 fn settings(method: Method) -> SolverSettings {
     SolverSettings { method, ..Default::default() }
-}
-
-fn max_diff(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
 }
 
 #[test]

@@ -12,18 +12,12 @@ use kicktrain::propagate::polar::PolarOps;
 use kicktrain::scenario::{Method, SolverSettings};
 use kicktrain::simulate::Solver;
 use kicktrain::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
+#[path = "common/series.rs"]
+mod series;
+use series::{grid, max_diff};
 
 fn lib(name: &str) -> Molecule {
     Molecule::from_library(name, "molecule").unwrap()
-}
-
-fn grid(start: f64, stop: f64, step: f64) -> Vec<f64> {
-    let n = ((stop - start) / step).round() as usize;
-    (0..=n).map(|i| start + i as f64 * step).collect()
-}
-
-fn max_diff(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
 }
 
 #[test]

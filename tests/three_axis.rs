@@ -7,6 +7,9 @@ use kicktrain::molecule::top::Top;
 use kicktrain::observe::Trace;
 use kicktrain::scenario::{Method, SolverSettings};
 use kicktrain::simulate::Solver;
+#[path = "common/series.rs"]
+mod series;
+use series::max_diff;
 
 /// The asymmetric top of the speed target: (A, B, C) = (0.19, 0.025, 0.022) cm⁻¹, α = (20, 12, 9) Å³ (demo values).
 fn asymmetric() -> Molecule {
@@ -19,11 +22,6 @@ fn pulse(center_ps: f64, fwhm_fs: f64, intensity: f64, angle_deg: f64, elliptici
 
 fn column<'a>(t: &'a Trace, name: &str) -> &'a [f64] {
     &t.lab_axes.iter().find(|c| c.name == name).unwrap_or_else(|| panic!("no column {name}")).values
-}
-
-fn max_diff(a: &[f64], b: &[f64]) -> f64 {
-    assert_eq!(a.len(), b.len());
-    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
 }
 
 #[test]

@@ -2,31 +2,17 @@
 //! against the M-conserving solver at angle 0, exact symmetries, second-order Stark theory and an
 //! independent numpy reference (tools/reference/tilted_static_reference.py).
 
-use kicktrain::field::{FieldModel, Pulse, PulsePolarization, StaticField};
+use kicktrain::field::{FieldModel, Pulse, PulsePolarization};
 use kicktrain::molecule::Molecule;
 use kicktrain::scenario::SolverSettings;
 use kicktrain::simulate::Solver;
 use kicktrain::units::dipole_rate_rad_per_ps;
+#[path = "common/series.rs"]
+mod series;
+use series::{grid, max_diff, series, static_field};
 
 fn ocs() -> Molecule {
     Molecule::from_library("OCS", "molecule").unwrap()
-}
-
-fn grid(start: f64, stop: f64, step: f64) -> Vec<f64> {
-    let n = ((stop - start) / step).round() as usize;
-    (0..=n).map(|i| start + i as f64 * step).collect()
-}
-
-fn max_diff(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
-}
-
-fn static_field(kv: f64, angle_deg: f64) -> Option<StaticField> {
-    Some(StaticField { strength_kv_cm: kv, angle_deg, on_ps: None, off_ps: None })
-}
-
-fn series<'a>(t: &'a kicktrain::observe::Trace, name: &str) -> &'a [f64] {
-    t.lab_axes.iter().chain(&t.lab_cos).find(|s| s.name == name).map(|s| s.values.as_slice()).unwrap_or_else(|| panic!("no column {name}"))
 }
 
 #[test]

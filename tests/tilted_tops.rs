@@ -3,27 +3,13 @@
 //! against the M-conserving paths at angle 0, exact symmetries, sum rules and an independent numpy
 //! reference (tools/reference/tilted_top_reference.py).
 
-use kicktrain::field::{FieldModel, Pulse, PulsePolarization, StaticField};
+use kicktrain::field::{FieldModel, Pulse, PulsePolarization};
 use kicktrain::molecule::Molecule;
 use kicktrain::scenario::SolverSettings;
 use kicktrain::simulate::Solver;
-
-fn grid(start: f64, stop: f64, step: f64) -> Vec<f64> {
-    let n = ((stop - start) / step).round() as usize;
-    (0..=n).map(|i| start + i as f64 * step).collect()
-}
-
-fn max_diff(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
-}
-
-fn static_field(kv: f64, angle_deg: f64) -> Option<StaticField> {
-    Some(StaticField { strength_kv_cm: kv, angle_deg, on_ps: None, off_ps: None })
-}
-
-fn series<'a>(t: &'a kicktrain::observe::Trace, name: &str) -> &'a [f64] {
-    t.lab_axes.iter().chain(&t.lab_cos).find(|s| s.name == name).map(|s| s.values.as_slice()).unwrap_or_else(|| panic!("no column {name}"))
-}
+#[path = "common/series.rs"]
+mod series;
+use series::{grid, max_diff, series, static_field};
 
 fn top(name: &str) -> Molecule {
     Molecule::from_library(name, "molecule").unwrap()
@@ -148,7 +134,11 @@ fn tilted_tops_agree_with_an_independent_reference() {
             let pol = PulsePolarization { angle_deg: p["laser_angle_deg"].as_f64().unwrap(), ellipticity: 0.0 };
             pulses.push(Pulse { polarization: pol, ..Pulse::gaussian(p["pulse_centre_ps"].as_f64().unwrap(), 1000.0 * p["fwhm_ps"].as_f64().unwrap(), i0) });
         }
-        let field = FieldModel { pulses, static_field: static_field(p["E_static_kV_cm"].as_f64().unwrap(), p["static_angle_deg"].as_f64().unwrap()), ..Default::default() };
+        let field = FieldModel {
+            pulses,
+            static_field: static_field(p["E_static_kV_cm"].as_f64().unwrap(), p["static_angle_deg"].as_f64().unwrap()),
+            ..Default::default()
+        };
         let all: Vec<f64> = c["times_ps"].as_array().unwrap().iter().map(|t| t.as_f64().unwrap()).collect();
         let keep: Vec<usize> = (0..all.len()).filter(|&i| !case.starts_with("so2") || all[i] <= 0.5).collect();
         let times: Vec<f64> = keep.iter().map(|&i| all[i]).collect();

@@ -214,7 +214,17 @@ impl OrientedTopSolver {
         axis.beta_parallel_au = 0.0;
         axis.beta_perpendicular_au = 0.0;
         let dressing = frame.symmetric.then(|| class_blocks(&frame, &ensemble, true));
-        Ok(OrientedTopSolver { top, axis, beta: molecule.top_beta_au(), frame, blocks, dressing, thermal_j_max: ensemble.j_max, settings, progress: Default::default() })
+        Ok(OrientedTopSolver {
+            top,
+            axis,
+            beta: molecule.top_beta_au(),
+            frame,
+            blocks,
+            dressing,
+            thermal_j_max: ensemble.j_max,
+            settings,
+            progress: Default::default(),
+        })
     }
 
     /// The bound on the two-colour operator T (per unit rate), 0 without a hyperpolarizability.

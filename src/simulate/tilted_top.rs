@@ -239,19 +239,7 @@ impl TiltedTopOps {
             LabOperator::direction_cosine(LabAxis::Z, 0),
             LabOperator::direction_cosine(LabAxis::X, 0),
         ];
-        let mut ops = TiltedTopOps {
-            class,
-            j_max,
-            functions,
-            index,
-            groups,
-            vectors,
-            omega,
-            parts: vec![],
-            observables: vec![],
-            fastest: 0.0,
-            edge_states: 0,
-        };
+        let mut ops = TiltedTopOps { class, j_max, functions, index, groups, vectors, omega, parts: vec![], observables: vec![], fastest: 0.0, edge_states: 0 };
         let coupling: Vec<Vec<(usize, usize, f64)>> = coupling_ops.iter().map(|o| ops.triplets(o)).collect();
         let mut fastest: f64 = 0.0;
         for t in &coupling {
@@ -590,10 +578,15 @@ pub(super) fn run(solver: &OrientedTopSolver, cache: &TiltedTopCache, field: &Fi
     let s0 = arrived_in.map(|s| dipole_rate_rad_per_ps(axis.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
     let starts = solver.dressed_starts(s0)?;
     let mut by_class: Vec<(Class, Vec<Column>)> = class_columns(&starts, frame.symmetric, angle_rad).into_iter().collect();
-    by_class.sort_by_key(|(c, _)| (match c.kset {
-        KSet::Parity(p) => p,
-        KSet::Abs(k) => k,
-    }, -c.sigma));
+    by_class.sort_by_key(|(c, _)| {
+        (
+            match c.kset {
+                KSet::Parity(p) => p,
+                KSet::Abs(k) => k,
+            },
+            -c.sigma,
+        )
+    });
     let mut chunks: Vec<(Class, Vec<Column>)> = vec![];
     for (class, mut cols) in by_class {
         cols.sort_by_key(|c| c.j_top);
