@@ -7,6 +7,7 @@
 
 use crate::basis::Block;
 
+pub mod local_frame;
 pub mod polar;
 pub mod sparse;
 use crate::molecule::LinearRotor;
@@ -307,13 +308,9 @@ pub fn propagate_finite(
     span: FiniteSpan,
     mut at_stop: impl FnMut(usize, &BlockState),
 ) {
-    let FiniteSpan { end_ps: t_end_ps, max_step_ps, stops, breaks } = span;
+    let max_step_ps = span.max_step_ps;
     let w = composition_weights();
-    // Marks: (time, index of the stop or None for a break or the end), in time order.
-    let mut marks: Vec<(f64, Option<usize>)> = stops.iter().enumerate().map(|(i, &t)| (t, Some(i))).collect();
-    marks.extend(breaks.iter().filter(|&&t| t > state.t_ps && t < t_end_ps).map(|&t| (t, None)));
-    marks.sort_by(|a, b| a.0.total_cmp(&b.0));
-    marks.push((t_end_ps, None));
+    let marks = span_marks(state.t_ps, &span);
     for (t_mark, stop) in marks {
         let len = t_mark - state.t_ps;
         if len > 0.0 {
@@ -340,6 +337,38 @@ pub fn propagate_finite(
             state.free_with(&first);
             state.t_ps = t_mark;
         }
+        if let Some(i) = stop {
+            at_stop(i, state);
+        }
+    }
+}
+
+/// The stops and breaks of `span` after `t_ps` and its end, in time order: (time, index of the stop, or
+/// None for a break or the end).
+fn span_marks(t_ps: f64, span: &FiniteSpan) -> Vec<(f64, Option<usize>)> {
+    let mut marks: Vec<(f64, Option<usize>)> = span.stops.iter().enumerate().map(|(i, &t)| (t, Some(i))).collect();
+    marks.extend(span.breaks.iter().filter(|&&t| t > t_ps && t < span.end_ps).map(|&t| (t, None)));
+    marks.sort_by(|a, b| a.0.total_cmp(&b.0));
+    marks.push((span.end_ps, None));
+    marks
+}
+
+/// Propagate `state` to `span.end_ps` by whole steps `step(state, max)` that each move the state's time
+/// by at most `max` (and return how far they moved it), landing on every stop (`at_stop`) and break;
+/// `span.max_step_ps` bounds every step.
+pub fn propagate_stepwise(
+    state: &mut BlockState,
+    mut step: impl FnMut(&mut BlockState, f64) -> f64,
+    span: FiniteSpan,
+    mut at_stop: impl FnMut(usize, &BlockState),
+) {
+    for (t_mark, stop) in span_marks(state.t_ps, &span) {
+        while t_mark - state.t_ps > 1e-12 * t_mark.abs().max(1.0) {
+            let max = (t_mark - state.t_ps).min(span.max_step_ps);
+            let taken = step(state, max);
+            assert!(taken > 0.0 && taken <= max * (1.0 + 1e-12), "propagate_stepwise: a step of {taken} ps where at most {max} ps was allowed");
+        }
+        state.t_ps = t_mark;
         if let Some(i) = stop {
             at_stop(i, state);
         }

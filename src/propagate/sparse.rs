@@ -69,6 +69,19 @@ impl Csr {
         m
     }
 
+    /// A X for a dense X with n rows.
+    pub fn mul_dense(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
+        assert_eq!(x.nrows(), self.n, "Csr::mul_dense: the matrix and the columns differ in size");
+        let mut out = DMatrix::zeros(self.n, x.ncols());
+        for c in 0..x.ncols() {
+            let (xc, mut oc) = (x.column(c), out.column_mut(c));
+            for r in 0..self.n {
+                oc[r] = (self.row_ptr[r]..self.row_ptr[r + 1]).map(|e| self.val[e] * xc[self.col[e]]).sum();
+            }
+        }
+        out
+    }
+
     /// Number of stored elements.
     pub fn nnz(&self) -> usize {
         self.val.len()
