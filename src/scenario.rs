@@ -97,6 +97,9 @@ pub struct SolverSettings {
     /// Most initial states a run may carry (None: [`DEFAULT_MAX_STATES_LINEAR`] for linear molecules,
     /// [`DEFAULT_MAX_STATES_TOP`] for tops); a larger thermal ensemble is refused before any propagation.
     pub max_states: Option<f64>,
+    /// Step slow pulses in the frame of the instantaneous Hamiltonian (tops in a static field at an angle
+    /// to Z): None chooses by the pulses' envelope time scales, Some(false) keeps the splitting steps.
+    pub frame_steps: Option<bool>,
 }
 
 /// Default of [`SolverSettings::max_states`] for linear molecules (CS2 at 300 K: 15,753 states, 11 s).
@@ -121,6 +124,7 @@ impl Default for SolverSettings {
             kick_nodes: 1,
             max_steps: DEFAULT_MAX_STEPS,
             max_states: None,
+            frame_steps: None,
         }
     }
 }

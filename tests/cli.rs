@@ -1009,6 +1009,13 @@ fn scenario_bad_static_field_angle() {
     let mut thz = v.clone();
     thz["terahertz"] = json!([{"center_ps": 0.0, "duration_fs": 500, "peak_field_kv_cm": 100}]);
     simulate_fails_on("angle-top-terahertz", &thz, "static_field.angle_deg");
+    // Steps in the instantaneous frame exist for tops in a tilted static field only: asked for elsewhere
+    // (here a linear molecule) they are refused by name, not ignored; a value that is not a boolean too.
+    let mut framed = good_scenario();
+    framed["solver"] = json!({"frame_steps": true});
+    simulate_fails_on("frame-steps-linear", &framed, "solver.frame_steps");
+    framed["solver"] = json!({"frame_steps": "yes"});
+    simulate_fails_on("frame-steps-text", &framed, "solver.frame_steps");
     // ⟨cos²θ_2D⟩ is not computed on this path: a goal on it is refused rather than scored as zero.
     v["molecule"] = json!("OCS");
     // A pulse too strong for the largest basis of this path (P ≈ 78 at J ≤ 80) is refused before any work.

@@ -189,6 +189,8 @@ pub struct SolverFile {
     max_steps: Option<f64>,
     #[serde(default, skip_serializing_if = "Option::is_none")]
     max_states: Option<f64>,
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    frame_steps: Option<bool>,
 }
 
 /// Focal averaging as written in a file: each Rayleigh range in µm, or from a wavelength and M².
@@ -289,6 +291,7 @@ pub fn scenario_file(s: &Scenario) -> ScenarioFile {
         both_parities: s.solver.both_parities.then_some(true),
         max_steps: Some(s.solver.max_steps).filter(|n| *n != DEFAULT_MAX_STEPS && n.is_finite()),
         max_states: s.solver.max_states.filter(|n| n.is_finite()),
+        frame_steps: s.solver.frame_steps,
     };
     ScenarioFile {
         description: s.description.clone(),
@@ -565,6 +568,7 @@ impl SolverFile {
             both_parities: self.both_parities.unwrap_or(false),
             max_steps: self.max_steps.unwrap_or(d.max_steps),
             max_states: self.max_states,
+            frame_steps: self.frame_steps,
             ..d
         };
         if !(s.max_steps >= 1.0 && s.max_steps <= 1e12) {

@@ -342,7 +342,9 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
         extra.extend(av.trace.cos().map(|c| ("cos_avg", c)));
     }
     write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
-    let title = sim.scenario.description.clone().unwrap_or_else(|| "Field-free alignment".to_string());
+    // Without a description: what the plot shows (a static field that stays on is not field-free).
+    let default_title = if sim.result.trace.orientation.is_some() { "Alignment and orientation" } else { "Alignment" };
+    let title = sim.scenario.description.clone().unwrap_or_else(|| default_title.to_string());
     let mut plot = alignment_plot(&sim.scenario, &sim.result.trace, &title);
     if let Some(av) = &sim.averaged {
         plot.series.push(svg::Series {

@@ -7,7 +7,7 @@
 //! they do with the schedule and the basis is decided here.
 
 use crate::error::{Error, Result};
-use crate::propagate::{BlockState, FiniteSpan, propagate_finite};
+use crate::propagate::{BlockState, FiniteSpan, propagate_finite, propagate_stepwise};
 use crate::scenario::SolverSettings;
 use std::ops::Range;
 
@@ -193,6 +193,17 @@ pub(crate) trait Kernel {
     fn step(&self, step_ps: f64) -> f64 {
         step_ps
     }
+    /// True for kernels that take whole steps of a finite interval themselves ([`Kernel::own_step`])
+    /// instead of the splitting's kicks between free half steps.
+    fn steps_itself(&self) -> bool {
+        false
+    }
+    /// One step of finite interval `item` (element `index` of the schedule) from the state's time, of at
+    /// most `max_ps`; returns the length taken (the state's time has moved by it). Read only when
+    /// [`Kernel::steps_itself`].
+    fn own_step(&self, _index: usize, _item: &Self::Item, _state: &mut BlockState, max_ps: f64) -> f64 {
+        max_ps
+    }
 }
 
 /// The outcome of one [`walk`] with a basis that held the state.
@@ -253,30 +264,42 @@ pub(crate) fn walk<K: Kernel>(kernel: &K, mut state: BlockState, items: &[K::Ite
                 let breaks = kernel.breaks(item);
                 // Once the edge fills at a sample inside the pulse, the rest of the pulse is skipped.
                 let overflow = std::cell::Cell::new(false);
-                let mut kick = |st: &mut BlockState, t: f64, h: f64| {
-                    if !overflow.get() {
-                        kernel.finite_kick(index, item, st, t, h)
+                let span = FiniteSpan { end_ps: e, max_step_ps: kernel.step(step_ps), stops, breaks: &breaks };
+                let mut at_stop = |i: usize, st: &BlockState| {
+                    if overflow.get() {
+                        return;
+                    }
+                    if kernel.edge(st) > tolerance {
+                        overflow.set(true);
+                        return;
+                    }
+                    kernel.sample(st, &mut scratch);
+                    for (o, v) in scratch.iter().enumerate() {
+                        values[o][base + i] = *v;
                     }
                 };
-                propagate_finite(
-                    &mut state,
-                    kernel.omega(),
-                    &mut kick,
-                    FiniteSpan { end_ps: e, max_step_ps: kernel.step(step_ps), stops, breaks: &breaks },
-                    |i, st| {
-                        if overflow.get() {
-                            return;
+                if kernel.steps_itself() {
+                    propagate_stepwise(
+                        &mut state,
+                        |st, max| {
+                            if overflow.get() {
+                                st.t_ps += max;
+                                max
+                            } else {
+                                kernel.own_step(index, item, st, max)
+                            }
+                        },
+                        span,
+                        &mut at_stop,
+                    );
+                } else {
+                    let mut kick = |st: &mut BlockState, t: f64, h: f64| {
+                        if !overflow.get() {
+                            kernel.finite_kick(index, item, st, t, h)
                         }
-                        if kernel.edge(st) > tolerance {
-                            overflow.set(true);
-                            return;
-                        }
-                        kernel.sample(st, &mut scratch);
-                        for (o, v) in scratch.iter().enumerate() {
-                            values[o][base + i] = *v;
-                        }
-                    },
-                );
+                    };
+                    propagate_finite(&mut state, kernel.omega(), &mut kick, span, at_stop);
+                }
                 if overflow.get() {
                     return None;
                 }

@@ -27,6 +27,7 @@ pub mod lab_frame;
 pub mod oriented_top;
 pub(crate) mod tilted;
 pub(crate) mod tilted_top;
+mod tilted_top_frame;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;
@@ -686,6 +687,12 @@ impl Solver {
             return Err(Error::input("window", "sample times must be ascending"));
         }
         self.check_time_steps(field)?;
+        if self.settings.frame_steps == Some(true) && self.path(field) != RunPath::TiltedTop {
+            return Err(Error::input(
+                "solver.frame_steps",
+                "steps in the instantaneous frame are available for tops in a static field at an angle to Z only; expected false or no key",
+            ));
+        }
         match (self.path(field), self.top()) {
             (RunPath::AllM, _) => return self.run_lab_frame(field, times_ps, with_2d),
             (RunPath::Tilted | RunPath::TiltedTop, _) => return self.run_tilted(field, times_ps),
