@@ -168,11 +168,11 @@ fn slow_pulses_stepped_in_the_instantaneous_frame_agree_with_the_splitting() {
     // Reference: the splitting steps (solver.frame_steps false), checked against the independent reference
     // above; the frame steps share the operators and the start states but not the propagator (and the
     // static-field-alone reference case above already runs in the frame, having no pulse). SO2 at 0.1 K
-    // in 50 kV/cm at 45° under a 12 ps pulse at 3e11 W/cm²: half adiabatic, half not (the alignment
+    // in 50 kV/cm at 45° under an 8 ps pulse at 3e11 W/cm²: half adiabatic, half not (the alignment
     // outlasts the pulse), so both the following of the dressed states and the transitions are compared.
     let mol = top("SO2");
-    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 12_000.0, 3e11)], static_field: static_field(50.0, 45.0), ..Default::default() };
-    let times = grid(-24.0, 24.0, 2.0);
+    let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, 8_000.0, 3e11)], static_field: static_field(50.0, 45.0), ..Default::default() };
+    let times = grid(-16.0, 16.0, 2.0);
     let run = |frame: bool| {
         let settings = SolverSettings { frame_steps: Some(frame), ..SolverSettings::default() };
         Solver::new(&mol, 0.1, settings).unwrap().run(&field, &times, false).unwrap().trace
@@ -184,7 +184,9 @@ fn slow_pulses_stepped_in_the_instantaneous_frame_agree_with_the_splitting() {
     }
     eprintln!("frame steps against the splitting: {worst:.2e}");
     assert!(worst < 3e-7, "{worst:.2e}");
-    // The pulse moves the alignment far beyond the tolerance, and it outlasts the pulse.
+    // The pulse moves the alignment far beyond the tolerance, and after it the molecules do not simply
+    // return to their start (a dip below it at 12–14 ps: the non-adiabatic part).
     let za = series(&split, "cos2_Za");
-    assert!(za.iter().cloned().fold(0.0, f64::max) - za[0] > 0.2 && (za[za.len() - 1] - za[0]).abs() > 0.02, "{za:?}");
+    let after = za[12..].iter().cloned().fold(f64::INFINITY, f64::min);
+    assert!(za.iter().cloned().fold(0.0, f64::max) - za[0] > 0.2 && za[0] - after > 0.03, "{za:?}");
 }
