@@ -200,8 +200,10 @@ pub(crate) trait Kernel {
     }
     /// One step of finite interval `item` (element `index` of the schedule) from the state's time, of at
     /// most `max_ps`; returns the length taken (the state's time has moved by it). Read only when
-    /// [`Kernel::steps_itself`].
-    fn own_step(&self, _index: usize, _item: &Self::Item, _state: &mut BlockState, max_ps: f64) -> f64 {
+    /// [`Kernel::steps_itself`]; a kernel that steps itself overrides it (this default evolves without
+    /// the interval's fields, so that a walk still ends).
+    fn own_step(&self, index: usize, _item: &Self::Item, state: &mut BlockState, max_ps: f64) -> f64 {
+        self.free(state, index, max_ps);
         max_ps
     }
 }
