@@ -381,18 +381,19 @@ impl TiltedTopOps {
     }
 }
 
-/// What the chunks of one run share.
-struct TiltedTopRun<'a> {
-    field: &'a FieldModel,
-    dipole_debye: f64,
-    delta_alpha_a3: f64,
-    angle_rad: f64,
-    settings: &'a SolverSettings,
-    breaks: Vec<f64>,
+/// What the chunks (or classes) of one run share.
+pub(super) struct TiltedTopRun<'a> {
+    pub field: &'a FieldModel,
+    pub dipole_debye: f64,
+    pub delta_alpha_a3: f64,
+    pub angle_rad: f64,
+    pub settings: &'a SolverSettings,
+    pub breaks: Vec<f64>,
 }
 
 impl TiltedTopRun<'_> {
-    fn static_rate(&self, t_ps: f64) -> f64 {
+    /// The static field's coupling rate μE(t)/ħ, rad/ps.
+    pub(super) fn static_rate(&self, t_ps: f64) -> f64 {
         self.field.static_field.map(|s| dipole_rate_rad_per_ps(self.dipole_debye, s.strength_at(t_ps))).unwrap_or(0.0)
     }
 }
@@ -791,15 +792,7 @@ fn run_classes_in_frame(
     let laser_cm: f64 = field.pulses.iter().map(|p| laser_angles(field, &all, run.delta_alpha_a3, p.center_ps, 1.0).1).fold(0.0, f64::max) / per_cm;
     let static_cm = field.static_field.map(|s| dipole_rate_rad_per_ps(run.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0) / per_cm;
     let shortest = field.pulses.iter().filter(|p| p.peak_intensity_wcm2 > 0.0).map(|p| p.time_scale_ps()).fold(f64::INFINITY, f64::min);
-    let frame_run = FrameRun {
-        field,
-        dipole_debye: run.dipole_debye,
-        delta_alpha_a3: run.delta_alpha_a3,
-        angle_rad: run.angle_rad,
-        settings: run.settings,
-        breaks: run.breaks.clone(),
-        max_step_ps: (shortest / 8.0).min(1e6),
-    };
+    let frame_run = FrameRun { base: run, max_step_ps: (shortest / 8.0).min(1e6) };
     let level_cm = |j: i64| {
         let n = (2 * j + 1) as usize;
         let h = DMatrix::from_fn(n, n, |r, c| frame.h0(j, r as i64 - j, c as i64 - j));

@@ -12,13 +12,11 @@
 use super::Event;
 use super::driver::Kernel;
 use super::tilted::laser_angles;
-use super::tilted_top::{DIP_X, DIP_Z, OBSERVABLES, TiltedTopOps, XX, XZ, ZZ};
+use super::tilted_top::{DIP_X, DIP_Z, OBSERVABLES, TiltedTopOps, TiltedTopRun, XX, XZ, ZZ};
 use crate::basis::top::TopFrame;
-use crate::field::FieldModel;
 use crate::propagate::local_frame::{Coefficient, step};
 use crate::propagate::{BlockState, FreePhases};
-use crate::scenario::SolverSettings;
-use crate::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
+use crate::units::cm_to_rad_per_ps;
 use nalgebra::{DMatrix, SymmetricEigen};
 use std::cell::Cell;
 
@@ -100,14 +98,9 @@ impl FrameOps {
     }
 }
 
-/// What the classes of one run share.
+/// What the classes of one run share: the tilted-top run and the longest step.
 pub(super) struct FrameRun<'a> {
-    pub field: &'a FieldModel,
-    pub dipole_debye: f64,
-    pub delta_alpha_a3: f64,
-    pub angle_rad: f64,
-    pub settings: &'a SolverSettings,
-    pub breaks: Vec<f64>,
+    pub base: &'a TiltedTopRun<'a>,
     /// Longest step, ps (a fraction of the shortest envelope time scale).
     pub max_step_ps: f64,
 }
@@ -127,9 +120,10 @@ impl<'a> FrameKernel<'a> {
 
     /// The coefficients of H0, the laser parts and the dipole parts at `t` (rad/ps).
     fn coefficients(&self, pulses: &[usize], t: f64) -> [f64; 6] {
-        let (laser, _) = laser_angles(self.run.field, pulses, self.run.delta_alpha_a3, t, 1.0);
-        let s = self.run.field.static_field.map(|f| dipole_rate_rad_per_ps(self.run.dipole_debye, f.strength_at(t))).unwrap_or(0.0);
-        let (sn, cs) = self.run.angle_rad.sin_cos();
+        let run = self.run.base;
+        let (laser, _) = laser_angles(run.field, pulses, run.delta_alpha_a3, t, 1.0);
+        let s = run.static_rate(t);
+        let (sn, cs) = run.angle_rad.sin_cos();
         [1.0, -laser[0], -laser[1], -laser[2], -s * cs, -s * sn]
     }
 }
@@ -151,10 +145,8 @@ impl Kernel for FrameKernel<'_> {
     }
 
     fn sample(&self, st: &BlockState, out: &mut [f64]) {
-        let k = st.k;
         for (o, x) in self.ops.observables.iter().zip(out.iter_mut()) {
-            let y = o * &st.psi;
-            *x = self.pops.iter().enumerate().map(|(c, p)| p * (st.psi.column(c).dot(&y.column(c)) + st.psi.column(c + k).dot(&y.column(c + k)))).sum();
+            *x = st.expect_dense(&self.pops, o);
         }
     }
 
@@ -169,7 +161,7 @@ impl Kernel for FrameKernel<'_> {
     fn instant(&self, st: &mut BlockState, item: &Event) {
         // Only slow pulses come here, and a slow pulse is never a kick; a kick is applied exactly anyway.
         if let Event::Kick { pulse, strength, .. } = item {
-            let w = super::tilted::laser_weights(&self.run.field.pulses[*pulse].polarization);
+            let w = super::tilted::laser_weights(&self.run.base.field.pulses[*pulse].polarization);
             let mut a = DMatrix::<f64>::zeros(self.ops.size(), self.ops.size());
             for (p, x) in self.ops.parts[1..4].iter().zip(w) {
                 a += p * (x * strength);
@@ -185,12 +177,12 @@ impl Kernel for FrameKernel<'_> {
     }
 
     fn breaks(&self, _item: &Event) -> Vec<f64> {
-        self.run.breaks.clone()
+        self.run.base.breaks.clone()
     }
 
     fn step(&self, _step_ps: f64) -> f64 {
         // The splitting's step rule does not bind here; the weight of the residual does.
-        self.run.settings.step_fs.map(|fs| fs / 1000.0).unwrap_or(self.run.max_step_ps)
+        self.run.base.settings.step_fs.map(|fs| fs / 1000.0).unwrap_or(self.run.max_step_ps)
     }
 
     fn steps_itself(&self) -> bool {
@@ -204,7 +196,7 @@ impl Kernel for FrameKernel<'_> {
             return max_ps;
         };
         let parts: Vec<&DMatrix<f64>> = self.ops.parts.iter().collect();
-        let fixed = self.run.settings.step_fs.map(|fs| fs / 1000.0);
+        let fixed = self.run.base.settings.step_fs.map(|fs| fs / 1000.0);
         let mut h = fixed.unwrap_or_else(|| self.next.get()).min(max_ps);
         loop {
             let t0 = st.t_ps;
