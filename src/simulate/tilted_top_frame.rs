@@ -200,7 +200,10 @@ impl Kernel for FrameKernel<'_> {
         let mut h = fixed.unwrap_or_else(|| self.next.get()).min(max_ps);
         loop {
             let t0 = st.t_ps;
-            let (a, m, b) = (self.coefficients(pulses, t0), self.coefficients(pulses, t0 + 0.5 * h), self.coefficients(pulses, t0 + h));
+            // The ends are read just inside the step: a switch of the static field (or the edge of a
+            // truncated pulse) falls on a step boundary, and its value belongs to one side only.
+            let inside = 1e-9 * h;
+            let (a, m, b) = (self.coefficients(pulses, t0 + inside), self.coefficients(pulses, t0 + 0.5 * h), self.coefficients(pulses, t0 + h - inside));
             let g: Vec<Coefficient> = (0..6).map(|i| Coefficient::through(a[i], m[i], b[i], h)).collect();
             let saved = (fixed.is_none()).then(|| st.psi.clone());
             let weight = step(st, &parts, &g, h);
