@@ -90,10 +90,11 @@ impl FrameOps {
         self.selected.len()
     }
 
-    /// The kept rows of states given in every eigenstate of `full`, and the largest norm² left out.
+    /// The kept rows of unit-norm states given in every eigenstate of `full`, and the largest norm² left
+    /// out (counting any part beyond the J of `full`, which `all` no longer holds).
     pub(super) fn restrict(&self, all: &DMatrix<f64>) -> (DMatrix<f64>, f64) {
         let kept = DMatrix::from_fn(self.size(), all.ncols(), |r, c| all[(self.selected[r], c)]);
-        let lost = (0..all.ncols()).map(|c| 1.0 - kept.column(c).norm_squared() / all.column(c).norm_squared()).fold(0.0, f64::max);
+        let lost = (0..all.ncols()).map(|c| 1.0 - kept.column(c).norm_squared()).fold(0.0, f64::max);
         (kept, lost)
     }
 }
