@@ -1141,8 +1141,10 @@ fn pendular_prints_no_negative_zero() {
 
 #[test]
 fn pendular_with_the_static_field_at_an_angle() {
-    // The table and the JSON carry ⟨cosθ_X⟩ and name the angle; a bad angle or a top at an angle is one
-    // line naming `static_angle_deg`, exit 2 (the values themselves are checked in tests/tilted_pendular.rs).
+    // The table and the JSON carry ⟨cosθ_X⟩ and name the angle, for a linear molecule and a top; a bad angle
+    // is one line naming `static_angle_deg`, a top whose classes would be too large one naming
+    // `temperature_k`, exit 2 (the values themselves are checked in tests/tilted_pendular.rs and
+    // tests/tilted_top_pendular.rs).
     let r = run(&["pendular", "OCS", "--intensity-wcm2", "1e11", "--static-kv-cm", "20", "--static-angle-deg", "45"]);
     assert_eq!(r.code, Some(0), "{}", r.stderr);
     assert!(r.stdout.contains("at 45.0° from Z towards X") && r.stdout.contains("⟨cosθ_X⟩") && r.stdout.contains("|M_f|"), "{}", r.stdout);
@@ -1151,14 +1153,20 @@ fn pendular_with_the_static_field_at_an_angle() {
     let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
     let x = v["result"]["thermal_cos_x"].as_f64().expect("thermal_cos_x");
     assert!(x > 0.0 && x < 1.0 && v["result"]["static_angle_deg"].as_f64() == Some(45.0), "{}", r.stdout);
+    let r = run(&["pendular", "SO2", "--intensity-wcm2", "1e11", "--static-kv-cm", "20", "--static-angle-deg", "45", "--temperature-k", "0.3", "--json"]);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let v: Value = serde_json::from_str(&r.stdout).expect("JSON");
+    let first = &v["result"]["states"][0];
+    assert!(first["level"].as_str() == Some("0 0 0") && first["reflection"].as_i64() == Some(1) && first["cos_x"].as_f64().unwrap() > 0.05, "{}", r.stdout);
     let nowhere = std::env::temp_dir().join("kicktrain-pendular-angle-never-written");
     for args in [
         vec!["pendular", "OCS", "--static-kv-cm", "20", "--static-angle-deg", "400"],
         vec!["pendular", "OCS", "--static-kv-cm", "20", "--static-angle-deg", "nan"],
-        vec!["pendular", "C6H5CN", "--static-kv-cm", "5", "--static-angle-deg", "30"],
     ] {
         assert_field_error(&run(&args), &nowhere, "static_angle_deg");
     }
+    let heavy = ["pendular", "C6H5CN", "--intensity-wcm2", "1e11", "--static-kv-cm", "5", "--static-angle-deg", "30", "--temperature-k", "1"];
+    assert_field_error(&run(&heavy), &nowhere, "temperature_k");
 }
 
 #[test]

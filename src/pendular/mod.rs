@@ -65,7 +65,8 @@ pub struct PendularResult {
 /// As [`pendular`] with the static field at `angle_deg` from the laser polarization (Z) towards X. At 0°
 /// and 180° (the field reversed) M is conserved and [`pendular`] answers; at other angles a linear
 /// molecule's dressed states carry ⟨cosθ⟩ with X as well, and their correlation runs through the static
-/// field first (module `tilted`). Tops at an angle are not available yet.
+/// field first (module `tilted`); a top's through its tilted-field classes
+/// ([`crate::simulate::tilted_top_pendular`]).
 pub fn pendular_at_angle(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, angle_deg: f64, temperature_k: f64, j_max: u32) -> Result<PendularResult> {
     if !angle_deg.is_finite() || angle_deg.abs() > 360.0 {
         return Err(Error::input("static_angle_deg", format!("expected an angle from −360 to 360 degrees, got {angle_deg}")));
@@ -78,13 +79,11 @@ pub fn pendular_at_angle(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64,
     }
     check_fields(mol, intensity_wcm2, static_kv_cm)?;
     let Some(lin) = mol.as_linear() else {
-        return Err(Error::input(
-            "static_angle_deg",
-            format!(
-                "{} is a top: dressed states in a static field at an angle to the laser are available for linear molecules only; expected 0 or 180",
-                mol.name
-            ),
-        ));
+        if !(0.0..=1e3).contains(&temperature_k) {
+            return Err(Error::input("temperature_k", format!("expected 0 to 1000 K for a top in a tilted static field, got {temperature_k}")));
+        }
+        let r = crate::simulate::tilted_top_pendular::tilted_top_pendular(mol, intensity_wcm2, static_kv_cm, alpha, temperature_k)?;
+        return Ok(top_result(mol, intensity_wcm2, static_kv_cm, r, Some(alpha.to_degrees())));
     };
     let u0 = coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * intensity_wcm2;
     let s = dipole_rate_rad_per_ps(mol.dipole_debye, static_kv_cm);
@@ -209,7 +208,13 @@ pub fn pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
 /// levels (⟨cos²θ⟩ of the alignment axis, ⟨cosθ⟩ of the dipole axis).
 fn top_pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperature_k: f64) -> Result<PendularResult> {
     let r = crate::simulate::oriented_top::top_pendular(mol, intensity_wcm2, static_kv_cm, temperature_k)?;
+    Ok(top_result(mol, intensity_wcm2, static_kv_cm, r, None))
+}
+
+/// A top's dressed states as a pendular result (`angle_deg` for a tilted static field).
+fn top_result(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, r: crate::simulate::oriented_top::TopPendular, angle_deg: Option<f64>) -> PendularResult {
     let b = mol.revival_b_cm();
+    let tilted = angle_deg.is_some();
     let states = r
         .states
         .iter()
@@ -220,21 +225,21 @@ fn top_pendular(mol: &Molecule, intensity_wcm2: f64, static_kv_cm: f64, temperat
             energy_b: d.energy_cm / b,
             cos2: d.cos2,
             cos: d.cos,
-            cos_x: None,
-            reflection: None,
+            cos_x: tilted.then_some(d.cos_x),
+            reflection: d.reflection.map(|s| s as i32),
             level: Some(d.label.clone()),
         })
         .collect();
     let per_cm = cm_to_rad_per_ps(1.0);
-    Ok(PendularResult {
+    PendularResult {
         states,
         thermal_cos2: r.thermal_cos2,
         thermal_cos: r.thermal_cos,
-        thermal_cos_x: None,
+        thermal_cos_x: r.thermal_cos_x,
         laser_strength_b: coupling_rad_per_ps_per_a3_wcm2() * mol.delta_alpha_a3() * intensity_wcm2 / per_cm / b,
         static_strength_b: dipole_rate_rad_per_ps(mol.dipole_debye, static_kv_cm) / per_cm / b,
-        static_angle_deg: None,
-    })
+        static_angle_deg: angle_deg,
+    }
 }
 
 fn first_with_parity(m: u32, parity: u32) -> u32 {

@@ -82,6 +82,12 @@ impl Csr {
         out
     }
 
+    /// The non-zero elements (column, value) of row `r`.
+    pub fn row(&self, r: usize) -> impl Iterator<Item = (usize, f64)> + '_ {
+        let span = self.row_ptr[r]..self.row_ptr[r + 1];
+        self.col[span.clone()].iter().copied().zip(self.val[span].iter().copied())
+    }
+
     /// Number of stored elements.
     pub fn nnz(&self) -> usize {
         self.val.len()

@@ -28,6 +28,7 @@ pub mod oriented_top;
 pub(crate) mod tilted;
 pub(crate) mod tilted_top;
 mod tilted_top_frame;
+pub mod tilted_top_pendular;
 pub mod top;
 use serde::Serialize;
 use std::collections::HashMap;

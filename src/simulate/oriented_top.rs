@@ -497,6 +497,9 @@ pub(super) struct DressedStart {
     pub m: i64,
     pub amplitudes: Vec<((i64, i64), f64)>,
     pub population: f64,
+    /// J and name of the field-free level.
+    pub j: i64,
+    pub label: String,
 }
 
 impl OrientedTopSolver {
@@ -533,6 +536,7 @@ impl OrientedTopSolver {
     pub(super) fn dressed_starts(&self, s0: f64) -> Result<Vec<DressedStart>> {
         let c_rate = cm_to_rad_per_ps(self.top.c_cm);
         let room = (2.0 * (s0.abs() / c_rate).sqrt()).ceil() as i64 + 4;
+        let names = if self.frame.symmetric { vec![] } else { level_names(&self.top, self.thermal_j_max) };
         let per_block: Vec<Vec<DressedStart>> = self
             .dressing
             .as_ref()
@@ -545,7 +549,7 @@ impl OrientedTopSolver {
                     MAX_J as usize,
                     |j_max| {
                         let ops = OrientedOps::new(&self.top, &self.frame, TopBlock { m: b.m, sym: b.sym, j_max: j_max as i64 }, false, None);
-                        Ok(dressed_block_starts(&ops, b, s0, self.settings.edge_tolerance))
+                        Ok(dressed_block_starts(&ops, b, s0, self.settings.edge_tolerance, &names))
                     },
                     || Error::Numerical(format!("block M = {}, {:?}: the static-field dressed states would need J > {MAX_J}", b.m, b.sym)),
                 )
@@ -575,7 +579,7 @@ fn dressed_columns(ops: &OrientedOps, levels: &[usize], s0: f64) -> DMatrix<f64>
 
 /// The dressed (or, for `s0` = 0, field-free) thermal levels of one block, None when a dressed state
 /// reaches the basis edge.
-fn dressed_block_starts(ops: &OrientedOps, b: &OrientedBlock, s0: f64, tolerance: f64) -> Option<Vec<DressedStart>> {
+fn dressed_block_starts(ops: &OrientedOps, b: &OrientedBlock, s0: f64, tolerance: f64, names: &[(i64, f64, String)]) -> Option<Vec<DressedStart>> {
     let basis = &ops.basis;
     let n = basis.size();
     let p = block_populations(basis, &b.starts);
@@ -609,7 +613,9 @@ fn dressed_block_starts(ops: &OrientedOps, b: &OrientedBlock, s0: f64, tolerance
                 amps.extend(comps[..nc].iter().map(|&(k, w)| ((j, k), w * a)));
             }
         }
-        out.push(DressedStart { m: b.m, amplitudes: amps, population: p[i] * b.weight });
+        let j = basis.j_ranges.iter().find(|r| i >= r.1 && i < r.1 + r.2).map(|r| r.0).unwrap_or(0);
+        let label = level_label(names, b.sym, j, basis.energies_cm[i]);
+        out.push(DressedStart { m: b.m, amplitudes: amps, population: p[i] * b.weight, j, label });
     }
     Some(out)
 }
@@ -835,6 +841,11 @@ pub struct TopDressedState {
     pub cos2: f64,
     /// ⟨cosθ⟩ of the dipole axis with Z (0 without a static field).
     pub cos: f64,
+    /// ⟨cosθ⟩ of the dipole axis with X (0 unless the static field is tilted).
+    pub cos_x: f64,
+    /// In a tilted static field, the state's sign under the reflection σ' through the lab XZ plane
+    /// (combined with a body reflection); M then stands for |M_f| about the static field's axis.
+    pub reflection: Option<i64>,
     /// Thermal population of the field-free level, all the blocks it stands for together.
     pub population: f64,
 }
@@ -848,6 +859,8 @@ pub struct TopPendular {
     pub thermal_cos2: f64,
     /// Σ population × ⟨cosθ⟩ of the dipole axis.
     pub thermal_cos: f64,
+    /// Σ population × ⟨cosθ⟩ of the dipole axis with X (a tilted static field only).
+    pub thermal_cos_x: Option<f64>,
     /// Population left out of the thermal ensemble.
     pub discarded_population: f64,
 }
@@ -909,7 +922,7 @@ pub fn top_pendular(molecule: &Molecule, intensity_wcm2: f64, static_kv_cm: f64,
     states.sort_by(|a, b| (a.m, a.energy_cm).partial_cmp(&(b.m, b.energy_cm)).expect("finite energies"));
     let thermal_cos2 = states.iter().map(|d| d.population * d.cos2).sum();
     let thermal_cos = states.iter().map(|d| d.population * d.cos).sum();
-    Ok(TopPendular { states, thermal_cos2, thermal_cos, discarded_population: ensemble.discarded_population })
+    Ok(TopPendular { states, thermal_cos2, thermal_cos, thermal_cos_x: None, discarded_population: ensemble.discarded_population })
 }
 
 /// The dressed states of the populated levels of one block with a basis up to `j_max`, or None when one of
@@ -938,11 +951,7 @@ fn dressed_block_states(setting: &DressedSetting, b: &OrientedBlock, j_max: i64)
             return None;
         }
         let j = basis.j_ranges.iter().find(|r| i >= r.1 && i < r.1 + r.2).map(|r| r.0).unwrap_or(0);
-        let e0 = basis.energies_cm[i];
-        let label = match b.sym {
-            TopSym::K(k) => format!("{j} {k}"),
-            _ => setting.names.iter().find(|l| l.0 == j && (l.1 - e0).abs() < 1e-6).map(|l| l.2.clone()).unwrap_or_else(|| format!("{j} ?")),
-        };
+        let label = level_label(&setting.names, b.sym, j, basis.energies_cm[i]);
         out.push(TopDressedState {
             m: b.m,
             j,
@@ -950,6 +959,8 @@ fn dressed_block_states(setting: &DressedSetting, b: &OrientedBlock, j_max: i64)
             energy_cm: energies[rank],
             cos2: (v.transpose() * &align * v)[(0, 0)],
             cos: if s_cm != 0.0 { (v.transpose() * &d * v)[(0, 0)] } else { 0.0 },
+            cos_x: 0.0,
+            reflection: None,
             population: b.weight * p[i],
         });
     }
@@ -973,6 +984,15 @@ fn class_blocks(frame: &TopFrame, ensemble: &TopEnsemble, split_k: bool) -> Vec<
         }
     }
     out
+}
+
+/// The name of the field-free level of J and energy `e0` (cm⁻¹) in a block of symmetry `sym`: "J K" of a
+/// symmetric top, else its "J Ka Kc" from `names` ([`level_names`]).
+fn level_label(names: &[(i64, f64, String)], sym: TopSym, j: i64, e0: f64) -> String {
+    match sym {
+        TopSym::K(k) => format!("{j} {k}"),
+        _ => names.iter().find(|l| l.0 == j && (l.1 - e0).abs() < 1e-6).map(|l| l.2.clone()).unwrap_or_else(|| format!("{j} ?")),
+    }
 }
 
 /// Names "J Ka Kc" of an asymmetric top's field-free levels up to `j_max`, with their energies (cm⁻¹): the

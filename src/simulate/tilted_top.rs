@@ -68,8 +68,8 @@ const LAB: [LabAxis; 3] = [LabAxis::X, LabAxis::Y, LabAxis::Z];
 
 /// Observables: ⟨Φ_Fi²⟩ at 3F + i (lab axis F of `LAB`, frame position i: 0 = z, 1 = x, 2 = y), then
 /// ⟨Φ_Xz⟩ and ⟨Φ_Zz⟩ of the dipole axis z.
-const COS_X: usize = 9;
-const COS_Z: usize = 10;
+pub(super) const COS_X_INDEX: usize = 9;
+pub(super) const COS_Z_INDEX: usize = 10;
 pub(super) const OBSERVABLES: usize = 11;
 
 /// Coupling parts on one pattern: the laser couplings Σ_i w_i Φ_Fi Φ_F'i for (F, F') = ZZ, XX and
@@ -82,7 +82,7 @@ pub(super) const DIP_X: usize = 4;
 const IDENTITY: usize = 5;
 
 /// A primitive symmetric-top function (J, K, M).
-type Prim = (i64, i64, i64);
+pub(super) type Prim = (i64, i64, i64);
 
 /// The values of K a class holds: one parity of K (asymmetric tops), or ±k (symmetric tops).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
@@ -120,6 +120,15 @@ pub(crate) struct Class {
 }
 
 impl Class {
+    /// A fixed order of the classes (by K set, then σ' = +1 first).
+    pub(super) fn order(&self) -> (i64, i64) {
+        let k = match self.kset {
+            KSet::Parity(p) => p,
+            KSet::Abs(k) => k,
+        };
+        (k, -self.sigma)
+    }
+
     /// True if (K, M) labels a basis function of the class (M > 0, or M = 0 and K > 0, or K = M = 0 at s = +1).
     fn is_rep(&self, k: i64, m: i64) -> bool {
         self.kset.contains(k) && (m > 0 || (m == 0 && k > 0) || (m == 0 && k == 0 && self.sigma > 0))
@@ -279,8 +288,38 @@ impl TiltedTopOps {
         ops
     }
 
-    fn size(&self) -> usize {
+    pub(super) fn size(&self) -> usize {
         self.functions.len()
+    }
+
+    /// M of the field-free eigenstate `i` (every state of a (J, M) group has the group's M ≥ 0).
+    pub(super) fn m_of(&self, i: usize) -> i64 {
+        let &(start, _, _) = self.groups.iter().find(|g| i >= g.0 && i < g.0 + g.1).expect("every eigenstate lies in a group");
+        self.functions[start].2
+    }
+
+    /// The rotation by π about the lab X axis in the basis functions, a signed permutation:
+    /// C₂(X)|J K M⟩ = (−1)^J |J K −M⟩ (d^J_{M'M}(π) = (−1)^{J−M} δ_{M',−M} about Y, turned to X by
+    /// e^{∓iπJ_Z/2}), so the function of (K, M > 0) goes to s(−1)^{J+M−K} times that of (−K, M) and one of
+    /// M = 0 to (−1)^J times itself. It maps every class into itself (it commutes with σ' and with body
+    /// rotations) and is a symmetry when the laser is along Z and the static field along X.
+    pub(super) fn rotation_x_pi(&self) -> Csr {
+        let t = self
+            .functions
+            .iter()
+            .enumerate()
+            .map(|(i, &(j, k, m))| {
+                let sign_j = if j % 2 == 0 { 1.0 } else { -1.0 };
+                if m == 0 {
+                    (i, i, sign_j)
+                } else {
+                    let phase = if (m - k).rem_euclid(2) == 0 { 1.0 } else { -1.0 };
+                    let (g, _) = self.index[&(j, -k, m)];
+                    (g, i, sign_j * self.class.sigma as f64 * phase)
+                }
+            })
+            .collect();
+        Csr::from_triplets(self.size(), t)
     }
 
     /// Non-zero elements (row, column, value) of `op` between the basis functions (real for operators
@@ -362,7 +401,7 @@ impl TiltedTopOps {
     }
 
     /// The columns (function basis) of states given as coefficients on basis functions, in eigenstates.
-    fn eigen_columns(&self, cols: &[Vec<(Prim, f64)>]) -> DMatrix<f64> {
+    pub(super) fn eigen_columns(&self, cols: &[Vec<(Prim, f64)>]) -> DMatrix<f64> {
         let n = self.size();
         let mut f = DMatrix::zeros(n, cols.len());
         for (c, col) in cols.iter().enumerate() {
@@ -459,15 +498,19 @@ impl Kernel for TiltedTopKernel<'_> {
     }
 }
 
-/// One initial state: coefficients on the basis functions of its class, its population and its top J.
-struct Column {
-    coefficients: Vec<(Prim, f64)>,
-    population: f64,
-    j_top: i64,
+/// One initial state: coefficients on the basis functions of its class, its population and its top J,
+/// and the field-free level it came from (J, name, |M_f| about the static field).
+pub(super) struct Column {
+    pub coefficients: Vec<(Prim, f64)>,
+    pub population: f64,
+    pub j_top: i64,
+    pub j: i64,
+    pub label: String,
+    pub m: i64,
 }
 
 /// The dressed levels along the static field, rotated by α about Y and split into the σ' classes.
-fn class_columns(starts: &[DressedStart], symmetric: bool, angle_rad: f64) -> HashMap<Class, Vec<Column>> {
+pub(super) fn class_columns(starts: &[DressedStart], symmetric: bool, angle_rad: f64) -> HashMap<Class, Vec<Column>> {
     let j_top = starts.iter().flat_map(|s| s.amplitudes.iter().map(|a| a.0.0)).max().unwrap_or(0);
     let mut d_cache: HashMap<(i64, i64), Vec<f64>> = HashMap::new();
     let mut out: HashMap<Class, Vec<Column>> = HashMap::new();
@@ -516,7 +559,7 @@ fn class_columns(starts: &[DressedStart], symmetric: bool, angle_rad: f64) -> Ha
                     break;
                 }
             }
-            out.entry(class).or_default().push(Column { coefficients, population: s.population * norm2, j_top: top });
+            out.entry(class).or_default().push(Column { coefficients, population: s.population * norm2, j_top: top, j: s.j, label: s.label.clone(), m: s.m });
         }
     }
     out
@@ -538,7 +581,7 @@ pub(crate) struct TiltedTopCache {
 }
 
 impl TiltedTopCache {
-    fn get(&self, top: &Top, frame: &TopFrame, class: Class, j_max: i64) -> Arc<TiltedTopOps> {
+    pub(super) fn get(&self, top: &Top, frame: &TopFrame, class: Class, j_max: i64) -> Arc<TiltedTopOps> {
         if let Some(o) = self.ops.lock().expect("tilted top cache").get(&(class, j_max)) {
             return o.clone();
         }
@@ -592,15 +635,7 @@ pub(super) fn run(solver: &OrientedTopSolver, cache: &TiltedTopCache, field: &Fi
     let s0 = arrived_in.map(|s| dipole_rate_rad_per_ps(axis.dipole_debye, s.strength_kv_cm)).unwrap_or(0.0);
     let starts = solver.dressed_starts(s0)?;
     let mut by_class: Vec<(Class, Vec<Column>)> = class_columns(&starts, frame.symmetric, angle_rad).into_iter().collect();
-    by_class.sort_by_key(|(c, _)| {
-        (
-            match c.kset {
-                KSet::Parity(p) => p,
-                KSet::Abs(k) => k,
-            },
-            -c.sigma,
-        )
-    });
+    by_class.sort_by_key(|(c, _)| c.order());
     if in_frame(field, settings) {
         let outcomes = run_classes_in_frame(top, frame, cache, &run, &by_class, &events, times, t_first, progress)?;
         return Ok(collect_outcomes(top, frame, times, outcomes, events));
@@ -686,9 +721,9 @@ fn assemble(top: &Top, frame: &TopFrame, times: &[f64], values: Vec<Vec<f64>>, r
     }
     let d = top.dipole_axis;
     let lab_cos = vec![
-        LabAxisSeries::cosine(LabAxis::X, Some(d), values[COS_X].clone()),
+        LabAxisSeries::cosine(LabAxis::X, Some(d), values[COS_X_INDEX].clone()),
         LabAxisSeries::cosine(LabAxis::Y, Some(d), vec![0.0; times.len()]),
-        LabAxisSeries::cosine(LabAxis::Z, Some(d), values[COS_Z].clone()),
+        LabAxisSeries::cosine(LabAxis::Z, Some(d), values[COS_Z_INDEX].clone()),
     ];
     let align = series(2, top.alignment_axis);
     let second_x = series(0, top.second_axis());
@@ -702,7 +737,7 @@ fn assemble(top: &Top, frame: &TopFrame, times: &[f64], values: Vec<Vec<f64>>, r
         times_ps: times.to_vec(),
         cos2: align,
         cos2_2d: None,
-        orientation: Some(Orientation { cos: values[COS_Z].clone(), cos3: None }),
+        orientation: Some(Orientation { cos: values[COS_Z_INDEX].clone(), cos3: None }),
         body_axes: Some(body_axes),
         lab_axes,
         lab_cos,
@@ -925,6 +960,43 @@ mod tests {
         for (i, w) in all.iter().enumerate() {
             let e = cm_to_rad_per_ps(levels[i / (2 * j + 1) as usize]);
             assert!((w - e).abs() < 1e-9 * e.abs().max(1.0), "{i}: {w} vs {e}");
+        }
+    }
+
+    #[test]
+    fn the_rotation_about_x_is_a_symmetry_of_a_laser_along_z_and_a_static_field_along_x() {
+        // Exact: C₂(X) = e^{−iπJ_X} squares to one, leaves Φ_Z² and Φ_X (and H0) unchanged and reverses Φ_Z,
+        // so it commutes with the laser along Z and the dipole along X and anticommutes with the dipole
+        // along Z. Its phase (−1)^J is checked here; a wrong one fails every commutator. Both σ' classes of
+        // SO2 (dipole along b), J ≤ 5.
+        let mol = Molecule::from_library("SO2", "molecule").unwrap();
+        let top = mol.as_top().unwrap();
+        let frame = TopFrame::new(top, true);
+        for (kset, sigma) in [(KSet::Parity(0), 1), (KSet::Parity(1), -1), (KSet::Parity(0), -1)] {
+            let ops = TiltedTopOps::new(top, &frame, Class { kset, sigma }, 5);
+            let c = ops.rotation_x_pi().to_dense();
+            let n = ops.size();
+            assert!((&c * &c - DMatrix::<f64>::identity(n, n)).amax() < 1e-14);
+            // H0 in the functions: each (J, M) group's eigenvectors and levels.
+            let mut h0 = DMatrix::<f64>::zeros(n, n);
+            for &(s0, len, v) in &ops.groups {
+                let vecs = &ops.vectors[v];
+                let block = vecs * DMatrix::from_diagonal(&nalgebra::DVector::from_column_slice(&ops.omega[s0..s0 + len])) * vecs.transpose();
+                h0.view_mut((s0, s0), (len, len)).copy_from(&block);
+            }
+            let commutator = |a: &DMatrix<f64>, sign: f64| (&c * a - a * &c * sign).amax();
+            for (name, a, sign) in [
+                ("H0", h0.clone(), 1.0),
+                ("ZZ", ops.parts[ZZ].to_dense(), 1.0),
+                ("dipole X", ops.parts[DIP_X].to_dense(), 1.0),
+                ("dipole Z", ops.parts[DIP_Z].to_dense(), -1.0),
+            ] {
+                assert!(a.amax() > 0.1, "{name} must not vanish for the check to mean something");
+                assert!(commutator(&a, sign) < 1e-12, "{kset:?} σ' {sigma}: {name} {}", commutator(&a, sign));
+            }
+            // Φ_X² is unchanged too; Φ_X Φ_Z + Φ_Z Φ_X changes sign.
+            assert!(commutator(&ops.parts[XZ].to_dense(), -1.0) < 1e-12);
+            assert!(commutator(&ops.parts[XX].to_dense(), 1.0) < 1e-12);
         }
     }
 }

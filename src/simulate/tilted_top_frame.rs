@@ -15,6 +15,7 @@ use super::tilted::laser_angles;
 use super::tilted_top::{DIP_X, DIP_Z, OBSERVABLES, TiltedTopOps, TiltedTopRun, XX, XZ, ZZ};
 use crate::basis::top::TopFrame;
 use crate::propagate::local_frame::{Coefficient, step};
+use crate::propagate::sparse::Csr;
 use crate::propagate::{BlockState, FreePhases};
 use crate::units::cm_to_rad_per_ps;
 use nalgebra::{DMatrix, SymmetricEigen};
@@ -38,24 +39,64 @@ pub(super) struct FrameOps {
     /// Field-free angular frequencies of the kept states, rad/ps (ascending).
     pub omega: Vec<f64>,
     /// H0 (diagonal), then the coupling parts ZZ, XX, XZ, dipole Z, dipole X.
-    parts: Vec<DMatrix<f64>>,
-    observables: Vec<DMatrix<f64>>,
+    pub parts: Vec<DMatrix<f64>>,
+    /// The observables of [`super::tilted_top`], in the same order.
+    pub observables: Vec<DMatrix<f64>>,
     edge_states: usize,
+}
+
+/// The eigenstates `selected` of `full`, each as (first function index of its group, its coefficients on
+/// the group's functions): a column of the function basis that is zero outside one (J, M) group.
+fn kept_columns(full: &TiltedTopOps, selected: &[usize]) -> Vec<(usize, Vec<f64>)> {
+    selected
+        .iter()
+        .map(|&i| {
+            let &(start, _, slot) = full.groups.iter().find(|g| i >= g.0 && i < g.0 + g.1).expect("every eigenstate lies in a group");
+            (start, full.vectors[slot].column(i - start).iter().copied().collect())
+        })
+        .collect()
+}
+
+/// Eᵀ·op·E for the kept columns E of a symmetric `op`, symmetrized (this removes rounding). Both products
+/// run over each column's own group only: the cost is the kept count squared times a group's length,
+/// not the full basis size.
+fn symmetric_part(kept: &[(usize, Vec<f64>)], op: &Csr) -> DMatrix<f64> {
+    let n = kept.len();
+    // Y = op·E, column by column (op symmetric: its row r is its column r).
+    let mut y = DMatrix::<f64>::zeros(op.n, n);
+    for (c, (start, v)) in kept.iter().enumerate() {
+        let mut yc = y.column_mut(c);
+        for (k, &a) in v.iter().enumerate() {
+            if a != 0.0 {
+                for (col, x) in op.row(start + k) {
+                    yc[col] += x * a;
+                }
+            }
+        }
+    }
+    let m = DMatrix::from_fn(n, n, |r, c| {
+        let (start, v) = &kept[r];
+        v.iter().enumerate().map(|(k, a)| a * y[(start + k, c)]).sum::<f64>()
+    });
+    (&m + m.transpose()) * 0.5
+}
+
+/// The field-free levels of J, cm⁻¹.
+fn levels_of_j(frame: &TopFrame, j: i64) -> nalgebra::DVector<f64> {
+    let n = (2 * j + 1) as usize;
+    let h = DMatrix::from_fn(n, n, |r, c| frame.h0(j, r as i64 - j, c as i64 - j));
+    h.symmetric_eigenvalues()
 }
 
 /// The smallest J whose lowest field-free level lies above `cut_cm` (every level below the cut has a
 /// smaller J).
 pub(super) fn j_above(frame: &TopFrame, cut_cm: f64) -> i64 {
-    let mut j = 0;
-    loop {
-        let n = (2 * j + 1) as usize;
-        let h = DMatrix::from_fn(n, n, |r, c| frame.h0(j, r as i64 - j, c as i64 - j));
-        let lowest = SymmetricEigen::new(h).eigenvalues.min();
-        if lowest > cut_cm {
-            return j;
-        }
-        j += 1;
-    }
+    (0..).find(|&j| levels_of_j(frame, j).min() > cut_cm).expect("levels grow without bound")
+}
+
+/// The number of field-free states |J τ M⟩ (every M counted) below `cut_cm`, all classes together.
+pub(super) fn states_below(frame: &TopFrame, cut_cm: f64) -> usize {
+    (0..j_above(frame, cut_cm)).map(|j| levels_of_j(frame, j).iter().filter(|&&e| e < cut_cm).count() * (2 * j as usize + 1)).sum()
 }
 
 impl FrameOps {
@@ -63,21 +104,8 @@ impl FrameOps {
         let cut = cm_to_rad_per_ps(cut_cm);
         let mut selected: Vec<usize> = (0..full.omega.len()).filter(|&i| full.omega[i] < cut).collect();
         selected.sort_by(|&a, &b| full.omega[a].total_cmp(&full.omega[b]).then(a.cmp(&b)));
-        let n_full = full.omega.len();
-        let n = selected.len();
-        // Columns: the kept eigenstates in the function basis.
-        let mut e = DMatrix::<f64>::zeros(n_full, n);
-        for (c, &i) in selected.iter().enumerate() {
-            let &(start, len, slot) = full.groups.iter().find(|g| i >= g.0 && i < g.0 + g.1).expect("every eigenstate lies in a group");
-            let v = &full.vectors[slot];
-            for r in 0..len {
-                e[(start + r, c)] = v[(r, i - start)];
-            }
-        }
-        let dense = |op: &crate::propagate::sparse::Csr| {
-            let m = e.transpose() * op.mul_dense(&e);
-            (&m + m.transpose()) * 0.5
-        };
+        let e = kept_columns(full, &selected);
+        let dense = |op: &Csr| symmetric_part(&e, op);
         let omega: Vec<f64> = selected.iter().map(|&i| full.omega[i]).collect();
         let mut parts = vec![DMatrix::from_diagonal(&nalgebra::DVector::from_vec(omega.clone()))];
         parts.extend([ZZ, XX, XZ, DIP_Z, DIP_X].iter().map(|&p| dense(&full.parts[p])));
@@ -88,6 +116,16 @@ impl FrameOps {
 
     pub(super) fn size(&self) -> usize {
         self.selected.len()
+    }
+
+    /// M (≥ 0) of each kept state.
+    pub(super) fn m_values(&self, full: &TiltedTopOps) -> Vec<i64> {
+        self.selected.iter().map(|&i| full.m_of(i)).collect()
+    }
+
+    /// `op` (given in the function basis of `full`, the operators this was built from) in the kept states.
+    pub(super) fn project(&self, full: &TiltedTopOps, op: &Csr) -> DMatrix<f64> {
+        symmetric_part(&kept_columns(full, &self.selected), op)
     }
 
     /// The kept rows of unit-norm states given in every eigenstate of `full`, and the largest norm² left
