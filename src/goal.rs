@@ -23,6 +23,10 @@ pub enum Observable {
     /// Three-axis alignment of a top: the smaller of ⟨cos²⟩ of the alignment axis with Z and of the
     /// second most polarizable axis with X.
     ThreeAxis,
+    /// Three-dimensional orientation of a polar top: the smaller of ⟨cosθ⟩ of the dipole axis with Z and
+    /// ⟨cos²⟩ with X of the most polarizable axis other than the dipole axis (held in the XZ plane, along
+    /// X). Computed where a static field meets pulses polarized away from Z or is itself tilted.
+    ThreeAxisOriented,
 }
 
 impl Observable {
@@ -39,6 +43,7 @@ impl Observable {
             Observable::Cos => "cos",
             Observable::CosX => "cos_x",
             Observable::ThreeAxis => "three_axis",
+            Observable::ThreeAxisOriented => "three_axis_oriented",
         }
     }
 }
@@ -115,6 +120,9 @@ impl Goal {
         let at = || if path.is_empty() { "observable".to_string() } else { format!("{path}.observable") };
         if self.observable == Observable::ThreeAxis && molecule.kind() == RotorKind::Linear {
             return Err(Error::input(at(), format!("a three-axis goal needs a symmetric or asymmetric top; {} is linear (one axis)", molecule.name)));
+        }
+        if self.observable == Observable::ThreeAxisOriented && (molecule.kind() == RotorKind::Linear || !molecule.is_polar()) {
+            return Err(Error::input(at(), format!("a three-axis orientation goal needs a polar symmetric or asymmetric top; {} is not one", molecule.name)));
         }
         Ok(())
     }

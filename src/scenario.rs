@@ -269,6 +269,15 @@ impl Scenario {
             }
         }
         if let Some(g) = &self.goal
+            && g.observable == crate::goal::Observable::ThreeAxisOriented
+            && !self.field.static_without_axis()
+        {
+            return Err(Error::input(
+                join(path, "goal.observable"),
+                "three-axis orientation needs a static field together with pulses polarized away from Z or a tilted static field",
+            ));
+        }
+        if let Some(g) = &self.goal
             && g.observable == crate::goal::Observable::CosX
             && !self.field.static_field.is_some_and(|s| s.is_tilted())
         {

@@ -950,8 +950,9 @@ fn rejects_or_finishes_inline_molecule_strong_pulse_finishes_in_reasonable_time(
 
 #[test]
 fn scenario_bad_polarization_and_three_axis_goal_on_a_linear_molecule() {
-    // Checks: ellipticity outside [0, 1] and a three-axis goal for a linear molecule fail with exit code 2
-    // and a one-line error naming the field; nothing is written.
+    // Checks: ellipticity outside [0, 1], a three-axis goal for a linear molecule and a three-axis
+    // orientation goal without fields off the Z axis fail with exit code 2 and a one-line error naming the
+    // field; nothing is written.
     let mut v = good_scenario();
     v["pulses"][0]["polarization"] = json!({"angle_deg": 30, "ellipticity": 1.2});
     simulate_fails_on("bad-ellipticity", &v, "pulses[0].polarization.ellipticity");
@@ -961,6 +962,44 @@ fn scenario_bad_polarization_and_three_axis_goal_on_a_linear_molecule() {
     let mut v = good_scenario();
     v["goal"] = json!({"kind": "peak", "observable": "three_axis", "window_ps": [0.1, 5.0], "step_fs": 50});
     simulate_fails_on("three-axis-linear", &v, "goal.observable");
+    // Three-axis orientation: a linear molecule, and a top whose fields all lie along Z, are refused.
+    let mut v = good_scenario();
+    v["goal"] = json!({"kind": "peak", "observable": "three_axis_oriented", "window_ps": [0.1, 5.0], "step_fs": 50});
+    simulate_fails_on("three-axis-oriented-linear", &v, "goal.observable");
+    v["molecule"] = json!("SO2");
+    v["temperature_k"] = json!(0.3);
+    v["static_field"] = json!({"strength_kv_cm": 20});
+    simulate_fails_on("three-axis-oriented-along-z", &v, "goal.observable");
+}
+
+#[test]
+fn a_three_axis_orientation_goal_reads_the_dipole_along_z_and_the_partner_axis_along_x() {
+    // Checks the plumbing of the `three_axis_oriented` goal (each series it reads is checked against
+    // independent references in tests/tilted_tops.rs): SO2 (dipole b; a is the most polarizable other axis)
+    // in 30 kV/cm along Z with a pulse polarized along X; the column is min(cos_Zb, cos2_Xa) at every
+    // sample and the goal's peak is its largest value in the window.
+    let v = json!({
+        "molecule": "SO2", "temperature_k": 0.3,
+        "static_field": {"strength_kv_cm": 30},
+        "pulses": [{"center_ps": 0.0, "fwhm_fs": 500, "peak_intensity_wcm2": 1e12, "polarization": {"angle_deg": 90}}],
+        "window": {"start_ps": 0.0, "stop_ps": 3.0, "step_fs": 100},
+        "goal": {"kind": "peak", "observable": "three_axis_oriented", "window_ps": [0.0, 3.0], "step_fs": 100}
+    });
+    let (r, sb) = simulate_value("three-axis-oriented", &v);
+    assert_eq!(r.code, Some(0), "{}", r.stderr);
+    let trace = std::fs::read_to_string(sb.out().join("trace.csv")).unwrap();
+    let header: Vec<&str> = trace.lines().next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap_or_else(|| panic!("no {name} in {header:?}"));
+    let (g, z, x) = (col("three_axis_oriented"), col("cos_Zb"), col("cos2_Xa"));
+    let mut best: f64 = f64::NEG_INFINITY;
+    for line in trace.lines().skip(1) {
+        let row: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
+        assert!((row[g] - row[z].min(row[x])).abs() < 1e-9, "{line}");
+        best = best.max(row[g]);
+    }
+    let summary: Value = serde_json::from_str(&std::fs::read_to_string(sb.out().join("summary.json")).unwrap()).unwrap();
+    let value = summary["goal"]["value"].as_f64().unwrap();
+    assert!((value - best).abs() < 1e-6 && value > 0.1, "goal {value} against the column's largest {best}");
 }
 
 #[test]

@@ -644,6 +644,12 @@ impl Objective {
                 "⟨cosθ_X⟩ needs a static field tilted towards X: give static_field_kv_cm and a static_field_angle_deg that is not 0 or 180",
             ));
         }
+        if goal.observable == Observable::ThreeAxisOriented && !((polarized || tilted) && obj.space.static_field_kv_cm.is_some()) {
+            return Err(Error::input(
+                "goal.observable",
+                "three-axis orientation needs a static field together with pulses polarized away from Z or a tilted static field (static_field_kv_cm with pulses.angle_deg or static_field_angle_deg)",
+            ));
+        }
         if (polarized || tilted) && (obj.space.two_colour.is_some() || obj.space.terahertz.is_some()) {
             return Err(Error::input(
                 if polarized { "pulses.polarization" } else { "static_field_angle_deg" },

@@ -20,6 +20,7 @@ pub fn series(observable: Observable, trace: &Trace) -> Option<&[f64]> {
         Observable::Cos => trace.cos(),
         Observable::CosX => trace.lab_cos(crate::basis::lab::LabAxis::X),
         Observable::ThreeAxis => trace.three_axis(),
+        Observable::ThreeAxisOriented => trace.three_axis_oriented(),
     }
 }
 
@@ -35,7 +36,7 @@ pub fn score_goal(goal: &Goal, trace: &Trace, after: &FreeSums, t_last: f64) -> 
     let pick = |r: (f64, f64)| if goal.observable == Observable::Cos2 { r.0 } else { r.1 };
     // Level sums hold ⟨cos²θ⟩ and ⟨|cosθ|⟩ only: refine orientation goals on the samples alone.
     let field_free = match goal.observable {
-        Observable::Cos | Observable::CosX => f64::INFINITY,
+        Observable::Cos | Observable::CosX | Observable::ThreeAxisOriented => f64::INFINITY,
         // The minimum of two averages has no exact mean from the sums: means use the samples.
         Observable::ThreeAxis if goal.kind == GoalKind::Mean => f64::INFINITY,
         Observable::ThreeAxis if !after.carries_three_axis() => f64::INFINITY,

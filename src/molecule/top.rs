@@ -171,6 +171,13 @@ impl Top {
         if self.alpha(others[1]) > self.alpha(others[0]) { others[1] } else { others[0] }
     }
 
+    /// The most polarizable axis other than the dipole axis (ties go to the earlier of a, b, c): the axis a
+    /// three-axis orientation goal holds along X while the dipole points along Z.
+    pub fn oriented_second_axis(&self) -> BodyAxis {
+        let others: Vec<BodyAxis> = [BodyAxis::A, BodyAxis::B, BodyAxis::C].into_iter().filter(|a| *a != self.dipole_axis).collect();
+        if self.alpha(others[1]) > self.alpha(others[0]) { others[1] } else { others[0] }
+    }
+
     /// Largest minus smallest principal polarizability, Å³: the anisotropy that sets the kick strength.
     pub fn delta_alpha_a3(&self) -> f64 {
         let p = self.polarizability_a3;

@@ -644,6 +644,9 @@ pub struct BodyAxes {
     /// The three-axis goal's series, min(⟨cos²⟩ of the alignment axis with Z, ⟨cos²⟩ of the second most
     /// polarizable axis with X).
     pub three_axis: Vec<f64>,
+    /// The three-axis orientation goal's series, min(⟨cosθ⟩ of the dipole axis with Z, ⟨cos²⟩ with X of the
+    /// most polarizable axis other than the dipole axis); empty where not computed (fields all along Z).
+    pub three_axis_oriented: Vec<f64>,
 }
 
 impl BodyAxes {
@@ -719,6 +722,11 @@ impl Trace {
         self.body_axes.as_ref().map(|b| b.three_axis.as_slice())
     }
 
+    /// The three-axis orientation series of a polar top (None where not computed).
+    pub fn three_axis_oriented(&self) -> Option<&[f64]> {
+        self.body_axes.as_ref().map(|b| b.three_axis_oriented.as_slice()).filter(|s| !s.is_empty())
+    }
+
     /// Every sampled series but the times, mutably (for weighted sums of traces).
     fn series_mut(&mut self) -> Vec<&mut Vec<f64>> {
         let mut out = vec![&mut self.cos2];
@@ -728,7 +736,7 @@ impl Trace {
             out.extend(o.cos3.as_mut());
         }
         if let Some(b) = self.body_axes.as_mut() {
-            out.extend([&mut b.a, &mut b.b, &mut b.c, &mut b.three_axis]);
+            out.extend([&mut b.a, &mut b.b, &mut b.c, &mut b.three_axis, &mut b.three_axis_oriented]);
         }
         out.extend(self.lab_axes.iter_mut().map(|s| &mut s.values));
         out.extend(self.lab_cos.iter_mut().map(|s| &mut s.values));
@@ -751,7 +759,7 @@ impl Trace {
             out.extend(o.cos3.as_ref());
         }
         if let Some(b) = self.body_axes.as_ref() {
-            out.extend([&b.a, &b.b, &b.c, &b.three_axis]);
+            out.extend([&b.a, &b.b, &b.c, &b.three_axis, &b.three_axis_oriented]);
         }
         out.extend(self.lab_axes.iter().map(|s| &s.values));
         out.extend(self.lab_cos.iter().map(|s| &s.values));

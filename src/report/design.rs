@@ -208,12 +208,13 @@ pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Pa
         crate::goal::Observable::Cos => "best single pulse ⟨cosθ⟩",
         crate::goal::Observable::CosX => "best single pulse ⟨cosθ_X⟩",
         crate::goal::Observable::ThreeAxis => "single pulse, three-axis",
+        crate::goal::Observable::ThreeAxisOriented => "single pulse, three-axis orientation",
     };
-    if obs == crate::goal::Observable::ThreeAxis {
+    if matches!(obs, crate::goal::Observable::ThreeAxis | crate::goal::Observable::ThreeAxisOriented) {
         plot.series.push(svg::Series {
-            label: "three-axis goal".into(),
+            label: if obs == crate::goal::Observable::ThreeAxis { "three-axis goal" } else { "three-axis orientation goal" }.into(),
             x: sim.result.trace.times_ps.clone(),
-            y: sim.result.trace.three_axis().unwrap_or_default().to_vec(),
+            y: crate::design::score::series(obs, &sim.result.trace).unwrap_or_default().to_vec(),
             color: svg::VIOLET.into(),
             dashed: false,
             width: 1.8,

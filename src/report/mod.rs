@@ -184,6 +184,9 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
     }
     if let Some(b) = &trace.body_axes {
         cols.push(("three_axis", &b.three_axis));
+        if !b.three_axis_oriented.is_empty() {
+            cols.push(("three_axis_oriented", &b.three_axis_oriented));
+        }
     }
     for s in trace.lab_axes.iter().chain(&trace.lab_cos) {
         cols.push((s.name.as_str(), s.values.as_slice()));

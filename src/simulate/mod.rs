@@ -595,6 +595,7 @@ impl Solver {
             b: run.values[2][positions[1]].clone(),
             c: run.values[2][positions[2]].clone(),
             three_axis: run.values[2][align_pos].iter().zip(&run.values[0][s]).map(|(a, b)| a.min(*b)).collect(),
+            ..Default::default()
         });
         let trace =
             Trace { times_ps: times_ps.to_vec(), cos2: run.values[2][align_pos].clone(), body_axes, lab_axes, cos2_2d: run.cos2_2d, ..Default::default() };

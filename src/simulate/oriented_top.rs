@@ -400,7 +400,7 @@ impl OrientedTopSolver {
             cos2: values[align].clone(),
             cos2_2d: with_2d.then(|| values[TWO_D].clone()),
             orientation: Some(crate::observe::Orientation { cos: values[COS].clone(), cos3: Some(values[COS3].clone()) }),
-            body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis }),
+            body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis, ..Default::default() }),
             ..Default::default()
         };
         Ok(RunResult {

@@ -732,6 +732,7 @@ fn assemble(top: &Top, frame: &TopFrame, times: &[f64], values: Vec<Vec<f64>>, r
         b: series(2, BodyAxis::B),
         c: series(2, BodyAxis::C),
         three_axis: align.iter().zip(&second_x).map(|(a, b)| a.min(*b)).collect(),
+        three_axis_oriented: values[COS_Z_INDEX].iter().zip(&series(0, top.oriented_second_axis())).map(|(a, b)| a.min(*b)).collect(),
     };
     let trace = Trace {
         times_ps: times.to_vec(),
@@ -828,11 +829,7 @@ fn run_classes_in_frame(
     let static_cm = field.static_field.map(|s| dipole_rate_rad_per_ps(run.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0) / per_cm;
     let shortest = field.pulses.iter().filter(|p| p.peak_intensity_wcm2 > 0.0).map(|p| p.time_scale_ps()).fold(f64::INFINITY, f64::min);
     let frame_run = FrameRun { base: run, max_step_ps: (shortest / 8.0).min(1e6) };
-    let level_cm = |j: i64| {
-        let n = (2 * j + 1) as usize;
-        let h = DMatrix::from_fn(n, n, |r, c| frame.h0(j, r as i64 - j, c as i64 - j));
-        nalgebra::SymmetricEigen::new(h).eigenvalues.min()
-    };
+    let level_cm = |j: i64| super::tilted_top_frame::levels_of_j(frame, j).min();
     let cap_cm = level_cm(MAX_TILTED_TOP_J).floor() as usize;
     let b_cm = top.c_cm.max(1e-6);
     progress.plan(classes.len());

@@ -82,7 +82,7 @@ fn symmetric_part(kept: &[(usize, Vec<f64>)], op: &Csr) -> DMatrix<f64> {
 }
 
 /// The field-free levels of J, cm⁻¹.
-fn levels_of_j(frame: &TopFrame, j: i64) -> nalgebra::DVector<f64> {
+pub(super) fn levels_of_j(frame: &TopFrame, j: i64) -> nalgebra::DVector<f64> {
     let n = (2 * j + 1) as usize;
     let h = DMatrix::from_fn(n, n, |r, c| frame.h0(j, r as i64 - j, c as i64 - j));
     h.symmetric_eigenvalues()

@@ -33,7 +33,7 @@
 
 use super::oriented_top::{OrientedTopSolver, TopDressedState, TopPendular};
 use super::tilted_top::{COS_X_INDEX, COS_Z_INDEX, Class, Column, MAX_TILTED_TOP_J, Prim, TiltedTopCache, class_columns};
-use super::tilted_top_frame::{FrameOps, j_above, states_below};
+use super::tilted_top_frame::{FrameOps, j_above, levels_of_j, states_below};
 use crate::basis::top::TopFrame;
 use crate::error::{Error, Result};
 use crate::molecule::Molecule;
@@ -132,9 +132,7 @@ fn same(a: &[TopDressedState], b: &[TopDressedState], b_cm: f64) -> bool {
 
 /// The lowest field-free level of J, cm⁻¹.
 fn lowest_level_cm(frame: &TopFrame, j: i64) -> f64 {
-    let n = (2 * j + 1) as usize;
-    let h = DMatrix::from_fn(n, n, |r, c| frame.h0(j, r as i64 - j, c as i64 - j));
-    nalgebra::SymmetricEigen::new(h).eigenvalues.min()
+    levels_of_j(frame, j).min()
 }
 
 /// Refuses a cut whose classes would be too large to solve densely (before building them). An

@@ -482,7 +482,7 @@ impl TopSolver {
             times_ps: times_ps.to_vec(),
             cos2: values[align].clone(),
             cos2_2d: with_2d.then(|| values[AXES].clone()),
-            body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis }),
+            body_axes: Some(crate::observe::BodyAxes { a: values[0].clone(), b: values[1].clone(), c: values[2].clone(), three_axis, ..Default::default() }),
             ..Default::default()
         };
         Ok(RunResult {
@@ -744,7 +744,7 @@ impl super::Solver {
             cos2: axis(align),
             cos2_2d: abs_align,
             orientation,
-            body_axes: Some(crate::observe::BodyAxes { a: axis(0), b: axis(1), c: axis(2), three_axis }),
+            body_axes: Some(crate::observe::BodyAxes { a: axis(0), b: axis(1), c: axis(2), three_axis, ..Default::default() }),
             ..Default::default()
         };
         let mut sums = crate::observe::LevelSums::new(vec![], f64::INFINITY, false);
