@@ -1183,7 +1183,7 @@ fn pendular_with_the_static_field_at_an_angle() {
     // The table and the JSON carry ⟨cosθ_X⟩ and name the angle, for a linear molecule and a top; a bad angle
     // is one line naming `static_angle_deg`, a top whose classes would be too large one naming
     // `temperature_k`, exit 2 (the values themselves are checked in tests/tilted_pendular.rs and
-    // tests/tilted_top_pendular.rs).
+    // tests/tilted_pendular.rs).
     let r = run(&["pendular", "OCS", "--intensity-wcm2", "1e11", "--static-kv-cm", "20", "--static-angle-deg", "45"]);
     assert_eq!(r.code, Some(0), "{}", r.stderr);
     assert!(r.stdout.contains("at 45.0° from Z towards X") && r.stdout.contains("⟨cosθ_X⟩") && r.stdout.contains("|M_f|"), "{}", r.stdout);

@@ -350,11 +350,11 @@ const POLAR_ASYMMETRIC: &str = r#"{"name": "polar asymmetric demo", "a_cm": 0.6,
 fn reversing_the_static_field_reverses_an_asymmetric_tops_orientation() {
     // Exact symmetry (rotation by π about a lab axis perpendicular to Z maps E → −E): ⟨cosθ⟩ of the dipole
     // axis changes sign, every ⟨cos²⟩ stays. Dipole along b, field on from the start (dressed states),
-    // a laser pulse inside it.
+    // a laser pulse inside it. At 0.4 K (exact at any temperature; 1 K took 108 s of CI for the same check).
     let pulse = r#"{"center_ps": 1.0, "fwhm_fs": 400, "peak_intensity_wcm2": 3e12}"#;
-    let window = r#"{"start_ps": 0.0, "stop_ps": 20.0, "step_fs": 250}"#;
-    let up = simulate(&scenario(POLAR_ASYMMETRIC, 1.0, pulse, window, r#", "static_field": {"strength_kv_cm": 30}"#)).unwrap().result;
-    let down = simulate(&scenario(POLAR_ASYMMETRIC, 1.0, pulse, window, r#", "static_field": {"strength_kv_cm": -30}"#)).unwrap().result;
+    let window = r#"{"start_ps": 0.0, "stop_ps": 12.0, "step_fs": 250}"#;
+    let up = simulate(&scenario(POLAR_ASYMMETRIC, 0.4, pulse, window, r#", "static_field": {"strength_kv_cm": 30}"#)).unwrap().result;
+    let down = simulate(&scenario(POLAR_ASYMMETRIC, 0.4, pulse, window, r#", "static_field": {"strength_kv_cm": -30}"#)).unwrap().result;
     let mut seen: f64 = 0.0;
     for i in 0..up.trace.times_ps.len() {
         assert!((up.trace.cos().unwrap()[i] + down.trace.cos().unwrap()[i]).abs() < 1e-9);
@@ -363,6 +363,7 @@ fn reversing_the_static_field_reverses_an_asymmetric_tops_orientation() {
         assert!((b.a[i] + b.b[i] + b.c[i] - 1.0).abs() < 1e-9, "Σ Φ_Zi² = 1");
         seen = seen.max(up.trace.cos().unwrap()[i].abs());
     }
+    eprintln!("largest orientation {seen}");
     assert!(seen > 0.05, "the mixed field orients the b axis: {seen}");
     assert!((up.permanent_cos.unwrap() + down.permanent_cos.unwrap()).abs() < 1e-9);
 }
