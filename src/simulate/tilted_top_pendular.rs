@@ -50,8 +50,8 @@ use rayon::prelude::*;
 /// 6e-12, so the change is about ten times the error left.
 const CONVERGED: f64 = 1e-7;
 
-/// Largest class solved (dense eigendecompositions: measured for pyridine at 1 K, about 4,500 states a
-/// class at the last cut, 214 s and 4.6 GB on the 2-core machine).
+/// Largest class solved (dense eigendecompositions: pyridine at 1 K, with more than 3,000 states a class at
+/// its last cuts, took 214 s and 4.6 GB on the 2-core machine).
 const MAX_CLASS_STATES: usize = 5000;
 
 /// Weight a start state may leave outside the kept states of a cut.
