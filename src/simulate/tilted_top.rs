@@ -45,7 +45,7 @@ use crate::molecule::top::{BodyAxis, Top};
 use crate::numeric::sorted_eigen;
 use crate::observe::{BodyAxes, LabAxisSeries, LevelSums, Orientation, Trace};
 use crate::propagate::sparse::{Csr, with_scratch};
-use crate::propagate::{BlockState, FreePhases};
+use crate::propagate::{BlockState, FiniteSpan, FreePhases, propagate_finite};
 use crate::scenario::SolverSettings;
 use crate::units::{cm_to_rad_per_ps, dipole_rate_rad_per_ps};
 use nalgebra::DMatrix;
@@ -73,13 +73,17 @@ pub(super) const COS_Z_INDEX: usize = 10;
 pub(super) const OBSERVABLES: usize = 11;
 
 /// Coupling parts on one pattern: the laser couplings Σ_i w_i Φ_Fi Φ_F'i for (F, F') = ZZ, XX and
-/// XZ + ZX, the dipole couplings Φ_Zz and Φ_Xz, and the identity.
+/// XZ + ZX, the dipole couplings Φ_Zz and Φ_Xz, the identity and the field-free Hamiltonian (rad/ps).
 pub(super) const ZZ: usize = 0;
 pub(super) const XX: usize = 1;
 pub(super) const XZ: usize = 2;
 pub(super) const DIP_Z: usize = 3;
 pub(super) const DIP_X: usize = 4;
 const IDENTITY: usize = 5;
+const H0: usize = 6;
+
+/// Longest phase range (rad) one Chebyshev series of a quiet stretch spans; longer stretches take several.
+const QUIET_THETA: f64 = 200.0;
 
 /// A primitive symmetric-top function (J, K, M).
 pub(super) type Prim = (i64, i64, i64);
@@ -203,6 +207,7 @@ impl TiltedTopOps {
         let mut known: HashMap<(i64, bool), usize> = HashMap::new();
         let mut omega = vec![0.0; n];
         let mut diagonal = vec![0.0; n];
+        let mut h0: Vec<(usize, usize, f64)> = vec![];
         let mut start = 0;
         while start < n {
             let (j, _, m) = functions[start];
@@ -222,6 +227,11 @@ impl TiltedTopOps {
             });
             for r in 0..len {
                 diagonal[start + r] = cm_to_rad_per_ps(h[(r, r)]);
+                for c in 0..len {
+                    if h[(r, c)] != 0.0 {
+                        h0.push((start + r, start + c, cm_to_rad_per_ps(h[(r, c)])));
+                    }
+                }
             }
             let slot = match known.get(&(j, m == 0)) {
                 Some(&slot) => slot,
@@ -267,13 +277,13 @@ impl TiltedTopOps {
             }
         }
         let identity: Vec<(usize, usize, f64)> = (0..n).map(|i| (i, i, 1.0)).collect();
-        let positions: Vec<(usize, usize)> = coupling.iter().flatten().map(|t| (t.0, t.1)).chain((0..n).map(|i| (i, i))).collect();
+        let positions: Vec<(usize, usize)> = coupling.iter().flatten().chain(&h0).map(|t| (t.0, t.1)).chain((0..n).map(|i| (i, i))).collect();
         let on_pattern = |own: &[(usize, usize, f64)]| {
             let mut t: Vec<(usize, usize, f64)> = positions.iter().map(|&(r, c)| (r, c, 0.0)).collect();
             t.extend_from_slice(own);
             Csr::from_triplets(n, t)
         };
-        ops.parts = coupling.iter().map(|t| on_pattern(t)).chain(std::iter::once(on_pattern(&identity))).collect();
+        ops.parts = coupling.iter().map(|t| on_pattern(t)).chain([on_pattern(&identity), on_pattern(&h0)]).collect();
         let mut observables: Vec<Csr> = vec![];
         for f in LAB {
             for i in 0..3 {
@@ -387,6 +397,31 @@ impl TiltedTopOps {
         kick_through_groups(&self.group_views(), combined, st, width);
     }
 
+    /// ψ ← exp(−i(H0 − s(cosα Φ_Zz + sinα Φ_Xz)) dt) ψ (up to a global phase): a stretch with the static
+    /// field (rate `s`, rad/ps) and no pulse, exact in the basis (Chebyshev series of the whole Hamiltonian,
+    /// whose spectrum lies within [ω_min − |s|, ω_max + |s|]: the direction cosines have norm at most 1).
+    fn quiet(&self, st: &mut BlockState, s: f64, angle_rad: f64, dt: f64, combined: &mut Csr) {
+        let w_min = self.omega.iter().copied().fold(f64::INFINITY, f64::min);
+        let w_max = self.omega.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        // exp(−iH dt) = exp(i dt·(−H)), −H with spectrum in [lo, hi].
+        let (lo, hi) = (-w_max - s.abs(), -w_min + s.abs());
+        let width = hi - lo;
+        if width == 0.0 || dt == 0.0 {
+            return;
+        }
+        let (sn, cs) = angle_rad.sin_cos();
+        combined.set_combination(&[
+            (&self.parts[H0], -1.0 / width),
+            (&self.parts[DIP_Z], s * cs / width),
+            (&self.parts[DIP_X], s * sn / width),
+            (&self.parts[IDENTITY], -lo / width),
+        ]);
+        let pieces = (width * dt / QUIET_THETA).ceil().max(1.0);
+        for _ in 0..pieces as usize {
+            kick_through_groups(&self.group_views(), combined, st, width * dt / pieces);
+        }
+    }
+
     /// Σ_c p_c ⟨ψ_c|O|ψ_c⟩ for every observable.
     fn sample(&self, st: &BlockState, pops: &[f64], out: &mut [f64]) {
         let (n, cols) = st.psi.shape();
@@ -491,7 +526,51 @@ impl Kernel for TiltedTopKernel<'_> {
         self.run.breaks.clone()
     }
 
-    fn step(&self, step_ps: f64) -> f64 {
+    /// Whole marks (samples, breaks) at a time: see [`Kernel::own_step`].
+    fn step(&self, _step_ps: f64) -> f64 {
+        f64::INFINITY
+    }
+
+    fn steps_itself(&self) -> bool {
+        true
+    }
+
+    /// From the state's time to the next sample or break (`max_ps`): exactly, in one Chebyshev series of
+    /// the whole Hamiltonian, when no pulse reaches into the stretch (the static field alone, constant
+    /// between breaks: a static field stays on for the whole window, and splitting steps would have to
+    /// resolve the fastest transition of the basis all along); else by the splitting steps.
+    fn own_step(&self, index: usize, item: &Event, st: &mut BlockState, max_ps: f64) -> f64 {
+        let Event::Finite { pulses, step_ps, .. } = item else {
+            self.free(st, index, max_ps);
+            return max_ps;
+        };
+        let (t0, t1) = (st.t_ps, st.t_ps + max_ps);
+        let field = self.run.field;
+        let quiet = pulses.iter().all(|&i| {
+            let (a, b) = field.pulses[i].support_ps();
+            b <= t0 || a >= t1
+        });
+        // Read just inside the stretch: a switch falls on its ends, and its value belongs to one side.
+        let inside = 1e-9 * max_ps;
+        let s = self.run.static_rate(t0 + inside);
+        if quiet && s == self.run.static_rate(t1 - inside) {
+            if s == 0.0 {
+                self.free(st, index, max_ps);
+            } else {
+                self.ops.quiet(st, s, self.run.angle_rad, max_ps, &mut self.combined.borrow_mut());
+                st.t_ps = t1;
+            }
+            return max_ps;
+        }
+        let span = FiniteSpan { end_ps: t1, max_step_ps: self.split_step(*step_ps), stops: &[], breaks: &[] };
+        propagate_finite(st, &self.ops.omega, &mut |st: &mut BlockState, t: f64, h: f64| self.finite_kick(index, item, st, t, h), span, |_, _| {});
+        max_ps
+    }
+}
+
+impl TiltedTopKernel<'_> {
+    /// The splitting step inside pulses (ps), from the schedule's `step_ps`.
+    fn split_step(&self, step_ps: f64) -> f64 {
         let s_max = self.run.field.static_field.map(|s| dipole_rate_rad_per_ps(self.run.dipole_debye, s.strength_kv_cm).abs()).unwrap_or(0.0);
         let step = TILTED_TOP_STEP.in_block(self.run.settings, step_ps, self.ops.fastest);
         if self.run.settings.step_fs.is_some() || s_max == 0.0 { step } else { step.min(TILTED_TOP_STEP.coupling / s_max) }
