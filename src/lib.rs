@@ -33,6 +33,7 @@ pub mod report;
 pub mod resources;
 pub mod scan;
 pub mod scenario;
+pub mod shard;
 pub mod simulate;
 pub mod tolerance;
 pub mod units;

@@ -37,13 +37,9 @@ fn main() -> ExitCode {
         .map(|()| Finish::Done),
         Command::Scan(args) => commands::run_scan(&args),
         Command::Limits(args) => commands::run_limits(&args),
-        Command::Tolerance { scenario, jitter_fs, energy_noise_percent, phase_noise_rad, samples, seed, out } => commands::run_tolerance(
-            &scenario,
-            kicktrain::tolerance::Noise { jitter_fs, energy_percent: energy_noise_percent, phase_rad: phase_noise_rad },
-            samples,
-            seed,
-            out.as_deref(),
-        ),
+        Command::Tolerance(args) => commands::run_tolerance(&args),
+        Command::Merge { parts, out } => commands::run_merge(&parts, out.as_deref()),
+        Command::Cluster(args) => cli::cluster::run_cluster(&args),
         Command::Design { objective, out, seed, effort, time_limit, quiet, json } => {
             commands::run_design(objective.as_deref(), out.as_deref(), seed, effort.as_deref(), time_limit, quiet, json)
         }

@@ -7,6 +7,7 @@ use crate::scenario::Scenario;
 use crate::simulate::Solver;
 use rayon::prelude::*;
 use serde_json::Value;
+use crate::shard::Shard;
 use std::sync::atomic::{AtomicBool, Ordering};
 
 /// One scanned axis: a dotted path into the scenario JSON and the values it takes.
@@ -131,6 +132,78 @@ impl ScanResult {
     pub fn partial(&self) -> bool {
         self.done.iter().flatten().any(|d| !d)
     }
+
+    /// True when every point `shard` owns was computed.
+    pub fn part_complete(&self, shard: Shard) -> bool {
+        self.done.iter().flatten().enumerate().all(|(i, d)| *d || !shard.owns(i))
+    }
+
+    /// The result as a part file holds it: axes, metric, and per point its value or null.
+    pub fn part_value(&self) -> Value {
+        let axis = |a: &Axis| serde_json::json!({"path": a.path, "values": a.values});
+        let values: Vec<Vec<Value>> =
+            self.values.iter().zip(&self.done).map(|(row, done)| row.iter().zip(done).map(|(v, d)| number_value(*v, *d)).collect()).collect();
+        serde_json::json!({
+            "x": axis(&self.x),
+            "y": self.y.as_ref().map(axis),
+            "metric": match self.metric { Metric::Goal => "goal", Metric::PeakCos2 => "peak_cos2" },
+            "values": values,
+        })
+    }
+
+    /// One scan from the results of its parts (in any order, each from [`ScanResult::part_value`]): every
+    /// point must come from exactly one part, and the parts must share their axes and metric.
+    pub fn merge(parts: &[Value]) -> Result<ScanResult> {
+        let bad = |what: &str| Error::input("parts", format!("the parts' scan results {what}"));
+        let axis = |v: &Value| -> Result<Axis> {
+            let path = v.get("path").and_then(Value::as_str).ok_or_else(|| bad("lack an axis path"))?;
+            let values = v.get("values").and_then(Value::as_array).ok_or_else(|| bad("lack axis values"))?;
+            Ok(Axis { path: path.to_string(), values: values.iter().map(|x| x.as_f64().ok_or_else(|| bad("hold an axis value that is not a number"))).collect::<Result<_>>()? })
+        };
+        let first = parts.first().ok_or_else(|| bad("are empty"))?;
+        let x = axis(first.get("x").ok_or_else(|| bad("lack the x axis"))?)?;
+        let y = match first.get("y") {
+            None | Some(Value::Null) => None,
+            Some(v) => Some(axis(v)?),
+        };
+        let metric = match first.get("metric").and_then(Value::as_str) {
+            Some("goal") => Metric::Goal,
+            Some("peak_cos2") => Metric::PeakCos2,
+            _ => return Err(bad("name no known metric")),
+        };
+        let rows = y.as_ref().map(|a| a.values.len()).unwrap_or(1);
+        let mut values = vec![vec![f64::NAN; x.values.len()]; rows];
+        let mut done = vec![vec![false; x.values.len()]; rows];
+        for p in parts {
+            if p.get("x") != first.get("x") || p.get("y") != first.get("y") || p.get("metric") != first.get("metric") {
+                return Err(bad("differ in their axes or metric"));
+            }
+            let grid = p.get("values").and_then(Value::as_array).filter(|g| g.len() == rows).ok_or_else(|| bad("do not fit their axes"))?;
+            for (iy, row) in grid.iter().enumerate() {
+                let row = row.as_array().filter(|r| r.len() == x.values.len()).ok_or_else(|| bad("do not fit their axes"))?;
+                for (ix, v) in row.iter().enumerate() {
+                    if v.is_null() {
+                        continue;
+                    }
+                    if done[iy][ix] {
+                        return Err(bad(&format!("hold the point ({ix}, {iy}) twice")));
+                    }
+                    values[iy][ix] = v.as_f64().or_else(|| v.as_str().and_then(|t| t.parse().ok())).ok_or_else(|| bad("hold a value that is not a number"))?;
+                    done[iy][ix] = true;
+                }
+            }
+        }
+        Ok(ScanResult { x, y, metric, values, done })
+    }
+}
+
+/// A point's value in a part file: null when not done, a string for a value JSON has no number for.
+fn number_value(v: f64, done: bool) -> Value {
+    match (done, v.is_finite()) {
+        (false, _) => Value::Null,
+        (true, true) => serde_json::json!(v),
+        (true, false) => Value::String(v.to_string()),
+    }
 }
 
 /// Set a number at a dotted path like `pulses[1].center_ps` inside a JSON value.
@@ -186,7 +259,9 @@ pub const COMMAND_STEP_FACTOR: f64 = 50.0;
 
 /// Scan `base` (the scenario as JSON) over one or two axes; `progress` is called after each point. Once
 /// `stop` is set no new point starts; the points finished so far are returned (see [`ScanResult::done`]).
-pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Sync), stop: &AtomicBool) -> Result<ScanResult> {
+/// With `shard`, only the points that part owns (row-major index i, y outer) are computed; the others
+/// stay not done (see [`ScanResult::part_value`] and [`ScanResult::merge`]).
+pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, shard: Option<Shard>, progress: &(dyn Fn() + Sync), stop: &AtomicBool) -> Result<ScanResult> {
     let base_scenario = Scenario::from_value(base, "")?;
     let metric = if base_scenario.goal.is_some() { Metric::Goal } else { Metric::PeakCos2 };
     let ys: Vec<Option<f64>> = match y {
@@ -219,8 +294,9 @@ pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Syn
         .collect::<Result<_>>()?;
     let shared = Solver::new(&base_scenario.molecule, base_scenario.temperature_k, base_scenario.solver)?;
     let same = |s: &Scenario| s.molecule == base_scenario.molecule && s.temperature_k == base_scenario.temperature_k && s.solver == base_scenario.solver;
-    // The whole scan's finite-pulse steps (each point is also checked alone when it runs).
-    let total: f64 = scenarios.iter().filter(|s| same(s)).map(|s| shared.time_steps(&s.field).0).sum();
+    let owned = |i: usize| shard.is_none_or(|sh| sh.owns(i));
+    // The whole scan's finite-pulse steps (each point is also checked alone when it runs); a part checks its own.
+    let total: f64 = scenarios.iter().enumerate().filter(|(i, s)| owned(*i) && same(s)).map(|(_, s)| shared.time_steps(&s.field).0).sum();
     let limit = COMMAND_STEP_FACTOR * base_scenario.solver.max_steps;
     if total > limit {
         let key = if y.is_some() { "--steps × --y-steps" } else { "--steps" };
@@ -234,8 +310,9 @@ pub fn scan(base: &Value, x: &Axis, y: Option<&Axis>, progress: &(dyn Fn() + Syn
     }
     let flat: Vec<Option<f64>> = scenarios
         .par_iter()
-        .map(|s| {
-            if stop.load(Ordering::SeqCst) {
+        .enumerate()
+        .map(|(i, s)| {
+            if !owned(i) || stop.load(Ordering::SeqCst) {
                 return Ok(None);
             }
             let v = if same(s) { evaluate(s, &shared, metric) } else { evaluate(s, &Solver::new(&s.molecule, s.temperature_k, s.solver)?, metric) };

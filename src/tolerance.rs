@@ -5,8 +5,10 @@ use crate::design::score::score_goal;
 use crate::error::{Error, Result};
 use crate::goal::Observable;
 use crate::scenario::Scenario;
+use crate::shard::Shard;
 use crate::simulate::Solver;
 use rand::{Rng, SeedableRng};
+use serde_json::{Value, json};
 use rayon::prelude::*;
 use std::sync::atomic::{AtomicBool, Ordering};
 
@@ -73,6 +75,12 @@ pub fn perturb(field: &crate::field::FieldModel, noise: Noise, seed: u64, i: usi
 /// Evaluate `scenario`'s goal under `samples` random draws of `noise` (reproducible with `seed`). Once
 /// `stop` is set no new sample starts, and the statistics cover the samples finished.
 pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64, stop: &AtomicBool) -> Result<ToleranceResult> {
+    tolerance_part(scenario, noise, samples, seed, None, stop)
+}
+
+/// [`tolerance`] for the draws one part owns (all of them without `shard`): the others are not computed,
+/// and the statistics cover the part's draws (see [`ToleranceResult::merge`] for the whole run).
+pub fn tolerance_part(scenario: &Scenario, noise: Noise, samples: usize, seed: u64, shard: Option<Shard>, stop: &AtomicBool) -> Result<ToleranceResult> {
     let goal = scenario.goal.ok_or_else(|| Error::input("goal", "a tolerance analysis needs a goal in the scenario (design.json files carry one)"))?;
     for (name, v) in [("jitter_fs", noise.jitter_fs), ("energy_percent", noise.energy_percent), ("phase_rad", noise.phase_rad)] {
         if !v.is_finite() || v < 0.0 {
@@ -109,19 +117,66 @@ pub fn tolerance(scenario: &Scenario, noise: Noise, samples: usize, seed: u64, s
         Ok(score_goal(&goal, &run.trace, &run.final_sums, t_last).value)
     };
     let nominal = score(&scenario.field)?;
-    let fields: Vec<crate::field::FieldModel> = (0..samples).map(|i| perturb(&scenario.field, noise, seed, i)).collect();
+    let owned: Vec<usize> = (0..samples).filter(|&i| shard.is_none_or(|s| s.owns(i))).collect();
+    let fields: Vec<crate::field::FieldModel> = owned.iter().map(|&i| perturb(&scenario.field, noise, seed, i)).collect();
     let scored: Vec<Option<f64>> = fields.par_iter().map(|f| if stop.load(Ordering::SeqCst) { Ok(None) } else { score(f).map(Some) }).collect::<Result<_>>()?;
-    let sample_index: Vec<usize> = (0..samples).filter(|&i| scored[i].is_some()).collect();
-    let values: Vec<f64> = scored.iter().flatten().copied().collect();
-    if values.is_empty() {
-        return Err(Error::Interrupted);
+    let indexed: Vec<(usize, f64)> = owned.iter().zip(&scored).filter_map(|(&i, v)| v.map(|v| (i, v))).collect();
+    ToleranceResult::from_scores(nominal, samples, indexed, goal.sense())
+}
+
+impl ToleranceResult {
+    /// The statistics of the scores (draw number, score) in draw order; `sense` is the goal's (+1 for a
+    /// maximum). An empty list means the run was stopped before any draw finished.
+    pub fn from_scores(nominal: f64, requested: usize, mut indexed: Vec<(usize, f64)>, sense: f64) -> Result<ToleranceResult> {
+        indexed.sort_by_key(|x| x.0);
+        let (sample_index, values): (Vec<usize>, Vec<f64>) = indexed.into_iter().unzip();
+        if values.is_empty() {
+            return Err(Error::Interrupted);
+        }
+        let n = values.len() as f64;
+        let mean = values.iter().sum::<f64>() / n;
+        let spread = (values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
+        let mut sorted = values.clone();
+        sorted.sort_by(f64::total_cmp);
+        let k = ((0.1 * n).floor() as usize).min(sorted.len() - 1);
+        let worst_decile = if sense > 0.0 { sorted[k] } else { sorted[sorted.len() - 1 - k] };
+        Ok(ToleranceResult { nominal, samples: values, sample_index, requested, mean, spread, worst_decile })
     }
-    let n = values.len() as f64;
-    let mean = values.iter().sum::<f64>() / n;
-    let spread = (values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
-    let mut sorted = values.clone();
-    sorted.sort_by(f64::total_cmp);
-    let k = ((0.1 * n).floor() as usize).min(sorted.len() - 1);
-    let worst_decile = if goal.sense() > 0.0 { sorted[k] } else { sorted[sorted.len() - 1 - k] };
-    Ok(ToleranceResult { nominal, samples: values, sample_index, requested: samples, mean, spread, worst_decile })
+
+    /// True when every draw `shard` owns finished.
+    pub fn part_complete(&self, shard: Shard) -> bool {
+        self.samples.len() == shard.owned(self.requested)
+    }
+
+    /// The result as a part file holds it (`sense` as in [`ToleranceResult::from_scores`]).
+    pub fn part_value(&self, sense: f64) -> Value {
+        let scores: Vec<Value> = self.sample_index.iter().zip(&self.samples).map(|(i, v)| json!([i, v])).collect();
+        json!({"nominal": self.nominal, "requested": self.requested, "sense": sense, "scores": scores})
+    }
+
+    /// One run from the results of its parts: every draw 0..requested from exactly one part, one nominal score.
+    pub fn merge(parts: &[Value]) -> Result<ToleranceResult> {
+        let bad = |what: &str| Error::input("parts", format!("the parts' tolerance results {what}"));
+        let first = parts.first().ok_or_else(|| bad("are empty"))?;
+        let (nominal, requested, sense) = (first.get("nominal"), first.get("requested"), first.get("sense"));
+        let requested_n = requested.and_then(Value::as_u64).ok_or_else(|| bad("lack the number of draws"))? as usize;
+        let mut seen = vec![false; requested_n];
+        let mut indexed = vec![];
+        for p in parts {
+            if p.get("nominal") != nominal || p.get("requested") != requested || p.get("sense") != sense {
+                return Err(bad("differ in their nominal score or number of draws"));
+            }
+            for s in p.get("scores").and_then(Value::as_array).ok_or_else(|| bad("lack their scores"))? {
+                let (i, v) = (s.get(0).and_then(Value::as_u64).map(|i| i as usize), s.get(1).and_then(Value::as_f64));
+                let (Some(i), Some(v)) = (i, v) else { return Err(bad("hold a score that is not (draw, value)")) };
+                if i >= requested_n || seen[i] {
+                    return Err(bad(&format!("hold draw {i} twice or out of range")));
+                }
+                seen[i] = true;
+                indexed.push((i, v));
+            }
+        }
+        let nominal = nominal.and_then(Value::as_f64).ok_or_else(|| bad("lack the nominal score"))?;
+        ToleranceResult::from_scores(nominal, requested_n, indexed, sense.and_then(Value::as_f64).unwrap_or(1.0))
+    }
 }

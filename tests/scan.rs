@@ -17,6 +17,7 @@ fn a_scan_over_one_value_equals_simulate_at_that_value() {
             &base,
             &Axis::linear("pulses[1].center_ps", x, x, 1).unwrap(),
             Some(&Axis::linear("pulses[1].peak_intensity_wcm2", y, y, 1).unwrap()),
+            None,
             &|| {},
             &AtomicBool::new(false),
         )
@@ -34,9 +35,9 @@ fn a_scan_over_one_value_equals_simulate_at_that_value() {
 #[test]
 fn bad_paths_and_values_name_the_field() {
     let base: serde_json::Value = serde_json::from_str(TWO).unwrap();
-    let err = scan(&base, &Axis::linear("pulses[5].center_ps", 0.0, 1.0, 2).unwrap(), None, &|| {}, &AtomicBool::new(false)).unwrap_err().to_string();
+    let err = scan(&base, &Axis::linear("pulses[5].center_ps", 0.0, 1.0, 2).unwrap(), None, None, &|| {}, &AtomicBool::new(false)).unwrap_err().to_string();
     assert!(err.starts_with("pulses[5].center_ps:"), "{err}");
-    let err = scan(&base, &Axis::linear("pulses[1].fwhm_fs", -10.0, 10.0, 3).unwrap(), None, &|| {}, &AtomicBool::new(false)).unwrap_err().to_string();
+    let err = scan(&base, &Axis::linear("pulses[1].fwhm_fs", -10.0, 10.0, 3).unwrap(), None, None, &|| {}, &AtomicBool::new(false)).unwrap_err().to_string();
     assert!(err.starts_with("pulses[1].fwhm_fs:") && err.contains("scan point"), "{err}");
     assert!(Axis::linear("temperature_k", 0.0, 1.0, 0).is_err());
 }
@@ -52,9 +53,9 @@ fn a_scan_whose_total_steps_exceed_the_limit_is_refused_before_it_starts() {
     assert!(per_run > 10.0, "{per_run}");
     base["solver"]["max_steps"] = serde_json::json!(per_run + 1.0);
     let stop = AtomicBool::new(false);
-    let err = scan(&base, &Axis::linear("pulses[1].center_ps", 3.0, 5.0, 60).unwrap(), None, &|| {}, &stop).unwrap_err().to_string();
+    let err = scan(&base, &Axis::linear("pulses[1].center_ps", 3.0, 5.0, 60).unwrap(), None, None, &|| {}, &stop).unwrap_err().to_string();
     assert!(err.starts_with("--steps: the scan would take"), "{err}");
     let t0 = std::time::Instant::now();
-    assert!(scan(&base, &Axis::linear("pulses[1].center_ps", 3.0, 5.0, 40).unwrap(), None, &|| {}, &stop).is_ok());
+    assert!(scan(&base, &Axis::linear("pulses[1].center_ps", 3.0, 5.0, 40).unwrap(), None, None, &|| {}, &stop).is_ok());
     assert!(t0.elapsed().as_secs() < 60);
 }

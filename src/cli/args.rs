@@ -148,28 +148,27 @@ for N2, whose period is 8.4 ps), then check the interesting region with the defa
     #[command(allow_negative_numbers = true)]
     #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
 Jitter moves every pulse after the first; the probe stays at the nominal times. Writes tolerance.csv and tolerance.svg.")]
-    Tolerance {
-        /// Scenario with a goal (e.g. a design.json).
-        scenario: PathBuf,
-        /// RMS timing jitter of each pulse after the first, fs.
-        #[arg(long, default_value_t = 0.0)]
-        jitter_fs: f64,
-        /// RMS pulse-energy noise, percent.
-        #[arg(long, default_value_t = 0.0)]
-        energy_noise_percent: f64,
-        /// RMS two-colour phase noise, rad.
-        #[arg(long, default_value_t = 0.0)]
-        phase_noise_rad: f64,
-        /// Number of Monte Carlo samples.
-        #[arg(long, default_value_t = 200)]
-        samples: usize,
-        /// Seed of the random draws.
-        #[arg(long, default_value_t = 1)]
-        seed: u64,
-        /// Output folder for tolerance.csv and tolerance.svg.
+    Tolerance(ToleranceArgs),
+    /// Merge the part folders of a scan or tolerance run split with --shard (for example the tasks of a Slurm array).
+    #[command(after_help = "Example:\n  kicktrain merge run/parts/* --out run/result\n\n\
+Checks that the parts come from one input and split, that none is missing, duplicated or stopped early (naming the\n\
+command that reruns each such part), and only then writes the files one unsharded run writes (byte-identical CSV).")]
+    Merge {
+        /// Part folders (the --out folders of the runs with --shard).
+        #[arg(required = true)]
+        parts: Vec<PathBuf>,
+        /// Output folder for the merged files.
         #[arg(long)]
         out: Option<PathBuf>,
     },
+    /// Write Slurm job-array scripts that run a scan or tolerance run in parts, and the merge job after them.
+    #[command(subcommand_value_name = "JOB", subcommand_help_heading = "Jobs")]
+    #[command(after_help = "Example:\n  kicktrain cluster scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 \\\n      \
+--y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --shards 64 --out run\n\n\
+Times one point (or draw) here first and asks Slurm for time and memory from it. Writes run/array.sbatch (one task per\n\
+part, each writing run/parts/K), run/merge.sbatch (runs after every task succeeded and writes run/result) and a copy of\n\
+the input, then prints the two sbatch commands. Nothing outside run/ is assumed shared but the kicktrain binary.")]
+    Cluster(ClusterArgs),
     /// Map the best train per pulse count and intensity ceiling (and temperature or duration), with a bound no train can pass.
     #[command(allow_negative_numbers = true)]
     #[command(after_help = "Example:\n  kicktrain limits objectives/two-pulse-room-temperature.json --max-count 4 --ceilings 2e13,4e13,6e13 --out lim\n  \
@@ -230,6 +229,68 @@ pub struct ScanArgs {
     /// No progress bar.
     #[arg(long)]
     pub quiet: bool,
+    /// Run only part K of N (0 ≤ K < N) and write a part folder for `kicktrain merge`.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+}
+
+/// The options of `kicktrain tolerance`.
+#[derive(Args, Debug)]
+pub struct ToleranceArgs {
+    /// Scenario with a goal (e.g. a design.json).
+    pub scenario: PathBuf,
+    /// RMS timing jitter of each pulse after the first, fs.
+    #[arg(long, default_value_t = 0.0)]
+    pub jitter_fs: f64,
+    /// RMS pulse-energy noise, percent.
+    #[arg(long, default_value_t = 0.0)]
+    pub energy_noise_percent: f64,
+    /// RMS two-colour phase noise, rad.
+    #[arg(long, default_value_t = 0.0)]
+    pub phase_noise_rad: f64,
+    /// Number of Monte Carlo samples.
+    #[arg(long, default_value_t = 200)]
+    pub samples: usize,
+    /// Seed of the random draws.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Output folder for tolerance.csv and tolerance.svg.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Run only part K of N (0 ≤ K < N) and write a part folder for `kicktrain merge`.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+}
+
+/// The options of `kicktrain cluster`.
+#[derive(Args, Debug)]
+pub struct ClusterArgs {
+    /// The run to split.
+    #[command(subcommand)]
+    pub job: ClusterJob,
+    /// Number of parts (array tasks).
+    #[arg(long, global = true, default_value_t = 16)]
+    pub shards: usize,
+    /// Slurm partition for both jobs (passed through).
+    #[arg(long, global = true)]
+    pub partition: Option<String>,
+    /// Slurm account for both jobs (passed through).
+    #[arg(long, global = true)]
+    pub account: Option<String>,
+    /// CPUs per task.
+    #[arg(long, global = true, default_value_t = 2)]
+    pub cpus_per_task: usize,
+}
+
+/// What `kicktrain cluster` splits.
+#[derive(Subcommand, Debug)]
+pub enum ClusterJob {
+    /// A scan (same options as `kicktrain scan`; --out is the run folder).
+    #[command(allow_negative_numbers = true)]
+    Scan(ScanArgs),
+    /// A tolerance run (same options as `kicktrain tolerance`; --out is the run folder).
+    #[command(allow_negative_numbers = true)]
+    Tolerance(ToleranceArgs),
 }
 
 /// The options of `kicktrain limits`.

@@ -10,6 +10,7 @@ use kicktrain::input::read_text_file;
 use kicktrain::report;
 use kicktrain::report::output::OutputDir;
 use kicktrain::scenario::Scenario;
+use kicktrain::shard::{PART_FILE, Part, Shard};
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 
@@ -293,12 +294,19 @@ pub fn run_focus(focus: kicktrain::optics::Focus, fwhm_fs: f64, shape: &str, mol
     Ok(())
 }
 
-/// `kicktrain scan`: a 1D or 2D grid over scenario fields.
-pub fn run_scan(args: &super::args::ScanArgs) -> Result<Finish, Error> {
-    use kicktrain::scan::{Axis, scan};
-    let super::args::ScanArgs { scenario: path, x, from, to, steps, y, y_from, y_to, y_steps, out, quiet } = args;
-    let (from, to, steps, y_from, y_to, y_steps, quiet) = (*from, *to, *steps, *y_from, *y_to, *y_steps, *quiet);
-    let (y, out) = (y.as_deref(), out.as_deref());
+/// Read `--shard K/N`; a part needs an output folder.
+fn read_shard(shard: Option<&str>, out: Option<&Path>) -> Result<Option<Shard>, Error> {
+    let shard = shard.map(Shard::parse).transpose()?;
+    if shard.is_some() && out.is_none() {
+        return Err(Error::input("--out", "expected a folder: a run with --shard writes its part folder there"));
+    }
+    Ok(shard)
+}
+
+/// A scan's input as one value: the scenario (with --allow-long applied) and its axes.
+pub fn scan_input(args: &super::args::ScanArgs) -> Result<(serde_json::Value, kicktrain::scan::Axis, Option<kicktrain::scan::Axis>), Error> {
+    use kicktrain::scan::Axis;
+    let super::args::ScanArgs { scenario: path, x, from, to, steps, y, y_from, y_to, y_steps, .. } = args;
     let text = read_text_file(path)?;
     let mut base = kicktrain::input::parse_json(&text, &path.display().to_string())?;
     if ALLOW_LONG.load(Ordering::SeqCst)
@@ -310,7 +318,7 @@ pub fn run_scan(args: &super::args::ScanArgs) -> Result<Finish, Error> {
             sv.insert("max_states".into(), serde_json::json!(1e12));
         }
     }
-    let xa = Axis::linear(x, from, to, steps)?;
+    let xa = Axis::linear(x, *from, *to, *steps)?;
     let ya = match y {
         None => None,
         Some(p) => {
@@ -318,21 +326,55 @@ pub fn run_scan(args: &super::args::ScanArgs) -> Result<Finish, Error> {
                 y_from.ok_or_else(|| Error::input("y-from", "missing; a 2D scan needs --y-from and --y-to"))?,
                 y_to.ok_or_else(|| Error::input("y-to", "missing; a 2D scan needs --y-from and --y-to"))?,
             );
-            Some(Axis::linear(p, a, b, y_steps)?)
+            Some(Axis::linear(p, a, b, *y_steps)?)
         }
     };
-    let total = steps * ya.as_ref().map(|a| a.values.len()).unwrap_or(1);
+    Ok((base, xa, ya))
+}
+
+/// What tells the parts of one scan from another's.
+fn scan_fingerprint(base: &serde_json::Value, xa: &kicktrain::scan::Axis, ya: Option<&kicktrain::scan::Axis>) -> String {
+    let axis = |a: &kicktrain::scan::Axis| format!("{} {:?}", a.path, a.values);
+    kicktrain::shard::fingerprint(&["scan", &base.to_string(), &axis(xa), &ya.map(axis).unwrap_or_default()])
+}
+
+/// `kicktrain scan`: a 1D or 2D grid over scenario fields (or the part of it `--shard` names).
+pub fn run_scan(args: &super::args::ScanArgs) -> Result<Finish, Error> {
+    use kicktrain::scan::scan;
+    let out = args.out.as_deref();
+    let (base, xa, ya) = scan_input(args)?;
+    let shard = read_shard(args.shard.as_deref(), out)?;
+    let points = xa.values.len() * ya.as_ref().map(|a| a.values.len()).unwrap_or(1);
+    let total = shard.map(|s| s.owned(points)).unwrap_or(points);
     let staged = prepare_out(out, "scan")?;
     GRACEFUL.store(true, Ordering::SeqCst);
-    let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(total as u64) };
+    let bar = if args.quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(total as u64) };
     bar.set_style(indicatif::ProgressStyle::with_template("scan [{bar:30}] {pos}/{len} (ETA {eta})").expect("template").progress_chars("=> "));
     let t0 = std::time::Instant::now();
-    let r = scan(&base, &xa, ya.as_ref(), &|| bar.inc(1), &STOP)?;
-    if r.finished() == 0 {
+    let r = scan(&base, &xa, ya.as_ref(), shard, &|| bar.inc(1), &STOP)?;
+    bar.finish_and_clear();
+    if r.finished() == 0 && total > 0 {
         return Err(Error::Interrupted);
     }
+    if let Some(sh) = shard {
+        let complete = r.part_complete(sh);
+        let part = Part {
+            dir: Default::default(),
+            command: "scan".into(),
+            fingerprint: scan_fingerprint(&base, &xa, ya.as_ref()),
+            shard: sh,
+            complete,
+            argv: std::env::args().collect(),
+            run_time_s: t0.elapsed().as_secs_f64(),
+            result: r.part_value(),
+        };
+        println!("part {sh}: {} of {total} points in {:.2} s{}", r.finished(), part.run_time_s, if complete { "" } else { " (stopped early)" });
+        let label = format!("part {} of {}", sh.index, sh.count);
+        let outputs = || vec![("scan.csv", report::scan::scan_csv(&r)), ("scan.svg", report::scan::scan_svg(&r, Some(&label))), (PART_FILE, part.to_json())];
+        let note = (!complete).then(|| format!("{label} stopped by a signal after {} of {total} points; rerun it before merging.\n", r.finished()));
+        return write_and_finish(staged, out, outputs, note);
+    }
     let partial = report::scan::scan_partial(&r);
-    bar.finish_and_clear();
     if let Some(p) = &partial {
         println!("{p}");
     }
@@ -341,21 +383,93 @@ pub fn run_scan(args: &super::args::ScanArgs) -> Result<Finish, Error> {
     write_and_finish(staged, out, outputs, partial.as_deref().map(report::scan::scan_partial_note))
 }
 
-/// `kicktrain tolerance`: Monte Carlo over timing, energy and phase noise.
-pub fn run_tolerance(path: &Path, noise: kicktrain::tolerance::Noise, samples: usize, seed: u64, out: Option<&Path>) -> Result<Finish, Error> {
-    let scenario = read_scenario(path)?;
+/// The noise of a tolerance run from its options.
+fn noise_of(args: &super::args::ToleranceArgs) -> kicktrain::tolerance::Noise {
+    kicktrain::tolerance::Noise { jitter_fs: args.jitter_fs, energy_percent: args.energy_noise_percent, phase_rad: args.phase_noise_rad }
+}
+
+/// `kicktrain tolerance`: Monte Carlo over timing, energy and phase noise (or the draws `--shard` names).
+pub fn run_tolerance(args: &super::args::ToleranceArgs) -> Result<Finish, Error> {
+    let out = args.out.as_deref();
+    let text = read_text_file(&args.scenario)?;
+    let scenario = read_scenario(&args.scenario)?;
+    let shard = read_shard(args.shard.as_deref(), out)?;
+    let noise = noise_of(args);
     let staged = prepare_out(out, "tolerance")?;
     GRACEFUL.store(true, Ordering::SeqCst);
     let t0 = std::time::Instant::now();
-    let r = kicktrain::tolerance::tolerance(&scenario, noise, samples, seed, &STOP)?;
+    let r = kicktrain::tolerance::tolerance_part(&scenario, noise, args.samples, args.seed, shard, &STOP)?;
+    let goal = scenario.goal.expect("checked by tolerance()");
+    if let Some(sh) = shard {
+        let complete = r.part_complete(sh);
+        let owned = sh.owned(args.samples);
+        let settings = format!("{:?} {} {} {}", noise, args.samples, args.seed, ALLOW_LONG.load(Ordering::SeqCst));
+        let mut result = r.part_value(goal.sense());
+        result["scenario"] = serde_json::Value::String(text.clone());
+        result["noise"] = serde_json::json!({"jitter_fs": noise.jitter_fs, "energy_noise_percent": noise.energy_percent, "phase_noise_rad": noise.phase_rad});
+        result["seed"] = serde_json::json!(args.seed);
+        let part = Part {
+            dir: Default::default(),
+            command: "tolerance".into(),
+            fingerprint: kicktrain::shard::fingerprint(&["tolerance", &text, &settings]),
+            shard: sh,
+            complete,
+            argv: std::env::args().collect(),
+            run_time_s: t0.elapsed().as_secs_f64(),
+            result,
+        };
+        println!("part {sh}: {} of {owned} draws in {:.2} s{}", r.samples.len(), part.run_time_s, if complete { "" } else { " (stopped early)" });
+        let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), (PART_FILE, part.to_json())];
+        let note = (!complete).then(|| format!("part {} of {} stopped by a signal after {} of {owned} draws; rerun it before merging.\n", sh.index, sh.count, r.samples.len()));
+        return write_and_finish(staged, out, outputs, note);
+    }
     let partial = report::scan::tolerance_partial(&r);
     if let Some(p) = &partial {
         println!("{p}");
     }
-    let goal = scenario.goal.expect("checked by tolerance()");
-    print!("{}", report::scan::tolerance_summary(&goal, noise, seed, &r, t0.elapsed().as_secs_f64()));
+    print!("{}", report::scan::tolerance_summary(&goal, noise, args.seed, &r, t0.elapsed().as_secs_f64()));
     let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), ("tolerance.svg", report::scan::tolerance_svg(&goal, noise, &r))];
     write_and_finish(staged, out, outputs, partial.as_deref().map(report::scan::tolerance_partial_note))
+}
+
+/// `kicktrain merge`: the parts of a split scan or tolerance run, checked and written as one run.
+pub fn run_merge(dirs: &[std::path::PathBuf], out: Option<&Path>) -> Result<Finish, Error> {
+    let parts = kicktrain::shard::gather(dirs)?;
+    let results: Vec<serde_json::Value> = parts.iter().map(|p| p.result.clone()).collect();
+    let seconds: f64 = parts.iter().map(|p| p.run_time_s).sum();
+    let n = parts.len();
+    match parts[0].command.as_str() {
+        "scan" => {
+            let r = kicktrain::scan::ScanResult::merge(&results)?;
+            if r.partial() {
+                return Err(Error::input("parts", format!("the {n} parts leave {} points of the scan without a value; expected every point once", r.done.iter().flatten().filter(|d| !**d).count())));
+            }
+            let staged = prepare_out(out, "scan")?;
+            println!("merged {n} parts (their run times add up to {seconds:.1} s)");
+            print!("{}", report::scan::scan_summary(&r, seconds));
+            let outputs = || vec![("scan.csv", report::scan::scan_csv(&r)), ("scan.svg", report::scan::scan_svg(&r, None))];
+            write_and_finish(staged, out, outputs, None)
+        }
+        "tolerance" => {
+            let r = kicktrain::tolerance::ToleranceResult::merge(&results)?;
+            if r.samples.len() < r.requested {
+                return Err(Error::input("parts", format!("the {n} parts hold {} of {} draws; expected every draw once", r.samples.len(), r.requested)));
+            }
+            let first = &results[0];
+            let text = first.get("scenario").and_then(|v| v.as_str()).ok_or_else(|| Error::input("parts", "the parts lack their scenario"))?;
+            let scenario = Scenario::from_json_str(text, "the parts' scenario")?;
+            let goal = scenario.goal.ok_or_else(|| Error::input("parts", "the parts' scenario has no goal"))?;
+            let number = |k: &str| first.get("noise").and_then(|v| v.get(k)).and_then(|v| v.as_f64()).unwrap_or(0.0);
+            let noise = kicktrain::tolerance::Noise { jitter_fs: number("jitter_fs"), energy_percent: number("energy_noise_percent"), phase_rad: number("phase_noise_rad") };
+            let seed = first.get("seed").and_then(|v| v.as_u64()).unwrap_or(0);
+            let staged = prepare_out(out, "tolerance")?;
+            println!("merged {n} parts (their run times add up to {seconds:.1} s)");
+            print!("{}", report::scan::tolerance_summary(&goal, noise, seed, &r, seconds));
+            let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), ("tolerance.svg", report::scan::tolerance_svg(&goal, noise, &r))];
+            write_and_finish(staged, out, outputs, None)
+        }
+        other => Err(Error::input("parts", format!("parts of `{other}` cannot be merged by this kicktrain; expected scan or tolerance parts"))),
+    }
 }
 
 /// The end of a scan or tolerance run: write the `outputs` (name, contents) into the prepared folder, then

@@ -17,7 +17,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 pub const MARKER: &str = ".kicktrain-output";
 
 /// Every file name a kicktrain command writes into its output folder.
-const KNOWN_FILES: [&str; 12] = [
+const KNOWN_FILES: [&str; 13] = [
     "summary.json",
     "trace.csv",
     "alignment.svg",
@@ -30,6 +30,7 @@ const KNOWN_FILES: [&str; 12] = [
     "tolerance.csv",
     "tolerance.svg",
     "PARTIAL.txt",
+    "part.json",
 ];
 
 /// Staging folders not yet committed or removed (for [`abandon_staging`]).

@@ -1,0 +1,159 @@
+//! Runs split with --shard and put back together with `kicktrain merge` equal the run they were split
+//! from, byte for byte, for any split; a merge refuses parts that are missing, doubled, stopped or from
+//! another input, names the command that reruns each missing or stopped part, and writes nothing then.
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+const BIN: &str = env!("CARGO_BIN_EXE_kicktrain");
+
+/// Two 50 fs pulses on N2 at 300 K in the kick model (milliseconds a point), with a goal for tolerance runs.
+const SCENARIO: &str = r#"{"molecule": "N2", "temperature_k": 300,
+ "pulses": [{"center_ps": 0, "fwhm_fs": 50, "peak_intensity_wcm2": 3e13}, {"center_ps": 3, "fwhm_fs": 50, "peak_intensity_wcm2": 3e13}],
+ "window": {"start_ps": 3.2, "stop_ps": 12, "step_fs": 50}, "solver": {"method": "kick"},
+ "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.2, 8.0], "step_fs": 20}}"#;
+
+fn sandbox(tag: &str) -> PathBuf {
+    let nanos = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_nanos()).unwrap_or(0);
+    let dir = std::env::temp_dir().join(format!("kicktrain-shards-{tag}-{}-{nanos}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+/// Run the binary in `dir`; (exit code, stdout, stderr).
+fn run(dir: &Path, args: &[&str]) -> (i32, String, String) {
+    let o = Command::new(BIN).args(args).current_dir(dir).output().expect("run kicktrain");
+    (o.status.code().unwrap_or(-1), String::from_utf8_lossy(&o.stdout).into_owned(), String::from_utf8_lossy(&o.stderr).into_owned())
+}
+
+const SCAN: [&str; 15] = [
+    "scan",
+    "s.json",
+    "--x",
+    "pulses[1].center_ps",
+    "--from",
+    "1",
+    "--to",
+    "4",
+    "--steps",
+    "7",
+    "--y",
+    "pulses[1].peak_intensity_wcm2",
+    "--y-from",
+    "0",
+    "--y-to",
+];
+
+fn scan_args<'a>(extra: &[&'a str]) -> Vec<&'a str> {
+    let mut a: Vec<&str> = SCAN.to_vec();
+    a.extend(["4e13", "--y-steps", "5", "--quiet"]);
+    a.extend(extra);
+    a
+}
+
+#[test]
+fn any_split_of_a_scan_merges_to_the_unsplit_files() {
+    let dir = sandbox("scan");
+    std::fs::write(dir.join("s.json"), SCENARIO).unwrap();
+    let (code, _, err) = run(&dir, &scan_args(&["--out", "whole"]));
+    assert_eq!(code, 0, "{err}");
+    let whole_csv = std::fs::read(dir.join("whole/scan.csv")).unwrap();
+    // 35 points: one part, parts of unequal size, more parts than points (some parts hold none).
+    for n in [1usize, 2, 3, 8, 40] {
+        let parts = dir.join(format!("parts{n}"));
+        for k in 0..n {
+            let (shard, out) = (format!("{k}/{n}"), format!("parts{n}/{k}"));
+            let (code, _, err) = run(&dir, &scan_args(&["--shard", &shard, "--out", &out]));
+            assert_eq!(code, 0, "part {shard}: {err}");
+            assert!(parts.join(k.to_string()).join("part.json").is_file());
+        }
+        // Parts in any order.
+        let mut dirs: Vec<String> = (0..n).rev().map(|k| format!("parts{n}/{k}")).collect();
+        let mut args = vec!["merge"];
+        args.extend(dirs.iter().map(String::as_str));
+        let out = format!("merged{n}");
+        args.extend(["--out", &out]);
+        let (code, stdout, err) = run(&dir, &args);
+        assert_eq!(code, 0, "{n} parts: {err}");
+        assert!(stdout.contains(&format!("merged {n} parts")), "{stdout}");
+        assert_eq!(std::fs::read(dir.join(&out).join("scan.csv")).unwrap(), whole_csv, "{n} parts: scan.csv differs from the unsplit run");
+        assert_eq!(std::fs::read(dir.join(&out).join("scan.svg")).unwrap(), std::fs::read(dir.join("whole/scan.svg")).unwrap());
+        dirs.clear();
+    }
+    // A missing part: named with the command that reruns it; nothing written.
+    std::fs::remove_dir_all(dir.join("parts3/1")).unwrap();
+    let (code, _, err) = run(&dir, &["merge", "parts3/0", "parts3/2", "--out", "broken"]);
+    assert_eq!(code, 2, "{err}");
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("part 1 is missing") && err.contains("--shard 1/3 --out parts3/1"), "{err}");
+    assert!(!dir.join("broken").exists());
+    // The printed command makes the missing part, and the merge then succeeds.
+    let rerun = err.split("rerun: ").nth(1).unwrap().trim();
+    let words: Vec<&str> = rerun.split(' ').skip(1).map(|w| w.trim_matches('\'')).collect();
+    let (code, _, e) = run(&dir, &words);
+    assert_eq!(code, 0, "{rerun}: {e}");
+    let (code, _, e) = run(&dir, &["merge", "parts3/0", "parts3/1", "parts3/2", "--out", "again"]);
+    assert_eq!(code, 0, "{e}");
+    assert_eq!(std::fs::read(dir.join("again/scan.csv")).unwrap(), whole_csv);
+    // A part given twice.
+    let (code, _, err) = run(&dir, &["merge", "parts3/0", "parts3/1", "parts3/2", "parts3/2", "--out", "broken"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("appears twice"), "{err}");
+    // A part stopped early (as a time limit leaves it).
+    let pj = dir.join("parts3/2/part.json");
+    let text = std::fs::read_to_string(&pj).unwrap().replace("\"complete\": true", "\"complete\": false");
+    std::fs::write(&pj, text).unwrap();
+    let (code, _, err) = run(&dir, &["merge", "parts3/0", "parts3/1", "parts3/2", "--out", "broken"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("part 2 (parts3/2) stopped before its end") && err.contains("--shard 2/3"), "{err}");
+    // A part of another scan (other axis values).
+    let (code, _, e) = run(&dir, &["scan", "s.json", "--x", "pulses[1].center_ps", "--from", "1", "--to", "5", "--steps", "7", "--shard", "1/2", "--out", "other", "--quiet"]);
+    assert_eq!(code, 0, "{e}");
+    let (code, _, err) = run(&dir, &["merge", "parts2/0", "other", "--out", "broken"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("belongs to another input"), "{err}");
+    assert!(!dir.join("broken").exists());
+    // Bad splits name the option.
+    for bad in ["3/3", "x", "1/0"] {
+        let (code, _, err) = run(&dir, &scan_args(&["--shard", bad, "--out", "p"]));
+        assert_eq!(code, 2, "{bad}");
+        assert!(err.starts_with("error: --shard:"), "{err}");
+    }
+    let (code, _, err) = run(&dir, &scan_args(&["--shard", "0/2"]));
+    assert_eq!(code, 2);
+    assert!(err.starts_with("error: --out:"), "{err}");
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
+fn a_split_tolerance_run_merges_to_the_unsplit_files() {
+    let dir = sandbox("tolerance");
+    std::fs::write(dir.join("s.json"), SCENARIO).unwrap();
+    let base = ["tolerance", "s.json", "--jitter-fs", "30", "--energy-noise-percent", "4", "--samples", "23", "--seed", "5"];
+    let with = |extra: &[&'static str]| -> Vec<&'static str> { base.iter().copied().chain(extra.iter().copied()).collect() };
+    let (code, whole_out, err) = run(&dir, &with(&["--out", "whole"]));
+    assert_eq!(code, 0, "{err}");
+    for n in [2usize, 5] {
+        for k in 0..n {
+            let (shard, out) = (format!("{k}/{n}"), format!("p{n}/{k}"));
+            let mut a = with(&[]);
+            a.extend(["--shard", &shard, "--out", &out]);
+            let (code, _, err) = run(&dir, &a);
+            assert_eq!(code, 0, "{err}");
+        }
+        let dirs: Vec<String> = (0..n).map(|k| format!("p{n}/{k}")).collect();
+        let mut a = vec!["merge"];
+        a.extend(dirs.iter().map(String::as_str));
+        let out = format!("m{n}");
+        a.extend(["--out", &out]);
+        let (code, stdout, err) = run(&dir, &a);
+        assert_eq!(code, 0, "{err}");
+        for f in ["tolerance.csv", "tolerance.svg"] {
+            assert_eq!(std::fs::read(dir.join(&out).join(f)).unwrap(), std::fs::read(dir.join("whole").join(f)).unwrap(), "{n} parts: {f}");
+        }
+        // The statistics line (mean, spread, worst decile) is the unsplit run's.
+        let stats = |s: &str| s.lines().find(|l| l.contains("mean")).map(|l| l.split("; ").next().unwrap().to_string());
+        assert_eq!(stats(&stdout), stats(&whole_out));
+    }
+    let _ = std::fs::remove_dir_all(&dir);
+}
