@@ -75,7 +75,7 @@ pub struct Goal {
 }
 
 /// A scored design: the value of the observable that the goal looks at, and when.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Score {
     /// The goal's value (the observable's peak, value, mean or minimum).
     pub value: f64,

@@ -157,3 +157,37 @@ fn a_split_tolerance_run_merges_to_the_unsplit_files() {
     }
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+#[test]
+fn a_split_limits_map_merges_to_the_unsplit_map() {
+    let dir = sandbox("limits");
+    let objective = Path::new(env!("CARGO_MANIFEST_DIR")).join("objectives/two-pulse-room-temperature.json");
+    let objective = objective.to_str().unwrap();
+    let base = ["limits", objective, "--max-count", "2", "--ceilings", "3e13,2e13,4e13", "--effort", "quick", "--quiet"];
+    let with = |extra: &[&'static str]| -> Vec<String> { base.iter().chain(extra).map(|s| s.to_string()).collect() };
+    let args = with(&["--out", "whole"]);
+    let (code, _, err) = run(&dir, &args.iter().map(String::as_str).collect::<Vec<_>>());
+    assert_eq!(code, 0, "{err}");
+    for k in 0..2 {
+        let (shard, out) = (format!("{k}/2"), format!("p/{k}"));
+        let mut a = with(&[]);
+        a.extend(["--shard".to_string(), shard, "--out".to_string(), out]);
+        let (code, _, err) = run(&dir, &a.iter().map(String::as_str).collect::<Vec<_>>());
+        assert_eq!(code, 0, "{err}");
+    }
+    let (code, stdout, err) = run(&dir, &["merge", "p/1", "p/0", "--out", "merged"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(stdout.contains("merged 2 parts"), "{stdout}");
+    // Every column but the measured run time of each search (column run_time_s).
+    let table = |p: &str| -> Vec<Vec<String>> {
+        let text = std::fs::read_to_string(dir.join(p).join("limits.csv")).unwrap();
+        let head: Vec<&str> = text.lines().next().unwrap().split(',').collect();
+        let skip = head.iter().position(|h| *h == "run_time_s").unwrap();
+        text.lines().map(|l| l.split(',').enumerate().filter(|(i, _)| *i != skip).map(|(_, x)| x.to_string()).collect()).collect()
+    };
+    let whole = table("whole");
+    assert_eq!(whole.len(), 1 + 3 * 2);
+    assert_eq!(table("merged"), whole);
+    assert_eq!(std::fs::read(dir.join("merged/limits.svg")).unwrap(), std::fs::read(dir.join("whole/limits.svg")).unwrap());
+    let _ = std::fs::remove_dir_all(&dir);
+}

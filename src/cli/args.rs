@@ -291,6 +291,9 @@ pub enum ClusterJob {
     /// A tolerance run (same options as `kicktrain tolerance`; --out is the run folder).
     #[command(allow_negative_numbers = true)]
     Tolerance(ToleranceArgs),
+    /// A limits map (same options as `kicktrain limits`; --out is the run folder).
+    #[command(allow_negative_numbers = true)]
+    Limits(LimitsArgs),
 }
 
 /// The options of `kicktrain limits`.
@@ -337,4 +340,7 @@ pub struct LimitsArgs {
     /// No progress bar.
     #[arg(long)]
     pub quiet: bool,
+    /// Run only part K of N (0 ≤ K < N) of the (setting, ceiling) searches and write a part folder for `kicktrain merge`.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
 }

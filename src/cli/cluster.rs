@@ -2,7 +2,7 @@
 //! merge job that runs after them. Time and memory requests come from a probe run of one point here.
 
 use super::args::{ClusterArgs, ClusterJob};
-use super::commands::{ALLOW_LONG, read_scenario, scan_input};
+use super::commands::{ALLOW_LONG, limits_input, read_scenario, scan_input};
 use super::signals::Finish;
 use kicktrain::error::Error;
 use kicktrain::report;
@@ -65,6 +65,7 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
     let (input, out, shard_flag) = match &args.job {
         ClusterJob::Scan(a) => (&a.scenario, a.out.as_deref(), &a.shard),
         ClusterJob::Tolerance(a) => (&a.scenario, a.out.as_deref(), &a.shard),
+        ClusterJob::Limits(a) => (&a.objective, a.out.as_deref(), &a.shard),
     };
     if shard_flag.is_some() {
         return Err(Error::input("--shard", "cluster sets each task's part itself; expected no --shard"));
@@ -115,6 +116,36 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
             ];
             // Each task also runs the nominal design once: count it as one more draw.
             ("tolerance", a.samples, "draws", w, 0.5 * t0.elapsed().as_secs_f64())
+        }
+        ClusterJob::Limits(a) => {
+            let input = limits_input(a)?;
+            let plan = &input.plan;
+            let searches = plan.ceilings_wcm2.len() * plan.temperatures_k.len().max(1) * plan.durations_fs.len().max(1);
+            eprintln!("probing: one of {searches} searches (counts 1 to {}) …", plan.max_count);
+            let t0 = Instant::now();
+            kicktrain::limits::limits_part(&input.obj, plan, Some(Shard { index: 0, count: searches }), &kicktrain::limits::Quiet)?;
+            let list = |v: &[f64]| v.iter().map(|x| x.to_string()).collect::<Vec<_>>().join(",");
+            let mut w = vec!["limits".to_string(), quote(&input_copy), "--max-count".into(), plan.max_count.to_string(), "--ceilings".into(), list(&plan.ceilings_wcm2)];
+            if !plan.temperatures_k.is_empty() {
+                w.extend(["--temperatures".into(), list(&plan.temperatures_k)]);
+            }
+            if !plan.durations_fs.is_empty() {
+                w.extend(["--durations".into(), list(&plan.durations_fs)]);
+            }
+            for (flag, v) in [("--waist-um", a.waist_um), ("--beam-radius-mm", a.beam_radius_mm), ("--wavelength-nm", a.wavelength_nm), ("--focal-length-mm", a.focal_length_mm)] {
+                if let Some(v) = v {
+                    w.extend([flag.to_string(), v.to_string()]);
+                }
+            }
+            w.extend(["--m2".into(), a.m2.to_string()]);
+            if let Some(s) = a.seed {
+                w.extend(["--seed".into(), s.to_string()]);
+            }
+            if let Some(e) = &a.effort {
+                w.extend(["--effort".into(), shell_quote(e)]);
+            }
+            w.push("--quiet".into());
+            ("limits", searches, "searches", w, t0.elapsed().as_secs_f64())
         }
     };
     let shards = args.shards.min(items.max(1));

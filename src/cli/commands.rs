@@ -198,13 +198,6 @@ impl kicktrain::limits::LimitsMonitor for MapProgress {
     }
 }
 
-/// Read an objective file and apply the --seed and --effort overrides.
-fn read_objective(path: &Path, seed: Option<u64>, effort: Option<&str>) -> Result<Objective, Error> {
-    let mut obj = Objective::from_json_str(&read_text_file(path)?, &path.display().to_string())?;
-    apply_overrides(&mut obj, seed, effort)?;
-    Ok(obj)
-}
-
 /// The --seed and --effort overrides of an objective's search settings.
 fn apply_overrides(obj: &mut Objective, seed: Option<u64>, effort: Option<&str>) -> Result<(), Error> {
     if let Some(s) = seed {
@@ -217,12 +210,23 @@ fn apply_overrides(obj: &mut Objective, seed: Option<u64>, effort: Option<&str>)
     Ok(())
 }
 
-/// `kicktrain limits`: designs over pulse counts × ceilings (× temperatures or durations) and the bound.
-pub fn run_limits(args: &super::args::LimitsArgs) -> Result<Finish, Error> {
-    use kicktrain::limits::{LimitsPlan, limits};
-    use kicktrain::report::limits::{EnergyScale, limits_csv, limits_partial, limits_partial_note, limits_svg, limits_text};
-    let obj = read_objective(&args.objective, args.seed, args.effort.as_deref())?;
-    let plan = LimitsPlan {
+/// What a limits run needs besides its searches: the objective (with --seed and --effort), the plan and
+/// the focus the ceilings are also given as pulse energies at.
+pub struct LimitsInput {
+    /// The objective file's text.
+    pub text: String,
+    pub obj: Objective,
+    pub plan: kicktrain::limits::LimitsPlan,
+    pub energy: Option<kicktrain::report::limits::EnergyScale>,
+}
+
+/// Read and check the input of `kicktrain limits`.
+pub fn limits_input(args: &super::args::LimitsArgs) -> Result<LimitsInput, Error> {
+    use kicktrain::report::limits::EnergyScale;
+    let text = read_text_file(&args.objective)?;
+    let mut obj = Objective::from_json_str(&text, &args.objective.display().to_string())?;
+    apply_overrides(&mut obj, args.seed, args.effort.as_deref())?;
+    let plan = kicktrain::limits::LimitsPlan {
         max_count: args.max_count.unwrap_or(obj.space.pulses.len()),
         ceilings_wcm2: args.ceilings.clone(),
         temperatures_k: args.temperatures.clone(),
@@ -247,22 +251,98 @@ pub fn run_limits(args: &super::args::LimitsArgs) -> Result<Finish, Error> {
     } else {
         obj.base.focal_average.as_ref().map(|f| EnergyScale { waist_um: f.pump_waist_um })
     };
-    let staged = prepare_out(args.out.as_deref(), "limits")?;
-    GRACEFUL.store(true, Ordering::SeqCst);
-    let planned = plan.max_count * plan.ceilings_wcm2.len() * plan.temperatures_k.len().max(1) * plan.durations_fs.len().max(1);
-    let bar = if args.quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(planned as u64) };
-    bar.set_style(
-        indicatif::ProgressStyle::with_template("limits [{bar:30}] {pos}/{len} combinations ({elapsed}, ETA {eta})").expect("template").progress_chars("=> "),
-    );
-    let map = limits(&obj, &plan, &MapProgress { bar: bar.clone() })?;
-    bar.finish_and_clear();
-    let partial = limits_partial(&map);
+    Ok(LimitsInput { text, obj, plan, energy })
+}
+
+/// The part file's record of a limits run: everything a merge needs to rebuild the map's frame.
+fn limits_record(input: &LimitsInput, args: &super::args::LimitsArgs) -> serde_json::Value {
+    serde_json::json!({
+        "objective": input.text,
+        "seed": args.seed,
+        "effort": args.effort,
+        "max_count": input.plan.max_count,
+        "ceilings_wcm2": input.plan.ceilings_wcm2,
+        "temperatures_k": input.plan.temperatures_k,
+        "durations_fs": input.plan.durations_fs,
+        "waist_um": input.energy.map(|e| e.waist_um),
+        "allow_long": ALLOW_LONG.load(Ordering::SeqCst),
+    })
+}
+
+/// Print a finished (or stopped) map and write its files.
+fn finish_limits(map: &kicktrain::limits::LimitsMap, energy: Option<kicktrain::report::limits::EnergyScale>, staged: Option<OutputDir>, out: Option<&Path>) -> Result<Finish, Error> {
+    use kicktrain::report::limits::{limits_csv, limits_partial, limits_partial_note, limits_svg, limits_text};
+    let partial = limits_partial(map);
     if let Some(p) = &partial {
         println!("{p}");
     }
-    print!("{}", limits_text(&map, energy));
-    let outputs = || vec![("limits.csv", limits_csv(&map, energy)), ("limits.svg", limits_svg(&map, energy, partial.as_deref()))];
-    write_and_finish(staged, args.out.as_deref(), outputs, partial.as_deref().map(limits_partial_note))
+    print!("{}", limits_text(map, energy));
+    let outputs = || vec![("limits.csv", limits_csv(map, energy)), ("limits.svg", limits_svg(map, energy, partial.as_deref()))];
+    write_and_finish(staged, out, outputs, partial.as_deref().map(limits_partial_note))
+}
+
+/// `kicktrain limits`: designs over pulse counts × ceilings (× temperatures or durations) and the bound
+/// (or the searches `--shard` names).
+pub fn run_limits(args: &super::args::LimitsArgs) -> Result<Finish, Error> {
+    let input = limits_input(args)?;
+    let out = args.out.as_deref();
+    let shard = read_shard(args.shard.as_deref(), out)?;
+    let staged = prepare_out(out, "limits")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
+    let plan = &input.plan;
+    let searches = plan.ceilings_wcm2.len() * plan.temperatures_k.len().max(1) * plan.durations_fs.len().max(1);
+    let owned = shard.map(|s| s.owned(searches)).unwrap_or(searches);
+    let bar = if args.quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new((owned * plan.max_count) as u64) };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("limits [{bar:30}] {pos}/{len} combinations ({elapsed}, ETA {eta})").expect("template").progress_chars("=> "),
+    );
+    let t0 = std::time::Instant::now();
+    let map = kicktrain::limits::limits_part(&input.obj, plan, shard, &MapProgress { bar: bar.clone() })?;
+    bar.finish_and_clear();
+    let Some(sh) = shard else {
+        return finish_limits(&map, input.energy, staged, out);
+    };
+    let complete = map.part_complete();
+    let record = limits_record(&input, args);
+    let mut result = map.part_value();
+    result["input"] = record.clone();
+    let part = Part {
+        dir: Default::default(),
+        command: "limits".into(),
+        fingerprint: kicktrain::shard::fingerprint(&["limits", &record.to_string()]),
+        shard: sh,
+        complete,
+        argv: std::env::args().collect(),
+        run_time_s: t0.elapsed().as_secs_f64(),
+        result,
+    };
+    println!("part {sh}: {} of {} combinations in {:.1} s{}", map.cells.len(), owned * plan.max_count, part.run_time_s, if complete { "" } else { " (stopped early)" });
+    let outputs = || vec![("limits.csv", kicktrain::report::limits::limits_csv(&map, input.energy)), (PART_FILE, part.to_json())];
+    let note = (!complete).then(|| format!("part {} of {} stopped by a signal; rerun it before merging.\n", sh.index, sh.count));
+    write_and_finish(staged, out, outputs, note)
+}
+
+/// The map of merged limits parts: the frame rebuilt from the record in the parts.
+fn merge_limits(parts: &[Part], out: Option<&Path>) -> Result<Finish, Error> {
+    let record = parts[0].result.get("input").cloned().ok_or_else(|| Error::input("parts", "the limits parts lack their input record"))?;
+    let text = record.get("objective").and_then(|v| v.as_str()).ok_or_else(|| Error::input("parts", "the limits parts lack their objective"))?;
+    let mut obj = Objective::from_json_str(text, "the parts' objective")?;
+    let seed = record.get("seed").and_then(|v| v.as_u64());
+    let effort = record.get("effort").and_then(|v| v.as_str());
+    apply_overrides(&mut obj, seed, effort)?;
+    let numbers = |k: &str| -> Vec<f64> { record.get(k).and_then(|v| v.as_array()).map(|a| a.iter().filter_map(|x| x.as_f64()).collect()).unwrap_or_default() };
+    let plan = kicktrain::limits::LimitsPlan {
+        max_count: record.get("max_count").and_then(|v| v.as_u64()).unwrap_or(0) as usize,
+        ceilings_wcm2: numbers("ceilings_wcm2"),
+        temperatures_k: numbers("temperatures_k"),
+        durations_fs: numbers("durations_fs"),
+    };
+    let energy = record.get("waist_um").and_then(|v| v.as_f64()).map(|waist_um| kicktrain::report::limits::EnergyScale { waist_um });
+    let results: Vec<serde_json::Value> = parts.iter().map(|p| p.result.clone()).collect();
+    let map = kicktrain::limits::LimitsMap::merge(&obj, &plan, &results)?;
+    let staged = prepare_out(out, "limits")?;
+    println!("merged {} parts (their run times add up to {:.1} s)", parts.len(), map.run_time_s);
+    finish_limits(&map, energy, staged, out)
 }
 
 /// `kicktrain pendular`: dressed states of a molecule in constant fields.
@@ -468,7 +548,8 @@ pub fn run_merge(dirs: &[std::path::PathBuf], out: Option<&Path>) -> Result<Fini
             let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), ("tolerance.svg", report::scan::tolerance_svg(&goal, noise, &r))];
             write_and_finish(staged, out, outputs, None)
         }
-        other => Err(Error::input("parts", format!("parts of `{other}` cannot be merged by this kicktrain; expected scan or tolerance parts"))),
+        "limits" => merge_limits(&parts, out),
+        other => Err(Error::input("parts", format!("parts of `{other}` cannot be merged by this kicktrain; expected scan, tolerance or limits parts"))),
     }
 }
 

@@ -44,7 +44,7 @@ pub struct Silent;
 impl Monitor for Silent {}
 
 /// One design with its scores.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Candidate {
     /// The pulse train.
     pub field: FieldModel,
@@ -55,7 +55,7 @@ pub struct Candidate {
 }
 
 /// What one independent start found.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct StartOutcome {
     /// Best value of its swarm (kick model, or the full solver for long pulses).
     pub swarm: f64,
@@ -68,7 +68,7 @@ pub struct StartOutcome {
 }
 
 /// How sure the search is of one pulse count's design.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Confidence {
     /// Every start, in the order run.
     pub starts: Vec<StartOutcome>,

@@ -39,7 +39,7 @@ const THERMAL_CUT: f64 = 1e-10;
 const MAX_CUT_J: u32 = 4000;
 
 /// The bound and how it was made.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct KinematicBound {
     /// The bound on ⟨cos²θ⟩: an upper bound when maximizing, a lower bound when minimizing.
     pub value: f64,

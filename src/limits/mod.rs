@@ -12,8 +12,10 @@ use crate::design::search::{Candidate, Confidence, Monitor, SearchSolvers, desig
 use crate::design::{Bounds, Objective};
 use crate::error::{Error, Result};
 use crate::goal::{GoalKind, Observable};
+use crate::shard::Shard;
 use bound::{BoundTable, KinematicBound};
 use rayon::prelude::*;
+use serde_json::Value;
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
@@ -32,7 +34,7 @@ pub struct LimitsPlan {
 }
 
 /// One panel of the map: a temperature and, when mapped, a pulse duration.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Setting {
     /// Temperature, K.
     pub temperature_k: f64,
@@ -41,7 +43,7 @@ pub struct Setting {
 }
 
 /// The best design of one combination.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct LimitCell {
     /// Index into [`LimitsMap::settings`].
     pub setting: usize,
@@ -58,7 +60,7 @@ pub struct LimitCell {
 }
 
 /// The bound for one combination (or why there is none).
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct BoundCell {
     /// Index into [`LimitsMap::settings`].
     pub setting: usize,
@@ -252,6 +254,13 @@ impl Monitor for JobMonitor<'_> {
 
 /// Run the map. Every (setting, ceiling) objective is built and checked before any search starts.
 pub fn limits(obj: &Objective, plan: &LimitsPlan, monitor: &dyn LimitsMonitor) -> Result<LimitsMap> {
+    limits_part(obj, plan, None, monitor)
+}
+
+/// [`limits`] for the (setting, ceiling) searches one part owns (numbered by setting, then ascending
+/// ceiling), or all of them without `shard`; the bounds cover every combination. An empty part is a
+/// map without cells.
+pub fn limits_part(obj: &Objective, plan: &LimitsPlan, shard: Option<Shard>, monitor: &dyn LimitsMonitor) -> Result<LimitsMap> {
     check_plan(plan)?;
     let t0 = Instant::now();
     let mut ceilings = plan.ceilings_wcm2.clone();
@@ -277,7 +286,8 @@ pub fn limits(obj: &Objective, plan: &LimitsPlan, monitor: &dyn LimitsMonitor) -
     let solvers: Vec<SearchSolvers> =
         settings.iter().enumerate().map(|(si, _)| SearchSolvers::new(&jobs.iter().find(|j| j.0 == si).expect("a job per setting").2)).collect::<Result<_>>()?;
     let stop = AtomicBool::new(false);
-    let outcomes: Vec<Result<Vec<LimitCell>>> = jobs
+    let owned: Vec<&(usize, f64, Objective)> = jobs.iter().enumerate().filter(|(i, _)| shard.is_none_or(|s| s.owns(*i))).map(|(_, j)| j).collect();
+    let outcomes: Vec<Result<Vec<LimitCell>>> = owned
         .par_iter()
         .map(|(si, c, o)| {
             if monitor.interrupted() {
@@ -313,8 +323,8 @@ pub fn limits(obj: &Objective, plan: &LimitsPlan, monitor: &dyn LimitsMonitor) -
     for o in outcomes {
         cells.extend(o?);
     }
-    let interrupted = monitor.interrupted() || cells.iter().any(|c| c.confidence.stopped_by == "interrupted") || cells.len() < jobs.len() * plan.max_count;
-    if cells.is_empty() {
+    let interrupted = monitor.interrupted() || cells.iter().any(|c| c.confidence.stopped_by == "interrupted") || cells.len() < owned.len() * plan.max_count;
+    if cells.is_empty() && !owned.is_empty() {
         return Err(Error::Interrupted);
     }
     let objective = jobs.swap_remove(0).2;
@@ -329,6 +339,56 @@ pub fn limits(obj: &Objective, plan: &LimitsPlan, monitor: &dyn LimitsMonitor) -
         interrupted,
         run_time_s: t0.elapsed().as_secs_f64(),
     })
+}
+
+impl LimitsMap {
+    /// True when every search `shard` owns finished (of a map run by [`limits_part`]).
+    pub fn part_complete(&self) -> bool {
+        !self.interrupted
+    }
+
+    /// The part's designs and bounds as a part file holds them.
+    pub fn part_value(&self) -> Value {
+        serde_json::json!({"cells": self.cells, "bounds": self.bounds, "no_bound": self.no_bound, "run_time_s": self.run_time_s})
+    }
+
+    /// The map of a whole run from the results of its parts (any order, each from
+    /// [`LimitsMap::part_value`]), with the objective and plan they were run with: every combination
+    /// from exactly one part, one set of bounds.
+    pub fn merge(obj: &Objective, plan: &LimitsPlan, parts: &[Value]) -> Result<LimitsMap> {
+        check_plan(plan)?;
+        let bad = |what: String| Error::input("parts", format!("the parts' limits results {what}"));
+        let mut ceilings = plan.ceilings_wcm2.clone();
+        ceilings.sort_by(f64::total_cmp);
+        let settings = settings(obj, plan);
+        let objective = objective_for(obj, settings[0], ceilings[0], plan.max_count)?;
+        let first = parts.first().ok_or_else(|| bad("are empty".into()))?;
+        let mut cells: Vec<LimitCell> = vec![];
+        let mut run_time_s = 0.0;
+        for p in parts {
+            if p.get("bounds") != first.get("bounds") || p.get("no_bound") != first.get("no_bound") {
+                return Err(bad("differ in their bounds".into()));
+            }
+            let part: Vec<LimitCell> = serde_json::from_value(p.get("cells").cloned().unwrap_or(Value::Null)).map_err(|e| bad(format!("cannot be read: {e}")))?;
+            cells.extend(part);
+            run_time_s += p.get("run_time_s").and_then(Value::as_f64).unwrap_or(0.0);
+        }
+        let key = |c: &LimitCell| (c.setting, ceilings.iter().position(|&x| x == c.ceiling_wcm2), c.count);
+        if cells.iter().any(|c| key(c).1.is_none() || c.setting >= settings.len() || c.count == 0 || c.count > plan.max_count) {
+            return Err(bad("hold a combination outside the plan".into()));
+        }
+        cells.sort_by_key(key);
+        if cells.windows(2).any(|w| key(&w[0]) == key(&w[1])) {
+            return Err(bad("hold a combination twice".into()));
+        }
+        let planned = settings.len() * ceilings.len() * plan.max_count;
+        if cells.len() != planned {
+            return Err(bad(format!("hold {} of {planned} combinations", cells.len())));
+        }
+        let bounds: Vec<BoundCell> = serde_json::from_value(first.get("bounds").cloned().unwrap_or(Value::Null)).map_err(|e| bad(format!("cannot be read: {e}")))?;
+        let no_bound = first.get("no_bound").and_then(Value::as_str).map(str::to_string);
+        Ok(LimitsMap { objective, settings, ceilings_wcm2: ceilings, max_count: plan.max_count, cells, bounds, no_bound, interrupted: false, run_time_s })
+    }
 }
 
 /// The first count whose next pulse adds less than `gain` (in the goal's sense) for one (setting,
