@@ -836,7 +836,15 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
         }],
         ..obj.space.clone()
     };
-    let baseline = if interrupted || monitor.interrupted() {
+    // With one pulse in the objective's own space (a single pulse, or "max_count" from 1) whose bounds are
+    // the baseline's, the design's own one-pulse search, with at least the baseline's plan, is the baseline.
+    // (The first pulse's delay bounds are never read: it defines t = 0.)
+    let mut one = obj.space.truncated(1);
+    one.pulses[0].delay_ps = Bounds::fixed(0.0);
+    let own_single = (obj.variable_count || obj.space.pulses.len() == 1) && one == base_space;
+    let baseline = if own_single && !per_count.is_empty() {
+        per_count[0].clone()
+    } else if interrupted || monitor.interrupted() {
         // No time for a search: the single pulse at the ceiling (or at the fluence budget).
         let field = base_space.field(&vec![1.0; base_space.dims()]);
         let kick = if ev.kick.is_some() { Some(ev.score_quietly(&field, Model::Kick)?) } else { None };

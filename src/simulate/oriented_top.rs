@@ -238,8 +238,22 @@ impl OrientedTopSolver {
     }
 
     /// Finite intervals covering every field element and the span of the static field, from `t_first`
-    /// to the last sample (the static field then stays on past it), with their default steps.
+    /// to the last sample (the static field then stays on past it), with their default steps. With
+    /// `solver.method` "kick" every laser pulse is instead a kick (at its quadrature nodes), and the
+    /// intervals of the other fields are split at the kicks.
     pub(super) fn schedule(&self, field: &FieldModel, t_first: f64, t_last: f64) -> Vec<Event> {
+        let kick_mode = self.settings.method == crate::scenario::Method::Kick;
+        let mut kicks: Vec<Event> = vec![];
+        // The fields the finite intervals hold (in kick mode: all but the laser pulses).
+        let finite_field = if kick_mode {
+            for (i, p) in field.pulses.iter().enumerate().filter(|(_, p)| p.peak_intensity_wcm2 > 0.0) {
+                kicks.extend(super::pulse_kicks(p, i, self.axis.delta_alpha_a3, self.settings.kick_nodes));
+            }
+            FieldModel { pulses: vec![], ..field.clone() }
+        } else {
+            field.clone()
+        };
+        let field = &finite_field;
         let mut spans: Vec<(f64, f64)> = field.all_intervals().iter().map(|&(a, b, _)| (a, b)).collect();
         if let Some(sf) = field.static_field.filter(|s| s.strength_kv_cm != 0.0) {
             let on = sf.on_ps.unwrap_or(t_first).max(t_first);
@@ -257,26 +271,36 @@ impl OrientedTopSolver {
             }
         }
         let overlaps = |(a, b): (f64, f64), lo: f64, hi: f64| a <= hi && b >= lo;
-        merged
-            .into_iter()
-            .map(|(lo, hi)| {
-                let pulses: Vec<usize> =
-                    (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
-                let shortest = pulses
-                    .iter()
-                    .map(|&i| field.pulses[i].time_scale_ps())
-                    .chain(field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)).map(|t| t.rms_duration_ps()))
-                    .fold(f64::INFINITY, f64::min);
-                let mut peak: f64 = 0.0;
-                let t_bound = self.two_colour_bound();
-                for k in 0..=400 {
-                    let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.axis);
-                    peak = peak.max(r.u1.abs() + r.u2.abs() + r.g3.abs() * t_bound);
-                }
-                let step_ps = ORIENTED_STEP.step_ps(&self.settings, shortest, 0.0, peak);
-                Event::Finite { start_ps: lo, end_ps: hi, pulses, step_ps }
-            })
-            .collect()
+        let mut events: Vec<Event> = vec![];
+        for (lo, hi) in merged {
+            let pulses: Vec<usize> =
+                (0..field.pulses.len()).filter(|&i| field.pulses[i].peak_intensity_wcm2 > 0.0 && overlaps(field.pulses[i].support_ps(), lo, hi)).collect();
+            let shortest = pulses
+                .iter()
+                .map(|&i| field.pulses[i].time_scale_ps())
+                .chain(field.terahertz.iter().filter(|t| overlaps(t.support_ps(), lo, hi)).map(|t| t.rms_duration_ps()))
+                .fold(f64::INFINITY, f64::min);
+            let mut peak: f64 = 0.0;
+            let t_bound = self.two_colour_bound();
+            for k in 0..=400 {
+                let r = coupling::rates(field, lo + (hi - lo) * k as f64 / 400.0, &self.axis);
+                peak = peak.max(r.u1.abs() + r.u2.abs() + r.g3.abs() * t_bound);
+            }
+            let step_ps = ORIENTED_STEP.step_ps(&self.settings, shortest, 0.0, peak);
+            // Split at the kicks inside (a kick is an instant between two pieces of the interval).
+            let mut cuts: Vec<f64> = kicks.iter().map(|k| k.span().0).filter(|&t| t > lo && t < hi).collect();
+            cuts.sort_by(f64::total_cmp);
+            cuts.dedup();
+            let mut start = lo;
+            for end in cuts.into_iter().chain(std::iter::once(hi)) {
+                events.push(Event::Finite { start_ps: start, end_ps: end, pulses: pulses.clone(), step_ps });
+                start = end;
+            }
+        }
+        events.extend(kicks);
+        // Time order; a kick at the end of a piece comes after it and before the next piece.
+        events.sort_by(|a, b| a.span().0.total_cmp(&b.span().0).then(a.span().1.total_cmp(&b.span().1)));
+        events
     }
 
     /// Room (in J) above the thermal levels: the laser kicks, the static-field mixing (about
@@ -358,7 +382,9 @@ impl OrientedTopSolver {
             .map(|s| dipole_rate_rad_per_ps(self.axis.dipole_debye, s.along_z()))
             .unwrap_or(0.0);
         let nobs = TWO_D + usize::from(with_2d);
-        let plan = OrientedRun { run: super::driver::Run { field, items: &events, times: times_ps, t_first }, s0 };
+        // In kick mode the laser pulses are the schedule's kicks: the finite intervals hold the other fields.
+        let kicked = (self.settings.method == crate::scenario::Method::Kick).then(|| FieldModel { pulses: vec![], ..field.clone() });
+        let plan = OrientedRun { run: super::driver::Run { field: kicked.as_ref().unwrap_or(field), items: &events, times: times_ps, t_first }, s0 };
         let mut assembly = TopAssembly::new(nobs, times_ps.len());
         self.progress.plan(self.blocks.len());
         let group = 8 * rayon::current_num_threads().max(1);
@@ -806,7 +832,12 @@ impl Kernel for OrientedKernel<'_> {
         self.view.free(st, dt)
     }
 
-    fn instant(&self, _st: &mut BlockState, _item: &Event) {}
+    fn instant(&self, st: &mut BlockState, item: &Event) {
+        // A laser pulse as a kick (solver.method "kick"): its whole area at once.
+        if let Event::Kick { strength, .. } = item {
+            self.ops.kick(st, *strength, 0.0, 0.0, &mut self.combined.borrow_mut());
+        }
+    }
 
     fn finite_kick(&self, _index: usize, _item: &Event, st: &mut BlockState, t: f64, h: f64) {
         let r = coupling::rates(self.field, t, &self.solver.axis);
