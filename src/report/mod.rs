@@ -257,10 +257,13 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
         }
     }
     if let Some(t) = scenario.molecule.as_top() {
-        // Pulses polarized away from Z: the second axis with X, the partner of a three-axis goal.
-        if let Some(series) = trace.lab_axis(crate::basis::lab::LabAxis::X, Some(t.second_axis())) {
+        // Pulses polarized away from Z: the second axis with X, the partner of a three-axis goal (for a
+        // three-axis orientation goal, the most polarizable axis besides the dipole axis).
+        let oriented = scenario.goal.as_ref().is_some_and(|g| g.observable == crate::goal::Observable::ThreeAxisOriented);
+        let second = if oriented { t.oriented_second_axis() } else { t.second_axis() };
+        if let Some(series) = trace.lab_axis(crate::basis::lab::LabAxis::X, Some(second)) {
             plot.series.push(svg::Series {
-                label: format!("⟨cos²⟩ ({} axis with X)", t.second_axis().letter()),
+                label: format!("⟨cos²⟩ ({} axis with X)", second.letter()),
                 x: trace.times_ps.clone(),
                 y: series.to_vec(),
                 color: svg::TEAL.into(),
@@ -304,7 +307,8 @@ pub fn alignment_plot(scenario: &Scenario, trace: &Trace, title: &str) -> svg::L
     }
     if let Some(sf) = &scenario.field.static_field {
         let angle = if sf.angle_deg != 0.0 { format!(" at {:.1}° from Z", sf.angle_deg) } else { String::new() };
-        plot.subtitle = Some(format!("{}; static field {} kV/cm{angle}", plot.subtitle.clone().unwrap_or_default(), sf.strength_kv_cm));
+        // Four significant figures: a searched field may sit a hair below its bound (29.99999999 kV/cm).
+        plot.subtitle = Some(format!("{}; static field {} kV/cm{angle}", plot.subtitle.clone().unwrap_or_default(), format_significant(sf.strength_kv_cm, 4)));
     }
     for (i, tc) in scenario.field.two_colour.iter().enumerate() {
         let h = 0.5 * tc.fwhm_fs / 1000.0;
@@ -369,4 +373,28 @@ pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
     }
     write_file(dir, "alignment.svg", &plot.to_svg())?;
     Ok(summary)
+}
+
+/// `x` rounded to `digits` significant figures, written without trailing zeros (30, 12.5, 0.0125).
+pub fn format_significant(x: f64, digits: usize) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let decimals = (digits as i32 - 1 - x.abs().log10().floor() as i32).max(0) as usize;
+    let s = format!("{x:.decimals$}");
+    if s.contains('.') { s.trim_end_matches('0').trim_end_matches('.').to_string() } else { s }
+}
+
+#[cfg(test)]
+mod format_tests {
+    use super::format_significant;
+
+    #[test]
+    fn numbers_keep_four_significant_figures_without_trailing_zeros() {
+        assert_eq!(format_significant(29.99999999330194, 4), "30");
+        assert_eq!(format_significant(12.5, 4), "12.5");
+        assert_eq!(format_significant(0.012345, 4), "0.01235");
+        assert_eq!(format_significant(1234.6, 4), "1235");
+        assert_eq!(format_significant(50.0, 4), "50");
+    }
 }
