@@ -149,10 +149,11 @@ for N2, whose period is 8.4 ps), then check the interesting region with the defa
     #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
 Jitter moves every pulse after the first; the probe stays at the nominal times. Writes tolerance.csv and tolerance.svg.")]
     Tolerance(ToleranceArgs),
-    /// Merge the part folders of a scan or tolerance run split with --shard (for example the tasks of a Slurm array).
+    /// Merge the part folders of a scan, tolerance run or limits map split with --shard (for example the tasks of a Slurm array).
     #[command(after_help = "Example:\n  kicktrain merge run/parts/* --out run/result\n\n\
 Checks that the parts come from one input and split, that none is missing, duplicated or stopped early (naming the\n\
-command that reruns each such part), and only then writes the files one unsharded run writes (byte-identical CSV).")]
+command that reruns each such part), and only then writes the files one unsplit run writes (byte-identical CSV; a limits.csv\n\
+differs only in its measured run times).")]
     Merge {
         /// Part folders (the --out folders of the runs with --shard).
         #[arg(required = true)]
@@ -161,11 +162,11 @@ command that reruns each such part), and only then writes the files one unsharde
         #[arg(long)]
         out: Option<PathBuf>,
     },
-    /// Write Slurm job-array scripts that run a scan or tolerance run in parts, and the merge job after them.
+    /// Write Slurm job-array scripts that run a scan, tolerance run or limits map in parts, and the merge job after them.
     #[command(subcommand_value_name = "JOB", subcommand_help_heading = "Jobs")]
     #[command(after_help = "Example:\n  kicktrain cluster scan two-pulse.json --x pulses[1].center_ps --from 1 --to 9 --steps 40 \\\n      \
 --y pulses[1].peak_intensity_wcm2 --y-from 0 --y-to 5e13 --y-steps 40 --shards 64 --out run\n\n\
-Times one point (or draw) here first and asks Slurm for time and memory from it. Writes run/array.sbatch (one task per\n\
+Times one point (draw, or search of a limits map) here first and asks Slurm for time and memory from it. Writes run/array.sbatch (one task per\n\
 part, each writing run/parts/K), run/merge.sbatch (runs after every task succeeded and writes run/result) and a copy of\n\
 the input, then prints the two sbatch commands. Nothing outside run/ is assumed shared but the kicktrain binary.")]
     Cluster(ClusterArgs),

@@ -179,6 +179,9 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
             format!("--cpus-per-task={}", args.cpus_per_task),
             format!("--output={}/part-%a.out", logs.display()),
             format!("--chdir={}", run.display()),
+            // SIGTERM three minutes before the time limit: the task finishes its current item and writes
+            // its part marked incomplete (Slurm's own SIGTERM at the limit leaves only its KillWait).
+            "--signal=B:TERM@180".into(),
         ],
     ) + &format!(
         "# Probe on the machine that wrote this: one of the {what} took {probe_s:.2} s, peak memory {peak:.0} MB; a task holds up to {per_task}.\n\
