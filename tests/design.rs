@@ -464,3 +464,29 @@ fn a_one_pulse_design_is_its_own_single_pulse_baseline() {
     assert!(narrow.baseline.full.value >= narrow.best.full.value - 1e-3, "{} vs {}", narrow.baseline.full.value, narrow.best.full.value);
     assert!((own.best.field.pulses[0].peak_intensity_wcm2 - 5e13).abs() < 5e11, "{:?}", own.best.field.pulses[0]);
 }
+
+#[test]
+fn a_time_limit_ends_the_running_start_and_starts_no_other() {
+    // search.time_limit_s bounds a search even when one start alone would outlast it: with a limit that has
+    // passed before the first iteration, the first start keeps its first swarm generation, no second start
+    // runs, the design is still scored by the full solver, and the report says the limit stopped it
+    // (common practice for a time budget: keep the best so far, say it was cut short).
+    let text = |limit: &str| {
+        format!(
+            r#"{{"molecule": "N2", "temperature_k": 300,
+              "pulses": {{"count": 3, "fwhm_fs": 50, "delay_ps": {{"min": 0.5, "max": 9.0}}, "peak_intensity_wcm2": {{"min": 0, "max": 4e13}}}},
+              "max_peak_intensity_wcm2": 4e13, "min_separation_ps": 0.5,
+              "goal": {{"kind": "peak", "observable": "cos2", "window_ps": [0.05, 9.0], "step_fs": 20}},
+              "search": {{"seed": 2{limit}}}}}"#
+        )
+    };
+    let cut = design(&objective(&text(r#", "time_limit_s": 1e-6"#)), &Silent).unwrap();
+    let c = &cut.confidence[0];
+    assert_eq!(c.stopped_by, "time limit");
+    assert_eq!(c.starts.len(), 1);
+    assert!(c.warning.is_some());
+    assert!(cut.best.full.value.is_finite() && cut.best.full.value > 1.0 / 3.0);
+    let whole = design(&objective(&text("")), &Silent).unwrap();
+    assert!(whole.kick_evaluations > 3 * cut.kick_evaluations, "{} vs {}", whole.kick_evaluations, cut.kick_evaluations);
+    assert!(!cut.interrupted, "a time limit is a normal end, not an interruption");
+}

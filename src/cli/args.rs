@@ -52,7 +52,7 @@ a second signal quits at once (exit 130) and writes nothing.")]
         /// Effort: quick, normal or thorough (overrides the file's search.effort).
         #[arg(long)]
         effort: Option<String>,
-        /// No new independent start after this many seconds (overrides search.time_limit_s).
+        /// After this many seconds the running start ends at its next iteration and no new start begins (overrides search.time_limit_s).
         #[arg(long, value_name = "S")]
         time_limit: Option<f64>,
         /// No progress bar.

@@ -201,6 +201,8 @@ struct Evaluator<'a> {
     history: Mutex<Vec<HistoryPoint>>,
     stage: Mutex<String>,
     monitor: &'a dyn Monitor,
+    /// When `search.time_limit_s` runs out (None: no limit).
+    deadline: Option<Instant>,
 }
 
 impl<'a> Evaluator<'a> {
@@ -220,8 +222,15 @@ impl<'a> Evaluator<'a> {
             history: Mutex::new(vec![]),
             stage: Mutex::new(String::new()),
             monitor,
+            deadline: obj.search.time_limit_s.map(|t| Instant::now() + std::time::Duration::from_secs_f64(t)),
         }
     }
+
+    /// True once `search.time_limit_s` has passed (the line searches then stop too).
+    fn past_deadline(&self) -> bool {
+        self.deadline.is_some_and(|d| Instant::now() > d)
+    }
+
 
     /// The solver of a model, or an error naming the pulse duration when the pulses are too long for
     /// the kick models.
@@ -437,6 +446,8 @@ impl CostFunction for Cost<'_, '_> {
 struct Interruptible<'m, S> {
     inner: S,
     monitor: &'m dyn Monitor,
+    /// The search's time limit: iterations end once it passed.
+    deadline: Option<Instant>,
 }
 
 impl<'m, O, I: State, S: argmin::core::Solver<O, I>> argmin::core::Solver<O, I> for Interruptible<'m, S> {
@@ -450,7 +461,7 @@ impl<'m, O, I: State, S: argmin::core::Solver<O, I>> argmin::core::Solver<O, I> 
         self.inner.next_iter(problem, state)
     }
     fn terminate(&mut self, state: &I) -> TerminationStatus {
-        if self.monitor.interrupted() {
+        if self.monitor.interrupted() || self.deadline.is_some_and(|d| Instant::now() > d) {
             return TerminationStatus::Terminated(TerminationReason::Interrupt);
         }
         self.inner.terminate(state)
@@ -481,7 +492,7 @@ fn swarm(
         first.into_iter().map(|(p, c)| Particle::new(p, c, (0..d).map(|_| rng.random_range(-0.2..0.2)).collect())).collect();
     let size = particles.len();
     let pso = ParticleSwarm::new((vec![0.0; d], vec![1.0; d]), size).with_rng_generator(rand::rngs::StdRng::seed_from_u64(rng.random()));
-    let res = Executor::new(cost, Interruptible { inner: pso, monitor: ev.monitor })
+    let res = Executor::new(cost, Interruptible { inner: pso, monitor: ev.monitor, deadline: ev.deadline })
         .configure(|s| s.population(particles).max_iters(iterations as u64))
         .run()
         .map_err(argmin_error)?;
@@ -506,7 +517,7 @@ fn simplex(ev: &Evaluator, space: &DesignSpace, start: &[f64], model: Model, ite
     }
     let nm = NelderMead::new(points).with_sd_tolerance(1e-10).map_err(argmin_error)?;
     let res =
-        Executor::new(cost, Interruptible { inner: nm, monitor: ev.monitor }).configure(|s| s.max_iters(iterations as u64)).run().map_err(argmin_error)?;
+        Executor::new(cost, Interruptible { inner: nm, monitor: ev.monitor, deadline: ev.deadline }).configure(|s| s.max_iters(iterations as u64)).run().map_err(argmin_error)?;
     let st = res.state();
     let y = st.get_best_param().cloned().unwrap_or(y0);
     Ok((y.iter().map(|v| 0.5 * (1.0 + v.sin())).collect(), st.get_best_cost()))
@@ -528,7 +539,7 @@ fn line_sweeps(ev: &Evaluator, space: &DesignSpace, start: Vec<f64>, start_cost:
     for _ in 0..sweeps {
         let before = c;
         for (i, &n) in lines.iter().enumerate() {
-            if ev.monitor.interrupted() {
+            if ev.monitor.interrupted() || ev.past_deadline() {
                 return Ok((u, c));
             }
             let points: Vec<Vec<f64>> = (0..=n)
@@ -626,7 +637,8 @@ fn search_space(
                 stopped_by = "interrupted".into();
                 break;
             }
-            if s >= plan.min_starts && deadline.is_some_and(|d| Instant::now() > d) {
+            // Past the time limit no start begins (at least one has run: it ended at its limit too).
+            if s > 0 && deadline.is_some_and(|d| Instant::now() > d) {
                 stopped_by = "time limit".into();
                 break;
             }
@@ -661,6 +673,10 @@ fn search_space(
         }
         if starts.is_empty() {
             return Err(Error::Interrupted);
+        }
+        // A start the limit cut short counts as stopped by it.
+        if stopped_by != "agreement" && deadline.is_some_and(|d| Instant::now() > d) {
+            stopped_by = "time limit".into();
         }
     }
     // Stage two: the full solver scores every start's train (the same train once), then refines the best.
@@ -751,7 +767,7 @@ pub struct CountDesigns {
 pub fn design_counts(obj: &Objective, solvers: &SearchSolvers, monitor: &dyn Monitor) -> Result<CountDesigns> {
     let t0 = Instant::now();
     let ev = Evaluator::new(obj, solvers, monitor);
-    let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor, t0)?;
+    let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor)?;
     Ok(CountDesigns {
         per_count,
         confidence,
@@ -764,8 +780,8 @@ pub fn design_counts(obj: &Objective, solvers: &SearchSolvers, monitor: &dyn Mon
 
 /// One search per pulse count, in count order; an interrupted search keeps the counts finished (or, when
 /// none finished, the best train seen so far). Returns (designs, confidence, interrupted).
-fn count_searches(ev: &Evaluator, obj: &Objective, monitor: &dyn Monitor, t0: Instant) -> Result<(Vec<Candidate>, Vec<Confidence>, bool)> {
-    let deadline = obj.search.time_limit_s.map(|s| t0 + std::time::Duration::from_secs_f64(s));
+fn count_searches(ev: &Evaluator, obj: &Objective, monitor: &dyn Monitor) -> Result<(Vec<Candidate>, Vec<Confidence>, bool)> {
+    let deadline = ev.deadline;
     let n = obj.space.pulses.len();
     let counts: Vec<usize> = if obj.variable_count { (1..=n).collect() } else { vec![n] };
     let mut per_count: Vec<Candidate> = vec![];
@@ -819,7 +835,7 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
     let solvers = SearchSolvers::new(obj)?;
     let ev = Evaluator::new(obj, &solvers, monitor);
     let full_screening = ev.kick.is_none();
-    let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor, t0)?;
+    let (per_count, confidence, interrupted) = count_searches(&ev, obj, monitor)?;
     let sense = obj.goal.sense();
     // "Up to N": the fewest pulses whose score is within COUNT_GAIN_THRESHOLD of the best.
     let top = per_count.iter().map(|c| sense * c.full.value).fold(f64::NEG_INFINITY, f64::max);
@@ -851,7 +867,7 @@ pub fn design(obj: &Objective, monitor: &dyn Monitor) -> Result<DesignResult> {
         Candidate { kick, full: ev.score_quietly(&field, Model::Full)?, field }
     } else {
         let plan = obj.search.baseline_plan(base_space.dims(), full_screening);
-        search_space(&ev, &base_space, "baseline", obj.search.seed.wrapping_add(17), &plan, None, None)?.0
+        search_space(&ev, &base_space, "baseline", obj.search.seed.wrapping_add(17), &plan, None, ev.deadline)?.0
     };
     ev.set_stage("done", 0);
     let mut history = ev.history.lock().expect("lock").clone();
