@@ -4,10 +4,10 @@
 use crate::design::score::score_goal;
 use crate::error::{Error, Result};
 use crate::scenario::Scenario;
+use crate::shard::Shard;
 use crate::simulate::Solver;
 use rayon::prelude::*;
 use serde_json::Value;
-use crate::shard::Shard;
 use std::sync::atomic::{AtomicBool, Ordering};
 
 /// One scanned axis: a dotted path into the scenario JSON and the values it takes.
@@ -158,7 +158,10 @@ impl ScanResult {
         let axis = |v: &Value| -> Result<Axis> {
             let path = v.get("path").and_then(Value::as_str).ok_or_else(|| bad("lack an axis path"))?;
             let values = v.get("values").and_then(Value::as_array).ok_or_else(|| bad("lack axis values"))?;
-            Ok(Axis { path: path.to_string(), values: values.iter().map(|x| x.as_f64().ok_or_else(|| bad("hold an axis value that is not a number"))).collect::<Result<_>>()? })
+            Ok(Axis {
+                path: path.to_string(),
+                values: values.iter().map(|x| x.as_f64().ok_or_else(|| bad("hold an axis value that is not a number"))).collect::<Result<_>>()?,
+            })
         };
         let first = parts.first().ok_or_else(|| bad("are empty"))?;
         let x = axis(first.get("x").ok_or_else(|| bad("lack the x axis"))?)?;

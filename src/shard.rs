@@ -130,7 +130,11 @@ impl Part {
             fingerprint: text_of("fingerprint")?,
             shard,
             complete: v.get("complete").and_then(Value::as_bool).ok_or_else(|| bad("complete"))?,
-            argv: v.get("argv").and_then(Value::as_array).map(|a| a.iter().filter_map(|x| x.as_str().map(str::to_string)).collect()).ok_or_else(|| bad("argv"))?,
+            argv: v
+                .get("argv")
+                .and_then(Value::as_array)
+                .map(|a| a.iter().filter_map(|x| x.as_str().map(str::to_string)).collect())
+                .ok_or_else(|| bad("argv"))?,
             run_time_s: v.get("run_time_s").and_then(Value::as_f64).unwrap_or(0.0),
             result: v.get("result").cloned().ok_or_else(|| bad("result"))?,
         })
@@ -146,11 +150,7 @@ pub fn rerun_command(argv: &[String], from: Shard, index: usize) -> String {
     while i < argv.len() {
         let a = &argv[i];
         let value_of = |flag: &str| -> Option<(String, bool)> {
-            if a == flag {
-                argv.get(i + 1).map(|v| (v.clone(), true))
-            } else {
-                a.strip_prefix(&format!("{flag}=")).map(|v| (v.to_string(), false))
-            }
+            if a == flag { argv.get(i + 1).map(|v| (v.clone(), true)) } else { a.strip_prefix(&format!("{flag}=")).map(|v| (v.to_string(), false)) }
         };
         if let Some((_, separate)) = value_of("--shard") {
             out.push("--shard".into());
@@ -201,11 +201,17 @@ pub fn gather(dirs: &[PathBuf]) -> Result<Vec<Part>> {
         }
     }
     let Some(first) = parts.first().cloned() else {
-        return Err(Error::input("parts", format!("none of the {} folders holds a {PART_FILE}: the parts failed, are still running, or these are not part folders", dirs.len())));
+        return Err(Error::input(
+            "parts",
+            format!("none of the {} folders holds a {PART_FILE}: the parts failed, are still running, or these are not part folders", dirs.len()),
+        ));
     };
     for p in &parts {
         if p.command != first.command {
-            return Err(Error::input("parts", format!("{} is a part of `{}`, {} of `{}`; expected the parts of one run", p.dir.display(), p.command, first.dir.display(), first.command)));
+            return Err(Error::input(
+                "parts",
+                format!("{} is a part of `{}`, {} of `{}`; expected the parts of one run", p.dir.display(), p.command, first.dir.display(), first.command),
+            ));
         }
         if p.fingerprint != first.fingerprint || p.shard.count != first.shard.count {
             return Err(Error::input(
@@ -226,7 +232,10 @@ pub fn gather(dirs: &[PathBuf]) -> Result<Vec<Part>> {
     let mut slots: Vec<Option<&Part>> = vec![None; n];
     for p in &parts {
         if let Some(other) = slots[p.shard.index] {
-            return Err(Error::input("parts", format!("part {} of {n} appears twice ({} and {}); expected each part once", p.shard.index, other.dir.display(), p.dir.display())));
+            return Err(Error::input(
+                "parts",
+                format!("part {} of {n} appears twice ({} and {}); expected each part once", p.shard.index, other.dir.display(), p.dir.display()),
+            ));
         }
         slots[p.shard.index] = Some(p);
     }
@@ -234,7 +243,9 @@ pub fn gather(dirs: &[PathBuf]) -> Result<Vec<Part>> {
     for (k, slot) in slots.iter().enumerate() {
         match slot {
             None => problems.push(format!("part {k} is missing (failed, timed out or still running); rerun: {}", rerun_command(&first.argv, first.shard, k))),
-            Some(p) if !p.complete => problems.push(format!("part {k} ({}) stopped before its end; rerun: {}", p.dir.display(), rerun_command(&p.argv, p.shard, k))),
+            Some(p) if !p.complete => {
+                problems.push(format!("part {k} ({}) stopped before its end; rerun: {}", p.dir.display(), rerun_command(&p.argv, p.shard, k)))
+            }
             Some(_) => {}
         }
     }

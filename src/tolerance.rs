@@ -8,8 +8,8 @@ use crate::scenario::Scenario;
 use crate::shard::Shard;
 use crate::simulate::Solver;
 use rand::{Rng, SeedableRng};
-use serde_json::{Value, json};
 use rayon::prelude::*;
+use serde_json::{Value, json};
 use std::sync::atomic::{AtomicBool, Ordering};
 
 /// The errors to sample.

@@ -24,12 +24,33 @@ fn output(dir: &Path, program: &str, args: &[&str]) -> (bool, String, String) {
 #[ignore = "needs a running Slurm cluster: bash tools/slurm/start.sh, then --ignored"]
 fn a_scan_run_as_a_slurm_job_array_merges_to_the_unsplit_run() {
     let (ok, info, err) = output(Path::new("."), "sinfo", &["-h", "-o", "%T"]);
-    assert!(ok && info.lines().any(|l| l.trim() == "idle" || l.trim() == "mixed"), "no Slurm cluster answers (sinfo: {info}{err}); start one with tools/slurm/start.sh");
+    assert!(
+        ok && info.lines().any(|l| l.trim() == "idle" || l.trim() == "mixed"),
+        "no Slurm cluster answers (sinfo: {info}{err}); start one with tools/slurm/start.sh"
+    );
     let nanos = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_nanos()).unwrap_or(0);
     let dir: PathBuf = std::env::temp_dir().join(format!("kicktrain-cluster-{}-{nanos}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     std::fs::write(dir.join("s.json"), SCENARIO).unwrap();
-    let axes = ["s.json", "--x", "pulses[1].center_ps", "--from", "1", "--to", "4", "--steps", "9", "--y", "pulses[1].peak_intensity_wcm2", "--y-from", "0", "--y-to", "4e13", "--y-steps", "6"];
+    let axes = [
+        "s.json",
+        "--x",
+        "pulses[1].center_ps",
+        "--from",
+        "1",
+        "--to",
+        "4",
+        "--steps",
+        "9",
+        "--y",
+        "pulses[1].peak_intensity_wcm2",
+        "--y-from",
+        "0",
+        "--y-to",
+        "4e13",
+        "--y-steps",
+        "6",
+    ];
     let mut whole = vec!["scan"];
     whole.extend(axes);
     whole.extend(["--out", "whole", "--quiet"]);

@@ -106,7 +106,8 @@ fn any_split_of_a_scan_merges_to_the_unsplit_files() {
     assert_eq!(code, 2);
     assert!(err.contains("part 2 (parts3/2) stopped before its end") && err.contains("--shard 2/3"), "{err}");
     // A part of another scan (other axis values).
-    let (code, _, e) = run(&dir, &["scan", "s.json", "--x", "pulses[1].center_ps", "--from", "1", "--to", "5", "--steps", "7", "--shard", "1/2", "--out", "other", "--quiet"]);
+    let (code, _, e) =
+        run(&dir, &["scan", "s.json", "--x", "pulses[1].center_ps", "--from", "1", "--to", "5", "--steps", "7", "--shard", "1/2", "--out", "other", "--quiet"]);
     assert_eq!(code, 0, "{e}");
     let (code, _, err) = run(&dir, &["merge", "parts2/0", "other", "--out", "broken"]);
     assert_eq!(code, 2);

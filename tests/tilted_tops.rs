@@ -215,13 +215,19 @@ fn kicks_are_the_short_pulse_limit_of_finite_pulses_in_a_static_field() {
         let mut errors = vec![];
         for fwhm in [200.0, 100.0] {
             // Strength ∝ intensity × FWHM: 4e12 W/cm² for 100 fs.
-            let field = FieldModel { pulses: vec![Pulse::gaussian(0.0, fwhm, 4e12 * 100.0 / fwhm)], static_field: static_field(20.0, angle), ..Default::default() };
+            let field =
+                FieldModel { pulses: vec![Pulse::gaussian(0.0, fwhm, 4e12 * 100.0 / fwhm)], static_field: static_field(20.0, angle), ..Default::default() };
             let run = |s: &Solver| if angle == 0.0 { s.run(&field, &times, false).unwrap().trace } else { s.run_tilted(&field, &times).unwrap().trace };
             let (k, f) = (run(&kicked), run(&finite));
             let axes = (k.body_axes.as_ref().unwrap(), f.body_axes.as_ref().unwrap());
             errors.push(max_diff(k.cos().unwrap(), f.cos().unwrap()).max(max_diff(&axes.0.a, &axes.1.a)));
         }
         let ratio = errors[0] / errors[1];
-        assert!(errors[1] < 1.5e-3 && (1.7..2.5).contains(&ratio), "angle {angle}°: kick vs 200 fs {:.2e}, vs 100 fs {:.2e} (ratio {ratio:.2})", errors[0], errors[1]);
+        assert!(
+            errors[1] < 1.5e-3 && (1.7..2.5).contains(&ratio),
+            "angle {angle}°: kick vs 200 fs {:.2e}, vs 100 fs {:.2e} (ratio {ratio:.2})",
+            errors[0],
+            errors[1]
+        );
     }
 }

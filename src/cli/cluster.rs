@@ -85,10 +85,26 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
             eprintln!("probing: one point of {points} …");
             let t0 = Instant::now();
             kicktrain::scan::scan(&base, &xa, ya.as_ref(), Some(Shard { index: 0, count: points }), &|| {}, &never)?;
-            let mut w = vec!["scan".to_string(), quote(&input_copy), "--x".into(), shell_quote(&a.x), "--from".into(), a.from.to_string(), "--to".into(), a.to.to_string()];
+            let mut w = vec![
+                "scan".to_string(),
+                quote(&input_copy),
+                "--x".into(),
+                shell_quote(&a.x),
+                "--from".into(),
+                a.from.to_string(),
+                "--to".into(),
+                a.to.to_string(),
+            ];
             w.extend(["--steps".into(), a.steps.to_string()]);
             if let Some(y) = &a.y {
-                w.extend(["--y".into(), shell_quote(y), "--y-from".into(), a.y_from.unwrap_or(0.0).to_string(), "--y-to".into(), a.y_to.unwrap_or(0.0).to_string()]);
+                w.extend([
+                    "--y".into(),
+                    shell_quote(y),
+                    "--y-from".into(),
+                    a.y_from.unwrap_or(0.0).to_string(),
+                    "--y-to".into(),
+                    a.y_to.unwrap_or(0.0).to_string(),
+                ]);
                 w.extend(["--y-steps".into(), a.y_steps.to_string()]);
             }
             w.push("--quiet".into());
@@ -125,14 +141,26 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
             let t0 = Instant::now();
             kicktrain::limits::limits_part(&input.obj, plan, Some(Shard { index: 0, count: searches }), &kicktrain::limits::Quiet)?;
             let list = |v: &[f64]| v.iter().map(|x| x.to_string()).collect::<Vec<_>>().join(",");
-            let mut w = vec!["limits".to_string(), quote(&input_copy), "--max-count".into(), plan.max_count.to_string(), "--ceilings".into(), list(&plan.ceilings_wcm2)];
+            let mut w = vec![
+                "limits".to_string(),
+                quote(&input_copy),
+                "--max-count".into(),
+                plan.max_count.to_string(),
+                "--ceilings".into(),
+                list(&plan.ceilings_wcm2),
+            ];
             if !plan.temperatures_k.is_empty() {
                 w.extend(["--temperatures".into(), list(&plan.temperatures_k)]);
             }
             if !plan.durations_fs.is_empty() {
                 w.extend(["--durations".into(), list(&plan.durations_fs)]);
             }
-            for (flag, v) in [("--waist-um", a.waist_um), ("--beam-radius-mm", a.beam_radius_mm), ("--wavelength-nm", a.wavelength_nm), ("--focal-length-mm", a.focal_length_mm)] {
+            for (flag, v) in [
+                ("--waist-um", a.waist_um),
+                ("--beam-radius-mm", a.beam_radius_mm),
+                ("--wavelength-nm", a.wavelength_nm),
+                ("--focal-length-mm", a.focal_length_mm),
+            ] {
                 if let Some(v) = v {
                     w.extend([flag.to_string(), v.to_string()]);
                 }
@@ -158,7 +186,8 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
     let parts_dir = run.join("parts");
     let logs = run.join("logs");
     let head = |name: &str, extra: &[String]| -> String {
-        let mut s = format!("#!/bin/bash\n# Written by kicktrain cluster ({command} of {items} {what} in {shards} parts).\n#SBATCH --job-name=kicktrain-{name}\n");
+        let mut s =
+            format!("#!/bin/bash\n# Written by kicktrain cluster ({command} of {items} {what} in {shards} parts).\n#SBATCH --job-name=kicktrain-{name}\n");
         for e in extra {
             s.push_str(&format!("#SBATCH {e}\n"));
         }
@@ -195,7 +224,14 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
     );
     let merge = head(
         "merge",
-        &["--time=0:30:00".into(), "--mem=2048M".into(), "--cpus-per-task=1".into(), format!("--output={}/merge.out", logs.display()), format!("--chdir={}", run.display()), "--kill-on-invalid-dep=yes".into()],
+        &[
+            "--time=0:30:00".into(),
+            "--mem=2048M".into(),
+            "--cpus-per-task=1".into(),
+            format!("--output={}/merge.out", logs.display()),
+            format!("--chdir={}", run.display()),
+            "--kill-on-invalid-dep=yes".into(),
+        ],
     ) + &format!(
         "# Runs once every task of the array succeeded (submit with --dependency=afterok:ARRAY_JOB). Run the same line by\n\
          # hand after a failed task: it names each part that is missing or stopped and the command that reruns it.\n\

@@ -270,7 +270,12 @@ fn limits_record(input: &LimitsInput, args: &super::args::LimitsArgs) -> serde_j
 }
 
 /// Print a finished (or stopped) map and write its files.
-fn finish_limits(map: &kicktrain::limits::LimitsMap, energy: Option<kicktrain::report::limits::EnergyScale>, staged: Option<OutputDir>, out: Option<&Path>) -> Result<Finish, Error> {
+fn finish_limits(
+    map: &kicktrain::limits::LimitsMap,
+    energy: Option<kicktrain::report::limits::EnergyScale>,
+    staged: Option<OutputDir>,
+    out: Option<&Path>,
+) -> Result<Finish, Error> {
     use kicktrain::report::limits::{limits_csv, limits_partial, limits_partial_note, limits_svg, limits_text};
     let partial = limits_partial(map);
     if let Some(p) = &partial {
@@ -316,7 +321,13 @@ pub fn run_limits(args: &super::args::LimitsArgs) -> Result<Finish, Error> {
         run_time_s: t0.elapsed().as_secs_f64(),
         result,
     };
-    println!("part {sh}: {} of {} combinations in {:.1} s{}", map.cells.len(), owned * plan.max_count, part.run_time_s, if complete { "" } else { " (stopped early)" });
+    println!(
+        "part {sh}: {} of {} combinations in {:.1} s{}",
+        map.cells.len(),
+        owned * plan.max_count,
+        part.run_time_s,
+        if complete { "" } else { " (stopped early)" }
+    );
     let outputs = || vec![("limits.csv", kicktrain::report::limits::limits_csv(&map, input.energy)), (PART_FILE, part.to_json())];
     let note = (!complete).then(|| format!("part {} of {} stopped by a signal; rerun it before merging.\n", sh.index, sh.count));
     write_and_finish(staged, out, outputs, note)
@@ -500,7 +511,8 @@ pub fn run_tolerance(args: &super::args::ToleranceArgs) -> Result<Finish, Error>
         };
         println!("part {sh}: {} of {owned} draws in {:.2} s{}", r.samples.len(), part.run_time_s, if complete { "" } else { " (stopped early)" });
         let outputs = || vec![("tolerance.csv", report::scan::tolerance_csv(&r)), (PART_FILE, part.to_json())];
-        let note = (!complete).then(|| format!("part {} of {} stopped by a signal after {} of {owned} draws; rerun it before merging.\n", sh.index, sh.count, r.samples.len()));
+        let note = (!complete)
+            .then(|| format!("part {} of {} stopped by a signal after {} of {owned} draws; rerun it before merging.\n", sh.index, sh.count, r.samples.len()));
         return write_and_finish(staged, out, outputs, note);
     }
     let partial = report::scan::tolerance_partial(&r);
@@ -522,7 +534,13 @@ pub fn run_merge(dirs: &[std::path::PathBuf], out: Option<&Path>) -> Result<Fini
         "scan" => {
             let r = kicktrain::scan::ScanResult::merge(&results)?;
             if r.partial() {
-                return Err(Error::input("parts", format!("the {n} parts leave {} points of the scan without a value; expected every point once", r.done.iter().flatten().filter(|d| !**d).count())));
+                return Err(Error::input(
+                    "parts",
+                    format!(
+                        "the {n} parts leave {} points of the scan without a value; expected every point once",
+                        r.done.iter().flatten().filter(|d| !**d).count()
+                    ),
+                ));
             }
             let staged = prepare_out(out, "scan")?;
             println!("merged {n} parts (their run times add up to {seconds:.1} s)");
@@ -540,7 +558,11 @@ pub fn run_merge(dirs: &[std::path::PathBuf], out: Option<&Path>) -> Result<Fini
             let scenario = Scenario::from_json_str(text, "the parts' scenario")?;
             let goal = scenario.goal.ok_or_else(|| Error::input("parts", "the parts' scenario has no goal"))?;
             let number = |k: &str| first.get("noise").and_then(|v| v.get(k)).and_then(|v| v.as_f64()).unwrap_or(0.0);
-            let noise = kicktrain::tolerance::Noise { jitter_fs: number("jitter_fs"), energy_percent: number("energy_noise_percent"), phase_rad: number("phase_noise_rad") };
+            let noise = kicktrain::tolerance::Noise {
+                jitter_fs: number("jitter_fs"),
+                energy_percent: number("energy_noise_percent"),
+                phase_rad: number("phase_noise_rad"),
+            };
             let seed = first.get("seed").and_then(|v| v.as_u64()).unwrap_or(0);
             let staged = prepare_out(out, "tolerance")?;
             println!("merged {n} parts (their run times add up to {seconds:.1} s)");

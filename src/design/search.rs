@@ -231,7 +231,6 @@ impl<'a> Evaluator<'a> {
         self.deadline.is_some_and(|d| Instant::now() > d)
     }
 
-
     /// The solver of a model, or an error naming the pulse duration when the pulses are too long for
     /// the kick models.
     fn solver(&self, model: Model) -> Result<&Solver> {
@@ -516,8 +515,10 @@ fn simplex(ev: &Evaluator, space: &DesignSpace, start: &[f64], model: Model, ite
         points.push(y);
     }
     let nm = NelderMead::new(points).with_sd_tolerance(1e-10).map_err(argmin_error)?;
-    let res =
-        Executor::new(cost, Interruptible { inner: nm, monitor: ev.monitor, deadline: ev.deadline }).configure(|s| s.max_iters(iterations as u64)).run().map_err(argmin_error)?;
+    let res = Executor::new(cost, Interruptible { inner: nm, monitor: ev.monitor, deadline: ev.deadline })
+        .configure(|s| s.max_iters(iterations as u64))
+        .run()
+        .map_err(argmin_error)?;
     let st = res.state();
     let y = st.get_best_param().cloned().unwrap_or(y0);
     Ok((y.iter().map(|v| 0.5 * (1.0 + v.sin())).collect(), st.get_best_cost()))

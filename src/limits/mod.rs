@@ -369,7 +369,8 @@ impl LimitsMap {
             if p.get("bounds") != first.get("bounds") || p.get("no_bound") != first.get("no_bound") {
                 return Err(bad("differ in their bounds".into()));
             }
-            let part: Vec<LimitCell> = serde_json::from_value(p.get("cells").cloned().unwrap_or(Value::Null)).map_err(|e| bad(format!("cannot be read: {e}")))?;
+            let part: Vec<LimitCell> =
+                serde_json::from_value(p.get("cells").cloned().unwrap_or(Value::Null)).map_err(|e| bad(format!("cannot be read: {e}")))?;
             cells.extend(part);
             run_time_s += p.get("run_time_s").and_then(Value::as_f64).unwrap_or(0.0);
         }
@@ -385,7 +386,8 @@ impl LimitsMap {
         if cells.len() != planned {
             return Err(bad(format!("hold {} of {planned} combinations", cells.len())));
         }
-        let bounds: Vec<BoundCell> = serde_json::from_value(first.get("bounds").cloned().unwrap_or(Value::Null)).map_err(|e| bad(format!("cannot be read: {e}")))?;
+        let bounds: Vec<BoundCell> =
+            serde_json::from_value(first.get("bounds").cloned().unwrap_or(Value::Null)).map_err(|e| bad(format!("cannot be read: {e}")))?;
         let no_bound = first.get("no_bound").and_then(Value::as_str).map(str::to_string);
         Ok(LimitsMap { objective, settings, ceilings_wcm2: ceilings, max_count: plan.max_count, cells, bounds, no_bound, interrupted: false, run_time_s })
     }
