@@ -102,6 +102,7 @@ impl Part {
             "argv": self.argv,
             "run_time_s": self.run_time_s,
             "kicktrain_version": env!("CARGO_PKG_VERSION"),
+            "laser_safety": crate::report::LASER_SAFETY,
             "result": self.result,
         });
         serde_json::to_string_pretty(&v).expect("json") + "\n"

@@ -133,7 +133,8 @@ fn a_split_tolerance_run_merges_to_the_unsplit_files() {
     let with = |extra: &[&'static str]| -> Vec<&'static str> { base.iter().copied().chain(extra.iter().copied()).collect() };
     let (code, whole_out, err) = run(&dir, &with(&["--out", "whole"]));
     assert_eq!(code, 0, "{err}");
-    for n in [2usize, 5] {
+    // 23 draws: 2 and 5 parts, and 30 parts (seven of them own no draw).
+    for n in [2usize, 5, 30] {
         for k in 0..n {
             let (shard, out) = (format!("{k}/{n}"), format!("p{n}/{k}"));
             let mut a = with(&[]);
@@ -168,16 +169,17 @@ fn a_split_limits_map_merges_to_the_unsplit_map() {
     let args = with(&["--out", "whole"]);
     let (code, _, err) = run(&dir, &args.iter().map(String::as_str).collect::<Vec<_>>());
     assert_eq!(code, 0, "{err}");
-    for k in 0..2 {
-        let (shard, out) = (format!("{k}/2"), format!("p/{k}"));
+    // Three (setting, ceiling) searches in four parts: part 3 owns none.
+    for k in 0..4 {
+        let (shard, out) = (format!("{k}/4"), format!("p/{k}"));
         let mut a = with(&[]);
         a.extend(["--shard".to_string(), shard, "--out".to_string(), out]);
         let (code, _, err) = run(&dir, &a.iter().map(String::as_str).collect::<Vec<_>>());
         assert_eq!(code, 0, "{err}");
     }
-    let (code, stdout, err) = run(&dir, &["merge", "p/1", "p/0", "--out", "merged"]);
+    let (code, stdout, err) = run(&dir, &["merge", "p/3", "p/1", "p/0", "p/2", "--out", "merged"]);
     assert_eq!(code, 0, "{err}");
-    assert!(stdout.contains("merged 2 parts"), "{stdout}");
+    assert!(stdout.contains("merged 4 parts"), "{stdout}");
     // Every column but the measured run time of each search (column run_time_s).
     let table = |p: &str| -> Vec<Vec<String>> {
         let text = std::fs::read_to_string(dir.join(p).join("limits.csv")).unwrap();

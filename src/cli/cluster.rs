@@ -186,8 +186,10 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
     let parts_dir = run.join("parts");
     let logs = run.join("logs");
     let head = |name: &str, extra: &[String]| -> String {
-        let mut s =
-            format!("#!/bin/bash\n# Written by kicktrain cluster ({command} of {items} {what} in {shards} parts).\n#SBATCH --job-name=kicktrain-{name}\n");
+        let mut s = format!(
+            "#!/bin/bash\n# Written by kicktrain cluster ({command} of {items} {what} in {shards} parts).\n# {}\n#SBATCH --job-name=kicktrain-{name}\n",
+            report::LASER_SAFETY
+        );
         for e in extra {
             s.push_str(&format!("#SBATCH {e}\n"));
         }
