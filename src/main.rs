@@ -40,9 +40,7 @@ fn main() -> ExitCode {
         Command::Tolerance(args) => commands::run_tolerance(&args),
         Command::Merge { parts, out } => commands::run_merge(&parts, out.as_deref()),
         Command::Cluster(args) => cli::cluster::run_cluster(&args),
-        Command::Design { objective, out, seed, effort, time_limit, quiet, json } => {
-            commands::run_design(objective.as_deref(), out.as_deref(), seed, effort.as_deref(), time_limit, quiet, json)
-        }
+        Command::Design(args) => commands::run_design(&args),
     };
     match result {
         Ok(Finish::Done) => ExitCode::SUCCESS,

@@ -123,7 +123,15 @@ pub fn tolerance_part(scenario: &Scenario, noise: Noise, samples: usize, seed: u
     let indexed: Vec<(usize, f64)> = owned.iter().zip(&scored).filter_map(|(&i, v)| v.map(|v| (i, v))).collect();
     if owned.is_empty() {
         // A part of more parts than draws may own none: a finished part with no scores.
-        return Ok(ToleranceResult { nominal, samples: vec![], sample_index: vec![], requested: samples, mean: f64::NAN, spread: f64::NAN, worst_decile: f64::NAN });
+        return Ok(ToleranceResult {
+            nominal,
+            samples: vec![],
+            sample_index: vec![],
+            requested: samples,
+            mean: f64::NAN,
+            spread: f64::NAN,
+            worst_decile: f64::NAN,
+        });
     }
     ToleranceResult::from_scores(nominal, samples, indexed, goal.sense())
 }

@@ -193,3 +193,83 @@ fn a_split_limits_map_merges_to_the_unsplit_map() {
     assert_eq!(std::fs::read(dir.join("merged/limits.svg")).unwrap(), std::fs::read(dir.join("whole/limits.svg")).unwrap());
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// Two 50 fs pulses on N2 at 300 K, quick search (at most four starts; it stops once three agree).
+const OBJECTIVE: &str = r#"{"molecule": "N2", "temperature_k": 300,
+ "pulses": {"count": 2, "shape": "gaussian", "fwhm_fs": 50, "delay_ps": {"min": 0.2, "max": 9.0},
+            "peak_intensity_wcm2": {"min": 0, "max": 5e13}},
+ "max_peak_intensity_wcm2": 5e13, "min_separation_ps": 0.2,
+ "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.05, 9.0], "step_fs": 20},
+ "search": {"seed": 3, "effort": "quick"}}"#;
+
+/// summary.json without its measured run times.
+fn summary_without_times(dir: &Path) -> String {
+    std::fs::read_to_string(dir.join("summary.json")).unwrap().lines().filter(|l| !l.contains("run_time")).collect::<Vec<_>>().join("\n")
+}
+
+#[test]
+fn a_split_design_merges_to_the_unsplit_design() {
+    let dir = sandbox("design");
+    std::fs::write(dir.join("d.json"), OBJECTIVE).unwrap();
+    let (code, _, err) = run(&dir, &["design", "d.json", "--out", "whole", "--quiet"]);
+    assert_eq!(code, 0, "{err}");
+    // The unsplit search stopped on agreement before its start limit, so the merge must stop where it
+    // did, not take every start the parts ran.
+    let summary: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(dir.join("whole/summary.json")).unwrap()).unwrap();
+    let search = &summary["per_pulse_count"][0]["search"];
+    assert_eq!(search["stopped_by"], "agreement", "{search}");
+    assert!(search["starts"].as_u64().unwrap() < 4, "{search}");
+    for n in [1usize, 2, 3, 5] {
+        let mut parts = vec![];
+        // Parts written in reverse order; with 5 parts of 4 starts one part owns none.
+        for k in (0..n).rev() {
+            let (shard, out) = (format!("{k}/{n}"), format!("parts{n}/{k}"));
+            let (code, stdout, err) = run(&dir, &["design", "d.json", "--shard", &shard, "--out", &out, "--quiet"]);
+            assert_eq!(code, 0, "part {shard}: {err}");
+            assert!(stdout.contains(&format!("part {shard}:")), "{stdout}");
+            parts.push(out);
+        }
+        let merged = format!("merged{n}");
+        let mut args: Vec<&str> = vec!["merge"];
+        args.extend(parts.iter().map(|s| s.as_str()));
+        args.extend(["--out", &merged]);
+        let (code, _, err) = run(&dir, &args);
+        assert_eq!(code, 0, "merge of {n}: {err}");
+        for f in ["design.json", "trace.csv", "history.csv", "design.svg", "convergence.svg"] {
+            assert!(
+                std::fs::read(dir.join("whole").join(f)).unwrap() == std::fs::read(dir.join(&merged).join(f)).unwrap(),
+                "{f} differs after a split into {n}"
+            );
+        }
+        assert_eq!(summary_without_times(&dir.join("whole")), summary_without_times(&dir.join(&merged)), "summary.json, {n} parts");
+    }
+    // A missing part is named with the command that reruns it, and nothing is written; run as printed,
+    // the merge succeeds.
+    std::fs::remove_dir_all(dir.join("parts3/1")).unwrap();
+    let (code, _, err) = run(&dir, &["merge", "parts3/0", "parts3/2", "--out", "m"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(!dir.join("m").exists());
+    let rerun = err.split("rerun: ").nth(1).expect("a rerun command").lines().next().unwrap().to_string();
+    assert!(rerun.contains("--shard 1/3"), "{rerun}");
+    let words: Vec<&str> = rerun.split_whitespace().skip(1).collect();
+    let (code, _, err) = run(&dir, &words);
+    assert_eq!(code, 0, "{err}");
+    let (code, _, err) = run(&dir, &["merge", "parts3/0", "parts3/1", "parts3/2", "--out", "m"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(std::fs::read(dir.join("whole/design.json")).unwrap() == std::fs::read(dir.join("m/design.json")).unwrap());
+    // Objectives whose counts depend on each other, time limits, and parts without a folder are refused.
+    let variable = OBJECTIVE.replace("\"count\": 2", "\"max_count\": 2");
+    std::fs::write(dir.join("v.json"), variable).unwrap();
+    for (args, field) in [
+        (vec!["design", "v.json", "--shard", "0/2", "--out", "v"], "pulses.max_count"),
+        (vec!["design", "d.json", "--shard", "0/2", "--time-limit", "60", "--out", "v"], "search.time_limit_s"),
+        (vec!["design", "d.json", "--shard", "0/2"], "--out"),
+        (vec!["design", "d.json", "--shard", "2/2", "--out", "v"], "--shard"),
+    ] {
+        let (code, _, err) = run(&dir, &args);
+        assert_eq!(code, 2, "{args:?}: {err}");
+        assert!(err.starts_with(&format!("error: {field}")) && err.lines().count() == 1, "{err}");
+        assert!(!dir.join("v").exists());
+    }
+    std::fs::remove_dir_all(&dir).ok();
+}

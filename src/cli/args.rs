@@ -39,29 +39,11 @@ kicktrain simulate best/design.json --out check   # replays the design\n\n\
 The search runs independent starts until three agree (see summary.json search.confidence) and warns when\n\
 they do not; --effort thorough searches harder, --time-limit S bounds the time.\n\
 Ctrl-C or SIGTERM stops the search and still reports (and writes) the best design found so far, exit code 4;\n\
-a second signal quits at once (exit 130) and writes nothing.")]
-    Design {
-        /// Objective file (JSON); the built-in two-pulse example when omitted.
-        objective: Option<PathBuf>,
-        /// Output folder.
-        #[arg(long)]
-        out: Option<PathBuf>,
-        /// Seed for the search (overrides the file's search.seed).
-        #[arg(long)]
-        seed: Option<u64>,
-        /// Effort: quick, normal or thorough (overrides the file's search.effort).
-        #[arg(long)]
-        effort: Option<String>,
-        /// After this many seconds the running start ends at its next iteration and no new start begins (overrides search.time_limit_s).
-        #[arg(long, value_name = "S")]
-        time_limit: Option<f64>,
-        /// No progress bar.
-        #[arg(long)]
-        quiet: bool,
-        /// Print the summary as JSON to standard output.
-        #[arg(long)]
-        json: bool,
-    },
+a second signal quits at once (exit 130) and writes nothing.\n\n\
+--shard K/N runs the independent starts i with i mod N = K of a fixed-count design (all of them, no early stop)\n\
+and writes a part folder; `kicktrain merge` puts the parts' starts in order, finishes the search and writes\n\
+the design one unsplit run with the same seed writes.")]
+    Design(DesignArgs),
     /// Field-dressed (pendular) states in a constant laser intensity and static field: the adiabatic limit.
     #[command(allow_negative_numbers = true)]
     #[command(after_help = "Examples:\n  kicktrain pendular OCS --intensity-wcm2 1e12 --static-kv-cm 20 --temperature-k 1\n  \
@@ -149,7 +131,7 @@ for N2, whose period is 8.4 ps), then check the interesting region with the defa
     #[command(after_help = "Example:\n  kicktrain tolerance best/design.json --jitter-fs 20 --energy-noise-percent 3 --samples 200 --out tol\n\n\
 Jitter moves every pulse after the first; the probe stays at the nominal times. Writes tolerance.csv and tolerance.svg.")]
     Tolerance(ToleranceArgs),
-    /// Merge the part folders of a scan, tolerance run or limits map split with --shard (for example the tasks of a Slurm array).
+    /// Merge the part folders of a scan, tolerance run, limits map or design split with --shard (for example the tasks of a Slurm array).
     #[command(after_help = "Example:\n  kicktrain merge run/parts/* --out run/result\n\n\
 Checks that the parts come from one input and split, that none is missing, duplicated or stopped early (naming the\n\
 command that reruns each such part), and only then writes the files one unsplit run writes (byte-identical CSV; a limits.csv\n\
@@ -283,6 +265,34 @@ pub struct ClusterArgs {
     pub cpus_per_task: usize,
 }
 
+/// The options of `kicktrain design`.
+#[derive(Args, Debug)]
+pub struct DesignArgs {
+    /// Objective file (JSON); the built-in two-pulse example when omitted.
+    pub objective: Option<PathBuf>,
+    /// Output folder.
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Seed for the search (overrides the file's search.seed).
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Effort: quick, normal or thorough (overrides the file's search.effort).
+    #[arg(long)]
+    pub effort: Option<String>,
+    /// After this many seconds the running start ends at its next iteration and no new start begins (overrides search.time_limit_s).
+    #[arg(long, value_name = "S")]
+    pub time_limit: Option<f64>,
+    /// Run only part K of N of the independent starts (K from 0) and write a part folder for `kicktrain merge`.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+    /// No progress bar.
+    #[arg(long)]
+    pub quiet: bool,
+    /// Print the summary as JSON to standard output.
+    #[arg(long)]
+    pub json: bool,
+}
+
 /// What `kicktrain cluster` splits.
 #[derive(Subcommand, Debug)]
 pub enum ClusterJob {
@@ -295,6 +305,8 @@ pub enum ClusterJob {
     /// A limits map (same options as `kicktrain limits`; --out is the run folder).
     #[command(allow_negative_numbers = true)]
     Limits(LimitsArgs),
+    /// The independent starts of a fixed-count design (same options as `kicktrain design`; --out is the run folder).
+    Design(DesignArgs),
 }
 
 /// The options of `kicktrain limits`.

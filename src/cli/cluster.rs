@@ -1,8 +1,8 @@
-//! `kicktrain cluster`: Slurm job-array scripts for a scan or tolerance run split into parts, and the
+//! `kicktrain cluster`: Slurm job-array scripts for a scan, tolerance run, limits map or design split into parts, and the
 //! merge job that runs after them. Time and memory requests come from a probe run of one point here.
 
 use super::args::{ClusterArgs, ClusterJob};
-use super::commands::{ALLOW_LONG, limits_input, read_scenario, scan_input};
+use super::commands::{ALLOW_LONG, design_input, limits_input, read_scenario, scan_input};
 use super::signals::Finish;
 use kicktrain::error::Error;
 use kicktrain::report;
@@ -63,16 +63,20 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
         }
     }
     let (input, out, shard_flag) = match &args.job {
-        ClusterJob::Scan(a) => (&a.scenario, a.out.as_deref(), &a.shard),
-        ClusterJob::Tolerance(a) => (&a.scenario, a.out.as_deref(), &a.shard),
-        ClusterJob::Limits(a) => (&a.objective, a.out.as_deref(), &a.shard),
+        ClusterJob::Scan(a) => (Some(&a.scenario), a.out.as_deref(), &a.shard),
+        ClusterJob::Tolerance(a) => (Some(&a.scenario), a.out.as_deref(), &a.shard),
+        ClusterJob::Limits(a) => (Some(&a.objective), a.out.as_deref(), &a.shard),
+        ClusterJob::Design(a) => (a.objective.as_ref(), a.out.as_deref(), &a.shard),
     };
     if shard_flag.is_some() {
         return Err(Error::input("--shard", "cluster sets each task's part itself; expected no --shard"));
     }
     let out = out.ok_or_else(|| Error::input("--out", "expected the run folder (it receives the scripts, the parts and the merged result)"))?;
     let run = absolute(out)?;
-    let text = kicktrain::input::read_text_file(input)?;
+    let text = match input {
+        Some(p) => kicktrain::input::read_text_file(p)?,
+        None => super::commands::DEFAULT_OBJECTIVE.to_string(),
+    };
     let exe = std::env::current_exe().map_err(|e| Error::Io(format!("cannot find the kicktrain binary: {e}")))?;
     let input_copy = run.join("input.json");
     let quote = |p: &Path| shell_quote(&p.display().to_string());
@@ -175,6 +179,22 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
             w.push("--quiet".into());
             ("limits", searches, "searches", w, t0.elapsed().as_secs_f64())
         }
+        ClusterJob::Design(a) => {
+            let (_, _, obj) = design_input(a)?;
+            let d = kicktrain::design::search::design_part_plan(&obj)?;
+            eprintln!("probing: one of {} starts …", d.max_starts);
+            let t0 = Instant::now();
+            kicktrain::design::search::design_part(&obj, Shard { index: 0, count: d.max_starts }, &kicktrain::design::search::Silent)?;
+            let mut w = vec!["design".to_string(), quote(&input_copy)];
+            if let Some(s) = a.seed {
+                w.extend(["--seed".into(), s.to_string()]);
+            }
+            if let Some(e) = &a.effort {
+                w.extend(["--effort".into(), shell_quote(e)]);
+            }
+            w.push("--quiet".into());
+            ("design", d.max_starts, "starts", w, t0.elapsed().as_secs_f64())
+        }
     };
     let shards = args.shards.min(items.max(1));
     let per_task = items.div_ceil(shards) + usize::from(command == "tolerance");
@@ -224,12 +244,16 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
         exe = quote(&exe),
         words = words.join(" "),
     );
+    // A design's merge finishes the search (full-solver scoring and refinement, the single-pulse
+    // baseline): give it the time of two starts and the tasks' CPUs and memory.
+    let (merge_time, merge_mem, merge_cpus) =
+        if command == "design" { (slurm_time(time_request(2, probe_s).max(1800.0)), mem.max(2048), args.cpus_per_task) } else { ("0:30:00".into(), 2048, 1) };
     let merge = head(
         "merge",
         &[
-            "--time=0:30:00".into(),
-            "--mem=2048M".into(),
-            "--cpus-per-task=1".into(),
+            format!("--time={merge_time}"),
+            format!("--mem={merge_mem}M"),
+            format!("--cpus-per-task={merge_cpus}"),
             format!("--output={}/merge.out", logs.display()),
             format!("--chdir={}", run.display()),
             "--kill-on-invalid-dep=yes".into(),
@@ -237,6 +261,7 @@ pub fn run_cluster(args: &ClusterArgs) -> Result<Finish, Error> {
     ) + &format!(
         "# Runs once every task of the array succeeded (submit with --dependency=afterok:ARRAY_JOB). Run the same line by\n\
          # hand after a failed task: it names each part that is missing or stopped and the command that reruns it.\n\
+         export RAYON_NUM_THREADS=\"${{SLURM_CPUS_PER_TASK:-{merge_cpus}}}\"\n\
          exec {exe} merge {parts}/* --out {result}\n",
         exe = quote(&exe),
         parts = quote(&parts_dir),

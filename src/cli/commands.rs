@@ -93,7 +93,7 @@ pub fn run_simulate(path: &Path, out: Option<&Path>, json: bool) -> Result<(), E
 }
 
 /// The objective `kicktrain design` runs when no file is given.
-const DEFAULT_OBJECTIVE: &str = include_str!("../../objectives/two-pulse-room-temperature.json");
+pub const DEFAULT_OBJECTIVE: &str = include_str!("../../objectives/two-pulse-room-temperature.json");
 
 /// Progress bar and Ctrl-C flag for a design search.
 struct Progress {
@@ -132,45 +132,66 @@ impl Monitor for Progress {
     }
 }
 
-/// `kicktrain design`: the search with a progress bar; a signal stops it with the best design so far.
-pub fn run_design(
-    path: Option<&Path>,
-    out: Option<&Path>,
-    seed: Option<u64>,
-    effort: Option<&str>,
-    time_limit: Option<f64>,
-    quiet: bool,
-    json: bool,
-) -> Result<Finish, Error> {
-    let (text, name) = match path {
+/// The objective of a design run: the file (or the built-in example) with --seed, --effort and
+/// --time-limit applied. Returns (the file's text, its name, the objective).
+pub fn design_input(args: &super::args::DesignArgs) -> Result<(String, String, Objective), Error> {
+    let (text, name) = match args.objective.as_deref() {
         Some(p) => (read_text_file(p)?, p.display().to_string()),
         None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
     };
     let mut obj = Objective::from_json_str(&text, &name)?;
-    apply_overrides(&mut obj, seed, effort)?;
-    if let Some(t) = time_limit {
+    apply_overrides(&mut obj, args.seed, args.effort.as_deref())?;
+    if let Some(t) = args.time_limit {
         if !(t > 0.0 && t <= 1e7) {
             return Err(Error::input("--time-limit", format!("expected a time above 0 and at most 1e7 s, got {t}")));
         }
         obj.search.time_limit_s = Some(t);
     }
-    let staged = prepare_out(out, "design")?;
-    GRACEFUL.store(true, Ordering::SeqCst);
+    Ok((text, name, obj))
+}
+
+/// The progress bar of a design search (hidden with --quiet).
+fn design_progress(quiet: bool) -> Progress {
     let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(1) };
     bar.set_style(indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})").expect("template").progress_chars("=> "));
-    if !quiet {
+    Progress { bar, stop: &STOP, stage_start: AtomicUsize::new(usize::MAX) }
+}
+
+/// `kicktrain design`: the search with a progress bar; a signal stops it with the best design so far.
+/// With --shard, the starts of one part (see [`run_design_part`]).
+pub fn run_design(args: &super::args::DesignArgs) -> Result<Finish, Error> {
+    let (text, name, obj) = design_input(args)?;
+    let out = args.out.as_deref();
+    let shard = read_shard(args.shard.as_deref(), out)?;
+    let staged = prepare_out(out, "design")?;
+    GRACEFUL.store(true, Ordering::SeqCst);
+    if let Some(sh) = shard {
+        return run_design_part(args, &text, &obj, sh, staged);
+    }
+    if !args.quiet {
         eprintln!("designing: {} ({} pulse(s){}, seed {})", name, obj.space.pulses.len(), if obj.variable_count { " at most" } else { "" }, obj.search.seed);
     }
-    let monitor = Progress { bar, stop: &STOP, stage_start: AtomicUsize::new(usize::MAX) };
+    let monitor = design_progress(args.quiet);
     let result = design(&obj, &monitor)?;
     monitor.bar.finish_and_clear();
+    finish_design(&obj, &result, staged, out, args.json)
+}
+
+/// Print a design's summary (or its JSON) and write its files.
+fn finish_design(
+    obj: &Objective,
+    result: &kicktrain::design::search::DesignResult,
+    staged: Option<OutputDir>,
+    out: Option<&Path>,
+    json: bool,
+) -> Result<Finish, Error> {
     let summary = match staged {
         Some(o) => {
-            let summary = report::design::write_design(&obj, &result, &replay(&obj, &result)?, o.path())?;
+            let summary = report::design::write_design(obj, result, &replay(obj, result)?, o.path())?;
             o.commit()?;
             summary
         }
-        None => report::design::design_summary(&obj, &result),
+        None => report::design::design_summary(obj, result),
     };
     if json {
         println!("{}", serde_json::to_string_pretty(&summary).expect("json"));
@@ -182,6 +203,73 @@ pub fn run_design(
         }
     }
     Ok(if result.interrupted { Finish::Partial } else { Finish::Done })
+}
+
+/// The part file's record of a design: what a merge needs to finish it.
+fn design_record(text: &str, args: &super::args::DesignArgs) -> serde_json::Value {
+    serde_json::json!({
+        "objective": text,
+        "seed": args.seed,
+        "effort": args.effort,
+        "allow_long": ALLOW_LONG.load(Ordering::SeqCst),
+    })
+}
+
+/// `kicktrain design --shard K/N`: the starts part K owns, each to its end, written as a part folder.
+fn run_design_part(args: &super::args::DesignArgs, text: &str, obj: &Objective, sh: Shard, staged: Option<OutputDir>) -> Result<Finish, Error> {
+    let t0 = std::time::Instant::now();
+    let monitor = design_progress(args.quiet);
+    let part = kicktrain::design::search::design_part(obj, sh, &monitor)?;
+    monitor.bar.finish_and_clear();
+    let record = design_record(text, args);
+    let result = serde_json::json!({ "input": record.clone(), "max_starts": part.max_starts, "starts": part.runs });
+    let file = Part {
+        dir: Default::default(),
+        command: "design".into(),
+        fingerprint: kicktrain::shard::fingerprint(&["design", &record.to_string()]),
+        shard: sh,
+        complete: part.complete,
+        argv: std::env::args().collect(),
+        run_time_s: t0.elapsed().as_secs_f64(),
+        result,
+    };
+    let sense = obj.goal.sense();
+    let best = part.runs.iter().map(|r| r.polished).max_by(|a, b| (sense * a).total_cmp(&(sense * b)));
+    println!(
+        "part {sh}: {} of {} starts in {:.1} s{}{}",
+        part.runs.len(),
+        sh.owned(part.max_starts),
+        file.run_time_s,
+        best.map(|b| format!("; best polished score {b:.5}")).unwrap_or_default(),
+        if part.complete { "" } else { " (stopped early)" }
+    );
+    let outputs = || vec![(PART_FILE, file.to_json())];
+    let note = (!part.complete).then(|| format!("part {} of {} stopped by a signal; rerun it before merging.\n", sh.index, sh.count));
+    write_and_finish(staged, args.out.as_deref(), outputs, note)
+}
+
+/// The design of merged parts: their starts in order, then the search's last stage and the report.
+fn merge_design(parts: &[Part], out: Option<&Path>) -> Result<Finish, Error> {
+    let record = parts[0].result.get("input").cloned().ok_or_else(|| Error::input("parts", "the design parts lack their input record"))?;
+    let text = record.get("objective").and_then(|v| v.as_str()).ok_or_else(|| Error::input("parts", "the design parts lack their objective"))?;
+    let mut obj = Objective::from_json_str(text, "the parts' objective")?;
+    apply_overrides(&mut obj, record.get("seed").and_then(|v| v.as_u64()), record.get("effort").and_then(|v| v.as_str()))?;
+    let mut runs: Vec<kicktrain::design::search::StartRun> = vec![];
+    for p in parts {
+        let starts = p.result.get("starts").cloned().unwrap_or_default();
+        let mut these: Vec<kicktrain::design::search::StartRun> =
+            serde_json::from_value(starts).map_err(|e| Error::input("parts", format!("{}: cannot read the starts of {}: {e}", p.dir.display(), PART_FILE)))?;
+        runs.append(&mut these);
+    }
+    let staged = prepare_out(out, "design")?;
+    let seconds: f64 = parts.iter().map(|p| p.run_time_s).sum();
+    println!("merged {} parts ({} starts; their run times add up to {seconds:.1} s); finishing the search", parts.len(), runs.len());
+    let monitor = design_progress(false);
+    let mut result = kicktrain::design::search::design_merged(&obj, &runs, &monitor)?;
+    monitor.bar.finish_and_clear();
+    // The run time reported is the parts' and the merge's together.
+    result.run_time_s += seconds;
+    finish_design(&obj, &result, staged, out, false)
 }
 
 /// Progress bar and Ctrl-C flag of a limits map.
@@ -571,7 +659,8 @@ pub fn run_merge(dirs: &[std::path::PathBuf], out: Option<&Path>) -> Result<Fini
             write_and_finish(staged, out, outputs, None)
         }
         "limits" => merge_limits(&parts, out),
-        other => Err(Error::input("parts", format!("parts of `{other}` cannot be merged by this kicktrain; expected scan, tolerance or limits parts"))),
+        "design" => merge_design(&parts, out),
+        other => Err(Error::input("parts", format!("parts of `{other}` cannot be merged by this kicktrain; expected scan, tolerance, limits or design parts"))),
     }
 }
 
