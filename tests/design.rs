@@ -415,8 +415,10 @@ fn long_pulse_designs_skip_the_kick_model_and_reach_the_adiabatic_limit() {
       "pulses": {"count": 1, "fwhm_fs": 20000, "peak_intensity_wcm2": {"min": 0, "max": 1e13}},
       "max_peak_intensity_wcm2": 1e13,
       "goal": {"kind": "value_at", "at_ps": 0, "observable": "cos", "step_fs": 100},
-      "search": {"seed": 2, "swarm_size": 4, "iterations": 2, "starts": 1, "refine_candidates": 1, "refine_iterations": 4}
+      "search": {"seed": 2, "swarm_size": 6, "iterations": 3, "starts": 2, "refine_candidates": 1, "refine_iterations": 10}
     }"#;
+    // The smallest search that reaches the corner reliably: measured over seeds 1–10, every design within
+    // 7e-4 of it (one start of four particles and two iterations missed it by up to 0.022 for some seeds).
     let obj = objective(text);
     assert!(!obj.kick_screening());
     let r = design(&obj, &Silent).unwrap();

@@ -140,13 +140,7 @@ pub fn design_input(args: &super::args::DesignArgs) -> Result<(String, String, O
         None => (DEFAULT_OBJECTIVE.to_string(), "built-in objective two-pulse-room-temperature.json".to_string()),
     };
     let mut obj = Objective::from_json_str(&text, &name)?;
-    apply_overrides(&mut obj, args.seed, args.effort.as_deref())?;
-    if let Some(t) = args.time_limit {
-        if !(t > 0.0 && t <= 1e7) {
-            return Err(Error::input("--time-limit", format!("expected a time above 0 and at most 1e7 s, got {t}")));
-        }
-        obj.search.time_limit_s = Some(t);
-    }
+    obj.override_search(args.seed, args.effort.as_deref(), args.time_limit)?;
     Ok((text, name, obj))
 }
 
@@ -288,14 +282,7 @@ impl kicktrain::limits::LimitsMonitor for MapProgress {
 
 /// The --seed and --effort overrides of an objective's search settings.
 fn apply_overrides(obj: &mut Objective, seed: Option<u64>, effort: Option<&str>) -> Result<(), Error> {
-    if let Some(s) = seed {
-        obj.search.seed = s;
-    }
-    if let Some(e) = effort {
-        obj.search.effort =
-            kicktrain::design::Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
-    }
-    Ok(())
+    obj.override_search(seed, effort, None)
 }
 
 /// What a limits run needs besides its searches: the objective (with --seed and --effort), the plan and
@@ -446,14 +433,7 @@ fn merge_limits(parts: &[Part], out: Option<&Path>) -> Result<Finish, Error> {
 
 /// `kicktrain pendular`: dressed states of a molecule in constant fields.
 pub fn run_pendular(name: &str, intensity: f64, static_kv_cm: f64, angle_deg: f64, temperature_k: f64, j_max: u32, json: bool) -> Result<(), Error> {
-    let mol = kicktrain::molecule::Molecule::from_library(name, "molecule")?;
-    if !temperature_k.is_finite() || !(0.0..=5000.0).contains(&temperature_k) {
-        return Err(Error::input("temperature_k", format!("expected 0 to 5000 K, got {temperature_k}")));
-    }
-    if j_max > 40 {
-        return Err(Error::input("j_max", format!("expected at most 40 for a listing, got {j_max}")));
-    }
-    let r = kicktrain::pendular::pendular_at_angle(&mol, intensity, static_kv_cm, angle_deg, temperature_k, j_max)?;
+    let (mol, r) = kicktrain::pendular::listing(name, intensity, static_kv_cm, angle_deg, temperature_k, j_max)?;
     if json {
         println!("{}", serde_json::to_string_pretty(&report::text::pendular_json(&mol.name, intensity, static_kv_cm, temperature_k, &r)).expect("json"));
     } else {

@@ -608,6 +608,25 @@ pub struct Objective {
 }
 
 impl Objective {
+    /// Apply a caller's overrides of the search settings (the command line's --seed, --effort and
+    /// --time-limit, the Python module's keywords): seed, effort ("quick", "normal" or "thorough") and
+    /// time limit in seconds. Errors name the option.
+    pub fn override_search(&mut self, seed: Option<u64>, effort: Option<&str>, time_limit_s: Option<f64>) -> Result<()> {
+        if let Some(s) = seed {
+            self.search.seed = s;
+        }
+        if let Some(e) = effort {
+            self.search.effort = Effort::parse(e).ok_or_else(|| Error::input("--effort", format!("expected quick, normal or thorough, got \"{e}\"")))?;
+        }
+        if let Some(t) = time_limit_s {
+            if !(t > 0.0 && t <= 1e7) {
+                return Err(Error::input("--time-limit", format!("expected a time above 0 and at most 1e7 s, got {t}")));
+            }
+            self.search.time_limit_s = Some(t);
+        }
+        Ok(())
+    }
+
     /// Read an objective from JSON text (`file` names the source in syntax errors).
     pub fn from_json_str(text: &str, file: &str) -> Result<Objective> {
         let v = parse_json(text, file)?;

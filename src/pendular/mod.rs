@@ -62,6 +62,20 @@ pub struct PendularResult {
     pub static_angle_deg: Option<f64>,
 }
 
+/// The listing of `kicktrain pendular` (and the Python module's `pendular`): the molecule named from the
+/// library, a temperature from 0 to 5000 K and at most J = 40 listed, then [`pendular_at_angle`].
+pub fn listing(name: &str, intensity_wcm2: f64, static_kv_cm: f64, angle_deg: f64, temperature_k: f64, j_max: u32) -> Result<(Molecule, PendularResult)> {
+    let mol = Molecule::from_library(name, "molecule")?;
+    if !temperature_k.is_finite() || !(0.0..=5000.0).contains(&temperature_k) {
+        return Err(Error::input("temperature_k", format!("expected 0 to 5000 K, got {temperature_k}")));
+    }
+    if j_max > 40 {
+        return Err(Error::input("j_max", format!("expected at most 40 for a listing, got {j_max}")));
+    }
+    let r = pendular_at_angle(&mol, intensity_wcm2, static_kv_cm, angle_deg, temperature_k, j_max)?;
+    Ok((mol, r))
+}
+
 /// As [`pendular`] with the static field at `angle_deg` from the laser polarization (Z) towards X. At 0°
 /// and 180° (the field reversed) M is conserved and [`pendular`] answers; at other angles a linear
 /// molecule's dressed states carry ⟨cosθ⟩ with X as well, and their correlation runs through the static

@@ -1,6 +1,6 @@
 //! Reports of a design search: the replayable design, its summary, traces, history and plots.
 
-use super::{LASER_SAFETY, num, svg, trace_csv, write_file};
+use super::{LASER_SAFETY, num, svg, trace_columns, write_file};
 use crate::design::score::Replay;
 use crate::design::search::{COUNT_GAIN_THRESHOLD, Candidate, Confidence, DesignResult, STARTS_THAT_MUST_AGREE};
 use crate::design::{Objective, fluence_jcm2};
@@ -176,28 +176,44 @@ pub fn convergence_plot(obj: &Objective, r: &DesignResult) -> svg::LinePlot {
     plot
 }
 
-/// Write design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg of the design
-/// `r` into `dir`, with the traces of its replay (see `design::score::replay`). Returns the summary.
-pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Path) -> Result<Value> {
-    let (scenario, sim, base) = (&replay.scenario, &replay.design, &replay.baseline);
-    let mut summary = design_summary(obj, r);
-    summary["replay_score"] = match sim.goal_score {
-        Some(s) => num(s.value),
-        None => Value::Null,
-    };
-    let mut replay = scenario.to_value();
-    if let Value::Object(map) = &mut replay {
+/// The contents of design.json: the replayed scenario (a valid scenario file) with the laser-safety caution.
+pub fn design_file(replay: &Replay) -> Value {
+    let mut v = replay.scenario.to_value();
+    if let Value::Object(map) = &mut v {
         map.insert("laser_safety".into(), json!(LASER_SAFETY));
     }
-    write_file(dir, "design.json", &(serde_json::to_string_pretty(&replay).expect("json") + "\n"))?;
-    write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
-    let bt = &base.result.trace;
+    v
+}
+
+/// The columns of a design's trace.csv: the design's replayed trace, then the single-pulse baseline's.
+pub fn design_columns(replay: &Replay) -> Vec<(&str, &[f64])> {
+    let bt = &replay.baseline.result.trace;
     let extra: Vec<(&str, &[f64])> =
         [("baseline_cos2", Some(bt.cos2.as_slice())), ("baseline_cos2_2d", bt.cos2_2d()), ("baseline_three_axis", bt.three_axis())]
             .into_iter()
             .filter_map(|(n, s)| s.filter(|s| !s.is_empty()).map(|s| (n, s)))
             .collect();
-    write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
+    trace_columns(&replay.design.result.trace, &extra)
+}
+
+/// The summary.json of a design with its replay: [`design_summary`] and the replay's score.
+pub fn replayed_summary(obj: &Objective, r: &DesignResult, replay: &Replay) -> Value {
+    let mut summary = design_summary(obj, r);
+    summary["replay_score"] = match replay.design.goal_score {
+        Some(s) => num(s.value),
+        None => Value::Null,
+    };
+    summary
+}
+
+/// Write design.json, summary.json, trace.csv, design.svg, history.csv and convergence.svg of the design
+/// `r` into `dir`, with the traces of its replay (see `design::score::replay`). Returns the summary.
+pub fn write_design(obj: &Objective, r: &DesignResult, replay: &Replay, dir: &Path) -> Result<Value> {
+    let (scenario, sim, base) = (&replay.scenario, &replay.design, &replay.baseline);
+    let summary = replayed_summary(obj, r, replay);
+    write_file(dir, "design.json", &(serde_json::to_string_pretty(&design_file(replay)).expect("json") + "\n"))?;
+    write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("json") + "\n"))?;
+    write_file(dir, "trace.csv", &super::columns_csv(&design_columns(replay)))?;
     let mut plot = super::alignment_plot(scenario, &sim.result.trace, "Optimized pulse train");
     plot.y_label = "alignment".into();
     let obs = obj.goal.observable;

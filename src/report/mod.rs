@@ -172,9 +172,12 @@ pub fn simulation_summary(sim: &Simulation) -> Value {
     })
 }
 
-/// The trace as CSV text with columns `t_ps,cos2,cos2_2d` (and any extra named columns).
-pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
-    let mut cols: Vec<(&str, &[f64])> = vec![];
+/// The columns of a trace as trace.csv holds them, in order: `t_ps`, `cos2`, `cos2_2d` (when computed),
+/// the body-axis, orientation, three-axis and lab-axis series the run computed, then `extra`. A column
+/// without one value per sample (an observable not computed) is left out.
+pub fn trace_columns<'a>(trace: &'a Trace, extra: &[(&'a str, &'a [f64])]) -> Vec<(&'a str, &'a [f64])> {
+    let mut cols: Vec<(&str, &[f64])> = vec![("t_ps", trace.times_ps.as_slice()), ("cos2", trace.cos2.as_slice())];
+    cols.extend(trace.cos2_2d().filter(|c| !c.is_empty()).map(|c| ("cos2_2d", c)));
     if let Some(b) = &trace.body_axes {
         cols.extend([("cos2_a", b.a.as_slice()), ("cos2_b", &b.b), ("cos2_c", &b.c)]);
     }
@@ -192,30 +195,42 @@ pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
         cols.push((s.name.as_str(), s.values.as_slice()));
     }
     cols.extend_from_slice(extra);
-    // Every column has one value per sample; a column that does not (an observable not computed) is left out.
     cols.retain(|(_, c)| c.len() == trace.times_ps.len());
-    let extra = &cols[..];
-    let mut out = String::from("t_ps,cos2");
-    let cos2_2d = trace.cos2_2d().filter(|c| c.len() == trace.times_ps.len() && !c.is_empty());
-    if cos2_2d.is_some() {
-        out.push_str(",cos2_2d");
+    cols
+}
+
+/// The columns of a simulation's trace.csv: the trace, then the focal averages when computed.
+pub fn simulation_columns(sim: &Simulation) -> Vec<(&str, &[f64])> {
+    let mut extra: Vec<(&str, &[f64])> = vec![];
+    if let Some(av) = &sim.averaged {
+        extra.push(("cos2_avg", &av.trace.cos2));
+        extra.extend(av.trace.cos2_2d().map(|c| ("cos2_2d_avg", c)));
+        extra.extend(av.trace.cos().map(|c| ("cos_avg", c)));
     }
-    for (name, _) in extra {
-        out.push(',');
-        out.push_str(name);
-    }
-    out.push('\n');
-    for i in 0..trace.times_ps.len() {
-        out.push_str(&format!("{:.6},{:.10}", trace.times_ps[i], trace.cos2[i]));
-        if let Some(c) = cos2_2d {
-            out.push_str(&format!(",{:.10}", c[i]));
-        }
-        for (_, col) in extra {
-            out.push_str(&format!(",{:.10}", col[i]));
+    trace_columns(&sim.result.trace, &extra)
+}
+
+/// CSV text of `columns` (the first is time, 6 decimals; the others 10 decimals).
+pub fn columns_csv(columns: &[(&str, &[f64])]) -> String {
+    let names: Vec<&str> = columns.iter().map(|c| c.0).collect();
+    let mut out = names.join(",") + "\n";
+    let rows = columns.first().map(|c| c.1.len()).unwrap_or(0);
+    for i in 0..rows {
+        for (k, (_, col)) in columns.iter().enumerate() {
+            if k == 0 {
+                out.push_str(&format!("{:.6}", col[i]));
+            } else {
+                out.push_str(&format!(",{:.10}", col[i]));
+            }
         }
         out.push('\n');
     }
     out
+}
+
+/// The trace as CSV text with columns `t_ps,cos2,cos2_2d` (and any extra named columns).
+pub fn trace_csv(trace: &Trace, extra: &[(&str, &[f64])]) -> String {
+    columns_csv(&trace_columns(trace, extra))
 }
 
 /// A plot of the alignment trace with the pulses marked and the isotropic values drawn.
@@ -342,13 +357,7 @@ pub fn write_file(dir: &Path, name: &str, contents: &str) -> Result<()> {
 pub fn write_simulation(sim: &Simulation, dir: &Path) -> Result<Value> {
     let summary = simulation_summary(sim);
     write_file(dir, "summary.json", &(serde_json::to_string_pretty(&summary).expect("summary serializes") + "\n"))?;
-    let mut extra: Vec<(&str, &[f64])> = vec![];
-    if let Some(av) = &sim.averaged {
-        extra.push(("cos2_avg", &av.trace.cos2));
-        extra.extend(av.trace.cos2_2d().map(|c| ("cos2_2d_avg", c)));
-        extra.extend(av.trace.cos().map(|c| ("cos_avg", c)));
-    }
-    write_file(dir, "trace.csv", &trace_csv(&sim.result.trace, &extra))?;
+    write_file(dir, "trace.csv", &columns_csv(&simulation_columns(sim)))?;
     // Without a description: what the plot shows (a static field that stays on is not field-free).
     let default_title = if sim.result.trace.orientation.is_some() { "Alignment and orientation" } else { "Alignment" };
     let title = sim.scenario.description.clone().unwrap_or_else(|| default_title.to_string());
