@@ -93,13 +93,9 @@ fn a_scan_run_as_a_slurm_job_array_merges_to_the_unsplit_run() {
     let _ = std::fs::remove_dir_all(&dir);
 }
 
-/// Two 50 fs pulses on N2 at 300 K, quick search (four starts at most).
-const OBJECTIVE: &str = r#"{"molecule": "N2", "temperature_k": 300,
- "pulses": {"count": 2, "shape": "gaussian", "fwhm_fs": 50, "delay_ps": {"min": 0.2, "max": 9.0},
-            "peak_intensity_wcm2": {"min": 0, "max": 5e13}},
- "max_peak_intensity_wcm2": 5e13, "min_separation_ps": 0.2,
- "goal": {"kind": "peak", "observable": "cos2", "window_ps": [0.05, 9.0], "step_fs": 20},
- "search": {"seed": 3, "effort": "quick"}}"#;
+#[path = "common/objectives.rs"]
+mod objectives;
+use objectives::TWO_PULSES_QUICK as OBJECTIVE;
 
 #[test]
 #[ignore = "needs a running Slurm cluster: bash tools/slurm/start.sh, then --ignored"]
