@@ -1,6 +1,6 @@
 //! A scan and a design split by `kicktrain cluster` into a real Slurm job array, merged by the dependent
 //! job, equal the unsplit runs byte for byte. Needs a running Slurm cluster (tools/slurm/start.sh starts a one-node
-//! one); run with `cargo test --release --test cluster -- --ignored` (`.ci/run` does). Without a cluster
+//! one); run with `cargo test --profile ci --test cluster -- --ignored` (`.ci/run` does). Without a cluster
 //! the test fails, saying so, rather than passing.
 
 use std::path::{Path, PathBuf};

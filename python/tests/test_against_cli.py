@@ -3,7 +3,7 @@
 The module and the command are built from one crate, so the numbers must agree exactly: summaries as
 parsed JSON (shortest round-trip digits, so equal floats are equal bits), traces against the CLI's
 trace.csv formatted the same way, written folders byte for byte (but for measured run times). The
-command is found at $KICKTRAIN_BIN (default: target/release/kicktrain of this checkout).
+command is found at $KICKTRAIN_BIN (default: target/ci/kicktrain of this checkout, else target/release/kicktrain).
 """
 
 import json
@@ -21,7 +21,9 @@ import pytest
 import kicktrain as kt
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
-BIN = os.environ.get("KICKTRAIN_BIN", str(ROOT / "target" / "release" / "kicktrain"))
+BIN = os.environ.get("KICKTRAIN_BIN") or next(
+    (str(p) for p in [ROOT / "target" / "ci" / "kicktrain", ROOT / "target" / "release" / "kicktrain"] if p.is_file()), "kicktrain"
+)
 
 SCENARIO = {
     "molecule": "N2",
