@@ -1,5 +1,6 @@
-//! `kicktrain cluster`: Slurm job-array scripts for a scan, tolerance run, limits map or design split into parts, and the
-//! merge job that runs after them. Time and memory requests come from a probe run of one point here.
+//! `kicktrain cluster`: Slurm job-array scripts for a scan, tolerance run, limits map or design split
+//! into parts, and the merge job that runs after them. Time and memory requests come from a probe run of
+//! one item (a point, a draw, a search or a start) here.
 
 use super::args::{ClusterArgs, ClusterJob};
 use super::commands::{ALLOW_LONG, design_input, limits_input, read_scenario, scan_input};
