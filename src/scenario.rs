@@ -112,6 +112,14 @@ pub const DEFAULT_MAX_STATES_TOP: f64 = 2e4;
 /// molecule or a cold heavy one (a 10 ns pulse on OCS at 1 K takes about 1e4 steps and 11 s).
 pub const DEFAULT_MAX_STEPS: f64 = 2e5;
 
+impl SolverSettings {
+    /// Lift the step and state limits (the command line's --allow-long, the Python module's `allow_long`).
+    pub fn lift_size_limits(&mut self) {
+        self.max_steps = f64::INFINITY;
+        self.max_states = Some(f64::INFINITY);
+    }
+}
+
 impl Default for SolverSettings {
     fn default() -> Self {
         SolverSettings {

@@ -10,7 +10,7 @@
 //! when the call returns.
 
 use kicktrain::design::Objective;
-use kicktrain::design::search::{DesignResult, Monitor};
+use kicktrain::design::search::{DesignResult, Monitor, StageCounter};
 use kicktrain::error::Error;
 use kicktrain::report;
 use kicktrain::report::output::OutputDir;
@@ -86,8 +86,7 @@ fn simulate(py: Python<'_>, text: Option<String>, path: Option<String>, allow_lo
         let (text, name) = input_text(text, path, "scenario")?;
         let mut scenario = Scenario::from_json_str(&text, &name)?;
         if allow_long {
-            scenario.solver.max_steps = f64::INFINITY;
-            scenario.solver.max_states = Some(f64::INFINITY);
+            scenario.solver.lift_size_limits();
         }
         let sim = kicktrain::design::score::simulate_scored(&scenario, Default::default())?;
         Ok(Simulation { sim })
@@ -189,8 +188,9 @@ impl Drop for CatchInterrupt {
 /// stops the search and is raised when it returns.
 struct PyMonitor {
     progress: Option<Py<PyAny>>,
-    /// (stage name, planned evaluations, evaluations before the stage).
-    stage: Mutex<(String, usize, Option<usize>)>,
+    /// (stage name, planned evaluations).
+    stage: Mutex<(String, usize)>,
+    counter: StageCounter,
     last_call: Mutex<Option<Instant>>,
     error: Mutex<Option<PyErr>>,
 }
@@ -219,16 +219,14 @@ impl PyMonitor {
 
 impl Monitor for PyMonitor {
     fn stage(&self, name: &str, planned: usize) {
-        *self.stage.lock().expect("lock") = (name.to_string(), planned, None);
+        self.counter.restart();
+        *self.stage.lock().expect("lock") = (name.to_string(), planned);
         self.call(0, None, true);
     }
     fn evaluated(&self, evaluations: usize, best: Option<f64>) {
-        let done = {
-            let mut s = self.stage.lock().expect("lock");
-            let start = *s.2.get_or_insert(evaluations.saturating_sub(1));
-            evaluations - start
-        };
-        self.call(done, best, false);
+        if self.progress.is_some() {
+            self.call(self.counter.done(evaluations), best, false);
+        }
     }
     fn interrupted(&self) -> bool {
         STOP.load(Ordering::Relaxed)
@@ -248,7 +246,8 @@ fn design(
     time_limit_s: Option<f64>,
     progress: Option<Py<PyAny>>,
 ) -> PyResult<Design> {
-    let monitor = PyMonitor { progress, stage: Mutex::new((String::new(), 0, None)), last_call: Mutex::new(None), error: Mutex::new(None) };
+    let monitor =
+        PyMonitor { progress, stage: Mutex::new((String::new(), 0)), counter: StageCounter::default(), last_call: Mutex::new(None), error: Mutex::new(None) };
     let guard = CatchInterrupt::install();
     let outcome = py.detach(|| -> Result<Design, Error> {
         let (text, name) = input_text(text, path, "objective")?;

@@ -12,7 +12,7 @@ use kicktrain::report::output::OutputDir;
 use kicktrain::scenario::Scenario;
 use kicktrain::shard::{PART_FILE, Part, Shard};
 use std::path::Path;
-use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::sync::atomic::{AtomicBool, Ordering};
 
 /// Set from --allow-long: lift every scenario's solver.max_steps.
 pub static ALLOW_LONG: AtomicBool = AtomicBool::new(false);
@@ -22,8 +22,7 @@ pub fn read_scenario(path: &Path) -> Result<Scenario, Error> {
     let text = read_text_file(path)?;
     let mut scenario = Scenario::from_json_str(&text, &path.display().to_string())?;
     if ALLOW_LONG.load(Ordering::SeqCst) {
-        scenario.solver.max_steps = f64::INFINITY;
-        scenario.solver.max_states = Some(f64::INFINITY);
+        scenario.solver.lift_size_limits();
     }
     Ok(scenario)
 }
@@ -99,26 +98,19 @@ pub const DEFAULT_OBJECTIVE: &str = include_str!("../../objectives/two-pulse-roo
 struct Progress {
     bar: indicatif::ProgressBar,
     stop: &'static AtomicBool,
-    stage_start: AtomicUsize,
+    counter: kicktrain::design::search::StageCounter,
 }
 
 impl Monitor for Progress {
     fn stage(&self, name: &str, planned: usize) {
-        self.stage_start.store(usize::MAX, Ordering::Relaxed);
+        self.counter.restart();
         self.bar.set_length(planned.max(1) as u64);
         self.bar.set_position(0);
         self.bar.reset_eta();
         self.bar.set_prefix(name.to_string());
     }
     fn evaluated(&self, evaluations: usize, best: Option<f64>) {
-        let start = self.stage_start.load(Ordering::Relaxed);
-        let start = if start == usize::MAX {
-            self.stage_start.store(evaluations - 1, Ordering::Relaxed);
-            evaluations - 1
-        } else {
-            start
-        };
-        let done = (evaluations - start) as u64;
+        let done = self.counter.done(evaluations) as u64;
         if done > self.bar.length().unwrap_or(0) {
             self.bar.set_length(done);
         }
@@ -148,7 +140,7 @@ pub fn design_input(args: &super::args::DesignArgs) -> Result<(String, String, O
 fn design_progress(quiet: bool) -> Progress {
     let bar = if quiet { indicatif::ProgressBar::hidden() } else { indicatif::ProgressBar::new(1) };
     bar.set_style(indicatif::ProgressStyle::with_template("{prefix:>34} [{bar:30}] {pos}/{len} {msg} (ETA {eta})").expect("template").progress_chars("=> "));
-    Progress { bar, stop: &STOP, stage_start: AtomicUsize::new(usize::MAX) }
+    Progress { bar, stop: &STOP, counter: Default::default() }
 }
 
 /// `kicktrain design`: the search with a progress bar; a signal stops it with the best design so far.

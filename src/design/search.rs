@@ -190,6 +190,27 @@ impl SearchSolvers {
     }
 }
 
+/// Evaluations done in the current stage, from the running totals a [`Monitor`] is given: what a
+/// progress display shows (the command line's bar, the Python module's callback).
+#[derive(Debug, Default)]
+pub struct StageCounter {
+    /// Evaluations before the stage's first (None until it has one).
+    start: Mutex<Option<usize>>,
+}
+
+impl StageCounter {
+    /// A new stage begins ([`Monitor::stage`]).
+    pub fn restart(&self) {
+        *self.start.lock().expect("lock") = None;
+    }
+
+    /// Evaluations done in this stage after `evaluations` in all ([`Monitor::evaluated`]).
+    pub fn done(&self, evaluations: usize) -> usize {
+        let mut start = self.start.lock().expect("lock");
+        evaluations - *start.get_or_insert(evaluations.saturating_sub(1))
+    }
+}
+
 /// Scores trains with the three solvers and keeps the counts, the best point and the history.
 struct Evaluator<'a> {
     obj: &'a Objective,
@@ -746,6 +767,9 @@ fn run_starts(
                 return Ok((runs, "agreement".into()));
             }
         }
+        if runs.is_empty() {
+            return Err(Error::input("parts", "the parts hold no start; expected at least one"));
+        }
         return Ok((runs, "start limit".into()));
     }
     let mut stopped_by = "start limit".to_string();
@@ -824,13 +848,11 @@ fn finish_space(ev: &Evaluator, space: &DesignSpace, label: &str, plan: &SearchP
     let sense = ev.obj.goal.sense();
     let dims = space.dims();
     let polish = ev.screening_models().1;
-    let starts: Vec<(Vec<f64>, f64, f64, usize)> =
-        runs.iter().map(|r| (r.point.clone(), r.swarm, r.polished, r.kick_evaluations + r.full_evaluations)).collect();
     // Stage two: the full solver scores every start's train (the same train once), then refines the best.
-    ev.set_stage(&format!("{label} · full solver"), starts.len() + plan.refine_iterations * 2);
+    ev.set_stage(&format!("{label} · full solver"), runs.len() + plan.refine_iterations * 2);
     let mut full_values: Vec<f64> = vec![];
     let mut scored: Vec<(Vec<f64>, Score)> = vec![];
-    for (u, ..) in &starts {
+    for StartRun { point: u, .. } in runs {
         if let Some((_, s)) = scored.iter().find(|(v, _)| distance(v, u) < 1e-12) {
             full_values.push(s.value);
             continue;
@@ -872,8 +894,11 @@ fn finish_space(ev: &Evaluator, space: &DesignSpace, label: &str, plan: &SearchP
     }
     let field = space.field(&u);
     let kick = if ev.kick.is_some() { Some(ev.score_quietly(&field, Model::Kick)?) } else { None };
-    let outcomes: Vec<StartOutcome> =
-        starts.iter().zip(&full_values).map(|((_, sw, po, n), f)| StartOutcome { swarm: *sw, polished: *po, full: *f, evaluations: *n }).collect();
+    let outcomes: Vec<StartOutcome> = runs
+        .iter()
+        .zip(&full_values)
+        .map(|(r, f)| StartOutcome { swarm: r.swarm, polished: r.polished, full: *f, evaluations: r.kick_evaluations + r.full_evaluations })
+        .collect();
     let best_start = full_values.iter().map(|v| sense * v).fold(f64::NEG_INFINITY, f64::max);
     let worst_start = full_values.iter().map(|v| sense * v).fold(f64::INFINITY, f64::min);
     let agreeing = full_values.iter().filter(|v| sense * **v >= best_start - plan.agreement).count();
@@ -884,11 +909,7 @@ fn finish_space(ev: &Evaluator, space: &DesignSpace, label: &str, plan: &SearchP
             (Effort::Thorough, _) => "raise search.max_starts or search.swarm_size".to_string(),
             _ => "try search.effort \"thorough\"".to_string(),
         };
-        format!(
-            "{label}: the search may not have converged: only {agreeing} of {} starts reached this score (within {}); {advice}",
-            starts.len(),
-            plan.agreement
-        )
+        format!("{label}: the search may not have converged: only {agreeing} of {} starts reached this score (within {}); {advice}", runs.len(), plan.agreement)
     });
     let confidence = Confidence { starts: outcomes, agreeing, spread: best_start - worst_start, agreement: plan.agreement, stopped_by, warning };
     Ok((Candidate { field, kick, full }, confidence))
@@ -1143,7 +1164,22 @@ pub fn evaluate_kick_many(obj: &Objective, fields: &[FieldModel]) -> Result<Vec<
 
 #[cfg(test)]
 mod tests {
-    use super::Stall;
+    use super::{StageCounter, Stall};
+
+    /// A stage's count starts at its first evaluation, whatever the running total, and restarts with
+    /// the next stage (exact bookkeeping).
+    #[test]
+    fn stage_counter_counts_from_the_stage_s_first_evaluation() {
+        let c = StageCounter::default();
+        assert_eq!(c.done(10), 1);
+        assert_eq!(c.done(12), 3);
+        c.restart();
+        assert_eq!(c.done(12), 1);
+        c.restart();
+        // The first evaluation of all (total 1) is the stage's first.
+        let first = StageCounter::default();
+        assert_eq!(first.done(1), 1);
+    }
 
     /// The stall rule compares the best cost with the one `window` iterations earlier (exact bookkeeping,
     /// common practice for ending a local search): never before `window` + 1 iterations, and only when
